@@ -1,0 +1,10 @@
+"""showkit: plan, check and run flame-tube science shows.
+
+Layers, one way: ``physics`` -> ``analysis`` -> ``show`` -> ``cli`` / ``ui``.
+"""
+
+__version__ = "0.1.0"
+
+#: Bumped whenever a change to the model or the analysis changes results:
+#: cached analyses and cue locks made with another version are stale.
+ANALYSIS_VERSION = 1

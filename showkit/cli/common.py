@@ -1,0 +1,94 @@
+"""Options and output shared by the subcommands."""
+
+from __future__ import annotations
+
+import argparse
+import json
+import math
+import sys
+
+from showkit.safety import LEVEL_CAUTION
+
+
+def add_rig_option(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("--rig", metavar="RIG.toml",
+                        help="rig file describing your tube (default: the bundled demo rig)")
+
+
+def add_conditions_options(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("--static", metavar="PRESSURE",
+                        help='today\'s static overpressure from the manometer, e.g. "18 Pa", '
+                             '"0.08 inH2O", "0.2 mbar" (default: the rig file\'s)')
+    parser.add_argument("--reserve", metavar="FRACTION", type=float,
+                        help="fraction of the static pressure kept in reserve at every hole, "
+                             "0 to 0.9 (default: the rig file's)")
+
+
+def add_json_option(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("--json", action="store_true", help="print the result as JSON on stdout")
+
+
+def load_rig_from_args(args):
+    """The rig named by ``--rig`` (or the demo) with ``--static``/``--reserve`` applied."""
+    from showkit import units
+    from showkit.errors import InputError
+    from showkit.rigfile import load_rig
+
+    rig = load_rig(getattr(args, "rig", None))
+    static = getattr(args, "static", None)
+    reserve = getattr(args, "reserve", None)
+    static_pa = None
+    if static is not None:
+        static_pa = units.pressure_pa(_maybe_number(static), "--static")
+        if not static_pa > 0:
+            raise InputError("the static pressure must be above zero", "--static",
+                             'give the manometer reading, e.g. --static "18 Pa"')
+    if reserve is not None and not 0.0 <= reserve <= 0.9:
+        raise InputError(f"reserve must be within 0 and 0.9 (got {reserve:g})", "--reserve",
+                         "give a fraction such as 0.25")
+    return rig.with_conditions(static_pa=static_pa, reserve=reserve)
+
+
+def _maybe_number(text: str):
+    try:
+        return float(text)
+    except ValueError:
+        return text
+
+
+def clean_json(value):
+    """Make a result JSON-safe: numpy scalars and arrays to lists, non-finite floats to null."""
+    import numpy as np
+
+    if isinstance(value, dict):
+        return {str(k): clean_json(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [clean_json(v) for v in value]
+    if isinstance(value, np.ndarray):
+        return clean_json(value.tolist())
+    if isinstance(value, np.generic):
+        return clean_json(value.item())
+    if isinstance(value, float) and not math.isfinite(value):
+        return None
+    return value
+
+
+def print_json(value) -> None:
+    json.dump(clean_json(value), sys.stdout, indent=2)
+    sys.stdout.write("\n")
+
+
+def level_caution() -> None:
+    """The cautions line, on stderr, wherever a command sets or reports levels."""
+    print(f"CAUTION: {LEVEL_CAUTION}", file=sys.stderr)
+
+
+def table(rows: list[list[str]], header: list[str], align: str | None = None) -> str:
+    """A plain text table; ``align`` has one of ``<``/``>`` per column."""
+    cols = len(header)
+    align = align or "<" * cols
+    width = [max(len(str(r[i])) for r in [header] + rows) for i in range(cols)]
+    lines = ["  ".join(f"{str(h):{a}{w}}" for h, a, w in zip(header, align, width)).rstrip(),
+             "  ".join("-" * w for w in width)]
+    lines += ["  ".join(f"{str(c):{a}{w}}" for c, a, w in zip(r, align, width)).rstrip() for r in rows]
+    return "\n".join(lines)

@@ -1,0 +1,90 @@
+"""The ``showkit`` command: one command, one subcommand per job.
+
+Each subcommand lives in its own module under :mod:`showkit.cli` with two
+functions, ``add_arguments(parser)`` and ``run(args) -> int``, and is imported
+only when it is used, so that ``showkit --help`` and the UI start fast.
+A :class:`~showkit.errors.ShowkitError` becomes one line on stderr and exit
+status 2, never a traceback.
+"""
+
+from __future__ import annotations
+
+import argparse
+import importlib
+import sys
+
+from showkit import __version__
+from showkit.errors import ShowkitError
+from showkit.safety import LEVEL_CAUTION
+
+#: name -> (module under showkit.cli, one-line help)
+COMMANDS: dict[str, tuple[str, str]] = {
+    "open": ("open_cmd", "open the terminal UI on a cue sheet or a track"),
+    "modes": ("modes_cmd", "list the tube's resonances and the flame patterns they show"),
+    "ceiling": ("ceiling_cmd", "the safe drive ceiling (dB) of a track or passage"),
+    "scan": ("scan_cmd", "rank tracks and passages by how well they read in flames"),
+    "lock": ("lock_cmd", "compute and lock the ceiling of every cue in a cue sheet"),
+    "check": ("check_cmd", "check a locked cue sheet against today's manometer reading"),
+    "render": ("render_cmd", "render a locked cue sheet to audio files, every cue at or below its ceiling"),
+    "run": ("run_cmd", "run a show live through the audio device"),
+    "devices": ("devices_cmd", "list audio output devices"),
+    "measure": ("measure_cmd", "measure a real tube: sweep, resonances, fit and calibration"),
+}
+
+EPILOG = ("Run `showkit` with no arguments to open the terminal UI on the bundled demo show. "
+          "Lengths accept m, mm, cm, in, ft (\"6 ft 6 in\"); pressures Pa, mbar, inH2O, mmH2O, psi; "
+          "temperatures C, F, K. " + LEVEL_CAUTION)
+
+
+def _available() -> dict[str, tuple[str, str]]:
+    """The commands whose module is present in this version."""
+    found = {}
+    for name, (module, text) in COMMANDS.items():
+        if importlib.util.find_spec(f"showkit.cli.{module}") is not None:
+            found[name] = (module, text)
+    return found
+
+
+def build_parser() -> tuple[argparse.ArgumentParser, dict]:
+    parser = argparse.ArgumentParser(
+        prog="showkit",
+        description="Plan, check and run flame-tube science shows: model your tube, "
+                    "analyse tracks, lock safe drive levels per cue.",
+        epilog=EPILOG,
+    )
+    parser.add_argument("--version", action="version", version=f"showkit {__version__}")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND")
+    modules = {}
+    for name, (module, text) in _available().items():
+        mod = importlib.import_module(f"showkit.cli.{module}")
+        p = sub.add_parser(name, help=text, description=(mod.__doc__ or text).strip(),
+                           formatter_class=argparse.RawDescriptionHelpFormatter)
+        mod.add_arguments(p)
+        modules[name] = mod
+    return parser, modules
+
+
+def main(argv: list[str] | None = None) -> int:
+    argv = sys.argv[1:] if argv is None else argv
+    try:
+        if not argv and "open" in _available():
+            from showkit.cli import open_cmd
+            return open_cmd.run(open_cmd.default_args())
+        parser, modules = build_parser()
+        args = parser.parse_args(argv)
+        if args.command is None:
+            parser.print_help()
+            return 0
+        return int(modules[args.command].run(args) or 0)
+    except ShowkitError as exc:
+        print(f"showkit: {exc.line()}", file=sys.stderr)
+        return exc.exit_status
+    except KeyboardInterrupt:
+        print("showkit: interrupted", file=sys.stderr)
+        return 130
+    except BrokenPipeError:
+        return 0
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())

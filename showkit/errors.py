@@ -1,0 +1,62 @@
+"""The one exception family of showkit.
+
+Every error a user can cause (a bad rig file, a bad sheet, unreadable audio,
+a missing device) is a :class:`ShowkitError`.  The command line prints it as
+one line -- *where*, *what is wrong*, *how to fix it* -- and exits with status 2;
+it never shows a traceback for these.
+"""
+
+from __future__ import annotations
+
+
+class ShowkitError(Exception):
+    """A user-facing error: one line saying where, what and how to fix it.
+
+    Parameters
+    ----------
+    what : str
+        What is wrong, in plain words.
+    where : str, optional
+        Where it is: a file, ``file: field``, ``file, line 3`` or a cue id.
+    fix : str, optional
+        What the user can do about it.
+    """
+
+    exit_status = 2
+
+    def __init__(self, what: str, where: str | None = None, fix: str | None = None):
+        self.what = what
+        self.where = where
+        self.fix = fix
+        super().__init__(self.line())
+
+    def line(self) -> str:
+        """The whole message on one line."""
+        text = f"{self.where}: {self.what}" if self.where else self.what
+        if self.fix:
+            text = f"{text} -- {self.fix}"
+        return " ".join(text.split())
+
+
+class InputError(ShowkitError):
+    """A value given on the command line or in a file is not usable."""
+
+
+class RigError(ShowkitError):
+    """The rig file (tube, holes, gas, drive, safety) is wrong."""
+
+
+class AudioError(ShowkitError):
+    """An audio file cannot be read or holds unusable samples."""
+
+
+class SheetError(ShowkitError):
+    """A cue sheet is wrong, stale or cannot be saved."""
+
+
+class DeviceError(ShowkitError):
+    """The audio device or the PortAudio library is missing or failed."""
+
+
+class MeasureError(ShowkitError):
+    """A measurement recording cannot be analysed."""

@@ -1,0 +1,384 @@
+"""The rig file: a presenter's description of their tube (TOML).
+
+Reads and checks a rig file into a :class:`Rig` whose fields are SI.  Every
+problem is one :class:`~showkit.errors.RigError` line naming the file and the
+field.  See the README's "Rig file" section for the fields.
+"""
+
+from __future__ import annotations
+
+import difflib
+import hashlib
+import json
+import tomllib
+from dataclasses import dataclass, field, replace
+from functools import cached_property
+from importlib import resources
+from pathlib import Path
+
+from showkit import units
+from showkit.errors import InputError, RigError
+from showkit.physics.drive import DriveCalibration
+from showkit.physics.gas import FUELS, STANDARD_AMBIENT_PA, GasState, gas_state
+from showkit.physics.geometry import TubeGeometry, evenly_spaced
+from showkit.physics.tube import TubeModel, outflow_resistance
+
+#: Overpressure at which the "outflow" hole resistance is evaluated, Pa.
+NOMINAL_FLOW_PRESSURE_PA = 20.0
+
+_FIELDS = {
+    "name": None,
+    "tube": {"length", "bore", "wall"},
+    "holes": {"count", "spacing", "first", "diameter", "positions", "end_correction",
+              "resistance"},
+    "gas": {"fuel", "air_fraction", "temperature", "static_pressure", "ambient"},
+    "drive": {"reference_frequency", "reference_level", "reference_pressure",
+              "speaker_resonance", "speaker_q", "response_frequencies", "response_db"},
+    "safety": {"reserve"},
+    "measured": None,  # written by `showkit measure`: kept as data, read by later tools
+}
+_REQUIRED = {"tube": ("length", "bore", "wall"), "gas": ("fuel",)}
+
+
+def demo_rig_path() -> Path:
+    """Path of the bundled demo rig."""
+    return Path(str(resources.files("showkit") / "data" / "demo_rig.toml"))
+
+
+@dataclass(frozen=True)
+class Rig:
+    """A checked rig in SI units.
+
+    Attributes
+    ----------
+    name : str
+    geometry : TubeGeometry
+    fuel : str
+    air_fraction : float
+        Mole fraction of air in the tube gas.
+    temperature_k : float
+    static_pa : float
+        Static overpressure above ambient (manometer reading), Pa.
+    ambient_pa : float
+        Ambient absolute pressure, Pa.
+    drive : DriveCalibration
+    reserve : float
+        Fraction of ``static_pa`` kept in reserve at every hole (0 to 0.9).
+    path : Path or None
+    measured : dict
+        The ``[measured]`` section as written by measurement, or empty.
+    """
+
+    name: str
+    geometry: TubeGeometry
+    fuel: str
+    air_fraction: float
+    temperature_k: float
+    static_pa: float
+    ambient_pa: float
+    drive: DriveCalibration
+    reserve: float
+    path: Path | None = None
+    measured: dict = field(default_factory=dict, compare=False, hash=False)
+
+    @cached_property
+    def gas(self) -> GasState:
+        # the static overpressure (tens of Pa) changes the density by ~0.02 %:
+        # left out, so that the acoustic model does not depend on it
+        return gas_state(self.fuel, self.air_fraction, self.temperature_k, self.ambient_pa)
+
+    @cached_property
+    def model(self) -> TubeModel:
+        return TubeModel(self.geometry, self.gas)
+
+    def with_conditions(self, static_pa: float | None = None, temperature_k: float | None = None,
+                        reserve: float | None = None) -> "Rig":
+        """A copy with today's static pressure, gas temperature or reserve."""
+        return replace(
+            self,
+            static_pa=self.static_pa if static_pa is None else static_pa,
+            temperature_k=self.temperature_k if temperature_k is None else temperature_k,
+            reserve=self.reserve if reserve is None else reserve,
+        )
+
+    def acoustic_fields(self) -> dict:
+        """Everything that shapes the tube's response (not static pressure or reserve)."""
+        g = self.geometry
+        return {
+            "length_m": g.length_m, "bore_m": g.bore_m, "wall_m": g.wall_m,
+            "holes_m": list(g.hole_positions_m), "hole_diameter_m": g.hole_diameter_m,
+            "end_correction": g.end_correction,
+            "hole_resistance_pa_s_m3": g.hole_resistance_pa_s_m3,
+            "fuel": self.fuel, "air_fraction": self.air_fraction,
+            "temperature_k": self.temperature_k, "ambient_pa": self.ambient_pa,
+        }
+
+    def acoustic_hash(self) -> str:
+        """Hash of :meth:`acoustic_fields` (hex, 16 characters)."""
+        return _hash(self.acoustic_fields())
+
+    def calibration_fields(self) -> dict:
+        d = self.drive
+        return {"reference_frequency_hz": d.reference_frequency_hz,
+                "reference_level_dbfs": d.reference_level_dbfs,
+                "reference_pressure_pa": d.reference_pressure_pa,
+                "speaker_resonance_hz": d.speaker_resonance_hz, "speaker_q": d.speaker_q,
+                "response_freq_hz": list(d.response_freq_hz),
+                "response_db": list(d.response_db)}
+
+    def calibration_hash(self) -> str:
+        return _hash(self.calibration_fields())
+
+
+def _hash(data: dict) -> str:
+    text = json.dumps(data, sort_keys=True, default=repr)
+    return hashlib.sha256(text.encode()).hexdigest()[:16]
+
+
+def load_rig(path: str | Path | None = None) -> Rig:
+    """Read and check a rig file; ``None`` loads the bundled demo rig.
+
+    Raises
+    ------
+    RigError
+        One line naming the file and field, for every kind of bad input.
+    """
+    path = demo_rig_path() if path is None else Path(path)
+    try:
+        text = path.read_text(encoding="utf-8")
+    except FileNotFoundError:
+        raise RigError("no such rig file", str(path),
+                       "check the path, or leave out --rig to use the demo rig") from None
+    except IsADirectoryError:
+        raise RigError("is a folder, not a rig file", str(path), "give the path of a .toml file") from None
+    except (OSError, UnicodeDecodeError) as exc:
+        raise RigError(f"cannot read the rig file ({exc.__class__.__name__})", str(path),
+                       "check that it is a readable UTF-8 text file") from None
+    return parse_rig(text, str(path), path)
+
+
+def parse_rig(text: str, where: str = "rig", path: Path | None = None) -> Rig:
+    """Check the TOML text of a rig file (see :func:`load_rig`)."""
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise RigError(f"TOML syntax error: {exc}", where,
+                       "fix the line shown (quote strings, one key = value per line)") from None
+    try:
+        return _build(data, where, path)
+    except InputError as exc:
+        raise RigError(exc.what, exc.where, exc.fix) from None
+
+
+def _field(where: str, section: str, key: str) -> str:
+    return f"{where}: {section}.{key}" if section else f"{where}: {key}"
+
+
+def _check_keys(data: dict, where: str) -> None:
+    for key, value in data.items():
+        if key not in _FIELDS:
+            near = difflib.get_close_matches(key, list(_FIELDS), n=1)
+            raise RigError(f"unknown field {key!r}", f"{where}: {key}",
+                           f"did you mean {near[0]!r}?" if near else
+                           f"the rig file has: {', '.join(_FIELDS)}")
+        allowed = _FIELDS[key]
+        if allowed is None:
+            continue
+        if not isinstance(value, dict):
+            raise RigError(f"{key!r} must be a section [{key}]", f"{where}: {key}",
+                           f"write it as a [{key}] table")
+        for sub in value:
+            if sub not in allowed:
+                near = difflib.get_close_matches(sub, sorted(allowed), n=1)
+                raise RigError(f"unknown field {sub!r} in [{key}]", f"{where}: {key}.{sub}",
+                               f"did you mean {near[0]!r}?" if near else
+                               f"[{key}] has: {', '.join(sorted(allowed))}")
+    for section, keys in _REQUIRED.items():
+        for key in keys:
+            if key not in data.get(section, {}):
+                raise RigError(f"missing field {key!r} in [{section}]", f"{where}: {section}.{key}",
+                               f"add {key} = ... under [{section}] (see the README)")
+
+
+def _number(value, where: str, kind: str = "number") -> float:
+    if isinstance(value, bool) or not isinstance(value, (int, float)):
+        raise InputError(f"expected a {kind}, got {value!r}", where, "write a plain number")
+    return float(value)
+
+
+def _positive(value: float, where: str, what: str) -> float:
+    if not value > 0:
+        raise InputError(f"{what} must be greater than zero (got {value:g})", where,
+                         f"give the {what} of your tube")
+    return value
+
+
+def _build(data: dict, where: str, path: Path | None) -> Rig:
+    _check_keys(data, where)
+    name = data.get("name", path.stem if path else "rig")
+    if not isinstance(name, str):
+        raise RigError(f"expected text, got {name!r}", f"{where}: name", 'write name = "My tube"')
+    tube, holes = data["tube"], data.get("holes", {})
+    gas, drive = data["gas"], data.get("drive", {})
+    safety = data.get("safety", {})
+
+    length = _positive(units.length_m(tube["length"], _field(where, "tube", "length")),
+                       _field(where, "tube", "length"), "length")
+    bore = _positive(units.length_m(tube["bore"], _field(where, "tube", "bore")),
+                     _field(where, "tube", "bore"), "bore")
+    wall = _positive(units.length_m(tube["wall"], _field(where, "tube", "wall")),
+                     _field(where, "tube", "wall"), "wall thickness")
+    if bore >= length:
+        raise RigError(f"bore ({bore:g} m) is not smaller than the length ({length:g} m)",
+                       _field(where, "tube", "bore"), "give the inner diameter and the length in the right units")
+
+    positions, diameter = _holes(holes, where, length, bore)
+    end_corr = None
+    if "end_correction" in holes:
+        end_corr = _number(holes["end_correction"], _field(where, "holes", "end_correction"))
+        if not 0.0 <= end_corr <= 5.0:
+            raise RigError(f"end_correction must be within 0 and 5 hole radii (got {end_corr:g})",
+                           _field(where, "holes", "end_correction"),
+                           "leave it out to use the textbook value")
+
+    fuel = gas["fuel"]
+    if not isinstance(fuel, str) or fuel.lower() not in FUELS or fuel.lower() == "n-butane":
+        names = [f for f in FUELS if f != "n-butane"]
+        near = difflib.get_close_matches(str(fuel).lower(), names, n=1)
+        raise RigError(f"unknown fuel {fuel!r}", _field(where, "gas", "fuel"),
+                       (f"did you mean {near[0]!r}? " if near else "") + f"use one of: {', '.join(names)}")
+    fuel = fuel.lower()
+    air = _number(gas.get("air_fraction", 0.0), _field(where, "gas", "air_fraction"))
+    if not 0.0 <= air <= 0.5:
+        raise RigError(f"air_fraction must be within 0 and 0.5 (got {air:g})",
+                       _field(where, "gas", "air_fraction"),
+                       "give the mole fraction of air mixed into the fuel, e.g. 0.05")
+    temp = units.temperature_k(gas.get("temperature", "20 C"), _field(where, "gas", "temperature"))
+    if not 233.15 <= temp <= 373.15:
+        raise RigError(f"gas temperature {temp - 273.15:.1f} C is outside -40 to 100 C",
+                       _field(where, "gas", "temperature"), 'give the gas temperature, e.g. "20 C"')
+    static = units.pressure_pa(gas.get("static_pressure", "20 Pa"), _field(where, "gas", "static_pressure"))
+    _positive(static, _field(where, "gas", "static_pressure"), "static pressure")
+    if static > 5000.0:
+        raise RigError(f"static pressure {static:g} Pa is far above a flame tube's few to tens of pascals",
+                       _field(where, "gas", "static_pressure"), 'check the unit, e.g. "25 Pa" or "0.1 inH2O"')
+    ambient = units.pressure_pa(gas.get("ambient", STANDARD_AMBIENT_PA), _field(where, "gas", "ambient"))
+    if not 50_000.0 <= ambient <= 120_000.0:
+        raise RigError(f"ambient pressure {ambient:g} Pa is not an absolute air pressure",
+                       _field(where, "gas", "ambient"), 'give the absolute ambient pressure, e.g. "1013 mbar"')
+
+    reserve = _number(safety.get("reserve", 0.25), _field(where, "safety", "reserve"))
+    if not 0.0 <= reserve <= 0.9:
+        raise RigError(f"reserve must be within 0 and 0.9 (got {reserve:g})",
+                       _field(where, "safety", "reserve"), "give the fraction of static pressure to keep, e.g. 0.25")
+
+    calibration = _drive(drive, where)
+    gas_now = gas_state(fuel, air, temp, ambient)
+    geometry = TubeGeometry(length, bore, wall, positions, diameter, end_corr, 0.0)
+    resistance = holes.get("resistance", 0.0)
+    if resistance == "outflow":
+        r_value = (outflow_resistance(gas_now.density_kg_m3, NOMINAL_FLOW_PRESSURE_PA,
+                                      geometry.hole_area_m2) if positions else 0.0)
+    else:
+        r_value = units.resistance_pa_s_m3(resistance, _field(where, "holes", "resistance"))
+        if r_value < 0:
+            raise RigError("resistance must not be negative", _field(where, "holes", "resistance"),
+                           'leave it out, or write "outflow" or a value in Pa s/m3')
+    geometry = replace(geometry, hole_resistance_pa_s_m3=r_value)
+    measured = data.get("measured", {})
+    if not isinstance(measured, dict):
+        raise RigError("'measured' must be a section", f"{where}: measured", "let showkit measure write it")
+    return Rig(name=name, geometry=geometry, fuel=fuel, air_fraction=air, temperature_k=temp,
+               static_pa=static, ambient_pa=ambient, drive=calibration, reserve=reserve,
+               path=path, measured=measured)
+
+
+def _holes(holes: dict, where: str, length: float, bore: float) -> tuple[tuple[float, ...], float]:
+    if not holes:
+        return (), 0.0
+    if "positions" in holes:
+        clash = [k for k in ("count", "spacing", "first") if k in holes]
+        if clash:
+            raise RigError(f"positions replaces {', '.join(clash)}", _field(where, "holes", "positions"),
+                           "give either positions = [...] or count, spacing and first")
+        raw = holes["positions"]
+        if not isinstance(raw, list):
+            raise RigError("positions must be a list", _field(where, "holes", "positions"),
+                           'write positions = ["0.1 m", "0.125 m", ...]')
+        positions = tuple(units.length_m(v, f"{_field(where, 'holes', 'positions')}[{i}]")
+                          for i, v in enumerate(raw))
+        if list(positions) != sorted(positions):
+            raise RigError("positions must be in order from the driven end",
+                           _field(where, "holes", "positions"), "sort the list")
+    else:
+        count = holes.get("count", 0)
+        if isinstance(count, bool) or not isinstance(count, int):
+            raise RigError(f"count must be a whole number, got {count!r}", _field(where, "holes", "count"),
+                           "write count = 80")
+        if count < 0:
+            raise RigError(f"count must not be negative (got {count})", _field(where, "holes", "count"),
+                           "write the number of holes, or 0 for a plain pipe")
+        if count == 0:
+            return (), 0.0
+        for key in ("spacing", "first", "diameter"):
+            if key not in holes:
+                raise RigError(f"missing field {key!r} in [holes]", _field(where, "holes", key),
+                               f"add {key} = ... under [holes], or count = 0 for a plain pipe")
+        spacing = units.length_m(holes["spacing"], _field(where, "holes", "spacing"))
+        _positive(spacing, _field(where, "holes", "spacing"), "hole spacing")
+        first = units.length_m(holes["first"], _field(where, "holes", "first"))
+        positions = evenly_spaced(count, spacing, first)
+    if not positions:
+        return (), 0.0
+    if "diameter" not in holes:
+        raise RigError("missing field 'diameter' in [holes]", _field(where, "holes", "diameter"),
+                       'add diameter = "1.5 mm" under [holes]')
+    diameter = units.length_m(holes["diameter"], _field(where, "holes", "diameter"))
+    _positive(diameter, _field(where, "holes", "diameter"), "hole diameter")
+    if diameter > bore / 4.0:
+        raise RigError(f"hole diameter {diameter * 1e3:g} mm is not much smaller than the bore "
+                       f"({bore * 1e3:g} mm)", _field(where, "holes", "diameter"),
+                       "flame holes are a few mm; the model needs them below a quarter of the bore")
+    key = "positions" if "positions" in holes else "first"
+    if positions[0] - diameter / 2.0 < 0.0 or positions[-1] + diameter / 2.0 > length:
+        bad = positions[0] if positions[0] - diameter / 2 < 0 else positions[-1]
+        raise RigError(f"a hole at {bad:.4g} m lies outside the tube (0 to {length:g} m)",
+                       _field(where, "holes", key),
+                       "check first, spacing and count against the tube length")
+    gaps = [b - a for a, b in zip(positions, positions[1:])]
+    if gaps and min(gaps) <= diameter:
+        raise RigError(f"holes overlap: {min(gaps) * 1e3:.3g} mm apart but {diameter * 1e3:g} mm wide",
+                       _field(where, "holes", "spacing" if "spacing" in holes else "positions"),
+                       "holes must be further apart than their diameter")
+    return positions, diameter
+
+
+def _drive(drive: dict, where: str) -> DriveCalibration:
+    base = DriveCalibration()
+    f_ref = units.frequency_hz(drive.get("reference_frequency", base.reference_frequency_hz),
+                               _field(where, "drive", "reference_frequency"))
+    _positive(f_ref, _field(where, "drive", "reference_frequency"), "reference frequency")
+    level = _number(drive.get("reference_level", base.reference_level_dbfs),
+                    _field(where, "drive", "reference_level"), "level in dBFS")
+    if level > 0.0:
+        raise RigError(f"reference_level {level:g} dBFS is above full scale",
+                       _field(where, "drive", "reference_level"), "give the peak level in dBFS, e.g. -20")
+    p_ref = units.pressure_pa(drive.get("reference_pressure", base.reference_pressure_pa),
+                              _field(where, "drive", "reference_pressure"))
+    _positive(p_ref, _field(where, "drive", "reference_pressure"), "reference pressure")
+    f_s = units.frequency_hz(drive.get("speaker_resonance", base.speaker_resonance_hz),
+                             _field(where, "drive", "speaker_resonance"))
+    _positive(f_s, _field(where, "drive", "speaker_resonance"), "speaker resonance")
+    q_s = _number(drive.get("speaker_q", base.speaker_q), _field(where, "drive", "speaker_q"))
+    _positive(q_s, _field(where, "drive", "speaker_q"), "speaker Q")
+    rf = drive.get("response_frequencies", [])
+    rd = drive.get("response_db", [])
+    if not isinstance(rf, list) or not isinstance(rd, list) or len(rf) != len(rd):
+        raise RigError("response_frequencies and response_db must be lists of the same length",
+                       _field(where, "drive", "response_db"), "let showkit measure write them")
+    rf_hz = tuple(units.frequency_hz(v, _field(where, "drive", "response_frequencies")) for v in rf)
+    rd_db = tuple(_number(v, _field(where, "drive", "response_db")) for v in rd)
+    if rf_hz and list(rf_hz) != sorted(rf_hz):
+        raise RigError("response_frequencies must ascend", _field(where, "drive", "response_frequencies"),
+                       "let showkit measure write them")
+    return DriveCalibration(f_ref, level, p_ref, f_s, q_s, rf_hz, rd_db)

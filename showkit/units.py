@@ -1,0 +1,206 @@
+"""Units at the edges: parse what presenters write into SI numbers.
+
+Inside showkit every quantity is SI and carries its unit in its name
+(``length_m``, ``static_pa``, ``temperature_k``).  Files and inputs may give a
+plain number (taken as SI) or a string with a unit, e.g. ``"78 mm"``,
+``"6 ft 6 in"``, ``"0.1 inH2O"``, ``"0.25 mbar"``, ``"68 F"``.
+
+Conversion factors: inch = 0.0254 m and foot = 0.3048 m exactly (international
+yard and pound, 1959); conventional inch of water column = 1000 kg/m^3 x
+9.80665 m/s^2 x 0.0254 m = 249.08891 Pa and mm of water = 9.80665 Pa;
+1 mbar = 100 Pa; 1 psi = 6894.757 Pa (NIST SP 811, appendix B).
+"""
+
+from __future__ import annotations
+
+import math
+import re
+
+from showkit.errors import InputError
+
+STANDARD_GRAVITY_M_S2 = 9.80665
+WATER_DENSITY_KG_M3 = 1000.0
+INCH_M = 0.0254
+FOOT_M = 0.3048
+INCH_WATER_PA = WATER_DENSITY_KG_M3 * STANDARD_GRAVITY_M_S2 * INCH_M
+MM_WATER_PA = WATER_DENSITY_KG_M3 * STANDARD_GRAVITY_M_S2 * 1e-3
+PSI_PA = 6894.757
+ZERO_CELSIUS_K = 273.15
+
+LENGTH_UNITS_M = {
+    "m": 1.0, "meter": 1.0, "meters": 1.0, "metre": 1.0, "metres": 1.0,
+    "cm": 0.01, "mm": 1e-3,
+    "in": INCH_M, "inch": INCH_M, "inches": INCH_M, '"': INCH_M,
+    "ft": FOOT_M, "foot": FOOT_M, "feet": FOOT_M, "'": FOOT_M,
+}
+PRESSURE_UNITS_PA = {
+    "pa": 1.0, "hpa": 100.0, "kpa": 1000.0, "mbar": 100.0, "bar": 1e5,
+    "inh2o": INCH_WATER_PA, "inwc": INCH_WATER_PA, "inh₂o": INCH_WATER_PA,
+    "mmh2o": MM_WATER_PA, "mmwc": MM_WATER_PA, "psi": PSI_PA,
+}
+FREQUENCY_UNITS_HZ = {"hz": 1.0, "khz": 1000.0}
+TIME_UNITS_S = {"s": 1.0, "sec": 1.0, "ms": 1e-3, "min": 60.0}
+RESISTANCE_UNITS = {"pa s/m3": 1.0, "pa·s/m3": 1.0, "pa s/m^3": 1.0, "mks ohm": 1.0,
+                    "acoustic ohm": 1.0}
+
+_NUMBER = r"[-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?"
+
+
+def _terms(text: str, allow_sum: bool) -> list[tuple[float, str]]:
+    """Split ``"6 ft 6 in"`` into ``[(6.0, 'ft'), (6.0, 'in')]``.
+
+    Without ``allow_sum`` the text must be one number and one (optional) unit,
+    and the unit may hold digits (``inH2O``).
+    """
+    if not allow_sum:
+        match = re.fullmatch(rf"\s*({_NUMBER})\s*(.*?)\s*", text)
+        if not match:
+            raise ValueError(text)
+        return [(float(match.group(1)), match.group(2))]
+    pairs = re.findall(rf"\s*({_NUMBER})\s*([A-Za-z\"']*)\s*", text)
+    if not pairs or "".join(n + u for n, u in pairs) != re.sub(r"\s+", "", text):
+        raise ValueError(text)
+    return [(float(n), u) for n, u in pairs]
+
+
+def _norm(unit: str) -> str:
+    return unit.lower().replace(" ", "").replace("°", "").replace("_", "")
+
+
+def _unit_names(table: dict[str, float]) -> str:
+    return ", ".join(sorted({k for k in table if k.isascii() and k not in ('"', "'")}))
+
+
+def _with_table(value, table: dict[str, float], kind: str, where: str | None,
+                allow_sum: bool = False) -> float:
+    if isinstance(value, bool):
+        raise InputError(f"expected a {kind}, got {value!r}", where,
+                         f"write a number in SI units or a string such as {_example(kind)}")
+    if isinstance(value, (int, float)):
+        result = float(value)
+    elif isinstance(value, str):
+        try:
+            terms = _terms(value, allow_sum)
+        except ValueError:
+            raise InputError(f"cannot read {value!r} as a {kind}", where,
+                             f"write a number and a unit such as {_example(kind)}") from None
+        result = 0.0
+        norm_table = {_norm(k): v for k, v in table.items()}
+        for number, unit in terms:
+            if unit == "":
+                if len(terms) > 1:
+                    raise InputError(f"{value!r} mixes a bare number with units", where,
+                                     f"give every part a unit, e.g. {_example(kind)}")
+                factor = 1.0
+            else:
+                factor = norm_table.get(_norm(unit))
+                if factor is None:
+                    raise InputError(f"unknown {kind} unit {unit!r} in {value!r}", where,
+                                     f"use one of: {_unit_names(table)}")
+            result += number * factor
+    else:
+        raise InputError(f"expected a {kind}, got {type(value).__name__} {value!r}", where,
+                         f"write a number in SI units or a string such as {_example(kind)}")
+    if not math.isfinite(result):
+        raise InputError(f"{value!r} is not a finite {kind}", where, "give a finite number")
+    return result
+
+
+def _example(kind: str) -> str:
+    return {
+        "length": '"78 mm" or "6 ft 6 in"',
+        "pressure": '"25 Pa", "0.1 inH2O" or "0.25 mbar"',
+        "temperature": '"20 C", "68 F" or "293.15 K"',
+        "frequency": '"110 Hz"',
+        "duration": '"12 s", "1:05.5" or 12',
+        "acoustic resistance": '"8e6 Pa s/m3"',
+    }.get(kind, "a number")
+
+
+def length_m(value, where: str | None = None) -> float:
+    """A length in metres from a number (metres) or a string with units.
+
+    Feet and inches may be combined: ``"6 ft 6 in"`` is 1.9812 m.
+    """
+    return _with_table(value, LENGTH_UNITS_M, "length", where, allow_sum=True)
+
+
+def pressure_pa(value, where: str | None = None) -> float:
+    """A pressure difference in pascals from a number (Pa) or a string.
+
+    Accepts Pa, hPa, kPa, mbar, bar, inH2O (inWC), mmH2O (mmWC) and psi.
+    """
+    return _with_table(value, PRESSURE_UNITS_PA, "pressure", where)
+
+
+def frequency_hz(value, where: str | None = None) -> float:
+    """A frequency in hertz from a number (Hz) or a string (Hz, kHz)."""
+    return _with_table(value, FREQUENCY_UNITS_HZ, "frequency", where)
+
+
+def resistance_pa_s_m3(value, where: str | None = None) -> float:
+    """An acoustic resistance in Pa s/m^3 (acoustic ohms, MKS)."""
+    return _with_table(value, RESISTANCE_UNITS, "acoustic resistance", where)
+
+
+def temperature_k(value, where: str | None = None) -> float:
+    """An absolute temperature in kelvin.
+
+    A plain number is taken as kelvin (SI).  Strings: ``"20 C"``, ``"68 F"``,
+    ``"293.15 K"`` (also ``°C``, ``degC``, ``°F``).
+    """
+    if isinstance(value, str):
+        match = re.fullmatch(rf"\s*({_NUMBER})\s*(°?\s*[cCfFkK]|deg\s*[cCfF])?\s*", value)
+        if not match:
+            raise InputError(f"cannot read {value!r} as a temperature", where,
+                             f"write a number and a unit such as {_example('temperature')}")
+        number = float(match.group(1))
+        unit = _norm(match.group(2) or "k").replace("deg", "")
+        kelvin = {"c": number + ZERO_CELSIUS_K,
+                  "f": (number - 32.0) * 5.0 / 9.0 + ZERO_CELSIUS_K,
+                  "k": number}[unit]
+    else:
+        kelvin = _with_table(value, {"k": 1.0}, "temperature", where)
+    if kelvin <= 0.0:
+        raise InputError(f"{value!r} is at or below absolute zero", where,
+                         "give the gas temperature, e.g. \"20 C\"")
+    return kelvin
+
+
+def duration_s(value, where: str | None = None) -> float:
+    """A time in seconds: a number, ``"12 s"``, ``"250 ms"`` or ``"m:ss.s"``/``"h:mm:ss"``."""
+    if isinstance(value, str) and ":" in value:
+        parts = value.strip().split(":")
+        try:
+            numbers = [float(p) for p in parts]
+        except ValueError:
+            raise InputError(f"cannot read {value!r} as a time", where,
+                             'write seconds or "m:ss.s", e.g. "1:05.5"') from None
+        if len(numbers) > 3 or any(n < 0 for n in numbers) or any(n >= 60 for n in numbers[1:]):
+            raise InputError(f"cannot read {value!r} as a time", where,
+                             'write seconds or "m:ss.s" with seconds below 60, e.g. "1:05.5"')
+        total = 0.0
+        for n in numbers:
+            total = total * 60.0 + n
+        return total
+    return _with_table(value, TIME_UNITS_S, "duration", where)
+
+
+def format_time(seconds: float) -> str:
+    """``75.25`` -> ``"1:15.2"`` (minutes, seconds to a tenth)."""
+    if not math.isfinite(seconds):
+        return "--:--"
+    sign = "-" if seconds < 0 else ""
+    tenths = int(round(abs(seconds) * 10))
+    minutes, rest = divmod(tenths, 600)
+    return f"{sign}{minutes}:{rest // 10:02d}.{rest % 10}"
+
+
+def db(ratio: float) -> float:
+    """Amplitude ratio to decibels, ``20 log10(ratio)``; ``-inf`` for zero."""
+    return 20.0 * math.log10(ratio) if ratio > 0 else -math.inf
+
+
+def undb(gain_db: float) -> float:
+    """Decibels to amplitude ratio, ``10 ** (gain_db / 20)``."""
+    return 10.0 ** (gain_db / 20.0)
