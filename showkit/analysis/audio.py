@@ -1,0 +1,217 @@
+"""Audio in: read, check, mix to mono and resample.
+
+Every file showkit reads goes through here, so that bad audio gets one clear
+:class:`~showkit.errors.AudioError` -- never a crash, never a silently wrong
+answer.  Channels are averaged to mono (the tube has one speaker).
+Resampling uses the SoX resampler (``soxr``, high quality), in a streaming
+form for long files so that memory stays bounded.
+
+Reads whatever libsndfile reads (WAV, FLAC, OGG/Vorbis, Opus, MP3 from
+libsndfile 1.1 on, AIFF, ...).
+"""
+
+from __future__ import annotations
+
+import hashlib
+import math
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Iterator
+
+import numpy as np
+
+from showkit.errors import AudioError
+
+#: Files shorter than this many samples cannot be analysed.
+MIN_FRAMES = 1
+#: Reading block, frames at the file's rate.
+READ_BLOCK = 1 << 16
+
+
+@dataclass(frozen=True)
+class AudioInfo:
+    """What the file says about itself."""
+
+    path: Path
+    rate_hz: int
+    channels: int
+    frames: int
+    format: str
+
+    @property
+    def duration_s(self) -> float:
+        return self.frames / self.rate_hz
+
+
+@dataclass(frozen=True)
+class Audio:
+    """Mono samples at ``rate_hz`` of a file or a passage of it.
+
+    ``samples`` are float64 in digital full scale (1.0 = 0 dBFS);
+    ``start_s`` is where they begin in the file.
+    """
+
+    samples: np.ndarray
+    rate_hz: int
+    start_s: float
+    info: AudioInfo | None = None
+
+    @property
+    def duration_s(self) -> float:
+        return self.samples.size / self.rate_hz
+
+
+def audio_info(path: str | Path) -> AudioInfo:
+    """Check that ``path`` is a readable audio file and say what it holds."""
+    import soundfile as sf
+
+    path = Path(path)
+    where = str(path)
+    if not path.exists():
+        raise AudioError("no such audio file", where, "check the path")
+    if path.is_dir():
+        raise AudioError("is a folder, not an audio file", where, "give the path of an audio file")
+    try:
+        size = path.stat().st_size
+    except OSError as exc:
+        raise AudioError(f"cannot read the file ({exc.strerror})", where, "check its permissions") from None
+    if size == 0:
+        raise AudioError("the file is empty (0 bytes)", where, "export the track again")
+    try:
+        with open(path, "rb"):
+            pass
+    except OSError as exc:
+        raise AudioError(f"cannot read the file ({exc.strerror})", where, "check its permissions") from None
+    try:
+        info = sf.info(str(path))
+    except Exception as exc:  # libsndfile's errors are not one class across versions
+        raise AudioError(f"not an audio file showkit can read ({_short(exc)})", where,
+                         "convert it to WAV or FLAC") from None
+    if info.frames <= 0 or info.samplerate <= 0:
+        raise AudioError("the file holds no samples", where, "export the track again")
+    if info.channels < 1:
+        raise AudioError("the file has no channels", where, "export the track again")
+    return AudioInfo(path=path, rate_hz=int(info.samplerate), channels=int(info.channels),
+                     frames=int(info.frames), format=str(info.format))
+
+
+def _short(exc: Exception) -> str:
+    text = " ".join(str(exc).split())
+    return text[:120] if text else exc.__class__.__name__
+
+
+def _span(info: AudioInfo, start_s: float | None, end_s: float | None) -> tuple[int, int]:
+    where = str(info.path)
+    start = 0.0 if start_s is None else float(start_s)
+    end = info.duration_s if end_s is None else float(end_s)
+    if not (math.isfinite(start) and math.isfinite(end)):
+        raise AudioError("start and end must be finite times", where, "give times in seconds or m:ss")
+    if start < 0:
+        raise AudioError(f"start {start:g} s is before the beginning", where, "give a start of 0 or later")
+    if start >= info.duration_s:
+        raise AudioError(f"start {start:g} s is past the end of the track ({info.duration_s:.2f} s)",
+                         where, "give a start within the track")
+    if end <= start:
+        raise AudioError(f"end {end:g} s is not after start {start:g} s", where,
+                         "give an end later than the start")
+    if end > info.duration_s + 1e-6:
+        raise AudioError(f"end {end:g} s is past the end of the track ({info.duration_s:.2f} s)",
+                         where, "give an end within the track")
+    first = int(round(start * info.rate_hz))
+    last = min(info.frames, int(round(end * info.rate_hz)))
+    return first, max(last, first + 1)
+
+
+def read_blocks(path: str | Path, rate_hz: int | None = None, start_s: float | None = None,
+                end_s: float | None = None, block_frames: int = READ_BLOCK,
+                on_native=None) -> Iterator[np.ndarray]:
+    """Mono float64 blocks of a file (or passage), resampled to ``rate_hz``.
+
+    Streams: memory stays bounded whatever the file's length.  Raises
+    :class:`AudioError` for unreadable, truncated or non-finite audio.
+
+    Parameters
+    ----------
+    path : path
+    rate_hz : int, optional
+        Output rate, Hz (default: the file's rate).
+    start_s, end_s : float, optional
+        Passage within the file, s.
+    block_frames : int
+        Frames read per block at the file's rate.
+    on_native : callable, optional
+        Called with every mono block at the file's own rate (e.g. to track the
+        digital peak of what will be played).
+    """
+    import soundfile as sf
+
+    info = audio_info(path)
+    first, last = _span(info, start_s, end_s)
+    where = str(info.path)
+    resampler = None
+    if rate_hz is not None and int(rate_hz) != info.rate_hz:
+        import soxr
+
+        resampler = soxr.ResampleStream(info.rate_hz, int(rate_hz), 1, dtype="float64", quality="HQ")
+    got = 0
+    wanted = last - first
+    try:
+        with sf.SoundFile(str(info.path)) as f:
+            f.seek(first)
+            while got < wanted:
+                n = min(block_frames, wanted - got)
+                data = f.read(n, dtype="float64", always_2d=True)
+                if data.shape[0] == 0:
+                    break
+                got += data.shape[0]
+                mono = data.mean(axis=1)
+                if not np.all(np.isfinite(mono)):
+                    bad = int(np.argmax(~np.isfinite(mono)))
+                    t = (first + got - data.shape[0] + bad) / info.rate_hz
+                    raise AudioError(f"the audio holds NaN or infinite samples (first at {t:.3f} s)",
+                                     where, "repair or re-export the file")
+                if on_native is not None:
+                    on_native(mono)
+                yield resampler.resample_chunk(mono) if resampler else mono
+            if resampler is not None:
+                yield resampler.resample_chunk(np.zeros(0), last=True)
+    except AudioError:
+        raise
+    except Exception as exc:
+        raise AudioError(f"the file cannot be decoded ({_short(exc)})", where,
+                         "it may be damaged: re-export or convert it") from None
+    if got < wanted:
+        raise AudioError(f"the file is truncated: it says {info.frames} frames but ends after "
+                         f"{first + got}", where, "re-export or re-copy the file")
+
+
+def load_audio(path: str | Path, rate_hz: int | None = None, start_s: float | None = None,
+               end_s: float | None = None) -> Audio:
+    """The whole file (or passage) as mono samples at ``rate_hz`` (default: the file's rate)."""
+    info = audio_info(path)
+    blocks = list(read_blocks(path, rate_hz, start_s, end_s))
+    samples = np.concatenate(blocks) if blocks else np.zeros(0)
+    first, _ = _span(info, start_s, end_s)
+    if samples.size < MIN_FRAMES:
+        raise AudioError("the passage holds no samples", str(info.path), "choose a longer passage")
+    return Audio(samples=samples, rate_hz=int(rate_hz or info.rate_hz),
+                 start_s=first / info.rate_hz, info=info)
+
+
+def content_hash(path: str | Path) -> str:
+    """SHA-256 of the file's bytes (hex): the key for caches and cue locks."""
+    digest = hashlib.sha256()
+    try:
+        with open(path, "rb") as f:
+            for chunk in iter(lambda: f.read(1 << 20), b""):
+                digest.update(chunk)
+    except OSError as exc:
+        raise AudioError(f"cannot read the file ({exc.strerror})", str(path), "check the path") from None
+    return digest.hexdigest()
+
+
+def samples_hash(samples: np.ndarray, rate_hz: int) -> str:
+    """SHA-256 (hex, 16 characters) of samples and their rate, for generated sources."""
+    digest = hashlib.sha256(np.ascontiguousarray(samples, dtype=np.float32).tobytes())
+    digest.update(str(int(rate_hz)).encode())
+    return digest.hexdigest()[:16]

@@ -1,0 +1,187 @@
+"""Ceilings and flame frames for tracks, passages and generated signals.
+
+Audio in (a file, a passage of it, or samples), pressure-model results out:
+the drive ceiling (physics.md section 7), where and when the tube comes
+closest to the safe line, and the flame row per frame at that level.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from functools import lru_cache
+
+import numpy as np
+
+from showkit.analysis.audio import audio_info, read_blocks
+from showkit.errors import AudioError
+from showkit.physics import ceiling as ceil_rule
+from showkit.physics.flames import row_contrast
+from showkit.physics.response import HoleFilters, PressureFrames, design_hole_filters, simulate
+from showkit.rigfile import Rig
+
+
+@dataclass
+class PassageReport:
+    """A ceiling and the flames at it, for one passage.
+
+    Attributes
+    ----------
+    ceiling : Ceiling
+        ``ceiling_db``, ``pressure_db``, ``full_scale_db``, ``limited_by``.
+    peak : float
+        Digital peak of the passage as recorded (1.0 = full scale).
+    swing_pa : float
+        Largest swing below the static level at unit gain (envelope bound), Pa.
+    worst_hole : int
+    worst_time_s : float
+        From the start of the file (passages) or signal, s.
+    frames : PressureFrames or None
+        Flame frames at the ceiling (``height``, ``air_in``, ``envelope``).
+    static_pa, reserve : float
+        What the ceiling was computed for.
+    start_s, end_s : float
+    drive_text : str
+        Which calibration and drive model the ceiling rests on.
+    """
+
+    ceiling: ceil_rule.Ceiling
+    peak: float
+    swing_pa: float
+    worst_hole: int
+    worst_time_s: float
+    frames: PressureFrames | None
+    static_pa: float
+    reserve: float
+    start_s: float
+    end_s: float
+    drive_text: str
+
+    @property
+    def ceiling_db(self) -> float:
+        return self.ceiling.ceiling_db
+
+    @property
+    def output_peak_dbfs(self) -> float:
+        return -math.inf if self.peak <= 0 else 20.0 * math.log10(self.peak) + self.ceiling_db
+
+    @property
+    def min_pressure_pa(self) -> float:
+        """Lowest pressure above ambient at any hole at the ceiling, Pa."""
+        return self.static_pa - 10.0 ** (self.ceiling_db / 20.0) * self.swing_pa
+
+    @property
+    def contrast_per_frame(self) -> np.ndarray:
+        if self.frames is None or self.frames.height is None:
+            return np.zeros(0)
+        return row_contrast(self.frames.height)
+
+    @property
+    def contrast(self) -> float:
+        """Median flame-row contrast over the passage at the ceiling (0 to 1)."""
+        c = self.contrast_per_frame
+        return float(np.median(c)) if c.size else 0.0
+
+    def to_json(self) -> dict:
+        return {
+            "ceiling_db": self.ceiling_db,
+            "output_peak_dbfs": self.output_peak_dbfs,
+            "limited_by": self.ceiling.limited_by,
+            "min_pressure_pa": self.min_pressure_pa,
+            "worst_hole": self.worst_hole,
+            "worst_time_s": self.worst_time_s,
+            "contrast": self.contrast,
+            "pressure_ceiling_db": self.ceiling.pressure_db,
+            "full_scale_ceiling_db": self.ceiling.full_scale_db,
+            "static_pressure_pa": self.static_pa,
+            "reserve": self.reserve,
+            "start_s": self.start_s,
+            "end_s": self.end_s,
+            "drive": self.drive_text,
+        }
+
+
+@lru_cache(maxsize=8)
+def _filters(acoustic: str, calibration: str, rig: Rig) -> HoleFilters:
+    return design_hole_filters(rig.model, rig.drive)
+
+
+def hole_filters(rig: Rig) -> HoleFilters:
+    """The rig's impulse responses, designed once per process for each rig."""
+    if rig.geometry.hole_count == 0:
+        raise AudioError("this rig has no holes: there are no flames to keep alight",
+                         rig.name, "add [holes] to the rig file")
+    return _filters(rig.acoustic_hash(), rig.calibration_hash(), rig)
+
+
+def _report(rig: Rig, filters: HoleFilters, first: PressureFrames, peak: float, rerun,
+            start_s: float, end_s: float, flames: bool) -> PassageReport:
+    pressure_db = ceil_rule.pressure_ceiling_db(first.worst_pa, rig.static_pa, rig.reserve)
+    result = ceil_rule.combine(pressure_db, ceil_rule.full_scale_db(peak))
+    frames = first
+    if flames:
+        frames = rerun(10.0 ** (result.ceiling_db / 20.0))
+    return PassageReport(ceiling=result, peak=peak, swing_pa=first.worst_pa,
+                         worst_hole=first.worst_hole, worst_time_s=start_s + first.worst_time_s,
+                         frames=frames, static_pa=rig.static_pa, reserve=rig.reserve,
+                         start_s=start_s, end_s=end_s, drive_text=filters.drive_text)
+
+
+def signal_report(rig: Rig, samples: np.ndarray, rate_hz: int, flames: bool = True,
+                  start_s: float = 0.0) -> PassageReport:
+    """Ceiling (and flames at it) of a signal given as samples.
+
+    Parameters
+    ----------
+    rig : Rig
+    samples : ndarray
+        Mono drive signal in digital full scale, or (N, channels) to be averaged.
+    rate_hz : int
+        Its sample rate, Hz.
+    flames : bool
+        Also compute the flame frames at the ceiling (a second pass).
+    start_s : float
+        Time of the first sample, for reporting, s.
+    """
+    x = np.asarray(samples, dtype=float)
+    if x.ndim == 2:
+        x = x.mean(axis=1)
+    if x.size == 0:
+        raise AudioError("the signal holds no samples", None, "give a longer signal")
+    if not np.all(np.isfinite(x)):
+        raise AudioError("the signal holds NaN or infinite samples", None, "repair the source")
+    filters = hole_filters(rig)
+    drive = x
+    if int(rate_hz) != filters.rate_hz:
+        import soxr
+
+        drive = soxr.resample(x, int(rate_hz), filters.rate_hz, quality="HQ")
+    peak = float(np.max(np.abs(x)))
+    first = simulate(filters, drive)
+
+    def rerun(gain):
+        return simulate(filters, drive, static_pa=rig.static_pa, gain=gain)
+
+    return _report(rig, filters, first, peak, rerun, start_s, start_s + x.size / rate_hz, flames)
+
+
+def passage_report(rig: Rig, path, start_s: float | None = None, end_s: float | None = None,
+                   flames: bool = True) -> PassageReport:
+    """Ceiling (and flames at it) of a file or a passage of it, streamed in blocks."""
+    info = audio_info(path)
+    filters = hole_filters(rig)
+    peak = [0.0]
+
+    def track_peak(block):
+        if block.size:
+            peak[0] = max(peak[0], float(np.max(np.abs(block))))
+
+    first = simulate(filters, read_blocks(path, filters.rate_hz, start_s, end_s, on_native=track_peak))
+    start = 0.0 if start_s is None else float(start_s)
+    end = info.duration_s if end_s is None else float(end_s)
+
+    def rerun(gain):
+        return simulate(filters, read_blocks(path, filters.rate_hz, start_s, end_s),
+                        static_pa=rig.static_pa, gain=gain)
+
+    return _report(rig, filters, first, peak[0], rerun, start, end, flames)

@@ -1,0 +1,311 @@
+"""Pressure at every hole over time, for any drive signal.
+
+The tube is linear: the pressure at hole ``i`` is the drive signal convolved
+with that hole's impulse response ``g_i``, the inverse transform of
+
+    G_i(f) = K D(f) H_i(f) W(f)
+
+- ``H_i``: pressure per unit volume velocity (:class:`~showkit.physics.tube.TubeModel`),
+- ``D``: the drive model (:func:`~showkit.physics.drive.driver_shape`),
+- ``K``: the scale fixed by the calibration point (physics.md section 5),
+- ``W``: a raised-cosine taper from the plane-wave limit ``f_c`` to ``1.2 f_c``;
+  the plane-wave model says nothing above ``f_c`` (physics.md section 3).
+
+The analysis rate is ``fs = 2.5 f_c`` rounded up to a multiple of 300 Hz,
+so that a 30 frame/s flame frame is a whole number of samples.  The impulse
+responses are as long as the slowest mode needs to ring down to the design
+tolerance (checked on the transform, doubled until the tail is negligible).
+
+Convolution is by FFT overlap-add in blocks (memory bounded for any length).
+Each block gives the *analytic* pressure ``p + j H{p}`` (H: Hilbert
+transform): its real part is the pressure, its magnitude an envelope that
+bounds ``|p(t)|`` at every instant, including between samples, so a crest
+that falls between samples is not missed (physics.md section 7).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Iterable
+
+import numpy as np
+
+from showkit.physics.drive import DriveCalibration, driver_shape
+from showkit.physics.flames import FRAME_RATE_HZ
+from showkit.physics.tube import TubeModel
+
+#: Taper of the response above the plane-wave limit: from f_c to this multiple of it.
+TAPER_END = 1.2
+#: Delay given to the impulse responses so that the taper's acausal part is kept, s.
+PRE_RING_S = 0.02
+
+
+def analysis_rate_hz(plane_wave_limit_hz: float) -> int:
+    """Analysis rate for a tube: ``2.5 f_c`` rounded up to a multiple of 300 Hz (Hz)."""
+    return int(300 * math.ceil(2.5 * plane_wave_limit_hz / 300.0))
+
+
+def _taper(freq_hz: np.ndarray, f_c: float) -> np.ndarray:
+    x = np.clip((freq_hz - f_c) / ((TAPER_END - 1.0) * f_c), 0.0, 1.0)
+    return 0.5 * (1.0 + np.cos(np.pi * x))
+
+
+@dataclass(frozen=True)
+class HoleFilters:
+    """Impulse responses from digital signal to pressure at every hole.
+
+    Attributes
+    ----------
+    rate_hz : int
+        Analysis rate, Hz.
+    impulse : ndarray, shape (holes, taps)
+        ``g_i[n]``: Pa per unit digital sample.
+    cap_impulse : ndarray, shape (taps,)
+        The same for the rigid cap (where the calibration is read).
+    scale : float
+        ``K``: volume velocity per unit digital amplitude at the reference
+        frequency, m^3/s.
+    band_hz : float
+        Upper edge of the response (``1.2 f_c``), Hz.
+    drive_text : str
+        Which calibration and drive model the levels rest on.
+    delay : int
+        Samples by which the responses are delayed (to keep the taper's
+        acausal part); outputs are ``delay`` samples late.
+    """
+
+    rate_hz: int
+    impulse: np.ndarray
+    cap_impulse: np.ndarray
+    scale: float
+    band_hz: float
+    drive_text: str
+    delay: int = 0
+
+    @property
+    def taps(self) -> int:
+        return self.impulse.shape[1]
+
+    @property
+    def holes(self) -> int:
+        return self.impulse.shape[0]
+
+    @property
+    def frame_samples(self) -> int:
+        return int(round(self.rate_hz / FRAME_RATE_HZ))
+
+
+def drive_scale(model: TubeModel, drive: DriveCalibration) -> float:
+    """``K`` (m^3/s per unit digital amplitude) from the calibration point.
+
+    A sine of peak digital amplitude ``A = 10^(L/20)`` at ``f_ref`` gives the
+    pressure amplitude ``P_ref`` at the cap: ``P_ref = K A |D(f_ref) H_cap(f_ref)|``.
+    """
+    f_ref = drive.reference_frequency_hz
+    h_cap = model.response([f_ref]).cap_pressure[0]
+    amplitude = 10.0 ** (drive.reference_level_dbfs / 20.0)
+    return float(drive.reference_pressure_pa / (amplitude * abs(driver_shape([f_ref], drive)[0] * h_cap)))
+
+
+def transfer(model: TubeModel, drive: DriveCalibration, freq_hz) -> tuple[np.ndarray, np.ndarray]:
+    """``G_i(f)`` at the holes and at the cap: Pa per unit digital amplitude (complex).
+
+    Returns ``(holes, F)`` and ``(F,)`` arrays; zero at DC.
+    """
+    f = np.asarray(freq_hz, dtype=float)
+    positive = f > 0
+    k = drive_scale(model, drive)
+    holes = np.zeros((model.geometry.hole_count, f.size), dtype=complex)
+    cap = np.zeros(f.size, dtype=complex)
+    if np.any(positive):
+        resp = model.response(f[positive])
+        common = k * driver_shape(f[positive], drive) * _taper(f[positive], model.plane_wave_limit_hz)
+        holes[:, positive] = resp.hole_pressure * common
+        cap[positive] = resp.cap_pressure * common
+    return holes, cap
+
+
+def design_hole_filters(model: TubeModel, drive: DriveCalibration, rate_hz: int | None = None,
+                        tolerance: float = 1e-4, max_seconds: float = 40.0) -> HoleFilters:
+    """Impulse responses at every hole, long enough to ring down to ``tolerance``.
+
+    Parameters
+    ----------
+    model : TubeModel
+    drive : DriveCalibration
+    rate_hz : int, optional
+        Analysis rate (default :func:`analysis_rate_hz`).
+    tolerance : float
+        Relative amplitude (of the peak response) left in the part cut off.
+    max_seconds : float
+        Longest impulse response allowed, s.
+    """
+    fs = int(rate_hz or analysis_rate_hz(model.plane_wave_limit_hz))
+    delay = int(round(PRE_RING_S * fs))
+    n = 1 << 12
+    while True:
+        freq = np.fft.rfftfreq(n, 1.0 / fs)
+        g_holes, g_cap = transfer(model, drive, freq)
+        both = np.vstack([g_holes, g_cap[None, :]])
+        # the taper W is zero-phase: its short acausal part wraps to the end of
+        # the buffer; a small delay brings it to the front
+        ir = np.roll(np.fft.irfft(both, n=n, axis=1), delay, axis=1)
+        energy = np.cumsum((ir[:, ::-1] ** 2).sum(axis=0))[::-1]  # energy from sample k to the end
+        total = energy[0] if energy[0] > 0 else 1.0
+        tail = energy / total
+        # the last eighth must be negligible, or the response wrapped around: double
+        if tail[n - n // 8] < tolerance ** 2 or n / fs >= max_seconds:
+            break
+        n *= 2
+    cut = int(np.searchsorted(-tail, -(tolerance ** 2)))
+    taps = int(min(n, max(256, 256 * math.ceil(cut / 256))))
+    ir = ir[:, :taps].copy()
+    fade = min(64, taps // 8)
+    ir[:, taps - fade:] *= 0.5 * (1.0 + np.cos(np.pi * np.arange(1, fade + 1) / fade))
+    return HoleFilters(rate_hz=fs, impulse=ir[:-1], cap_impulse=ir[-1], delay=delay,
+                       scale=drive_scale(model, drive),
+                       band_hz=TAPER_END * model.plane_wave_limit_hz,
+                       drive_text=drive.describe())
+
+
+def _fft_size(taps: int, frame: int) -> tuple[int, int]:
+    m = 1 << int(math.ceil(math.log2(4 * taps)))
+    hop = frame * ((m - taps + 1) // frame)
+    return m, hop
+
+
+@dataclass
+class PressureFrames:
+    """What a pass over a signal found, per flame frame.
+
+    Attributes
+    ----------
+    frame_rate_hz : float
+    envelope : ndarray, shape (frames, holes)
+        Largest ``|p + j H{p}|`` within each frame at unit gain, Pa: a bound on
+        the pressure swing at that hole in that frame.
+    worst_pa : float
+        Largest envelope anywhere at unit gain, Pa.
+    worst_hole : int
+        Hole (0-based from the driven end) where it occurred.
+    worst_time_s : float
+        When, from the start of the signal, s.
+    height, air_in : ndarray, shape (frames, holes) or None
+        Relative flame heights and air-drawn-in fractions at ``gain`` and
+        ``static_pa`` (see :func:`showkit.physics.flames.frame_flames`).
+    gain : float
+        Linear gain the flames were computed at.
+    """
+
+    frame_rate_hz: float
+    envelope: np.ndarray
+    worst_pa: float
+    worst_hole: int
+    worst_time_s: float
+    height: np.ndarray | None = None
+    air_in: np.ndarray | None = None
+    gain: float = 1.0
+
+
+def simulate(filters: HoleFilters, blocks: Iterable[np.ndarray], static_pa: float | None = None,
+             gain: float = 1.0, ring_out: bool = True) -> PressureFrames:
+    """Run a signal through the tube, block by block.
+
+    Parameters
+    ----------
+    filters : HoleFilters
+    blocks : iterable of ndarray
+        The drive signal at ``filters.rate_hz`` in digital full scale, in
+        blocks of any length (a single array is one block).
+    static_pa : float, optional
+        Static overpressure, Pa; when given, flame heights are computed.
+    gain : float
+        Linear gain applied to the signal for the flames (the envelope is
+        always reported at unit gain).
+    ring_out : bool
+        Go on after the signal until the tube has rung down.
+
+    Notes
+    -----
+    FFT overlap-add (Oppenheim & Schafer, *Discrete-Time Signal Processing*,
+    section 8.7) with an analytic-signal filter: the one-sided spectrum of
+    each impulse response, doubled, gives ``p + j H{p}`` directly.
+    """
+    from showkit.physics.flames import frame_flames
+
+    frame = filters.frame_samples
+    taps = filters.taps
+    m, hop = _fft_size(taps, frame)
+    spec = np.fft.rfft(filters.impulse, n=m, axis=1)
+    spec[:, 1:m // 2] *= 2.0  # analytic: double the positive frequencies...
+    spec = spec.astype(np.complex64)  # ...the negative ones stay zero below
+    holes = filters.holes
+    tail = np.zeros((holes, m - hop), dtype=np.complex64)
+    full = np.zeros((holes, m), dtype=np.complex64)
+    env_frames, h_frames, a_frames = [], [], []
+    worst = (0.0, 0, 0.0)
+    done = 0  # output samples produced
+
+    def chunks():
+        pending = np.zeros(0)
+        for b in ([blocks] if isinstance(blocks, np.ndarray) else blocks):
+            b = np.asarray(b, dtype=float)
+            pending = np.concatenate([pending, b]) if pending.size else b
+            while pending.size >= hop:
+                yield pending[:hop], True
+                pending = pending[hop:]
+        extra = taps if ring_out else 0
+        final = np.concatenate([pending, np.zeros(extra)])
+        pad = (-final.size) % frame
+        final = np.concatenate([final, np.zeros(pad)])
+        for k in range(0, final.size, hop):
+            yield final[k:k + hop], False
+
+    for x, _ in chunks():
+        if x.size == 0:
+            continue
+        xs = np.fft.rfft(x, n=m).astype(np.complex64)
+        full[:, :m // 2 + 1] = spec * xs[None, :]
+        full[:, m // 2 + 1:] = 0.0
+        y = np.fft.ifft(full, axis=1)
+        y[:, :tail.shape[1]] += tail
+        out = y[:, :x.size]
+        tail = y[:, x.size:x.size + m - hop].copy()
+        if tail.shape[1] < m - hop:
+            tail = np.concatenate([tail, np.zeros((holes, m - hop - tail.shape[1]), np.complex64)], axis=1)
+        env = np.abs(out)
+        frames = x.size // frame
+        envf = env[:, :frames * frame].reshape(holes, frames, frame).max(axis=2).T
+        env_frames.append(envf)
+        if envf.size:
+            k = int(np.argmax(env))
+            hole, t = divmod(k, env.shape[1])
+            if env.flat[k] > worst[0]:
+                worst = (float(env.flat[k]), int(hole), max(0, done + t - filters.delay) / filters.rate_hz)
+        if static_pa is not None:
+            h, a = frame_flames(gain * out.real[:, :frames * frame], static_pa, frame)
+            h_frames.append(h)
+            a_frames.append(a)
+        done += x.size
+    envelope = np.concatenate(env_frames) if env_frames else np.zeros((0, holes), np.float32)
+    result = PressureFrames(frame_rate_hz=filters.rate_hz / frame, envelope=envelope.astype(np.float32),
+                            worst_pa=worst[0], worst_hole=worst[1], worst_time_s=worst[2], gain=gain)
+    if static_pa is not None:
+        result.height = np.concatenate(h_frames) if h_frames else np.zeros((0, holes), np.float32)
+        result.air_in = np.concatenate(a_frames) if a_frames else np.zeros((0, holes), np.float32)
+    return result
+
+
+def pressure_signal(filters: HoleFilters, signal: np.ndarray) -> np.ndarray:
+    """Analytic pressure ``p + j H{p}`` at every hole for a short signal (holes, N + taps - 1).
+
+    Direct FFT convolution of the whole signal at once: for tests and short tones.
+    """
+    n = signal.size + filters.taps - 1
+    m = 1 << int(math.ceil(math.log2(max(n, 2))))
+    spec = np.fft.rfft(filters.impulse, n=m, axis=1)
+    spec[:, 1:m // 2] *= 2.0
+    full = np.zeros((filters.holes, m), dtype=complex)
+    full[:, :m // 2 + 1] = spec * np.fft.rfft(signal, n=m)[None, :]
+    return np.fft.ifft(full, axis=1)[:, :n]
