@@ -62,7 +62,7 @@ def full_scale_db(peak: float) -> float:
 
 def combine(pressure_db: float, full_scale_db_: float) -> Ceiling:
     """The lower of the two limits, capped at :data:`MAX_GAIN_DB`."""
-    if pressure_db <= full_scale_db_:
+    if pressure_db <= full_scale_db_ and math.isfinite(pressure_db):
         return Ceiling(min(pressure_db, MAX_GAIN_DB), pressure_db, full_scale_db_, "pressure")
     return Ceiling(min(full_scale_db_, MAX_GAIN_DB), pressure_db, full_scale_db_, "full_scale")
 

@@ -1,0 +1,61 @@
+"""Check a locked cue sheet against today's manometer reading.
+
+Every valid lock's ceiling is re-derived for today's static pressure (and
+reserve) by exact scaling -- no re-analysis -- and compared with the cue's
+gain.  Cues that no longer fit are listed with how many dB they must come
+down; stale cues (the audio, rig or calibration changed since the lock) are
+refused until re-locked.  Exit status 0 when every cue is ok, 2 otherwise.
+"""
+
+from __future__ import annotations
+
+import argparse
+
+from showkit.cli.common import add_json_option
+
+
+def add_arguments(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("sheet", help="cue sheet (TOML)")
+    parser.add_argument("--static", metavar="PRESSURE",
+                        help='today\'s static overpressure from the manometer, e.g. "22 Pa", '
+                             '"0.09 inH2O", "0.22 mbar" (default: the rig file\'s)')
+    parser.add_argument("--reserve", metavar="FRACTION", type=float,
+                        help="fraction of the static pressure kept in reserve, 0 to 0.9 (default: the rig's)")
+    add_json_option(parser)
+
+
+def headroom_bar(headroom_db: float | None, width: int = 12, span_db: float = 12.0) -> str:
+    """A text bar: one '#' per span/width dB of headroom, '!' when over."""
+    if headroom_db is None:
+        return "?" * 3
+    if headroom_db < 0:
+        return "!" * min(width, max(1, int(round(-headroom_db / span_db * width))))
+    filled = min(width, int(round(headroom_db / span_db * width)))
+    return "#" * filled + "." * (width - filled)
+
+
+def run(args) -> int:
+    from showkit.cli.common import level_caution, load_rig_from_args, print_json, table
+    from showkit.show.lock import check_sheet, sheet_rig
+    from showkit.show.sheet import load_sheet
+
+    sheet = load_sheet(args.sheet)
+    rig = sheet_rig(sheet)
+    args.rig = str(rig.path) if rig.path else None
+    today = load_rig_from_args(args)
+    checks = check_sheet(sheet, rig, today.static_pa, today.reserve)
+    level_caution()
+    if args.json:
+        print_json({"sheet": str(sheet.path), "static_pressure_pa": today.static_pa,
+                    "reserve": today.reserve, "cues": [c.to_json() for c in checks]})
+    else:
+        rows = [[c.id, f"{c.gain_db:+.2f}", "-" if c.ceiling_db is None else f"{c.ceiling_db:+.2f}",
+                 "-" if c.headroom_db is None else f"{c.headroom_db:+.2f}", headroom_bar(c.headroom_db),
+                 c.status, c.message] for c in checks]
+        print(f"{sheet.title}: {len(checks)} cues on {rig.name}, static {today.static_pa:g} Pa, "
+              f"reserve {today.reserve:g}")
+        print(table(rows, ["cue", "gain dB", "ceiling dB", "headroom", "", "status", "note"], "<>>><<<"))
+        bad = [c for c in checks if c.status != "ok"]
+        if bad:
+            print(f"\n{len(bad)} cue(s) need attention: " + ", ".join(f"{c.id} ({c.status})" for c in bad))
+    return 0 if all(c.status == "ok" for c in checks) else 2

@@ -1,0 +1,55 @@
+"""Compute and lock the ceiling of every cue in a cue sheet.
+
+For each cue showkit simulates that exact sound (passage, tone or glide, with
+its fades) in the sheet's rig and writes a [cue.lock] table: the ceiling in dB
+and what it was computed from (hashes of the source samples, of the rig's
+acoustic fields and of the calibration; static pressure, reserve and analysis
+version).  A gain above its new ceiling is clamped in the file, with a message
+naming the cue.  The sheet is saved safely; the previous version is kept as
+SHEET.toml.bak.
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+
+
+def add_arguments(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("sheet", help="cue sheet (TOML)")
+    parser.add_argument("--cue", action="append", metavar="ID",
+                        help="lock only this cue (repeat for more; default: every cue)")
+
+
+def run(args) -> int:
+    from showkit.cli.common import level_caution, table
+    from showkit.show.lock import check_sheet, lock_sheet, sheet_rig
+    from showkit.show.sheet import load_sheet, save_sheet
+
+    sheet = load_sheet(args.sheet)
+    rig = sheet_rig(sheet)
+    if args.cue:
+        for cid in args.cue:
+            sheet.cue(cid)
+
+    def progress(k, n, cid):
+        if cid is not None and sys.stderr.isatty():
+            print(f"\rlocking {k + 1}/{n}: {cid:<24}", end="", file=sys.stderr, flush=True)
+
+    messages = lock_sheet(sheet, rig, args.cue, progress)
+    if sys.stderr.isatty():
+        print("\r" + " " * 50 + "\r", end="", file=sys.stderr)
+    save_sheet(sheet)
+    level_caution()
+    for m in messages:
+        print(f"clamped: {m}")
+    rows = []
+    for c, state in zip(sheet.cues, check_sheet(sheet, rig)):
+        lock = c.lock
+        rows.append([c.id, c.kind, f"{c.gain_db:+.2f}",
+                     "-" if lock is None else f"{lock.ceiling_db:+.2f}",
+                     "-" if lock is None else lock.limited_by.replace("_", " "), state.status])
+    print(table(rows, ["cue", "kind", "gain dB", "ceiling dB", "limited by", "status"], "<<>><<"))
+    print(f"locked for {rig.name} at {rig.static_pa:g} Pa static, reserve {rig.reserve:g}; "
+          f"saved {sheet.path}")
+    return 0

@@ -1,0 +1,54 @@
+"""Render a locked cue sheet to playable audio, every cue at or below its ceiling.
+
+Each cue gets its gain and fades, and then the rendered samples are run
+through the tube model again: a cue that would take any hole below the safe
+line, or past full scale, is refused.  Stale cues are refused until re-locked.
+Writes one WAV of the whole show (-o, 48 kHz) or one WAV per cue at the
+source rate (--per-cue DIR; tones at 48 kHz), 32-bit float or 24-bit.
+"""
+
+from __future__ import annotations
+
+import argparse
+
+
+def add_arguments(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("sheet", help="cue sheet (TOML)")
+    out = parser.add_mutually_exclusive_group(required=True)
+    out.add_argument("-o", "--output", metavar="SHOW.wav", help="one WAV with every cue in order (48 kHz)")
+    out.add_argument("--per-cue", metavar="DIR", help="one WAV per cue, NN-id.wav, at the source rate")
+    parser.add_argument("--bits", choices=("float", "24"), default="float",
+                        help="sample format: 32-bit float (default) or 24-bit integer")
+    parser.add_argument("--static", metavar="PRESSURE",
+                        help='today\'s static overpressure, e.g. "22 Pa" (default: the rig file\'s)')
+    parser.add_argument("--reserve", metavar="FRACTION", type=float,
+                        help="fraction of the static pressure kept in reserve, 0 to 0.9 (default: the rig's)")
+
+
+def run(args) -> int:
+    from pathlib import Path
+
+    from showkit.cli.common import level_caution, load_rig_from_args, table
+    from showkit.show.lock import sheet_rig
+    from showkit.show.render import render_sheet, write_per_cue, write_show
+    from showkit.show.sheet import load_sheet
+
+    sheet = load_sheet(args.sheet)
+    rig = sheet_rig(sheet)
+    args.rig = str(rig.path) if rig.path else None
+    today = load_rig_from_args(args)
+    cues = render_sheet(sheet, today)
+    subtype = "FLOAT" if args.bits == "float" else "PCM_24"
+    level_caution()
+    if args.output:
+        written = [write_show(today, cues, Path(args.output), subtype)]
+    else:
+        written = write_per_cue(cues, Path(args.per_cue), subtype)
+    rows = [[c.id, f"{c.gain_db:+.2f}", f"{c.ceiling_db:+.2f}", f"{c.min_pressure_pa:.2f}",
+             f"{c.margin_pa:+.2f}", f"{c.samples.size / c.rate_hz:.1f}"] for c in cues]
+    print(table(rows, ["cue", "gain dB", "ceiling dB", "lowest Pa", "margin Pa", "seconds"], "<>>>>>"))
+    print(f"every cue verified against the pressure model at {today.static_pa:g} Pa static, "
+          f"reserve {today.reserve:g} (safe line {today.reserve * today.static_pa:.2f} Pa)")
+    for p in written:
+        print(f"wrote {p}")
+    return 0

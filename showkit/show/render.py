@@ -1,0 +1,168 @@
+"""Rendering a locked sheet to audio, every cue verified against the pressure model.
+
+A cue is rendered only when its lock is valid and its gain is at or below
+today's ceiling.  The rendered samples are then run through the tube model
+again (:func:`showkit.analysis.pressure.signal_report` at unit gain): the
+pressure at every hole must stay at or above the reserve line and the peak at
+or below full scale, or the cue is refused.  Nothing is assumed.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+from showkit.errors import SheetError
+from showkit.rigfile import Rig
+from showkit.show.lock import check_cue, sheet_rig
+from showkit.show.sheet import Cue, Sheet
+from showkit.show.sources import TONE_RATE_HZ, cue_signal
+
+#: Relative slack allowed in verification for float32 rounding of the samples.
+VERIFY_TOLERANCE = 1e-5
+#: Rate of a whole-show render, Hz (every cue is resampled to it).
+SHOW_RATE_HZ = TONE_RATE_HZ
+
+
+@dataclass(frozen=True)
+class RenderedCue:
+    """A cue's samples at its gain and fades, verified.
+
+    ``margin_pa``: the lowest pressure above ambient at any hole minus the
+    reserve line (>= 0), Pa; ``gain_db``/``ceiling_db`` for today's conditions.
+    """
+
+    id: str
+    label: str
+    samples: np.ndarray
+    rate_hz: int
+    gain_db: float
+    ceiling_db: float
+    margin_pa: float
+    min_pressure_pa: float
+    then: str
+    ride: bool = False
+
+
+def verify(rig: Rig, samples: np.ndarray, rate_hz: int, where: str) -> tuple[float, float]:
+    """Re-simulate rendered samples; refuse them if any hole dips below the reserve line.
+
+    Returns ``(margin_pa, min_pressure_pa)``.
+    """
+    from showkit.analysis.pressure import signal_report
+
+    peak = float(np.max(np.abs(samples))) if samples.size else 0.0
+    if peak > 1.0 + VERIFY_TOLERANCE:
+        raise SheetError(f"the rendered cue peaks at {20 * math.log10(peak):+.2f} dBFS, above full scale",
+                         where, "lower the gain; the cue was not rendered")
+    if peak == 0.0:
+        return (1.0 - rig.reserve) * rig.static_pa, rig.static_pa
+    report = signal_report(rig, samples, rate_hz, flames=False)
+    lowest = rig.static_pa - report.swing_pa
+    line = rig.reserve * rig.static_pa
+    if lowest < line - VERIFY_TOLERANCE * rig.static_pa:
+        raise SheetError(f"the rendered cue would take hole {report.worst_hole + 1} down to "
+                         f"{lowest:.2f} Pa, below the safe line {line:.2f} Pa, at {report.worst_time_s:.2f} s",
+                         where, "lower the gain and lock again; the cue was not rendered")
+    return lowest - line, lowest
+
+
+def render_cue(sheet: Sheet, rig: Rig, cue: Cue) -> RenderedCue:
+    """Render and verify one cue for the rig's (today's) static pressure and reserve.
+
+    Raises a :class:`SheetError` naming the cue if it is stale, over its
+    ceiling, or fails verification.
+    """
+    where = f"{sheet.path or 'sheet'}: cue {cue.id}"
+    signal = cue_signal(sheet, rig, cue)
+    state = check_cue(sheet, rig, cue, signal=signal)
+    if state.status != "ok":
+        raise SheetError(f"cue is {state.status}: {state.message}", where,
+                         "fix it before rendering (nothing was rendered for this cue)")
+    samples = signal.samples * 10.0 ** (cue.gain_db / 20.0)
+    if cue.ride:
+        from showkit.show.rider import ride
+
+        samples = ride(rig, samples, signal.rate_hz)
+    samples = samples.astype(np.float32)
+    margin, lowest = verify(rig, samples.astype(float), signal.rate_hz, where)
+    return RenderedCue(id=cue.id, label=cue.label, samples=samples, rate_hz=signal.rate_hz,
+                       gain_db=cue.gain_db, ceiling_db=state.ceiling_db, margin_pa=margin,
+                       min_pressure_pa=lowest, then=cue.then, ride=cue.ride)
+
+
+def render_sheet(sheet: Sheet, rig: Rig | None = None, progress=None) -> list[RenderedCue]:
+    """Render and verify every cue in show order (stops at the first refusal)."""
+    rig = rig or sheet_rig(sheet)
+    out = []
+    for k, cue in enumerate(sheet.cues):
+        if progress:
+            progress(k, len(sheet.cues), cue.id)
+        out.append(render_cue(sheet, rig, cue))
+    if progress:
+        progress(len(sheet.cues), len(sheet.cues), None)
+    return out
+
+
+def _resampled(cue: RenderedCue, rate_hz: int) -> np.ndarray:
+    if cue.rate_hz == rate_hz:
+        return cue.samples
+    import soxr
+
+    y = soxr.resample(cue.samples.astype(np.float64), cue.rate_hz, rate_hz, quality="VHQ")
+    # resampling can raise inter-sample peaks; never let it pass full scale
+    return np.clip(y, -1.0, 1.0).astype(np.float32)
+
+
+def write_wav(path: Path, samples: np.ndarray, rate_hz: int, subtype: str = "FLOAT") -> None:
+    """Write mono samples as WAV (``FLOAT`` 32-bit or ``PCM_24``), via a temporary file."""
+    import os
+    import tempfile
+
+    import soundfile as sf
+
+    path = Path(path)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".wav", dir=path.parent)
+    os.close(fd)
+    try:
+        sf.write(tmp, samples, rate_hz, subtype=subtype, format="WAV")
+        os.replace(tmp, path)
+    except BaseException:
+        if os.path.exists(tmp):
+            os.unlink(tmp)
+        raise
+
+
+def write_show(rig: Rig, cues: list[RenderedCue], path: Path, subtype: str = "FLOAT",
+               gap_s: float = 0.0) -> Path:
+    """All cues, in order, in one WAV at :data:`SHOW_RATE_HZ`.
+
+    Cues at another rate are resampled (and clipped to full scale), and the
+    resampled samples are verified against the pressure model again.
+    """
+    gap = np.zeros(int(round(gap_s * SHOW_RATE_HZ)), dtype=np.float32)
+    parts = []
+    for cue in cues:
+        part = _resampled(cue, SHOW_RATE_HZ)
+        if cue.rate_hz != SHOW_RATE_HZ:
+            verify(rig, part.astype(float), SHOW_RATE_HZ, f"cue {cue.id} (resampled)")
+        parts.append(part)
+        if gap.size:
+            parts.append(gap)
+    write_wav(path, np.concatenate(parts) if parts else np.zeros(0, np.float32), SHOW_RATE_HZ, subtype)
+    return Path(path)
+
+
+def write_per_cue(cues: list[RenderedCue], folder: Path, subtype: str = "FLOAT") -> list[Path]:
+    """One WAV per cue at its own rate: ``NN-id.wav`` in show order."""
+    paths = []
+    for k, cue in enumerate(cues, 1):
+        safe = "".join(ch if ch.isalnum() or ch in "-_" else "_" for ch in cue.id)
+        p = Path(folder) / f"{k:02d}-{safe}.wav"
+        write_wav(p, cue.samples, cue.rate_hz, subtype)
+        paths.append(p)
+    return paths

@@ -1,0 +1,117 @@
+"""A pressure-aware gain rider: lift the quiet, sustained parts of a cue.
+
+At its locked gain a passage is held down everywhere by its loudest moment.
+The rider lifts the rest (up to :data:`MAX_LIFT_DB`) and stays at the locked
+gain only around the peaks that set the ceiling:
+
+1. the tube's unit-gain pressure envelope per flame frame (max over holes);
+2. the lift the safe line allows per frame, ``(1 - m) dP0 / E``, where ``E``
+   is the envelope's maximum over a window that covers the tube's ring time
+   (look-ahead and look-behind), and the lift that keeps the peak at or below
+   full scale; never below 1 (the locked gain is already safe);
+3. smoothed without ever rising above the allowed lift: a running minimum
+   followed by a running mean of the same width (so a slow, click-free curve);
+4. applied, then **verified** by simulating the ridden samples; where a hole
+   would still dip below the line the lift is lowered there and the check
+   repeated; if that does not converge the cue plays at its locked gain.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from showkit.rigfile import Rig
+
+#: Largest lift above the locked gain, dB.
+MAX_LIFT_DB = 12.0
+#: Width of the smoothing (running min, then running mean), s.
+SMOOTH_S = 0.4
+#: Look-ahead and look-behind around each frame, s.
+GUARD_S = 0.5
+#: Rounds of verify-and-lower before giving up.
+MAX_ROUNDS = 6
+
+
+def _running(values: np.ndarray, width: int, how: str) -> np.ndarray:
+    """Centred running max/min/mean over ``width`` frames (edges padded with the end values)."""
+    if width <= 1:
+        return values.copy()
+    half = width // 2
+    padded = np.pad(values, (half, width - half - 1), mode="edge")
+    windows = np.lib.stride_tricks.sliding_window_view(padded, width)
+    return {"max": windows.max, "min": windows.min, "mean": windows.mean}[how](axis=1)
+
+
+def lift_curve(rig: Rig, samples: np.ndarray, rate_hz: int, max_lift_db: float = MAX_LIFT_DB) -> np.ndarray:
+    """The rider's gain (>= 1) for every sample of ``samples`` (already at the locked gain)."""
+    from showkit.analysis.pressure import hole_filters
+    from showkit.physics.response import simulate
+
+    filters = hole_filters(rig)
+    drive = samples
+    if rate_hz != filters.rate_hz:
+        import soxr
+
+        drive = soxr.resample(samples, rate_hz, filters.rate_hz, quality="HQ")
+    frames = simulate(filters, drive, ring_out=False)
+    fps = frames.frame_rate_hz
+    env = frames.envelope.max(axis=1).astype(float)
+    n_frames = env.size
+    guard = max(1, int(round(2 * GUARD_S * fps)) + 1)
+    env_window = np.maximum(_running(env, guard, "max"), 1e-12)
+    allowed = (1.0 - rig.reserve) * rig.static_pa / env_window
+    # full scale: the sample peak in each frame's window
+    per_frame = max(1, int(round(rate_hz / fps)))
+    usable = min(samples.size, n_frames * per_frame)
+    peaks = np.zeros(n_frames)
+    if usable:
+        k = usable // per_frame
+        peaks[:k] = np.abs(samples[:k * per_frame]).reshape(k, per_frame).max(axis=1)
+    peak_window = np.maximum(_running(peaks, guard, "max"), 1e-12)
+    allowed = np.minimum(allowed, 1.0 / peak_window)
+    lift = np.clip(allowed, 1.0, 10.0 ** (max_lift_db / 20.0))
+    width = max(1, int(round(SMOOTH_S * fps)))
+    smooth = _running(_running(lift, width, "min"), width, "mean")
+    centres = (np.arange(n_frames) + 0.5) / fps
+    t = np.arange(samples.size) / rate_hz
+    return np.interp(t, centres, smooth, left=smooth[0] if n_frames else 1.0,
+                     right=smooth[-1] if n_frames else 1.0)
+
+
+def ride(rig: Rig, samples: np.ndarray, rate_hz: int, max_lift_db: float = MAX_LIFT_DB) -> np.ndarray:
+    """Ride a cue's samples (at its locked gain): lifted where safe, verified.
+
+    Returns new samples; if the rider cannot make a verified curve, the input unchanged.
+    """
+    from showkit.analysis.pressure import signal_report
+
+    x = np.asarray(samples, dtype=float)
+    if not x.any():
+        return x
+    lift = lift_curve(rig, x, rate_hz, max_lift_db)
+    line = rig.reserve * rig.static_pa
+    for _ in range(MAX_ROUNDS):
+        y = x * lift
+        peak = np.max(np.abs(y))
+        report = signal_report(rig, y, rate_hz, flames=False)
+        lowest = rig.static_pa - report.swing_pa
+        if lowest >= line and peak <= 1.0:
+            return y
+        # lower the lift by the excess around the worst moment, with the guard width
+        excess = max(report.swing_pa / ((1.0 - rig.reserve) * rig.static_pa), peak)
+        t0 = report.worst_time_s if lowest < line else float(np.argmax(np.abs(y)) / rate_hz)
+        t = np.arange(x.size) / rate_hz
+        near = np.abs(t - t0) <= GUARD_S + SMOOTH_S
+        lift = np.where(near, np.maximum(1.0, lift / (excess * 1.001)), lift)
+        width = max(1, int(round(SMOOTH_S * rate_hz)))
+        if width > 1 and x.size > width:
+            # keep the lowered region click-free: a short raised-cosine smoothing of the curve,
+            # taken as a minimum with the curve itself so that it never rises
+            from scipy.signal import fftconvolve
+
+            kernel = np.hanning(width)
+            kernel /= kernel.sum()
+            padded = np.pad(lift, width, mode="edge")
+            lift = np.minimum(lift, fftconvolve(padded, kernel, mode="same")[width:-width])
+            lift = np.maximum(lift, 1.0)
+    return x

@@ -1,0 +1,144 @@
+"""The sound of a cue at unit gain: audio passages, tones, glides and pauses.
+
+Tones and glides are made at 48 kHz with a peak of 1.0 (0 dBFS) before the
+cue's gain; a tone on a mode lands on the rig's mode frequency; a glide
+sweeps exponentially in frequency, ``f(t) = f1 (f2 / f1)^(t / T)``, with the
+phase its integral, ``2 pi f1 T (exp(t ln(f2/f1) / T) - 1) / ln(f2/f1)``
+(the exponential sweep of Farina, AES preprint 5093, 2000).  Fades are
+raised-cosine (half-Hann) ramps.
+"""
+
+from __future__ import annotations
+
+import hashlib
+from dataclasses import dataclass
+from functools import lru_cache
+
+import numpy as np
+
+from showkit.errors import SheetError
+from showkit.rigfile import Rig
+from showkit.show.sheet import AudioSource, Cue, GlideSource, PauseSource, Sheet, ToneSource
+
+#: Rate of generated cues (tones, glides, pauses), Hz.
+TONE_RATE_HZ = 48000
+
+
+@dataclass(frozen=True)
+class CueSignal:
+    """A cue's samples at unit gain with its fades.
+
+    ``samples``: mono float64, 1.0 = full scale; ``rate_hz``; ``source_hash``:
+    SHA-256 (16 hex) of the samples and rate; ``frequency_hz``/``to_frequency_hz``
+    for tones and glides.
+    """
+
+    samples: np.ndarray
+    rate_hz: int
+    source_hash: str
+    frequency_hz: float | None = None
+    to_frequency_hz: float | None = None
+
+    @property
+    def duration_s(self) -> float:
+        return self.samples.size / self.rate_hz
+
+
+@lru_cache(maxsize=16)
+def _modes(rig: Rig):
+    from showkit.physics.modes import find_modes
+
+    return {m.n: m for m in find_modes(rig.model)}
+
+
+def mode_frequency_hz(rig: Rig, n: int, where: str) -> float:
+    """The rig's mode ``n`` frequency, Hz, or a SheetError naming the cue."""
+    modes = _modes(rig)
+    if n not in modes:
+        have = ", ".join(str(k) for k in sorted(modes))
+        raise SheetError(f"the rig has no mode {n}", where, f"use one of the modes {have} (see showkit modes)")
+    return modes[n].frequency_hz
+
+
+def _check_frequency(rig: Rig, f: float, where: str) -> float:
+    limit = rig.model.plane_wave_limit_hz
+    if f >= limit:
+        raise SheetError(f"{f:.0f} Hz is above the tube's plane-wave limit ({limit:.0f} Hz)", where,
+                         "choose a lower frequency: the model says nothing above the limit")
+    return f
+
+
+def fade(samples: np.ndarray, rate_hz: int, fade_in_s: float, fade_out_s: float,
+         where: str = "cue") -> np.ndarray:
+    """Apply raised-cosine fade-in and fade-out ramps (returns a new array)."""
+    n = samples.size
+    a, b = int(round(fade_in_s * rate_hz)), int(round(fade_out_s * rate_hz))
+    if a + b > n:
+        raise SheetError(f"fades ({fade_in_s:g} s + {fade_out_s:g} s) are longer than the cue "
+                         f"({n / rate_hz:.2f} s)", where, "shorten the fades or lengthen the cue")
+    out = np.array(samples, dtype=float, copy=True)
+    if a:
+        out[:a] *= 0.5 * (1.0 - np.cos(np.pi * (np.arange(a) + 0.5) / a))
+    if b:
+        out[n - b:] *= 0.5 * (1.0 + np.cos(np.pi * (np.arange(b) + 0.5) / b))
+    return out
+
+
+def tone(freq_hz: float, duration_s: float, rate_hz: int = TONE_RATE_HZ) -> np.ndarray:
+    """A sine of peak 1.0 at ``freq_hz`` for ``duration_s``."""
+    t = np.arange(int(round(duration_s * rate_hz))) / rate_hz
+    return np.sin(2.0 * np.pi * freq_hz * t)
+
+
+def glide(f1_hz: float, f2_hz: float, duration_s: float, rate_hz: int = TONE_RATE_HZ) -> np.ndarray:
+    """A sine whose frequency moves exponentially from ``f1_hz`` to ``f2_hz``."""
+    n = int(round(duration_s * rate_hz))
+    t = np.arange(n) / rate_hz
+    if abs(f2_hz - f1_hz) < 1e-9 * f1_hz:
+        return np.sin(2.0 * np.pi * f1_hz * t)
+    ratio = np.log(f2_hz / f1_hz)
+    phase = 2.0 * np.pi * f1_hz * duration_s * (np.exp(t * ratio / duration_s) - 1.0) / ratio
+    return np.sin(phase)
+
+
+def _hash(samples: np.ndarray, rate_hz: int) -> str:
+    digest = hashlib.sha256(np.ascontiguousarray(samples, dtype=np.float32).tobytes())
+    digest.update(str(int(rate_hz)).encode())
+    return digest.hexdigest()[:16]
+
+
+def cue_signal(sheet: Sheet, rig: Rig, cue: Cue) -> CueSignal:
+    """The cue's sound at unit gain, with its fades, ready to lock or render."""
+    from showkit.analysis.audio import load_audio
+    from showkit.errors import AudioError
+
+    where = f"{sheet.path or 'sheet'}: cue {cue.id}"
+    s = cue.source
+    f1 = f2 = None
+    if isinstance(s, AudioSource):
+        path = sheet.audio_path(s)
+        try:
+            audio = load_audio(path, None, s.start_s, s.end_s)
+        except AudioError as exc:
+            raise SheetError(exc.what, f"{where}: audio ({path})", exc.fix) from None
+        samples, rate = audio.samples, audio.rate_hz
+    elif isinstance(s, ToneSource):
+        f1 = (mode_frequency_hz(rig, s.mode, f"{where}: tone.mode") if s.mode is not None
+              else s.frequency_hz)
+        _check_frequency(rig, f1, f"{where}: tone")
+        samples, rate = tone(f1, s.duration_s), TONE_RATE_HZ
+    elif isinstance(s, GlideSource):
+        f1 = (mode_frequency_hz(rig, s.from_mode, f"{where}: glide.from_mode") if s.from_mode is not None
+              else s.from_frequency_hz)
+        f2 = (mode_frequency_hz(rig, s.to_mode, f"{where}: glide.to_mode") if s.to_mode is not None
+              else s.to_frequency_hz)
+        _check_frequency(rig, max(f1, f2), f"{where}: glide")
+        samples, rate = glide(f1, f2, s.duration_s), TONE_RATE_HZ
+    elif isinstance(s, PauseSource):
+        samples, rate = np.zeros(int(round(s.duration_s * TONE_RATE_HZ))), TONE_RATE_HZ
+    else:  # pragma: no cover
+        raise TypeError(s)
+    if samples.size == 0:
+        raise SheetError("the cue holds no samples", where, "give it a longer duration or passage")
+    samples = fade(samples, rate, cue.fade_in_s, cue.fade_out_s, where)
+    return CueSignal(samples, int(rate), _hash(samples, rate), f1, f2)
