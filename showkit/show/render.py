@@ -10,7 +10,7 @@ or below full scale, or the cue is refused.  Nothing is assumed.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 
 import numpy as np
@@ -28,7 +28,7 @@ SHOW_RATE_HZ = TONE_RATE_HZ
 
 
 @dataclass(frozen=True)
-class RenderedCue:
+class VerifiedCue:
     """A cue's samples at its gain and fades, verified.
 
     ``margin_pa``: the lowest pressure above ambient at any hole minus the
@@ -70,7 +70,7 @@ def verify(rig: Rig, samples: np.ndarray, rate_hz: int, where: str) -> tuple[flo
     return lowest - line, lowest
 
 
-def render_cue(sheet: Sheet, rig: Rig, cue: Cue) -> RenderedCue:
+def render_cue(sheet: Sheet, rig: Rig, cue: Cue) -> VerifiedCue:
     """Render and verify one cue for the rig's (today's) static pressure and reserve.
 
     Raises a :class:`SheetError` naming the cue if it is stale, over its
@@ -89,12 +89,12 @@ def render_cue(sheet: Sheet, rig: Rig, cue: Cue) -> RenderedCue:
         samples = ride(rig, samples, signal.rate_hz)
     samples = samples.astype(np.float32)
     margin, lowest = verify(rig, samples.astype(float), signal.rate_hz, where)
-    return RenderedCue(id=cue.id, label=cue.label, samples=samples, rate_hz=signal.rate_hz,
+    return VerifiedCue(id=cue.id, label=cue.label, samples=samples, rate_hz=signal.rate_hz,
                        gain_db=cue.gain_db, ceiling_db=state.ceiling_db, margin_pa=margin,
                        min_pressure_pa=lowest, then=cue.then, ride=cue.ride)
 
 
-def render_sheet(sheet: Sheet, rig: Rig | None = None, progress=None) -> list[RenderedCue]:
+def render_sheet(sheet: Sheet, rig: Rig | None = None, progress=None) -> list[VerifiedCue]:
     """Render and verify every cue in show order (stops at the first refusal)."""
     rig = rig or sheet_rig(sheet)
     out = []
@@ -107,7 +107,7 @@ def render_sheet(sheet: Sheet, rig: Rig | None = None, progress=None) -> list[Re
     return out
 
 
-def _resampled(cue: RenderedCue, rate_hz: int) -> np.ndarray:
+def _resampled(cue: VerifiedCue, rate_hz: int) -> np.ndarray:
     if cue.rate_hz == rate_hz:
         return cue.samples
     import soxr
@@ -137,7 +137,7 @@ def write_wav(path: Path, samples: np.ndarray, rate_hz: int, subtype: str = "FLO
         raise
 
 
-def write_show(rig: Rig, cues: list[RenderedCue], path: Path, subtype: str = "FLOAT",
+def write_show(rig: Rig, cues: list[VerifiedCue], path: Path, subtype: str = "FLOAT",
                gap_s: float = 0.0) -> Path:
     """All cues, in order, in one WAV at :data:`SHOW_RATE_HZ`.
 
@@ -157,7 +157,7 @@ def write_show(rig: Rig, cues: list[RenderedCue], path: Path, subtype: str = "FL
     return Path(path)
 
 
-def write_per_cue(cues: list[RenderedCue], folder: Path, subtype: str = "FLOAT") -> list[Path]:
+def write_per_cue(cues: list[VerifiedCue], folder: Path, subtype: str = "FLOAT") -> list[Path]:
     """One WAV per cue at its own rate: ``NN-id.wav`` in show order."""
     paths = []
     for k, cue in enumerate(cues, 1):
@@ -166,3 +166,56 @@ def write_per_cue(cues: list[RenderedCue], folder: Path, subtype: str = "FLOAT")
         write_wav(p, cue.samples, cue.rate_hz, subtype)
         paths.append(p)
     return paths
+
+
+def render_for_playback(sheet_path, static_pa: float | None = None,
+                        temperature_k: float | None = None):
+    """The pre-show check and render for the live engine.
+
+    Today's static pressure re-derives every ceiling by exact scaling.  Today's
+    gas temperature moves the modes: every cue is then locked again in memory
+    for the warmer or cooler gas (tone and glide cues on modes follow the modes;
+    the file is not changed) and checked against its gain.
+
+    Returns
+    -------
+    cues : list of :class:`showkit.show.playlist.RenderedCue`
+        In show order; cues that may not be played carry their status and why.
+    problems : list of str
+        One line per cue that does not fit or could not be rendered, and what
+        the pre-show check used.
+    """
+    from showkit.errors import ShowkitError
+    from showkit.show.lock import lock_cue
+    from showkit.show.playlist import RenderedCue
+    from showkit.show.sheet import load_sheet
+
+    sheet = load_sheet(sheet_path)
+    rig = sheet_rig(sheet)
+    today = rig.with_conditions(static_pa=static_pa, temperature_k=temperature_k)
+    problems = [f"pre-show check: static {today.static_pa:g} Pa, gas {today.temperature_k - 273.15:.1f} C, "
+                f"reserve {today.reserve:g}"]
+    relock = temperature_k is not None and abs(temperature_k - rig.temperature_k) > 1e-9
+    out = []
+    for cue in sheet.cues:
+        try:
+            if relock:
+                original = cue.gain_db
+                cue, _ = lock_cue(sheet, today, cue)
+                if cue.gain_db < original:
+                    # the gain no longer fits at this temperature: do not clamp silently
+                    cue = replace(cue, gain_db=original)
+            state = check_cue(sheet, today, cue)
+            if state.status != "ok":
+                problems.append(f"cue {cue.id}: {state.status}: {state.message}")
+                out.append(RenderedCue(cue.id, cue.label, np.zeros(0, np.float32), 48000, cue.then,
+                                       cue.gain_db, state.ceiling_db, state.status, state.message))
+                continue
+            v = render_cue(sheet, today, cue)
+            out.append(RenderedCue(v.id, v.label, v.samples, v.rate_hz, v.then, v.gain_db,
+                                   v.ceiling_db, "ok", ""))
+        except ShowkitError as exc:
+            problems.append(f"cue {cue.id}: error: {exc.line()}")
+            out.append(RenderedCue(cue.id, cue.label, np.zeros(0, np.float32), 48000, cue.then,
+                                   cue.gain_db, None, "error", exc.line()))
+    return out, problems

@@ -6,9 +6,10 @@ gain only around the peaks that set the ceiling:
 
 1. the tube's unit-gain pressure envelope per flame frame (max over holes);
 2. the lift the safe line allows per frame, ``(1 - m) dP0 / E``, where ``E``
-   is the envelope's maximum over a window that covers the tube's ring time
-   (look-ahead and look-behind), and the lift that keeps the peak at or below
-   full scale; never below 1 (the locked gain is already safe);
+   is the envelope's maximum from a little before the frame to one ring time
+   after it (a lift now still rings in the tube that long: the ring time is
+   where the impulse responses have decayed by 60 dB), and the lift that keeps
+   the peak at or below full scale; never below 1 (the locked gain is safe);
 3. smoothed without ever rising above the allowed lift: a running minimum
    followed by a running mean of the same width (so a slow, click-free curve);
 4. applied, then **verified** by simulating the ridden samples; where a hole
@@ -26,20 +27,31 @@ from showkit.rigfile import Rig
 MAX_LIFT_DB = 12.0
 #: Width of the smoothing (running min, then running mean), s.
 SMOOTH_S = 0.4
-#: Look-ahead and look-behind around each frame, s.
-GUARD_S = 0.5
+#: Look-behind before each frame, s (the look-ahead is the tube's ring time).
+GUARD_S = 0.15
+#: Longest look-ahead, s.
+MAX_RING_S = 3.0
 #: Rounds of verify-and-lower before giving up.
 MAX_ROUNDS = 6
 
 
-def _running(values: np.ndarray, width: int, how: str) -> np.ndarray:
-    """Centred running max/min/mean over ``width`` frames (edges padded with the end values)."""
+def _running(values: np.ndarray, width: int, how: str, behind: int | None = None) -> np.ndarray:
+    """Running max/min/mean over ``width`` frames, ``behind`` of them before each frame
+    (default: centred); edges padded with the end values."""
     if width <= 1:
         return values.copy()
-    half = width // 2
-    padded = np.pad(values, (half, width - half - 1), mode="edge")
+    back = width // 2 if behind is None else behind
+    padded = np.pad(values, (back, width - back - 1), mode="edge")
     windows = np.lib.stride_tricks.sliding_window_view(padded, width)
     return {"max": windows.max, "min": windows.min, "mean": windows.mean}[how](axis=1)
+
+
+def ring_time_s(filters) -> float:
+    """Time for the tube's impulse responses to decay by 60 dB in energy, s."""
+    energy = (filters.impulse.astype(float) ** 2).sum(axis=0)
+    tail = np.cumsum(energy[::-1])[::-1]
+    k = int(np.searchsorted(-tail, -1e-6 * tail[0]))
+    return min(MAX_RING_S, k / filters.rate_hz)
 
 
 def lift_curve(rig: Rig, samples: np.ndarray, rate_hz: int, max_lift_db: float = MAX_LIFT_DB) -> np.ndarray:
@@ -57,8 +69,10 @@ def lift_curve(rig: Rig, samples: np.ndarray, rate_hz: int, max_lift_db: float =
     fps = frames.frame_rate_hz
     env = frames.envelope.max(axis=1).astype(float)
     n_frames = env.size
-    guard = max(1, int(round(2 * GUARD_S * fps)) + 1)
-    env_window = np.maximum(_running(env, guard, "max"), 1e-12)
+    behind = int(round(GUARD_S * fps))
+    ahead = int(round(ring_time_s(filters) * fps))
+    guard = behind + ahead + 1
+    env_window = np.maximum(_running(env, guard, "max", behind), 1e-12)
     allowed = (1.0 - rig.reserve) * rig.static_pa / env_window
     # full scale: the sample peak in each frame's window
     per_frame = max(1, int(round(rate_hz / fps)))
@@ -67,7 +81,7 @@ def lift_curve(rig: Rig, samples: np.ndarray, rate_hz: int, max_lift_db: float =
     if usable:
         k = usable // per_frame
         peaks[:k] = np.abs(samples[:k * per_frame]).reshape(k, per_frame).max(axis=1)
-    peak_window = np.maximum(_running(peaks, guard, "max"), 1e-12)
+    peak_window = np.maximum(_running(peaks, guard, "max", behind), 1e-12)
     allowed = np.minimum(allowed, 1.0 / peak_window)
     lift = np.clip(allowed, 1.0, 10.0 ** (max_lift_db / 20.0))
     width = max(1, int(round(SMOOTH_S * fps)))
@@ -88,20 +102,24 @@ def ride(rig: Rig, samples: np.ndarray, rate_hz: int, max_lift_db: float = MAX_L
     x = np.asarray(samples, dtype=float)
     if not x.any():
         return x
+    from showkit.analysis.pressure import hole_filters
+
     lift = lift_curve(rig, x, rate_hz, max_lift_db)
+    ring = ring_time_s(hole_filters(rig))
     line = rig.reserve * rig.static_pa
     for _ in range(MAX_ROUNDS):
         y = x * lift
         peak = np.max(np.abs(y))
         report = signal_report(rig, y, rate_hz, flames=False)
         lowest = rig.static_pa - report.swing_pa
-        if lowest >= line and peak <= 1.0:
+        # the same slack for float32 rounding as the render's verification
+        if lowest >= line - 1e-5 * rig.static_pa and peak <= 1.0:
             return y
         # lower the lift by the excess around the worst moment, with the guard width
         excess = max(report.swing_pa / ((1.0 - rig.reserve) * rig.static_pa), peak)
         t0 = report.worst_time_s if lowest < line else float(np.argmax(np.abs(y)) / rate_hz)
         t = np.arange(x.size) / rate_hz
-        near = np.abs(t - t0) <= GUARD_S + SMOOTH_S
+        near = (t >= t0 - ring - SMOOTH_S) & (t <= t0 + GUARD_S + SMOOTH_S)
         lift = np.where(near, np.maximum(1.0, lift / (excess * 1.001)), lift)
         width = max(1, int(round(SMOOTH_S * rate_hz)))
         if width > 1 and x.size > width:
