@@ -118,10 +118,15 @@ class RenderedCue:
         """Why this cue cannot be started and what to do, as one sentence ('' when playable)."""
         if self.playable:
             return ""
-        text = f"cue {self.id!r} is {self.status} and cannot be started"
+        what, fix = self.refusal_parts()
+        return f"cue {self.id!r}: {what} -- {fix}"
+
+    def refusal_parts(self) -> tuple[str, str]:
+        """(what is wrong, what to do) for a cue that may not be started."""
+        what = f"the cue is {self.status} and cannot be started"
         if self.message:
-            text += f" ({self.message})"
-        return f"{text}: {_STATUS_FIX[self.status]}"
+            what += f" ({self.message})"
+        return what, _STATUS_FIX.get(self.status, "")
 
 
 def resample_cue(cue: RenderedCue, rate_hz: int) -> RenderedCue:

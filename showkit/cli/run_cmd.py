@@ -1,0 +1,332 @@
+"""Run a show live through the audio device, from a plain terminal.
+
+First the pre-show check: today's manometer reading (--static) and gas
+temperature (--temperature) re-derive every ceiling and move the tone cues
+with the modes; the cues that no longer fit are listed and cannot be started.
+Then the show, one key per action:
+
+  Enter     start the next cue (a cue playing is cut quickly first)
+  f         fade the current cue out (--fade seconds, default 3)
+  -         operator fader down 1 dB
+  +  or =   operator fader up 1 dB (never above the cue's locked gain)
+  x         PANIC: silence within 20 ms, the show stops until re-armed
+  a         re-arm after a panic (then Enter resumes at the next cue)
+  r         reconnect the audio device after a fault
+  h  or ?   show the keys
+  q         quit (press twice while a cue plays)
+
+Ctrl+C is a panic too, and then quits.  --auto plays every cue in order with
+no keyboard, treating every cue as "then = next": a rehearsal, or a test.
+Every reading, start, stop, fade, fader move, panic and device error goes to
+the show log (one JSON object a line; --log FILE, default in the user's data
+directory).
+"""
+
+from __future__ import annotations
+
+import argparse
+import math
+import os
+import shutil
+import sys
+import time
+
+POLL_S = 0.05
+
+KEYS_HELP = ("keys: Enter next cue | f fade out | - / + fader | x PANIC | a re-arm | "
+             "r reconnect | h help | q quit")
+
+
+def add_arguments(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("sheet", help="cue sheet (TOML), locked with `showkit lock`")
+    parser.add_argument("--device", metavar="NAME|INDEX",
+                        help="output device: part of its name or its index (see `showkit devices`; "
+                             "default: the system's default output)")
+    parser.add_argument("--log", metavar="FILE",
+                        help="show log file, one JSON object a line (default: "
+                             "<user data dir>/showkit/logs/show-<date>.jsonl)")
+    parser.add_argument("--auto", action="store_true",
+                        help="rehearsal: play every cue in order with no keyboard, then exit")
+    parser.add_argument("--static", metavar="PRESSURE",
+                        help='today\'s static overpressure from the manometer, e.g. "22 Pa", '
+                             '"0.09 inH2O" (default: the rig file\'s)')
+    parser.add_argument("--temperature", metavar="TEMP",
+                        help='today\'s gas temperature, e.g. "24 C", "75 F" (default: the rig file\'s); '
+                             "the modes move with it and the tone cues follow them")
+    parser.add_argument("--fade", metavar="SECONDS", type=float, default=3.0,
+                        help="fade-out time of the fade key, s (default 3)")
+
+
+def run(args) -> int:
+    from showkit import units
+    from showkit.cli.common import level_caution
+    from showkit.errors import InputError
+    from showkit.safety import caution_text
+    from showkit.show.showlog import ShowLog
+
+    out = sys.stdout
+    print(caution_text(), file=out)
+    print(file=out)
+    level_caution()
+    static_pa = None
+    if args.static is not None:
+        static_pa = units.pressure_pa(_maybe_number(args.static), "--static")
+        if not static_pa > 0:
+            raise InputError("the static pressure must be above zero", "--static",
+                             'give the manometer reading, e.g. --static "22 Pa"')
+    temperature_k = None
+    if args.temperature is not None:
+        temperature_k = units.temperature_k(_maybe_number(args.temperature), "--temperature")
+    if not (args.fade > 0 and math.isfinite(args.fade)):
+        raise InputError(f"the fade time must be above zero (got {args.fade:g})", "--fade",
+                         "give seconds, e.g. --fade 3")
+    if not args.auto and not _is_tty(sys.stdin):
+        raise InputError("no keyboard: standard input is not a terminal", "showkit run",
+                         "run it in a terminal, or use --auto for a rehearsal with no keyboard")
+    log = ShowLog(args.log)
+    print(f"show log: {log.path}", file=out)
+    try:
+        return _run(args, log, static_pa, temperature_k, out)
+    finally:
+        log.close()
+
+
+def _maybe_number(text: str):
+    try:
+        return float(text)
+    except ValueError:
+        return text
+
+
+def _is_tty(stream) -> bool:
+    try:
+        return stream.isatty()
+    except (AttributeError, ValueError):
+        return False
+
+
+def pre_show(args, log, static_pa, temperature_k, out):
+    """The pre-show check: render for playback, log and print the summary; returns the cues."""
+    from showkit.cli.common import table
+    from showkit.errors import SheetError
+    from showkit.show import render
+
+    reading = []
+    if static_pa is not None:
+        reading.append(f"static {static_pa:g} Pa (manometer)")
+    if temperature_k is not None:
+        reading.append(f"gas {temperature_k - 273.15:.1f} C")
+    log.write("check", None, None, f"pre-show check of {args.sheet}: "
+              + (", ".join(reading) if reading else "the rig file's static pressure and temperature"))
+    cues, problems = render.render_for_playback(args.sheet, static_pa=static_pa,
+                                                temperature_k=temperature_k)
+    for line in problems:
+        if not line.startswith("cue "):
+            log.write("check", None, None, line)
+            print(line, file=out)
+    for cue in cues:
+        if cue.playable:
+            room = "" if cue.ceiling_db is None else f", headroom {cue.ceiling_db - cue.gain_db:.1f} dB"
+            log.write("check", cue.id, cue.gain_db, f"ok{room}")
+        else:
+            log.write("check", cue.id, cue.gain_db, f"{cue.status}: {cue.message}")
+    rows = [[str(k + 1), c.id, c.label[:32], _fmt_time(c.duration_s) if c.playable else "-",
+             f"{c.gain_db:+.1f}", "-" if c.ceiling_db is None else f"{c.ceiling_db:+.1f}",
+             c.then, c.status] for k, c in enumerate(cues)]
+    print(table(rows, ["#", "cue", "label", "length", "gain dB", "ceiling dB", "then", "status"],
+                "><<>>><<"), file=out)
+    bad = [c for c in cues if not c.playable]
+    if bad:
+        print(f"\n{len(bad)} cue(s) cannot be started today:", file=out)
+        for c in bad:
+            print(f"  {c.refusal()}", file=out)
+        print("Enter passes over them to the next cue that may be played.", file=out)
+    if not any(c.playable for c in cues):
+        raise SheetError("no cue in the sheet can be played today", args.sheet,
+                         "lock it with `showkit lock SHEET` and check it with `showkit check SHEET`")
+    print(file=out)
+    return cues
+
+
+def _run(args, log, static_pa, temperature_k, out) -> int:
+    from showkit.errors import DeviceError
+    from showkit.show.engine import Engine
+
+    cues = pre_show(args, log, static_pa, temperature_k, out)
+    engine = Engine(cues, log=log, auto=args.auto, fade_s=args.fade)
+    try:
+        engine.open(args.device)
+    except DeviceError as exc:
+        if not engine.fault:  # open() logged stream failures itself; log the others here
+            log.write("device_error", None, None, exc.line())
+        raise
+    dev = engine.device
+    print(f"device: {dev.index} {dev.name} ({dev.hostapi}) at {engine.rate_hz} Hz", file=out)
+    try:
+        if args.auto:
+            try:
+                return run_auto(engine, out)
+            except KeyboardInterrupt:
+                engine.panic()
+                time.sleep(0.1)
+                _print_events(engine.poll(), out)
+                raise
+        return KeyRunner(engine, out).loop(sys.stdin)
+    finally:
+        engine.close()
+
+
+# ---------------------------------------------------------------- rehearsal
+def run_auto(engine, out, poll_s: float = 0.01) -> int:
+    """Play every playable cue in order (followed on); returns 0, or 1 after a device fault."""
+    faults = 0
+    while True:
+        for k in engine.skipped:
+            _skip(engine, k, out)
+        index = engine.next_index
+        if index is None:
+            break
+        engine.go(index)
+        while engine.busy and not engine.fault:
+            time.sleep(poll_s)
+            _print_events(engine.poll(), out)
+        _print_events(engine.poll(), out)
+        if engine.fault:
+            faults += 1
+            print(f"DEVICE FAULT: {engine.fault}", file=out)
+            print("reconnecting the device and resuming at the next cue ...", file=out)
+            engine.reopen()
+    print("rehearsal done: every playable cue was played" if not faults else
+          f"rehearsal done, with {faults} device fault(s): see the log", file=out)
+    return 0 if not faults else 1
+
+
+def _skip(engine, index: int, out) -> None:
+    cue = engine.cues[index]
+    print(f"skipping {cue.refusal()}", file=out)
+    if engine.log is not None:
+        engine.log.write("check", cue.id, cue.gain_db, f"skipped in rehearsal: {cue.status}")
+
+
+def _fmt_time(seconds: float) -> str:
+    from showkit.units import format_time
+
+    return format_time(seconds)
+
+
+def _print_events(events, out) -> None:
+    for ev in events:
+        when = "" if ev.show_time_s is None else f"[{_fmt_time(ev.show_time_s)}] "
+        cue = f" {ev.cue}" if ev.cue else ""
+        print(f"\r\x1b[K{when}{ev.kind}{cue}: {ev.detail}" if _is_tty(out)
+              else f"{when}{ev.kind}{cue}: {ev.detail}", file=out)
+
+
+def status_line(engine) -> str:
+    """One line for the screen: current and next cue, elapsed/left, fader, state."""
+    st = engine.status()
+    if st.cue_id is not None:
+        cue = engine.cues[st.cue_index]
+        now = (f"NOW {st.cue_index + 1} {st.cue_id} '{cue.label[:24]}' {_fmt_time(st.elapsed_s)}"
+               f" (left {_fmt_time(st.left_s)})")
+    else:
+        now = "NOW -"
+    nxt = f"NEXT {st.next_index + 1} {st.next_id}" if st.next_id is not None else "NEXT (end of show)"
+    if st.skipped_ids:
+        nxt += f" (passing over {', '.join(st.skipped_ids)}: not playable)"
+    fader = "silent" if st.fader_db == -math.inf else f"{st.fader_db:+.1f} dB"
+    line = f"{now} | {nxt} | fader {fader} | {st.state.upper()}"
+    if st.message:
+        line += f" | {st.message}"
+    return line
+
+
+# ----------------------------------------------------------------- keyboard
+class KeyRunner:
+    """Headless keyboard control of an engine (see the module docstring for the keys)."""
+
+    def __init__(self, engine, out):
+        self.engine = engine
+        self.out = out
+        self._quit_armed_until = 0.0
+
+    def say(self, text: str) -> None:
+        print(f"\r\x1b[K{text}" if _is_tty(self.out) else text, file=self.out)
+
+    def handle(self, key: str) -> bool:
+        """Act on one key; returns False to quit."""
+        from showkit.errors import ShowkitError
+
+        engine = self.engine
+        try:
+            if key in ("\r", "\n"):
+                index = engine.go()
+                self.say(f"GO {index + 1} {engine.cues[index].id}")
+            elif key == "f":
+                engine.fade_out()
+            elif key == "-":
+                new = engine.fader_step(-1.0)
+                self.say("fader " + ("silent" if new == -math.inf else f"{new:+.1f} dB"))
+            elif key in ("+", "="):
+                new = engine.fader_step(+1.0)
+                self.say(f"fader {new:+.1f} dB")
+            elif key == "x":
+                engine.panic()
+                self.say("PANIC: output to silence; press a to re-arm when it is safe")
+            elif key == "a":
+                engine.rearm()
+                self.say("re-armed: Enter starts the next cue")
+            elif key == "r":
+                engine.reopen()
+                self.say(f"device reconnected: {engine.device.name}; Enter starts the next cue")
+            elif key in ("h", "?"):
+                self.say(KEYS_HELP)
+            elif key == "q":
+                if engine.busy and time.monotonic() > self._quit_armed_until:
+                    self._quit_armed_until = time.monotonic() + 3.0
+                    self.say("a cue is playing: press q again within 3 s to stop it and quit")
+                    return True
+                return False
+        except ShowkitError as exc:
+            self.say(f"refused: {exc.line()}")
+        return True
+
+    def loop(self, stdin) -> int:
+        """Read keys in cbreak mode until quit; Ctrl+C panics and quits."""
+        import select
+        import termios
+        import tty
+
+        fd = stdin.fileno()
+        saved = termios.tcgetattr(fd)
+        shown = ""
+        try:
+            tty.setcbreak(fd)
+            self.say(KEYS_HELP)
+            running = True
+            while running:
+                ready, _, _ = select.select([fd], [], [], POLL_S)
+                if ready:
+                    data = os.read(fd, 64).decode("utf-8", "replace")
+                    if not data:
+                        break
+                    for key in data:
+                        if not self.handle(key):
+                            running = False
+                            break
+                events = self.engine.poll()
+                _print_events(events, self.out)
+                line = status_line(self.engine)[:max(20, shutil.get_terminal_size().columns - 1)]
+                if line != shown or events:
+                    self.out.write("\r\x1b[K" + line)
+                    self.out.flush()
+                    shown = line
+        except KeyboardInterrupt:
+            self.engine.panic()
+            self.say("PANIC (Ctrl+C): output to silence; quitting")
+            time.sleep(0.1)
+            _print_events(self.engine.poll(), self.out)
+        finally:
+            termios.tcsetattr(fd, termios.TCSADRAIN, saved)
+            self.out.write("\n")
+        return 0

@@ -1,0 +1,863 @@
+"""The playback engine: plays rendered cues live through the audio device.
+
+The engine plays a list of :class:`~showkit.show.playlist.RenderedCue` (already
+at their locked gains, fades applied, verified against the pressure model) and
+only ever scales them *down*: every output sample is the rendered sample times a
+gain in [0, 1] -- the operator fader, times a fade-out ramp, times the panic
+ramp.  So no output sample is ever above the rendered cue's level at that position.
+
+Threads
+-------
+The audio callback (:meth:`Engine.render_into`) runs in PortAudio's thread.  It
+copies samples and multiplies them by gains in preallocated buffers (no array is
+allocated, no lock is taken, nothing is logged or printed).  The operator's
+thread (the terminal runner or the UI) talks to it through plain attributes:
+a request is a counter bumped after its argument is set; the callback compares
+each counter with the last one it served.  The callback reports back through a
+fixed-size event ring (a preallocated numpy array and a counter) that
+:meth:`Engine.poll` drains, on the operator's thread, into the show log.
+
+How to use it (the API the terminal runner and the UI call)
+------------------------------------------------------------
+::
+
+    from showkit.show.engine import Engine
+    from showkit.show.showlog import ShowLog
+
+    log = ShowLog("show.jsonl")                 # or ShowLog() for the default file
+    engine = Engine(cues, log=log)              # cues: list[RenderedCue] in show order
+    engine.open(device=None)                    # device: None, an index or part of a name;
+                                                # negotiates the rate, resamples if needed;
+                                                # raises DeviceError with what to do
+    engine.go()                                 # start the next cue (or engine.go(index));
+                                                # raises CueRefused for a stale/over cue,
+                                                # after panic, or past the last cue
+    engine.fade_out()                           # fade the current cue to silence (fade_s)
+    engine.set_fader_db(-3.0)                   # operator fader, dB <= 0 (set_fader(level)
+    engine.fader_step(-1.0)                     # for 0..1); above unity raises FaderRefused
+    engine.panic()                              # silence within panic_s (20 ms), disarms
+    engine.rearm()                              # after panic: allow go() again
+    events = engine.poll()                      # call every 50-100 ms: drains the callback's
+                                                # events into the log, checks the device;
+                                                # returns list[EngineEvent]
+    st = engine.status()                        # EngineStatus: state, cue, next (the next
+                                                # playable cue; skipped_ids passed over),
+                                                # elapsed_s, left_s, fader_db, message
+    engine.reopen()                             # after a device fault: reconnect; the show
+                                                # resumes with go() at the next cue
+    engine.close()                              # ramp out, stop the stream
+
+Tests (and a UI preview) may drive :meth:`Engine.render_into` directly with no
+device: ``out = np.zeros((frames, 1), np.float32); engine.render_into(out, frames)``.
+
+Faults
+------
+No PortAudio library or no device: :meth:`open` raises DeviceError (what to
+install or connect).  A buffer underrun (the callback's ``output_underflow``
+flag) or a callback error: the current cue is ramped out at once (cut ramp),
+the show stops, a ``device_error`` event says what happened and what to do,
+and ``go()`` resumes at the next cue.  The device lost mid-show (the stream
+ends by itself, or is no longer active): the output is gone, so it is silent;
+``poll()`` reports it and :meth:`reopen` reconnects, the show resuming at the
+next cue.
+
+Timing: the panic ramp is ``panic_s`` (20 ms) of samples from the first
+callback block after the key; with the default block of 512 frames at 48 kHz
+(10.7 ms) the key-to-silence time at the callback is at most about 31 ms, plus
+the device's own output latency.
+"""
+
+from __future__ import annotations
+
+import math
+import time
+from collections import Counter
+from dataclasses import dataclass
+
+import numpy as np
+
+from showkit.errors import DeviceError, InputError, SheetError
+from showkit.show.playlist import RenderedCue, resample_cues
+from showkit.units import db, undb
+
+
+class CueRefused(SheetError):
+    """A cue cannot be started now (not ok, after panic, past the end)."""
+
+
+class FaderRefused(InputError):
+    """A fader move above the cue's locked gain (unity) was refused."""
+
+
+# Event kinds posted by the callback (column 0 of the ring).
+EV_START, EV_STOP, EV_UNDERFLOW, EV_ERROR = 1, 2, 3, 4
+# Reasons (column 3): how a cue started or stopped.
+R_OPERATOR, R_FOLLOW, R_END, R_FADED, R_CUT, R_PANIC, R_NEXT_REFUSED, R_UNDERFLOW, R_LAST = range(9)
+
+_REASON_TEXT = {
+    R_OPERATOR: "started by the operator",
+    R_FOLLOW: "followed on with no gap",
+    R_END: "played to its end",
+    R_FADED: "faded out",
+    R_CUT: "cut for the next cue",
+    R_PANIC: "panic: output silent",
+    R_NEXT_REFUSED: "played to its end; the next cue may not be started",
+    R_UNDERFLOW: "stopped after a buffer underrun",
+    R_LAST: "played to its end; that was the last cue",
+}
+
+# Callback states.
+S_IDLE, S_PLAYING, S_PANIC = 0, 1, 2
+
+RING = 256
+
+
+@dataclass(frozen=True)
+class EngineEvent:
+    """One thing that happened, for the screen (already written to the log).
+
+    kind : str
+        A show-log event name ("start", "stop", "fade", "fader", "panic", "device_error").
+    cue : str or None
+        The cue id.
+    show_time_s : float or None
+        Time in seconds since the stream started (audio clock), when known.
+    detail : str
+        What happened, and what to do where something went wrong.
+    """
+
+    kind: str
+    cue: str | None
+    show_time_s: float | None
+    detail: str
+
+
+@dataclass(frozen=True)
+class EngineStatus:
+    """A snapshot for the screen.
+
+    state : str
+        "idle", "playing", "fading", "panic" (silent, waiting for re-arm),
+        "fault" (device problem) or "closed".
+    cue_index, cue_id, cue_label : the cue playing (None when idle).
+    next_index, next_id : the cue ``go()`` would start (None past the end).
+    skipped_ids : the cues that may not be played, passed over to reach the next one.
+    elapsed_s, left_s : seconds into and left in the current cue (0 when idle).
+    fader_db : the operator fader in dB (<= 0; -inf at zero).
+    message : a line for the status bar (the last fault and what to do, or "").
+    """
+
+    state: str
+    cue_index: int | None
+    cue_id: str | None
+    cue_label: str | None
+    next_index: int | None
+    next_id: str | None
+    skipped_ids: tuple
+    elapsed_s: float
+    left_s: float
+    fader_db: float
+    message: str
+    rate_hz: int
+
+
+class Engine:
+    """Plays rendered cues through a sounddevice OutputStream; see the module docstring.
+
+    Parameters
+    ----------
+    cues : list of RenderedCue
+        The show, in order.  Cues at other rates are resampled to the first's.
+    log : ShowLog, optional
+        Where events go (written on the operator's thread by :meth:`poll` and the key methods).
+    auto : bool
+        Rehearsal: treat every cue's ``then`` as "next".
+    fade_s : float
+        Fade-out time of the fade key, s.
+    panic_s : float
+        Panic ramp to silence, s (at most 0.05).
+    cut_s : float
+        Ramp used to cut a cue for the next one, or after an underrun, s.
+    fader_slew_s : float
+        Time for the fader to travel full range, s (fader moves are ramped, no clicks).
+    block_frames : int
+        Frames per callback block asked of the device.
+    max_block_frames : int
+        Size of the preallocated work buffers; longer blocks are processed in pieces.
+    stall_s : float
+        A stream that takes no samples for this long while a cue plays is a device fault, s.
+    """
+
+    def __init__(self, cues: list[RenderedCue], *, log=None, auto: bool = False,
+                 fade_s: float = 3.0, panic_s: float = 0.02, cut_s: float = 0.02,
+                 fader_slew_s: float = 0.03, block_frames: int = 512,
+                 max_block_frames: int = 4096, stall_s: float = 2.0):
+        if not cues:
+            raise InputError("the show has no cues", "show", "add cues to the sheet")
+        if not 0 < panic_s <= 0.05:
+            raise InputError(f"panic ramp must be above 0 and at most 50 ms (got {panic_s} s)",
+                             "panic_s", "use 0.02")
+        if not fade_s > 0 or not cut_s > 0 or not fader_slew_s > 0:
+            raise InputError("fade, cut and fader times must be above zero", "engine",
+                             "give times in seconds above zero")
+        self.log = log
+        self.auto = bool(auto)
+        self.fade_s = float(fade_s)
+        self.panic_s = float(panic_s)
+        self.cut_s = float(cut_s)
+        self.fader_slew_s = float(fader_slew_s)
+        self.block_frames = int(block_frames)
+        self.stall_s = float(stall_s)
+        self._watch_frames = 0
+        self._watch_t = 0.0
+        cap = int(max_block_frames)
+        self._cap = cap
+        # Preallocated work buffers (float32) and the ramp index 1..cap.
+        self._steps = np.arange(1, cap + 1, dtype=np.float32)
+        self._buf = np.zeros(cap, np.float32)
+        self._gain = np.zeros(cap, np.float32)
+        self._tmp = np.zeros(cap, np.float32)
+        self._env = np.zeros(cap, np.float32)
+        self._ev = np.zeros((RING, 4), np.float64)
+        self._ev_n = 0
+        self._ev_read = 0
+        self._backlog: list[EngineEvent] = []
+        self._stream = None
+        self._generation = 0
+        self._stream_finished = False
+        self._closing = False
+        self._device = None
+        self.fault = ""
+        self.note = ""
+        self._source_cues = list(cues)
+        self._prepare(_show_rate(cues))
+        self._reset_state()
+
+    # ------------------------------------------------------------------ set-up
+    def _prepare(self, rate_hz: int) -> None:
+        """Resample (ahead of time, from the cues as given) and precompute the tables at ``rate_hz``."""
+        self.cues = resample_cues(self._source_cues, rate_hz)
+        self.rate_hz = int(rate_hz)
+        self._samples = [c.samples for c in self.cues]
+        self._len = [c.frames for c in self.cues]
+        self._playable = [c.playable for c in self.cues]
+        self._follow = [self.auto or c.then == "next" for c in self.cues]
+        self._panic_frames = max(1, int(math.floor(self.panic_s * rate_hz)))
+        self._cut_frames = max(1, int(round(self.cut_s * rate_hz)))
+        self._fader_step = 1.0 / max(1, int(round(self.fader_slew_s * rate_hz)))
+
+    def _reset_state(self) -> None:
+        # Written by the operator's thread (requests).
+        self._fader_target = 1.0
+        self._go_req = 0
+        self._go_index = -1
+        self._fade_req = 0
+        self._fade_frames_req = 0
+        self._panic_req = 0
+        self._arm_req = 0
+        self._cut_req = 0
+        self._requested = -1
+        # Written by the callback.
+        self._go_seen = self._fade_seen = self._panic_seen = self._arm_seen = self._cut_seen = 0
+        self._state = S_IDLE
+        self._armed = True
+        self._cur = -1
+        self._pos = 0
+        self._last = -1
+        self._pending = -1
+        self._dropped = -1
+        self._fader_g = 1.0
+        self._fade_left = 0
+        self._fade_total = 0
+        self._fade_reason = R_FADED
+        self._panic_left = 0
+        self._panicking = False
+        self._frames_total = 0
+
+    # ----------------------------------------------------------- device stream
+    def open(self, device=None, *, stream_factory=None, latency="low") -> None:
+        """Open and start the output stream on ``device`` (None, an index or part of a name).
+
+        The rate is the cues' when the device takes it, else the device's default,
+        the cues being resampled to it first.  ``stream_factory`` (tests) replaces
+        ``sounddevice.OutputStream``.  Raises DeviceError with what to do.
+        """
+        from showkit.show import devices
+
+        sd = devices.import_sounddevice()
+        dev = devices.choose_device(device, sd)
+        rate = devices.negotiate_rate(dev, self.rate_hz, sd)
+        if rate != self.rate_hz:
+            self._prepare(rate)
+        self._device = dev
+        factory = stream_factory or sd.OutputStream
+        self._stream_finished = False
+        self._closing = False
+        self._generation += 1
+        generation = self._generation
+        try:
+            stream = factory(device=dev.index, samplerate=rate, channels=1, dtype="float32",
+                             blocksize=self.block_frames, latency=latency,
+                             callback=self._sd_callback,
+                             finished_callback=lambda: self._on_finished(generation))
+            stream.start()
+        except Exception as exc:  # PortAudioError and friends
+            self._device_error(f"cannot open output device {dev.index} ({dev.name}): {exc}",
+                               "check the device is connected and not used by another program, "
+                               "or choose another with --device (see `showkit devices`)")
+            raise DeviceError(f"cannot open output device {dev.index} ({dev.name}): {exc}",
+                              "--device", "check the connection, or choose another device "
+                              "(`showkit devices`)") from None
+        self._stream = stream
+        self._watch_t = time.monotonic()
+        self.fault = ""
+
+    @property
+    def device(self):
+        """The :class:`~showkit.show.devices.OutputDevice` in use (None before open)."""
+        return self._device
+
+    def _sd_callback(self, outdata, frames, time_info, status) -> None:
+        """sounddevice's callback: status flags, then :meth:`render_into`."""
+        try:
+            if status and status.output_underflow:
+                self._underflow()
+            self.render_into(outdata, frames)
+        except Exception:  # never let the audio thread die noisily: silence and report
+            outdata.fill(0.0)
+            self._post(EV_ERROR, self._cur, 0)
+            if self._cur >= 0:
+                self._last = self._cur
+            self._cur = -1
+            self._pending = -1
+            self._go_seen = self._go_req
+            self._state = S_IDLE
+
+    def _on_finished(self, generation: int) -> None:
+        if generation == self._generation:  # an old stream ending late does not count
+            self._stream_finished = True
+
+    def _stream_lost(self) -> bool:
+        if self._stream is None or self._closing:
+            return False
+        if self._stream_finished:
+            return True
+        try:
+            return not bool(self._stream.active)
+        except Exception:
+            return True
+
+    def reopen(self, device=None) -> None:
+        """After a device fault: close what is left and open the device again (or ``device``)."""
+        self._drop_stream()
+        # Anything playing was lost with the device: the show resumes at the next cue.
+        if self._cur >= 0:
+            self._last = self._cur
+        self._cur = -1
+        self._state = S_IDLE if self._armed else S_PANIC
+        self._pending = -1
+        spec = device if device is not None else (self._device.index if self._device else None)
+        try:
+            self.open(spec)
+        except DeviceError:
+            if device is None and spec is not None:
+                self.open(None)  # the old index may have gone; try the default
+            else:
+                raise
+
+    def _drop_stream(self) -> None:
+        stream, self._stream = self._stream, None
+        if stream is not None:
+            self._closing = True
+            try:
+                stream.abort()
+            except Exception:
+                pass
+            try:
+                stream.close()
+            except Exception:
+                pass
+
+    def close(self) -> None:
+        """Ramp out what is playing (cut ramp), then stop and close the stream."""
+        if self._stream is not None and self._cur >= 0 and not self._stream_lost():
+            self._cut_req += 1
+            deadline = time.monotonic() + 0.5
+            while self._cur >= 0 and time.monotonic() < deadline:
+                time.sleep(0.005)
+        self.poll()
+        self._drop_stream()
+
+    # --------------------------------------------------------- operator's keys
+    @property
+    def next_index(self) -> int | None:
+        """The cue ``go()`` starts: the first playable one after the last started or requested.
+
+        Cues that may not be played (stale, over, error) are passed over; :attr:`skipped`
+        names them.  None past the end.
+        """
+        index = self._next_raw()
+        while index < len(self.cues) and not self.cues[index].playable:
+            index += 1
+        return index if index < len(self.cues) else None
+
+    @property
+    def skipped(self) -> list[int]:
+        """Indexes of the not-playable cues that ``go()`` would pass over to reach the next one."""
+        out = []
+        index = self._next_raw()
+        while index < len(self.cues) and not self.cues[index].playable:
+            out.append(index)
+            index += 1
+        return out
+
+    def _next_raw(self) -> int:
+        if (self._dropped >= 0 and self._dropped == self._requested
+                and self._go_seen == self._go_req):
+            return self._dropped  # asked for, then dropped by a panic or a fault: still next
+        return max(self._last, self._requested) + 1
+
+    def go(self, index: int | None = None) -> int:
+        """Start cue ``index`` (default: the next cue); returns the index.
+
+        A cue playing is cut (``cut_s`` ramp) and the new one starts after it.
+        Raises CueRefused when the cue is not ok, after panic until :meth:`rearm`,
+        past the last cue, or while the device is faulty.
+        """
+        if index is None:
+            index = self.next_index
+            if index is None:
+                raise CueRefused("there is no next cue: the show is over", "show",
+                                 "quit, or pick a cue by number to play it again")
+        if not 0 <= index < len(self.cues):
+            raise CueRefused(f"there is no cue number {index + 1}", "show",
+                             f"pick 1 to {len(self.cues)}")
+        if self._disarmed():
+            raise CueRefused("panic stopped the show", "show",
+                             "re-arm when it is safe, then start the next cue")
+        if self.fault or self._stream_lost():
+            raise CueRefused(f"the audio device has a fault: {self.fault or 'stream stopped'}",
+                             "audio", "reconnect the device, then resume at the next cue")
+        cue = self.cues[index]
+        if not cue.playable:
+            what, fix = cue.refusal_parts()
+            raise CueRefused(what, f"cue {cue.id!r}", f"{fix}; or skip it and start the one after")
+        self.note = ""
+        self._requested = index
+        self._go_index = index
+        self._watch_t = time.monotonic()
+        self._go_req += 1
+        return index
+
+    def _disarmed(self) -> bool:
+        """True from a panic key press until a re-arm (as the operator sees it)."""
+        if self._panic_req != self._panic_seen or self._panicking:
+            return True
+        return not self._armed and self._arm_req == self._arm_seen
+
+    def fade_out(self, seconds: float | None = None) -> None:
+        """Fade the current cue to silence over ``seconds`` (default ``fade_s``), then stop it."""
+        seconds = self.fade_s if seconds is None else float(seconds)
+        if not seconds > 0:
+            raise InputError("a fade must last more than zero seconds", "fade", "give e.g. 3 s")
+        if self._cur < 0:
+            raise CueRefused("nothing is playing to fade", "show", "start a cue first")
+        cue = self.cues[self._cur]
+        self._fade_frames_req = max(1, int(round(seconds * self.rate_hz)))
+        self._fade_req += 1
+        self._write("fade", cue.id, self._gain_db(cue), f"fade out over {seconds:g} s")
+
+    def set_fader(self, level: float) -> None:
+        """Operator fader as a multiplier, 0 to 1 (1 = the cue's locked gain); above 1 is refused."""
+        level = float(level)
+        if not math.isfinite(level) or level > 1.0:
+            raise FaderRefused(f"the fader cannot go above the cue's locked gain (asked {db(level):+.1f} dB)"
+                               if math.isfinite(level) and level > 0 else
+                               f"the fader level must be a number from 0 to 1 (got {level!r})",
+                               "fader", "the locked gain is the most a cue may play at; to go "
+                               "higher, raise the gain in the sheet and re-lock it")
+        if level < 0:
+            raise FaderRefused(f"the fader level cannot be negative (got {level:g})", "fader",
+                               "give 0 (silent) to 1 (the locked gain)")
+        self._fader_target = level
+        cue = self.cues[self._cur] if self._cur >= 0 else None
+        self._write("fader", cue.id if cue else None, self._gain_db(cue) if cue else None,
+                    f"fader {_fmt_db(db(level))}")
+
+    def set_fader_db(self, fader_db: float) -> None:
+        """Operator fader in dB relative to the locked gain (<= 0; -inf for silent)."""
+        fader_db = float(fader_db)
+        if fader_db > 0:
+            raise FaderRefused(f"the fader cannot go above the cue's locked gain (asked {fader_db:+.1f} dB)",
+                               "fader", "the locked gain is the most a cue may play at; to go "
+                               "higher, raise the gain in the sheet and re-lock it")
+        self.set_fader(0.0 if fader_db == -math.inf else min(1.0, undb(fader_db)))
+
+    def fader_step(self, step_db: float) -> float:
+        """Move the fader by ``step_db`` dB; returns the new fader dB.  Past 0 dB is refused.
+
+        Going down from -60 dB goes to silence; coming up from silence starts at -60 dB.
+        """
+        current = self.fader_db
+        if step_db > 0 and current >= -1e-9:
+            raise FaderRefused("the fader is at the cue's locked gain and cannot go higher",
+                               "fader", "the locked gain is the most a cue may play at")
+        if current == -math.inf:
+            new = -math.inf if step_db <= 0 else -60.0
+        else:
+            new = min(0.0, current + step_db)
+            if new < -60.0:
+                new = -math.inf
+        self.set_fader_db(new)
+        return new
+
+    @property
+    def fader_db(self) -> float:
+        """The fader setting in dB (<= 0, -inf at zero)."""
+        return db(self._fader_target)
+
+    def panic(self) -> None:
+        """Silence within ``panic_s`` from any state, and stop the show until :meth:`rearm`."""
+        self._panic_req += 1
+        cue = self.cues[self._cur] if self._cur >= 0 else None
+        self._write("panic", cue.id if cue else None, None,
+                    f"panic key: ramp to silence in {self.panic_s * 1000:.0f} ms; "
+                    "the show is stopped until re-armed")
+
+    def rearm(self) -> None:
+        """Allow cues to start again after a panic; the show resumes at the next cue."""
+        self._arm_req += 1
+        if self._stream is None:  # no callback to serve the request: serve it here
+            self._take_requests()
+        self._write("check", None, None, "re-armed after panic; next cue: "
+                    f"{self.cues[self.next_index].id if self.next_index is not None else 'none'}")
+
+    # --------------------------------------------------------- status, events
+    def status(self) -> EngineStatus:
+        """A snapshot of the engine for the screen."""
+        cur = self._cur
+        pos = self._pos
+        if self._stream is None and self._device is not None and not self.fault:
+            state = "closed"
+        elif self.fault:
+            state = "fault"
+        elif self._disarmed():
+            state = "panic"
+        elif cur >= 0:
+            state = "fading" if self._fade_total > 0 else "playing"
+        else:
+            state = "idle"
+        nxt = self.next_index
+        cue = self.cues[cur] if cur >= 0 else None
+        elapsed = min(pos, self._len[cur]) / self.rate_hz if cue else 0.0
+        left = max(0, self._len[cur] - pos) / self.rate_hz if cue else 0.0
+        return EngineStatus(state=state, cue_index=cur if cue else None,
+                            cue_id=cue.id if cue else None, cue_label=cue.label if cue else None,
+                            next_index=nxt, next_id=self.cues[nxt].id if nxt is not None else None,
+                            skipped_ids=tuple(self.cues[k].id for k in self.skipped),
+                            elapsed_s=elapsed, left_s=left, fader_db=self.fader_db,
+                            message=self.fault or self.note, rate_hz=self.rate_hz)
+
+    @property
+    def busy(self) -> bool:
+        """True while a cue plays, a request is not yet served, or a panic ramp runs."""
+        return (self._cur >= 0 or self._go_req != self._go_seen or self._panicking
+                or self._pending >= 0)
+
+    def poll(self) -> list[EngineEvent]:
+        """Drain the callback's events into the log and check the device; returns them.
+
+        The operator's own actions (fade, fader, panic, re-arm) are logged when they
+        are made and are not returned here.
+        """
+        self._drain_ring()
+        out, self._backlog = self._backlog, []
+        lost = self._stream_lost()
+        stalled = False
+        if self._stream is not None and not lost and not self.fault:
+            now = time.monotonic()
+            if not self.busy or self._frames_total != self._watch_frames:
+                self._watch_frames = self._frames_total
+                self._watch_t = now
+            elif now - self._watch_t > self.stall_s:
+                stalled = True
+        if (lost or stalled) and not self.fault:
+            self._drop_stream()  # a stalled stream must not wake up and play on by itself
+            self._drain_ring()
+            out += self._backlog
+            self._backlog = []
+            cue = self.cues[self._cur] if self._cur >= 0 else None
+            if self._cur >= 0:
+                self._last = self._cur
+            if self._pending >= 0:
+                self._dropped = self._pending
+            self._cur = -1
+            self._pending = -1
+            what = ("the audio device stopped taking samples" if stalled else
+                    "the audio device stopped (disconnected or taken by another program)")
+            self._device_error(what, "the output is silent: reconnect the device, then resume at "
+                               "the next cue (reconnect key, or restart the run)", cue=cue, sink=out)
+        return out
+
+    def _drain_ring(self) -> None:
+        """Move the callback's events into the log and the backlog that :meth:`poll` returns."""
+        end = self._ev_n
+        if end - self._ev_read > RING:
+            lost = end - self._ev_read - RING
+            self._backlog.append(self._emit("device_error", None, None, f"{lost} engine events "
+                                            "were lost (the screen was not polled in time)"))
+            self._ev_read = end - RING
+        while self._ev_read < end:
+            row = self._ev[self._ev_read % RING]
+            kind, index, frame, reason = int(row[0]), int(row[1]), row[2], int(row[3])
+            self._ev_read += 1
+            self._backlog.append(self._event_from_ring(kind, index, float(frame) / self.rate_hz,
+                                                       reason))
+
+    def _event_from_ring(self, kind, index, t, reason) -> EngineEvent:
+        cue = self.cues[index] if 0 <= index < len(self.cues) else None
+        cue_id = cue.id if cue else None
+        if kind == EV_START:
+            return self._emit("start", cue_id, self._gain_db(cue), _REASON_TEXT[reason], t)
+        if kind == EV_STOP:
+            detail = _REASON_TEXT.get(reason, "stopped")
+            if reason == R_NEXT_REFUSED and index + 1 < len(self.cues):
+                detail += f": {self.cues[index + 1].refusal()}"
+            return self._emit("stop", cue_id, self._gain_db(cue), detail, t)
+        if kind == EV_UNDERFLOW:
+            self.note = ("buffer underrun: the cue was ramped out -- start the next cue to resume; "
+                         "if it repeats, close other programs or choose another device")
+            return self._emit("device_error", cue_id, None,
+                              "buffer underrun: the device ran out of samples, so the cue was "
+                              "ramped out and the show stopped; start the next cue to resume; if it "
+                              "repeats, close other programs or choose another device", t)
+        return self._emit("device_error", cue_id, None,
+                          "the audio callback failed, the output was silenced; start the next "
+                          "cue to resume, and report this as a bug if it repeats", t)
+
+    def _device_error(self, what: str, fix: str, cue=None, sink=None) -> None:
+        self.fault = f"{what} -- {fix}"
+        event = self._emit("device_error", cue.id if cue else None, None, self.fault)
+        if sink is not None:
+            sink.append(event)
+
+    def _emit(self, kind, cue_id, gain_db, detail, t=None) -> EngineEvent:
+        self._write(kind, cue_id, gain_db, detail)
+        return EngineEvent(kind, cue_id, t, detail)
+
+    def _write(self, kind, cue_id, gain_db, detail) -> None:
+        if self.log is not None:
+            if kind in ("fade", "fader", "panic", "check"):
+                self._drain_ring()  # keep the log in the order things happened
+            self.log.write(kind, cue_id, gain_db, detail)
+
+    def _gain_db(self, cue) -> float | None:
+        if cue is None:
+            return None
+        fader = self.fader_db
+        return cue.gain_db + fader if math.isfinite(fader) else None
+
+    # ------------------------------------------------------- the audio callback
+    def render_into(self, outdata: np.ndarray, frames: int) -> None:
+        """Fill ``outdata[:frames]`` (shape (frames, channels), float32) with the show.
+
+        Runs in the audio thread: copies samples and applies gains in place, in
+        preallocated buffers; blocks longer than the buffers go in pieces.
+        """
+        done = 0
+        while done < frames:
+            n = min(self._cap, frames - done)
+            self._render_chunk(outdata, done, n)
+            done += n
+
+    def _post(self, kind: int, index: int, reason: int, offset: int = 0) -> None:
+        row = self._ev[self._ev_n % RING]
+        row[0] = kind
+        row[1] = index
+        row[2] = self._frames_total + offset
+        row[3] = reason
+        self._ev_n += 1
+
+    def _underflow(self) -> None:
+        if self._cur >= 0:
+            self._post(EV_UNDERFLOW, self._cur, 0)
+            if self._pending >= 0:
+                self._dropped = self._pending
+            self._pending = -1
+            self._start_fade(self._cut_frames, R_UNDERFLOW)
+
+    def _start_fade(self, total: int, reason: int) -> None:
+        """Fade the current cue to zero at a speed of full scale in ``total`` frames.
+
+        A fade already running keeps its level and only ever speeds up (floor, so
+        the level never rises).
+        """
+        if self._fade_total > 0:
+            left = (self._fade_left * total) // self._fade_total
+            if left < self._fade_left:
+                self._fade_left = left
+                self._fade_total = total
+                self._fade_reason = reason
+        else:
+            self._fade_left = total
+            self._fade_total = total
+            self._fade_reason = reason
+
+    def _start_cue(self, index: int, reason: int, offset: int) -> None:
+        self._cur = index
+        self._pos = 0
+        self._last = index
+        self._dropped = -1
+        self._fade_left = 0
+        self._fade_total = 0
+        self._fade_reason = R_FADED
+        self._state = S_PLAYING
+        self._post(EV_START, index, reason, offset)
+
+    def _stop_cue(self, reason: int, offset: int) -> None:
+        self._post(EV_STOP, self._cur, reason, offset)
+        self._cur = -1
+        self._pos = 0
+        self._fade_left = 0
+        self._fade_total = 0
+        self._state = S_IDLE if not self._panicking else self._state
+
+    def _take_requests(self) -> None:
+        if self._panic_req != self._panic_seen:
+            self._panic_seen = self._panic_req
+            self._armed = False
+            if self._pending >= 0:
+                self._dropped = self._pending
+            self._pending = -1
+            if self._cur >= 0:
+                self._fade_reason = R_PANIC  # a fade or cut running ends as part of the panic
+                if not self._panicking:
+                    self._panicking = True
+                    self._panic_left = self._panic_frames
+            else:
+                self._state = S_PANIC
+        if self._arm_req != self._arm_seen and not self._panicking:
+            self._arm_seen = self._arm_req
+            self._armed = True
+            if self._state == S_PANIC:
+                self._state = S_IDLE
+        if self._go_req != self._go_seen:
+            self._go_seen = self._go_req
+            index = self._go_index
+            if self._armed and not self._panicking and 0 <= index < len(self._samples) \
+                    and self._playable[index]:
+                if self._cur < 0:
+                    self._start_cue(index, R_OPERATOR, 0)
+                else:
+                    self._pending = index
+                    self._start_fade(self._cut_frames, R_CUT)
+        if self._fade_req != self._fade_seen:
+            self._fade_seen = self._fade_req
+            if self._cur >= 0 and not self._panicking:
+                self._start_fade(self._fade_frames_req, R_FADED)
+        if self._cut_req != self._cut_seen:
+            self._cut_seen = self._cut_req
+            if self._cur >= 0:
+                self._pending = -1
+                self._start_fade(self._cut_frames, R_CUT)
+
+    def _ramp(self, left: int, total: int, n: int, out: np.ndarray) -> None:
+        """``out[j] = max(0, left - (j + 1)) / total`` for j < n: exactly 0 from j = left - 1."""
+        np.subtract(float(left), self._steps[:n], out=out)
+        np.maximum(out, 0.0, out=out)
+        np.multiply(out, 1.0 / total, out=out)
+
+    def _render_chunk(self, outdata: np.ndarray, off: int, n: int) -> None:
+        was_silent = self._cur < 0
+        self._take_requests()
+        gain = self._gain[:n]
+        buf = self._buf[:n]
+        tmp = self._tmp[:n]
+        # Operator fader, ramped toward its target; snapped when nothing was playing.
+        target = min(1.0, max(0.0, float(self._fader_target)))
+        if was_silent or self._fader_g == target:
+            self._fader_g = target
+            gain.fill(target)
+        else:
+            up = target > self._fader_g
+            np.multiply(self._steps[:n], self._fader_step if up else -self._fader_step, out=gain)
+            np.add(gain, self._fader_g, out=gain)
+            (np.minimum if up else np.maximum)(gain, target, out=gain)
+            self._fader_g = float(gain[n - 1])
+        # Panic ramp, across the whole chunk.
+        panic_zero = n
+        if self._panicking:
+            self._ramp(self._panic_left, self._panic_frames, n, tmp)
+            np.multiply(gain, tmp, out=gain)
+            if self._panic_left <= n:
+                panic_zero = max(0, self._panic_left - 1)
+            self._panic_left = max(0, self._panic_left - n)
+        np.clip(gain, 0.0, 1.0, out=gain)
+        # Sources: cue samples, crossing cue boundaries within the chunk.
+        filled = 0
+        while filled < n:
+            cur = self._cur
+            if cur < 0:
+                buf[filled:].fill(0.0)
+                break
+            pos = self._pos
+            m = min(n - filled, self._len[cur] - pos)
+            fading = self._fade_total > 0
+            if fading:
+                m = min(m, self._fade_left)
+            if m > 0:
+                seg = buf[filled:filled + m]
+                np.copyto(seg, self._samples[cur][pos:pos + m])
+                if fading:
+                    env = self._env[:m]
+                    self._ramp(self._fade_left, self._fade_total, m, env)
+                    np.multiply(seg, env, out=seg)
+                    self._fade_left -= m
+            filled += m
+            self._pos = pos + m
+            if fading and self._fade_left <= 0:
+                pending = self._pending
+                self._pending = -1
+                self._stop_cue(self._fade_reason, filled)
+                if pending >= 0 and self._playable[pending] and self._armed and not self._panicking:
+                    self._start_cue(pending, R_OPERATOR, filled)
+                continue
+            if self._pos >= self._len[cur]:
+                pending = self._pending
+                self._pending = -1
+                nxt = cur + 1
+                if pending >= 0:
+                    self._stop_cue(R_END, filled)
+                    if self._playable[pending] and self._armed and not self._panicking:
+                        self._start_cue(pending, R_OPERATOR, filled)
+                elif self._follow[cur] and nxt < len(self._samples):
+                    if self._playable[nxt]:
+                        self._post(EV_STOP, cur, R_END, filled)
+                        self._start_cue(nxt, R_FOLLOW, filled)
+                    else:
+                        self._stop_cue(R_NEXT_REFUSED, filled)
+                else:
+                    self._stop_cue(R_LAST if nxt >= len(self._samples) else R_END, filled)
+        np.multiply(buf, gain, out=buf)
+        if panic_zero < n:
+            buf[panic_zero:].fill(0.0)
+        if self._panicking and self._panic_left <= 0:
+            if self._cur >= 0:
+                self._stop_cue(R_PANIC, panic_zero)
+            self._panicking = False
+            self._pending = -1
+            self._state = S_PANIC
+        outdata[off:off + n, 0] = buf
+        if outdata.shape[1] > 1:
+            outdata[off:off + n, 1:] = buf[:, None]
+        self._frames_total += n
+
+
+def _show_rate(cues) -> int:
+    """The rate the show runs at: the most common among the playable cues (the higher on a tie)."""
+    rates = Counter(c.rate_hz for c in cues if c.playable and c.frames) or Counter(c.rate_hz for c in cues)
+    return max(rates, key=lambda r: (rates[r], r))
+
+
+def _fmt_db(value: float) -> str:
+    return "silent (-inf dB)" if value == -math.inf else f"{value:+.1f} dB"
