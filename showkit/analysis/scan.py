@@ -1,0 +1,266 @@
+"""Scan tracks: passages, mode hits, readability scores and a transposition.
+
+:func:`scan_track` analyses one file for a rig (decode and resample once to
+the hole filters' rate; features, pressure envelope, passages, scores,
+transposition) and returns a JSON-ready dict.  :func:`scan_paths` scans files
+and folders (recursively), from the cache where it can and in worker
+processes otherwise; a file that cannot be analysed gets its ``error`` and
+the scan goes on.
+"""
+
+from __future__ import annotations
+
+import os
+from concurrent.futures import ProcessPoolExecutor, as_completed
+from functools import lru_cache
+from pathlib import Path
+from typing import Callable
+
+import numpy as np
+
+from showkit.analysis import scancache
+from showkit.analysis.audio import audio_info, content_hash, read_blocks
+from showkit.analysis.features import track_features
+from showkit.analysis.pitches import ModeTable
+from showkit.analysis.pressure import hole_filters
+from showkit.analysis.score import (APPROXIMATION, frame_scores, mode_shares, passage_level,
+                                    passage_score, track_score)
+from showkit.analysis.segments import passages as find_passages
+from showkit.analysis.transpose import best_shift, shifted_scores
+from showkit.errors import ShowkitError
+from showkit.physics.flames import FRAME_RATE_HZ
+from showkit.physics.response import simulate
+from showkit.rigfile import Rig
+
+#: File name endings a folder scan picks up (what libsndfile reads, and common others).
+AUDIO_SUFFIXES = {".wav", ".wave", ".flac", ".ogg", ".oga", ".opus", ".mp3", ".aif", ".aiff",
+                  ".aifc", ".au", ".snd", ".caf", ".w64", ".rf64", ".mat", ".voc", ".sd2"}
+
+
+@lru_cache(maxsize=8)
+def _table(acoustic: str, rig: Rig) -> ModeTable:
+    from showkit.physics.modes import find_modes
+
+    return ModeTable.from_modes(find_modes(rig.model))
+
+
+def mode_table(rig: Rig) -> ModeTable:
+    """The rig's modes as a :class:`ModeTable`, found once per process."""
+    return _table(rig.acoustic_hash(), rig)
+
+
+def _decode(path: Path, rate_hz: int, native_rate_hz: int) -> tuple[np.ndarray, np.ndarray]:
+    """Mono samples at ``rate_hz`` and the digital peak of every flame frame at the file's rate."""
+    frame = max(1, int(round(native_rate_hz / FRAME_RATE_HZ)))
+    peaks: list[np.ndarray] = []
+    carry = [np.zeros(0)]
+
+    def on_native(block):
+        data = np.abs(np.concatenate([carry[0], block])) if carry[0].size else np.abs(block)
+        whole = data.size // frame
+        if whole:
+            peaks.append(data[:whole * frame].reshape(whole, frame).max(axis=1))
+        carry[0] = data[whole * frame:]
+
+    blocks = [b.astype(np.float32) for b in read_blocks(path, rate_hz, on_native=on_native)]
+    if carry[0].size:
+        peaks.append(np.array([carry[0].max()]))
+    x = np.concatenate(blocks) if blocks else np.zeros(0, np.float32)
+    return x, (np.concatenate(peaks) if peaks else np.zeros(0))
+
+
+def _note(table: ModeTable, n: int) -> str:
+    return table.notes[table.index_of(n)]
+
+
+def scan_track(rig: Rig, path: str | Path, threads: int | None = None) -> dict:
+    """Analyse one track for ``rig`` (no cache).  Raises :class:`ShowkitError` for bad audio.
+
+    ``threads`` is passed to the pressure simulation (default: all cores; the
+    worker processes of a folder scan use one each).
+
+    Returns
+    -------
+    dict
+        ``path``, ``duration_s``, ``score``, ``transpose_semitones``,
+        ``transpose_score``, ``error`` (None), ``passages`` (each with
+        ``start_s``, ``end_s``, ``score``, ``modes``, ``mode_shares``,
+        ``ceiling_db``, ``limited_by``, ``contrast``), ``beats`` (count) and
+        ``note`` (the scoring approximation).
+    """
+    path = Path(path)
+    info = audio_info(path)
+    filters = hole_filters(rig)
+    table = mode_table(rig)
+    x, native_peaks = _decode(path, filters.rate_hz, info.rate_hz)
+    hop = filters.frame_samples
+    features = track_features(x, filters.rate_hz, hop, filters.band_hz)
+    envelope = simulate(filters, x, workers=threads).envelope
+    lag = int(round(filters.delay / hop))  # the responses are delayed by `delay` samples
+    envelope = envelope[lag:]
+    duration = info.duration_s
+    spans_s, beats = find_passages(features, duration)
+    fs = frame_scores(features, table)
+    fr = features.frame_rate_hz
+    spans, factors, scores, lengths, out = [], [], [], [], []
+    for start, end in spans_s:
+        first = int(round(start * fr))
+        last = min(features.frames, max(first + 1, int(round(end * fr))))
+        env = envelope[first:max(last, first + 1)]
+        peak = float(native_peaks[first:last].max()) if native_peaks[first:last].size else 0.0
+        level = passage_level(env, peak, rig.static_pa, rig.reserve)
+        score = passage_score(fs, level.factor, first, last)
+        shares = mode_shares(fs, table, first, last)
+        spans.append((first, last))
+        factors.append(level.factor)
+        scores.append(score)
+        lengths.append(end - start)
+        out.append({"start_s": round(start, 3), "end_s": round(end, 3), "score": round(score, 1),
+                    "modes": [n for n, _ in shares],
+                    "mode_shares": [{"n": n, "note": _note(table, n), "share": round(s, 3)}
+                                    for n, s in shares],
+                    "ceiling_db": round(level.ceiling.ceiling_db, 2),
+                    "limited_by": level.ceiling.limited_by,
+                    "contrast": round(level.median_contrast, 4)})
+    total = track_score(scores, lengths)
+    by_shift = shifted_scores(features, table, spans, factors, lengths)
+    shift, shifted = best_shift(by_shift)
+    return {"path": str(path), "duration_s": round(duration, 3), "score": round(total, 1),
+            "transpose_semitones": round(shift / 100.0, 2), "transpose_score": round(shifted, 1),
+            "error": None, "passages": out, "beats": int(beats.size), "note": APPROXIMATION}
+
+
+def failed(path: str | Path, message: str) -> dict:
+    """The record of a track that could not be analysed."""
+    return {"path": str(path), "duration_s": None, "score": None, "transpose_semitones": None,
+            "transpose_score": None, "error": message, "passages": [], "cached": False}
+
+
+def _scan_one(rig: Rig, path: str, key: str | None, threads: int | None = None) -> dict:
+    try:
+        result = scan_track(rig, path, threads)
+    except ShowkitError as exc:
+        return failed(path, exc.line())
+    except MemoryError:
+        return failed(path, "out of memory while analysing this file")
+    except Exception as exc:  # a file must never stop the scan; say what happened
+        return failed(path, f"analysis failed ({exc.__class__.__name__}: {' '.join(str(exc).split())[:160]})")
+    if key is not None:
+        scancache.save(key, result)
+    result["cached"] = False
+    return result
+
+
+_WORKER_RIG: Rig | None = None
+
+
+def _init_worker(rig: Rig) -> None:
+    global _WORKER_RIG
+    _WORKER_RIG = rig
+
+
+def _scan_in_worker(path: str, key: str | None) -> dict:
+    return _scan_one(_WORKER_RIG, path, key, 1)
+
+
+def expand_paths(paths) -> list[Path]:
+    """Files named, and audio files found in folders named (recursively, sorted, hidden ones skipped)."""
+    found: list[Path] = []
+    for p in map(Path, paths):
+        if p.is_dir():
+            for root, dirs, files in os.walk(p):
+                dirs[:] = sorted(d for d in dirs if not d.startswith(".")
+                                 and Path(d).suffix.lower() not in AUDIO_SUFFIXES)
+                named = [d for d in os.listdir(root) if Path(d).suffix.lower() in AUDIO_SUFFIXES
+                         and os.path.isdir(os.path.join(root, d)) and not d.startswith(".")]
+                for f in sorted(files + named):
+                    if not f.startswith(".") and Path(f).suffix.lower() in AUDIO_SUFFIXES:
+                        found.append(Path(root) / f)
+        else:
+            found.append(p)
+    return found
+
+
+def sort_tracks(tracks: list[dict]) -> list[dict]:
+    """Best score first; tracks with errors last."""
+    return sorted(tracks, key=lambda t: (t["error"] is not None, -(t["score"] or 0.0), t["path"]))
+
+
+def default_jobs() -> int:
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except AttributeError:
+        return max(1, os.cpu_count() or 1)
+
+
+def scan_paths(rig: Rig, paths, jobs: int | None = None, use_cache: bool = True,
+               progress: Callable[[int, int, str], None] | None = None) -> list[dict]:
+    """Scan files and folders; returns one dict per track, best first.
+
+    Parameters
+    ----------
+    rig : Rig
+    paths : iterable of path
+        Files and folders (folders are searched recursively for audio files).
+    jobs : int, optional
+        Worker processes (default: all cores).
+    use_cache : bool
+        Read and write the scan cache.
+    progress : callable, optional
+        ``progress(done, total, path)`` after each track.
+    """
+    files = expand_paths(paths)
+    total = len(files)
+    results: list[dict] = []
+    todo: list[tuple[str, str | None]] = []
+    done = 0
+    for f in files:
+        key = None
+        if use_cache:
+            try:
+                key = scancache.cache_key(content_hash(f), rig)
+            except (ShowkitError, OSError, IsADirectoryError):
+                key = None
+            hit = scancache.load(key) if key else None
+            if hit is not None:
+                hit = dict(hit, path=str(f), cached=True)
+                results.append(hit)
+                done += 1
+                if progress:
+                    progress(done, total, str(f))
+                continue
+        todo.append((str(f), key))
+    jobs = default_jobs() if jobs is None else max(1, int(jobs))
+    if todo:
+        try:  # designed once here, so that forked workers inherit them
+            hole_filters(rig)
+            mode_table(rig)
+        except ShowkitError:
+            pass
+    if len(todo) <= 1 or jobs == 1:
+        threads = 1 if jobs == 1 else None  # --jobs 1: one core
+        for f, key in todo:
+            results.append(_scan_one(rig, f, key, threads))
+            done += 1
+            if progress:
+                progress(done, total, f)
+    else:
+        with ProcessPoolExecutor(max_workers=min(jobs, len(todo)), initializer=_init_worker,
+                                 initargs=(rig,)) as pool:
+            futures = {pool.submit(_scan_in_worker, f, key): f for f, key in todo}
+            for fut in as_completed(futures):
+                f = futures[fut]
+                try:
+                    results.append(fut.result())
+                except Exception as exc:  # a worker that died
+                    results.append(failed(f, f"analysis failed ({exc.__class__.__name__})"))
+                done += 1
+                if progress:
+                    progress(done, total, f)
+    return sort_tracks(results)
+
+
+def best_passage(track: dict) -> dict | None:
+    """The passage with the highest score (first one on ties), or None."""
+    ps = track.get("passages") or []
+    return max(ps, key=lambda p: p["score"]) if ps else None

@@ -1,0 +1,184 @@
+"""Passages from the music's own structure, boundaries on beats where there are beats.
+
+Novelty-based segmentation (J. Foote, "Automatic audio segmentation using a
+measure of audio novelty", ICME 2000): the frames' features (log band
+energies, sustained share, onset strength; standardised) are pooled into
+blocks of about a quarter second, a cosine self-similarity matrix is formed,
+and a Gaussian-tapered checkerboard kernel slid along its diagonal gives a
+novelty curve whose peaks are the places where the music changes character.
+Peaks at least :data:`MIN_PASSAGE_S` apart and above :data:`NOVELTY_FLOOR`
+become boundaries; passages longer than :data:`MAX_PASSAGE_S` are cut evenly.
+
+Beats: the tempo is the strongest lag of the onset strength's autocorrelation
+between 60 and 180 beats per minute and the beat phase the offset whose comb
+collects the most onset strength (a fixed-tempo form of the comb methods of
+E. D. Scheirer, JASA 103(1), 588-601, 1998).  When that lag stands out (a
+track with beats), beats are kept where there is onset strength near them,
+and each boundary moves to the nearest beat within :data:`SNAP_S`.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from showkit.analysis.features import TrackFeatures
+
+#: Shortest passage, s (project's choice: long enough for a pattern to be seen).
+MIN_PASSAGE_S = 6.0
+#: Longest passage, s; longer ones are cut evenly.
+MAX_PASSAGE_S = 30.0
+#: Feature blocks per second for the self-similarity matrix.
+BLOCK_RATE_HZ = 4.0
+#: Half-width of the checkerboard kernel, s.
+KERNEL_HALF_S = 3.0
+#: Novelty peaks below this (0 to 1, normalised by the kernel's weight) are ignored.
+NOVELTY_FLOOR = 0.15
+#: A boundary moves to a beat no farther than this, s.
+SNAP_S = 0.3
+#: Tempo range searched, beats per minute.
+TEMPO_RANGE_BPM = (60.0, 180.0)
+#: A beat is kept where the onset strength within 2 frames reaches this fraction of its 95th percentile.
+BEAT_PRESENCE = 0.2
+#: Normalised autocorrelation at the beat lag needed to say the track has beats.
+BEAT_STRENGTH = 0.3
+
+
+def block_features(features: TrackFeatures) -> tuple[np.ndarray, int]:
+    """Standardised features pooled in blocks; returns ``(blocks, frames_per_block)``."""
+    per = max(1, int(round(features.frame_rate_hz / BLOCK_RATE_HZ)))
+    onset = np.log1p(100.0 * features.onset)[:, None]
+    data = np.hstack([features.bands, features.harmonic_share[:, None] * 4.0, onset]).astype(float)
+    count = data.shape[0] // per
+    if count == 0:
+        return np.zeros((0, data.shape[1])), per
+    blocks = data[:count * per].reshape(count, per, -1).mean(axis=1)
+    std = blocks.std(axis=0)
+    blocks = np.where(std > 1e-6, (blocks - blocks.mean(axis=0)) / np.where(std > 1e-6, std, 1.0), 0.0)
+    return blocks, per
+
+
+def self_similarity(blocks: np.ndarray) -> np.ndarray:
+    """Cosine similarity of every pair of feature blocks (-1 to 1; 0 for empty blocks)."""
+    norm = np.linalg.norm(blocks, axis=1)
+    unit = blocks / np.where(norm > 0, norm, 1.0)[:, None]
+    return unit @ unit.T
+
+
+def checkerboard(half: int) -> np.ndarray:
+    """Gaussian-tapered checkerboard kernel of size ``2 half`` (Foote 2000), sum of |K| = 1."""
+    x = np.arange(-half, half) + 0.5
+    taper = np.exp(-0.5 * (x / (0.5 * half)) ** 2)
+    kernel = np.sign(x)[:, None] * np.sign(x)[None, :] * taper[:, None] * taper[None, :]
+    return kernel / np.abs(kernel).sum()
+
+
+def novelty(similarity: np.ndarray, half: int) -> np.ndarray:
+    """Foote novelty at every block boundary: the checkerboard correlated along the diagonal.
+
+    ``novelty[t]`` measures the change between the blocks before ``t`` and
+    those from ``t`` on (0 to 1 for cosine similarities; negative values are
+    clipped).
+    """
+    n = similarity.shape[0]
+    if n == 0:
+        return np.zeros(0)
+    kernel = checkerboard(half)
+    padded = np.zeros((n + 2 * half, n + 2 * half))
+    padded[half:half + n, half:half + n] = similarity
+    t = np.arange(n)
+    out = np.zeros(n)
+    for i in range(2 * half):
+        rows = padded[t + i]  # (n, n + 2 half)
+        cols = t[:, None] + np.arange(2 * half)[None, :]
+        out += np.einsum("tj,j->t", np.take_along_axis(rows, cols, axis=1), kernel[i])
+    return np.maximum(out, 0.0) / 2.0
+
+
+def pick_peaks(curve: np.ndarray, spacing: int, floor: float) -> np.ndarray:
+    """Local maxima of ``curve`` above ``floor``, at least ``spacing`` apart (highest first kept)."""
+    if curve.size < 3:
+        return np.zeros(0, dtype=int)
+    cand = np.nonzero((curve[1:-1] >= curve[:-2]) & (curve[1:-1] > curve[2:]) & (curve[1:-1] > floor))[0] + 1
+    chosen: list[int] = []
+    for i in cand[np.argsort(-curve[cand])]:
+        if all(abs(i - j) >= spacing for j in chosen):
+            chosen.append(int(i))
+    return np.array(sorted(chosen), dtype=int)
+
+
+def beat_times(onset: np.ndarray, frame_rate_hz: float) -> np.ndarray:
+    """Beat times (s) of a steady beat in the onset strength, or an empty array when there is none."""
+    x = np.asarray(onset, dtype=float)
+    x = x - x.mean() if x.size else x
+    lo = int(round(frame_rate_hz * 60.0 / TEMPO_RANGE_BPM[1]))
+    hi = int(round(frame_rate_hz * 60.0 / TEMPO_RANGE_BPM[0]))
+    if x.size < 4 * hi or not np.any(x):
+        return np.zeros(0)
+    n = 1 << int(np.ceil(np.log2(2 * x.size)))
+    spec = np.fft.rfft(x, n)
+    ac = np.fft.irfft(spec * np.conj(spec), n)[:hi + 1]
+    if ac[0] <= 0:
+        return np.zeros(0)
+    ac = ac / ac[0] * x.size / (x.size - np.arange(hi + 1))  # unbiased
+    lag = lo + int(np.argmax(ac[lo:hi + 1]))
+    if ac[lag] < BEAT_STRENGTH:
+        return np.zeros(0)
+    count = x.size // lag
+    comb = x[:count * lag].reshape(count, lag).sum(axis=0)
+    phase = int(np.argmax(comb))
+    beats = phase + lag * np.arange((x.size - phase + lag - 1) // lag)
+    # keep the beats where there is onset strength near them (a track may have beats in parts only)
+    raw = np.asarray(onset, dtype=float)
+    near = np.max(np.stack([raw[np.clip(beats + d, 0, raw.size - 1)] for d in range(-2, 3)]), axis=0)
+    beats = beats[near >= BEAT_PRESENCE * np.percentile(raw, 95)]
+    return beats / frame_rate_hz
+
+
+def _snap(times: np.ndarray, beats: np.ndarray) -> np.ndarray:
+    if beats.size == 0 or times.size == 0:
+        return times
+    j = np.clip(np.searchsorted(beats, times), 1, max(1, beats.size - 1))
+    near = np.where(np.abs(beats[j - 1] - times) < np.abs(beats[np.minimum(j, beats.size - 1)] - times),
+                    beats[j - 1], beats[np.minimum(j, beats.size - 1)])
+    return np.where(np.abs(near - times) <= SNAP_S, near, times)
+
+
+def _limit(edges: list[float], strength: dict, duration_s: float) -> list[float]:
+    """Merge passages shorter than the minimum (drop the weaker edge), cut long ones evenly."""
+    edges = sorted(set(edges))
+    while len(edges) > 2:
+        lengths = np.diff(edges)
+        k = int(np.argmin(lengths))
+        if lengths[k] >= MIN_PASSAGE_S:
+            break
+        # drop the inner edge of the short passage with the smaller novelty
+        inner = [i for i in (k, k + 1) if 0 < i < len(edges) - 1]
+        drop = min(inner, key=lambda i: strength.get(edges[i], 0.0))
+        edges.pop(drop)
+    out = [edges[0]]
+    for a, b in zip(edges[:-1], edges[1:]):
+        parts = int(np.ceil((b - a) / MAX_PASSAGE_S - 1e-9))
+        out += list(np.linspace(a, b, parts + 1)[1:]) if parts > 1 else [b]
+    return [float(e) for e in out]
+
+
+def passages(features: TrackFeatures, duration_s: float) -> tuple[list[tuple[float, float]], np.ndarray]:
+    """Passages ``[(start_s, end_s), ...]`` covering the track, and the beat times found.
+
+    Parameters
+    ----------
+    features : TrackFeatures
+    duration_s : float
+        Length of the track, s.
+    """
+    beats = beat_times(features.onset, features.frame_rate_hz)
+    blocks, per = block_features(features)
+    block_s = per / features.frame_rate_hz
+    half = max(2, int(round(KERNEL_HALF_S / block_s)))
+    curve = novelty(self_similarity(blocks), half) if blocks.shape[0] else np.zeros(0)
+    peaks = pick_peaks(curve, max(1, int(round(MIN_PASSAGE_S / block_s))), NOVELTY_FLOOR)
+    times = _snap(peaks * block_s, beats)
+    inner = [float(t) for t in times if MIN_PASSAGE_S * 0.5 <= t <= duration_s - MIN_PASSAGE_S * 0.5]
+    strength = {float(t): float(curve[p]) for t, p in zip(times, peaks)}
+    edges = _limit([0.0] + inner + [float(duration_s)], strength, float(duration_s))
+    return list(zip(edges[:-1], edges[1:])), beats

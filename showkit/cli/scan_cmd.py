@@ -1,0 +1,180 @@
+"""Rank tracks and their passages by how well they read in the flames of this tube.
+
+Each track is cut into passages where the music changes character; each
+passage gets a 0-100 readability score (sustained energy on modes whose
+pattern the holes resolve, held long enough, at the flame contrast the safe
+ceiling allows), the modes it hits (mode number, note, share of the time),
+its ceiling and the contrast at it.  A transposition within +-3 semitones that
+would lay the track better on the modes is suggested with the score it would
+reach.  Folders are searched recursively; results are cached; a file that
+cannot be read is reported in its row and the scan goes on.
+
+Exit status 0 if any file was scanned, 2 if none could be.
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+
+from showkit.cli.common import (add_conditions_options, add_json_option, add_rig_option,
+                                level_caution, print_json, table)
+
+
+def add_arguments(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("paths", nargs="+", metavar="PATH",
+                        help="audio files or folders (searched recursively)")
+    add_rig_option(parser)
+    add_conditions_options(parser)
+    add_json_option(parser)
+    parser.add_argument("--csv", metavar="FILE", help="also write one row per passage to a CSV file")
+    parser.add_argument("--jobs", metavar="N", type=int,
+                        help="worker processes (default: all cores)")
+    parser.add_argument("--transpose", metavar="N", type=float,
+                        help="write a preview WAV of each track's best passage shifted by N "
+                             "semitones (-3 to 3) into the current folder")
+    parser.add_argument("--no-cache", action="store_true", help="analyse again, do not read or write the cache")
+
+
+class _Bar:
+    """A plain text progress bar on stderr (only when stderr is a terminal or forced)."""
+
+    def __init__(self, stream=None, width: int = 30):
+        self.stream = stream or sys.stderr
+        self.width = width
+        self.shown = False
+
+    def __call__(self, done: int, total: int, path: str) -> None:
+        if total <= 1:
+            return
+        fill = int(round(self.width * done / total))
+        name = path if len(path) <= 40 else "..." + path[-37:]
+        self.stream.write(f"\rscanning [{'#' * fill}{'.' * (self.width - fill)}] {done}/{total} {name:<40}")
+        self.stream.flush()
+        self.shown = True
+
+    def close(self) -> None:
+        if self.shown:
+            self.stream.write("\n")
+            self.stream.flush()
+
+
+def _shift_text(semitones) -> str:
+    if semitones is None:
+        return "-"
+    if semitones == 0:
+        return "none"
+    whole = int(semitones)
+    cents = round((semitones - whole) * 100)
+    parts = [f"{whole:+d} st"] if whole else []
+    if cents:
+        parts.append(f"{cents:+d} c")
+    return " ".join(parts)
+
+
+def _fmt(x: float) -> str:
+    from showkit.units import format_time
+
+    return format_time(x)
+
+
+def _modes_text(p: dict) -> str:
+    shares = p.get("mode_shares") or [{"n": n, "note": "", "share": 0.0} for n in p["modes"]]
+    return ", ".join(f"n{s['n']} {s['note']} {100 * s['share']:.0f}%" for s in shares[:4]) or "none"
+
+
+def _print_table(tracks: list[dict]) -> None:
+    rows = []
+    for rank, t in enumerate(tracks, 1):
+        if t["error"]:
+            rows.append([str(rank), t["path"], "-", "-", "ERROR: " + t["error"]])
+            continue
+        shift = _shift_text(t["transpose_semitones"])
+        if t["transpose_semitones"]:
+            shift += f" -> {t['transpose_score']:.0f}"
+        rows.append([str(rank), t["path"], f"{t['score']:.0f}", _fmt(t["duration_s"]), shift])
+    print(table(rows, ["#", "track", "score", "length", "transpose"], "><>><"))
+    for t in tracks:
+        if t["error"] or not t["passages"]:
+            continue
+        print()
+        print(f"{t['path']}  (score {t['score']:.0f}{', cached' if t.get('cached') else ''})")
+        prow = [[f"{_fmt(p['start_s'])}-{_fmt(p['end_s'])}", f"{p['score']:.0f}", _modes_text(p),
+                 f"{p['ceiling_db']:+.1f}", f"{100 * p['contrast']:.1f}"] for p in t["passages"]]
+        print(table(prow, ["passage", "score", "modes hit (time share)", "ceiling dB", "contrast %"],
+                    "<><>>"))
+
+
+def _write_csv(path: str, tracks: list[dict]) -> None:
+    import csv
+
+    from showkit.errors import InputError
+
+    try:
+        with open(path, "w", newline="", encoding="utf-8") as f:
+            w = csv.writer(f)
+            w.writerow(["path", "track_score", "transpose_semitones", "transpose_score", "error",
+                        "start_s", "end_s", "passage_score", "modes", "ceiling_db", "contrast"])
+            for t in tracks:
+                base = [t["path"], t["score"], t["transpose_semitones"], t["transpose_score"], t["error"] or ""]
+                if not t["passages"]:
+                    w.writerow(base + [""] * 6)
+                for p in t["passages"]:
+                    w.writerow(base + [p["start_s"], p["end_s"], p["score"],
+                                       " ".join(str(n) for n in p["modes"]), p["ceiling_db"], p["contrast"]])
+    except OSError as exc:
+        raise InputError(f"cannot write the CSV file ({exc.strerror})", path, "check the folder and its permissions") from None
+
+
+def _previews(tracks: list[dict], semitones: float) -> None:
+    from pathlib import Path
+
+    from showkit.analysis.scan import best_passage
+    from showkit.analysis.transpose import render_preview
+    from showkit.errors import ShowkitError
+
+    for t in tracks:
+        p = best_passage(t) if not t["error"] else None
+        if p is None:
+            continue
+        out = Path.cwd() / f"{Path(t['path']).stem}_shift{semitones:+.2f}st_{p['start_s']:.0f}-{p['end_s']:.0f}s.wav"
+        try:
+            render_preview(t["path"], p["start_s"], p["end_s"], semitones, out)
+            print(f"preview: {out}", file=sys.stderr)
+        except ShowkitError as exc:
+            print(f"showkit: preview of {t['path']} skipped: {exc.line()}", file=sys.stderr)
+
+
+def run(args) -> int:
+    from showkit.analysis.scan import scan_paths
+    from showkit.cli.common import load_rig_from_args
+    from showkit.errors import InputError
+
+    if args.jobs is not None and args.jobs < 1:
+        raise InputError(f"--jobs must be 1 or more (got {args.jobs})", "--jobs", "give a number of workers, e.g. --jobs 2")
+    if args.transpose is not None and not -3.0 <= args.transpose <= 3.0:
+        raise InputError(f"--transpose must be within -3 and 3 semitones (got {args.transpose:g})",
+                         "--transpose", "give a shift such as --transpose -2 or --transpose 0.5")
+    rig = load_rig_from_args(args)
+    bar = _Bar()
+    try:
+        tracks = scan_paths(rig, args.paths, jobs=args.jobs, use_cache=not args.no_cache, progress=bar)
+    finally:
+        bar.close()
+    if not tracks:
+        raise InputError("no audio files found", " ".join(args.paths),
+                         "give audio files, or folders holding .wav, .flac, .ogg, .mp3 files")
+    level_caution()
+    if args.json:
+        print_json({"rig": rig.name, "static_pressure_pa": rig.static_pa, "reserve": rig.reserve,
+                    "tracks": tracks})
+    else:
+        _print_table(tracks)
+        print(f"\nOn {rig.name}, static {rig.static_pa:g} Pa, reserve {rig.reserve:g}; "
+              "ceilings in dB applied to the file as recorded; scores use the steady-sine flame "
+              "heights on the per-frame pressure envelope.")
+    if args.csv:
+        _write_csv(args.csv, tracks)
+    if args.transpose is not None:
+        _previews(tracks, args.transpose)
+    return 0 if any(t["error"] is None for t in tracks) else 2

@@ -1,0 +1,1 @@
+"""The demo audio: short original pieces synthesized by showkit's own code."""

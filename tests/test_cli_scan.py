@@ -1,0 +1,122 @@
+"""`showkit scan`: table, JSON contract, CSV, bad files in a folder, exit status."""
+
+from __future__ import annotations
+
+import csv
+import json
+import os
+
+import numpy as np
+import pytest
+import soundfile as sf
+
+from showkit.cli.main import main
+from showkit.demo import synth
+
+
+@pytest.fixture(autouse=True)
+def cache(tmp_path, monkeypatch):
+    monkeypatch.setenv("SHOWKIT_CACHE_DIR", str(tmp_path / "cache"))
+
+
+@pytest.fixture
+def folder(tmp_path):
+    d = tmp_path / "music"
+    (d / "sub").mkdir(parents=True)
+    sf.write(str(d / "good.flac"), synth.notes_track([(0.0, 5.0, synth.DEMO_MODE_HZ[3], 0.4)], 5.0),
+             synth.RATE_HZ)
+    sf.write(str(d / "sub" / "hits.wav"), synth.drum_pattern(5.0), synth.RATE_HZ)
+    return d
+
+
+def add_bad_files(d):
+    good = (d / "good.flac").read_bytes()
+    (d / "corrupt.flac").write_bytes(good[:4000])  # truncated in the middle of the stream
+    (d / "empty.wav").write_bytes(b"")
+    (d / "notes.mp3").write_text("not audio at all\n")
+    os.symlink(d / "missing.wav", d / "gone.wav")  # unreadable: a link to nothing
+    (d / "folder.wav").mkdir()  # a folder with an audio name
+    (d / "cover.jpg").write_bytes(b"\xff\xd8")  # not audio by name: skipped
+
+
+def run_json(capsys, *args):
+    status = main(["scan", *map(str, args), "--json", "--jobs", "2"])
+    out = capsys.readouterr()
+    return status, json.loads(out.out), out.err
+
+
+def test_json_contract(folder, capsys):
+    status, data, err = run_json(capsys, folder)
+    assert status == 0
+    tracks = data["tracks"]
+    assert [os.path.basename(t["path"]) for t in tracks] == ["good.flac", "hits.wav"]  # by score
+    for t in tracks:
+        assert set(t) >= {"path", "duration_s", "score", "transpose_semitones", "transpose_score",
+                          "error", "passages"}
+        assert t["error"] is None and 0 <= t["score"] <= 100
+        for p in t["passages"]:
+            assert set(p) >= {"start_s", "end_s", "score", "modes", "ceiling_db", "contrast"}
+            assert 0 <= p["start_s"] < p["end_s"] <= t["duration_s"] + 1e-6
+    assert tracks[0]["passages"][0]["modes"][0] == 3
+    assert "CAUTION" in err
+
+
+def test_bad_files_are_reported_and_the_scan_goes_on(folder, capsys):
+    add_bad_files(folder)
+    status, data, err = run_json(capsys, folder)
+    assert status == 0
+    by_name = {os.path.basename(t["path"]): t for t in data["tracks"]}
+    assert "cover.jpg" not in by_name
+    for bad, words in [("corrupt.flac", "decoded"), ("empty.wav", "empty"), ("notes.mp3", "not an audio"),
+                       ("gone.wav", "no such"), ("folder.wav", "folder")]:
+        assert by_name[bad]["error"] and words in by_name[bad]["error"], bad
+        assert by_name[bad]["score"] is None
+    assert by_name["good.flac"]["error"] is None and by_name["sub/hits.wav".split("/")[-1]]["error"] is None
+    assert [t["error"] is None for t in data["tracks"]][:2] == [True, True]  # errors listed last
+    assert "scanning" in err or "CAUTION" in err
+
+
+@pytest.mark.skipif(os.geteuid() == 0, reason="root can read a file whatever its mode")
+def test_unreadable_file(folder, capsys):
+    p = folder / "locked.wav"
+    sf.write(str(p), np.zeros(4410), 44100)
+    p.chmod(0)
+    try:
+        _, data, _ = run_json(capsys, folder)
+    finally:
+        p.chmod(0o644)
+    t = next(t for t in data["tracks"] if t["path"].endswith("locked.wav"))
+    assert "cannot read" in t["error"]
+
+
+def test_exit_2_when_nothing_could_be_read(tmp_path, capsys):
+    (tmp_path / "a.wav").write_text("x")
+    (tmp_path / "b.flac").write_bytes(b"")
+    status = main(["scan", str(tmp_path / "a.wav"), str(tmp_path / "b.flac")])
+    out = capsys.readouterr()
+    assert status == 2
+    assert "ERROR" in out.out and "a.wav" in out.out and "b.flac" in out.out
+
+
+def test_table_and_csv(folder, tmp_path, capsys):
+    target = tmp_path / "out.csv"
+    status = main(["scan", str(folder / "good.flac"), "--csv", str(target)])
+    out = capsys.readouterr().out
+    assert status == 0
+    assert "good.flac" in out and "n3 F#3" in out and "ceiling dB" in out
+    rows = list(csv.DictReader(target.open()))
+    assert rows and rows[0]["modes"].split()[0] == "3"
+
+
+def test_bad_options_are_one_line(folder, capsys):
+    assert main(["scan", str(folder), "--jobs", "0"]) == 2
+    assert main(["scan", str(folder), "--transpose", "5"]) == 2
+    err = capsys.readouterr().err
+    assert "--jobs" in err and "--transpose" in err and "Traceback" not in err
+
+
+def test_transpose_writes_a_preview(folder, tmp_path, capsys, monkeypatch):
+    monkeypatch.chdir(tmp_path)
+    assert main(["scan", str(folder / "good.flac"), "--transpose", "-1"]) == 0
+    made = list(tmp_path.glob("good_shift-1.00st_*.wav"))
+    assert len(made) == 1 and sf.info(str(made[0])).duration > 4.0

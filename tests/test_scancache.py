@@ -1,0 +1,78 @@
+"""The scan cache: a second scan reads it; changing the file or the rig invalidates it."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+import soundfile as sf
+
+from showkit.analysis import scan as scan_mod
+from showkit.analysis import scancache
+from showkit.demo import synth
+from showkit.rigfile import load_rig
+
+
+@pytest.fixture
+def cache(tmp_path, monkeypatch):
+    monkeypatch.setenv("SHOWKIT_CACHE_DIR", str(tmp_path / "cache"))
+    return tmp_path / "cache"
+
+
+@pytest.fixture
+def track(tmp_path):
+    path = tmp_path / "tone.wav"
+    sf.write(str(path), synth.notes_track([(0.0, 4.0, synth.DEMO_MODE_HZ[4], 0.4)], 4.0), synth.RATE_HZ)
+    return path
+
+
+def _fail(*args, **kwargs):
+    raise AssertionError("analysed again instead of read from the cache")
+
+
+def test_second_scan_reads_the_cache(cache, track, monkeypatch):
+    rig = load_rig()
+    first = scan_mod.scan_paths(rig, [track], jobs=1)
+    assert first[0]["cached"] is False and first[0]["error"] is None
+    assert list((cache / "scan").glob("*.json"))
+    monkeypatch.setattr(scan_mod, "scan_track", _fail)
+    second = scan_mod.scan_paths(rig, [track], jobs=1)
+    assert second[0]["cached"] is True
+    assert second[0]["score"] == first[0]["score"] and second[0]["passages"] == first[0]["passages"]
+
+
+def test_changed_content_is_analysed_again(cache, track):
+    rig = load_rig()
+    scan_mod.scan_paths(rig, [track], jobs=1)
+    x, r = sf.read(str(track))
+    sf.write(str(track), np.concatenate([x, np.zeros(100)]), r)  # same name, new content
+    again = scan_mod.scan_paths(rig, [track], jobs=1)
+    assert again[0]["cached"] is False
+
+
+@pytest.mark.parametrize("change", [dict(static_pa=15.0), dict(reserve=0.4), dict(temperature_k=303.15)])
+def test_changed_rig_is_analysed_again(cache, track, change):
+    rig = load_rig()
+    scan_mod.scan_paths(rig, [track], jobs=1)
+    other = rig.with_conditions(**change)
+    assert scancache.cache_key("x", other) != scancache.cache_key("x", rig)
+    assert scan_mod.scan_paths(other, [track], jobs=1)[0]["cached"] is False
+
+
+def test_version_is_part_of_the_key(cache, monkeypatch):
+    import showkit
+
+    rig = load_rig()
+    key = scancache.cache_key("abc", rig)
+    scancache.save(key, {"score": 1.0})
+    assert scancache.load(key) == {"score": 1.0}
+    monkeypatch.setattr(showkit, "ANALYSIS_VERSION", showkit.ANALYSIS_VERSION + 1)
+    assert scancache.cache_key("abc", rig) != key
+    assert scancache.load(key) is None  # a file written by another version is stale
+
+
+def test_broken_cache_file_is_ignored(cache):
+    rig = load_rig()
+    key = scancache.cache_key("abc", rig)
+    (cache / "scan").mkdir(parents=True)
+    (cache / "scan" / f"{key}.json").write_text("{not json")
+    assert scancache.load(key) is None

@@ -1,0 +1,118 @@
+"""The readability score on synthesized material with a known truth."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+import soundfile as sf
+from hypothesis import given, settings, strategies as st
+
+from showkit.analysis import score as sc
+from showkit.analysis.scan import scan_track
+from showkit.demo import synth
+from showkit.physics.flames import row_contrast, sine_flame_height
+from showkit.rigfile import load_rig
+
+RATE = 44100
+
+
+@pytest.fixture(scope="module")
+def rig():
+    return load_rig()
+
+
+def write(tmp_path, name, x):
+    path = tmp_path / f"{name}.wav"
+    sf.write(str(path), x, RATE, subtype="FLOAT")
+    return path
+
+
+def held(freqs, each=2.0, gain=0.4):
+    notes = [(each * k, each, f, gain) for k, f in enumerate(freqs)]
+    return synth.notes_track(notes, each * len(freqs))
+
+
+ON = [synth.DEMO_MODE_HZ[n] for n in (3, 5, 4, 6)]
+OFF = [synth.between(3, 4), synth.between(5, 6), synth.between(4, 5), synth.between(6, 7)]
+
+
+@pytest.fixture(scope="module")
+def scores(rig, tmp_path_factory):
+    d = tmp_path_factory.mktemp("score")
+    rng = np.random.default_rng(3)
+    material = {
+        "on": held(ON),
+        "off": held(OFF),
+        "noise": 0.2 * rng.standard_normal(8 * RATE),
+        "hits": synth.drum_pattern(8.0, seed=5),
+        "silence": np.zeros(8 * RATE),
+    }
+    return {k: scan_track(rig, write(d, k, v)) for k, v in material.items()}
+
+
+def test_on_modes_beats_between_modes_noise_and_hits(scores):
+    on = scores["on"]["score"]
+    assert on > 50
+    for other in ("off", "noise", "hits"):
+        assert on > scores[other]["score"] + 40, other  # "clearly above" (issue 4)
+
+
+def test_silence_scores_zero_without_error(scores):
+    s = scores["silence"]
+    assert s["error"] is None and s["score"] == 0.0
+    assert all(p["score"] == 0.0 and p["modes"] == [] for p in s["passages"])
+
+
+def test_modes_hit_are_the_ones_written(scores):
+    hit = {n for p in scores["on"]["passages"] for n in p["modes"]}
+    assert hit == {3, 4, 5, 6}
+
+
+def test_loud_hits_lower_the_ceiling_and_the_score(rig, tmp_path):
+    # the same held tones with drum hits on top: the hits force the level down
+    tones = held(ON)
+    hits = synth.drum_pattern(8.0, seed=5)
+    plain = scan_track(rig, write(tmp_path, "plain", tones))
+    mixed = scan_track(rig, write(tmp_path, "mixed", 0.5 * tones + 0.9 * hits))
+    assert mixed["score"] < plain["score"] - 15
+    assert min(p["ceiling_db"] for p in mixed["passages"]) < min(p["ceiling_db"] for p in plain["passages"])
+
+
+def test_short_notes_do_not_count_as_held():
+    labels = np.array([1, 1, 1, -1, 2, 2, 2, 2, 2, 3])
+    assert list(sc.run_position(labels)) == [0, 1, 2, 0, 0, 1, 2, 3, 4, 0]
+
+
+def test_reference_contrast_closed_form():
+    # physics.md section 6: <sqrt(1 + r sin t)> at r = 1 is 2 sqrt(2) / pi = 0.90032
+    assert sc.reference_contrast(0.0) == pytest.approx(1 - 0.90032, abs=1e-5)
+    assert sc.reference_contrast(0.5) == pytest.approx(1 - 0.98334, abs=1e-5)  # r = 0.5 -> 0.98334
+
+
+def test_passage_level_puts_the_worst_hole_at_the_safe_line():
+    # a uniform 2 Pa swing at half the holes, 0 at the others; static 20 Pa, reserve 0.25:
+    # ceiling = 20 log10(0.75 * 20 / 2) (physics.md section 7)
+    env = np.zeros((10, 8))
+    env[:, :4] = 2.0
+    lvl = sc.passage_level(env, peak=0.01, static_pa=20.0, reserve=0.25)
+    assert lvl.ceiling.ceiling_db == pytest.approx(20 * np.log10(7.5), abs=1e-9)
+    assert np.allclose(lvl.contrast, 1 - sine_flame_height(0.75))
+    assert np.allclose(lvl.factor, 1.0)
+
+
+def test_track_score_from_best_passages():
+    # best first until half the track is covered: 90 over 10 s of 40 s, then 10 s of the 50 one
+    assert sc.track_score([50.0, 90.0, 0.0], [20.0, 10.0, 10.0]) == pytest.approx(70.0)
+    assert sc.track_score([], []) == 0.0
+
+
+@settings(max_examples=30, deadline=None)
+@given(st.integers(1, 6), st.integers(2, 12), st.floats(0.0, 0.9), st.integers(0, 10_000))
+def test_contrast_from_extremes_equals_the_full_row(frames, holes, reserve, seed):
+    # passage_level evaluates the closed form only at each frame's smallest and largest swing;
+    # the closed form falls monotonically with r, so this must equal the whole row's contrast
+    env = np.random.default_rng(seed).uniform(0.0, 3.0, (frames, holes))
+    lvl = sc.passage_level(env, peak=0.01, static_pa=20.0, reserve=reserve)
+    gain = 10 ** (lvl.ceiling.ceiling_db / 20)
+    full = row_contrast(sine_flame_height(np.clip(gain * env / 20.0, 0.0, 1.0)))
+    assert np.allclose(lvl.contrast, full, atol=1e-12)

@@ -1,0 +1,72 @@
+"""Passages from structure: known section changes found within 1 s; beats; limits."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+import soxr
+
+from showkit.analysis import segments as sg
+from showkit.analysis.features import track_features
+from showkit.demo import synth
+
+RATE = 4800
+
+
+def features_of(x, rate=synth.RATE_HZ):
+    return track_features(soxr.resample(x, rate, RATE), RATE, 160, 2280.0)
+
+
+def sectioned(order, each=9.0):
+    parts = {"pad": lambda: synth.notes_track([(0.0, each, synth.DEMO_MODE_HZ[3], 0.3),
+                                                (0.0, each, synth.DEMO_MODE_HZ[5], 0.3)], each),
+             "hits": lambda: synth.drum_pattern(each, seed=2),
+             "tune": lambda: np.concatenate([synth.fm_tone(f, 0.3) * 0.4 for f in
+                                             [synth.between(4, 5), synth.between(6, 7)] * int(each / 0.6)])}
+    return np.concatenate([parts[p]()[:int(each * synth.RATE_HZ)] for p in order])
+
+
+@pytest.mark.parametrize("order", [("pad", "hits", "tune"), ("hits", "tune", "pad")])
+def test_known_section_changes_within_one_second(order):
+    x = sectioned(order)
+    spans, _ = sg.passages(features_of(x), x.size / synth.RATE_HZ)
+    edges = [a for a, _ in spans[1:]]
+    for truth in (9.0, 18.0):
+        assert min(abs(e - truth) for e in edges) <= 1.0  # issue 4: within 1 s
+    assert spans[0][0] == 0.0 and spans[-1][1] == pytest.approx(27.0)
+
+
+def test_steady_beat_is_found():
+    x = synth.drum_pattern(16.0, beat_s=0.5, seed=4)
+    beats = sg.beat_times(features_of(x).onset, 30.0)
+    period = np.median(np.diff(beats))
+    # the pattern repeats every beat (hat) and every two beats (kick and burst)
+    assert min(abs(period - 0.5), abs(period - 1.0)) < 0.04
+    phase = (beats % 0.5)
+    assert np.all(np.minimum(phase, 0.5 - phase) < 0.05)
+
+
+def test_no_beats_in_held_tones():
+    x = synth.notes_track([(0.0, 12.0, 240.0, 0.4)], 12.0)
+    assert sg.beat_times(features_of(x).onset, 30.0).size == 0
+
+
+def test_limits_on_passage_lengths():
+    # one unchanging 70 s tone: no boundary from novelty, cut into passages of at most 30 s
+    x = synth.notes_track([(0.0, 70.0, synth.DEMO_MODE_HZ[4], 0.4)], 70.0)
+    spans, _ = sg.passages(features_of(x), 70.0)
+    lengths = [b - a for a, b in spans]
+    assert max(lengths) <= sg.MAX_PASSAGE_S + 1e-9
+    assert min(lengths) >= sg.MIN_PASSAGE_S
+    assert spans[0][0] == 0.0 and spans[-1][1] == 70.0
+
+
+def test_checkerboard_sees_a_block_change():
+    # Foote 2000: a similarity matrix of two uniform blocks gives its novelty peak at the change
+    blocks = np.vstack([np.tile([1.0, 0.0], (20, 1)), np.tile([0.0, 1.0], (20, 1))])
+    curve = sg.novelty(sg.self_similarity(blocks), 6)
+    assert int(np.argmax(curve)) == 20
+    # same-side quadrants hold similarity 1, cross quadrants 0; each half of |K| weighs 0.5,
+    # so the kernel gives 0.5 * 1 - 0.5 * 0, halved to the 0-1 scale
+    assert curve[20] == pytest.approx(0.25, abs=0.01)
+    assert curve[10] == pytest.approx(0.0, abs=1e-9)  # inside a uniform block: no change

@@ -1,0 +1,61 @@
+"""Transposition: a piece written a known number of semitones off the modes gets that shift back."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+import soundfile as sf
+
+from showkit.analysis import transpose as tr
+from showkit.analysis.scan import scan_track
+from showkit.demo import synth
+from showkit.rigfile import load_rig
+
+RATE = 44100
+
+
+@pytest.fixture(scope="module")
+def rig():
+    return load_rig()
+
+
+def written_off(semitones, modes=(2, 3, 4, 5, 3), each=1.8):
+    shift = 2 ** (semitones / 12)
+    notes = [(each * k, each, synth.DEMO_MODE_HZ[n] * shift, 0.4) for k, n in enumerate(modes)]
+    return synth.notes_track(notes, each * len(modes))
+
+
+@pytest.mark.parametrize("offset", [2.0, -1.5])
+def test_known_offset_is_undone(rig, tmp_path, offset):
+    path = tmp_path / "off.wav"
+    sf.write(str(path), written_off(offset), RATE, subtype="FLOAT")
+    t = scan_track(rig, path)
+    assert t["transpose_semitones"] == pytest.approx(-offset)
+    assert t["transpose_score"] > t["score"] + 20
+
+
+def test_on_mode_piece_needs_no_shift(rig, tmp_path):
+    path = tmp_path / "on.wav"
+    sf.write(str(path), written_off(0.0), RATE, subtype="FLOAT")
+    t = scan_track(rig, path)
+    assert t["transpose_semitones"] == 0.0 and t["transpose_score"] == t["score"]
+
+
+def test_grid_and_choice():
+    grid = tr.shift_grid()
+    assert grid[0] == 0.0 and grid.min() == -300.0 and grid.max() == 300.0 and grid.size == 25
+    assert tr.best_shift({0.0: 10.0, 100.0: 11.0, -200.0: 30.0}) == (-200.0, 30.0)
+    assert tr.best_shift({0.0: 10.0, 100.0: 11.0}) == (0.0, 10.0)  # a gain under MIN_GAIN is not suggested
+
+
+def test_preview_is_shifted(tmp_path):
+    # librosa.effects.pitch_shift renders the preview: a 200 Hz tone shifted +2 semitones sits at 224.5 Hz
+    path = tmp_path / "t.wav"
+    t = np.arange(3 * RATE) / RATE
+    sf.write(str(path), 0.3 * np.sin(2 * np.pi * 200.0 * t), RATE)
+    out = tr.render_preview(path, 0.5, 2.5, 2.0, tmp_path / "p.wav")
+    y, r = sf.read(str(out))
+    assert r == RATE and abs(y.size / r - 2.0) < 0.01
+    spec = np.abs(np.fft.rfft(y * np.hanning(y.size)))
+    f = np.argmax(spec) * r / y.size
+    assert abs(1200 * np.log2(f / (200.0 * 2 ** (2 / 12)))) < 5.0
