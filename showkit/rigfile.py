@@ -10,7 +10,6 @@ from __future__ import annotations
 import difflib
 import hashlib
 import json
-import tomllib
 from dataclasses import dataclass, field, replace
 from functools import cached_property
 from importlib import resources
@@ -22,6 +21,7 @@ from showkit.physics.drive import DriveCalibration
 from showkit.physics.gas import FUELS, STANDARD_AMBIENT_PA, GasState, gas_state
 from showkit.physics.geometry import TubeGeometry, evenly_spaced
 from showkit.physics.tube import TubeModel, outflow_resistance
+from showkit.tomlfile import parse_toml, read_text
 
 #: Overpressure at which the "outflow" hole resistance is evaluated, Pa.
 NOMINAL_FLOW_PRESSURE_PA = 20.0
@@ -144,26 +144,13 @@ def load_rig(path: str | Path | None = None) -> Rig:
         One line naming the file and field, for every kind of bad input.
     """
     path = demo_rig_path() if path is None else Path(path)
-    try:
-        text = path.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise RigError("no such rig file", str(path),
-                       "check the path, or leave out --rig to use the demo rig") from None
-    except IsADirectoryError:
-        raise RigError("is a folder, not a rig file", str(path), "give the path of a .toml file") from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise RigError(f"cannot read the rig file ({exc.__class__.__name__})", str(path),
-                       "check that it is a readable UTF-8 text file") from None
+    text = read_text(path, "rig file", RigError, "check the path, or leave out --rig to use the demo rig")
     return parse_rig(text, str(path), path)
 
 
 def parse_rig(text: str, where: str = "rig", path: Path | None = None) -> Rig:
     """Check the TOML text of a rig file (see :func:`load_rig`)."""
-    try:
-        data = tomllib.loads(text)
-    except tomllib.TOMLDecodeError as exc:
-        raise RigError(f"TOML syntax error: {exc}", where,
-                       "fix the line shown (quote strings, one key = value per line)") from None
+    data = parse_toml(text, where, RigError)
     try:
         return _build(data, where, path)
     except InputError as exc:

@@ -20,12 +20,12 @@ import difflib
 import math
 import os
 import tempfile
-import tomllib
 from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 from showkit import units
 from showkit.errors import InputError, SheetError
+from showkit.tomlfile import parse_toml, read_text
 
 #: The sheet format this version reads and writes.
 FORMAT_VERSION = 1
@@ -200,15 +200,7 @@ def load_sheet(path: str | Path) -> Sheet:
         One line naming the sheet, the cue id and the field, for every kind of bad input.
     """
     path = Path(path)
-    try:
-        text = path.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise SheetError("no such cue sheet", str(path), "check the path") from None
-    except IsADirectoryError:
-        raise SheetError("is a folder, not a cue sheet", str(path), "give the path of a .toml file") from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise SheetError(f"cannot read the sheet ({exc.__class__.__name__})", str(path),
-                         "check that it is a readable UTF-8 text file") from None
+    text = read_text(path, "cue sheet", SheetError, "check the path")
     sheet = parse_sheet(text, str(path))
     sheet.path = path
     return sheet
@@ -216,11 +208,7 @@ def load_sheet(path: str | Path) -> Sheet:
 
 def parse_sheet(text: str, where: str = "sheet") -> Sheet:
     """Check the TOML text of a cue sheet (see :func:`load_sheet`)."""
-    try:
-        data = tomllib.loads(text)
-    except tomllib.TOMLDecodeError as exc:
-        raise SheetError(f"TOML syntax error: {exc}", where,
-                         "fix the line shown (quote strings, one key = value per line)") from None
+    data = parse_toml(text, where, SheetError)
     try:
         return _sheet_from_data(data, where)
     except InputError as exc:
