@@ -8,8 +8,7 @@ closest to the safe line, and the flame row per frame at that level.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
-from functools import lru_cache
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -19,6 +18,11 @@ from showkit.physics import ceiling as ceil_rule
 from showkit.physics.flames import row_contrast
 from showkit.physics.response import HoleFilters, PressureFrames, design_hole_filters, simulate
 from showkit.rigfile import Rig
+
+
+#: Passages up to this many samples at the analysis rate are kept in memory
+#: between the ceiling pass and the flames pass (float64: 64 MB).
+KEEP_SAMPLES = 1 << 23
 
 
 @dataclass
@@ -101,9 +105,10 @@ class PassageReport:
         }
 
 
-@lru_cache(maxsize=8)
-def _filters(acoustic: str, calibration: str, rig: Rig) -> HoleFilters:
-    return design_hole_filters(rig.model, rig.drive)
+#: Designed filters by (acoustic hash, calibration hash): static pressure and
+#: reserve do not shape the response, so today's manometer reading reuses them.
+_FILTERS: dict[tuple[str, str], HoleFilters] = {}
+_FILTERS_KEPT = 8
 
 
 def hole_filters(rig: Rig) -> HoleFilters:
@@ -111,7 +116,12 @@ def hole_filters(rig: Rig) -> HoleFilters:
     if rig.geometry.hole_count == 0:
         raise AudioError("this rig has no holes: there are no flames to keep alight",
                          rig.name, "add [holes] to the rig file")
-    return _filters(rig.acoustic_hash(), rig.calibration_hash(), rig)
+    key = (rig.acoustic_hash(), rig.calibration_hash())
+    if key not in _FILTERS:
+        if len(_FILTERS) >= _FILTERS_KEPT:
+            _FILTERS.pop(next(iter(_FILTERS)))
+        _FILTERS[key] = design_hole_filters(rig.model, rig.drive)
+    return _FILTERS[key]
 
 
 def _report(rig: Rig, filters: HoleFilters, first: PressureFrames, peak: float, rerun,
@@ -120,7 +130,10 @@ def _report(rig: Rig, filters: HoleFilters, first: PressureFrames, peak: float, 
     result = ceil_rule.combine(pressure_db, ceil_rule.full_scale_db(peak))
     frames = first
     if flames:
-        frames = rerun(10.0 ** (result.ceiling_db / 20.0))
+        # a flames-only pass (real pressure, half the work) at the ceiling;
+        # the envelope at unit gain is the first pass's
+        second = rerun(10.0 ** (result.ceiling_db / 20.0))
+        frames = replace(first, height=second.height, air_in=second.air_in, gain=second.gain)
     return PassageReport(ceiling=result, peak=peak, swing_pa=first.worst_pa,
                          worst_hole=first.worst_hole, worst_time_s=start_s + first.worst_time_s,
                          frames=frames, static_pa=rig.static_pa, reserve=rig.reserve,
@@ -160,9 +173,56 @@ def signal_report(rig: Rig, samples: np.ndarray, rate_hz: int, flames: bool = Tr
     first = simulate(filters, drive)
 
     def rerun(gain):
-        return simulate(filters, drive, static_pa=rig.static_pa, gain=gain)
+        return simulate(filters, drive, static_pa=rig.static_pa, gain=gain, envelope=False)
 
     return _report(rig, filters, first, peak, rerun, start_s, start_s + x.size / rate_hz, flames)
+
+
+def _prefetch(blocks, depth: int = 8):
+    """Iterate ``blocks`` in a background thread (decoding overlaps the FFTs).
+
+    Errors raised by the source (e.g. :class:`AudioError`) are re-raised here,
+    in order; stopping early stops the thread.
+    """
+    import queue
+    import threading
+
+    q: queue.Queue = queue.Queue(depth)
+    stop = threading.Event()
+    end = object()
+
+    def put(item) -> bool:
+        while not stop.is_set():
+            try:
+                q.put(item, timeout=0.1)
+                return True
+            except queue.Full:
+                continue
+        return False
+
+    def work():
+        try:
+            for b in blocks:
+                if not put(b):
+                    return
+        except BaseException as exc:  # handed over to the consumer
+            put(exc)
+            return
+        put(end)
+
+    thread = threading.Thread(target=work, daemon=True, name="showkit-decode")
+    thread.start()
+    try:
+        while True:
+            item = q.get()
+            if item is end:
+                return
+            if isinstance(item, BaseException):
+                raise item
+            yield item
+    finally:
+        stop.set()
+        thread.join(timeout=5.0)
 
 
 def passage_report(rig: Rig, path, start_s: float | None = None, end_s: float | None = None,
@@ -176,12 +236,22 @@ def passage_report(rig: Rig, path, start_s: float | None = None, end_s: float | 
         if block.size:
             peak[0] = max(peak[0], float(np.max(np.abs(block))))
 
-    first = simulate(filters, read_blocks(path, filters.rate_hz, start_s, end_s, on_native=track_peak))
+    # a passage short enough is kept (resampled) for the flames pass instead of decoding it twice
+    span = (info.duration_s if end_s is None else float(end_s)) - (start_s or 0.0)
+    kept = [] if span * filters.rate_hz <= KEEP_SAMPLES else None
+
+    def first_blocks():
+        for block in _prefetch(read_blocks(path, filters.rate_hz, start_s, end_s, on_native=track_peak)):
+            if kept is not None:
+                kept.append(block)
+            yield block
+
+    first = simulate(filters, first_blocks())
     start = 0.0 if start_s is None else float(start_s)
     end = info.duration_s if end_s is None else float(end_s)
 
     def rerun(gain):
-        return simulate(filters, read_blocks(path, filters.rate_hz, start_s, end_s),
-                        static_pa=rig.static_pa, gain=gain)
+        source = kept if kept is not None else _prefetch(read_blocks(path, filters.rate_hz, start_s, end_s))
+        return simulate(filters, source, static_pa=rig.static_pa, gain=gain, envelope=False)
 
     return _report(rig, filters, first, peak[0], rerun, start, end, flames)

@@ -11,6 +11,7 @@ by exactly 20 log10(new / old) dB.
 from __future__ import annotations
 
 import argparse
+import math
 
 from showkit.cli.common import (add_conditions_options, add_json_option, add_rig_option,
                                 level_caution, print_json)
@@ -38,6 +39,7 @@ def _time(text, where):
 
 def run(args) -> int:
     from showkit.analysis.pressure import passage_report
+    from showkit.physics.ceiling import MAX_GAIN_DB
     from showkit.cli.common import load_rig_from_args
     from showkit.units import format_time
 
@@ -52,9 +54,14 @@ def run(args) -> int:
     where = f"{format_time(r.start_s)} to {format_time(r.end_s)}"
     limit = ("the pressure at the holes" if r.ceiling.limited_by == "pressure"
              else "digital full scale (0 dBFS)")
+    if r.ceiling_db >= MAX_GAIN_DB:
+        limit = f"the {MAX_GAIN_DB:+.0f} dB cap on any gain"
     print(f"{args.track}, {where}, on {rig.name}")
     print(f"  ceiling            {r.ceiling_db:+.1f} dB  (set by {limit})")
-    print(f"  output peak        {r.output_peak_dbfs:.1f} dBFS at the ceiling")
+    if math.isfinite(r.output_peak_dbfs):
+        print(f"  output peak        {r.output_peak_dbfs:.1f} dBFS at the ceiling")
+    else:
+        print("  output peak        none: the passage is silent")
     print(f"  closest approach   hole {r.worst_hole + 1} of {rig.geometry.hole_count} at "
           f"{format_time(r.worst_time_s)}: {r.min_pressure_pa:.1f} Pa above ambient "
           f"(safe line {rig.reserve * rig.static_pa:.1f} Pa)")

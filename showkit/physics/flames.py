@@ -17,6 +17,8 @@ The **contrast** of a row of flames in one frame is
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 
 #: Flame frames per second: the flame's response time is tens of ms (from memory).
@@ -60,33 +62,55 @@ def sine_flame_height(ratio) -> np.ndarray:
     return 2.0 / np.pi * np.sqrt(1.0 + r) * elliptic_e(2.0 * r / (1.0 + r))
 
 
-def frame_flames(pressure_pa: np.ndarray, static_pa: float, frame_samples: int):
+def frame_flames(pressure_pa: np.ndarray, static_pa: float, frame_samples: int,
+                 gain: float = 1.0, overwrite: bool = False):
     """Relative flame height and air-drawn-in fraction per hole and frame.
 
     Parameters
     ----------
     pressure_pa : ndarray, shape (holes, N)
         Acoustic pressure at each hole, Pa (above or below the static level);
-        N must be a multiple of ``frame_samples``.
+        samples past the last whole frame are ignored.
     static_pa : float
         Static overpressure ``dP0``, Pa.
     frame_samples : int
         Samples per flame frame.
+    gain : float
+        Linear gain applied to ``pressure_pa`` first (> 0).
+    overwrite : bool
+        ``pressure_pa`` (float32 or float64) may be used as scratch space.
 
     Returns
     -------
     height : ndarray, shape (frames, holes)
-        ``< sqrt(max(0, 1 + p / dP0)) >`` over each frame.
+        ``< sqrt(max(0, 1 + g p / dP0)) >`` over each frame.
     air_in : ndarray, shape (frames, holes)
         Fraction of each frame during which the pressure is below ambient
-        (``1 + p / dP0 < 0``) and air is drawn in.
+        (``1 + g p / dP0 < 0``) and air is drawn in.
+
+    Notes
+    -----
+    Computed as ``sqrt(s) < sqrt(max(0, p + 1/s)) >`` with ``s = g / dP0``:
+    one addition, one square root and one sum per sample.
     """
+    if not gain > 0 or not static_pa > 0:
+        raise ValueError("gain and static pressure must be positive")
+    pressure_pa = np.asarray(pressure_pa)
     holes, n = pressure_pa.shape
     frames = n // frame_samples
-    block = pressure_pa[:, :frames * frame_samples].reshape(holes, frames, frame_samples)
-    rel = 1.0 + block / static_pa
-    height = np.sqrt(np.maximum(rel, 0.0)).mean(axis=2)
-    air_in = (rel < 0.0).mean(axis=2)
+    s = gain / static_pa
+    rel = pressure_pa[:, :frames * frame_samples]
+    if overwrite and rel.dtype in (np.float32, np.float64):
+        rel += rel.dtype.type(1.0 / s)
+    else:
+        rel = rel + 1.0 / s  # a new array (float64 for float64 input)
+    block = rel.reshape(holes, frames, frame_samples)
+    air_in = np.zeros((holes, frames), dtype=np.float32)
+    if frames and float(block.min()) < 0.0:
+        air_in = (block < 0.0).mean(axis=2)
+        np.maximum(rel, 0.0, out=rel)
+    np.sqrt(rel, out=rel)
+    height = block.sum(axis=2, dtype=np.float64) * (math.sqrt(s) / frame_samples)
     return height.T.astype(np.float32), air_in.T.astype(np.float32)
 
 

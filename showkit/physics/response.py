@@ -26,6 +26,8 @@ that falls between samples is not missed (physics.md section 7).
 from __future__ import annotations
 
 import math
+import os
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 from typing import Iterable
 
@@ -39,6 +41,8 @@ from showkit.physics.tube import TubeModel
 TAPER_END = 1.2
 #: Delay given to the impulse responses so that the taper's acausal part is kept, s.
 PRE_RING_S = 0.02
+#: Most threads :func:`simulate` shares the holes between.
+MAX_WORKERS = 4
 
 
 def analysis_rate_hz(plane_wave_limit_hz: float) -> int:
@@ -94,6 +98,21 @@ class HoleFilters:
     @property
     def frame_samples(self) -> int:
         return int(round(self.rate_hz / FRAME_RATE_HZ))
+
+    def spectrum(self, m: int, analytic: bool) -> np.ndarray:
+        """One-sided spectra of the impulse responses at FFT size ``m``, complex64 (holes, m/2 + 1).
+
+        With ``analytic`` the positive frequencies are doubled (``p + j H{p}``).
+        Kept on the instance: a warm process transforms the filters once.
+        """
+        cache = self.__dict__.setdefault("_spectra", {})
+        key = (int(m), bool(analytic))
+        if key not in cache:
+            spec = np.fft.rfft(self.impulse, n=m, axis=1)
+            if analytic:
+                spec[:, 1:m // 2] *= 2.0  # analytic: double the positive frequencies, no negative ones
+            cache[key] = spec.astype(np.complex64)
+        return cache[key]
 
 
 def drive_scale(model: TubeModel, drive: DriveCalibration) -> float:
@@ -182,9 +201,10 @@ class PressureFrames:
     Attributes
     ----------
     frame_rate_hz : float
-    envelope : ndarray, shape (frames, holes)
+    envelope : ndarray, shape (frames, holes), or None
         Largest ``|p + j H{p}|`` within each frame at unit gain, Pa: a bound on
-        the pressure swing at that hole in that frame.
+        the pressure swing at that hole in that frame (None from a flames-only
+        pass, ``simulate(..., envelope=False)``).
     worst_pa : float
         Largest envelope anywhere at unit gain, Pa.
     worst_hole : int
@@ -199,7 +219,7 @@ class PressureFrames:
     """
 
     frame_rate_hz: float
-    envelope: np.ndarray
+    envelope: np.ndarray | None
     worst_pa: float
     worst_hole: int
     worst_time_s: float
@@ -209,7 +229,8 @@ class PressureFrames:
 
 
 def simulate(filters: HoleFilters, blocks: Iterable[np.ndarray], static_pa: float | None = None,
-             gain: float = 1.0, ring_out: bool = True) -> PressureFrames:
+             gain: float = 1.0, ring_out: bool = True, envelope: bool = True,
+             workers: int | None = None) -> PressureFrames:
     """Run a signal through the tube, block by block.
 
     Parameters
@@ -225,24 +246,42 @@ def simulate(filters: HoleFilters, blocks: Iterable[np.ndarray], static_pa: floa
         always reported at unit gain).
     ring_out : bool
         Go on after the signal until the tube has rung down.
+    envelope : bool
+        Compute the analytic envelope (and the worst moment).  With ``False``
+        only the real pressure is computed (half the work), for a flames-only
+        pass: ``envelope`` is then ``None`` and ``worst_pa`` is NaN.
+    workers : int, optional
+        Threads to share the holes between (default: the number of CPUs, at
+        most :data:`MAX_WORKERS`); results do not depend on it.
 
     Notes
     -----
     FFT overlap-add (Oppenheim & Schafer, *Discrete-Time Signal Processing*,
     section 8.7) with an analytic-signal filter: the one-sided spectrum of
-    each impulse response, doubled, gives ``p + j H{p}`` directly.
+    each impulse response, doubled, gives ``p + j H{p}`` directly.  Spectra
+    and outputs are single precision (complex64/float32); buffers are reused
+    from block to block.
     """
     from showkit.physics.flames import frame_flames
 
+    if not envelope and static_pa is None:
+        raise ValueError("nothing to compute: give static_pa or envelope=True")
     frame = filters.frame_samples
     taps = filters.taps
     m, hop = _fft_size(taps, frame)
-    spec = np.fft.rfft(filters.impulse, n=m, axis=1)
-    spec[:, 1:m // 2] *= 2.0  # analytic: double the positive frequencies...
-    spec = spec.astype(np.complex64)  # ...the negative ones stay zero below
+    half = m // 2 + 1
+    spec = filters.spectrum(m, analytic=envelope)
     holes = filters.holes
-    tail = np.zeros((holes, m - hop), dtype=np.complex64)
-    full = np.zeros((holes, m), dtype=np.complex64)
+    workers = max(1, min(holes, int(workers or min(MAX_WORKERS, os.cpu_count() or 1))))
+    ntail = m - hop
+    if envelope:
+        full = np.zeros((holes, m), dtype=np.complex64)  # upper half stays zero
+        y = np.empty((holes, m), dtype=np.complex64)
+        env = np.empty((holes, hop), dtype=np.float32)
+    else:
+        full = np.zeros((holes, half), dtype=np.complex64)
+        y = np.empty((holes, m), dtype=np.float32)
+    tail = np.zeros((holes, ntail), dtype=y.dtype)
     env_frames, h_frames, a_frames = [], [], []
     worst = (0.0, 0, 0.0)
     done = 0  # output samples produced
@@ -251,46 +290,75 @@ def simulate(filters: HoleFilters, blocks: Iterable[np.ndarray], static_pa: floa
         pending = np.zeros(0)
         for b in ([blocks] if isinstance(blocks, np.ndarray) else blocks):
             b = np.asarray(b, dtype=float)
+            if b.ndim != 1:
+                raise ValueError("simulate() takes a mono drive signal (1-D blocks)")
             pending = np.concatenate([pending, b]) if pending.size else b
             while pending.size >= hop:
-                yield pending[:hop], True
+                yield pending[:hop]
                 pending = pending[hop:]
         extra = taps if ring_out else 0
         final = np.concatenate([pending, np.zeros(extra)])
         pad = (-final.size) % frame
         final = np.concatenate([final, np.zeros(pad)])
         for k in range(0, final.size, hop):
-            yield final[k:k + hop], False
+            yield final[k:k + hop]
 
-    for x, _ in chunks():
-        if x.size == 0:
-            continue
-        xs = np.fft.rfft(x, n=m).astype(np.complex64)
-        full[:, :m // 2 + 1] = spec * xs[None, :]
-        full[:, m // 2 + 1:] = 0.0
-        y = np.fft.ifft(full, axis=1)
-        y[:, :tail.shape[1]] += tail
-        out = y[:, :x.size]
-        tail = y[:, x.size:x.size + m - hop].copy()
-        if tail.shape[1] < m - hop:
-            tail = np.concatenate([tail, np.zeros((holes, m - hop - tail.shape[1]), np.complex64)], axis=1)
-        env = np.abs(out)
-        frames = x.size // frame
-        envf = env[:, :frames * frame].reshape(holes, frames, frame).max(axis=2).T
-        env_frames.append(envf)
-        if envf.size:
-            k = int(np.argmax(env))
-            hole, t = divmod(k, env.shape[1])
-            if env.flat[k] > worst[0]:
-                worst = (float(env.flat[k]), int(hole), max(0, done + t - filters.delay) / filters.rate_hz)
+    # the holes are split between worker threads (numpy's FFTs and ufuncs release the GIL)
+    groups = [slice(k * holes // workers, (k + 1) * holes // workers) for k in range(workers)]
+    groups = [g for g in groups if g.stop > g.start]
+
+    def run_group(g, xs, size, frames):
+        np.multiply(spec[g], xs[None, :], out=full[g, :half])
+        if envelope:
+            np.fft.ifft(full[g], axis=1, out=y[g])
+        else:
+            np.fft.irfft(full[g], n=m, axis=1, out=y[g])
+        y[g, :ntail] += tail[g]
+        np.copyto(tail[g], y[g, size:size + ntail])
+        out = y[g, :size]
+        envf = h = a = None
+        if envelope:
+            e = np.abs(out, out=env[g, :size])
+            envf = e[:, :frames * frame].reshape(-1, frames, frame).max(axis=2)  # (holes, frames)
         if static_pa is not None:
-            h, a = frame_flames(gain * out.real[:, :frames * frame], static_pa, frame)
-            h_frames.append(h)
-            a_frames.append(a)
-        done += x.size
-    envelope = np.concatenate(env_frames) if env_frames else np.zeros((0, holes), np.float32)
-    result = PressureFrames(frame_rate_hz=filters.rate_hz / frame, envelope=envelope.astype(np.float32),
-                            worst_pa=worst[0], worst_hole=worst[1], worst_time_s=worst[2], gain=gain)
+            # the real part is not needed again: a flames-only pass may overwrite it
+            h, a = frame_flames((out.real if envelope else out)[:, :frames * frame], static_pa, frame,
+                                gain=gain, overwrite=not envelope)
+        return envf, h, a
+
+    pool = ThreadPoolExecutor(len(groups)) if len(groups) > 1 else None
+    try:
+        for x in chunks():
+            if x.size == 0:
+                continue
+            xs = np.fft.rfft(x, n=m).astype(np.complex64)
+            frames = x.size // frame
+            if pool is None:
+                parts = [run_group(groups[0], xs, x.size, frames)]
+            else:
+                parts = list(pool.map(lambda g: run_group(g, xs, x.size, frames), groups))
+            if envelope:
+                envf = np.concatenate([p[0] for p in parts], axis=0)
+                env_frames.append(envf.T)
+                if envf.size:
+                    hole, fr = divmod(int(np.argmax(envf)), frames)
+                    if envf[hole, fr] > worst[0]:
+                        t = fr * frame + int(np.argmax(env[hole, fr * frame:(fr + 1) * frame]))
+                        worst = (float(envf[hole, fr]), int(hole),
+                                 max(0, done + t - filters.delay) / filters.rate_hz)
+            if static_pa is not None:
+                h_frames.append(np.concatenate([p[1] for p in parts], axis=1))
+                a_frames.append(np.concatenate([p[2] for p in parts], axis=1))
+            done += x.size
+    finally:
+        if pool is not None:
+            pool.shutdown()
+    result = PressureFrames(frame_rate_hz=filters.rate_hz / frame, envelope=None, worst_pa=math.nan,
+                            worst_hole=0, worst_time_s=0.0, gain=gain)
+    if envelope:
+        result.envelope = (np.concatenate(env_frames) if env_frames
+                           else np.zeros((0, holes), np.float32)).astype(np.float32)
+        result.worst_pa, result.worst_hole, result.worst_time_s = worst
     if static_pa is not None:
         result.height = np.concatenate(h_frames) if h_frames else np.zeros((0, holes), np.float32)
         result.air_in = np.concatenate(a_frames) if a_frames else np.zeros((0, holes), np.float32)
