@@ -81,7 +81,18 @@ def driver_shape(freq_hz, drive: DriveCalibration) -> np.ndarray:
     ws = 2.0 * np.pi * drive.speaker_resonance_hz
     shape = 1j * w * ws / (ws * ws - w * w + 1j * w * ws / drive.speaker_q)
     if drive.response_freq_hz:
-        measured = np.interp(f, drive.response_freq_hz, drive.response_db,
-                             left=-120.0, right=-120.0)
+        # outside the measured range follow the default model, joined at the
+        # nearest measured end (never assume the drive vanishes there: that
+        # would hide content from the ceilings)
+        rf = np.asarray(drive.response_freq_hz)
+        rd = np.asarray(drive.response_db)
+        default_db = 20.0 * np.log10(np.maximum(np.abs(shape), 1e-30))
+        measured = np.interp(f, rf, rd)
+        if rf.size:
+            edge = driver_shape(rf[[0, -1]], DriveCalibration(
+                speaker_resonance_hz=drive.speaker_resonance_hz, speaker_q=drive.speaker_q))
+            edge_db = 20.0 * np.log10(np.abs(edge))
+            measured = np.where(f < rf[0], default_db - edge_db[0] + rd[0], measured)
+            measured = np.where(f > rf[-1], default_db - edge_db[1] + rd[-1], measured)
         shape = 10.0 ** (measured / 20.0) * np.exp(1j * np.angle(shape))
     return shape

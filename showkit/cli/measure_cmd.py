@@ -1,0 +1,365 @@
+"""Measure a real tube: sweep, resonances, fit and calibration.
+
+  showkit measure sweep --out sweep.wav        write an exponential sine sweep (level kept safe)
+  showkit measure analyse REC.wav --sweep sweep.wav [--update-rig]
+                                               find the modes and Q, fit the model, show the fit
+  showkit measure live --sweep sweep.wav       play and record at once through the audio device
+  showkit measure level --pressure "5.8 Pa"    write the calibration point into [drive]
+
+The sweep level is bounded so that the sweep itself keeps every hole above the
+reserve: steady-state pressure at each hole and frequency from the rig's
+calibration and model.  Levels are model estimates: start low.
+"""
+
+from __future__ import annotations
+
+import argparse
+
+from showkit.cli.common import (add_conditions_options, add_json_option, add_rig_option,
+                                level_caution, print_json, table)
+
+
+def add_arguments(parser: argparse.ArgumentParser) -> None:
+    sub = parser.add_subparsers(dest="measure_command", metavar="STEP")
+    p = sub.add_parser("sweep", help="write an exponential sine sweep WAV")
+    add_rig_option(p)
+    add_conditions_options(p)
+    p.add_argument("--out", required=True, metavar="SWEEP.wav", help="file to write")
+    _sweep_options(p)
+    p.add_argument("--level", type=float, metavar="DBFS",
+                   help="peak level, dBFS (default: 6 dB below the safe bound); never above the bound")
+    p = sub.add_parser("analyse", help="analyse a recording of the sweep")
+    p.add_argument("recording", metavar="REC.wav")
+    p.add_argument("--sweep", required=True, metavar="SWEEP.wav", help="the sweep that was played")
+    _analyse_options(p)
+    p = sub.add_parser("live", help="play the sweep and record at the cap, then analyse")
+    p.add_argument("--sweep", required=True, metavar="SWEEP.wav")
+    p.add_argument("--save", metavar="REC.wav", help="also save the recording")
+    p.add_argument("--device", help="audio device (number or name; see showkit devices)")
+    _analyse_options(p)
+    p = sub.add_parser("level", help="the absolute calibration point ([drive] reference_*)")
+    add_rig_option(p)
+    p.add_argument("--frequency", type=float, metavar="HZ", help="reference sine frequency (default: the rig's)")
+    p.add_argument("--level", type=float, metavar="DBFS", help="reference sine peak level (default: the rig's)")
+    p.add_argument("--out", metavar="SINE.wav", help="write the reference sine to play with any player")
+    p.add_argument("--pressure", metavar="PRESSURE",
+                   help='pressure amplitude (zero to peak) read at the cap, e.g. "5.8 Pa"')
+    p.add_argument("--recording", metavar="REC.wav", help="microphone recording of the reference sine at the cap")
+    p.add_argument("--calibrator", metavar="CAL.wav",
+                   help="the same microphone and gain recording a 94 dB SPL (1 Pa rms) 1 kHz calibrator")
+    p.add_argument("--update-rig", action="store_true", help="write the calibration into the rig file")
+    add_json_option(p)
+
+
+def _sweep_options(p) -> None:
+    p.add_argument("--start", type=float, default=20.0, metavar="HZ", help="start frequency (default 20 Hz)")
+    p.add_argument("--stop", type=float, default=2000.0, metavar="HZ", help="stop frequency (default 2000 Hz)")
+    p.add_argument("--length", type=float, default=10.0, metavar="S", help="sweep length (default 10 s)")
+    p.add_argument("--rate", type=int, default=48000, metavar="HZ", help="sample rate (default 48000)")
+
+
+def _analyse_options(p) -> None:
+    add_rig_option(p)
+    p.add_argument("--update-rig", action="store_true",
+                   help="write the fitted values, measured modes and drive response into the rig file")
+    p.add_argument("--gas-as", choices=["air_fraction", "temperature"], default="air_fraction",
+                   help="write the fitted sound speed as the air fraction (default) or an effective temperature")
+    p.add_argument("--no-drive-response", action="store_true",
+                   help="keep the default speaker model (do not write the measured drive response)")
+    add_json_option(p)
+
+
+def run(args) -> int:
+    step = getattr(args, "measure_command", None)
+    if step is None:
+        print(__doc__.strip())
+        return 0
+    return {"sweep": _run_sweep, "analyse": _run_analyse, "live": _run_live, "level": _run_level}[step](args)
+
+
+def _read(path: str, role: str):
+    import soundfile as sf
+
+    from showkit.errors import AudioError
+    try:
+        data, rate = sf.read(path, dtype="float64", always_2d=False)
+    except (RuntimeError, sf.LibsndfileError, OSError) as exc:
+        raise AudioError(f"cannot read the {role} ({str(exc).splitlines()[0]})", path,
+                         "give a WAV or FLAC file") from None
+    return data, rate
+
+
+def _run_sweep(args) -> int:
+    import numpy as np
+    import soundfile as sf
+
+    from showkit.analysis.drivefit import sweep_amplitude_bound
+    from showkit.analysis.sweep import SweepSpec, check_spec, exponential_sweep
+    from showkit.cli.common import load_rig_from_args
+    from showkit.errors import MeasureError
+
+    rig = load_rig_from_args(args)
+    check_spec(SweepSpec(args.start, args.stop, args.length, args.rate, 0.5))
+    bound, f_worst = sweep_amplitude_bound(rig.model, rig.drive, rig.static_pa, rig.reserve,
+                                           (args.start, args.stop))
+    bound = min(bound, 10 ** (-1.0 / 20))
+    bound_db = 20 * np.log10(bound)
+    level_db = bound_db - 6.0 if args.level is None else args.level
+    if level_db > bound_db + 1e-9:
+        raise MeasureError(f"--level {level_db:g} dBFS is above the safe sweep bound {bound_db:.1f} dBFS",
+                           "--level", f"use {bound_db:.1f} dBFS or lower (the tube peaks near {f_worst:.0f} Hz)")
+    spec = SweepSpec(args.start, args.stop, args.length, args.rate, 10 ** (level_db / 20))
+    x = exponential_sweep(spec)
+    sf.write(args.out, x.astype(np.float32), args.rate, subtype="FLOAT")
+    print(f"wrote {args.out}: {args.start:g}-{args.stop:g} Hz, {args.length:g} s at {args.rate} Hz, "
+          f"peak {level_db:.1f} dBFS")
+    print(f"safe bound {bound_db:.1f} dBFS: keeps every hole at least {rig.reserve:.0%} of "
+          f"{rig.static_pa:g} Pa above ambient in steady state (most sensitive near {f_worst:.0f} Hz), "
+          f"from {rig.drive.describe()}")
+    level_caution()
+    return 0
+
+
+def analyse_recording(rig, recording, rec_rate, sweep, sweep_rate, where="recording", progress=None) -> dict:
+    """The whole analysis: response, resonances, fit, drive response -> report dict."""
+    from showkit.analysis.drivefit import drive_response_db
+    from showkit.analysis.resonances import find_resonances
+    from showkit.analysis.sweep import measure_response
+    from showkit.analysis.tubefit import fit_tube, variant
+    from showkit.errors import MeasureError
+
+    resp = measure_response(recording, rec_rate, sweep, sweep_rate, where, progress=progress)
+    f_hi = min(resp.band_hz[1] / 1.1, rig.model.plane_wave_limit_hz)
+    found = find_resonances(resp.freq_hz, resp.response, resp.band_hz[0] * 1.1, f_hi, noise=resp.noise)
+    warnings = list(resp.warnings)
+    if not found:
+        raise MeasureError("no resonances found in the recording", where,
+                           "record at the cap with the sweep loud enough to hear the tube ring")
+    fit = fit_tube(rig.model, [r.frequency_hz for r in found], [r.q for r in found])
+    warnings += fit.warnings
+    fitted = variant(rig.model, fit.speed_scale, fit.end_correction,
+                     fit.resistance_pa_s_m3 if rig.geometry.hole_count else None)
+    d_f, d_db = drive_response_db(resp.freq_hz, resp.response, fitted, rig.drive,
+                                  (resp.band_hz[0] * 1.1, resp.band_hz[1] / 1.1))
+    return {
+        "modes": [{"frequency_hz": r.frequency_hz, "q": r.q, "level_db": r.level_db,
+                   "q_method": r.q_method} for r in found],
+        "fit": {"sound_speed_m_s": fit.sound_speed_m_s, "rig_sound_speed_m_s": rig.gas.sound_speed_m_s,
+                "residual_cents": fit.residual_cents, "rms_cents": fit.rms_cents,
+                "before_cents": fit.before_cents, "model_hz": fit.after_hz, "model_q": fit.after_q,
+                "rig_model_hz": fit.before_hz, "end_correction": fit.end_correction,
+                "resistance_pa_s_m3": fit.resistance_pa_s_m3, "undetermined": fit.undetermined,
+                "condition": fit.condition},
+        "drive_response": {"frequency_hz": d_f, "db": d_db},
+        "recording": {"delay_s": resp.delay_s, "snr_db": resp.snr_db, "band_hz": list(resp.band_hz)},
+        "warnings": warnings,
+    }
+
+
+def _report(rig, report, args) -> None:
+    if args.json:
+        print_json(report)
+        return
+    fit = report["fit"]
+    rec = report["recording"]
+    print(f"recording: sweep found {rec['delay_s']:.3f} s in, impulse-to-noise {rec['snr_db']:.0f} dB, "
+          f"band {rec['band_hz'][0]:.0f}-{rec['band_hz'][1]:.0f} Hz")
+    rows = []
+    for m, before, after, c0, c1 in zip(report["modes"], fit["rig_model_hz"], fit["model_hz"],
+                                        fit["before_cents"], fit["residual_cents"]):
+        rows.append([f"{m['frequency_hz']:.2f}", f"{m['q']:.1f}", f"{m['level_db']:.1f}",
+                     f"{before:.2f}", f"{c0:+.1f}", f"{after:.2f}", f"{c1:+.1f}"])
+    print(table(rows, ["measured Hz", "Q", "level dB", "rig model Hz", "cents", "fitted Hz", "cents"],
+                ">>>>>>>"))
+    print(f"sound speed {fit['sound_speed_m_s']:.2f} m/s (rig: {fit['rig_sound_speed_m_s']:.2f}); "
+          + (f"end correction {fit['end_correction']:.3f} hole radii; resistance "
+             f"{fit['resistance_pa_s_m3']:.3g} Pa s/m3; " if fit["end_correction"] is not None else "")
+          + f"rms residual {fit['rms_cents']:.1f} cents")
+    for w in report["warnings"]:
+        print(f"warning: {w}")
+
+
+def _update(rig, report, args) -> None:
+    from showkit.errors import RigError
+    from showkit.rigwrite import update_rig
+
+    if not getattr(args, "rig", None):
+        raise RigError("--update-rig needs your own rig file", "--rig", "copy the demo rig and give --rig FILE")
+    fit = report["fit"]
+    undetermined = set(fit["undetermined"])
+    d = report["drive_response"]
+    backup = update_rig(
+        args.rig, sound_speed_m_s=fit["sound_speed_m_s"],
+        end_correction=None if "end_correction" in undetermined else fit["end_correction"],
+        resistance_pa_s_m3=None if "resistance" in undetermined else fit["resistance_pa_s_m3"],
+        modes=report["modes"],
+        measured_extra={"sound_speed_m_s": round(fit["sound_speed_m_s"], 3),
+                        "rms_cents": round(fit["rms_cents"], 2),
+                        "snr_db": round(report["recording"]["snr_db"], 1)},
+        response_freq_hz=None if args.no_drive_response else d["frequency_hz"],
+        response_db=None if args.no_drive_response else d["db"], prefer_gas=args.gas_as)
+    if not args.json:
+        print(f"updated {args.rig} (previous version kept as {backup})")
+
+
+def _run_analyse(args) -> int:
+    from showkit.cli.common import load_rig_from_args
+
+    rig = load_rig_from_args(args)
+    rec, rec_rate = _read(args.recording, "recording")
+    sweep, sweep_rate = _read(args.sweep, "sweep")
+    report = analyse_recording(rig, rec, rec_rate, sweep, sweep_rate, args.recording)
+    _report(rig, report, args)
+    if args.update_rig:
+        _update(rig, report, args)
+    return 0
+
+
+def play_record(signal, rate: int, tail_s: float = 2.0, device=None, sd=None):
+    """Play ``signal`` and record one channel at once (sounddevice ``playrec``).
+
+    Parameters
+    ----------
+    signal : ndarray
+        Played samples, full scale = 1.
+    rate : int
+        Sample rate, Hz.
+    tail_s : float
+        Silence appended so the ring-out is recorded, s.
+    device : int or str, optional
+    sd : module, optional
+        The sounddevice module (for tests); imported when not given.
+
+    Raises
+    ------
+    DeviceError
+        No PortAudio library, no device, or the device failed.
+    """
+    import numpy as np
+
+    from showkit.errors import DeviceError
+    if sd is None:
+        try:
+            import sounddevice as sd
+        except (OSError, ImportError) as exc:
+            raise DeviceError(f"no audio library ({exc})", "sounddevice",
+                              "install PortAudio (e.g. apt-get install libportaudio2), or record with "
+                              "any recorder and use showkit measure analyse") from None
+    out = np.concatenate([np.asarray(signal, dtype=np.float32), np.zeros(int(tail_s * rate), np.float32)])
+    try:
+        rec = sd.playrec(out, samplerate=rate, channels=1, device=device, blocking=True)
+    except Exception as exc:  # sounddevice raises PortAudioError and ValueError for devices
+        raise DeviceError(f"the audio device failed ({exc})", str(device or "default device"),
+                          "check the device with showkit devices, or record with any recorder") from None
+    return np.asarray(rec, dtype=float)[:, 0]
+
+
+def _run_live(args) -> int:
+    import soundfile as sf
+
+    from showkit.cli.common import load_rig_from_args
+
+    rig = load_rig_from_args(args)
+    sweep, rate = _read(args.sweep, "sweep")
+    level_caution()
+    rec = play_record(sweep, int(rate), device=args.device)
+    if args.save:
+        sf.write(args.save, rec, int(rate), subtype="FLOAT")
+    report = analyse_recording(rig, rec, rate, sweep, rate, "live recording")
+    _report(rig, report, args)
+    if args.update_rig:
+        _update(rig, report, args)
+    return 0
+
+
+def sine_amplitude(signal, rate: float, freq_hz: float) -> float:
+    """Amplitude (zero to peak) of the component at ``freq_hz``, by a least-squares sine fit."""
+    import numpy as np
+
+    x = np.asarray(signal, dtype=float)
+    if x.ndim == 2:
+        x = x[:, 0]
+    t = np.arange(x.size) / rate
+    basis = np.stack([np.cos(2 * np.pi * freq_hz * t), np.sin(2 * np.pi * freq_hz * t), np.ones_like(t)], 1)
+    coef, *_ = np.linalg.lstsq(basis, x, rcond=None)
+    return float(np.hypot(coef[0], coef[1]))
+
+
+def calibrated_pressure(recording, calibrator, rate: float, cal_rate: float, freq_hz: float,
+                        where: str = "recording") -> float:
+    """Pressure amplitude at ``freq_hz`` (Pa, zero to peak) from a mic checked with a 94 dB calibrator.
+
+    The calibrator gives 94 dB SPL = 1 Pa rms at 1 kHz (IEC 60942; SPL re 20 uPa, ISO 1683), so
+    the microphone chain reads ``1 Pa * sqrt 2`` per its fitted 1 kHz amplitude.
+    """
+    import numpy as np
+
+    from showkit.analysis.sweep import check_audio
+    from showkit.errors import MeasureError
+
+    check_audio(calibrator, "calibrator", "calibrator recording")
+    check_audio(recording, where)
+    cal = np.asarray(calibrator, dtype=float)
+    cal = cal[:, 0] if cal.ndim == 2 else cal
+    spec = np.abs(np.fft.rfft(cal * np.hanning(cal.size)))
+    f_peak = np.fft.rfftfreq(cal.size, 1 / cal_rate)[int(np.argmax(spec))]
+    if abs(f_peak - 1000.0) > 50.0:
+        raise MeasureError(f"the calibrator recording peaks at {f_peak:.0f} Hz, not 1 kHz", "--calibrator",
+                           "record the 94 dB SPL, 1 kHz calibrator on the microphone")
+    cal_amp = sine_amplitude(cal, cal_rate, f_peak)
+    return sine_amplitude(recording, rate, freq_hz) * np.sqrt(2.0) / cal_amp
+
+
+def _run_level(args) -> int:
+    import numpy as np
+
+    from showkit import units
+    from showkit.cli.common import load_rig_from_args
+    from showkit.errors import InputError
+    from showkit.rigwrite import update_rig
+
+    rig = load_rig_from_args(args)
+    freq = args.frequency or rig.drive.reference_frequency_hz
+    level = rig.drive.reference_level_dbfs if args.level is None else args.level
+    if level > 0:
+        raise InputError(f"--level {level:g} dBFS is above full scale", "--level", "give e.g. -20")
+    level_caution()
+    if args.out:
+        import soundfile as sf
+        rate = 48000
+        t = np.arange(int(10 * rate)) / rate
+        sine = 10 ** (level / 20) * np.sin(2 * np.pi * freq * t)
+        ramp = int(0.05 * rate)
+        sine[:ramp] *= np.linspace(0, 1, ramp)
+        sine[-ramp:] *= np.linspace(1, 0, ramp)
+        sf.write(args.out, sine.astype(np.float32), rate, subtype="FLOAT")
+        print(f"wrote {args.out}: {freq:g} Hz at {level:g} dBFS peak, 10 s; play it and read the cap pressure")
+    if args.pressure is not None:
+        p = units.pressure_pa(args.pressure, "--pressure")
+    elif args.recording and args.calibrator:
+        rec, rate = _read(args.recording, "recording")
+        cal, cal_rate = _read(args.calibrator, "calibrator recording")
+        p = calibrated_pressure(rec, cal, rate, cal_rate, freq, args.recording)
+    else:
+        if not args.out:
+            raise InputError("no reading given", "measure level",
+                             'give --pressure "5.8 Pa", or --recording and --calibrator, or --out to write the sine')
+        return 0
+    if not p > 0:
+        raise InputError("the pressure must be above zero", "--pressure", 'give e.g. "5.8 Pa"')
+    spl = 20 * np.log10(p / np.sqrt(2) / 20e-6)
+    result = {"reference_frequency": freq, "reference_level": level, "reference_pressure": p,
+              "spl_db": spl}
+    if args.json:
+        print_json(result)
+    else:
+        print(f"calibration: {p:.3g} Pa at the cap (zero to peak; {spl:.1f} dB SPL) for {freq:g} Hz at "
+              f"{level:g} dBFS")
+    if args.update_rig:
+        from showkit.errors import RigError
+        if not args.rig:
+            raise RigError("--update-rig needs your own rig file", "--rig", "give --rig FILE")
+        backup = update_rig(args.rig, reference=result)
+        if not args.json:
+            print(f"updated {args.rig} (previous version kept as {backup})")
+    return 0

@@ -1,0 +1,186 @@
+"""Write measured and fitted values back into a rig file, safely.
+
+The file is edited with tomlkit so the presenter's comments and layout stay;
+the new text is checked by :func:`showkit.rigfile.parse_rig` before it
+replaces the file; the write goes to a temporary file in the same folder,
+is fsynced and renamed over the original, and the previous version is kept
+as ``NAME.bak`` (older backups move to ``NAME.bak.1`` ... ``NAME.bak.9``).
+
+The fitted sound speed is written as something a presenter can read and
+check: by default the **air fraction** in the fuel (gas purity: a tube not
+fully purged holds air, which moves every mode), solved from the real-gas
+model at the rig's temperature; when no air fraction within 0 to 0.5 gives
+that sound speed, as an **effective gas temperature** instead
+(``c`` grows about 0.17 % per kelvin, physics.md section 2).
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import os
+import shutil
+import tempfile
+from pathlib import Path
+
+from showkit.errors import RigError
+from showkit.physics.gas import gas_state
+from showkit.rigfile import demo_rig_path, parse_rig
+
+BACKUPS_KEPT = 9
+
+
+def gas_for_sound_speed(fuel: str, air_fraction: float, temperature_k: float, ambient_pa: float,
+                        sound_speed_m_s: float, prefer: str = "air_fraction") -> tuple[str, float]:
+    """The rig value that gives a sound speed: ``("air_fraction", x)`` or ``("temperature", T_K)``.
+
+    Parameters
+    ----------
+    fuel : str
+    air_fraction : float
+        The rig's air fraction (kept when the temperature is solved).
+    temperature_k : float
+        The rig's gas temperature, K (kept when the air fraction is solved).
+    ambient_pa : float
+        Ambient pressure, Pa.
+    sound_speed_m_s : float
+        Target sound speed, m/s.
+    prefer : str
+        ``"air_fraction"`` or ``"temperature"``.
+    """
+    from scipy.optimize import brentq
+
+    def speed_air(a):
+        return gas_state(fuel, a, temperature_k, ambient_pa).sound_speed_m_s - sound_speed_m_s
+
+    def speed_t(t):
+        return gas_state(fuel, air_fraction, t, ambient_pa).sound_speed_m_s - sound_speed_m_s
+
+    if prefer == "air_fraction" and fuel != "air" and speed_air(0.0) * speed_air(0.5) <= 0:
+        return "air_fraction", float(brentq(speed_air, 0.0, 0.5, xtol=1e-7))
+    if speed_t(233.15) * speed_t(373.15) <= 0:
+        return "temperature", float(brentq(speed_t, 233.15, 373.15, xtol=1e-4))
+    raise RigError(f"no gas temperature within -40 to 100 C gives the measured sound speed "
+                   f"{sound_speed_m_s:.1f} m/s for {fuel}", "fit",
+                   "check the fuel named in the rig file and the tube length")
+
+
+def _rotate_backups(path: Path) -> Path:
+    bak = path.with_name(path.name + ".bak")
+    if bak.exists():
+        for k in range(BACKUPS_KEPT - 1, 0, -1):
+            older = path.with_name(f"{path.name}.bak.{k}")
+            if older.exists():
+                older.replace(path.with_name(f"{path.name}.bak.{k + 1}"))
+        bak.replace(path.with_name(f"{path.name}.bak.1"))
+    shutil.copy2(path, bak)
+    return bak
+
+
+def save_text(path: Path, text: str) -> Path:
+    """Check ``text`` as a rig, back up ``path``, write atomically; returns the backup path."""
+    parse_rig(text, str(path), path)
+    backup = _rotate_backups(path)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=str(path.parent))
+    try:
+        with os.fdopen(fd, "w", encoding="utf-8") as fh:
+            fh.write(text)
+            fh.flush()
+            os.fsync(fh.fileno())
+        os.replace(tmp, path)
+    finally:
+        if os.path.exists(tmp):
+            os.unlink(tmp)
+    return backup
+
+
+def _writable(path: Path) -> Path:
+    path = Path(path)
+    if path.resolve() == demo_rig_path().resolve():
+        raise RigError("will not change the bundled demo rig", str(path),
+                       "copy it to your own rig file and give --rig that file")
+    if not path.is_file():
+        raise RigError("no such rig file", str(path), "give the rig file to update with --rig")
+    return path
+
+
+def update_rig(path, *, sound_speed_m_s: float | None = None, end_correction: float | None = None,
+               resistance_pa_s_m3: float | None = None, modes: list | None = None,
+               measured_extra: dict | None = None, response_freq_hz=None, response_db=None,
+               reference: dict | None = None, prefer_gas: str = "air_fraction",
+               today: str | None = None) -> Path:
+    """Write measured and fitted values into a rig file; returns the backup's path.
+
+    Parameters
+    ----------
+    path : path-like
+        The rig file (not the bundled demo).
+    sound_speed_m_s : float, optional
+        Fitted sound speed, m/s: written as ``gas.air_fraction`` or ``gas.temperature``.
+    end_correction : float, optional
+        Hole end correction, hole radii (``holes.end_correction``).
+    resistance_pa_s_m3 : float, optional
+        Hole resistance, Pa s/m^3 (``holes.resistance``).
+    modes : list of dict, optional
+        Measured modes ``{"frequency_hz", "q", "level_db"}`` for ``[measured]``.
+    measured_extra : dict, optional
+        More ``[measured]`` entries (fit summary).
+    response_freq_hz, response_db : sequence, optional
+        Measured relative drive response for ``[drive]``.
+    reference : dict, optional
+        ``{"reference_frequency": Hz, "reference_level": dBFS, "reference_pressure": Pa}``.
+    prefer_gas : str
+        ``"air_fraction"`` or ``"temperature"`` (see module docstring).
+    today : str, optional
+        Date written, ISO format (default: today).
+    """
+    import tomlkit
+
+    path = _writable(path)
+    text = path.read_text(encoding="utf-8")
+    rig = parse_rig(text, str(path), path)
+    doc = tomlkit.parse(text)
+    notes = []
+    if sound_speed_m_s is not None:
+        key, value = gas_for_sound_speed(rig.fuel, rig.air_fraction, rig.temperature_k,
+                                         rig.ambient_pa, sound_speed_m_s, prefer_gas)
+        gas = doc["gas"]
+        if key == "air_fraction":
+            gas["air_fraction"] = round(value, 5)
+        else:
+            gas["temperature"] = f"{value - 273.15:.2f} C"
+        notes.append(key)
+    if rig.geometry.hole_count and "holes" in doc:
+        if end_correction is not None:
+            doc["holes"]["end_correction"] = round(float(end_correction), 4)
+        if resistance_pa_s_m3 is not None:
+            doc["holes"]["resistance"] = float(f"{resistance_pa_s_m3:.4g}")
+    if response_freq_hz is not None:
+        drive = doc.setdefault("drive", tomlkit.table())
+        drive["response_frequencies"] = [round(float(v), 3) for v in response_freq_hz]
+        drive["response_db"] = [round(float(v), 2) for v in response_db]
+    if reference:
+        drive = doc.setdefault("drive", tomlkit.table())
+        drive["reference_frequency"] = f"{reference['reference_frequency']:g} Hz"
+        drive["reference_level"] = round(float(reference["reference_level"]), 2)
+        drive["reference_pressure"] = f"{reference['reference_pressure']:.4g} Pa"
+    if modes is not None or measured_extra:
+        measured = tomlkit.table()
+        measured.add(tomlkit.comment("written by showkit measure; the previous file is kept as .bak"))
+        measured["date"] = today or _dt.date.today().isoformat()
+        if notes:
+            measured["sound_speed_written_as"] = notes[0]
+        for k, v in (measured_extra or {}).items():
+            measured[k] = v
+        if modes is not None:
+            arr = tomlkit.array()
+            for m in modes:
+                item = tomlkit.inline_table()
+                item.update({"frequency_hz": round(float(m["frequency_hz"]), 3),
+                             "q": round(float(m["q"]), 2), "level_db": round(float(m["level_db"]), 2)})
+                arr.append(item)
+            arr.multiline(True)
+            measured["modes"] = arr
+        if "measured" in doc:
+            del doc["measured"]
+        doc["measured"] = measured
+    return save_text(path, tomlkit.dumps(doc))
