@@ -176,7 +176,7 @@ def test_sweep_cli_stays_below_bound(tmp_path, capsys):
 
 
 def test_live_with_mocked_device():
-    from showkit.cli.measure_cmd import play_record
+    from showkit.show.playrec import play_record
 
     class FakeSD:
         def playrec(self, out, samplerate, channels, device, blocking):
@@ -194,7 +194,7 @@ def test_live_with_mocked_device():
 
 
 def test_calibrator_pressure():
-    from showkit.cli.measure_cmd import calibrated_pressure
+    from showkit.analysis.measurement import calibrated_pressure
     t = np.arange(FS) / FS
     cal = 0.1 * np.sin(2 * np.pi * 1000 * t)  # 94 dB SPL = 1 Pa rms (IEC 60942) reads 0.1 peak
     rec = 0.25 * np.sin(2 * np.pi * 120 * t)

@@ -18,6 +18,10 @@ import argparse
 from showkit.cli.common import (add_conditions_options, add_json_option, add_rig_option,
                                 level_caution, print_json, table)
 
+# the work itself lives in the analysis and show layers
+from showkit.analysis.measurement import analyse_recording, calibrated_pressure, sine_amplitude  # noqa: F401,E402
+from showkit.show.playrec import play_record  # noqa: F401,E402
+
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     sub = parser.add_subparsers(dest="measure_command", metavar="STEP")
@@ -120,42 +124,6 @@ def _run_sweep(args) -> int:
     return 0
 
 
-def analyse_recording(rig, recording, rec_rate, sweep, sweep_rate, where="recording", progress=None) -> dict:
-    """The whole analysis: response, resonances, fit, drive response -> report dict."""
-    from showkit.analysis.drivefit import drive_response_db
-    from showkit.analysis.resonances import find_resonances
-    from showkit.analysis.sweep import measure_response
-    from showkit.analysis.tubefit import fit_tube, variant
-    from showkit.errors import MeasureError
-
-    resp = measure_response(recording, rec_rate, sweep, sweep_rate, where, progress=progress)
-    f_hi = min(resp.band_hz[1] / 1.1, rig.model.plane_wave_limit_hz)
-    found = find_resonances(resp.freq_hz, resp.response, resp.band_hz[0] * 1.1, f_hi, noise=resp.noise)
-    warnings = list(resp.warnings)
-    if not found:
-        raise MeasureError("no resonances found in the recording", where,
-                           "record at the cap with the sweep loud enough to hear the tube ring")
-    fit = fit_tube(rig.model, [r.frequency_hz for r in found], [r.q for r in found])
-    warnings += fit.warnings
-    fitted = variant(rig.model, fit.speed_scale, fit.end_correction,
-                     fit.resistance_pa_s_m3 if rig.geometry.hole_count else None)
-    d_f, d_db = drive_response_db(resp.freq_hz, resp.response, fitted, rig.drive,
-                                  (resp.band_hz[0] * 1.1, resp.band_hz[1] / 1.1))
-    return {
-        "modes": [{"frequency_hz": r.frequency_hz, "q": r.q, "level_db": r.level_db,
-                   "q_method": r.q_method} for r in found],
-        "fit": {"sound_speed_m_s": fit.sound_speed_m_s, "rig_sound_speed_m_s": rig.gas.sound_speed_m_s,
-                "residual_cents": fit.residual_cents, "rms_cents": fit.rms_cents,
-                "before_cents": fit.before_cents, "model_hz": fit.after_hz, "model_q": fit.after_q,
-                "rig_model_hz": fit.before_hz, "end_correction": fit.end_correction,
-                "resistance_pa_s_m3": fit.resistance_pa_s_m3, "undetermined": fit.undetermined,
-                "condition": fit.condition},
-        "drive_response": {"frequency_hz": d_f, "db": d_db},
-        "recording": {"delay_s": resp.delay_s, "snr_db": resp.snr_db, "band_hz": list(resp.band_hz)},
-        "warnings": warnings,
-    }
-
-
 def _report(rig, report, args) -> None:
     if args.json:
         print_json(report)
@@ -215,45 +183,6 @@ def _run_analyse(args) -> int:
     return 0
 
 
-def play_record(signal, rate: int, tail_s: float = 2.0, device=None, sd=None):
-    """Play ``signal`` and record one channel at once (sounddevice ``playrec``).
-
-    Parameters
-    ----------
-    signal : ndarray
-        Played samples, full scale = 1.
-    rate : int
-        Sample rate, Hz.
-    tail_s : float
-        Silence appended so the ring-out is recorded, s.
-    device : int or str, optional
-    sd : module, optional
-        The sounddevice module (for tests); imported when not given.
-
-    Raises
-    ------
-    DeviceError
-        No PortAudio library, no device, or the device failed.
-    """
-    import numpy as np
-
-    from showkit.errors import DeviceError
-    if sd is None:
-        try:
-            import sounddevice as sd
-        except (OSError, ImportError) as exc:
-            raise DeviceError(f"no audio library ({exc})", "sounddevice",
-                              "install PortAudio (e.g. apt-get install libportaudio2), or record with "
-                              "any recorder and use showkit measure analyse") from None
-    out = np.concatenate([np.asarray(signal, dtype=np.float32), np.zeros(int(tail_s * rate), np.float32)])
-    try:
-        rec = sd.playrec(out, samplerate=rate, channels=1, device=device, blocking=True)
-    except Exception as exc:  # sounddevice raises PortAudioError and ValueError for devices
-        raise DeviceError(f"the audio device failed ({exc})", str(device or "default device"),
-                          "check the device with showkit devices, or record with any recorder") from None
-    return np.asarray(rec, dtype=float)[:, 0]
-
-
 def _run_live(args) -> int:
     import soundfile as sf
 
@@ -270,44 +199,6 @@ def _run_live(args) -> int:
     if args.update_rig:
         _update(rig, report, args)
     return 0
-
-
-def sine_amplitude(signal, rate: float, freq_hz: float) -> float:
-    """Amplitude (zero to peak) of the component at ``freq_hz``, by a least-squares sine fit."""
-    import numpy as np
-
-    x = np.asarray(signal, dtype=float)
-    if x.ndim == 2:
-        x = x[:, 0]
-    t = np.arange(x.size) / rate
-    basis = np.stack([np.cos(2 * np.pi * freq_hz * t), np.sin(2 * np.pi * freq_hz * t), np.ones_like(t)], 1)
-    coef, *_ = np.linalg.lstsq(basis, x, rcond=None)
-    return float(np.hypot(coef[0], coef[1]))
-
-
-def calibrated_pressure(recording, calibrator, rate: float, cal_rate: float, freq_hz: float,
-                        where: str = "recording") -> float:
-    """Pressure amplitude at ``freq_hz`` (Pa, zero to peak) from a mic checked with a 94 dB calibrator.
-
-    The calibrator gives 94 dB SPL = 1 Pa rms at 1 kHz (IEC 60942; SPL re 20 uPa, ISO 1683), so
-    the microphone chain reads ``1 Pa * sqrt 2`` per its fitted 1 kHz amplitude.
-    """
-    import numpy as np
-
-    from showkit.analysis.sweep import check_audio
-    from showkit.errors import MeasureError
-
-    check_audio(calibrator, "calibrator", "calibrator recording")
-    check_audio(recording, where)
-    cal = np.asarray(calibrator, dtype=float)
-    cal = cal[:, 0] if cal.ndim == 2 else cal
-    spec = np.abs(np.fft.rfft(cal * np.hanning(cal.size)))
-    f_peak = np.fft.rfftfreq(cal.size, 1 / cal_rate)[int(np.argmax(spec))]
-    if abs(f_peak - 1000.0) > 50.0:
-        raise MeasureError(f"the calibrator recording peaks at {f_peak:.0f} Hz, not 1 kHz", "--calibrator",
-                           "record the 94 dB SPL, 1 kHz calibrator on the microphone")
-    cal_amp = sine_amplitude(cal, cal_rate, f_peak)
-    return sine_amplitude(recording, rate, freq_hz) * np.sqrt(2.0) / cal_amp
 
 
 def _run_level(args) -> int:
