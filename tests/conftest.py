@@ -23,3 +23,39 @@ def air_20c():
     from showkit.physics.gas import gas_state
 
     return gas_state("air", 0.0, 293.15)
+
+
+@pytest.fixture(scope="session")
+def ui_cache(tmp_path_factory):
+    """One cache folder for the UI tests (the demo tracks are synthesized into it once)."""
+    return tmp_path_factory.mktemp("showkit-cache")
+
+
+@pytest.fixture(scope="session")
+def locked_demo_text(tmp_path_factory, ui_cache):
+    """The demo show, locked on the demo rig, as TOML text (made once per test session)."""
+    import os
+
+    from ui_support import lock_demo
+
+    old = os.environ.get("SHOWKIT_CACHE_DIR")
+    os.environ["SHOWKIT_CACHE_DIR"] = str(ui_cache)
+    try:
+        return lock_demo(tmp_path_factory.mktemp("locked-demo")).read_text(encoding="utf-8")
+    finally:
+        if old is None:
+            os.environ.pop("SHOWKIT_CACHE_DIR", None)
+        else:
+            os.environ["SHOWKIT_CACHE_DIR"] = old
+
+
+@pytest.fixture
+def ui_show(tmp_path, monkeypatch, ui_cache, locked_demo_text):
+    """A locked demo show in tmp_path (user folders in tmp, cautions already read); its Path."""
+    from ui_support import mark_cautions_read, set_folders
+
+    set_folders(monkeypatch, tmp_path, ui_cache)
+    mark_cautions_read()
+    path = tmp_path / "show.toml"
+    path.write_text(locked_demo_text, encoding="utf-8")
+    return path

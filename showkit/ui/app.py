@@ -1,0 +1,449 @@
+"""The showkit terminal UI: Show, Tube and Track views over one open cue sheet.
+
+Start it with ``showkit`` (the user's copy of the demo show), ``showkit open
+SHEET.toml`` or ``showkit open TRACK.flac --rig RIG.toml``.  The domain work
+is in :mod:`showkit.ui.session`; slow work (modes, checks, locks, track
+analysis, rendering for the audition) runs in worker threads with a progress
+bar in the status line, so keys are answered at once.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from rich.text import Text
+from textual.app import App, ComposeResult
+from textual.binding import Binding
+from textual.containers import Horizontal
+from textual.widgets import ContentSwitcher, Footer, ProgressBar, Static
+
+from showkit.errors import ShowkitError
+from showkit.ui.session import Session
+from showkit.ui.show import ShowView
+from showkit.ui.track import TrackView
+from showkit.ui.tube import TubeView
+
+VIEWS = ("show", "tube", "track")
+
+
+class ShowkitApp(App):
+    """The terminal UI.
+
+    Parameters
+    ----------
+    session : Session
+        The open sheet.
+    track : Path, optional
+        A track to analyse at once (the Track view opens first).
+    view : str
+        The first view: ``"show"``, ``"tube"`` or ``"track"``.
+    cautions : bool or None
+        Show the safety cautions at start: None for "once, at first start".
+    """
+
+    CSS_PATH = "app.tcss"
+    TITLE = "showkit"
+    ENABLE_COMMAND_PALETTE = False
+
+    BINDINGS = [
+        Binding("ctrl+q", "quit_safely", "quit", priority=True),
+        Binding("1", "view('show')", "show"),
+        Binding("2", "view('tube')", "tube"),
+        Binding("3", "view('track')", "track"),
+        Binding("m", "manometer", "manometer"),
+        Binding("a", "audition", "audition"),
+        Binding("escape", "stop", "stop sound", show=False),
+        Binding("ctrl+z", "undo", "undo"),
+        Binding("ctrl+s", "save", "save", show=False),
+        Binding("question_mark", "help", "keys"),
+        Binding("exclamation_mark", "cautions", "cautions", show=False),
+    ]
+
+    def __init__(self, session: Session, track: Path | None = None, view: str = "show",
+                 cautions: bool | None = None):
+        super().__init__()
+        self.session = session
+        self.first_track = track
+        self.first_view = view if view in VIEWS else "show"
+        self.want_cautions = cautions
+        self.audition = None
+        self._jobs: dict[str, tuple[int, int]] = {}
+        self._flames_cache: dict = {}
+        self._status_text = ""
+        self._auto_locked: set[str] = set()
+        self._serial = 0
+        self._latest: dict[str, str] = {}
+        self._last_warning = ""
+        self._audition_timer = None
+        self.background_started = False
+
+    # ------------------------------------------------------------ layout
+    def compose(self) -> ComposeResult:
+        yield Static("", id="topbar")
+        with ContentSwitcher(initial=self.first_view, id="views"):
+            yield ShowView(id="show")
+            yield TubeView(id="tube")
+            yield TrackView(id="track")
+        with Horizontal(id="statusbar"):
+            yield Static("", id="status")
+            yield ProgressBar(id="progress", show_eta=False, show_percentage=False)
+        yield Footer()
+
+    def on_mount(self) -> None:
+        self.query_one("#progress", ProgressBar).display = False
+        self.update_topbar()
+        self.action_view(self.first_view)
+        self.say("opened " + str(self.session.sheet.path))
+        # the slow work starts once the first screen is drawn (its imports would hold the GIL)
+        self.set_timer(0.15, self.start_background)
+        if self.want_cautions or (self.want_cautions is None and not _cautions_seen()):
+            from showkit.ui.safety import CautionScreen
+
+            self.push_screen(CautionScreen())
+        if self.first_track is not None:
+            self.set_timer(0.15, lambda: self.query_one(TrackView).open_track(self.first_track))
+
+    # ------------------------------------------------------------ status line and progress
+    def say(self, text: str, warn: bool = False) -> None:
+        """A message in the status line (warnings also as a notification, once per text)."""
+        self._status_text = text
+        status = self.query_one("#status", Static)
+        status.update(Text(("⚠ " if warn else "") + text))
+        status.set_class(warn, "warn")
+        if warn and text != self._last_warning:
+            self.notify(text, severity="warning", timeout=6)
+        self._last_warning = text if warn else ""
+
+    def _job(self, key: str, done: int | None = None, total: int | None = None, end: bool = False) -> None:
+        bar = self.query_one("#progress", ProgressBar)
+        if end:
+            self._jobs.pop(key, None)
+        else:
+            self._jobs[key] = (done or 0, total or 0)
+        if not self._jobs:
+            bar.display = False
+            return
+        bar.display = True
+        d = sum(v[0] for v in self._jobs.values())
+        t = sum(v[1] for v in self._jobs.values())
+        bar.update(total=t if t else None, progress=d)
+
+    def run_job(self, name: str, work, done, label: str, latest_only: bool = True):
+        """Run ``work(progress)`` in a thread, then ``done(result)`` on the UI thread.
+
+        With ``latest_only`` a result is dropped when a newer job of the same
+        name was started meanwhile (e.g. a check made before the last edit).
+        Errors go to the status line, never a traceback.
+        """
+        self._serial += 1
+        key = f"{name}#{self._serial}"
+        self._latest[name] = key
+        self._job(key, 0, 0)
+        self.say(label + "…")
+
+        def progress(k, total, what=None):
+            self.call_from_thread(self._job, key, k, total)
+
+        def thread():
+            try:
+                result = work(progress)
+            except ShowkitError as exc:
+                self.call_from_thread(self._job_failed, key, exc.line())
+                return
+            except Exception as exc:  # never a traceback in the UI
+                self.call_from_thread(self._job_failed, key, f"{label} failed: {exc.__class__.__name__}: {exc}")
+                return
+            self.call_from_thread(self._job_done, name, key, done, result, latest_only)
+
+        return self.run_worker(thread, name=key, group=name, thread=True, exclusive=False,
+                               exit_on_error=False)
+
+    def busy(self, name: str) -> bool:
+        """True while a job of this name runs."""
+        return any(k.split("#")[0] == name for k in self._jobs)
+
+    def _job_done(self, name, key, done, result, latest_only) -> None:
+        self._job(key, end=True)
+        if latest_only and self._latest.get(name) != key:
+            return
+        try:
+            done(result)
+        except ShowkitError as exc:
+            self.say(exc.line(), warn=True)
+
+    def _job_failed(self, key, text) -> None:
+        self._job(key, end=True)
+        self.say(text, warn=True)
+
+    # ------------------------------------------------------------ background work
+    def start_background(self) -> None:
+        """Rig, modes and today's checks (slow the first time: a worker)."""
+        self.background_started = True
+        self.start_modes()
+        self.start_checks()
+
+    def start_modes(self) -> None:
+        s = self.session
+
+        def work(progress):
+            rig = s.rig
+            return rig, s.compute_modes(rig)
+
+        def done(result):
+            rig, modes = result
+            s.modes = modes
+            self._flames_cache.clear()
+            tube = self.query_one(TubeView)
+            tube.refresh_facts()
+            tube.show_modes(modes)
+            self.update_topbar()
+            mode = tube.selected_mode()
+            if mode is not None:
+                self.start_mode_flames(mode)
+            self.say(f"{len(modes)} modes below the plane-wave limit")
+
+        self.run_job("modes", work, done, "finding the tube's modes")
+
+    def start_checks(self) -> None:
+        s = self.session
+        from showkit.show.sheet import sheet_to_text
+
+        text = sheet_to_text(s.sheet)
+
+        def work(progress):
+            return s.compute_checks(text, s.rig)
+
+        def done(checks):
+            if sheet_to_text(s.sheet) != text:
+                checks = {k: v for k, v in checks.items() if k in {c.id for c in s.sheet.cues}}
+            s.checks.update(checks)
+            self.query_one(ShowView).refresh_table()
+            unlocked = [c.id for c in s.sheet.cues if c.lock is None and c.id in checks
+                        and checks[c.id].status == "stale" and c.id not in self._auto_locked]
+            self._auto_locked.update(unlocked)
+            if unlocked and not self.busy("lock"):
+                self.say(f"locking {len(unlocked)} cue(s) that were never locked…")
+                self.start_lock(unlocked)
+                return
+            bad = [c for c in checks.values() if c.status != "ok"]
+            if bad:
+                from showkit.ui.show import _ui_message
+
+                self.say(f"{len(bad)} cue(s) need attention; {bad[0].id} is {bad[0].status}: "
+                         f"{_ui_message(bad[0].message)}", warn=any(c.status != "stale" for c in bad))
+            else:
+                self.say(f"all {len(checks)} cues ok for today's conditions")
+
+        self.run_job("checks", work, done, "checking every cue against today's conditions")
+
+    def start_lock(self, ids: list[str] | None, everything: bool = False) -> None:
+        s = self.session
+        from showkit.show.sheet import sheet_to_text
+
+        if everything:
+            ids = [c.id for c in s.sheet.cues]
+        text = sheet_to_text(s.sheet)
+        rig = s.rig
+
+        def work(progress):
+            return s.lock_job(ids, progress, text, rig)
+
+        def done(cues):
+            notes = s.apply_locks(cues)
+            self.start_checks()
+            self.say(f"locked {len(cues)} cue(s) (saved)" + ("; " + "; ".join(notes) if notes else ""),
+                     warn=bool(notes))
+
+        self.run_job("lock", work, done, "locking ceilings", latest_only=False)
+
+    def start_mode_flames(self, mode) -> None:
+        s = self.session
+        tube = self.query_one(TubeView)
+        drawing = tube.query_one("TubeDrawing")
+        key = (mode.n, round(mode.frequency_hz, 4), s.rig.static_pa)
+        if key in self._flames_cache:
+            h, air, ceiling = self._flames_cache[key]
+            drawing.set_flames(h, air, _flames_caption(mode, h, ceiling))
+            return
+
+        def work(progress):
+            return s.mode_flames_job(mode)
+
+        def done(result):
+            self._flames_cache[key] = result
+            h, air, ceiling = result
+            if tube.selected_mode() is not None and tube.selected_mode().n == mode.n:
+                drawing.set_flames(h, air, _flames_caption(mode, h, ceiling))
+            self.say(f"mode {mode.n}: flame row predicted at its safe level {ceiling:+.1f} dB")
+
+        self.run_job("flames", work, done, f"predicting the flame row of mode {mode.n}")
+
+    def cue_added(self, cue) -> None:
+        """After a cue was added: show it, and lock it in the background."""
+        view = self.query_one(ShowView)
+        view.refresh_table(cue.id)
+        self.say(f"added cue {cue.id} at {cue.gain_db:+.1f} dB (saved); locking its ceiling…")
+        self.start_lock([cue.id])
+
+    def change_conditions(self, static=None, temperature=None) -> None:
+        try:
+            if static is not None:
+                self.session.set_static(static)
+            if temperature is not None:
+                self.session.set_temperature(temperature)
+        except ShowkitError as exc:
+            self.say(exc.line(), warn=True)
+            return
+        self.update_topbar()
+        self.query_one(TubeView).refresh_facts()
+        self._flames_cache.clear()
+        if temperature is not None:
+            self.start_modes()
+        else:
+            mode = self.query_one(TubeView).selected_mode()
+            if mode is not None:
+                self.start_mode_flames(mode)
+        self.start_checks()
+        self.query_one(TrackView).conditions_changed()
+
+    def update_topbar(self) -> None:
+        s = self.session
+        if not s.rig_loaded:  # loading the rig imports the model: done in the background
+            self.query_one("#topbar", Static).update(Text(f"showkit  ·  {s.sheet.title}  ·  loading the rig…"))
+            return
+        try:
+            rig = s.rig
+            cond = (f"static {rig.static_pa:.1f} Pa{' (today)' if s.static_pa else ''}  ·  "
+                    f"gas {rig.temperature_k - 273.15:.1f} °C{' (today)' if s.temperature_k else ''}  ·  "
+                    f"{rig.name}")
+        except ShowkitError as exc:
+            cond = f"rig problem: {exc.line()}"
+        self.query_one("#topbar", Static).update(Text(f"showkit  ·  {s.sheet.title}  ·  {cond}"))
+
+    # ------------------------------------------------------------ actions
+    def action_view(self, name: str) -> None:
+        self.query_one(ContentSwitcher).current = name
+        target = {"show": "#cue-table", "tube": "#mode-table", "track": "#track-map"}[name]
+        # focus at once (not on the next idle), so that a key typed right after the
+        # view key already goes to the new view
+        self.screen.set_focus(self.query_one(target))
+        self.refresh_bindings()
+
+    def action_manometer(self) -> None:
+        from showkit.safety import LEVEL_CAUTION
+        from showkit.ui.dialogs import AskScreen
+
+        rig = self.session.rig
+
+        def done(values):
+            if values:
+                self.change_conditions(static=values["static"])
+                self.say(f"today's static pressure {self.session.rig.static_pa:.2f} Pa: "
+                         "ceilings re-derived")
+
+        self.push_screen(AskScreen("Today's manometer reading (static overpressure)",
+                                   [("static", 'reading (e.g. "18 Pa", "0.08 inH2O", "0.2 mbar")',
+                                     f"{rig.static_pa:g} Pa")], note=f"CAUTION: {LEVEL_CAUTION}"), done)
+
+    def action_undo(self) -> None:
+        if self.session.undo():
+            self.query_one(ShowView).refresh_table()
+            self.say("undone (saved)")
+            self.start_checks()
+        else:
+            self.say("nothing to undo")
+
+    def action_save(self) -> None:
+        try:
+            path = self.session.save()
+        except ShowkitError as exc:
+            self.say(exc.line(), warn=True)
+            return
+        self.say(f"saved {path} (previous version kept as .bak)")
+
+    def action_help(self) -> None:
+        from showkit.ui.help import HelpScreen
+
+        self.push_screen(HelpScreen([("Everywhere", self.BINDINGS), ("Show view (1)", ShowView.BINDINGS),
+                                     ("Tube view (2)", TubeView.BINDINGS),
+                                     ("Track view (3)", TrackView.BINDINGS),
+                                     ("Lists", [("up,down", "", "move the selection")])]))
+
+    def action_cautions(self) -> None:
+        from showkit.ui.safety import CautionScreen
+
+        self.push_screen(CautionScreen())
+
+    def action_audition(self) -> None:
+        view = self.query_one(ContentSwitcher).current
+        if view == "track":
+            self.query_one(TrackView).audition()
+            return
+        cid = self.query_one(ShowView).selected_id()
+        if cid is None:
+            self.say("no cue to audition")
+            return
+        s = self.session
+        check = s.checks.get(cid)
+        if check is None or check.status != "ok":
+            self.say(f"{cid} cannot be auditioned: " + ("it is being checked" if check is None else check.message),
+                     warn=True)
+            return
+        self.run_job("render", lambda progress: s.render_job(cid), self.play_rendered,
+                     f"rendering {cid} at {s.sheet.cue(cid).gain_db:+.1f} dB for the audition")
+
+    def play_rendered(self, rendered) -> None:
+        """Play a rendered (verified) cue; without a device, say so."""
+        from showkit.ui.audition import Audition
+
+        if self.audition is None:
+            self.audition = Audition()
+        try:
+            self.audition.play(rendered)
+        except ShowkitError as exc:
+            self.say(f"no audition: {exc.line()}", warn=True)
+            return
+        self.say(f"playing {rendered.id} at {rendered.gain_db:+.1f} dB -- escape stops")
+        if self._audition_timer is None:
+            self._audition_timer = self.set_interval(0.1, self._poll_audition, name="audition")
+
+    def _poll_audition(self) -> None:
+        if self.audition is None or not self.audition.playing:
+            return
+        try:
+            text = self.audition.poll()
+        except ShowkitError as exc:
+            text = exc.line()
+        if text:
+            self.say(text)
+
+    def action_stop(self) -> None:
+        if self.audition is not None and self.audition.playing:
+            self.audition.stop()
+            self.say("audition stopped")
+
+    def action_quit_safely(self) -> None:
+        """Save (safely) and quit, no dialog."""
+        if self.audition is not None:
+            try:
+                self.audition.stop()
+            except Exception:
+                pass
+        message = None
+        try:
+            self.session.save()
+        except ShowkitError as exc:
+            message = f"showkit: could not save on quit: {exc.line()}"
+        self.exit(return_code=0, message=message)
+
+
+def _cautions_seen() -> bool:
+    from showkit.ui.safety import cautions_seen
+
+    return cautions_seen()
+
+
+def _flames_caption(mode, height, ceiling_db: float) -> str:
+    lo, hi = float(min(height)), float(max(height))
+    return (f"mode {mode.n}, {mode.frequency_hz:.1f} Hz, at its safe level {ceiling_db:+.1f} dB: "
+            f"flames {lo:.3f} to {hi:.3f} of still height (! air drawn in)")

@@ -1,0 +1,57 @@
+"""Audition: play one rendered cue (already verified at its gain) through the audio device.
+
+Uses the live engine (:mod:`showkit.show.engine`), which only ever scales a
+rendered cue down.  Without PortAudio or a device, :meth:`Audition.play`
+raises the engine's DeviceError, whose one line the UI shows.
+"""
+
+from __future__ import annotations
+
+
+class Audition:
+    """At most one cue playing at a time."""
+
+    def __init__(self):
+        self.engine = None
+        self.cue_id: str | None = None
+
+    def play(self, rendered) -> None:
+        """Play a :class:`showkit.show.render.RenderedCue` (stops anything playing)."""
+        from showkit.show.engine import Engine
+        from showkit.show.playlist import RenderedCue
+
+        self.stop()
+        cue = RenderedCue(id=rendered.id, label=rendered.label, samples=rendered.samples,
+                          rate_hz=rendered.rate_hz, then="wait", gain_db=rendered.gain_db,
+                          ceiling_db=rendered.ceiling_db, status="ok")
+        engine = Engine([cue])
+        engine.open(device=None)
+        engine.go(0)
+        self.engine, self.cue_id = engine, rendered.id
+
+    def poll(self) -> str | None:
+        """A line for the status bar: what is playing, or how it ended (None when idle)."""
+        if self.engine is None:
+            return None
+        events = self.engine.poll()
+        st = self.engine.status()
+        ended = [e for e in events if e.kind in ("stop", "device_error", "panic")]
+        if ended or st.state in ("fault", "panic", "closed"):
+            text = st.message or (ended[-1].detail if ended else st.state)
+            self.stop()
+            return f"audition: {text}"
+        if st.state == "playing":
+            return f"playing {st.cue_id}: {st.elapsed_s:.1f} s, {st.left_s:.1f} s left -- escape stops"
+        return None
+
+    @property
+    def playing(self) -> bool:
+        return self.engine is not None
+
+    def stop(self) -> None:
+        if self.engine is not None:
+            engine, self.engine, self.cue_id = self.engine, None, None
+            try:
+                engine.panic()
+            finally:
+                engine.close()

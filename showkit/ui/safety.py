@@ -1,0 +1,53 @@
+"""The safety cautions (physics.md section 11): shown once at first start, and on request."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from textual.app import ComposeResult
+from textual.binding import Binding
+from textual.containers import VerticalScroll
+from textual.screen import ModalScreen
+from textual.widgets import Static
+
+from showkit.safety import CAUTION_TITLE, CAUTIONS, LEVEL_CAUTION
+
+MARKER = "cautions-read"
+
+
+def marker_path() -> Path:
+    from showkit.demo_files import data_folder
+
+    return data_folder() / MARKER
+
+
+def cautions_seen() -> bool:
+    return marker_path().exists()
+
+
+def mark_cautions_seen() -> None:
+    """Remember that the cautions were read (best effort: an unwritable folder is no error)."""
+    try:
+        p = marker_path()
+        p.parent.mkdir(parents=True, exist_ok=True)
+        p.write_text("The safety cautions were shown and acknowledged.\n", encoding="utf-8")
+    except OSError:
+        pass
+
+
+class CautionScreen(ModalScreen[None]):
+    """The cautions, one paragraph each; enter or escape closes."""
+
+    BINDINGS = [Binding("enter", "close", "I have read this"), Binding("escape", "close", "close")]
+
+    def compose(self) -> ComposeResult:
+        with VerticalScroll(id="caution-box"):
+            yield Static(CAUTION_TITLE, id="caution-title")
+            for text in CAUTIONS:
+                yield Static(f"• {text}", classes="caution-item")
+            yield Static(LEVEL_CAUTION, id="caution-level")
+            yield Static("enter: I have read this    (read again any time with !)", id="caution-keys")
+
+    def action_close(self) -> None:
+        mark_cautions_seen()
+        self.dismiss(None)

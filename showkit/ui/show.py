@@ -1,0 +1,279 @@
+"""The Show view: the cue list with gain, ceiling, a headroom bar and status."""
+
+from __future__ import annotations
+
+from rich.markup import escape
+from rich.text import Text
+from textual.app import ComposeResult
+from textual.binding import Binding
+from textual.containers import Vertical
+from textual.widgets import DataTable, Static
+
+from showkit.errors import ShowkitError
+from showkit.safety import LEVEL_CAUTION
+from showkit.ui.drawing import headroom_bar
+from showkit.ui.session import GAIN_STEP_DB, describe_source
+
+STATUS_MARK = {"ok": "ok", "over": "OVER", "stale": "stale", "error": "error", None: "…"}
+
+
+class CueTable(DataTable):
+    """The cue list (keeps DataTable's cursor keys)."""
+
+
+class ShowView(Vertical):
+    """Cue list, details of the selected cue, and the level caution."""
+
+    BINDINGS = [
+        Binding("plus,equals_sign", "gain(1)", "gain +0.5"),
+        Binding("minus", "gain(-1)", "gain -0.5"),
+        Binding("G", "type_gain", "type gain"),
+        Binding("e", "edit", "edit cue"),
+        Binding("n", "toggle_then", "wait/next"),
+        Binding("left_square_bracket", "move(-1)", "move up", show=False),
+        Binding("right_square_bracket", "move(1)", "move down", show=False),
+        Binding("t", "add_tone", "+tone"),
+        Binding("w", "add_glide", "+glide", show=False),
+        Binding("p", "add_pause", "+pause", show=False),
+        Binding("x", "delete", "delete cue", show=False),
+        Binding("L", "relock", "re-lock"),
+    ]
+
+    def compose(self) -> ComposeResult:
+        yield Static("", id="show-title")
+        table = CueTable(id="cue-table", cursor_type="row", zebra_stripes=False)
+        yield table
+        yield Static("", id="cue-detail")
+        yield Static(f"CAUTION: {LEVEL_CAUTION}", id="level-caution")
+
+    def on_mount(self) -> None:
+        table = self.query_one(CueTable)
+        table.add_column("#", key="n", width=2)
+        table.add_column("cue", key="id", width=14)
+        table.add_column("gain", key="gain", width=6)
+        table.add_column("ceiling", key="ceiling", width=7)
+        table.add_column("headroom", key="bar", width=10)
+        table.add_column("state", key="state", width=5)
+        table.add_column("then", key="then", width=4)
+        table.add_column("label", key="label", width=22)
+        table.add_column("source", key="source")
+        self.refresh_table()
+
+    # ------------------------------------------------------------ drawing
+    @property
+    def session(self):
+        return self.app.session
+
+    def selected_id(self) -> str | None:
+        table = self.query_one(CueTable)
+        cues = self.session.sheet.cues
+        if not cues:
+            return None
+        row = min(max(table.cursor_row, 0), len(cues) - 1)
+        return cues[row].id
+
+    def refresh_table(self, select: str | None = None) -> None:
+        table = self.query_one(CueTable)
+        keep = select or self.selected_id()
+        table.clear()
+        sheet = self.session.sheet
+        for k, cue in enumerate(sheet.cues, 1):
+            check = self.session.checks.get(cue.id)
+            status = None if check is None else check.status
+            ceiling = "" if check is None or check.ceiling_db is None else f"{check.ceiling_db:+.1f}"
+            head = None if check is None else check.headroom_db
+            state = Text(STATUS_MARK[status], style="bold reverse" if status in ("over", "error") else
+                         ("italic" if status == "stale" else ""))
+            table.add_row(str(k), cue.id, f"{cue.gain_db:+.1f}", ceiling, headroom_bar(head), state,
+                          cue.then, cue.label, describe_source(cue), key=cue.id)
+        if keep is not None and keep in [c.id for c in sheet.cues]:
+            table.move_cursor(row=sheet.index(keep))
+        self.query_one("#show-title", Static).update(self._title())
+        self.refresh_detail()
+
+    def _title(self) -> str:
+        s = self.session
+        checks = list(s.checks.values())
+        counts = {k: sum(1 for c in checks if c.status == k) for k in ("ok", "over", "stale", "error")}
+        state = "  ".join(f"{v} {k}" for k, v in counts.items() if v) or "checking…"
+        return f"[b]{escape(s.sheet.title)}[/b]  ({len(s.sheet.cues)} cues: {state})  {escape(s.sheet.path.name)}"
+
+    def refresh_detail(self) -> None:
+        cid = self.selected_id()
+        detail = self.query_one("#cue-detail", Static)
+        if cid is None:
+            detail.update("No cues yet: t adds a tone, w a glide, p a pause; the Track view adds passages.")
+            return
+        cue = self.session.sheet.cue(cid)
+        check = self.session.checks.get(cid)
+        msg = "checking…" if check is None else _ui_message(check.message)
+        ceiling = "" if check is None or check.ceiling_db is None else f", ceiling {check.ceiling_db:+.2f} dB"
+        detail.update(f"[b]{escape(cue.id)}[/b]  gain {cue.gain_db:+.2f} dB{ceiling}, fade in {cue.fade_in_s:g} s, "
+                      f"out {cue.fade_out_s:g} s, then {cue.then}{', ride' if cue.ride else ''}\n{escape(msg)}")
+
+    def on_data_table_row_highlighted(self, event: DataTable.RowHighlighted) -> None:
+        self.refresh_detail()
+
+    # ------------------------------------------------------------ actions
+    def _cue_or_say(self) -> str | None:
+        cid = self.selected_id()
+        if cid is None:
+            self.app.say("the show has no cues yet")
+        return cid
+
+    def action_gain(self, direction: int) -> None:
+        cid = self._cue_or_say()
+        if cid is None:
+            return
+        change = self.session.nudge_gain(cid, direction * GAIN_STEP_DB)
+        self.refresh_table(cid)
+        self.app.say(change.note or f"{cid}: gain {change.gain_db:+.2f} dB (saved)",
+                     warn=change.stopped)
+
+    def action_type_gain(self) -> None:
+        cid = self._cue_or_say()
+        if cid is None:
+            return
+        cue = self.session.sheet.cue(cid)
+        ceiling = self.session.ceiling_of(cid)
+        top = "unknown until locked" if ceiling is None else f"{ceiling:+.2f} dB"
+
+        def done(values):
+            if not values:
+                return
+            try:
+                gain = float(values["gain"].lower().removesuffix("db").strip())
+            except ValueError:
+                self.app.say(f"cannot read {values['gain']!r} as a gain in dB", warn=True)
+                return
+            change = self.session.set_gain(cid, gain)
+            self.refresh_table(cid)
+            self.app.say(change.note or f"{cid}: gain {change.gain_db:+.2f} dB (saved)", warn=change.stopped)
+
+        from showkit.ui.dialogs import AskScreen
+
+        self.app.push_screen(AskScreen(f"Gain of {cid} (ceiling today: {top})",
+                                       [("gain", "gain, dB", f"{cue.gain_db:g}")],
+                                       note=f"CAUTION: {LEVEL_CAUTION}"), done)
+
+    def action_edit(self) -> None:
+        cid = self._cue_or_say()
+        if cid is None:
+            return
+        cue = self.session.sheet.cue(cid)
+        from showkit.ui.dialogs import AskScreen
+
+        def done(values):
+            if not values:
+                return
+            try:
+                then = values["then"].strip().lower()
+                new = self.session.edit_cue(cid, label=values["label"], fade_in_s=_seconds(values["fade_in"]),
+                                            fade_out_s=_seconds(values["fade_out"]), then=then,
+                                            notes=values["notes"])
+            except (ShowkitError, ValueError) as exc:
+                self.app.say(exc.line() if isinstance(exc, ShowkitError) else str(exc), warn=True)
+                return
+            self.refresh_table(cid)
+            self.app.say(f"{cid}: changed (saved)")
+            if self.session.checks.get(cid) is None:
+                self.app.start_lock([new.id])
+
+        self.app.push_screen(AskScreen(f"Cue {cid}", [
+            ("label", "label", cue.label), ("fade_in", "fade in, s", f"{cue.fade_in_s:g}"),
+            ("fade_out", "fade out, s", f"{cue.fade_out_s:g}"), ("then", "then (wait or next)", cue.then),
+            ("notes", "notes", cue.notes)]), done)
+
+    def action_toggle_then(self) -> None:
+        cid = self._cue_or_say()
+        if cid is None:
+            return
+        cue = self.session.sheet.cue(cid)
+        self.session.edit_cue(cid, then="next" if cue.then == "wait" else "wait")
+        self.refresh_table(cid)
+        self.app.say(f"{cid}: then {self.session.sheet.cue(cid).then} (saved)")
+
+    def action_move(self, delta: int) -> None:
+        cid = self._cue_or_say()
+        if cid is None:
+            return
+        self.session.move(cid, delta)
+        self.refresh_table(cid)
+        self.app.say(f"{cid}: now cue {self.session.sheet.index(cid) + 1} (saved)")
+
+    def action_add_tone(self, mode: int | None = None) -> None:
+        from showkit.ui.dialogs import AskScreen
+
+        def done(values):
+            if not values:
+                return
+            try:
+                cue = self.session.add_tone(int(values["mode"]), _seconds(values["duration"]),
+                                            after=self.selected_id())
+            except (ShowkitError, ValueError) as exc:
+                self.app.say(exc.line() if isinstance(exc, ShowkitError) else f"cannot read that: {exc}", warn=True)
+                return
+            self.app.cue_added(cue)
+
+        self.app.push_screen(AskScreen("New tone cue", [("mode", "mode number", "3" if mode is None else str(mode)),
+                                                        ("duration", "duration, s", "10")]), done)
+
+    def action_add_glide(self) -> None:
+        from showkit.ui.dialogs import AskScreen
+
+        def done(values):
+            if not values:
+                return
+            try:
+                cue = self.session.add_glide(int(values["from"]), int(values["to"]), _seconds(values["duration"]),
+                                             after=self.selected_id())
+            except (ShowkitError, ValueError) as exc:
+                self.app.say(exc.line() if isinstance(exc, ShowkitError) else f"cannot read that: {exc}", warn=True)
+                return
+            self.app.cue_added(cue)
+
+        self.app.push_screen(AskScreen("New glide cue", [("from", "from mode", "2"), ("to", "to mode", "8"),
+                                                         ("duration", "duration, s", "15")]), done)
+
+    def action_add_pause(self) -> None:
+        from showkit.ui.dialogs import AskScreen
+
+        def done(values):
+            if not values:
+                return
+            try:
+                cue = self.session.add_pause(_seconds(values["duration"]), after=self.selected_id())
+            except (ShowkitError, ValueError) as exc:
+                self.app.say(exc.line() if isinstance(exc, ShowkitError) else f"cannot read that: {exc}", warn=True)
+                return
+            self.app.cue_added(cue)
+
+        self.app.push_screen(AskScreen("New pause (talk) cue", [("duration", "duration, s", "20")]), done)
+
+    def action_delete(self) -> None:
+        cid = self._cue_or_say()
+        if cid is None:
+            return
+        self.session.delete(cid)
+        self.refresh_table()
+        self.app.say(f"{cid}: deleted (saved; ctrl+z brings it back)")
+
+    def action_relock(self) -> None:
+        self.app.start_lock(None, everything=True)
+
+
+def _ui_message(text: str) -> str:
+    """The check's message with the UI's key instead of the command line."""
+    import re
+
+    return re.sub(r"run `showkit lock [^`]*` to re-lock", "press L to lock it", text)
+
+
+def _seconds(text: str) -> float:
+    from showkit import units
+
+    t = text.strip()
+    try:
+        return float(t)
+    except ValueError:
+        return units.duration_s(t, "duration")

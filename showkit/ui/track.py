@@ -1,0 +1,376 @@
+"""The Track view: which modes a track drives when, its passages, and the flames at a cursor."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from rich.markup import escape
+from rich.text import Text
+from textual.app import ComposeResult
+from textual.binding import Binding
+from textual.containers import Vertical
+from textual.widget import Widget
+from textual.widgets import DataTable, Static
+
+from showkit.errors import ShowkitError
+from showkit.ui.drawing import flame_rows, hole_columns, mode_map, span_strip
+
+#: Cursor steps, s.
+STEP_S = 0.5
+BIG_STEP_S = 5.0
+FLAME_LINES = 4
+
+
+class TrackMap(Widget, can_focus=True):
+    """The time x mode map with the passages under it and the cursor as a column."""
+
+    DEFAULT_CSS = "TrackMap { height: auto; }"
+
+    def __init__(self, **kw):
+        super().__init__(**kw)
+        self.analysis = None
+        self.cursor_s = 0.0
+        self.selected = None
+        self.mark_in = None
+        self.mark_out = None
+
+    def get_content_height(self, container, viewport, width: int) -> int:
+        if self.analysis is None:
+            return 2
+        return len(self.analysis.map_modes) + 2
+
+    def render(self) -> Text:
+        a = self.analysis
+        label_w = 4
+        width = max(8, self.size.width - label_w)
+        out = Text()
+        if a is None:
+            out.append("No track open: o opens one (the demo tracks are listed there).", style="italic")
+            return out
+        lines = mode_map(a.map_energy, a.map_times_s, a.duration_s, width, self.cursor_s) if a.map_modes else []
+        for n, line in zip(reversed(a.map_modes), lines):
+            out.append(f"{n:>3} ", style="dim")
+            out.append(line)
+            out.append("\n")
+        spans = [(p["start_s"], p["end_s"]) for p in a.passages]
+        out.append(" ps ", style="dim")
+        out.append(span_strip(spans, a.duration_s, width, self.selected, self.cursor_s))
+        out.append("\n")
+        out.append(" io ", style="dim")
+        marks = [" "] * width
+        for t, ch in ((self.mark_in, "("), (self.mark_out, ")")):
+            if t is not None and a.duration_s > 0:
+                marks[int(min(width - 1, t / a.duration_s * width))] = ch
+        if self.mark_in is not None and self.mark_out is not None and a.duration_s > 0:
+            c0 = int(min(width - 1, self.mark_in / a.duration_s * width)) + 1
+            c1 = int(min(width - 1, self.mark_out / a.duration_s * width))
+            for c in range(c0, c1):
+                marks[c] = "═"
+        out.append("".join(marks))
+        return out
+
+
+class CursorFlames(Widget):
+    """The predicted flame row at the cursor (one bar per hole, ! where air is drawn in)."""
+
+    DEFAULT_CSS = "CursorFlames { height: 5; }"
+
+    def __init__(self, **kw):
+        super().__init__(**kw)
+        self.height_row = None
+        self.air_row = None
+        self.positions_m: list[float] = []
+        self.length_m = 1.0
+        self.scale = (None, None)
+
+    def set_row(self, height, air, positions_m, length_m, scale) -> None:
+        self.height_row, self.air_row = height, air
+        self.positions_m, self.length_m, self.scale = positions_m, length_m, scale
+        self.refresh()
+
+    def render(self) -> Text:
+        width = max(10, self.size.width - 2)
+        out = Text()
+        if self.height_row is None:
+            return out
+        cols = hole_columns(self.positions_m, self.length_m, width)
+        for r in flame_rows(self.height_row, self.air_row, cols, width, FLAME_LINES, *self.scale):
+            out.append(" ")
+            out.append(r)
+            out.append("\n")
+        out.append("▐", style="bold")
+        out.append("─" * width, style="dim")
+        out.append("▌", style="bold")
+        return out
+
+
+class PassageTable(DataTable):
+    """The passages found by the scan, best first."""
+
+
+class TrackView(Vertical):
+    """Track analysis: map, passages, cursor flames; add passages to the show."""
+
+    BINDINGS = [
+        Binding("o", "open", "open track"),
+        Binding("left", "step(-1)", "◀", show=False),
+        Binding("right", "step(1)", "▶", show=False),
+        Binding("shift+left", "step(-10)", "◀◀", show=False),
+        Binding("shift+right", "step(10)", "▶▶", show=False),
+        Binding("home", "to_edge(0)", "start", show=False),
+        Binding("end", "to_edge(1)", "end", show=False),
+        Binding("b", "passage(-1)", "back passage"),
+        Binding("f", "passage(1)", "forward passage"),
+        Binding("left_parenthesis", "mark('in')", "in here", show=False),
+        Binding("right_parenthesis", "mark('out')", "out here", show=False),
+        Binding("c", "add_cue", "add to show"),
+        Binding("plus,equals_sign", "transpose(1)", "transpose +1"),
+        Binding("minus", "transpose(-1)", "transpose -1"),
+    ]
+
+    def __init__(self, **kw):
+        super().__init__(**kw)
+        self.path: Path | None = None
+        self.wanted = ""
+        self.analysis = None
+        self.transpose = 0
+        self.selection = None   # (start_s, end_s, ceiling_db or None, contrast or None)
+
+    def compose(self) -> ComposeResult:
+        yield Static("", id="track-title")
+        yield TrackMap(id="track-map")
+        yield Static("", id="cursor-facts")
+        yield CursorFlames(id="cursor-flames")
+        yield PassageTable(id="passage-table", cursor_type="row")
+
+    def on_mount(self) -> None:
+        t = self.query_one(PassageTable)
+        for label, key, width in (("#", "n", 2), ("from", "a", 7), ("to", "b", 7), ("score", "score", 5),
+                                  ("modes", "modes", 12), ("ceiling", "ceiling", 7), ("contrast", "contrast", 8)):
+            t.add_column(label, key=key, width=width)
+        self.query_one("#track-title", Static).update(
+            "No track open yet: o opens a track (demo tracks are offered).")
+
+    @property
+    def session(self):
+        return self.app.session
+
+    # ------------------------------------------------------------ opening and analysis
+    def action_open(self) -> None:
+        from showkit.ui.dialogs import AskScreen
+
+        choices = self.session.track_choices()
+        names = "  ".join(c.removeprefix("demo:") for c in choices[:6])
+
+        def done(values):
+            if values and values["path"].strip():
+                self.open_track(values["path"].strip())
+
+        first = str(self.path or (choices[0] if choices else ""))
+        self.app.push_screen(AskScreen("Open a track", [("path", "audio file (FLAC, WAV, OGG ...) or a demo name",
+                                                         first)],
+                                       note=f"demo tracks: {names}" if names else ""), done)
+
+    def open_track(self, path) -> None:
+        """Open a track by name or path; it is found and analysed in the background."""
+        self.path = None
+        self.wanted = str(path)
+        self.transpose = 0
+        self.selection = None
+        m = self.query_one(TrackMap)
+        m.mark_in = m.mark_out = None
+        m.selected = None
+        m.cursor_s = 0.0
+        self.analyse()
+
+    def analyse(self) -> None:
+        s = self.session
+        wanted, shift = str(self.path or self.wanted), self.transpose
+
+        def work(progress):
+            return s.track_job(wanted, shift, progress)
+
+        def done(analysis):
+            if wanted != str(self.path or self.wanted) or shift != self.transpose:
+                return
+            self.path = analysis.path
+            self.show_analysis(analysis)
+
+        name = Path(wanted.removeprefix("demo:")).name
+        self.query_one("#track-title", Static).update(Text(f"{name}  analysing…"))
+        self.app.run_job("track", work, done, f"analysing {name}" + (f" transposed {shift:+d}" if shift else ""))
+
+    def conditions_changed(self) -> None:
+        if self.path is not None:
+            self.analyse()
+
+    def show_analysis(self, a) -> None:
+        old = self.analysis
+        self.analysis = a
+        m = self.query_one(TrackMap)
+        m.analysis = a
+        m.cursor_s = min(m.cursor_s, a.duration_s)
+        t = self.query_one(PassageTable)
+        t.clear()
+        for k, p in enumerate(a.passages, 1):
+            t.add_row(str(k), _clock(p["start_s"]), _clock(p["end_s"]), f"{p['score']:.1f}",
+                      " ".join(str(n) for n in p.get("modes", [])[:4]),
+                      f"{p['ceiling_db']:+.1f}" if p.get("ceiling_db") is not None else "",
+                      f"{p['contrast']:.2f}" if p.get("contrast") is not None else "", key=str(k))
+        before = "" if old is None or old.path != a.path or old.transpose == a.transpose else \
+            f" (was {old.score:.1f} at {old.transpose:+d})"
+        self.query_one("#track-title", Static).update(
+            f"[b]{escape(a.path.name)}[/b]  {_clock(a.duration_s)}  transposed {a.transpose:+d} st  "
+            f"score {a.score:.1f}{before}  ceiling {a.ceiling_db:+.1f} dB  "
+            + (f"scan suggests {a.suggestion:+d} st" if a.suggestion else "")
+            + ("" if a.map_modes else "  (no mode map: " + a.note + ")"))
+        m.refresh(layout=True)
+        if a.passages and m.selected is None:
+            self.select_passage(0)
+        self.update_cursor()
+        self.app.say(f"{a.path.name}: {len(a.passages)} passages; f/b move between them, c adds one")
+
+    # ------------------------------------------------------------ cursor
+    def update_cursor(self) -> None:
+        a = self.analysis
+        if a is None:
+            return
+        m = self.query_one(TrackMap)
+        k = a.frame_at(m.cursor_s)
+        rig = self.session.rig
+        g = rig.geometry
+        self.query_one(CursorFlames).set_row(a.height[k], a.air_in[k], g.hole_positions_m, g.length_m,
+                                             (a.height_lo, a.height_hi))
+        notes = a.notes_at(m.cursor_s)
+        sel = self.selection
+        chosen = "" if m.selected is None or m.selected >= len(a.passages) else (
+            f"passage {m.selected + 1} (score {a.passages[m.selected]['score']:.1f}) ")
+        sel_text = "" if sel is None else (
+            f"   {chosen or 'selection '}{_clock(sel[0])}-{_clock(sel[1])}"
+            + (f" ceiling {sel[2]:+.1f} dB, contrast {sel[3]:.2f}" if sel[2] is not None else " (measuring…)"))
+        air = int((a.air_in[k] > 0).sum())
+        self.query_one("#cursor-facts", Static).update(
+            f"at {_clock(m.cursor_s)}  flame contrast {a.contrast_frame[k]:.2f}  "
+            f"(bars {a.height_lo:.2f}-{a.height_hi:.2f} of still height)"
+            + (f"  air drawn in at {air} holes" if air else "")
+            + f"   notes: {notes or '—'}{sel_text}")
+        m.refresh()
+
+    def action_step(self, steps: int) -> None:
+        if self.analysis is None:
+            return
+        m = self.query_one(TrackMap)
+        m.cursor_s = min(max(0.0, m.cursor_s + steps * STEP_S), self.analysis.duration_s)
+        self.update_cursor()
+
+    def action_to_edge(self, end: int) -> None:
+        if self.analysis is None:
+            return
+        self.query_one(TrackMap).cursor_s = self.analysis.duration_s if end else 0.0
+        self.update_cursor()
+
+    # ------------------------------------------------------------ passages and selection
+    def select_passage(self, k: int) -> None:
+        a = self.analysis
+        if a is None or not a.passages:
+            return
+        k = max(0, min(len(a.passages) - 1, k))
+        p = a.passages[k]
+        m = self.query_one(TrackMap)
+        m.selected = k
+        m.cursor_s = p["start_s"]
+        m.mark_in, m.mark_out = p["start_s"], p["end_s"]
+        self.selection = (p["start_s"], p["end_s"], p.get("ceiling_db"), p.get("contrast"))
+        t = self.query_one(PassageTable)
+        if t.row_count > k:
+            t.move_cursor(row=k)
+        self.update_cursor()
+
+    def action_passage(self, delta: int) -> None:
+        m = self.query_one(TrackMap)
+        if self.analysis is None or not self.analysis.passages:
+            self.app.say("no passages")
+            return
+        k = 0 if m.selected is None else m.selected + delta
+        self.select_passage(k % len(self.analysis.passages))
+
+    def on_data_table_row_selected(self, event: DataTable.RowSelected) -> None:
+        if isinstance(event.data_table, PassageTable):
+            self.select_passage(event.cursor_row)
+
+    def action_mark(self, which: str) -> None:
+        if self.analysis is None:
+            return
+        m = self.query_one(TrackMap)
+        if which == "in":
+            m.mark_in = m.cursor_s
+            if m.mark_out is not None and m.mark_out <= m.mark_in:
+                m.mark_out = None
+        else:
+            m.mark_out = m.cursor_s
+            if m.mark_in is not None and m.mark_in >= m.mark_out:
+                m.mark_in = None
+        m.selected = None
+        if m.mark_in is not None and m.mark_out is not None:
+            self.measure_selection(m.mark_in, m.mark_out)
+        else:
+            self.selection = None
+            self.app.say(f"{which} set at {_clock(m.cursor_s)}; set the other end with "
+                         + ("')'" if which == "in" else "'('"))
+        self.update_cursor()
+
+    def measure_selection(self, start_s: float, end_s: float) -> None:
+        s = self.session
+        path = self.path
+        self.selection = (start_s, end_s, None, None)
+
+        def work(progress):
+            return s.passage_job(path, start_s, end_s)
+
+        def done(report):
+            if self.selection and self.selection[:2] == (start_s, end_s):
+                self.selection = (start_s, end_s, report.ceiling_db, report.contrast)
+                self.update_cursor()
+                self.app.say(f"selection {_clock(start_s)}-{_clock(end_s)}: ceiling {report.ceiling_db:+.1f} dB, "
+                             f"contrast {report.contrast:.2f}; c adds it to the show")
+
+        self.app.run_job("passage", work, done, "measuring the selection's ceiling")
+
+    def action_add_cue(self) -> None:
+        if self.analysis is None or self.selection is None:
+            self.app.say("select a passage first (f/b, or ( and ) at the cursor)")
+            return
+        start, end, ceiling, _ = self.selection
+        if ceiling is None:
+            self.app.say("the selection's ceiling is still being measured; try again in a moment")
+            return
+        if self.transpose:
+            self.app.say("cues play the track as recorded: the transposition is not added to the cue", warn=True)
+        try:
+            cue = self.session.add_passage(self.path, start, end, ceiling)
+        except ShowkitError as exc:
+            self.app.say(exc.line(), warn=True)
+            return
+        self.app.cue_added(cue)
+
+    def action_transpose(self, delta: int) -> None:
+        if self.path is None and not self.wanted:
+            self.app.say("open a track first (o)")
+            return
+        self.transpose = max(-12, min(12, self.transpose + delta))
+        self.analyse()
+
+    def audition(self) -> None:
+        if self.selection is None or self.path is None:
+            self.app.say("select a passage to audition")
+            return
+        start, end, ceiling, _ = self.selection
+        s = self.session
+        path = self.path
+        self.app.run_job("render", lambda progress: s.passage_audition_job(path, start, end),
+                         self.app.play_rendered, "rendering the passage at a safe gain for the audition")
+
+
+def _clock(seconds: float) -> str:
+    m, s = divmod(max(0.0, float(seconds)), 60.0)
+    return f"{int(m)}:{s:04.1f}"

@@ -1,0 +1,154 @@
+"""The Tube view: the rig drawn to scale as a row of flames, its conditions and its modes."""
+
+from __future__ import annotations
+
+from rich.text import Text
+from textual.app import ComposeResult
+from textual.binding import Binding
+from textual.containers import Vertical
+from textual.widget import Widget
+from textual.widgets import DataTable, Static
+
+from showkit.ui.drawing import flame_rows, hole_columns, ruler, tube_line
+
+FLAME_LINES = 5
+
+
+class TubeDrawing(Widget):
+    """The tube to scale with the predicted flame row of the selected mode above it."""
+
+    DEFAULT_CSS = "TubeDrawing { height: 8; }"
+
+    def __init__(self, **kw):
+        super().__init__(**kw)
+        self.positions_m: list[float] = []
+        self.length_m = 1.0
+        self.height_row = None
+        self.air_row = None
+        self.caption = ""
+
+    def set_rig(self, positions_m, length_m: float) -> None:
+        self.positions_m, self.length_m = list(positions_m), float(length_m)
+        self.refresh()
+
+    def set_flames(self, height, air_in, caption: str) -> None:
+        self.height_row, self.air_row, self.caption = height, air_in, caption
+        self.refresh()
+
+    def render(self) -> Text:
+        width = max(10, self.size.width - 2)
+        cols = hole_columns(self.positions_m, self.length_m, width)
+        out = Text()
+        out.append(self.caption[: self.size.width] + "\n", style="italic")
+        if self.height_row is None:
+            rows = [Text(" " * width) for _ in range(FLAME_LINES - 1)] + \
+                [Text("".join("▴" if c in set(cols) else " " for c in range(width)), style="dim")]
+        else:
+            rows = flame_rows(self.height_row, self.air_row, cols, width, FLAME_LINES)
+        for r in rows:
+            out.append(" ")
+            out.append(r)
+            out.append("\n")
+        out.append("▐", style="bold")
+        out.append(tube_line(cols, width))
+        out.append("▌\n", style="bold")
+        out.append(" ")
+        out.append(ruler(self.length_m, width))
+        return out
+
+
+class ModeTable(DataTable):
+    """The modes of the tube."""
+
+
+class TubeView(Vertical):
+    """Rig facts, the tube drawing and the modes table."""
+
+    BINDINGS = [
+        Binding("d", "temperature", "gas temperature"),
+        Binding("c", "tone_cue", "tone cue on mode"),
+    ]
+
+    def compose(self) -> ComposeResult:
+        yield Static("", id="rig-facts")
+        yield TubeDrawing(id="tube-drawing")
+        yield ModeTable(id="mode-table", cursor_type="row")
+
+    def on_mount(self) -> None:
+        t = self.query_one(ModeTable)
+        for label, key, width in (("mode", "n", 4), ("Hz", "hz", 8), ("note", "note", 9), ("Q", "q", 6),
+                                  ("flames", "peaks", 6), ("spacing", "spacing", 8), ("pattern", "pattern", 11)):
+            t.add_column(label, key=key, width=width)
+
+    @property
+    def session(self):
+        return self.app.session
+
+    def refresh_facts(self) -> None:
+        try:
+            rig = self.session.rig
+        except Exception as exc:  # a bad rig file is already reported by the app
+            self.query_one("#rig-facts", Static).update(f"rig not loaded: {exc}")
+            return
+        g = rig.geometry
+        temp_c = rig.temperature_k - 273.15
+        marks = []
+        if self.session.static_pa is not None:
+            marks.append("static: today's reading")
+        if self.session.temperature_k is not None:
+            marks.append("temperature: today's")
+        self.query_one("#rig-facts", Static).update(
+            f"[b]{rig.name}[/b]  {g.length_m * 1000:.0f} mm long, bore {g.bore_m * 1000:.0f} mm, "
+            f"{g.hole_count} holes of {g.hole_diameter_m * 1000:.1f} mm\n"
+            f"gas {rig.fuel} ({rig.air_fraction * 100:.0f} % air) at {temp_c:.1f} °C   "
+            f"static {rig.static_pa:.1f} Pa   reserve {rig.reserve * 100:.0f} %"
+            + (f"   ({', '.join(marks)})" if marks else "") + "\n"
+            f"calibration: {rig.drive.describe()}")
+        self.query_one(TubeDrawing).set_rig(g.hole_positions_m, g.length_m)
+
+    def show_modes(self, modes) -> None:
+        t = self.query_one(ModeTable)
+        keep = t.cursor_row
+        t.clear()
+        for m in modes:
+            t.add_row(str(m.n), f"{m.frequency_hz:.2f}", f"{m.note} {m.cents:+.0f}c",
+                      "-" if m.q is None else f"{m.q:.0f}", str(m.flame_peaks),
+                      "-" if m.peak_spacing_m is None else f"{m.peak_spacing_m * 1000:.0f} mm",
+                      m.pattern, key=str(m.n))
+        if modes:
+            t.move_cursor(row=min(max(keep, 0), len(modes) - 1))
+
+    def selected_mode(self):
+        modes = self.session.modes
+        if not modes:
+            return None
+        row = min(max(self.query_one(ModeTable).cursor_row, 0), len(modes) - 1)
+        return modes[row]
+
+    def on_data_table_row_highlighted(self, event: DataTable.RowHighlighted) -> None:
+        mode = self.selected_mode()
+        if mode is not None:
+            self.app.start_mode_flames(mode)
+
+    def action_temperature(self) -> None:
+        from showkit.ui.dialogs import AskScreen
+
+        rig = self.session.rig
+
+        def done(values):
+            if values:
+                self.app.change_conditions(temperature=values["temperature"])
+
+        self.app.push_screen(AskScreen("Gas temperature in the tube today",
+                                       [("temperature", "temperature (e.g. 18 C, 291 K, 64 F)",
+                                         f"{rig.temperature_k - 273.15:.1f} C")],
+                                       note="Modes and ceilings follow at once; locks made at another "
+                                            "temperature become stale (re-lock with L in the Show view)."), done)
+
+    def action_tone_cue(self) -> None:
+        mode = self.selected_mode()
+        if mode is None:
+            self.app.say("the modes are still being computed")
+            return
+        cue = self.session.add_tone(mode.n, 10.0, after=None)
+        self.app.cue_added(cue)
