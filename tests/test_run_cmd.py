@@ -21,7 +21,6 @@ from showkit.cli.main import main
 from showkit.safety import CAUTION_TITLE
 from showkit.show import devices, render
 from showkit.show.engine import Engine
-from showkit.show.playlist import RenderedCue
 from showkit.show.showlog import read_log
 from test_devices import null_alsa_env, portaudio_present
 

@@ -163,7 +163,6 @@ def find_resonances(freq_hz: np.ndarray, response: np.ndarray, f_min_hz: float |
     h = np.asarray(response, dtype=complex)
     power = np.abs(h) ** 2
     level = 10.0 * np.log10(np.maximum(power, power.max() * 1e-20))
-    df = f[1] - f[0]
     # noise ripple is narrower than a resonance of Q < 2000 at the top of the band
     peaks, props = find_peaks(level, prominence=min_prominence_db, width=2.0)
     if noise is not None and peaks.size:

@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import os
 from concurrent.futures import ProcessPoolExecutor, as_completed
+from dataclasses import dataclass
 from functools import lru_cache
 from pathlib import Path
 from typing import Callable
@@ -73,6 +74,108 @@ def _note(table: ModeTable, n: int) -> str:
     return table.notes[table.index_of(n)]
 
 
+@dataclass
+class _Work:
+    """One decode and analysis of a track: what scoring and the map are made from."""
+
+    path: Path
+    duration_s: float
+    table: ModeTable
+    features: object
+    envelope: np.ndarray
+    native_peaks: np.ndarray
+    spans_s: list
+    beats: np.ndarray
+
+
+def _analyse(rig: Rig, path: str | Path, threads: int | None = None) -> _Work:
+    """Decode once at the hole filters' rate; features, pressure envelope and passages."""
+    path = Path(path)
+    info = audio_info(path)
+    filters = hole_filters(rig)
+    x, native_peaks = _decode(path, filters.rate_hz, info.rate_hz)
+    hop = filters.frame_samples
+    features = track_features(x, filters.rate_hz, hop, filters.band_hz)
+    envelope = simulate(filters, x, workers=threads).envelope
+    lag = int(round(filters.delay / hop))  # the responses are delayed by `delay` samples
+    spans_s, beats = find_passages(features, info.duration_s)
+    return _Work(path, info.duration_s, mode_table(rig), features, envelope[lag:], native_peaks,
+                 spans_s, beats)
+
+
+def _score_spans(rig: Rig, work: _Work, fs):
+    """Frame spans, level factors, scores, lengths and levels of the passages."""
+    fr = work.features.frame_rate_hz
+    spans, factors, scores, lengths, levels = [], [], [], [], []
+    for start, end in work.spans_s:
+        first = int(round(start * fr))
+        last = min(work.features.frames, max(first + 1, int(round(end * fr))))
+        env = work.envelope[first:max(last, first + 1)]
+        peaks = work.native_peaks[first:last]
+        level = passage_level(env, float(peaks.max()) if peaks.size else 0.0, rig.static_pa, rig.reserve)
+        spans.append((first, last))
+        factors.append(level.factor)
+        scores.append(passage_score(fs, level.factor, first, last))
+        lengths.append(end - start)
+        levels.append(level)
+    return spans, factors, scores, lengths, levels
+
+
+def track_frames(rig: Rig, path: str | Path, shift_cents: float = 0.0, max_rows: int = 10) -> dict:
+    """Per-frame mode hits of a track at a transposition: the time x mode map and the score.
+
+    Returns ``score`` (the track score with every pitch moved by
+    ``shift_cents``, on the scan's passages), ``map_modes`` (the mode numbers
+    of the map's rows, at most ``max_rows``: the driven ones), ``map_energy``
+    (rows x frames: the scored on-mode energy of each mode per frame),
+    ``times_s`` (frame times) and ``notes`` (per frame: the dominant notes with
+    their nearest modes, as text).
+    """
+    from showkit.analysis.pitches import map_to_modes
+    from showkit.physics.pitch import nearest_note
+
+    work = _analyse(rig, path)
+    features, table = work.features, work.table
+    hits = map_to_modes(features.peak_hz, table, shift_cents)
+    fs = frame_scores(features, table, shift_cents, hits)
+    _, _, scores, lengths, _ = _score_spans(rig, work, fs)
+    score = track_score(scores, lengths)
+    part = features.peak_energy * features.peak_harmonic * hits.weight        # (F, K)
+    idx = np.where(hits.index >= 0, hits.index, 0)
+    energy = np.zeros((table.n.size, features.frames))
+    frames_k = np.broadcast_to(np.arange(features.frames)[:, None], idx.shape)
+    np.add.at(energy, (idx.ravel(), frames_k.ravel()), np.where(hits.index >= 0, part, 0.0).ravel())
+    row_max = energy.max(axis=1)
+    # rows more than 30 dB under the strongest mode would draw blank: not drawn
+    driven = row_max.size and row_max.max() > 0
+    hit_rows = np.nonzero(row_max > 1e-3 * row_max.max())[0] if driven else np.zeros(0, int)
+    if hit_rows.size:
+        lo, hi = max(0, hit_rows.min() - 1), min(table.n.size - 1, hit_rows.max() + 1)
+    else:
+        lo, hi = 1, min(table.n.size - 1, max_rows)
+    if hi - lo + 1 > max_rows:  # keep the rows that are driven most
+        keep = np.sort(np.argsort(-row_max)[:max_rows])
+    else:
+        keep = np.arange(lo, hi + 1)
+    scale = 2.0 ** (shift_cents / 1200.0)
+    notes = []
+    order = np.argsort(-features.peak_energy, axis=1)
+    for t in range(features.frames):
+        items = []
+        for k in order[t, :2]:
+            f = features.peak_hz[t, k]
+            if not np.isfinite(f) or features.peak_energy[t, k] <= 0:
+                continue
+            name, _ = nearest_note(float(f) * scale)
+            j = int(hits.index[t, k])
+            items.append(f"{name} {f * scale:.0f} Hz → mode {int(table.n[j])} {hits.cents[t, k]:+.0f}c"
+                         if j >= 0 else name)
+        notes.append(", ".join(items))
+    return {"score": float(score), "map_modes": [int(n) for n in table.n[keep]],
+            "map_energy": energy[keep], "times_s": np.arange(features.frames) / features.frame_rate_hz,
+            "notes": notes}
+
+
 def scan_track(rig: Rig, path: str | Path, threads: int | None = None) -> dict:
     """Analyse one track for ``rig`` (no cache).  Raises :class:`ShowkitError` for bad audio.
 
@@ -88,33 +191,13 @@ def scan_track(rig: Rig, path: str | Path, threads: int | None = None) -> dict:
         ``ceiling_db``, ``limited_by``, ``contrast``), ``beats`` (count) and
         ``note`` (the scoring approximation).
     """
-    path = Path(path)
-    info = audio_info(path)
-    filters = hole_filters(rig)
-    table = mode_table(rig)
-    x, native_peaks = _decode(path, filters.rate_hz, info.rate_hz)
-    hop = filters.frame_samples
-    features = track_features(x, filters.rate_hz, hop, filters.band_hz)
-    envelope = simulate(filters, x, workers=threads).envelope
-    lag = int(round(filters.delay / hop))  # the responses are delayed by `delay` samples
-    envelope = envelope[lag:]
-    duration = info.duration_s
-    spans_s, beats = find_passages(features, duration)
-    fs = frame_scores(features, table)
-    fr = features.frame_rate_hz
-    spans, factors, scores, lengths, out = [], [], [], [], []
-    for start, end in spans_s:
-        first = int(round(start * fr))
-        last = min(features.frames, max(first + 1, int(round(end * fr))))
-        env = envelope[first:max(last, first + 1)]
-        peak = float(native_peaks[first:last].max()) if native_peaks[first:last].size else 0.0
-        level = passage_level(env, peak, rig.static_pa, rig.reserve)
-        score = passage_score(fs, level.factor, first, last)
+    work = _analyse(rig, path, threads)
+    table = work.table
+    fs = frame_scores(work.features, table)
+    spans, factors, scores, lengths, levels = _score_spans(rig, work, fs)
+    out = []
+    for (first, last), (start, end), score, level in zip(spans, work.spans_s, scores, levels):
         shares = mode_shares(fs, table, first, last)
-        spans.append((first, last))
-        factors.append(level.factor)
-        scores.append(score)
-        lengths.append(end - start)
         out.append({"start_s": round(start, 3), "end_s": round(end, 3), "score": round(score, 1),
                     "modes": [n for n, _ in shares],
                     "mode_shares": [{"n": n, "note": _note(table, n), "share": round(s, 3)}
@@ -122,6 +205,7 @@ def scan_track(rig: Rig, path: str | Path, threads: int | None = None) -> dict:
                     "ceiling_db": round(level.ceiling.ceiling_db, 2),
                     "limited_by": level.ceiling.limited_by,
                     "contrast": round(level.median_contrast, 4)})
+    features, duration, beats, path = work.features, work.duration_s, work.beats, work.path
     total = track_score(scores, lengths)
     by_shift = shifted_scores(features, table, spans, factors, lengths)
     shift, shifted = best_shift(by_shift)

@@ -50,7 +50,7 @@ def run(args) -> int:
     if args.json:
         print_json(report)
         return 0
-    g, gas = report["gas"], rig.gas
+    gas = rig.gas
     print(f"{rig.name}: {rig.geometry.length_m:g} m long, {rig.geometry.bore_m * 1e3:g} mm bore, "
           f"{rig.geometry.hole_count} holes")
     print(f"gas: {rig.fuel} with {rig.air_fraction * 100:g} % air at "

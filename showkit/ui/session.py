@@ -194,85 +194,10 @@ MAP_ROWS = 10
 
 
 def _track_frames(rig, path, shift_cents: float) -> dict:
-    """Per-frame mode hits of a track at a transposition, for the map and the score.
+    """The time x mode map and the score at a transposition (the scan's own analysis)."""
+    from showkit.analysis.scan import track_frames
 
-    Calls the scan's own steps (issue 4): features
-    (:func:`showkit.analysis.features.track_features`), mode mapping
-    (:func:`showkit.analysis.pitches.map_to_modes`), frame scores
-    (:func:`showkit.analysis.score.frame_scores`) and the per-shift track score
-    (:func:`showkit.analysis.transpose.shifted_scores`) on the scan's passages.
-    The map is the scored energy of each mode per frame (the frame score's
-    on-mode part, summed by mode); nothing here models the tube.
-    """
-    import numpy as np
-
-    from showkit.analysis.audio import audio_info
-    from showkit.analysis.features import track_features
-    from showkit.analysis.pitches import map_to_modes
-    from showkit.analysis.pressure import hole_filters
-    from showkit.analysis.scan import _decode, mode_table
-    from showkit.analysis.score import frame_scores, passage_level, passage_score, track_score
-    from showkit.analysis.segments import passages as find_passages
-    from showkit.physics.response import simulate
-
-    filters = hole_filters(rig)
-    table = mode_table(rig)
-    info = audio_info(path)
-    x, native_peaks = _decode(Path(path), filters.rate_hz, info.rate_hz)
-    hop = filters.frame_samples
-    features = track_features(x, filters.rate_hz, hop, filters.band_hz)
-    hits = map_to_modes(features.peak_hz, table, shift_cents)
-    fs = frame_scores(features, table, shift_cents, hits)
-    # the score at this shift, on the scan's passages (as the scan scores them)
-    envelope = simulate(filters, x).envelope[int(round(filters.delay / hop)):]
-    spans_s, _ = find_passages(features, info.duration_s)
-    fr = features.frame_rate_hz
-    scores, lengths = [], []
-    for start, end in spans_s:
-        first = int(round(start * fr))
-        last = min(features.frames, max(first + 1, int(round(end * fr))))
-        env = envelope[first:max(last, first + 1)]
-        peak = float(native_peaks[first:last].max()) if native_peaks[first:last].size else 0.0
-        level = passage_level(env, peak, rig.static_pa, rig.reserve)
-        scores.append(passage_score(fs, level.factor, first, last))
-        lengths.append(end - start)
-    score = track_score(scores, lengths)
-    # the map: on-mode energy per mode and frame
-    part = features.peak_energy * features.peak_harmonic * hits.weight        # (F, K)
-    idx = np.where(hits.index >= 0, hits.index, 0)
-    energy = np.zeros((table.n.size, features.frames))
-    frames_k = np.broadcast_to(np.arange(features.frames)[:, None], idx.shape)
-    np.add.at(energy, (idx.ravel(), frames_k.ravel()), np.where(hits.index >= 0, part, 0.0).ravel())
-    row_max = energy.max(axis=1)
-    # rows more than 30 dB under the strongest mode would draw blank: not drawn
-    hit_rows = np.nonzero(row_max > 1e-3 * row_max.max())[0] if row_max.size and row_max.max() > 0 else \
-        np.zeros(0, int)
-    if hit_rows.size:
-        lo, hi = max(0, hit_rows.min() - 1), min(table.n.size - 1, hit_rows.max() + 1)
-    else:
-        lo, hi = 1, min(table.n.size - 1, MAP_ROWS)
-    if hi - lo + 1 > MAP_ROWS:  # keep the rows that are driven most
-        keep = np.sort(np.argsort(-row_max)[:MAP_ROWS])
-    else:
-        keep = np.arange(lo, hi + 1)
-    # dominant notes per frame, with the nearest mode
-    notes = []
-    order = np.argsort(-features.peak_energy, axis=1)
-    for t in range(features.frames):
-        items = []
-        for k in order[t, :2]:
-            f = features.peak_hz[t, k]
-            if not np.isfinite(f) or features.peak_energy[t, k] <= 0:
-                continue
-            from showkit.physics.pitch import nearest_note
-
-            name, cents = nearest_note(float(f) * 2.0 ** (shift_cents / 1200.0))
-            j = int(hits.index[t, k])
-            items.append(f"{name} {f * 2.0 ** (shift_cents / 1200.0):.0f} Hz → mode {int(table.n[j])} "
-                         f"{hits.cents[t, k]:+.0f}c" if j >= 0 else f"{name}")
-        notes.append(", ".join(items))
-    return {"score": float(score), "map_modes": [int(n) for n in table.n[keep]],
-            "map_energy": energy[keep], "times_s": np.arange(features.frames) / fr, "notes": notes}
+    return track_frames(rig, path, shift_cents, MAP_ROWS)
 
 
 def _scan(rig, path, transpose: int) -> dict:

@@ -35,7 +35,7 @@ async def main() -> int:
         sheet = lock_demo(Path(tmp) / "show")
         app = make_app(sheet, track=track, view="show")
         times, during, lags = [], 0, []
-        async with app.run_test(size=(100, 30)) as pilot:
+        async with app.run_test(size=(100, 30)):
             from textual import events
 
             from showkit.ui.show import CueTable
