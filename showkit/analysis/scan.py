@@ -89,8 +89,20 @@ class _Work:
 
 
 def _analyse(rig: Rig, path: str | Path, threads: int | None = None) -> _Work:
-    """Decode once at the hole filters' rate; features, pressure envelope and passages."""
-    path = Path(path)
+    """Decode once at the hole filters' rate; features, pressure envelope and passages.
+
+    The BLAS/OpenMP pools are held to one thread here: showkit's own
+    parallelism (the simulation's threads, the folder scan's processes) uses
+    the cores, and nested pools only made the work slower (measured: twice the
+    CPU time for the same wall time).
+    """
+    from threadpoolctl import threadpool_limits
+
+    with threadpool_limits(limits=1):
+        return _analyse_now(rig, Path(path), threads)
+
+
+def _analyse_now(rig: Rig, path: Path, threads: int | None) -> _Work:
     info = audio_info(path)
     filters = hole_filters(rig)
     x, native_peaks = _decode(path, filters.rate_hz, info.rate_hz)
