@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import argparse
 import importlib
+import importlib.util
 import sys
 
 from showkit import __version__
