@@ -17,14 +17,12 @@ that sound speed, as an **effective gas temperature** instead
 from __future__ import annotations
 
 import datetime as _dt
-import os
-import shutil
-import tempfile
 from pathlib import Path
 
 from showkit.errors import RigError
 from showkit.physics.gas import gas_state
 from showkit.rigfile import demo_rig_path, parse_rig
+from showkit.safesave import write_text
 
 BACKUPS_KEPT = 9
 
@@ -64,33 +62,11 @@ def gas_for_sound_speed(fuel: str, air_fraction: float, temperature_k: float, am
                    "check the fuel named in the rig file and the tube length")
 
 
-def _rotate_backups(path: Path) -> Path:
-    bak = path.with_name(path.name + ".bak")
-    if bak.exists():
-        for k in range(BACKUPS_KEPT - 1, 0, -1):
-            older = path.with_name(f"{path.name}.bak.{k}")
-            if older.exists():
-                older.replace(path.with_name(f"{path.name}.bak.{k + 1}"))
-        bak.replace(path.with_name(f"{path.name}.bak.1"))
-    shutil.copy2(path, bak)
-    return bak
-
-
 def save_text(path: Path, text: str) -> Path:
     """Check ``text`` as a rig, back up ``path``, write atomically; returns the backup path."""
     parse_rig(text, str(path), path)
-    backup = _rotate_backups(path)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=str(path.parent))
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8") as fh:
-            fh.write(text)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, path)
-    finally:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-    return backup
+    write_text(path, text, backups=BACKUPS_KEPT + 1)  # NAME.bak and NAME.bak.1 .. .bak.9
+    return path.with_name(path.name + ".bak")
 
 
 def _writable(path: Path) -> Path:

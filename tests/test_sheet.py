@@ -163,3 +163,22 @@ def test_atomic_write_fsyncs(monkeypatch, tmp_path):
     monkeypatch.setattr(os, "fsync", lambda fd: (calls.append(fd), real(fd)))
     save_sheet(load_sheet(DEMO_SHOW), tmp_path / "s.toml")
     assert calls, "save must fsync the new file before the rename"
+
+
+def test_saving_keeps_the_header_comments_and_the_file_permissions(tmp_path):
+    path = tmp_path / "show.toml"
+    path.write_text("# my show\n# second line\n\n" + DEMO_SHOW.read_text())
+    path.chmod(0o640)
+    sheet = load_sheet(path)
+    sheet.replace_cue("welcome", label="changed")
+    save_sheet(sheet)
+    text = path.read_text()
+    assert text.startswith("# my show\n# second line\n")
+    assert oct(path.stat().st_mode & 0o777) == oct(0o640)
+    fresh = tmp_path / "new.toml"
+    old = os.umask(0o022)
+    try:
+        save_sheet(sheet, fresh)
+    finally:
+        os.umask(old)
+    assert oct(fresh.stat().st_mode & 0o777) == oct(0o644)  # a new file: 0666 less the umask

@@ -119,22 +119,14 @@ def _resampled(cue: VerifiedCue, rate_hz: int) -> np.ndarray:
 
 def write_wav(path: Path, samples: np.ndarray, rate_hz: int, subtype: str = "FLOAT") -> None:
     """Write mono samples as WAV (``FLOAT`` 32-bit or ``PCM_24``), via a temporary file."""
-    import os
-    import tempfile
-
     import soundfile as sf
+
+    from showkit.safesave import replacing
 
     path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".wav", dir=path.parent)
-    os.close(fd)
-    try:
-        sf.write(tmp, samples, rate_hz, subtype=subtype, format="WAV")
-        os.replace(tmp, path)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
+    with replacing(path, backups=0, suffix=".wav") as tmp:
+        sf.write(str(tmp), samples, rate_hz, subtype=subtype, format="WAV")
 
 
 def write_show(rig: Rig, cues: list[VerifiedCue], path: Path, subtype: str = "FLOAT",

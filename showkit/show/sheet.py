@@ -18,13 +18,12 @@ from __future__ import annotations
 
 import difflib
 import math
-import os
-import tempfile
 from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 from showkit import units
 from showkit.errors import InputError, SheetError
+from showkit.safesave import write_text
 from showkit.tomlfile import parse_toml, read_text
 
 #: The sheet format this version reads and writes.
@@ -145,6 +144,7 @@ class Sheet:
     format: int = FORMAT_VERSION
     notes: str = ""
     path: Path | None = None
+    header: str = ""  # the comment lines at the top of the file, kept when saving
 
     @property
     def folder(self) -> Path:
@@ -210,9 +210,22 @@ def parse_sheet(text: str, where: str = "sheet") -> Sheet:
     """Check the TOML text of a cue sheet (see :func:`load_sheet`)."""
     data = parse_toml(text, where, SheetError)
     try:
-        return _sheet_from_data(data, where)
+        sheet = _sheet_from_data(data, where)
     except InputError as exc:
         raise SheetError(exc.what, exc.where, exc.fix) from None
+    sheet.header = _header_comments(text)
+    return sheet
+
+
+def _header_comments(text: str) -> str:
+    """The comment block at the top of a TOML text (comment and blank lines before the first key)."""
+    kept = []
+    for line in text.splitlines():
+        if line.strip().startswith("#"):
+            kept.append(line.rstrip())
+        elif line.strip():
+            break
+    return "\n".join(kept)
 
 
 def _unknown(keys, allowed, where):
@@ -411,8 +424,9 @@ def _inline(table: dict) -> str:
 
 def sheet_to_text(sheet: Sheet) -> str:
     """The sheet as TOML text (what :func:`save_sheet` writes)."""
-    lines = [f"title = {_toml_value(sheet.title)}", f"rig = {_toml_value(sheet.rig)}",
-             f"format = {FORMAT_VERSION}"]
+    lines = [sheet.header] if sheet.header else []
+    lines += [f"title = {_toml_value(sheet.title)}", f"rig = {_toml_value(sheet.rig)}",
+              f"format = {FORMAT_VERSION}"]
     if sheet.notes:
         lines.append(f"notes = {_toml_value(sheet.notes)}")
     for cue in sheet.cues:
@@ -450,53 +464,15 @@ def sheet_to_text(sheet: Sheet) -> str:
     return "\n".join(lines) + "\n"
 
 
-def atomic_write_text(path: Path, text: str, backup: bool = True, _before_rename=None) -> None:
-    """Write ``text`` to ``path`` safely: temp file, fsync, keep ``path.bak``, rename.
-
-    ``_before_rename`` is a test hook called between the write and the rename.
-    """
-    path = Path(path)
-    folder = path.parent if str(path.parent) else Path(".")
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=folder)
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8") as f:
-            f.write(text)
-            f.flush()
-            os.fsync(f.fileno())
-        if _before_rename is not None:
-            _before_rename()
-        if backup and path.exists():
-            bak = path.with_name(path.name + ".bak")
-            with open(path, "rb") as src, open(bak, "wb") as dst:
-                dst.write(src.read())
-                dst.flush()
-                os.fsync(dst.fileno())
-        os.replace(tmp, path)
-        try:
-            dir_fd = os.open(folder, os.O_RDONLY)
-            try:
-                os.fsync(dir_fd)
-            finally:
-                os.close(dir_fd)
-        except OSError:
-            pass
-    except BaseException:
-        try:
-            os.unlink(tmp)
-        except OSError:
-            pass
-        raise
-
-
 def save_sheet(sheet: Sheet, path: str | Path | None = None, _before_rename=None) -> Path:
-    """Save the sheet safely (see :func:`atomic_write_text`); returns the path written."""
+    """Save the sheet safely (:func:`showkit.safesave.write_text`); returns the path written."""
     target = Path(path) if path is not None else sheet.path
     if target is None:
         raise SheetError("the sheet has no file name yet", None, "save it with a path")
     text = sheet_to_text(sheet)
     parse_sheet(text, str(target))  # never write what we could not read back
     try:
-        atomic_write_text(target, text, _before_rename=_before_rename)
+        write_text(target, text, backups=1, _before_rename=_before_rename)
     except OSError as exc:
         raise SheetError(f"cannot save ({exc.strerror or exc})", str(target),
                          "check the folder exists and is writable; the previous version is untouched") from None
