@@ -66,6 +66,6 @@ def run(args) -> int:
           f"{format_time(r.worst_time_s)}: {r.min_pressure_pa:.1f} Pa above ambient "
           f"(safe line {rig.reserve * rig.static_pa:.1f} Pa)")
     print(f"  flame contrast     {100 * r.contrast:.1f} % (median over the passage at the ceiling)")
-    print(f"  static pressure    {rig.static_pa:g} Pa, reserve {rig.reserve:g}")
+    print(f"  static pressure    {rig.static_pa:.2f} Pa, reserve {rig.reserve:g}")
     print(f"  rests on           {r.drive_text}")
     return 0

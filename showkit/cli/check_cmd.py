@@ -52,7 +52,7 @@ def run(args) -> int:
         rows = [[c.id, f"{c.gain_db:+.2f}", "-" if c.ceiling_db is None else f"{c.ceiling_db:+.2f}",
                  "-" if c.headroom_db is None else f"{c.headroom_db:+.2f}", headroom_bar(c.headroom_db),
                  c.status, c.message] for c in checks]
-        print(f"{sheet.title}: {len(checks)} cues on {rig.name}, static {today.static_pa:g} Pa, "
+        print(f"{sheet.title}: {len(checks)} cues on {rig.name}, static {today.static_pa:.2f} Pa, "
               f"reserve {today.reserve:g}")
         print(table(rows, ["cue", "gain dB", "ceiling dB", "headroom", "", "status", "note"], "<>>><<<"))
         bad = [c for c in checks if c.status != "ok"]

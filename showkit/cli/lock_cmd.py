@@ -50,6 +50,6 @@ def run(args) -> int:
                      "-" if lock is None else f"{lock.ceiling_db:+.2f}",
                      "-" if lock is None else lock.limited_by.replace("_", " "), state.status])
     print(table(rows, ["cue", "kind", "gain dB", "ceiling dB", "limited by", "status"], "<<>><<"))
-    print(f"locked for {rig.name} at {rig.static_pa:g} Pa static, reserve {rig.reserve:g}; "
+    print(f"locked for {rig.name} at {rig.static_pa:.2f} Pa static, reserve {rig.reserve:g}; "
           f"saved {sheet.path}")
     return 0

@@ -118,7 +118,7 @@ def _run_sweep(args) -> int:
     print(f"wrote {args.out}: {args.start:g}-{args.stop:g} Hz, {args.length:g} s at {args.rate} Hz, "
           f"peak {level_db:.1f} dBFS")
     print(f"safe bound {bound_db:.1f} dBFS: keeps every hole at least {rig.reserve:.0%} of "
-          f"{rig.static_pa:g} Pa above ambient in steady state (most sensitive near {f_worst:.0f} Hz), "
+          f"{rig.static_pa:.2f} Pa above ambient in steady state (most sensitive near {f_worst:.0f} Hz), "
           f"from {rig.drive.describe()}")
     level_caution()
     return 0

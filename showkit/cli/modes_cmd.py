@@ -51,7 +51,7 @@ def run(args) -> int:
         print_json(report)
         return 0
     gas = rig.gas
-    print(f"{rig.name}: {rig.geometry.length_m:g} m long, {rig.geometry.bore_m * 1e3:g} mm bore, "
+    print(f"{rig.name}: {rig.geometry.length_m:.3f} m long, {rig.geometry.bore_m * 1e3:.1f} mm bore, "
           f"{rig.geometry.hole_count} holes")
     print(f"gas: {rig.fuel} with {rig.air_fraction * 100:g} % air at "
           f"{rig.temperature_k - 273.15:.1f} C; sound speed {gas.sound_speed_m_s:.2f} m/s, "
@@ -61,7 +61,9 @@ def run(args) -> int:
     for m in report["modes"]:
         rows.append([str(m["n"]), f"{m['frequency_hz']:.1f}", m["note"], f"{m['cents']:+.0f}",
                      "-" if m["q"] is None else f"{m['q']:.0f}", str(m["flame_peaks"]),
-                     "-" if m["peak_spacing_m"] is None else f"{m['peak_spacing_m'] * 1e3:.0f}",
+                     # one peak has nothing to stand apart from
+                     "-" if m["peak_spacing_m"] is None or m["flame_peaks"] < 2
+                     else f"{m['peak_spacing_m'] * 1e3:.0f}",
                      m["pattern"]])
     print(table(rows, ["n", "freq Hz", "note", "cents", "Q", "flame peaks", "spacing mm", "pattern"],
                 ">>>>>>><"))

@@ -47,7 +47,7 @@ def run(args) -> int:
     rows = [[c.id, f"{c.gain_db:+.2f}", f"{c.ceiling_db:+.2f}", f"{c.min_pressure_pa:.2f}",
              f"{c.margin_pa:+.2f}", f"{c.samples.size / c.rate_hz:.1f}"] for c in cues]
     print(table(rows, ["cue", "gain dB", "ceiling dB", "lowest Pa", "margin Pa", "seconds"], "<>>>>>"))
-    print(f"every cue verified against the pressure model at {today.static_pa:g} Pa static, "
+    print(f"every cue verified against the pressure model at {today.static_pa:.2f} Pa static, "
           f"reserve {today.reserve:g} (safe line {today.reserve * today.static_pa:.2f} Pa)")
     for p in written:
         print(f"wrote {p}")

@@ -170,7 +170,7 @@ def run(args) -> int:
                     "tracks": tracks})
     else:
         _print_table(tracks)
-        print(f"\nOn {rig.name}, static {rig.static_pa:g} Pa, reserve {rig.reserve:g}; "
+        print(f"\nOn {rig.name}, static {rig.static_pa:.2f} Pa, reserve {rig.reserve:g}; "
               "ceilings in dB applied to the file as recorded; scores use the steady-sine flame "
               "heights on the per-frame pressure envelope.")
     if args.csv:

@@ -63,11 +63,13 @@ def verify(rig: Rig, samples: np.ndarray, rate_hz: int, where: str) -> tuple[flo
     report = signal_report(rig, samples, rate_hz, flames=False)
     lowest = rig.static_pa - report.swing_pa
     line = rig.reserve * rig.static_pa
-    if lowest < line - VERIFY_TOLERANCE * rig.static_pa:
+    slack = VERIFY_TOLERANCE * rig.static_pa
+    if lowest < line - slack:
         raise SheetError(f"the rendered cue would take hole {report.worst_hole + 1} down to "
                          f"{lowest:.2f} Pa, below the safe line {line:.2f} Pa, at {report.worst_time_s:.2f} s",
                          where, "lower the gain and lock again; the cue was not rendered")
-    return lowest - line, lowest
+    # within the slack is on the line (float32 rounding), not below it
+    return max(lowest - line, 0.0), max(lowest, line)
 
 
 def render_cue(sheet: Sheet, rig: Rig, cue: Cue) -> VerifiedCue:
