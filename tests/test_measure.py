@@ -178,19 +178,37 @@ def test_sweep_cli_stays_below_bound(tmp_path, capsys):
 def test_live_with_mocked_device():
     from showkit.show.playrec import play_record
 
-    class FakeSD:
+    class Devices:  # one output device, as PortAudio lists it
+        class default:
+            device = (0, 0)
+
+        def query_devices(self):
+            return [{"index": 0, "name": "test out", "max_output_channels": 2, "hostapi": 0,
+                     "default_samplerate": 48000.0}]
+
+        def query_hostapis(self):
+            return [{"name": "test"}]
+
+    class FakeSD(Devices):
         def playrec(self, out, samplerate, channels, device, blocking):
             return out[:, None] * 0.5
 
     rec = play_record(np.ones(10), 100, tail_s=0.1, sd=FakeSD())
     assert rec.size == 20 and rec[0] == 0.5
 
-    class Broken:
+    class Broken(Devices):
         def playrec(self, *a, **k):
             raise RuntimeError("no device")
 
     with pytest.raises(DeviceError):
         play_record(np.ones(10), 100, sd=Broken())
+
+    class Silent(Devices):  # no output device at all: the clear message, before playing
+        def query_devices(self):
+            return [{"index": 0, "name": "mic", "max_output_channels": 0, "hostapi": 0}]
+
+    with pytest.raises(DeviceError, match="no audio output device"):
+        play_record(np.ones(10), 100, sd=Silent())
 
 
 def test_calibrator_pressure():

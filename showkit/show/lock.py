@@ -35,7 +35,10 @@ def sheet_rig(sheet: Sheet) -> Rig:
     try:
         return load_rig(sheet.rig_path())
     except RigError as exc:
-        raise SheetError(exc.what, f"{sheet.path or 'sheet'}: rig ({exc.where})", exc.fix) from None
+        fix = exc.fix
+        if exc.what == "no such rig file":
+            fix = 'fix the sheet\'s rig = "..." (a path relative to the sheet, or "demo")'
+        raise SheetError(exc.what, f"{sheet.path or 'sheet'}: rig ({exc.where})", fix) from None
 
 
 def safe_gain(ceiling_db: float) -> float:

@@ -33,6 +33,10 @@ def play_record(signal, rate: int, tail_s: float = 2.0, device=None, sd=None):
             raise DeviceError(f"no audio library ({exc})", "sounddevice",
                               "install PortAudio (e.g. apt-get install libportaudio2), or record with "
                               "any recorder and use showkit measure analyse") from None
+    from showkit.show.devices import choose_device
+
+    chosen = choose_device(device, sd=sd)  # a clear message when there is no output device
+    device = chosen.index if device is None else device
     out = np.concatenate([np.asarray(signal, dtype=np.float32), np.zeros(int(tail_s * rate), np.float32)])
     try:
         rec = sd.playrec(out, samplerate=rate, channels=1, device=device, blocking=True)
