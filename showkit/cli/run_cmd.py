@@ -109,27 +109,12 @@ def pre_show(args, log, static_pa, temperature_k, out):
     """The pre-show check: render for playback, log and print the summary; returns the cues."""
     from showkit.cli.common import table
     from showkit.errors import SheetError
-    from showkit.show import render
+    from showkit.show.preshow import pre_show_check
 
-    reading = []
-    if static_pa is not None:
-        reading.append(f"static {static_pa:g} Pa (manometer)")
-    if temperature_k is not None:
-        reading.append(f"gas {temperature_k - 273.15:.1f} C")
-    log.write("check", None, None, f"pre-show check of {args.sheet}: "
-              + (", ".join(reading) if reading else "the rig file's static pressure and temperature"))
-    cues, problems = render.render_for_playback(args.sheet, static_pa=static_pa,
-                                                temperature_k=temperature_k)
+    cues, problems = pre_show_check(args.sheet, log, static_pa, temperature_k)
     for line in problems:
         if not line.startswith("cue "):
-            log.write("check", None, None, line)
             print(line, file=out)
-    for cue in cues:
-        if cue.playable:
-            room = "" if cue.ceiling_db is None else f", headroom {cue.ceiling_db - cue.gain_db:.1f} dB"
-            log.write("check", cue.id, cue.gain_db, f"ok{room}")
-        else:
-            log.write("check", cue.id, cue.gain_db, f"{cue.status}: {cue.message}")
     rows = [[str(k + 1), c.id, c.label[:32], _fmt_time(c.duration_s) if c.playable else "-",
              f"{c.gain_db:+.1f}", "-" if c.ceiling_db is None else f"{c.ceiling_db:+.1f}",
              c.then, c.status] for k, c in enumerate(cues)]

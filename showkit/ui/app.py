@@ -1,10 +1,13 @@
-"""The showkit terminal UI: Show, Tube and Track views over one open cue sheet.
+"""The showkit terminal UI: Show, Tube, Track, Run and Measure views over one open cue sheet.
 
 Start it with ``showkit`` (the user's copy of the demo show), ``showkit open
 SHEET.toml`` or ``showkit open TRACK.flac --rig RIG.toml``.  The domain work
 is in :mod:`showkit.ui.session`; slow work (modes, checks, locks, track
 analysis, rendering for the audition) runs in worker threads with a progress
 bar in the status line, so keys are answered at once.
+
+Panic (ctrl+x) is an App-level priority binding: it works in every view and
+every dialog, and calls the live engine's ``panic()`` before anything else.
 """
 
 from __future__ import annotations
@@ -18,12 +21,14 @@ from textual.containers import Horizontal
 from textual.widgets import ContentSwitcher, Footer, ProgressBar, Static
 
 from showkit.errors import ShowkitError
+from showkit.ui.measure import MeasureView
+from showkit.ui.run import RunView
 from showkit.ui.session import Session
 from showkit.ui.show import ShowView
 from showkit.ui.track import TrackView
 from showkit.ui.tube import TubeView
 
-VIEWS = ("show", "tube", "track")
+VIEWS = ("show", "tube", "track", "run", "measure")
 
 
 class ShowkitApp(App):
@@ -36,9 +41,11 @@ class ShowkitApp(App):
     track : Path, optional
         A track to analyse at once (the Track view opens first).
     view : str
-        The first view: ``"show"``, ``"tube"`` or ``"track"``.
+        The first view: ``"show"``, ``"tube"``, ``"track"``, ``"run"`` or ``"measure"``.
     cautions : bool or None
         Show the safety cautions at start: None for "once, at first start".
+    log_path : Path, optional
+        The show log of the run view (default: the user's data directory, as `showkit run`).
     """
 
     CSS_PATH = "app.tcss"
@@ -46,12 +53,16 @@ class ShowkitApp(App):
     ENABLE_COMMAND_PALETTE = False
 
     BINDINGS = [
+        Binding("ctrl+x", "panic", "PANIC", priority=True),
         Binding("ctrl+q", "quit_safely", "quit", priority=True),
         Binding("1", "view('show')", "show"),
         Binding("2", "view('tube')", "tube"),
         Binding("3", "view('track')", "track"),
+        Binding("4", "view('run')", "run"),
+        Binding("5", "view('measure')", "measure"),
         Binding("m", "manometer", "manometer"),
         Binding("a", "audition", "audition"),
+        Binding("D", "device", "audio device", show=False),
         Binding("escape", "stop", "stop sound", show=False),
         Binding("ctrl+z", "undo", "undo"),
         Binding("ctrl+s", "save", "save", show=False),
@@ -60,8 +71,10 @@ class ShowkitApp(App):
     ]
 
     def __init__(self, session: Session, track: Path | None = None, view: str = "show",
-                 cautions: bool | None = None):
+                 cautions: bool | None = None, log_path: Path | None = None):
         super().__init__()
+        self.log_path = log_path
+        self._show_log = None
         self.session = session
         self.first_track = track
         self.first_view = view if view in VIEWS else "show"
@@ -84,6 +97,8 @@ class ShowkitApp(App):
             yield ShowView(id="show")
             yield TubeView(id="tube")
             yield TrackView(id="track")
+            yield RunView(id="run")
+            yield MeasureView(id="measure")
         with Horizontal(id="statusbar"):
             yield Static("", id="status")
             yield ProgressBar(id="progress", show_eta=False, show_percentage=False)
@@ -323,7 +338,8 @@ class ShowkitApp(App):
     # ------------------------------------------------------------ actions
     def action_view(self, name: str) -> None:
         self.query_one(ContentSwitcher).current = name
-        target = {"show": "#cue-table", "tube": "#mode-table", "track": "#track-map"}[name]
+        target = {"show": "#cue-table", "tube": "#mode-table", "track": "#track-map",
+                  "run": "#run-table", "measure": "#measure-table"}[name]
         # focus at once (not on the next idle), so that a key typed right after the
         # view key already goes to the new view
         self.screen.set_focus(self.query_one(target))
@@ -367,6 +383,8 @@ class ShowkitApp(App):
         self.push_screen(HelpScreen([("Everywhere", self.BINDINGS), ("Show view (1)", ShowView.BINDINGS),
                                      ("Tube view (2)", TubeView.BINDINGS),
                                      ("Track view (3)", TrackView.BINDINGS),
+                                     ("Run view (4)", RunView.BINDINGS),
+                                     ("Measure view (5)", MeasureView.BINDINGS),
                                      ("Lists", [("up,down", "", "move the selection")])]))
 
     def action_cautions(self) -> None:
@@ -399,7 +417,7 @@ class ShowkitApp(App):
         if self.audition is None:
             self.audition = Audition()
         try:
-            self.audition.play(rendered)
+            self.audition.play(rendered, device=self.session.device)
         except ShowkitError as exc:
             self.say(f"no audition: {exc.line()}", warn=True)
             return
@@ -422,8 +440,63 @@ class ShowkitApp(App):
             self.audition.stop()
             self.say("audition stopped")
 
+    # ------------------------------------------------------------ live sound: panic, device, log
+    def action_panic(self) -> None:
+        """PANIC: silence within the engine's panic ramp (20 ms), from any view or dialog.
+
+        The engine's ``panic()`` is called first, before anything is drawn or logged here.
+        """
+        run = self.query_one(RunView)
+        live = run.panic()
+        heard = False
+        if self.audition is not None and self.audition.playing:
+            self.audition.stop()  # panic() then close()
+            heard = True
+        if live:
+            self.say("PANIC: output to silence, the show is stopped; press r in the run view (4) to "
+                     "re-arm when it is safe", warn=True)
+            run.refresh_now()
+        elif heard:
+            self.say("PANIC: the audition was silenced", warn=True)
+        else:
+            self.say("PANIC: nothing was playing")
+
+    def show_log(self):
+        """The show log of the run view, opened at first use (raises LogError with what to do)."""
+        if self._show_log is None:
+            from showkit.show.showlog import ShowLog
+
+            self._show_log = ShowLog(self.log_path)
+        return self._show_log
+
+    def action_device(self) -> None:
+        from showkit.ui.device import DeviceScreen, describe
+
+        screen = DeviceScreen(self.session.device)
+
+        def done(result):
+            if not result:
+                return
+            self.session.device = result[1]
+            self.say(f"audio output: {describe(screen.found, result[1])} (audition and run view; "
+                     "the run view uses it from its next check or reconnect, o)")
+
+        self.push_screen(screen, done)
+        if screen.problem:
+            self.say(screen.problem, warn=True)
+
     def action_quit_safely(self) -> None:
-        """Save (safely) and quit, no dialog."""
+        """Panic if a show plays, save (safely) and quit, no dialog."""
+        run = self.query_one(RunView)
+        if run.engine is not None:
+            try:
+                if run.engine.busy:
+                    run.engine.panic()
+                run.close()
+            except Exception:
+                pass
+        if self._show_log is not None:
+            self._show_log.close()
         if self.audition is not None:
             try:
                 self.audition.stop()

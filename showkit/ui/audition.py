@@ -15,8 +15,11 @@ class Audition:
         self.engine = None
         self.cue_id: str | None = None
 
-    def play(self, rendered) -> None:
-        """Play a :class:`showkit.show.render.RenderedCue` (stops anything playing)."""
+    def play(self, rendered, device=None) -> None:
+        """Play a :class:`showkit.show.render.RenderedCue` (stops anything playing).
+
+        ``device``: the output device (None: the system default; an index or part of a name).
+        """
         from showkit.show.engine import Engine
         from showkit.show.playlist import RenderedCue
 
@@ -25,7 +28,7 @@ class Audition:
                           rate_hz=rendered.rate_hz, then="wait", gain_db=rendered.gain_db,
                           ceiling_db=rendered.ceiling_db, status="ok")
         engine = Engine([cue])
-        engine.open(device=None)
+        engine.open(device=device)
         engine.go(0)
         self.engine, self.cue_id = engine, rendered.id
 

@@ -241,6 +241,7 @@ class Session(TrackWork):
         self.modes: list = []
         self.saved_text = sheet_to_text(sheet)
         self.last_message = ""
+        self.device = None                       # audio output: None (system default), index or name
 
     # ------------------------------------------------------------ opening
     @classmethod
@@ -275,6 +276,11 @@ class Session(TrackWork):
     def rig(self):
         """The sheet's rig with today's static pressure and gas temperature."""
         return self.base_rig().with_conditions(static_pa=self.static_pa, temperature_k=self.temperature_k)
+
+    def reload_rig(self) -> None:
+        """Read the rig file again (after the measurement view wrote into it)."""
+        self._base_rig = None
+        self.checks = {}
 
     def set_static(self, value) -> float:
         """Today's manometer reading (a number in Pa or text with a unit); returns Pa."""

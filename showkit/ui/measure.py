@@ -1,0 +1,356 @@
+"""The Measure view: a recording of the sweep analysed, its response drawn, the fit written.
+
+The analysis is :func:`showkit.analysis.measurement.analyse_recording` (the
+same as `showkit measure analyse`), run in a worker with a progress bar; the
+response curve drawn is :func:`showkit.analysis.sweep.measure_response`'s.
+The drawing places those numbers in terminal cells (log frequency across,
+level in dB up); measured modes are marked ``▲`` and the fitted model's
+modes ``◇`` on their own lines.  Writing the fit goes through
+:func:`showkit.rigwrite.update_rig` (checked, atomic, previous file kept as
+``.bak``); the bundled demo rig is never changed.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from pathlib import Path
+
+from rich.markup import escape
+from rich.text import Text
+from textual.app import ComposeResult
+from textual.binding import Binding
+from textual.containers import Vertical
+from textual.widget import Widget
+from textual.widgets import DataTable, Static
+
+from showkit.errors import ShowkitError
+from showkit.safety import LEVEL_CAUTION
+from showkit.ui.drawing import BLOCKS
+
+#: Levels more than this far below the response's peak are drawn empty, dB.
+PLOT_RANGE_DB = 40.0
+PLOT_ROWS = 7
+MEASURED_MARK = "▲"
+MODEL_MARK = "◇"
+
+
+@dataclass
+class Measurement:
+    """What the view shows: the files, the response curve and the analysis report."""
+
+    recording: Path
+    sweep: Path
+    freq_hz: object       # the response's frequencies, Hz
+    level_db: object      # the response magnitude, dB re its peak
+    report: dict
+    rig_name: str
+
+
+def log_columns(freq_hz, lo_hz: float, hi_hz: float, width: int):
+    """The column of each frequency on a log axis from ``lo_hz`` to ``hi_hz`` across ``width`` cells."""
+    import numpy as np
+
+    f = np.asarray(freq_hz, dtype=float)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        x = np.log(np.maximum(f, 1e-9) / lo_hz) / math.log(hi_hz / lo_hz)
+    return np.clip(np.floor(x * width), 0, width - 1).astype(int), (f >= lo_hz) & (f <= hi_hz)
+
+
+def response_plot(freq_hz, level_db, measured_hz, model_hz, width: int, rows: int = PLOT_ROWS,
+                  range_db: float = PLOT_RANGE_DB) -> list[Text]:
+    """The response as a column chart in cells, with two mark lines and a frequency axis.
+
+    Parameters
+    ----------
+    freq_hz, level_db : sequences
+        The measured response (Hz; dB, any reference).  Each column shows the
+        highest level among the frequencies that fall in it.
+    measured_hz, model_hz : sequences of float
+        Measured modes (marked ``▲``) and the fitted model's modes (``◇``), Hz.
+    width, rows : int
+        Cells across and lines of bars.
+    range_db : float
+        Span from the top of the chart to its floor, dB.
+    """
+    import numpy as np
+
+    f = np.asarray(freq_hz, dtype=float)
+    v = np.asarray(level_db, dtype=float)
+    good = np.isfinite(v) & (f > 0)
+    if width < 4 or not good.any():
+        return [Text(" " * max(width, 0)) for _ in range(rows + 3)]
+    f, v = f[good], v[good]
+    lo, hi = float(f.min()), float(f.max())
+    if hi <= lo:
+        hi = lo * 1.01
+    cols, inside = log_columns(f, lo, hi, width)
+    top = float(v.max())
+    cells = np.full(width, -np.inf)
+    np.maximum.at(cells, cols[inside], v[inside])
+    frac = np.clip((cells - (top - range_db)) / range_db, 0.0, 1.0)
+    frac[~np.isfinite(cells)] = 0.0
+    lines = []
+    for r in range(rows):
+        floor = (rows - 1 - r) / rows
+        fill = (frac - floor) * rows
+        idx = np.where(fill >= 1, 8, np.clip((fill * 8).astype(int), 0, 8))
+        lines.append(Text("".join(BLOCKS[i] for i in idx), style="bold"))
+    for marks, ch in ((measured_hz, MEASURED_MARK), (model_hz, MODEL_MARK)):
+        row = [" "] * width
+        m = np.asarray([x for x in marks if x is not None and math.isfinite(x) and lo <= x <= hi], float)
+        if m.size:
+            for c in log_columns(m, lo, hi, width)[0]:
+                row[c] = ch
+        lines.append(Text("".join(row), style="bold" if ch == MEASURED_MARK else ""))
+    axis = [" "] * width
+    for tick in _ticks(lo, hi):
+        c = int(log_columns([tick], lo, hi, width)[0][0])
+        label = f"{tick:g}"
+        if c + len(label) <= width and all(ch == " " for ch in axis[max(0, c - 1):c + len(label) + 1]):
+            axis[c:c + len(label)] = list(label)
+    lines.append(Text("".join(axis), style="dim"))
+    return lines
+
+
+def _ticks(lo: float, hi: float) -> list[float]:
+    out = []
+    decade = 10.0 ** math.floor(math.log10(lo))
+    while decade <= hi:
+        for m in (1, 2, 5):
+            t = m * decade
+            if lo <= t <= hi:
+                out.append(t)
+        decade *= 10
+    return out
+
+
+class ResponseDrawing(Widget):
+    """The measured response with the measured and fitted modes marked."""
+
+    DEFAULT_CSS = "ResponseDrawing { height: 11; }"
+
+    def __init__(self, **kw):
+        super().__init__(**kw)
+        self.measurement: Measurement | None = None
+
+    def set_measurement(self, m: Measurement | None) -> None:
+        self.measurement = m
+        self.refresh()
+
+    def render(self) -> Text:
+        width = max(10, self.size.width)
+        out = Text()
+        m = self.measurement
+        if m is None:
+            out.append("No measurement yet: press o and give the recording and the sweep it played.\n"
+                       "Make the sweep with `showkit measure sweep --out sweep.wav`, play it through "
+                       "the tube and record at the cap.", style="italic")
+            return out
+        fit = m.report["fit"]
+        out.append(f"response of {m.recording.name} (dB, top = peak, {PLOT_RANGE_DB:g} dB tall)   "
+                   f"{MEASURED_MARK} measured mode   {MODEL_MARK} fitted model"[:width] + "\n", style="italic")
+        lines = response_plot(m.freq_hz, m.level_db, [x["frequency_hz"] for x in m.report["modes"]],
+                              fit["model_hz"], width)
+        for k, line in enumerate(lines):
+            out.append(line)
+            if k < len(lines) - 1:
+                out.append("\n")
+        return out
+
+
+class MeasureTable(DataTable):
+    """Measured against modelled modes."""
+
+
+class MeasureView(Vertical):
+    """Open a recording and its sweep, see the response and the fit, write it to the rig."""
+
+    BINDINGS = [
+        Binding("o", "open", "open recording"),
+        Binding("W", "write", "write fit to rig"),
+    ]
+
+    def __init__(self, **kw):
+        super().__init__(**kw)
+        self.measurement: Measurement | None = None
+        self.last_paths = ("recording.wav", "sweep.wav")
+
+    def compose(self) -> ComposeResult:
+        yield Static("[b]Measure the tube[/b]  o opens a recording of the sweep", id="measure-title")
+        yield ResponseDrawing(id="response-drawing")
+        yield MeasureTable(id="measure-table", cursor_type="row", zebra_stripes=False)
+        yield Static("", id="measure-fit")
+        yield Static(f"CAUTION: {LEVEL_CAUTION}", id="measure-caution")
+
+    def on_mount(self) -> None:
+        table = self.query_one(MeasureTable)
+        for label, key, width in (("#", "n", 2), ("measured Hz", "f", 11), ("Q", "q", 6),
+                                  ("model Hz", "fm", 9), ("cents", "c", 6), ("model Q", "qm", 7),
+                                  ("rig file Hz", "f0", 11), ("cents", "c0", 6), ("level dB", "lv", 8)):
+            table.add_column(label, key=key, width=width)
+
+    @property
+    def session(self):
+        return self.app.session
+
+    # ------------------------------------------------------------ opening
+    def action_open(self) -> None:
+        from showkit.ui.dialogs import AskScreen
+
+        def done(values):
+            if values:
+                self.analyse(values["recording"], values["sweep"])
+
+        rec, sweep = self.last_paths
+        self.app.push_screen(AskScreen("Analyse a recording of the sweep", [
+            ("recording", "recording at the cap (WAV or FLAC)", rec),
+            ("sweep", "the sweep that was played (from `showkit measure sweep`)", sweep)],
+            note=f"CAUTION: {LEVEL_CAUTION}"), done)
+
+    def _path(self, text: str) -> Path:
+        p = Path(str(text).strip()).expanduser()
+        if not p.is_absolute() and not p.exists():
+            p = self.session.sheet.folder / p
+        return p
+
+    def analyse(self, recording_text: str, sweep_text: str) -> None:
+        """Read both files and analyse them in a worker (progress in the status line)."""
+        rec_path, sweep_path = self._path(recording_text), self._path(sweep_text)
+        self.last_paths = (str(recording_text).strip(), str(sweep_text).strip())
+        s = self.session
+
+        def work(progress):
+            return measure_files(s.base_rig(), rec_path, sweep_path, progress)
+
+        self.app.run_job("measure", work, self.show_measurement, f"analysing {rec_path.name}")
+
+    def show_measurement(self, m: Measurement) -> None:
+        self.measurement = m
+        self.query_one(ResponseDrawing).set_measurement(m)
+        report, fit = m.report, m.report["fit"]
+        table = self.query_one(MeasureTable)
+        table.clear()
+        for k, (mode, after, c1, before, c0) in enumerate(zip(report["modes"], fit["model_hz"],
+                                                              fit["residual_cents"], fit["rig_model_hz"],
+                                                              fit["before_cents"]), 1):
+            qm = fit["model_q"][k - 1] if fit.get("model_q") is not None and k - 1 < len(fit["model_q"]) \
+                else None
+            table.add_row(str(k), f"{mode['frequency_hz']:.2f}", f"{mode['q']:.1f}", f"{after:.2f}",
+                          f"{c1:+.1f}", "-" if qm is None or not math.isfinite(qm) else f"{qm:.1f}",
+                          f"{before:.2f}", f"{c0:+.1f}", f"{mode['level_db']:.1f}")
+        rec = report["recording"]
+        text = (f"sound speed {fit['sound_speed_m_s']:.2f} m/s (rig file: {fit['rig_sound_speed_m_s']:.2f})"
+                + (f", end correction {fit['end_correction']:.3f} hole radii" if fit["end_correction"]
+                   is not None else "")
+                + f"; rms {fit['rms_cents']:.1f} cents after the fit; sweep found {rec['delay_s']:.3f} s in, "
+                  f"impulse-to-noise {rec['snr_db']:.0f} dB")
+        warnings = report["warnings"]
+        if warnings:
+            text += "\n" + "\n".join(f"⚠ {w}" for w in warnings)
+        self.query_one("#measure-fit", Static).update(Text(text))
+        self.query_one("#measure-title", Static).update(
+            f"[b]Measure the tube[/b]  {escape(m.recording.name)} with {escape(m.sweep.name)} on "
+            f"{escape(m.rig_name)}: {len(report['modes'])} modes   W writes the fit into the rig file")
+        self.app.say(f"{len(report['modes'])} modes measured; the model was off by "
+                     f"{_rms(fit['before_cents']):.1f} cents rms before the fit, {fit['rms_cents']:.1f} after"
+                     + (f"; {len(warnings)} warning(s)" if warnings else ""), warn=bool(warnings))
+
+    # ------------------------------------------------------------ writing the fit
+    def rig_file(self) -> Path | None:
+        try:
+            return self.session.base_rig().path
+        except ShowkitError:
+            return None
+
+    def action_write(self) -> None:
+        from showkit.rigfile import demo_rig_path
+
+        m = self.measurement
+        if m is None:
+            self.app.say("nothing to write yet: open a recording first (o)")
+            return
+        path = self.rig_file()
+        if path is None or Path(path).resolve() == demo_rig_path().resolve():
+            self.app.say("the bundled demo rig is never changed: copy it to your own rig file, name that "
+                         "file as the sheet's rig, then write the fit again (W)", warn=True)
+            return
+        try:
+            backup = write_fit(Path(path), m.report)
+        except ShowkitError as exc:
+            self.app.say(exc.line(), warn=True)
+            return
+        self.session.reload_rig()
+        self.app.start_background()
+        self.app.update_topbar()
+        done = f"wrote the fit into {Path(path).name} (previous version kept as {Path(backup).name})"
+        self.query_one("#measure-title", Static).update(f"[b]Measure the tube[/b]  {escape(done)}")
+        self.app.say(f"{done}; modes and ceilings re-derived for the measured tube")
+
+
+def measure_files(rig, rec_path: Path, sweep_path: Path, progress=None) -> Measurement:
+    """Read a recording and its sweep and analyse them (slow: run it in a worker).
+
+    ``progress(done, total, text)`` is called as the work goes on.  The response
+    drawn is :func:`~showkit.analysis.sweep.measure_response`'s magnitude in dB
+    re its peak; the report is :func:`~showkit.analysis.measurement.analyse_recording`'s.
+    """
+    import numpy as np
+
+    from showkit.analysis.measurement import analyse_recording
+    from showkit.analysis.sweep import measure_response
+
+    progress = progress or (lambda done, total, text=None: None)
+    rec, rec_rate = _read(rec_path, "recording")
+    sweep, sweep_rate = _read(sweep_path, "sweep")
+    progress(0, 300, "response")
+    resp = measure_response(rec, rec_rate, sweep, sweep_rate, str(rec_path))
+    progress(100, 300, "analysis")
+
+    def inner(fraction, text=""):  # analyse_recording reports (fraction 0..1, text)
+        progress(int(round(100 * (1 + float(fraction)))), 300, text)
+
+    report = analyse_recording(rig, rec, rec_rate, sweep, sweep_rate, str(rec_path), inner)
+    progress(300, 300, None)
+    mag = np.abs(resp.response)
+    with np.errstate(divide="ignore"):
+        level = 20 * np.log10(np.maximum(mag, 1e-30) / max(float(mag.max()), 1e-30))
+    return Measurement(Path(rec_path), Path(sweep_path), np.asarray(resp.freq_hz), level, report, rig.name)
+
+
+def write_fit(path: Path, report: dict) -> Path:
+    """The fit of a report into a rig file, as `showkit measure analyse --update-rig` writes it."""
+    from showkit.rigwrite import update_rig
+
+    fit = report["fit"]
+    undetermined = set(fit["undetermined"])
+    d = report["drive_response"]
+    return update_rig(
+        path, sound_speed_m_s=fit["sound_speed_m_s"],
+        end_correction=None if "end_correction" in undetermined else fit["end_correction"],
+        resistance_pa_s_m3=None if "resistance" in undetermined else fit["resistance_pa_s_m3"],
+        modes=report["modes"],
+        measured_extra={"sound_speed_m_s": round(fit["sound_speed_m_s"], 3),
+                        "rms_cents": round(fit["rms_cents"], 2),
+                        "snr_db": round(report["recording"]["snr_db"], 1)},
+        response_freq_hz=d["frequency_hz"], response_db=d["db"])
+
+
+def _rms(values) -> float:
+    v = [float(x) for x in values]
+    return math.sqrt(sum(x * x for x in v) / len(v)) if v else 0.0
+
+
+def _read(path: Path, role: str):
+    import soundfile as sf
+
+    from showkit.errors import AudioError
+
+    if not Path(path).is_file():
+        raise AudioError(f"no such {role} file", str(path), f"give the path of the {role} (WAV or FLAC)")
+    try:
+        data, rate = sf.read(str(path), dtype="float64", always_2d=False)
+    except (RuntimeError, sf.LibsndfileError, OSError) as exc:
+        raise AudioError(f"cannot read the {role} ({str(exc).splitlines()[0]})", str(path),
+                         "give a WAV or FLAC file") from None
+    return data, rate

@@ -1,0 +1,487 @@
+"""The Run view: the pre-show check, then the show played live through the audio device.
+
+The pre-show check takes today's manometer reading and gas temperature and
+re-derives every ceiling (:func:`showkit.show.preshow.pre_show_check`, the
+same check as `showkit run`); cues that no longer fit are listed and cannot
+be started.  The show is played by :class:`showkit.show.engine.Engine`, which
+only ever scales the rendered cues down.  The flame row under the cue is the
+pressure model's prediction for each rendered cue
+(:func:`showkit.analysis.pressure.signal_report`), computed ahead of time in a
+worker and looked up by the engine's play position: this view holds no physics.
+
+Panic is bound at the App level (ctrl+x, every view and dialog); see
+:meth:`showkit.ui.app.ShowkitApp.action_panic`.
+"""
+
+from __future__ import annotations
+
+import math
+
+from rich.markup import escape
+from rich.text import Text
+from textual.app import ComposeResult
+from textual.binding import Binding
+from textual.containers import Vertical
+from textual.widget import Widget
+from textual.widgets import DataTable, Static
+
+from showkit.errors import ShowkitError
+from showkit.safety import LEVEL_CAUTION
+from showkit.ui.drawing import flame_rows, hole_columns, tube_line
+
+#: How often the view asks the engine what is happening, s.
+POLL_S = 0.05
+#: One press of the fader keys, dB.
+FADER_STEP_DB = 1.0
+FLAME_LINES = 4
+
+STATE_WORDS = {"idle": "ready", "playing": "PLAYING", "fading": "FADING", "panic": "PANIC (silent)",
+               "fault": "DEVICE FAULT", "closed": "closed"}
+
+
+def fmt_time(seconds: float) -> str:
+    from showkit.units import format_time
+
+    return format_time(seconds)
+
+
+class RunTable(DataTable):
+    """The cues as the pre-show check found them (keeps DataTable's cursor keys)."""
+
+
+class RunFlames(Widget):
+    """The predicted flame row at the play position of the cue that plays."""
+
+    DEFAULT_CSS = "RunFlames { height: 6; }"
+
+    def __init__(self, **kw):
+        super().__init__(**kw)
+        self.positions_m: list[float] = []
+        self.length_m = 1.0
+        self.row = None
+        self.lo = 0.0
+        self.hi = 1.0
+        self.caption = "flame row: run the pre-show check (c), then start a cue (g)"
+
+    def set_rig(self, positions_m, length_m: float) -> None:
+        self.positions_m, self.length_m = list(positions_m), float(length_m)
+        self.refresh()
+
+    def show(self, row, lo: float, hi: float, caption: str) -> None:
+        if row is None and self.row is None and caption == self.caption:
+            return
+        self.row, self.lo, self.hi, self.caption = row, lo, hi, caption
+        self.refresh()
+
+    def render(self) -> Text:
+        width = max(10, self.size.width - 2)
+        cols = hole_columns(self.positions_m, self.length_m, width)
+        out = Text()
+        out.append(self.caption[: self.size.width] + "\n", style="italic")
+        if self.row is None:
+            rows = [Text(" " * width) for _ in range(FLAME_LINES - 1)] + \
+                [Text("".join("▴" if c in set(cols) else " " for c in range(width)), style="dim")]
+        else:
+            rows = flame_rows(self.row, None, cols, width, FLAME_LINES, lo=self.lo, hi=self.hi)
+        for r in rows:
+            out.append(" ")
+            out.append(r)
+            out.append("\n")
+        out.append("▐", style="bold")
+        out.append(tube_line(cols, width))
+        out.append("▌", style="bold")
+        return out
+
+
+class RunView(Vertical):
+    """Pre-show check, the cue playing and the next, fader, flame row, faults, level caution."""
+
+    BINDINGS = [
+        Binding("c", "check", "check"),
+        Binding("g", "go", "go"),
+        Binding("s", "start_selected", "start selected", show=False),
+        Binding("f", "fade", "fade out"),
+        Binding("minus", "fader(-1)", "fader -1"),
+        Binding("plus,equals_sign", "fader(1)", "fader +1"),
+        Binding("r", "rearm", "re-arm"),
+        Binding("o", "reconnect", "reconnect device", show=False),
+    ]
+
+    def __init__(self, **kw):
+        super().__init__(**kw)
+        self.cues: list = []          # RenderedCue, from the last pre-show check
+        self.problems: list[str] = []
+        self.engine = None
+        self.flames: dict = {}        # cue id -> (height frames, frame rate Hz, lo, hi)
+        self.readings = ""
+        self.message = ""
+        self._timer = None
+
+    def compose(self) -> ComposeResult:
+        yield Static("", id="run-title")
+        yield RunTable(id="run-table", cursor_type="row", zebra_stripes=False)
+        yield Static("", id="run-now")
+        yield RunFlames(id="run-flames")
+        yield Static("", id="run-message")
+        yield Static(f"CAUTION: {LEVEL_CAUTION}", id="run-caution")
+
+    def on_mount(self) -> None:
+        table = self.query_one(RunTable)
+        for label, key, width in (("#", "n", 2), ("cue", "id", 14), ("length", "len", 7),
+                                  ("gain", "gain", 6), ("ceiling", "ceiling", 7), ("state", "state", 6),
+                                  ("then", "then", 4)):
+            table.add_column(label, key=key, width=width)
+        table.add_column("why not / label", key="why")
+        self.query_one("#run-title", Static).update(
+            "[b]Run the show[/b]  no pre-show check yet: press c and enter today's manometer reading "
+            "and gas temperature")
+        self.refresh_now()
+
+    @property
+    def session(self):
+        return self.app.session
+
+    # ------------------------------------------------------------ pre-show check
+    def action_check(self) -> None:
+        if self.engine is not None and self.engine.busy:
+            self.app.say("a cue is playing: fade it out (f) or panic (ctrl+x) before a new check",
+                         warn=True)
+            return
+        from showkit.ui.dialogs import AskScreen
+
+        try:
+            rig = self.session.rig
+            static, temp = f"{rig.static_pa:g} Pa", f"{rig.temperature_k - 273.15:.1f} C"
+        except ShowkitError:
+            static, temp = "", ""
+
+        def done(values):
+            if values:
+                self.start_check(values["static"], values["temperature"])
+
+        self.app.push_screen(AskScreen("Pre-show check: today's readings", [
+            ("static", 'manometer reading (e.g. "18 Pa", "0.08 inH2O")', static),
+            ("temperature", 'gas temperature (e.g. "19 C")', temp)],
+            note=f"CAUTION: {LEVEL_CAUTION}"), done)
+
+    def start_check(self, static_text: str, temperature_text: str) -> None:
+        """Read today's values, then re-derive every ceiling in a worker."""
+        app, s = self.app, self.session
+        before = (s.static_pa, s.temperature_k)
+        try:
+            base = s.base_rig()
+            static_pa = s.set_static(static_text)
+            temperature_k = s.set_temperature(temperature_text)
+            s.save()
+            log = app.show_log()
+        except ShowkitError as exc:
+            s.static_pa, s.temperature_k = before
+            app.say(exc.line(), warn=True)
+            return
+        # a reading equal to the rig file's (as the dialog shows it) is the rig file's
+        file_static = abs(static_pa - base.static_pa) < 1e-9
+        file_temp = abs(temperature_k - base.temperature_k) < 0.05
+        s.static_pa = None if file_static else static_pa
+        s.temperature_k = None if file_temp else temperature_k
+        if (s.static_pa, s.temperature_k) != before:  # today's conditions for every view
+            app.change_conditions()
+            if s.temperature_k != before[1]:
+                app.start_modes()
+        self._close_engine()
+        self.readings = f"static {static_pa:g} Pa, gas {temperature_k - 273.15:.1f} °C"
+        path = s.sheet.path
+        check_static, check_temp = s.static_pa, s.temperature_k
+
+        def work(progress):
+            from showkit.show.preshow import pre_show_check
+
+            return pre_show_check(path, log, check_static, check_temp)
+
+        app.run_job("preshow", work, self.check_done, "pre-show check: re-deriving every ceiling")
+
+    def check_done(self, result) -> None:
+        cues, problems = result
+        self.cues, self.problems = cues, problems
+        self.flames = {}
+        self.fill_table()
+        bad = [c for c in cues if not c.playable]
+        title = f"[b]Run the show[/b]  pre-show check: {escape(self.readings)}: "
+        if bad:
+            title += f"[b]{len(bad)} cue(s) no longer fit[/b] and cannot be started: " + \
+                escape(", ".join(c.id for c in bad))
+        else:
+            title += f"all {len(cues)} cues fit"
+        self.query_one("#run-title", Static).update(title)
+        if bad:
+            self.app.say(f"pre-show check: {len(bad)} cue(s) no longer fit today: {bad[0].refusal()}",
+                         warn=True)
+        else:
+            self.app.say(f"pre-show check: all {len(cues)} cues fit today; g starts the first")
+        if any(c.playable for c in cues):
+            self.open_engine()
+            self.start_flames()
+        else:
+            self.set_message("no cue can be played today: lower the gains or lock the sheet again (show view)")
+
+    def fill_table(self) -> None:
+        table = self.query_one(RunTable)
+        table.clear()
+        for k, c in enumerate(self.cues, 1):
+            state = Text(c.status if c.playable else c.status.upper(),
+                         style="" if c.playable else "bold reverse")
+            why = c.label if c.playable else c.message
+            table.add_row(str(k), c.id, fmt_time(c.duration_s) if c.playable else "-", f"{c.gain_db:+.1f}",
+                          "-" if c.ceiling_db is None else f"{c.ceiling_db:+.1f}", state, c.then, why,
+                          key=c.id)
+
+    def start_flames(self) -> None:
+        """Flame frames of every playable cue, ahead of the show (a worker)."""
+        s = self.session
+        rig = s.rig
+        cues = [c for c in self.cues if c.playable and c.frames]
+        flames_view = self.query_one(RunFlames)
+        g = rig.geometry
+        flames_view.set_rig(g.hole_positions_m, g.length_m)
+
+        def work(progress):
+            import numpy as np
+
+            from showkit.analysis.pressure import signal_report
+
+            out = {}
+            for k, cue in enumerate(cues):
+                progress(k, len(cues), cue.id)
+                frames = signal_report(rig, cue.samples, cue.rate_hz, flames=True).frames
+                h = np.asarray(frames.height)
+                out[cue.id] = (h, float(frames.frame_rate_hz),
+                               float(h.min()) if h.size else 0.0, float(h.max()) if h.size else 1.0)
+            progress(len(cues), len(cues), None)
+            return out
+
+        def done(result):
+            self.flames = result
+            self.refresh_now()
+
+        self.app.run_job("run-flames", work, done, "predicting the flame row of every cue")
+
+    # ------------------------------------------------------------ the engine
+    def open_engine(self) -> None:
+        """The engine on the chosen device; a device problem is shown with what to do."""
+        from showkit.show.engine import Engine
+
+        app = self.app
+        self._close_engine()
+        log = app.show_log()
+        try:
+            self.engine = Engine(self.cues, log=log)
+        except ShowkitError as exc:
+            self.set_message(exc.line(), warn=True)
+            return
+        self._open_device()
+        if self._timer is None:
+            self._timer = self.set_interval(POLL_S, self.tick, name="run-poll")
+
+    def _open_device(self) -> bool:
+        from showkit.errors import DeviceError
+
+        engine = self.engine
+        try:
+            engine.open(self.session_device())
+        except DeviceError as exc:
+            if not engine.fault:  # open() logs stream failures itself
+                engine.log.write("device_error", None, None, exc.line())
+            self.set_message(f"no audio output: {exc.line()}; then press o to connect again", warn=True)
+            return False
+        dev = engine.device
+        self.set_message(f"output: {dev.index} {dev.name} ({dev.hostapi}) at {engine.rate_hz} Hz")
+        return True
+
+    def session_device(self):
+        return getattr(self.session, "device", None)
+
+    def _close_engine(self) -> None:
+        engine, self.engine = self.engine, None
+        if engine is not None:
+            try:
+                if engine.busy:
+                    engine.panic()
+            finally:
+                engine.close()
+
+    def close(self) -> None:
+        """Silence and close (on quit)."""
+        self._close_engine()
+
+    def tick(self) -> None:
+        """Every POLL_S: the engine's events to the screen (the engine logs them), and the display."""
+        engine = self.engine
+        if engine is None:
+            return
+        try:
+            events = engine.poll()
+        except ShowkitError as exc:
+            self.set_message(exc.line(), warn=True)
+            return
+        for ev in events:
+            if ev.kind == "device_error":
+                self.set_message(f"{ev.detail}; press o to reconnect", warn=True)
+            elif ev.kind in ("start", "stop") and ev.cue:
+                self.app.say(f"{ev.cue}: {ev.detail}")
+        self.refresh_now()
+
+    def refresh_now(self) -> None:
+        now = self.query_one("#run-now", Static)
+        flames_view = self.query_one(RunFlames)
+        if not flames_view.positions_m and self.session.rig_loaded:
+            try:
+                g = self.session.rig.geometry
+                flames_view.set_rig(g.hole_positions_m, g.length_m)
+            except ShowkitError:
+                pass
+        engine = self.engine
+        if engine is None:
+            self._now_text = None
+            now.update("NOW  -\nNEXT -\nfader -" + ("" if self.cues else "   (run the pre-show check: c)"))
+            self.query_one(RunFlames).show(None, 0, 1, "flame row: appears when a cue plays")
+            return
+        st = engine.status()
+        lines = []
+        if st.cue_id is not None:
+            cue = engine.cues[st.cue_index]
+            total = max(cue.duration_s, 1e-9)
+            done = int(round(12 * min(1.0, st.elapsed_s / total)))
+            lines.append(f"NOW  {st.cue_index + 1} {st.cue_id}  '{cue.label[:26]}'  "
+                         f"{fmt_time(st.elapsed_s)} elapsed, {fmt_time(st.left_s)} left "
+                         + "█" * done + "·" * (12 - done))
+        else:
+            lines.append("NOW  -")
+        if st.next_id is not None:
+            nxt = engine.cues[st.next_index]
+            line = f"NEXT {st.next_index + 1} {st.next_id}  '{nxt.label[:26]}'  ({fmt_time(nxt.duration_s)})"
+            if st.skipped_ids:
+                line += f"  passing over {', '.join(st.skipped_ids)}: they do not fit today"
+            lines.append(line)
+        else:
+            lines.append("NEXT (end of show)")
+        fader = "silent" if st.fader_db == -math.inf else f"{st.fader_db:+.1f} dB"
+        lines.append(f"fader {fader} (0 dB = the cue's locked gain, the most it may play)   "
+                     f"{STATE_WORDS.get(st.state, st.state)}")
+        text = "\n".join(lines)
+        if text != getattr(self, "_now_text", None):
+            self._now_text = text
+            now.update(Text(text))
+        if st.state == "fault" and st.message:
+            self.set_message(f"{st.message}; press o to reconnect", warn=True)
+        # the flame row at the play position
+        flames = self.query_one(RunFlames)
+        if st.cue_id is not None and st.cue_id in self.flames:
+            h, rate, lo, hi = self.flames[st.cue_id]
+            if h.shape[0]:
+                k = int(min(h.shape[0] - 1, max(0, round(st.elapsed_s * rate))))
+                flames.show(h[k], lo, hi, f"predicted flames of {st.cue_id} at {fmt_time(st.elapsed_s)} "
+                            f"(scale: this cue's {lo:.2f} to {hi:.2f} of still height)")
+                return
+        if st.cue_id is not None:
+            flames.show(None, 0, 1, "flame row: being predicted…" if self.app.busy("run-flames")
+                        else "flame row: not predicted for this cue")
+        else:
+            flames.show(None, 0, 1, "flame row: appears when a cue plays")
+
+    def set_message(self, text: str, warn: bool = False) -> None:
+        if text == self.message:
+            return
+        self.message = text
+        widget = self.query_one("#run-message", Static)
+        widget.update(Text(("⚠ " if warn else "") + text))
+        widget.set_class(warn, "warn")
+        if warn:
+            self.app.say(text, warn=True)
+
+    # ------------------------------------------------------------ operator's keys
+    def _engine_or_say(self, need_device: bool = True):
+        engine = self.engine
+        if engine is None or (need_device and engine.device is None):
+            self.app.say("run the pre-show check first (c)" if not self.cues else
+                         self.message if self.message.startswith("no audio output") else
+                         "no audio output: connect the device (D chooses one), then press o", warn=True)
+            return None
+        return engine
+
+    def _refused(self, exc: ShowkitError) -> None:
+        self.app.say(f"refused: {exc.line()}", warn=True)
+
+    def action_go(self, index: int | None = None) -> None:
+        engine = self._engine_or_say()
+        if engine is None:
+            return
+        try:
+            k = engine.go(index)
+        except ShowkitError as exc:
+            self._refused(exc)
+            return
+        self.app.say(f"GO {k + 1} {engine.cues[k].id} at {engine.cues[k].gain_db:+.1f} dB")
+        self.refresh_now()
+
+    def action_start_selected(self) -> None:
+        table = self.query_one(RunTable)
+        if not self.cues:
+            self.app.say("run the pre-show check first (c)")
+            return
+        self.action_go(min(max(table.cursor_row, 0), len(self.cues) - 1))
+
+    def action_fade(self) -> None:
+        engine = self._engine_or_say()
+        if engine is None:
+            return
+        try:
+            engine.fade_out()
+        except ShowkitError as exc:
+            self._refused(exc)
+            return
+        self.app.say(f"fading out over {engine.fade_s:g} s")
+
+    def action_fader(self, direction: int) -> None:
+        engine = self._engine_or_say()
+        if engine is None:
+            return
+        try:
+            new = engine.fader_step(direction * FADER_STEP_DB)
+        except ShowkitError as exc:
+            self._refused(exc)
+            return
+        self.app.say("fader " + ("silent" if new == -math.inf else f"{new:+.1f} dB"))
+        self.refresh_now()
+
+    def action_rearm(self) -> None:
+        engine = self._engine_or_say(need_device=False)
+        if engine is None:
+            return
+        engine.rearm()
+        self.app.say("re-armed: g starts the next cue")
+        self.refresh_now()
+
+    def action_reconnect(self) -> None:
+        if not self.cues:
+            self.app.say("run the pre-show check first (c)")
+            return
+        if self.engine is None or self.engine.device is None:
+            self.open_engine()
+            return
+        from showkit.errors import DeviceError
+
+        try:
+            self.engine.reopen(self.session_device())
+        except DeviceError as exc:
+            self.set_message(f"no audio output: {exc.line()}; then press o to connect again", warn=True)
+            return
+        dev = self.engine.device
+        self.set_message(f"output: {dev.index} {dev.name} at {self.engine.rate_hz} Hz; g resumes at the next cue")
+        self.app.say("device connected: g resumes at the next cue")
+
+    def panic(self) -> bool:
+        """Panic now (the App's panic key calls this first); True when an engine was there."""
+        engine = self.engine
+        if engine is None:
+            return False
+        engine.panic()
+        return True
