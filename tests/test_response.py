@@ -198,3 +198,28 @@ def test_simulate_refuses_what_it_cannot_do(filters):
         simulate(filters, np.zeros((100, 2)))  # channels must be mixed first
     with pytest.raises(ValueError):
         simulate(filters, np.zeros(100), envelope=False)  # nothing asked for
+
+
+def test_a_measured_drive_response_gets_a_causal_minimum_phase():
+    """A measured magnitude with a borrowed phase is not causal and never rings down;
+    the minimum-phase construction (Oppenheim & Schafer, 3rd ed., s. 13.8) is."""
+    import numpy as np
+
+    from showkit.physics.drive import DriveCalibration, _model_shape, driver_shape
+    from showkit.physics.response import design_hole_filters
+    from showkit.rigfile import load_rig
+
+    base = DriveCalibration()
+    f = 25.0 * 2.0 ** (np.arange(0, 37) / 6.0)  # sixth-octave points, as measurement writes them
+    # the model's own magnitude: its minimum phase is the model's phase (a band-pass is minimum phase)
+    same = DriveCalibration(response_freq_hz=tuple(f), response_db=tuple(20 * np.log10(np.abs(_model_shape(f, base)))))
+    probe = np.array([40.0, 100.0, 400.0, 1000.0])
+    assert np.allclose(np.angle(driver_shape(probe, same)), np.angle(_model_shape(probe, base)), atol=0.1)
+    # a rough measured response: the magnitude is kept at the measured points...
+    rough = np.random.default_rng(3).normal(0.0, 2.0, f.size)
+    drive = DriveCalibration(response_freq_hz=tuple(f), response_db=tuple(rough))
+    assert np.allclose(20 * np.log10(np.abs(driver_shape(f, drive))), rough, atol=1e-9)
+    # ...and the tube's impulse responses still ring down in a few seconds
+    rig = load_rig()
+    filters = design_hole_filters(rig.model, drive)
+    assert filters.taps / filters.rate_hz < 5.0

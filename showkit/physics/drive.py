@@ -67,8 +67,66 @@ class DriveCalibration:
                    f", resonance {self.speaker_resonance_hz:g} Hz, Q {self.speaker_q:g}"))
 
 
+def _model_shape(f: np.ndarray, drive: DriveCalibration) -> np.ndarray:
+    """The default driver: a second-order band-pass (complex, arbitrary scale)."""
+    w = 2.0 * np.pi * f
+    ws = 2.0 * np.pi * drive.speaker_resonance_hz
+    return 1j * w * ws / (ws * ws - w * w + 1j * w * ws / drive.speaker_q)
+
+
+def _measured_db(f: np.ndarray, drive: DriveCalibration) -> np.ndarray:
+    """The measured magnitude in dB; outside the measured range the default model,
+    joined at the nearest measured end (never assume the drive vanishes there:
+    that would hide content from the ceilings)."""
+    rf = np.asarray(drive.response_freq_hz)
+    rd = np.asarray(drive.response_db)
+    default_db = 20.0 * np.log10(np.maximum(np.abs(_model_shape(f, drive)), 1e-30))
+    edge_db = 20.0 * np.log10(np.abs(_model_shape(rf[[0, -1]], drive)))
+    measured = np.interp(f, rf, rd)
+    measured = np.where(f < rf[0], default_db - edge_db[0] + rd[0], measured)
+    return np.where(f > rf[-1], default_db - edge_db[1] + rd[-1], measured)
+
+
+#: Grid of the minimum-phase construction: points and top frequency (Hz).
+_MIN_PHASE_POINTS = 1 << 15
+_MIN_PHASE_TOP_HZ = 24000.0
+
+
+def _minimum_phase(drive: DriveCalibration) -> tuple[np.ndarray, np.ndarray]:
+    """Frequencies and unwrapped minimum phase of the measured magnitude.
+
+    The real-cepstrum (homomorphic) construction: fold the cepstrum of
+    ``log |D|`` onto positive quefrencies (Oppenheim & Schafer,
+    *Discrete-Time Signal Processing*, 3rd ed., section 13.8).  A measured
+    magnitude paired with the model's phase is not a causal response, and its
+    impulse response would never ring down; the minimum-phase one is causal.
+    """
+    key = (drive.response_freq_hz, drive.response_db, drive.speaker_resonance_hz, drive.speaker_q)
+    hit = _PHASE_CACHE.get(key)
+    if hit is not None:
+        return hit
+    n = 2 * (_MIN_PHASE_POINTS - 1)
+    grid = np.linspace(0.0, _MIN_PHASE_TOP_HZ, _MIN_PHASE_POINTS)
+    log_mag = _measured_db(np.maximum(grid, grid[1] / 4.0), drive) * (np.log(10.0) / 20.0)
+    cep = np.fft.irfft(log_mag, n=n)
+    fold = np.zeros_like(cep)
+    fold[0] = cep[0]
+    fold[1:n // 2] = 2.0 * cep[1:n // 2]
+    fold[n // 2] = cep[n // 2]
+    phase = np.unwrap(np.imag(np.fft.rfft(fold, n=n)))
+    _PHASE_CACHE.clear() if len(_PHASE_CACHE) > 8 else None
+    _PHASE_CACHE[key] = (grid, phase)
+    return grid, phase
+
+
+_PHASE_CACHE: dict = {}
+
+
 def driver_shape(freq_hz, drive: DriveCalibration) -> np.ndarray:
     """Relative volume velocity per unit digital signal (complex, arbitrary scale).
+
+    The default model, or -- when the rig holds a measured response -- its
+    magnitude with the minimum phase that magnitude implies.
 
     Parameters
     ----------
@@ -77,22 +135,7 @@ def driver_shape(freq_hz, drive: DriveCalibration) -> np.ndarray:
     drive : DriveCalibration
     """
     f = np.asarray(freq_hz, dtype=float)
-    w = 2.0 * np.pi * f
-    ws = 2.0 * np.pi * drive.speaker_resonance_hz
-    shape = 1j * w * ws / (ws * ws - w * w + 1j * w * ws / drive.speaker_q)
-    if drive.response_freq_hz:
-        # outside the measured range follow the default model, joined at the
-        # nearest measured end (never assume the drive vanishes there: that
-        # would hide content from the ceilings)
-        rf = np.asarray(drive.response_freq_hz)
-        rd = np.asarray(drive.response_db)
-        default_db = 20.0 * np.log10(np.maximum(np.abs(shape), 1e-30))
-        measured = np.interp(f, rf, rd)
-        if rf.size:
-            edge = driver_shape(rf[[0, -1]], DriveCalibration(
-                speaker_resonance_hz=drive.speaker_resonance_hz, speaker_q=drive.speaker_q))
-            edge_db = 20.0 * np.log10(np.abs(edge))
-            measured = np.where(f < rf[0], default_db - edge_db[0] + rd[0], measured)
-            measured = np.where(f > rf[-1], default_db - edge_db[1] + rd[-1], measured)
-        shape = 10.0 ** (measured / 20.0) * np.exp(1j * np.angle(shape))
-    return shape
+    if not drive.response_freq_hz:
+        return _model_shape(f, drive)
+    grid, phase = _minimum_phase(drive)
+    return 10.0 ** (_measured_db(f, drive) / 20.0) * np.exp(1j * np.interp(f, grid, phase))
