@@ -163,6 +163,7 @@ def design_hole_filters(model: TubeModel, drive: DriveCalibration, rate_hz: int 
     fs = int(rate_hz or analysis_rate_hz(model.plane_wave_limit_hz))
     delay = int(round(PRE_RING_S * fs))
     n = 1 << 12
+    floor = None
     while True:
         freq = np.fft.rfftfreq(n, 1.0 / fs)
         g_holes, g_cap = transfer(model, drive, freq)
@@ -173,11 +174,15 @@ def design_hole_filters(model: TubeModel, drive: DriveCalibration, rate_hz: int 
         energy = np.cumsum((ir[:, ::-1] ** 2).sum(axis=0))[::-1]  # energy from sample k to the end
         total = energy[0] if energy[0] > 0 else 1.0
         tail = energy / total
-        # the last eighth must be negligible, or the response wrapped around: double
-        if tail[n - n // 8] < tolerance ** 2 or n / fs >= max_seconds:
+        # the last eighth must be negligible, or the response wrapped around: double;
+        # but a tail that no longer falls when the buffer doubles is a numerical
+        # floor (e.g. of a measured drive response), not ringing: stop there
+        last = float(tail[n - n // 8])
+        if last < tolerance ** 2 or n / fs >= max_seconds or (floor is not None and last > 0.25 * floor):
             break
+        floor = last
         n *= 2
-    cut = int(np.searchsorted(-tail, -(tolerance ** 2)))
+    cut = int(np.searchsorted(-tail, -max(tolerance ** 2, 4.0 * float(tail[n - n // 8]))))
     taps = int(min(n, max(256, 256 * math.ceil(cut / 256))))
     ir = ir[:, :taps].copy()
     fade = min(64, taps // 8)
