@@ -471,3 +471,19 @@ def test_no_output_sample_exceeds_the_rendered_cue_at_that_position(lengths, the
         assert np.all(np.abs(oa[playing]) <= np.abs(ref))
         # and it is the rendered sample times that gain
         np.testing.assert_allclose(oa[playing], ref * gain[playing], rtol=1e-6, atol=1e-30)
+
+
+def test_start_is_logged_with_the_gain_at_the_start_not_at_the_poll(tmp_path):
+    """The fader moved between the start and the next poll must not rewrite the start's gain."""
+    from showkit.show.showlog import ShowLog, read_log
+
+    cues = [RenderedCue("a", "a", np.ones(48000, np.float32) * 0.1, 48000, gain_db=-20.0)]
+    log = ShowLog(tmp_path / "log.jsonl")
+    engine = Engine(cues, log=log)
+    out = np.zeros((256, 1), np.float32)
+    engine.go()
+    engine.render_into(out, 256)   # the cue starts here at the fader's unity
+    engine.set_fader_db(-6.0)      # moved before the screen polls
+    engine.poll()
+    starts = [e for e in read_log(tmp_path / "log.jsonl") if e["event"] == "start"]
+    assert starts and starts[0]["gain_db"] == pytest.approx(-20.0)

@@ -95,7 +95,7 @@ EV_START, EV_STOP, EV_UNDERFLOW, EV_ERROR = 1, 2, 3, 4
 R_OPERATOR, R_FOLLOW, R_END, R_FADED, R_CUT, R_PANIC, R_NEXT_REFUSED, R_UNDERFLOW, R_LAST = range(9)
 
 _REASON_TEXT = {
-    R_OPERATOR: "started by the operator",
+    R_OPERATOR: "started on a go (the operator, or --auto)",
     R_FOLLOW: "followed on with no gap",
     R_END: "played to its end",
     R_FADED: "faded out",
@@ -218,7 +218,7 @@ class Engine:
         self._gain = np.zeros(cap, np.float32)
         self._tmp = np.zeros(cap, np.float32)
         self._env = np.zeros(cap, np.float32)
-        self._ev = np.zeros((RING, 4), np.float64)
+        self._ev = np.zeros((RING, 5), np.float64)  # kind, cue, frame, reason, fader then
         self._ev_n = 0
         self._ev_read = 0
         self._backlog: list[EngineEvent] = []
@@ -610,20 +610,21 @@ class Engine:
         while self._ev_read < end:
             row = self._ev[self._ev_read % RING]
             kind, index, frame, reason = int(row[0]), int(row[1]), row[2], int(row[3])
+            fader = float(row[4])
             self._ev_read += 1
             self._backlog.append(self._event_from_ring(kind, index, float(frame) / self.rate_hz,
-                                                       reason))
+                                                       reason, fader))
 
-    def _event_from_ring(self, kind, index, t, reason) -> EngineEvent:
+    def _event_from_ring(self, kind, index, t, reason, fader=None) -> EngineEvent:
         cue = self.cues[index] if 0 <= index < len(self.cues) else None
         cue_id = cue.id if cue else None
         if kind == EV_START:
-            return self._emit("start", cue_id, self._gain_db(cue), _REASON_TEXT[reason], t)
+            return self._emit("start", cue_id, self._gain_db(cue, fader), _REASON_TEXT[reason], t)
         if kind == EV_STOP:
             detail = _REASON_TEXT.get(reason, "stopped")
             if reason == R_NEXT_REFUSED and index + 1 < len(self.cues):
                 detail += f": {self.cues[index + 1].refusal()}"
-            return self._emit("stop", cue_id, self._gain_db(cue), detail, t)
+            return self._emit("stop", cue_id, self._gain_db(cue, fader), detail, t)
         if kind == EV_UNDERFLOW:
             self.note = ("buffer underrun: the cue was ramped out -- start the next cue to resume; "
                          "if it repeats, close other programs or choose another device")
@@ -651,10 +652,11 @@ class Engine:
                 self._drain_ring()  # keep the log in the order things happened
             self.log.write(kind, cue_id, gain_db, detail)
 
-    def _gain_db(self, cue) -> float | None:
+    def _gain_db(self, cue, fader_level: float | None = None) -> float | None:
+        """The cue's gain with the fader (now, or the level given), dB."""
         if cue is None:
             return None
-        fader = self.fader_db
+        fader = self.fader_db if fader_level is None else db(fader_level)
         return cue.gain_db + fader if math.isfinite(fader) else None
 
     # ------------------------------------------------------- the audio callback
@@ -676,6 +678,7 @@ class Engine:
         row[1] = index
         row[2] = self._frames_total + offset
         row[3] = reason
+        row[4] = self._fader_target  # the gain as it was at this moment, for the log
         self._ev_n += 1
 
     def _underflow(self) -> None:

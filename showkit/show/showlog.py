@@ -4,7 +4,7 @@ Every pre-show reading, cue start and stop, fader move, fade, panic and device
 error of a live show is appended to the log as it happens::
 
     {"time": "2026-12-01T19:40:02.125+00:00", "event": "start", "cue": "intro",
-     "gain_db": -6.0, "detail": "started by the operator"}
+     "gain_db": -6.0, "detail": "started on a go (the operator, or --auto)"}
 
 ``time`` is ISO 8601 with the local UTC offset; ``event`` is one of
 :data:`EVENTS`; ``cue`` is the cue's id or null; ``gain_db`` is the drive gain in
