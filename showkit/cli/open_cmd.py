@@ -24,7 +24,10 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         help="rig file for a track opened on its own (default: the demo rig)")
     parser.add_argument("--sheet", metavar="SHEET.toml",
                         help="with a track: the cue sheet to add passages to (made if missing)")
-    parser.add_argument("--view", choices=("show", "tube", "track"), help="the view to open first")
+    parser.add_argument("--view", choices=("show", "tube", "track", "run", "measure"),
+                        help="the view to open first: show (cue list), tube (modes), track (a track's "
+                             "passages), run (play the show) or measure (fit the tube to a sweep); "
+                             "default: show, or track when a track is opened")
     parser.add_argument("--cautions", action="store_true", help="show the safety cautions at start")
 
 

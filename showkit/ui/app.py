@@ -53,7 +53,7 @@ class ShowkitApp(App):
     ENABLE_COMMAND_PALETTE = False
 
     BINDINGS = [
-        Binding("ctrl+x", "panic", "PANIC", priority=True),
+        Binding("ctrl+x", "panic", "PANIC", priority=True, show=False),  # always in the top bar
         Binding("ctrl+q", "quit_safely", "quit", priority=True),
         Binding("1", "view('show')", "show"),
         Binding("2", "view('tube')", "tube"),
@@ -87,6 +87,7 @@ class ShowkitApp(App):
         self._serial = 0
         self._latest: dict[str, str] = {}
         self._last_warning = ""
+        self._held: list[str] = []
         self._audition_timer = None
         self.background_started = False
 
@@ -114,7 +115,7 @@ class ShowkitApp(App):
         if self.want_cautions or (self.want_cautions is None and not _cautions_seen()):
             from showkit.ui.safety import CautionScreen
 
-            self.push_screen(CautionScreen())
+            self.push_screen(CautionScreen(), self._cautions_closed)
         if self.first_track is not None:
             self.set_timer(0.15, lambda: self.query_one(TrackView).open_track(self.first_track))
 
@@ -125,7 +126,10 @@ class ShowkitApp(App):
         status = self.query_one("#status", Static)
         status.update(Text(("⚠ " if warn else "") + text))
         status.set_class(warn, "warn")
-        if warn and text != self._last_warning:
+        if warn and self._cautions_up():
+            if text not in self._held:  # shown again when the cautions are closed
+                self._held.append(text)
+        elif warn and text != self._last_warning:
             self.notify(text, severity="warning", timeout=6)
         self._last_warning = text if warn else ""
 
@@ -322,18 +326,37 @@ class ShowkitApp(App):
         self.query_one(TrackView).conditions_changed()
 
     def update_topbar(self) -> None:
+        """Sheet title, today's conditions and the rig name, with the panic key always at the right.
+
+        On a narrow terminal the words are shortened first, then the title, so the
+        rig name and ``ctrl+x PANIC`` stay on screen.
+        """
         s = self.session
+        bar = self.query_one("#topbar", Static)
+        width = max(20, (bar.size.width or self.size.width) - 2)
         if not s.rig_loaded:  # loading the rig imports the model: done in the background
-            self.query_one("#topbar", Static).update(Text(f"showkit  ·  {s.sheet.title}  ·  loading the rig…"))
-            return
+            variants = [["loading the rig…"]]
+        else:
+            try:
+                rig = s.rig
+                st, gas = rig.static_pa, rig.temperature_k - 273.15
+                t1 = " (today)" if s.static_pa else ""
+                t2 = " (today)" if s.temperature_k else ""
+                t3 = "*" if s.static_pa else ""
+                t4 = "*" if s.temperature_k else ""
+                variants = [[f"static {st:.1f} Pa{t1}", f"gas {gas:.1f} °C{t2}", rig.name],
+                            [f"{st:.1f} Pa{t3}", f"{gas:.1f} °C{t4}", rig.name]]
+            except ShowkitError as exc:
+                variants = [[f"rig problem: {exc.line()}"]]
+        bar.update(_topbar_text(s.sheet.title, variants, width))
+
+    def on_resize(self, event) -> None:
+        from textual.css.query import NoMatches
+
         try:
-            rig = s.rig
-            cond = (f"static {rig.static_pa:.1f} Pa{' (today)' if s.static_pa else ''}  ·  "
-                    f"gas {rig.temperature_k - 273.15:.1f} °C{' (today)' if s.temperature_k else ''}  ·  "
-                    f"{rig.name}")
-        except ShowkitError as exc:
-            cond = f"rig problem: {exc.line()}"
-        self.query_one("#topbar", Static).update(Text(f"showkit  ·  {s.sheet.title}  ·  {cond}"))
+            self.update_topbar()
+        except NoMatches:  # before the first compose
+            return
 
     # ------------------------------------------------------------ actions
     def action_view(self, name: str) -> None:
@@ -359,7 +382,7 @@ class ShowkitApp(App):
 
         self.push_screen(AskScreen("Today's manometer reading (static overpressure)",
                                    [("static", 'reading (e.g. "18 Pa", "0.08 inH2O", "0.2 mbar")',
-                                     f"{rig.static_pa:g} Pa")], note=f"CAUTION: {LEVEL_CAUTION}"), done)
+                                     f"{rig.static_pa:.2f} Pa")], note=f"CAUTION: {LEVEL_CAUTION}"), done)
 
     def action_undo(self) -> None:
         if self.session.undo():
@@ -390,7 +413,21 @@ class ShowkitApp(App):
     def action_cautions(self) -> None:
         from showkit.ui.safety import CautionScreen
 
-        self.push_screen(CautionScreen())
+        self.push_screen(CautionScreen(), self._cautions_closed)
+
+    def _cautions_up(self) -> bool:
+        from showkit.ui.safety import CautionScreen
+
+        return any(isinstance(sc, CautionScreen) for sc in self.screen_stack)
+
+    def _cautions_closed(self, _result=None) -> None:
+        """Raise again the warnings that came while the cautions covered the screen."""
+        held, self._held = self._held, []
+        for text in held:
+            self.notify(text, severity="warning", timeout=20)
+        if held:
+            self._last_warning = held[-1]  # notified just above
+            self.say(held[-1], warn=True)
 
     def action_audition(self) -> None:
         view = self.query_one(ContentSwitcher).current
@@ -508,6 +545,31 @@ class ShowkitApp(App):
         except ShowkitError as exc:
             message = f"showkit: could not save on quit: {exc.line()}"
         self.exit(return_code=0, message=message)
+
+
+PANIC_HINT = "ctrl+x PANIC"
+
+
+def _topbar_text(title: str, variants: list[list[str]], width: int) -> Text:
+    """The top line in ``width`` cells: the first variant that fits, else the title cut."""
+    sep = "  ·  "
+    for prefix in ("showkit" + sep, ""):
+        for parts in variants:
+            left = prefix + sep.join([title] + parts)
+            if len(left) + 2 + len(PANIC_HINT) <= width:
+                return _with_panic(left, width)
+    parts = variants[-1]
+    rest = " · " + " · ".join(parts)
+    room = width - 2 - len(PANIC_HINT) - len(rest)
+    cut = title if len(title) <= room else title[: max(0, room - 1)] + "…"
+    return _with_panic((cut + rest)[: max(0, width - 2 - len(PANIC_HINT))], width)
+
+
+def _with_panic(left: str, width: int) -> Text:
+    out = Text(left)
+    out.append(" " * max(2, width - len(left) - len(PANIC_HINT)))
+    out.append(PANIC_HINT, style="bold reverse")
+    return out
 
 
 def _cautions_seen() -> bool:

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from rich.markup import escape
+from rich.text import Text
 from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import VerticalScroll
@@ -46,8 +46,9 @@ class HelpScreen(ModalScreen[None]):
         with VerticalScroll(id="help-box"):
             yield Static("Keys", id="help-title")
             for title, bindings in self.sections:
-                yield Static(f"[b]{escape(title)}[/b]\n" + escape("\n".join(binding_lines(bindings))),
-                         classes="help-section")
+                # a Text, not markup: key names such as "[" and "]" must not be read as tags
+                yield Static(Text.assemble((title, "bold"), "\n", "\n".join(binding_lines(bindings))),
+                             classes="help-section")
             yield Static("escape: back", id="help-keys")
 
     def action_close(self) -> None:

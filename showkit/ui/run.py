@@ -151,7 +151,7 @@ class RunView(Vertical):
 
         try:
             rig = self.session.rig
-            static, temp = f"{rig.static_pa:g} Pa", f"{rig.temperature_k - 273.15:.1f} C"
+            static, temp = f"{rig.static_pa:.2f} Pa", f"{rig.temperature_k - 273.15:.1f} C"
         except ShowkitError:
             static, temp = "", ""
 
@@ -188,7 +188,7 @@ class RunView(Vertical):
             if s.temperature_k != before[1]:
                 app.start_modes()
         self._close_engine()
-        self.readings = f"static {static_pa:g} Pa, gas {temperature_k - 273.15:.1f} °C"
+        self.readings = f"static {static_pa:.2f} Pa, gas {temperature_k - 273.15:.1f} °C"
         path = s.sheet.path
         check_static, check_temp = s.static_pa, s.temperature_k
 

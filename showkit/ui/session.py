@@ -254,7 +254,7 @@ class Session(TrackWork):
         sheet_path = Path(sheet_path)
         if sheet_path.exists():
             return cls.open_sheet(sheet_path)
-        rig = "demo" if rig_path is None else str(Path(rig_path).expanduser().resolve())
+        rig = "demo" if rig_path is None else _relative_to(Path(rig_path).expanduser(), sheet_path.parent)
         sheet = Sheet(title=f"Show with {Path(track).stem}", rig=rig, cues=[], path=sheet_path)
         sheet_path.parent.mkdir(parents=True, exist_ok=True)
         save_sheet(sheet)
@@ -541,10 +541,7 @@ class Session(TrackWork):
                 return f"demo:{p.name}"
         except ShowkitError:
             pass
-        try:
-            return str(p.relative_to(self.sheet.folder.resolve()))
-        except ValueError:
-            return str(p)
+        return _relative_to(p, self.sheet.folder)
 
     # ------------------------------------------------------------ undo and saving
     def _push(self) -> None:
@@ -598,6 +595,18 @@ class Session(TrackWork):
         self.checks[cue_id] = replace(check, gain_db=gain, headroom_db=head, status=status,
                                       message=f"{head:.1f} dB below the ceiling" if status == "ok"
                                       else f"gain is {-head:.2f} dB above today's ceiling")
+
+
+def _relative_to(path: Path, folder: Path) -> str:
+    """``path`` as the sheet names it: relative to the sheet's ``folder`` (``../x.flac``
+    allowed), or absolute when no relative path exists (another drive)."""
+    import os
+
+    p = Path(path).expanduser().resolve()
+    try:
+        return Path(os.path.relpath(p, Path(folder).expanduser().resolve())).as_posix()
+    except ValueError:  # another drive (Windows)
+        return str(p)
 
 
 def _sound(cue: Cue):

@@ -19,6 +19,9 @@ from showkit.ui.drawing import flame_rows, hole_columns, mode_map, span_strip
 STEP_S = 0.5
 BIG_STEP_S = 5.0
 FLAME_LINES = 4
+#: Screen rows the Track view leaves for everything but the map: top bar, status line,
+#: footer (3), title (2), cursor facts (2), flames (5) and the passage table (header + 4).
+MAP_OTHER_ROWS = 17
 
 
 class TrackMap(Widget, can_focus=True):
@@ -36,19 +39,37 @@ class TrackMap(Widget, can_focus=True):
 
     def get_content_height(self, container, viewport, width: int) -> int:
         if self.analysis is None:
-            return 2
-        return len(self.analysis.map_modes) + 2
+            return 1
+        return len(self.shown_modes()) + 2
+
+    def shown_modes(self) -> list[int]:
+        """Indices (into ``map_modes``) of the mode rows drawn: all that fit the terminal,
+        the most strongly driven first to stay, so the passage table keeps its rows."""
+        import numpy as np
+
+        a = self.analysis
+        n = len(a.map_modes)
+        # the rest of the screen: bars, title, cursor facts, flames, 5 rows of passages
+        room = max(2, self.app.size.height - MAP_OTHER_ROWS - 2)
+        if n <= room:
+            return list(range(n))
+        energy = np.asarray(a.map_energy, dtype=float).reshape(n, -1).sum(axis=1)
+        keep = np.sort(np.argsort(-energy, kind="stable")[:room])
+        return [int(i) for i in keep]
 
     def render(self) -> Text:
         a = self.analysis
         label_w = 4
         width = max(8, self.size.width - label_w)
         out = Text()
-        if a is None:
-            out.append("No track open: o opens one (the demo tracks are listed there).", style="italic")
+        if a is None:  # the title above already says "No track open yet"
             return out
         lines = mode_map(a.map_energy, a.map_times_s, a.duration_s, width, self.cursor_s) if a.map_modes else []
-        for n, line in zip(reversed(a.map_modes), lines):
+        shown = set(self.shown_modes()) if a.map_modes else set()
+        count = len(a.map_modes)
+        for i, (n, line) in enumerate(zip(reversed(a.map_modes), lines)):
+            if count - 1 - i not in shown:
+                continue
             out.append(f"{n:>3} ", style="dim")
             out.append(line)
             out.append("\n")

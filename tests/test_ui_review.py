@@ -1,0 +1,161 @@
+"""Fixes from a fresh-user review of the terminal UI, driven through Textual's Pilot:
+relative paths in new sheets, dialogs that keep text typed together with Enter,
+Enter confirming the cue edit, the help listing [ and ], the 80 x 24 layout,
+and warnings raised while the cautions cover the screen."""
+
+from __future__ import annotations
+
+import pytest
+
+from ui_support import APP_SIZE, make_app, settle, sync
+
+SMALL = (80, 24)
+
+
+async def _burst(pilot, text: str) -> None:
+    """Text and Enter arriving together, as from a paste or `tmux send-keys 'TEXT' Enter`:
+    every key event is queued before any is handled (pilot.press waits after each key)."""
+    from textual import events
+
+    app = pilot.app
+    for ch in text:
+        key = {" ": "space", "-": "minus", ".": "full_stop"}.get(ch, ch)
+        app.post_message(events.Key(key, ch))
+    app.post_message(events.Key("enter", "\r"))
+    await pilot.pause()
+    await pilot.pause()
+
+
+def test_new_sheet_names_rig_and_audio_relative_to_its_folder(tmp_path, monkeypatch, ui_cache):
+    from ui_support import set_folders
+
+    from showkit.show.sheet import load_sheet
+    from showkit.ui.session import Session
+
+    set_folders(monkeypatch, tmp_path, ui_cache)
+    (tmp_path / "demo_audio").mkdir()
+    track = tmp_path / "demo_audio" / "three_rooms.flac"
+    track.write_bytes(b"")
+    rig = tmp_path / "imperial.toml"
+    sheet = tmp_path / "my" / "new.toml"
+    session = Session.for_track(track, rig, sheet)
+    # the README: paths in a sheet are relative to the sheet's folder
+    assert load_sheet(sheet).rig == "../imperial.toml"
+    assert session.audio_reference(track) == "../demo_audio/three_rooms.flac"
+    assert session.audio_reference(sheet.parent / "x.wav") == "x.wav"
+    # the sheet finds them again from its own folder
+    assert load_sheet(sheet).rig_path().resolve() == rig.resolve()
+    # no rig given: the demo rig, named as such
+    assert load_sheet(Session.for_track(track, None, tmp_path / "b.toml").sheet.path).rig == "demo"
+
+
+def test_view_option_accepts_run_and_measure():
+    import argparse
+
+    from showkit.cli import open_cmd
+
+    parser = argparse.ArgumentParser()
+    open_cmd.add_arguments(parser)
+    assert parser.parse_args(["--view", "run"]).view == "run"
+    assert parser.parse_args(["--view", "measure"]).view == "measure"
+    with pytest.raises(SystemExit):
+        parser.parse_args(["--view", "nowhere"])
+
+
+@sync
+async def test_dialogs_keep_text_sent_with_enter_and_enter_confirms_the_edit(ui_show):
+    from showkit.show.sheet import load_sheet
+    from showkit.ui.dialogs import AskScreen
+
+    app = make_app(ui_show)
+    async with app.run_test(size=APP_SIZE) as pilot:
+        await settle(pilot)
+        # manometer: the characters and Enter in one go (as a paste or tmux send-keys)
+        await pilot.press("m")
+        await _burst(pilot, "17 Pa")
+        assert not isinstance(app.screen, AskScreen)
+        assert app.session.static_pa == pytest.approx(17.0)
+        await settle(pilot)
+        # gain dialog on the third cue, a gain below its ceiling
+        await pilot.press("down", "down")
+        cid = app.query_one("ShowView").selected_id()
+        await pilot.press("G")
+        await _burst(pilot, "-45.5")
+        assert app.session.sheet.cue(cid).gain_db == pytest.approx(-45.5)
+        # the cue edit: Enter in the first field confirms the whole form
+        await pilot.press("e")
+        await _burst(pilot, "Quiet one")
+        assert not isinstance(app.screen, AskScreen)
+        assert app.session.sheet.cue(cid).label == "Quiet one"
+        assert load_sheet(ui_show).cue(cid).label == "Quiet one"
+        # tab moves to the next field; Enter there confirms too
+        await pilot.press("e", "tab", *"2", "enter")
+        await pilot.pause()
+        assert app.session.sheet.cue(cid).fade_in_s == pytest.approx(2.0)
+        assert app.session.sheet.cue(cid).label == "Quiet one"
+
+
+@sync
+async def test_help_lists_the_move_keys(ui_show):
+    from showkit.ui.help import HelpScreen
+
+    app = make_app(ui_show)
+    async with app.run_test(size=APP_SIZE) as pilot:
+        await pilot.press("question_mark")
+        await pilot.pause()
+        assert isinstance(app.screen, HelpScreen)
+        text = "\n".join(str(w.render()) for w in app.screen.query(".help-section"))
+        lines = {line.split()[0]: line for line in text.splitlines() if line.strip()}
+        assert "move up" in lines["["]
+        assert "move down" in lines["]"]
+        assert "in here" in lines["("]
+
+
+@sync
+async def test_small_terminal_keeps_passages_rig_name_panic_and_dialog_keys(ui_show):
+    from showkit.demo_files import demo_audio_path
+    from showkit.ui.track import PassageTable
+
+    app = make_app(ui_show, track=demo_audio_path("three_rooms.flac"), view="track")
+    async with app.run_test(size=SMALL) as pilot:
+        await settle(pilot)
+        table = app.query_one(PassageTable)
+        assert table.row_count >= 3
+        # header + at least 3 passages visible inside the screen
+        assert table.region.height >= 4
+        assert table.region.bottom <= SMALL[1] - 2
+        top = str(app.query_one("#topbar").render())
+        assert app.session.rig.name in top
+        assert "ctrl+x PANIC" in top
+        # the longest form (cue edit) shows its keys line inside 24 rows
+        await pilot.press("1")
+        await pilot.press("e")
+        await pilot.pause()
+        keys = app.screen.query_one("#ask-keys")
+        assert keys.region.height >= 1 and keys.region.bottom <= SMALL[1]
+        await pilot.press("escape")
+        await pilot.resize_terminal(100, 30)
+        await pilot.pause()
+        top = str(app.query_one("#topbar").render())
+        assert "ctrl+x PANIC" in top and app.session.rig.name in top
+
+
+@sync
+async def test_warnings_behind_the_cautions_come_back_when_they_close(ui_show):
+    from showkit.ui.safety import CautionScreen
+
+    app = make_app(ui_show, cautions=True, view="tube")
+    async with app.run_test(size=APP_SIZE) as pilot:
+        await settle(pilot)
+        assert isinstance(app.screen, CautionScreen)
+        app.say("cue-x: gain brought down to its ceiling -30.00 dB", warn=True)
+        assert app._held == ["cue-x: gain brought down to its ceiling -30.00 dB"]
+        await pilot.press("enter")
+        await pilot.pause()
+        assert not isinstance(app.screen, CautionScreen)
+        assert "brought down" in app._status_text
+        assert any("brought down" in n.message for n in app._notifications)
+        # the tube facts name the calibration once, and wrap instead of being cut
+        facts = str(app.query_one("#rig-facts").render())
+        assert "calibration: calibration" not in facts
+        assert "calibration: " in facts
