@@ -185,3 +185,33 @@ def span_strip(spans, duration_s: float, width: int, selected: int | None = None
     for ch, st in zip(cells, styles):
         text.append(ch, style=st)
     return text
+
+
+def flame_picture(caption: str, height, air_in, positions_m, length_m: float, width: int,
+                  lines: int, lo: float | None = None, hi: float | None = None,
+                  with_ruler: bool = False) -> Text:
+    """The tube drawn as a row of flames under a caption (empty holes when ``height`` is None).
+
+    Shared by the Tube and Run views: ``caption`` on top, ``lines`` of flame
+    bars (one per hole), the pipe with its holes, and optionally a metre ruler.
+    """
+    cols = hole_columns(positions_m, length_m, width)
+    out = Text()
+    out.append(caption[:width + 2] + "\n", style="italic")
+    if height is None:
+        marks = set(cols)
+        rows = [Text(" " * width) for _ in range(lines - 1)] + \
+            [Text("".join("▴" if c in marks else " " for c in range(width)), style="dim")]
+    else:
+        rows = flame_rows(height, air_in, cols, width, lines, lo=lo, hi=hi)
+    for r in rows:
+        out.append(" ")
+        out.append(r)
+        out.append("\n")
+    out.append("▐", style="bold")
+    out.append(tube_line(cols, width))
+    out.append("▌", style="bold")
+    if with_ruler:
+        out.append("\n ")
+        out.append(ruler(length_m, width))
+    return out

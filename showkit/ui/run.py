@@ -27,7 +27,7 @@ from textual.widgets import DataTable, Static
 
 from showkit.errors import ShowkitError
 from showkit.safety import LEVEL_CAUTION
-from showkit.ui.drawing import flame_rows, hole_columns, tube_line
+from showkit.ui.drawing import flame_picture
 
 #: How often the view asks the engine what is happening, s.
 POLL_S = 0.05
@@ -74,23 +74,8 @@ class RunFlames(Widget):
         self.refresh()
 
     def render(self) -> Text:
-        width = max(10, self.size.width - 2)
-        cols = hole_columns(self.positions_m, self.length_m, width)
-        out = Text()
-        out.append(self.caption[: self.size.width] + "\n", style="italic")
-        if self.row is None:
-            rows = [Text(" " * width) for _ in range(FLAME_LINES - 1)] + \
-                [Text("".join("▴" if c in set(cols) else " " for c in range(width)), style="dim")]
-        else:
-            rows = flame_rows(self.row, None, cols, width, FLAME_LINES, lo=self.lo, hi=self.hi)
-        for r in rows:
-            out.append(" ")
-            out.append(r)
-            out.append("\n")
-        out.append("▐", style="bold")
-        out.append(tube_line(cols, width))
-        out.append("▌", style="bold")
-        return out
+        return flame_picture(self.caption, self.row, None, self.positions_m, self.length_m,
+                             max(10, self.size.width - 2), FLAME_LINES, lo=self.lo, hi=self.hi)
 
 
 class RunView(Vertical):

@@ -9,7 +9,7 @@ from textual.containers import Vertical
 from textual.widget import Widget
 from textual.widgets import DataTable, Static
 
-from showkit.ui.drawing import flame_rows, hole_columns, ruler, tube_line
+from showkit.ui.drawing import flame_picture
 
 FLAME_LINES = 5
 
@@ -36,25 +36,8 @@ class TubeDrawing(Widget):
         self.refresh()
 
     def render(self) -> Text:
-        width = max(10, self.size.width - 2)
-        cols = hole_columns(self.positions_m, self.length_m, width)
-        out = Text()
-        out.append(self.caption[: self.size.width] + "\n", style="italic")
-        if self.height_row is None:
-            rows = [Text(" " * width) for _ in range(FLAME_LINES - 1)] + \
-                [Text("".join("▴" if c in set(cols) else " " for c in range(width)), style="dim")]
-        else:
-            rows = flame_rows(self.height_row, self.air_row, cols, width, FLAME_LINES)
-        for r in rows:
-            out.append(" ")
-            out.append(r)
-            out.append("\n")
-        out.append("▐", style="bold")
-        out.append(tube_line(cols, width))
-        out.append("▌\n", style="bold")
-        out.append(" ")
-        out.append(ruler(self.length_m, width))
-        return out
+        return flame_picture(self.caption, self.height_row, self.air_row, self.positions_m,
+                             self.length_m, max(10, self.size.width - 2), FLAME_LINES, with_ruler=True)
 
 
 class ModeTable(DataTable):
