@@ -160,3 +160,26 @@ def update_rig(path, *, sound_speed_m_s: float | None = None, end_correction: fl
             del doc["measured"]
         doc["measured"] = measured
     return save_text(path, tomlkit.dumps(doc))
+
+
+def write_fit(path, report: dict, drive_response: bool = True, prefer_gas: str = "air_fraction") -> Path:
+    """Write a measurement report's fit into a rig file (what ``--update-rig`` does).
+
+    Parameters the data could not determine keep the rig's values; the measured
+    modes and the recording's figures go under ``[measured]``; the measured
+    drive response into ``[drive]`` unless ``drive_response`` is False.
+    Returns the backup's path.
+    """
+    fit = report["fit"]
+    undetermined = set(fit["undetermined"])
+    d = report["drive_response"]
+    return update_rig(
+        path, sound_speed_m_s=fit["sound_speed_m_s"],
+        end_correction=None if "end_correction" in undetermined else fit["end_correction"],
+        resistance_pa_s_m3=None if "resistance" in undetermined else fit["resistance_pa_s_m3"],
+        modes=report["modes"],
+        measured_extra={"sound_speed_m_s": round(fit["sound_speed_m_s"], 3),
+                        "rms_cents": round(fit["rms_cents"], 2),
+                        "snr_db": round(report["recording"]["snr_db"], 1)},
+        response_freq_hz=d["frequency_hz"] if drive_response else None,
+        response_db=d["db"] if drive_response else None, prefer_gas=prefer_gas)

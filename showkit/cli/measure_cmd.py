@@ -149,23 +149,11 @@ def _report(rig, report, args) -> None:
 
 def _update(rig, report, args) -> None:
     from showkit.errors import RigError
-    from showkit.rigwrite import update_rig
+    from showkit.rigwrite import write_fit
 
     if not getattr(args, "rig", None):
         raise RigError("--update-rig needs your own rig file", "--rig", "copy the demo rig and give --rig FILE")
-    fit = report["fit"]
-    undetermined = set(fit["undetermined"])
-    d = report["drive_response"]
-    backup = update_rig(
-        args.rig, sound_speed_m_s=fit["sound_speed_m_s"],
-        end_correction=None if "end_correction" in undetermined else fit["end_correction"],
-        resistance_pa_s_m3=None if "resistance" in undetermined else fit["resistance_pa_s_m3"],
-        modes=report["modes"],
-        measured_extra={"sound_speed_m_s": round(fit["sound_speed_m_s"], 3),
-                        "rms_cents": round(fit["rms_cents"], 2),
-                        "snr_db": round(report["recording"]["snr_db"], 1)},
-        response_freq_hz=None if args.no_drive_response else d["frequency_hz"],
-        response_db=None if args.no_drive_response else d["db"], prefer_gas=args.gas_as)
+    backup = write_fit(args.rig, report, drive_response=not args.no_drive_response, prefer_gas=args.gas_as)
     if not args.json:
         print(f"updated {args.rig} (previous version kept as {backup})")
 

@@ -320,20 +320,9 @@ def measure_files(rig, rec_path: Path, sweep_path: Path, progress=None) -> Measu
 
 def write_fit(path: Path, report: dict) -> Path:
     """The fit of a report into a rig file, as `showkit measure analyse --update-rig` writes it."""
-    from showkit.rigwrite import update_rig
+    from showkit.rigwrite import write_fit as write
 
-    fit = report["fit"]
-    undetermined = set(fit["undetermined"])
-    d = report["drive_response"]
-    return update_rig(
-        path, sound_speed_m_s=fit["sound_speed_m_s"],
-        end_correction=None if "end_correction" in undetermined else fit["end_correction"],
-        resistance_pa_s_m3=None if "resistance" in undetermined else fit["resistance_pa_s_m3"],
-        modes=report["modes"],
-        measured_extra={"sound_speed_m_s": round(fit["sound_speed_m_s"], 3),
-                        "rms_cents": round(fit["rms_cents"], 2),
-                        "snr_db": round(report["recording"]["snr_db"], 1)},
-        response_freq_hz=d["frequency_hz"], response_db=d["db"])
+    return write(path, report)
 
 
 def _rms(values) -> float:
