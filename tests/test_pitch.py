@@ -21,7 +21,7 @@ def test_a4_is_440_hz():
     # ISO 16:1975: A4 = 440 Hz; MIDI note 69 (MIDI 1.0 specification)
     assert midi_to_hz(69) == 440.0
     assert nearest_note(440.0) == ("A4", 0.0)
-    assert note_name(60) == "C4"  # middle C in scientific pitch notation
+    assert note_name(60) == "C4"  # middle C in scientific pitch notation, as librosa names it (common practice, no source)
 
 
 def test_names_and_midi_against_librosa_on_a_wide_grid():

@@ -44,7 +44,7 @@ def test_agrees_with_pyin(midi):
     f0, voiced, _ = librosa.pyin(x, fmin=60, fmax=1000, sr=22050, frame_length=2048)
     ref = np.nanmedian(f0[voiced])
     ours = np.median(measured(soxr.resample(x, 22050, RATE)))
-    assert abs(1200 * np.log2(ours / ref)) < 10.0  # pYIN's pitch grid is 10 cents (its default resolution)
+    assert abs(1200 * np.log2(ours / ref)) < 10.0  # pYIN's pitch grid is 10 cents (librosa 0.11 pyin default resolution=0.1 semitone)
     assert abs(1200 * np.log2(ours / f)) < 5.0
 
 

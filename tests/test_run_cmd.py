@@ -79,8 +79,9 @@ def test_auto_rehearsal_plays_every_playable_cue_in_order(sheet, tmp_path, patch
                    "--temperature", "24 C"])
     out = capsys.readouterr().out
     assert status == 0
-    # the readings reached the pre-show render in SI (0.09 inH2O = 22.4 Pa, from memory:
-    # 1 inH2O = 249.09 Pa at 4 C)
+    # the readings reached the pre-show render in SI (0.09 inH2O = 22.4 Pa): conventional
+    # 1 inH2O = 249.0889 Pa, 1000 kg/m3 x 9.80665 m/s2 x 0.0254 m (physics.md s.10; NIST SP 811's
+    # 4 C / 39.2 F value would be 249.082 Pa)
     assert patched_render[0][1] == pytest.approx(0.09 * 249.0889, rel=1e-3)
     assert patched_render[0][2] == pytest.approx(297.15)
     assert CAUTION_TITLE in out and "cannot be started today" in out and "old" in out

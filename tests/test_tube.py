@@ -119,7 +119,7 @@ def test_holes_raise_the_low_modes():
     plain = find_modes(TubeModel(TubeGeometry(2.0, 0.075, 0.002), gas), 900.0)
     plain_by_n = {m.n: m.frequency_hz for m in plain}
     shift = [m.frequency_hz / plain_by_n[m.n] - 1.0 for m in with_holes if m.n in plain_by_n]
-    assert shift[0] > 0.5          # n = 1: 141 Hz against 86 Hz
+    assert shift[0] > 0.5          # n = 1: 141 Hz against 86 Hz (physics.md s.4, openwind 0.12.4 example)
     assert all(a > b > 0 for a, b in zip(shift, shift[1:]))
     assert shift[-1] < 0.02
 
@@ -154,6 +154,7 @@ def test_openwind_reference_reproduces_physics_md_example():
 
 @pytest.mark.parametrize("index", range(3))
 def test_modes_match_openwind_peaks(index, air_20c):
+    # reference: openwind 0.12.4, TMM, peaks cached in tests/reference/openwind_peaks.json
     # issue 2: every resonance below 900 Hz within 1.5 % of openwind's TMM impedance peaks for
     # n >= 2, within 4 % for n = 0 and 1 (air at 20 C, hole resistance 0, default end corrections)
     ref = _reference()["geometries"]

@@ -43,7 +43,7 @@ async def test_tube_view_modes_flames_and_conditions(ui_show):
         await settle(pilot)
         after = app.session.modes[3].frequency_hz
         assert app.session.rig.temperature_k == pytest.approx(323.15)
-        # ideal-gas scaling sqrt(323.15 / 293.15) = 1.0499 (from memory: c ~ sqrt(T));
+        # ideal-gas scaling sqrt(323.15 / 293.15) = 1.0499 (physics.md s.2: c ~ sqrt(T));
         # the real-gas model and losses keep it within half a percent of that
         assert after / before == pytest.approx((323.15 / 293.15) ** 0.5, rel=5e-3)
         # c adds a tone cue on the selected mode to the show

@@ -52,4 +52,5 @@ def run(args) -> int:
     print(table(rows, ["cue", "kind", "gain dB", "ceiling dB", "limited by", "status"], "<<>><<"))
     print(f"locked for {rig.name} at {rig.static_pa:.2f} Pa static, reserve {rig.reserve:g}; "
           f"saved {sheet.path}")
+    print(f"ceilings rest on: {rig.drive.describe()}")
     return 0

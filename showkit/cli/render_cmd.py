@@ -48,7 +48,8 @@ def run(args) -> int:
              f"{c.margin_pa:+.2f}", f"{c.samples.size / c.rate_hz:.1f}"] for c in cues]
     print(table(rows, ["cue", "gain dB", "ceiling dB", "lowest Pa", "margin Pa", "seconds"], "<>>>>>"))
     print(f"every cue verified against the pressure model at {today.static_pa:.2f} Pa static, "
-          f"reserve {today.reserve:g} (safe line {today.reserve * today.static_pa:.2f} Pa)")
+          f"reserve {today.reserve:g} (safe line {today.reserve * today.static_pa:.2f} Pa); "
+          f"rests on: {today.drive.describe()}")
     for p in written:
         print(f"wrote {p}")
     return 0

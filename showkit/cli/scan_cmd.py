@@ -173,6 +173,7 @@ def run(args) -> int:
         print(f"\nOn {rig.name}, static {rig.static_pa:.2f} Pa, reserve {rig.reserve:g}; "
               "ceilings in dB applied to the file as recorded; scores use the steady-sine flame "
               "heights on the per-frame pressure envelope.")
+        print(f"Ceilings rest on: {rig.drive.describe()}.")
     if args.csv:
         _write_csv(args.csv, tracks)
     if args.transpose is not None:

@@ -58,6 +58,12 @@ class DriveCalibration:
     def model_name(self) -> str:
         return "measured drive response" if self.response_freq_hz else DRIVE_MODEL_NAME
 
+    def brief(self) -> str:
+        """The calibration and drive model in a few words (for narrow screens)."""
+        model = "measured drive" if self.response_freq_hz else "default driver model"
+        return (f"{self.reference_pressure_pa:g} Pa at {self.reference_frequency_hz:g} Hz, "
+                f"{self.reference_level_dbfs:g} dBFS; {model}")
+
     def describe(self) -> str:
         """One line saying which calibration and drive model a level rests on."""
         return (f"calibration {self.reference_pressure_pa:g} Pa at the cap for "

@@ -108,8 +108,12 @@ class ShowView(Vertical):
         check = self.session.checks.get(cid)
         msg = "checking…" if check is None else _ui_message(check.message)
         ceiling = "" if check is None or check.ceiling_db is None else f", ceiling {check.ceiling_db:+.2f} dB"
+        rests = ""
+        if check is not None and check.ceiling_db is not None and self.session.rig_loaded:
+            rests = f"; rests on {self.session.rig.drive.brief()}"
         detail.update(f"[b]{escape(cue.id)}[/b]  gain {cue.gain_db:+.2f} dB{ceiling}, fade in {cue.fade_in_s:g} s, "
-                      f"out {cue.fade_out_s:g} s, then {cue.then}{', ride' if cue.ride else ''}\n{escape(msg)}")
+                      f"out {cue.fade_out_s:g} s, then {cue.then}{', ride' if cue.ride else ''}\n"
+                      f"{escape(msg + rests)}")
 
     def on_data_table_row_highlighted(self, event: DataTable.RowHighlighted) -> None:
         self.refresh_detail()
