@@ -261,3 +261,53 @@ def test_sweep_at_bound_keeps_holes_above_reserve_in_time():
     limit = (1 - rig.reserve) * rig.static_pa
     assert np.max(np.abs(p)) <= limit * 1.05
     assert np.max(np.abs(p)) >= limit * 0.5  # the bound is not wildly conservative either
+
+
+class _LevelDevice:
+    """A stand-in sounddevice: one output device; the 'microphone' hears the sine at 0.25x."""
+
+    class default:
+        device = (0, 0)
+
+    def query_devices(self):
+        return [{"index": 0, "name": "test out", "max_output_channels": 2, "hostapi": 0,
+                 "default_samplerate": 48000.0}]
+
+    def query_hostapis(self):
+        return [{"name": "test"}]
+
+    def playrec(self, out, samplerate, channels, device, blocking):
+        return 0.25 / np.max(np.abs(out)) * out[:, None]
+
+
+def test_level_plays_the_sine_and_takes_the_pressure_from_the_calibrated_mic(tmp_path, monkeypatch, capsys):
+    import json
+    import shutil
+    import sys
+
+    import soundfile as sf
+
+    from showkit.cli.main import main
+    from showkit.rigfile import demo_rig_path, load_rig
+
+    monkeypatch.setitem(sys.modules, "sounddevice", _LevelDevice())
+    rig_path = tmp_path / "rig.toml"
+    shutil.copy(demo_rig_path(), rig_path)
+    t = np.arange(2 * 48000) / 48000
+    sf.write(tmp_path / "cal.wav", 0.1 * np.sin(2 * np.pi * 1000 * t), 48000)  # 94 dB SPL = 1 Pa rms (IEC 60942)
+    assert main(["measure", "level", "--rig", str(rig_path), "--play", "--calibrator", str(tmp_path / "cal.wav"),
+                 "--json", "--update-rig"]) == 0
+    out = capsys.readouterr().out
+    result = json.loads(out[out.index("{"):out.rindex("}") + 1])
+    # the mic reads 0.25 peak where the calibrator's 1 Pa rms read 0.1 peak: 2.5 * sqrt(2) Pa zero to peak
+    assert result["reference_pressure"] == pytest.approx(2.5 * np.sqrt(2), rel=1e-3)
+    assert load_rig(rig_path).drive.reference_pressure_pa == pytest.approx(2.5 * np.sqrt(2), rel=1e-3)
+
+
+def test_level_refuses_to_play_a_sine_above_its_ceiling(tmp_path, monkeypatch):
+    import sys
+
+    from showkit.cli.main import main
+
+    monkeypatch.setitem(sys.modules, "sounddevice", _LevelDevice())
+    assert main(["measure", "level", "--play", "--level", "0"]) == 2

@@ -51,6 +51,10 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     p.add_argument("--recording", metavar="REC.wav", help="microphone recording of the reference sine at the cap")
     p.add_argument("--calibrator", metavar="CAL.wav",
                    help="the same microphone and gain recording a 94 dB SPL (1 Pa rms) 1 kHz calibrator")
+    p.add_argument("--play", action="store_true",
+                   help="play the reference sine (10 s) through the audio device; with --calibrator, "
+                        "record the cap microphone at the same time and take the pressure from it")
+    p.add_argument("--device", help="audio device for --play (number or name; see showkit devices)")
     p.add_argument("--update-rig", action="store_true", help="write the calibration into the rig file")
     add_json_option(p)
 
@@ -203,26 +207,48 @@ def _run_level(args) -> int:
     if level > 0:
         raise InputError(f"--level {level:g} dBFS is above full scale", "--level", "give e.g. -20")
     level_caution()
+    rate = 48000
+    t = np.arange(int(10 * rate)) / rate
+    sine = 10 ** (level / 20) * np.sin(2 * np.pi * freq * t)
+    ramp = int(0.05 * rate)
+    sine[:ramp] *= np.linspace(0, 1, ramp)
+    sine[-ramp:] *= np.linspace(1, 0, ramp)
     if args.out:
         import soundfile as sf
-        rate = 48000
-        t = np.arange(int(10 * rate)) / rate
-        sine = 10 ** (level / 20) * np.sin(2 * np.pi * freq * t)
-        ramp = int(0.05 * rate)
-        sine[:ramp] *= np.linspace(0, 1, ramp)
-        sine[-ramp:] *= np.linspace(1, 0, ramp)
         sf.write(args.out, sine.astype(np.float32), rate, subtype="FLOAT")
         print(f"wrote {args.out}: {freq:g} Hz at {level:g} dBFS peak, 10 s; play it and read the cap pressure")
+    played = None
+    if args.play:
+        from showkit.analysis.pressure import signal_report
+        from showkit.errors import MeasureError
+        from showkit.show.playrec import play_record
+
+        # the sine itself must keep every hole above the reserve line, as any cue must
+        headroom = signal_report(rig, sine, rate, flames=False).ceiling_db
+        if headroom < 0:
+            raise MeasureError(f"the reference sine at {level:g} dBFS would take a hole below the safe line "
+                               f"(it must come down {-headroom:.1f} dB)", "--level",
+                               f"give --level {level + headroom - 1:.0f} or lower")
+        import sys
+
+        print(f"playing {freq:g} Hz at {level:g} dBFS for 10 s ({headroom:.1f} dB below its ceiling)...",
+              file=sys.stderr)
+        played = play_record(sine, rate, tail_s=0.5, device=args.device)
     if args.pressure is not None:
         p = units.pressure_pa(args.pressure, "--pressure")
+    elif played is not None and args.calibrator:
+        cal, cal_rate = _read(args.calibrator, "calibrator recording")
+        steady = played[int(1.0 * rate):int(9.0 * rate)]  # away from the fades
+        p = calibrated_pressure(steady, cal, rate, cal_rate, freq, "live recording")
     elif args.recording and args.calibrator:
         rec, rate = _read(args.recording, "recording")
         cal, cal_rate = _read(args.calibrator, "calibrator recording")
         p = calibrated_pressure(rec, cal, rate, cal_rate, freq, args.recording)
     else:
-        if not args.out:
+        if not (args.out or args.play):
             raise InputError("no reading given", "measure level",
-                             'give --pressure "5.8 Pa", or --recording and --calibrator, or --out to write the sine')
+                             'give --pressure "5.8 Pa", or --recording and --calibrator, or --out to write '
+                             'the sine, or --play to play it')
         return 0
     if not p > 0:
         raise InputError("the pressure must be above zero", "--pressure", 'give e.g. "5.8 Pa"')
