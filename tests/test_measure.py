@@ -17,7 +17,8 @@ from showkit.errors import DeviceError, MeasureError
 from showkit.physics.modes import find_modes
 from showkit.rigfile import demo_rig_path, load_rig
 
-FS = 8000
+from measure_support import FS, OneOutputDevice, tube_recording
+
 MODES = [(80.0, 8.0, 1.0), (140.0, 20.0, 0.5), (230.0, 35.0, 0.7), (390.0, 50.0, 0.4), (610.0, 30.0, 0.6)]
 
 
@@ -127,18 +128,7 @@ def test_update_rig_and_cli(tmp_path, capsys):
     from showkit.cli.main import main
     import soundfile as sf
     rig = load_rig()
-    x = exponential_sweep(SweepSpec(30.0, 1000.0, 6.0, FS, 0.2))
-    true = variant(rig.model, 1.01, 1.6, 3e5)
-    n = x.size + 3 * FS
-    nfft = 2 ** int(np.ceil(np.log2(n)))
-    f = np.fft.rfftfreq(nfft, 1 / FS)
-    f[0] = 1e-3
-    from showkit.physics.drive import driver_shape
-    h = true.response(f).cap_pressure * driver_shape(f, rig.drive)
-    h[0] = 0
-    h *= 0.5 / np.abs(h[(f > 30) & (f < 1000)]).max()
-    y = np.fft.irfft(np.fft.rfft(x, nfft) * h, nfft)[:n]
-    rec = np.concatenate([np.zeros(int(0.3 * FS)), y]) + np.random.default_rng(0).normal(0, 1e-5, n + int(0.3 * FS))
+    rec, x, true = tube_recording(rig, 1.01, 1000.0, 6.0)
     sf.write(tmp_path / "rec.wav", rec, FS, subtype="FLOAT")
     sf.write(tmp_path / "sweep.wav", x, FS, subtype="FLOAT")
     rig_path = tmp_path / "rig.toml"
@@ -178,16 +168,7 @@ def test_sweep_cli_stays_below_bound(tmp_path, capsys):
 def test_live_with_mocked_device():
     from showkit.show.playrec import play_record
 
-    class Devices:  # one output device, as PortAudio lists it
-        class default:
-            device = (0, 0)
-
-        def query_devices(self):
-            return [{"index": 0, "name": "test out", "max_output_channels": 2, "hostapi": 0,
-                     "default_samplerate": 48000.0}]
-
-        def query_hostapis(self):
-            return [{"name": "test"}]
+    Devices = OneOutputDevice
 
     class FakeSD(Devices):
         def playrec(self, out, samplerate, channels, device, blocking):
@@ -263,18 +244,8 @@ def test_sweep_at_bound_keeps_holes_above_reserve_in_time():
     assert np.max(np.abs(p)) >= limit * 0.5  # the bound is not wildly conservative either
 
 
-class _LevelDevice:
-    """A stand-in sounddevice: one output device; the 'microphone' hears the sine at 0.25x."""
-
-    class default:
-        device = (0, 0)
-
-    def query_devices(self):
-        return [{"index": 0, "name": "test out", "max_output_channels": 2, "hostapi": 0,
-                 "default_samplerate": 48000.0}]
-
-    def query_hostapis(self):
-        return [{"name": "test"}]
+class _LevelDevice(OneOutputDevice):
+    """The 'microphone' hears the sine at 0.25x."""
 
     def playrec(self, out, samplerate, channels, device, blocking):
         return 0.25 / np.max(np.abs(out)) * out[:, None]

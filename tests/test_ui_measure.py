@@ -7,9 +7,9 @@ import shutil
 
 import numpy as np
 import pytest
+from measure_support import FS, tube_recording
 from ui_support import APP_SIZE, make_app, settle, sync
 
-FS = 8000
 SPEED_SCALE = 1.01
 
 
@@ -23,24 +23,9 @@ def synthetic_recording(folder):
     """
     import soundfile as sf
 
-    from showkit.analysis.sweep import SweepSpec, exponential_sweep
-    from showkit.analysis.tubefit import variant
-    from showkit.physics.drive import driver_shape
     from showkit.rigfile import load_rig
 
-    rig = load_rig()
-    x = exponential_sweep(SweepSpec(30.0, 500.0, 3.0, FS, 0.2))
-    true = variant(rig.model, SPEED_SCALE, 1.6, 3e5)
-    n = x.size + 3 * FS
-    nfft = 2 ** int(np.ceil(np.log2(n)))
-    f = np.fft.rfftfreq(nfft, 1 / FS)
-    f[0] = 1e-3
-    h = true.response(f).cap_pressure * driver_shape(f, rig.drive)
-    h[0] = 0
-    h *= 0.5 / np.abs(h[(f > 30) & (f < 500)]).max()
-    y = np.fft.irfft(np.fft.rfft(x, nfft) * h, nfft)[:n]
-    rec = np.concatenate([np.zeros(int(0.3 * FS)), y]) + \
-        np.random.default_rng(0).normal(0, 1e-5, n + int(0.3 * FS))
+    rec, x, true = tube_recording(load_rig(), SPEED_SCALE, 500.0, 3.0)
     sf.write(folder / "rec.wav", rec, FS, subtype="FLOAT")
     sf.write(folder / "sweep.wav", x, FS, subtype="FLOAT")
     return folder / "rec.wav", folder / "sweep.wav", true
