@@ -83,6 +83,8 @@ def draw_mode_map(ax, m: ModeMap, passages=None, title: str = "", start_s: float
     ``passages``: dicts with ``start_s``, ``end_s`` and ``score`` drawn as
     numbered spans under the map (best first, as the scan ranks them).
     """
+    from matplotlib.patches import Rectangle
+
     rows = len(m.modes)
     t = m.times_s
     if rows and t.size:
@@ -101,12 +103,16 @@ def draw_mode_map(ax, m: ModeMap, passages=None, title: str = "", start_s: float
         hi = end_s if end_s is not None else (t[-1] if t.size else 1.0)
         if hi > lo:
             ax.set_xlim(lo, hi)
-    for k, p in enumerate(passages or [], 1):
-        ax.axvspan(p["start_s"], p["end_s"], ymin=0.0, ymax=0.04, color=PASSAGE, alpha=0.9)
-        ax.text((p["start_s"] + p["end_s"]) / 2, rows - 0.5 if rows else 0.9,
-                f"#{k} {p['score']:.0f}", ha="center", va="bottom", fontsize=7, color=PASSAGE,
-                transform=ax.transData if rows else ax.transAxes, clip_on=True)
-        ax.axvline(p["start_s"], color=PASSAGE, linewidth=0.6, alpha=0.6)
+    if passages:
+        # a strip under the rows: each passage numbered (best first) with its score
+        ax.set_ylim(-1.4, max(rows, 1) - 0.5)
+        for k, p in enumerate(passages, 1):
+            shade = PASSAGE if k % 2 else "#5fb072"
+            ax.add_patch(Rectangle((p["start_s"], -1.35), p["end_s"] - p["start_s"], 0.75,
+                                   facecolor=shade, edgecolor="white", linewidth=0.8))
+            ax.text((p["start_s"] + p["end_s"]) / 2, -0.975, f"#{k}  {p['score']:.0f}", ha="center",
+                    va="center", fontsize=7, color="white", weight="bold", clip_on=True)
+            ax.axvline(p["start_s"], color=PASSAGE, linewidth=0.6, alpha=0.6)
     if title:
         ax.set_title(title, fontsize=9)
 
@@ -120,8 +126,7 @@ def draw_mode_shape(ax, positions_m, length_m: float, mode) -> None:
         ax.axvline(node, color=WORST, linewidth=0.5, linestyle=":")
     ax.set_xlim(0.0, length_m)
     ax.set_ylim(-1.1, 1.1)
-    ax.set_title(f"n={mode.n}  {mode.frequency_hz:.1f} Hz {mode.note}  {mode.flame_peaks} peaks",
-                 fontsize=7)
+    ax.set_title(f"n={mode.n} {mode.frequency_hz:.0f} Hz {mode.note}, {mode.flame_peaks} peaks", fontsize=6)
     ax.tick_params(labelsize=6)
 
 
@@ -133,12 +138,12 @@ def modes_figure(rig, modes, size_in=PLOT_SIZE_IN):
     """Mode frequencies and Q (top), each readable mode's pressure shape along the holes (below)."""
     plt = pyplot()
     g = rig.geometry
-    shown = readable(modes)[:12]
-    cols = 4
+    shown = readable(modes)[:24]
+    cols = 6
     shape_rows = max(1, -(-len(shown) // cols))
     fig = plt.figure(figsize=size_in)
-    grid = fig.add_gridspec(1 + shape_rows, cols, height_ratios=[1.4] + [1.0] * shape_rows,
-                            hspace=0.9, wspace=0.35)
+    grid = fig.add_gridspec(1 + shape_rows, cols, height_ratios=[1.6] + [1.0] * shape_rows,
+                            hspace=1.0, wspace=0.35, top=0.93, bottom=0.05, left=0.07, right=0.98)
     ax = fig.add_subplot(grid[0, :])
     f = np.array([m.frequency_hz for m in modes])
     q = np.array([np.nan if m.q is None else m.q for m in modes])
@@ -219,6 +224,13 @@ def plot_scan(rig, tracks: list, path, max_tracks: int = 6) -> Path:
     entries = [(t, mode_map(rig, t["path"])) for t in tracks if t.get("error") is None][:max_tracks]
     size = (PLOT_SIZE_IN[0], max(PLOT_SIZE_IN[1], 3.0 * len(entries)))
     return write_plot(scan_figure(entries, size), path)
+
+
+def response_level_db(response) -> np.ndarray:
+    """A response's magnitude in dB re its peak (the Measure view draws the same)."""
+    mag = np.abs(np.asarray(response))
+    with np.errstate(divide="ignore"):
+        return 20 * np.log10(np.maximum(mag, 1e-30) / max(float(mag.max()), 1e-30))
 
 
 def plot_response(freq_hz, level_db, report: dict, path) -> Path:
