@@ -22,7 +22,6 @@ def passage_wav(folder: Path) -> Path:
 
 def short_sheet(folder: Path) -> Path:
     """The sheet, locked; then ``loud`` raised over its ceiling and ``changed`` edited (stale)."""
-    from dataclasses import replace
 
     from showkit.show.lock import lock_sheet
     from showkit.show.sheet import ToneSource, load_sheet, save_sheet

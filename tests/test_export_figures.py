@@ -76,8 +76,8 @@ def test_mode_map_adapter_gives_the_map_form(tmp_path, monkeypatch):
 
 def test_measure_plot(tmp_path, capsys):
     import soundfile as sf
-
     from measure_support import FS, tube_recording
+
     from showkit.rigfile import load_rig
 
     rec, x, _ = tube_recording(load_rig(), 1.01, 1000.0, 6.0)

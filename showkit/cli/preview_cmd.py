@@ -57,7 +57,12 @@ def run(args) -> int:
 
     from showkit.cli.common import load_rig_from_args
     from showkit.errors import InputError
-    from showkit.export.preview import check_options, sheet_timeline, track_timeline, write_video
+    from showkit.export.preview import (
+        check_options,
+        sheet_timeline,
+        track_timeline,
+        write_video,
+    )
 
     size = _size(args.size)
     check_options(size, args.magnify)

@@ -16,14 +16,21 @@ from __future__ import annotations
 
 import textwrap
 from dataclasses import dataclass, field
-from datetime import datetime, timezone
+from datetime import UTC, datetime
 from pathlib import Path
 
 import numpy as np
 
 from showkit.errors import InputError, ShowkitError
 from showkit.export.common import mode_map, paper_size, pyplot
-from showkit.export.figures import WORST, draw_deviation, draw_flame_row, draw_mode_map, draw_mode_shape, readable
+from showkit.export.figures import (
+    WORST,
+    draw_deviation,
+    draw_flame_row,
+    draw_mode_map,
+    draw_mode_shape,
+    readable,
+)
 from showkit.safety import CAUTION_TITLE, CAUTIONS
 
 #: What the ceiling guarantees and what it assumes (the README's *Ceilings and flames*).
@@ -155,7 +162,7 @@ def collect(sheet, rig, progress=None, maps: bool = True) -> BookData:
         progress(len(sheet.cues), len(sheet.cues), None)
     modes = find_modes(rig.model)
     return BookData(sheet, rig, entries, modes,
-                    datetime.now(timezone.utc).astimezone().strftime("%Y-%m-%d %H:%M %Z"))
+                    datetime.now(UTC).astimezone().strftime("%Y-%m-%d %H:%M %Z"))
 
 
 # ---------------------------------------------------------------- pages

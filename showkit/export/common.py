@@ -95,7 +95,7 @@ class ModeMap:
         return {"hop_s": self.hop_s, "times_s": self.times_s.tolist(), "modes": self.modes,
                 "strength": self.strength.tolist(), "hit": self.hit.tolist(), "notes_hz": self.notes_hz}
 
-    def window(self, start_s: float | None, end_s: float | None) -> "ModeMap":
+    def window(self, start_s: float | None, end_s: float | None) -> ModeMap:
         """The frames from ``start_s`` to ``end_s`` (times kept as in the file)."""
         t = self.times_s
         keep = np.ones(t.size, bool)
