@@ -373,8 +373,12 @@ class Painter:
                          if seg.gain_db is not None and seg.ceiling_db is not None else "")
                 put_text(img, L.tube_x0, 4 + self.gb.cell_h, words, self.gs, DIM)
             else:
-                put_text(img, L.tube_x0, 4 + self.gb.cell_h,
-                         f"{seg.status.upper()} - NOT PLAYED: {seg.message}", self.gs, WARN)
+                import textwrap
+
+                cells = max(20, (L.tube_x1 - L.tube_x0) // self.gs.cell_w)
+                words = textwrap.wrap(f"{seg.status.upper()} - NOT PLAYED: {seg.message}", cells)
+                for i, line in enumerate(words[:5]):
+                    put_text(img, L.tube_x0, 4 + self.gb.cell_h + i * self.gs.cell_h, line, self.gs, WARN)
             self._backgrounds = {key: img}  # one segment at a time: frames go in order
         return self._backgrounds[key]
 
