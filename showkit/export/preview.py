@@ -393,14 +393,16 @@ class Painter:
         np.copyto(img, self.background(seg))
         colh = np.zeros(L.width)
         colh[self.cols] = L.flame_px(height)[:, None] * self.profile[None, :]
-        region = img[L.top_y:L.base_y]
-        mask = self.row_height < colh[None, :]
-        np.copyto(region, self.grad, where=mask[..., None])
+        # only the rows a flame reaches this frame (about half the area at true scale)
+        first = max(0, self.rows - int(math.ceil(float(colh.max()))) - 1)
+        region = img[L.top_y + first:L.base_y]
+        mask = self.row_height[first:] < colh[None, :]
+        np.copyto(region, self.grad[first:], where=mask[..., None])
         drawn_in = air > 0
         if drawn_in.any():
             acol = np.zeros(L.width, bool)
             acol[self.cols[drawn_in]] = True
-            np.copyto(region, self.air_img, where=(mask & acol[None, :])[..., None])
+            np.copyto(region, self.air_img[first:], where=(mask & acol[None, :])[..., None])
             # a mark under the tube at every hole drawing in air
             tube_h = max(6, int(0.035 * L.height))
             img[L.base_y + 2:L.base_y + 2 + tube_h, acol] = AIR
@@ -430,7 +432,7 @@ def check_options(size, magnify: float) -> tuple[int, int]:
 
 
 def write_video(tl: Timeline, out, size=DEFAULT_SIZE, magnify: float = 1.0, progress=None,
-                crf: int = 23, preset: str = "veryfast") -> dict:
+                crf: int = 23, preset: str = "superfast") -> dict:
     """Draw every frame and encode them with the sound; returns facts about the file."""
     import imageio_ffmpeg
 
