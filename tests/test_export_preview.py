@@ -183,3 +183,37 @@ def test_magnify_is_written_on_every_frame(tone_track):
     assert np.any(a[rows] != b[rows])
     red = (b[rows, :, 0] > 150) & (b[rows, :, 1] < 90)
     assert red.sum() > 50 and not ((a[rows, :, 0] > 150) & (a[rows, :, 1] < 90)).any()
+
+
+def test_drawing_reads_back_for_any_heights():
+    """Whatever the heights and the magnification, each hole's centre column is lit for the
+    flame's drawn height to within one pixel (clipped to the picture), and nowhere else."""
+    from hypothesis import given, settings
+    from hypothesis import strategies as st
+    from hypothesis.extra.numpy import arrays
+
+    from showkit.export.preview import Painter, Segment, Timeline, make_layout
+
+    holes = 24
+    positions = tuple(0.1 + 0.08 * np.arange(holes))
+    heights = arrays(np.float32, (3, holes), elements=st.floats(0.0, 2.5, width=32))
+
+    @settings(max_examples=40, deadline=None)
+    @given(heights, st.floats(1.0, 50.0), st.booleans())
+    def check(h, magnify, with_air):
+        air = np.zeros_like(h)
+        if with_air:
+            air[:, ::3] = 0.5
+        tl = Timeline("t", "rig", positions, 2.0, 20.0,
+                      [Segment("cue", "", 0.0, 0.1, h, air)], np.zeros(4800, np.float32), 48000)
+        layout = make_layout(positions, 2.0, (320, 180), magnify)
+        img = Painter(tl, layout).draw(1)
+        drawn = _drawn_px(img, layout, 40)
+        assert np.all(np.abs(drawn - layout.flame_px(h[1])) <= 1.0)
+        # holes drawing in air are drawn in the air colour (blue over red), the others are not
+        lit = img[layout.base_y - 1, layout.hole_x]
+        blue = lit[:, 2] > lit[:, 0]
+        shown = drawn > 0
+        assert np.array_equal(blue[shown], (air[1] > 0)[shown])
+
+    check()
