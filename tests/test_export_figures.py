@@ -80,7 +80,7 @@ def test_measure_plot(tmp_path, capsys):
 
     from showkit.rigfile import load_rig
 
-    rec, x, _ = tube_recording(load_rig(), 1.01, 1000.0, 6.0)
+    rec, x, _ = tube_recording(load_rig(), 1.01, 600.0, 3.0)
     sf.write(tmp_path / "rec.wav", rec, FS, subtype="FLOAT")
     sf.write(tmp_path / "sweep.wav", x, FS, subtype="FLOAT")
     out = tmp_path / "response.png"

@@ -41,3 +41,16 @@ async def test_show_view_writes_the_book_and_the_preview(tmp_path, monkeypatch, 
         video = tmp_path / "short-preview.mp4"
         assert video.is_file() and video.stat().st_size > 1000
         assert str(video) in app._status_text and "not played" in app._status_text
+
+
+@sync
+async def test_track_and_measure_keys_say_what_is_missing(ui_show):
+    app = make_app(ui_show)
+    async with app.run_test(size=APP_SIZE) as pilot:
+        await settle(pilot)
+        await pilot.press("3", "V")
+        assert "open a track first" in app._status_text
+        await pilot.press("P")
+        assert "open a track first" in app._status_text
+        await pilot.press("5", "P")
+        assert "open a recording first" in app._status_text

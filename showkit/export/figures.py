@@ -191,6 +191,11 @@ def response_figure(freq_hz, level_db, report: dict, size_in=PLOT_SIZE_IN):
     for k, x in enumerate(fitted):
         ax.axvline(x, color=AIR, linewidth=1.0, linestyle="--", label="fitted model's modes" if k == 0 else None)
     ax.set_ylim(max(-60.0, float(np.min(lv[keep])) if keep.any() else -60.0), 3.0)
+    from matplotlib.ticker import FormatStrFormatter
+
+    ax.xaxis.set_major_formatter(FormatStrFormatter("%g"))
+    ax.xaxis.set_minor_formatter(FormatStrFormatter("%g"))
+    ax.tick_params(axis="x", which="minor", labelsize=6)
     ax.set_xlabel("frequency, Hz")
     ax.set_ylabel("level, dB re the peak")
     fit = report.get("fit", {})
