@@ -22,7 +22,7 @@ from pathlib import Path
 import numpy as np
 
 from showkit.errors import InputError, ShowkitError
-from showkit.export.common import mode_map, paper_size, pyplot
+from showkit.export.common import mode_map, paper_size, plotting
 from showkit.export.figures import (
     WORST,
     draw_deviation,
@@ -375,7 +375,7 @@ def write_book(data: BookData, path, paper: str = "a4", png_dir=None) -> dict:
 
     from showkit.safesave import replacing
 
-    plt = pyplot()
+    plt = plotting()
     size = paper_size(paper)
     path = Path(path)
     folder = path.parent if str(path.parent) else Path(".")

@@ -22,18 +22,45 @@ PAPER_IN = {"a4": (210 / 25.4, 297 / 25.4), "letter": (8.5, 11.0)}
 HIT_STRENGTH = 0.05
 
 
-def pyplot():
-    """matplotlib's pyplot on the Agg backend (no display), with text kept as text in PDFs."""
-    import matplotlib
+class _Plotting:
+    """The few pyplot calls the exports use, on matplotlib's object API (Agg canvases).
 
-    matplotlib.use("Agg", force=True)
-    import matplotlib.pyplot as plt
+    No global figure registry: safe in the UI's worker threads, nothing to close.
+    """
 
-    # TrueType (42) embeds the font so text stays selectable and extractable
-    matplotlib.rcParams["pdf.fonttype"] = 42
-    matplotlib.rcParams["ps.fonttype"] = 42
-    matplotlib.rcParams["axes.unicode_minus"] = False
-    return plt
+    def __init__(self):
+        import matplotlib
+        from matplotlib.backends.backend_agg import FigureCanvasAgg
+        from matplotlib.figure import Figure
+        from matplotlib.patches import Rectangle
+
+        # TrueType (42) embeds the font so text stays selectable and extractable
+        matplotlib.rcParams["pdf.fonttype"] = 42
+        matplotlib.rcParams["ps.fonttype"] = 42
+        matplotlib.rcParams["axes.unicode_minus"] = False
+        self._figure, self._canvas, self.Rectangle = Figure, FigureCanvasAgg, Rectangle
+
+    def figure(self, figsize=(6.4, 4.8), dpi: int = 100):
+        fig = self._figure(figsize=figsize, dpi=dpi)
+        self._canvas(fig)
+        return fig
+
+    def subplots(self, nrows: int = 1, ncols: int = 1, figsize=(6.4, 4.8), squeeze: bool = True):
+        fig = self.figure(figsize)
+        return fig, fig.subplots(nrows, ncols, squeeze=squeeze)
+
+    def close(self, fig) -> None:
+        """Nothing to release (no pyplot registry); kept so callers read like pyplot."""
+
+
+_PLOTTING: list = []
+
+
+def plotting() -> _Plotting:
+    """matplotlib on Agg canvases without pyplot, made once (imports matplotlib lazily)."""
+    if not _PLOTTING:
+        _PLOTTING.append(_Plotting())
+    return _PLOTTING[0]
 
 
 def paper_size(name: str) -> tuple[float, float]:

@@ -4,7 +4,7 @@ Each ``draw_*`` function draws numbers it is given on a matplotlib axes (no
 physics here); each ``*_figure`` function builds a whole figure for
 ``showkit modes --plot``, ``showkit scan --plot`` and
 ``showkit measure analyse --plot`` and the book.  matplotlib is imported
-lazily, on the Agg backend (:func:`showkit.export.common.pyplot`).
+lazily, on Agg canvases (:func:`showkit.export.common.plotting`).
 """
 
 from __future__ import annotations
@@ -13,7 +13,7 @@ from pathlib import Path
 
 import numpy as np
 
-from showkit.export.common import ModeMap, pyplot, save_figure
+from showkit.export.common import ModeMap, plotting, save_figure
 
 #: Colours (named once, used everywhere): flames, air drawn in, the worst hole, passages.
 FLAME = "#e8871e"
@@ -136,7 +136,7 @@ def readable(modes) -> list:
 
 def modes_figure(rig, modes, size_in=PLOT_SIZE_IN):
     """Mode frequencies and Q (top), each readable mode's pressure shape along the holes (below)."""
-    plt = pyplot()
+    plt = plotting()
     g = rig.geometry
     shown = readable(modes)[:24]
     cols = 6
@@ -164,7 +164,7 @@ def modes_figure(rig, modes, size_in=PLOT_SIZE_IN):
 
 def scan_figure(entries, size_in=PLOT_SIZE_IN):
     """One map panel per track: ``entries`` are ``(track dict from the scan, ModeMap)``."""
-    plt = pyplot()
+    plt = plotting()
     n = max(1, len(entries))
     fig, axes = plt.subplots(n, 1, figsize=size_in, squeeze=False)
     for ax, (track, m) in zip(axes[:, 0], entries):
@@ -177,7 +177,7 @@ def scan_figure(entries, size_in=PLOT_SIZE_IN):
 
 def response_figure(freq_hz, level_db, report: dict, size_in=PLOT_SIZE_IN):
     """The measured response (dB re its peak, log frequency), measured and fitted modes marked."""
-    plt = pyplot()
+    plt = plotting()
     fig, ax = plt.subplots(figsize=size_in)
     f = np.asarray(freq_hz, dtype=float)
     lv = np.asarray(level_db, dtype=float)
@@ -208,7 +208,7 @@ def response_figure(freq_hz, level_db, report: dict, size_in=PLOT_SIZE_IN):
 
 def write_plot(fig, path, size_px: tuple[int, int] | None = None) -> Path:
     """Save a command-line plot at :data:`PLOT_DPI` and close it."""
-    plt = pyplot()
+    plt = plotting()
     try:
         return save_figure(fig, path, dpi=PLOT_DPI)
     finally:

@@ -68,9 +68,9 @@ class Glyphs:
 @lru_cache(maxsize=4)
 def glyphs(em_px: int) -> Glyphs:
     """Printable ASCII rendered once with matplotlib (DejaVu Sans Mono) at ``em_px`` pixels."""
-    from showkit.export.common import pyplot
+    from showkit.export.common import plotting
 
-    plt = pyplot()
+    plt = plotting()
     chars = [chr(c) for c in range(32, 127)]
     cell_h = int(math.ceil(1.25 * em_px))
     cell_w = int(math.ceil(0.62 * em_px)) + 1
