@@ -324,6 +324,11 @@ def cue_page(plt, data: BookData, k: int, e: CueEntry, size):
         s = c.source
         draw_mode_map(mx, e.map, None, title="Which modes the passage drives, when (darker: harder)",
                       start_s=s.start_s, end_s=s.end_s)
+        if e.worst_hole is not None and e.worst_time_s is not None:
+            mx.axvline(s.start_s + e.worst_time_s, color=WORST, linewidth=1.0)
+            mx.text(s.start_s + e.worst_time_s, 0.98, " most demanding moment", color=WORST, fontsize=7,
+                    va="top", transform=mx.get_xaxis_transform(),
+                    bbox={"facecolor": "white", "edgecolor": "none", "pad": 1})
     elif e.map_note:
         fig.text(0.08, 0.2, e.map_note, fontsize=8)
     return fig
