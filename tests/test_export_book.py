@@ -112,3 +112,31 @@ def test_book_errors_are_one_line(tmp_path, capsys):
     err = capsys.readouterr().err.strip().splitlines()
     assert len(err) == 1 and err[0].startswith("showkit:")
     assert not (tmp_path / "b.pdf").exists()
+
+
+def test_cue_page_flames_are_the_models_at_the_locked_worst_moment(book):
+    """The row drawn for an ok cue is the flame model's frame of the rendered cue at the moment
+    its lock names (the same functions as `showkit render` and `showkit lock`)."""
+    import numpy as np
+
+    from showkit.analysis.pressure import frame_lag, signal_flames
+    from showkit.export.book import collect
+    from showkit.physics.flames import FRAME_RATE_HZ
+    from showkit.show.lock import sheet_rig
+    from showkit.show.render import render_cue
+    from showkit.show.sheet import load_sheet
+
+    sheet = load_sheet(book[0])
+    rig = sheet_rig(sheet)
+    data = collect(sheet, rig, maps=False)
+    hum = next(e for e in data.entries if e.cue.id == "hum")
+    lock = sheet.cue("hum").lock
+    v = render_cue(sheet, rig, sheet.cue("hum"))
+    frames = signal_flames(rig, v.samples, v.rate_hz)
+    j = int(np.floor(lock.worst_time_s * FRAME_RATE_HZ)) + frame_lag(rig)
+    assert hum.worst_hole == lock.worst_hole and hum.worst_time_s == lock.worst_time_s
+    np.testing.assert_array_equal(hum.height, frames.height[j])
+    # stale and over cues: no row for the stale one, the over one's row draws in air somewhere
+    by_id = {e.cue.id: e for e in data.entries}
+    assert by_id["changed"].height is None and "stale" in by_id["changed"].flames_note
+    assert by_id["loud"].air_in is not None and by_id["loud"].air_in.max() > 0
