@@ -59,6 +59,7 @@ def run(args) -> int:
     from showkit.errors import InputError
     from showkit.export.preview import (
         check_options,
+        check_output,
         sheet_timeline,
         track_timeline,
         write_video,
@@ -66,6 +67,7 @@ def run(args) -> int:
 
     size = _size(args.size)
     check_options(size, args.magnify)
+    check_output(args.out)  # before the slow work
     rig = load_rig_from_args(args)  # checks --static/--reserve
     src = Path(args.source)
     if src.suffix.lower() == ".toml":

@@ -421,7 +421,10 @@ def make_book(sheet_path, out, paper: str = "a4", png_dir=None, static_pa: float
     from showkit.show.lock import sheet_rig
     from showkit.show.sheet import load_sheet
 
-    paper_size(paper)  # a bad paper name fails before the slow work
+    paper_size(paper)  # a bad paper name or folder fails before the slow work
+    folder = Path(out).parent if str(Path(out).parent) else Path(".")
+    if not folder.is_dir():
+        raise InputError("no such folder", str(folder), "create the folder first or give another path")
     sheet = load_sheet(sheet_path)
     rig = sheet_rig(sheet).with_conditions(static_pa=static_pa, reserve=reserve)
     data = collect(sheet, rig, progress)

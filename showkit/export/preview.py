@@ -431,6 +431,18 @@ def check_options(size, magnify: float) -> tuple[int, int]:
     return w, h
 
 
+def check_output(out) -> Path:
+    """The video's path, if its folder exists and its ending names a container ffmpeg writes."""
+    out = Path(out)
+    folder = out.parent if str(out.parent) else Path(".")
+    if not folder.is_dir():
+        raise InputError("no such folder", str(folder), "create the folder first or give another path")
+    if out.suffix.lower() not in (".mp4", ".m4v", ".mov"):
+        raise InputError(f"cannot write a video as {out.suffix or 'a file without an ending'}", str(out),
+                         "name the file .mp4")
+    return out
+
+
 def write_video(tl: Timeline, out, size=DEFAULT_SIZE, magnify: float = 1.0, progress=None,
                 crf: int = 23, preset: str = "superfast") -> dict:
     """Draw every frame and encode them with the sound; returns facts about the file."""
@@ -440,13 +452,7 @@ def write_video(tl: Timeline, out, size=DEFAULT_SIZE, magnify: float = 1.0, prog
     from showkit.show.render import write_wav
 
     w, h = check_options(size, magnify)
-    out = Path(out)
-    folder = out.parent if str(out.parent) else Path(".")
-    if not folder.is_dir():
-        raise InputError("no such folder", str(folder), "create the folder first or give another path")
-    if out.suffix.lower() not in (".mp4", ".m4v", ".mov"):
-        raise InputError(f"cannot write a video as {out.suffix or 'a file without an ending'}", str(out),
-                         "name the file .mp4")
+    out = check_output(out)
     layout = make_layout(tl.positions_m, tl.length_m, (w, h), magnify)
     painter = Painter(tl, layout)
     n = tl.frames
