@@ -255,3 +255,58 @@ def passage_report(rig: Rig, path, start_s: float | None = None, end_s: float | 
         return simulate(filters, source, static_pa=rig.static_pa, gain=gain, envelope=False)
 
     return _report(rig, filters, first, peak[0], rerun, start, end, flames)
+
+
+def frame_lag(rig: Rig) -> int:
+    """Flame frames by which the hole responses are late (their taper delay, rounded).
+
+    Frame ``k + frame_lag(rig)`` of a pass is the flame row for the drive's
+    frame ``k`` (the scan's map uses the same shift).
+    """
+    filters = hole_filters(rig)
+    return int(round(filters.delay / filters.frame_samples))
+
+
+def signal_flames(rig: Rig, samples: np.ndarray, rate_hz: int, gain_db: float = 0.0) -> PressureFrames:
+    """Flame frames of a signal played at ``gain_db`` (no ceiling search: the row at that level).
+
+    The same pass as the flames of :func:`signal_report` at its ceiling, at a
+    given gain instead: ``height`` and ``air_in`` per frame and hole.
+
+    Parameters
+    ----------
+    samples : ndarray
+        Mono drive signal in digital full scale (or (N, channels), averaged).
+    rate_hz : int
+        Its sample rate, Hz.
+    gain_db : float
+        Gain applied to the samples, dB (finite).
+    """
+    x = np.asarray(samples, dtype=float)
+    if x.ndim == 2:
+        x = x.mean(axis=1)
+    if not math.isfinite(gain_db):
+        raise AudioError(f"the gain {gain_db!r} dB is not a finite number", None, "give a gain in dB")
+    if not np.all(np.isfinite(x)):
+        raise AudioError("the signal holds NaN or infinite samples", None, "repair the source")
+    filters = hole_filters(rig)
+    drive = x
+    if int(rate_hz) != filters.rate_hz:
+        import soxr
+
+        drive = soxr.resample(x, int(rate_hz), filters.rate_hz, quality="HQ")
+    return simulate(filters, drive, static_pa=rig.static_pa, gain=10.0 ** (gain_db / 20.0), envelope=False)
+
+
+def passage_flames(rig: Rig, path, start_s: float | None = None, end_s: float | None = None,
+                   gain_db: float = 0.0) -> PressureFrames:
+    """Flame frames of a file or passage played at ``gain_db``, streamed as :func:`passage_report` does.
+
+    At ``gain_db`` equal to the passage's ceiling these are the ceiling's own
+    flame frames (the same blocks, filters and gain).
+    """
+    if not math.isfinite(gain_db):
+        raise AudioError(f"the gain {gain_db!r} dB is not a finite number", str(path), "give a gain in dB")
+    filters = hole_filters(rig)
+    blocks = _prefetch(read_blocks(path, filters.rate_hz, start_s, end_s))
+    return simulate(filters, blocks, static_pa=rig.static_pa, gain=10.0 ** (gain_db / 20.0), envelope=False)

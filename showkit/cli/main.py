@@ -30,6 +30,8 @@ COMMANDS: dict[str, tuple[str, str]] = {
     "run": ("run_cmd", "run a show live through the audio device"),
     "devices": ("devices_cmd", "list audio output devices"),
     "measure": ("measure_cmd", "measure a real tube: sweep, resonances, fit and calibration"),
+    "book": ("book_cmd", "write a printable show book (PDF) of a cue sheet"),
+    "preview": ("preview_cmd", "write a video of the predicted flame row with the show's sound"),
 }
 
 EPILOG = ("Run `showkit` with no arguments to open the terminal UI on the bundled demo show. "

@@ -74,6 +74,8 @@ def _analyse_options(p) -> None:
                    help="write the fitted sound speed as the air fraction (default) or an effective temperature")
     p.add_argument("--no-drive-response", action="store_true",
                    help="keep the default speaker model (do not write the measured drive response)")
+    p.add_argument("--plot", metavar="FILE.png",
+                   help="also draw the measured response with the measured and fitted modes (1000x600 px PNG)")
     add_json_option(p)
 
 
@@ -151,6 +153,20 @@ def _report(rig, report, args) -> None:
         print(f"warning: {w}")
 
 
+def _plot(report, rec, rec_rate, sweep, sweep_rate, args) -> None:
+    """``--plot``: the measured response (the analysis's own) with the modes marked."""
+    if not getattr(args, "plot", None):
+        return
+    import sys
+
+    from showkit.analysis.sweep import measure_response
+    from showkit.export.figures import plot_response, response_level_db
+
+    resp = measure_response(rec, rec_rate, sweep, sweep_rate, "recording")
+    path = plot_response(resp.freq_hz, response_level_db(resp.response), report, args.plot)
+    print(f"wrote {path}", file=sys.stderr)
+
+
 def _update(rig, report, args) -> None:
     from showkit.errors import RigError
     from showkit.rigwrite import write_fit
@@ -170,6 +186,7 @@ def _run_analyse(args) -> int:
     sweep, sweep_rate = _read(args.sweep, "sweep")
     report = analyse_recording(rig, rec, rec_rate, sweep, sweep_rate, args.recording)
     _report(rig, report, args)
+    _plot(report, rec, rec_rate, sweep, sweep_rate, args)
     if args.update_rig:
         _update(rig, report, args)
     return 0
@@ -188,6 +205,7 @@ def _run_live(args) -> int:
         sf.write(args.save, rec, int(rate), subtype="FLOAT")
     report = analyse_recording(rig, rec, rate, sweep, rate, "live recording")
     _report(rig, report, args)
+    _plot(report, rec, rate, sweep, rate, args)
     if args.update_rig:
         _update(rig, report, args)
     return 0

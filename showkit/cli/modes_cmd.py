@@ -19,6 +19,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--max-frequency", metavar="HZ", type=float,
                         help="list modes up to this frequency, Hz (default: the plane-wave limit)")
     add_json_option(parser)
+    parser.add_argument("--plot", metavar="FILE.png",
+                        help="also draw the mode frequencies, Q and shapes into a picture (1000x600 px PNG)")
 
 
 def modes_report(rig, f_max_hz=None) -> dict:
@@ -47,6 +49,12 @@ def run(args) -> int:
 
     rig = load_rig_from_args(args)
     report = modes_report(rig, args.max_frequency)
+    if getattr(args, "plot", None):
+        import sys
+
+        from showkit.export.figures import plot_modes
+
+        print(f"wrote {plot_modes(rig, args.plot, args.max_frequency)}", file=sys.stderr)
     if args.json:
         print_json(report)
         return 0

@@ -34,6 +34,9 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         help="write a preview WAV of each track's best passage shifted by N "
                              "semitones (-3 to 3) into the current folder")
     parser.add_argument("--no-cache", action="store_true", help="analyse again, do not read or write the cache")
+    parser.add_argument("--plot", metavar="FILE.png",
+                        help="also draw each track's time x mode map with its passages and scores "
+                             "(PNG, 1000 px wide, 300 px tall per track, at least 600)")
 
 
 class _Bar:
@@ -178,4 +181,8 @@ def run(args) -> int:
         _write_csv(args.csv, tracks)
     if args.transpose is not None:
         _previews(tracks, args.transpose)
+    if getattr(args, "plot", None) and any(t["error"] is None for t in tracks):
+        from showkit.export.figures import plot_scan
+
+        print(f"wrote {plot_scan(rig, tracks, args.plot)}", file=sys.stderr)
     return 0 if any(t["error"] is None for t in tracks) else 2

@@ -169,6 +169,7 @@ class MeasureView(Vertical):
     BINDINGS = [
         Binding("o", "open", "open recording"),
         Binding("W", "write", "write fit to rig"),
+        Binding("P", "export('response_plot')", "response PNG", show=False),
     ]
 
     def __init__(self, **kw):
@@ -255,6 +256,11 @@ class MeasureView(Vertical):
         self.app.say(f"{len(report['modes'])} modes measured; the model was off by "
                      f"{_rms(fit['before_cents']):.1f} cents rms before the fit, {fit['rms_cents']:.1f} after"
                      + (f"; {len(warnings)} warning(s)" if warnings else ""), warn=bool(warnings))
+
+    def action_export(self, what: str) -> None:
+        from showkit.ui import exports
+
+        getattr(exports, what)(self)
 
     # ------------------------------------------------------------ writing the fit
     def rig_file(self) -> Path | None:

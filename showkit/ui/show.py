@@ -37,6 +37,8 @@ class ShowView(Vertical):
         Binding("p", "add_pause", "+pause", show=False),
         Binding("x", "delete", "delete cue", show=False),
         Binding("L", "relock", "re-lock"),
+        Binding("B", "export('book')", "show book PDF", show=False),
+        Binding("V", "export('sheet_preview')", "preview video", show=False),
     ]
 
     def compose(self) -> ComposeResult:
@@ -264,6 +266,11 @@ class ShowView(Vertical):
 
     def action_relock(self) -> None:
         self.app.start_lock(None, everything=True)
+
+    def action_export(self, what: str) -> None:
+        from showkit.ui import exports
+
+        getattr(exports, what)(self)
 
 
 def _ui_message(text: str) -> str:

@@ -147,6 +147,8 @@ class TrackView(Vertical):
         Binding("c", "add_cue", "add to show"),
         Binding("plus,equals_sign", "transpose(1)", "transpose +1"),
         Binding("minus", "transpose(-1)", "transpose -1"),
+        Binding("V", "export('track_preview')", "preview video", show=False),
+        Binding("P", "export('track_map')", "map PNG", show=False),
     ]
 
     def __init__(self, **kw):
@@ -380,6 +382,11 @@ class TrackView(Vertical):
             return
         self.transpose = max(-12, min(12, self.transpose + delta))
         self.analyse()
+
+    def action_export(self, what: str) -> None:
+        from showkit.ui import exports
+
+        getattr(exports, what)(self)
 
     def audition(self) -> None:
         if self.selection is None or self.path is None:

@@ -1,0 +1,56 @@
+"""Write a printable show book (PDF) of a cue sheet.
+
+The book has a cover (title, rig, today's conditions, the calibration and
+drive model every ceiling rests on, what a ceiling guarantees and assumes,
+the safety cautions), the running order (every cue with its gain, ceiling,
+headroom and state; stale or over cues marked), one page per cue (the
+predicted flame row at its most demanding moment; for music the time x mode
+map of the passage) and the tube (the modes and each readable mode's shape).
+States and ceilings are those of `showkit check`; the text can be selected.
+"""
+
+from __future__ import annotations
+
+import argparse
+
+from showkit.cli.common import add_conditions_options, level_caution
+
+
+def add_arguments(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("sheet", metavar="SHEET.toml", help="the cue sheet")
+    parser.add_argument("-o", "--out", required=True, metavar="BOOK.pdf", help="the PDF file to write")
+    parser.add_argument("--paper", choices=["a4", "letter"], default="a4",
+                        help="paper size: a4 (210 x 297 mm, default) or letter (8.5 x 11 in)")
+    parser.add_argument("--png", metavar="DIR", help="also write every page as a PNG into this folder")
+    add_conditions_options(parser)
+
+
+def run(args) -> int:
+    import sys
+
+    from showkit import units
+    from showkit.errors import InputError
+    from showkit.export.book import make_book
+
+    static_pa = None
+    if args.static is not None:
+        try:
+            static_pa = units.pressure_pa(float(args.static), "--static")
+        except ValueError:
+            static_pa = units.pressure_pa(args.static, "--static")
+        if not static_pa > 0:
+            raise InputError("the static pressure must be above zero", "--static",
+                             'give the manometer reading, e.g. --static "18 Pa"')
+    if args.reserve is not None and not 0.0 <= args.reserve <= 0.9:
+        raise InputError(f"reserve must be within 0 and 0.9 (got {args.reserve:g})", "--reserve",
+                         "give a fraction such as 0.25")
+    result = make_book(args.sheet, args.out, args.paper, args.png, static_pa, args.reserve)
+    level_caution()
+    bad = {k: v for k, v in result["states"].items() if v != "ok"}
+    print(f"wrote {result['pdf']}: {result['pages']} pages ({args.paper})")
+    if result["png"]:
+        print(f"wrote {len(result['png'])} PNG pages into {args.png}")
+    if bad:
+        print("marked in the book as not playable: " + ", ".join(f"{k} ({v})" for k, v in bad.items()),
+              file=sys.stderr)
+    return 0

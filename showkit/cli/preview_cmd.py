@@ -1,0 +1,95 @@
+"""Write a video of the flame row the model predicts, with the show's sound in sync.
+
+For a cue sheet: every cue rendered and verified as `showkit render` does, its
+flame row at the level it plays at; a cue that may not be played (stale, over)
+is a short silent card saying so.  For a track: the track (or --start/--end
+passage) at --gain, by default its ceiling, never above it.  30 frames per
+second, every hole drawn, holes drawing in air marked in blue, the cue and time
+on every frame.  True scale by default: at safe levels the pattern is a few per
+cent.  --magnify N draws the differences from the still flame N times larger
+and says so on every frame.
+"""
+
+from __future__ import annotations
+
+import argparse
+
+from showkit.cli.common import add_conditions_options, add_rig_option, level_caution
+
+
+def add_arguments(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("source", metavar="SHEET.toml|TRACK", help="a cue sheet, or an audio file")
+    parser.add_argument("-o", "--out", required=True, metavar="PREVIEW.mp4", help="the video file to write")
+    parser.add_argument("--magnify", type=float, default=1.0, metavar="N",
+                        help="draw differences from the still flame N times larger (default 1: true scale)")
+    parser.add_argument("--size", default="1280x720", metavar="WxH", help="picture size in pixels (default 1280x720)")
+    parser.add_argument("--gain", metavar="DB", help="a track's gain in dB (default: its ceiling; never above it)")
+    parser.add_argument("--start", metavar="TIME", help="a track's passage start: seconds or m:ss.s")
+    parser.add_argument("--end", metavar="TIME", help="a track's passage end: seconds or m:ss.s")
+    add_rig_option(parser)
+    add_conditions_options(parser)
+
+
+def _size(text: str):
+    from showkit.errors import InputError
+
+    try:
+        w, h = (int(v) for v in str(text).lower().split("x"))
+    except ValueError:
+        raise InputError(f"cannot read the size {text!r}", "--size", "give WIDTHxHEIGHT, e.g. 1280x720") from None
+    return w, h
+
+
+def _time(text, where):
+    if text is None:
+        return None
+    from showkit import units
+
+    try:
+        return units.duration_s(float(text), where)
+    except ValueError:
+        return units.duration_s(text, where)
+
+
+def run(args) -> int:
+    import sys
+    from pathlib import Path
+
+    from showkit.cli.common import load_rig_from_args
+    from showkit.errors import InputError
+    from showkit.export.preview import (
+        check_options,
+        check_output,
+        sheet_timeline,
+        track_timeline,
+        write_video,
+    )
+
+    size = _size(args.size)
+    check_options(size, args.magnify)
+    check_output(args.out)  # before the slow work
+    rig = load_rig_from_args(args)  # checks --static/--reserve
+    src = Path(args.source)
+    if src.suffix.lower() == ".toml":
+        for opt in ("gain", "start", "end"):
+            if getattr(args, opt) is not None:
+                raise InputError(f"--{opt} is for a track preview", f"--{opt}",
+                                 "a sheet plays every cue at its own locked gain; leave it out")
+        static = rig.static_pa if args.static is not None else None
+        tl = sheet_timeline(src, static, args.reserve)
+    else:
+        gain = None
+        if args.gain is not None:
+            try:
+                gain = float(str(args.gain).lower().removesuffix("db").strip())
+            except ValueError:
+                raise InputError(f"cannot read --gain {args.gain!r}", "--gain", "give dB, e.g. --gain -12") from None
+        tl = track_timeline(rig, src, _time(args.start, "--start"), _time(args.end, "--end"), gain)
+    level_caution()
+    result = write_video(tl, args.out, size, args.magnify)
+    for note in tl.notes:
+        print(f"not played: {note}", file=sys.stderr)
+    scale = "true scale" if args.magnify == 1 else f"magnified x{args.magnify:g}"
+    print(f"wrote {result['path']}: {result['frames']} frames at {result['fps']} fps "
+          f"({result['duration_s']:.2f} s, {size[0]}x{size[1]}, {scale}) with the sound")
+    return 0

@@ -1,0 +1,78 @@
+"""A short locked cue sheet for the export tests: an ok tone, an ok passage, an over and a stale cue."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+
+RATE = 48000
+
+
+def passage_wav(folder: Path) -> Path:
+    """3 s of two held notes on the demo rig's modes 3 and 4 (186.0 and 238.4 Hz, `showkit modes`)."""
+    import soundfile as sf
+
+    t = np.arange(3 * RATE) / RATE
+    x = 0.3 * np.where(t < 1.5, np.sin(2 * np.pi * 186.0 * t), np.sin(2 * np.pi * 238.4 * t))
+    path = Path(folder) / "notes.wav"
+    sf.write(path, x, RATE, subtype="FLOAT")
+    return path
+
+
+def short_sheet(folder: Path) -> Path:
+    """The sheet, locked; then ``loud`` raised over its ceiling and ``changed`` edited (stale)."""
+
+    from showkit.show.lock import lock_sheet
+    from showkit.show.sheet import ToneSource, load_sheet, save_sheet
+
+    folder = Path(folder)
+    passage_wav(folder)
+    path = folder / "short.toml"
+    path.write_text('''title = "Short test show"
+rig = "demo"
+format = 1
+
+[[cue]]
+id = "hum"
+label = "Mode 4 hum"
+tone = { mode = 4, duration = 1.5 }
+gain = -36.0
+fade_in = 0.3
+fade_out = 0.3
+notes = "wait for quiet"
+
+[[cue]]
+id = "notes"
+label = "Two notes"
+audio = "notes.wav"
+start = 0.5
+end = 2.5
+gain = -30.0
+fade_in = 0.2
+fade_out = 0.2
+then = "next"
+
+[[cue]]
+id = "loud"
+label = "Too loud"
+tone = { mode = 3, duration = 1.0 }
+gain = -40.0
+fade_in = 0.2
+fade_out = 0.2
+
+[[cue]]
+id = "changed"
+label = "Edited after the lock"
+tone = { mode = 2, duration = 1.0 }
+gain = -40.0
+fade_in = 0.2
+fade_out = 0.2
+''', encoding="utf-8")
+    sheet = load_sheet(path)
+    lock_sheet(sheet)
+    loud = sheet.cue("loud")
+    sheet.replace_cue("loud", gain_db=loud.lock.ceiling_db + 3.0)
+    sheet.replace_cue("changed", source=ToneSource(1.2, mode=2))
+    save_sheet(sheet)
+    return path
