@@ -119,10 +119,26 @@ def _resampled(cue: VerifiedCue, rate_hz: int) -> np.ndarray:
     return np.clip(y, -1.0, 1.0).astype(np.float32)
 
 
+def check_samples(samples: np.ndarray, where: str) -> None:
+    """Every sample finite and within full scale (1.0), or a SheetError naming ``where``."""
+    x = np.asarray(samples)
+    if x.size and not np.all(np.isfinite(x)):
+        raise SheetError("the samples hold NaN or infinite values", where, "nothing was written; report this")
+    peak = float(np.max(np.abs(x))) if x.size else 0.0
+    if peak > 1.0 + VERIFY_TOLERANCE:
+        raise SheetError(f"the samples peak at {20 * math.log10(peak):+.2f} dBFS, above full scale", where,
+                         "nothing was written; lower the level")
+
+
 def write_wav(path: Path, samples: np.ndarray, rate_hz: int, subtype: str = "FLOAT") -> None:
-    """Write mono samples as WAV (``FLOAT`` 32-bit or ``PCM_24``), via a temporary file."""
+    """Write mono samples as WAV (``FLOAT`` 32-bit or ``PCM_24``), via a temporary file.
+
+    Refuses (SheetError) samples that are not finite or that pass full scale:
+    nothing unchecked is ever written.
+    """
     import soundfile as sf
 
+    check_samples(samples, str(path))
     from showkit.safesave import replacing
 
     path = Path(path)

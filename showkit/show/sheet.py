@@ -397,7 +397,7 @@ def _lock_from_data(raw, at: str) -> Lock | None:
                     locked_at=str(raw.get("locked_at", "")), worst_hole=int(raw.get("worst_hole", -1)),
                     worst_time_s=num("worst_time_s", 0.0), frequency_hz=num("frequency_hz"),
                     to_frequency_hz=num("to_frequency_hz"))
-    except (KeyError, TypeError, ValueError) as exc:
+    except (KeyError, TypeError, ValueError, OverflowError) as exc:
         raise SheetError(f"the lock table is incomplete or damaged ({exc})", at,
                          "run showkit lock on the sheet again") from None
 
