@@ -158,13 +158,15 @@ def test_keys_drive_the_engine(tmp_path):
     keys.handle("+")
     keys.handle("+")  # already at the locked gain
     assert engine.fader_db == pytest.approx(0.0, abs=1e-9) and "refused" in out.getvalue()
-    keys.handle("x")
+    keys.handle("x")  # not an operator key: a line says which key is the panic
+    assert "not an operator key" in out.getvalue().splitlines()[-1] and engine.status().state == "playing"
+    keys.handle("\x1b")  # Esc: the panic key of the one operator key map
     engine.render_into(buf, 4800)
     assert np.all(buf[960:] == 0.0) and engine.status().state == "panic"
     keys.handle("\r")
     assert "refused" in out.getvalue().splitlines()[-1] and "panic" in out.getvalue().splitlines()[-1]
     keys.handle("a")
-    keys.handle("\r")  # passes over the stale cue
+    keys.handle(" ")  # space is a go too; passes over the stale cue
     engine.render_into(buf, 4800)
     assert engine.status().cue_id == "climb"
     assert keys.handle("q") is True  # a cue plays: asks again
@@ -297,7 +299,8 @@ def test_keyboard_in_a_real_terminal(tmp_path, sheet):
         _read_until(fd, "start intro", buf)
         os.write(fd, b"-")
         _read_until(fd, "fader -1.0 dB", buf)
-        os.write(fd, b"x")
+        os.write(fd, b"\x1b[B")  # an arrow key: a control sequence, not Esc
+        os.write(fd, b"\x1b")    # Esc alone: PANIC
         _read_until(fd, "panic: output silent", buf)
         os.write(fd, b"\r")
         _read_until(fd, "refused", buf)

@@ -34,7 +34,7 @@ async def _check(pilot, static: str | None = None, temperature: str | None = Non
         pilot.app.screen.query_one("#ask-static", Input).value = static
     if temperature is not None:
         pilot.app.screen.query_one("#ask-temperature", Input).value = temperature
-    await pilot.press("enter", "enter")
+    await pilot.press("enter")                # enter in any field confirms the dialog
     await settle(pilot)
     engine = pilot.app.query_one("RunView").engine
     if engine is not None:
@@ -95,7 +95,7 @@ async def test_fader_scales_the_output_refuses_unity_and_panic_works_from_anywhe
         run = app.query_one(RunView)
         stream = fake_sd.streams[-1]
         assert stream.device == 1  # the default output of the stand-in
-        await pilot.press("g")
+        await pilot.press("enter")
         since = len(fake_sd.played)
         stream.pump(8)
         engine = run.engine
@@ -131,7 +131,7 @@ async def test_fader_scales_the_output_refuses_unity_and_panic_works_from_anywhe
         assert app.screen.__class__.__name__ == "AskScreen"
         before = len(fake_sd.played)
         rate = engine.rate_hz
-        await pilot.press("ctrl+x")
+        await pilot.press("ctrl+c")
         stream.pump(math.ceil(0.1 * rate / stream.blocksize))
         after = _played(fake_sd, before)
         limit = int(0.05 * rate)              # issue 7: silence within 50 ms of samples
@@ -173,7 +173,7 @@ async def test_no_output_device_gives_a_clear_message(ui_show, tmp_path, monkeyp
         run = app.query_one(RunView)
         message = str(run.query_one("#run-message").render())
         assert "no audio output device was found" in message and "connect" in message
-        await pilot.press("g")
+        await pilot.press("enter")
         assert "no audio output" in app._status_text
         # the device setting says the same instead of a list
         await pilot.press("D")
@@ -200,7 +200,7 @@ async def test_device_setting_is_used_for_sound(ui_show, tmp_path, monkeypatch):
         await pilot.press("a")                        # audition the first cue
         await settle(pilot)
         assert sd.streams and sd.streams[-1].device == 1
-        await pilot.press("ctrl+x")                   # panic silences the audition too
+        await pilot.press("ctrl+c")                   # panic silences the audition too
         assert "PANIC" in app._status_text and not app.audition.playing
 
 

@@ -6,8 +6,11 @@ is in :mod:`showkit.ui.session`; slow work (modes, checks, locks, track
 analysis, rendering for the audition) runs in worker threads with a progress
 bar in the status line, so keys are answered at once.
 
-Panic (ctrl+x) is an App-level priority binding: it works in every view and
-every dialog, and calls the live engine's ``panic()`` before anything else.
+Panic is the operator key map's (:mod:`showkit.show.operator_keys`): Ctrl+C is
+an App-level priority binding, so it works in every view and every dialog; Esc
+panics in every view (in a dialog Esc closes the dialog).  Both call the live
+engine's ``panic()`` before anything else, and the panic is written to the show
+log.  No key that panics does anything else anywhere in the UI.
 """
 
 from __future__ import annotations
@@ -53,7 +56,8 @@ class ShowkitApp(App):
     ENABLE_COMMAND_PALETTE = False
 
     BINDINGS = [
-        Binding("ctrl+x", "panic", "PANIC", priority=True, show=False),  # always in the top bar
+        Binding("ctrl+c", "panic", "PANIC", priority=True, show=False),  # always in the top bar
+        Binding("escape", "panic", "PANIC", key_display="esc"),
         Binding("ctrl+q", "quit_safely", "quit", priority=True),
         Binding("1", "view('show')", "show"),
         Binding("2", "view('tube')", "tube"),
@@ -63,7 +67,6 @@ class ShowkitApp(App):
         Binding("m", "manometer", "manometer"),
         Binding("a", "audition", "audition"),
         Binding("D", "device", "audio device", show=False),
-        Binding("escape", "stop", "stop sound", show=False),
         Binding("ctrl+z", "undo", "undo"),
         Binding("ctrl+s", "save", "save", show=False),
         Binding("question_mark", "help", "keys"),
@@ -329,7 +332,7 @@ class ShowkitApp(App):
         """Sheet title, today's conditions and the rig name, with the panic key always at the right.
 
         On a narrow terminal the words are shortened first, then the title, so the
-        rig name and ``ctrl+x PANIC`` stay on screen.
+        rig name and the panic key stay on screen.
         """
         s = self.session
         bar = self.query_one("#topbar", Static)
@@ -406,7 +409,8 @@ class ShowkitApp(App):
         self.push_screen(HelpScreen([("Everywhere", self.BINDINGS), ("Show view (1)", ShowView.BINDINGS),
                                      ("Tube view (2)", TubeView.BINDINGS),
                                      ("Track view (3)", TrackView.BINDINGS),
-                                     ("Run view (4)", RunView.BINDINGS),
+                                     ("Run view (4): the operator's keys, the same in `showkit run`",
+                                      _operator_help()),
                                      ("Measure view (5)", MeasureView.BINDINGS),
                                      ("Lists", [("up,down", "", "move the selection")])]))
 
@@ -458,7 +462,7 @@ class ShowkitApp(App):
         except ShowkitError as exc:
             self.say(f"no audition: {exc.line()}", warn=True)
             return
-        self.say(f"playing {rendered.id} at {rendered.gain_db:+.1f} dB -- escape stops")
+        self.say(f"playing {rendered.id} at {rendered.gain_db:+.1f} dB -- esc stops it (panic)")
         if self._audition_timer is None:
             self._audition_timer = self.set_interval(0.1, self._poll_audition, name="audition")
 
@@ -471,11 +475,6 @@ class ShowkitApp(App):
             text = exc.line()
         if text:
             self.say(text)
-
-    def action_stop(self) -> None:
-        if self.audition is not None and self.audition.playing:
-            self.audition.stop()
-            self.say("audition stopped")
 
     # ------------------------------------------------------------ live sound: panic, device, log
     def action_panic(self) -> None:
@@ -490,11 +489,17 @@ class ShowkitApp(App):
             self.audition.stop()  # panic() then close()
             heard = True
         if live:
-            self.say("PANIC: output to silence, the show is stopped; press r in the run view (4) to "
-                     "re-arm when it is safe", warn=True)
+            from showkit.show.operator_keys import shown
+
+            self.say(f"PANIC: output to silence, the show is stopped; press {shown('rearm')} in the run "
+                     "view (4) to re-arm when it is safe", warn=True)
             run.refresh_now()
         elif heard:
             self.say("PANIC: the audition was silenced", warn=True)
+            try:  # the show log records every panic that silenced something
+                self.show_log().write("panic", None, None, "panic key in the UI: the audition was silenced")
+            except ShowkitError as exc:
+                self.say(f"PANIC: the audition was silenced; not logged: {exc.line()}", warn=True)
         else:
             self.say("PANIC: nothing was playing")
 
@@ -547,7 +552,8 @@ class ShowkitApp(App):
         self.exit(return_code=0, message=message)
 
 
-PANIC_HINT = "ctrl+x PANIC"
+#: The panic keys as the top line shows them (Esc in every view, Ctrl+C also in dialogs).
+PANIC_HINT = "esc/ctrl+c PANIC"
 
 
 def _topbar_text(title: str, variants: list[list[str]], width: int) -> Text:
@@ -570,6 +576,15 @@ def _with_panic(left: str, width: int) -> Text:
     out.append(" " * max(2, width - len(left) - len(PANIC_HINT)))
     out.append(PANIC_HINT, style="bold reverse")
     return out
+
+
+def _operator_help() -> list[tuple[str, str, str]]:
+    """The Run view's keys for the help: the one operator key table, then the view's own."""
+    from showkit.show.operator_keys import OPERATOR_KEYS
+
+    rows = [(",".join(k.keys), "", k.does) for k in OPERATOR_KEYS]
+    rows += [(b.key, "", b.description) for b in RunView.BINDINGS if not b.action.startswith("operator")]
+    return rows
 
 
 def _cautions_seen() -> bool:

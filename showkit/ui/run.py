@@ -9,8 +9,19 @@ pressure model's prediction for each rendered cue
 (:func:`showkit.analysis.pressure.signal_report`), computed ahead of time in a
 worker and looked up by the engine's play position: this view holds no physics.
 
-Panic is bound at the App level (ctrl+x, every view and dialog); see
+The operator's keys are those of `showkit run`, read from the one table in
+:mod:`showkit.show.operator_keys` (Enter or space go, Esc or Ctrl+C panic, f
+fade, - and + the fader, a re-arm, d reconnect); the view adds c (pre-show
+check) and s (start the selected cue).  Ctrl+C is also an App-level priority
+binding, so it panics from every view and dialog; see
 :meth:`showkit.ui.app.ShowkitApp.action_panic`.
+
+Today's conditions are the session's one set (:meth:`showkit.ui.session.Session.set_conditions`).
+When they change anywhere (the manometer key, the gas temperature, this view's
+check), :meth:`RunView.conditions_changed` at once withdraws every cue whose fit
+is no longer known (a manometer change re-derives each ceiling exactly and
+withdraws only those that no longer fit; a cue playing above its new ceiling is
+brought down to it by the fader), then runs the pre-show check again.
 """
 
 from __future__ import annotations
@@ -27,6 +38,11 @@ from textual.widgets import DataTable, Static
 
 from showkit.errors import ShowkitError
 from showkit.safety import LEVEL_CAUTION
+from showkit.show.operator_keys import shown
+
+#: The operator's keys as printed in this view's messages (from the one table).
+GO_KEY, PANIC_KEY, REARM_KEY, RECONNECT_KEY, FADE_KEY = (
+    shown("go"), shown("panic"), shown("rearm"), shown("reconnect"), shown("fade"))
 from showkit.ui.drawing import flame_picture
 
 #: How often the view asks the engine what is happening, s.
@@ -45,8 +61,31 @@ def fmt_time(seconds: float) -> str:
     return format_time(seconds)
 
 
-class RunTable(DataTable):
-    """The cues as the pre-show check found them (keeps DataTable's cursor keys)."""
+class RunTable(DataTable, inherit_bindings=False):
+    """The cues as the pre-show check found them.
+
+    DataTable's cursor keys, but not its Enter: Enter is the operator's go key,
+    which the Run view binds (from the one operator key table).
+    """
+
+    BINDINGS = [Binding("up", "cursor_up", show=False), Binding("down", "cursor_down", show=False),
+                Binding("pageup", "page_up", show=False), Binding("pagedown", "page_down", show=False),
+                Binding("home", "scroll_home", show=False), Binding("end", "scroll_end", show=False)]
+
+
+def _operator_bindings() -> list[Binding]:
+    """The Run view's bindings of the operator key table (help is the App's ``?``)."""
+    from showkit.show.operator_keys import OPERATOR_KEYS
+
+    out = []
+    for k in OPERATOR_KEYS:
+        if k.action == "help":
+            continue
+        keys = [name for name in k.keys if name != "ctrl+c"]  # ctrl+c: the App's, every view
+        display = {"go": "⏎/space", "panic": "esc"}.get(k.action)
+        out.append(Binding(",".join(keys), f"operator('{k.action}')", k.short, key_display=display,
+                           show=k.action not in ("reconnect",)))
+    return out
 
 
 class RunFlames(Widget):
@@ -61,7 +100,7 @@ class RunFlames(Widget):
         self.row = None
         self.lo = 0.0
         self.hi = 1.0
-        self.caption = "flame row: run the pre-show check (c), then start a cue (g)"
+        self.caption = f"flame row: run the pre-show check (c), then start a cue ({GO_KEY})"
 
     def set_rig(self, positions_m, length_m: float) -> None:
         self.positions_m, self.length_m = list(positions_m), float(length_m)
@@ -81,16 +120,8 @@ class RunFlames(Widget):
 class RunView(Vertical):
     """Pre-show check, the cue playing and the next, fader, flame row, faults, level caution."""
 
-    BINDINGS = [
-        Binding("c", "check", "check"),
-        Binding("g", "go", "go"),
-        Binding("s", "start_selected", "start selected", show=False),
-        Binding("f", "fade", "fade out"),
-        Binding("minus", "fader(-1)", "fader -1"),
-        Binding("plus,equals_sign", "fader(1)", "fader +1"),
-        Binding("r", "rearm", "re-arm"),
-        Binding("o", "reconnect", "reconnect device", show=False),
-    ]
+    BINDINGS = [Binding("c", "check", "check"), *_operator_bindings(),
+                Binding("s", "start_selected", "start selected", show=False)]
 
     def __init__(self, **kw):
         super().__init__(**kw)
@@ -129,7 +160,7 @@ class RunView(Vertical):
     # ------------------------------------------------------------ pre-show check
     def action_check(self) -> None:
         if self.engine is not None and self.engine.busy:
-            self.app.say("a cue is playing: fade it out (f) or panic (ctrl+x) before a new check",
+            self.app.say(f"a cue is playing: fade it out ({FADE_KEY}) or panic ({PANIC_KEY}) before a new check",
                          warn=True)
             return
         from showkit.ui.dialogs import AskScreen
@@ -201,7 +232,7 @@ class RunView(Vertical):
             self.app.say(f"pre-show check: {len(bad)} cue(s) no longer fit today: {bad[0].refusal()}",
                          warn=True)
         else:
-            self.app.say(f"pre-show check: all {len(cues)} cues fit today; g starts the first")
+            self.app.say(f"pre-show check: all {len(cues)} cues fit today; {GO_KEY} starts the first")
         if any(c.playable for c in cues):
             self.open_engine()
             self.start_flames()
@@ -275,7 +306,7 @@ class RunView(Vertical):
         except DeviceError as exc:
             if not engine.fault:  # open() logs stream failures itself
                 engine.log.write("device_error", None, None, exc.line())
-            self.set_message(f"no audio output: {exc.line()}; then press o to connect again", warn=True)
+            self.set_message(f"no audio output: {exc.line()}; then press {RECONNECT_KEY} to connect again", warn=True)
             return False
         dev = engine.device
         self.set_message(f"output: {dev.index} {dev.name} ({dev.hostapi}) at {engine.rate_hz} Hz")
@@ -309,7 +340,7 @@ class RunView(Vertical):
             return
         for ev in events:
             if ev.kind == "device_error":
-                self.set_message(f"{ev.detail}; press o to reconnect", warn=True)
+                self.set_message(f"{ev.detail}; press {RECONNECT_KEY} to reconnect", warn=True)
             elif ev.kind in ("start", "stop") and ev.cue:
                 self.app.say(f"{ev.cue}: {ev.detail}")
         self.refresh_now()
@@ -356,7 +387,7 @@ class RunView(Vertical):
             self._now_text = text
             now.update(Text(text))
         if st.state == "fault" and st.message:
-            self.set_message(f"{st.message}; press o to reconnect", warn=True)
+            self.set_message(f"{st.message}; press {RECONNECT_KEY} to reconnect", warn=True)
         # the flame row at the play position
         flames = self.query_one(RunFlames)
         if st.cue_id is not None and st.cue_id in self.flames:
@@ -388,9 +419,18 @@ class RunView(Vertical):
         if engine is None or (need_device and engine.device is None):
             self.app.say("run the pre-show check first (c)" if not self.cues else
                          self.message if self.message.startswith("no audio output") else
-                         "no audio output: connect the device (D chooses one), then press o", warn=True)
+                         f"no audio output: connect the device (D chooses one), then press {RECONNECT_KEY}", warn=True)
             return None
         return engine
+
+    def action_operator(self, action: str) -> None:
+        """One operator key (see :mod:`showkit.show.operator_keys`)."""
+        if action == "panic":
+            self.app.action_panic()
+            return
+        {"go": self.action_go, "fade": self.action_fade, "fader_down": lambda: self.action_fader(-1),
+         "fader_up": lambda: self.action_fader(1), "rearm": self.action_rearm,
+         "reconnect": self.action_reconnect}[action]()
 
     def _refused(self, exc: ShowkitError) -> None:
         self.app.say(f"refused: {exc.line()}", warn=True)
@@ -442,7 +482,7 @@ class RunView(Vertical):
         if engine is None:
             return
         engine.rearm()
-        self.app.say("re-armed: g starts the next cue")
+        self.app.say(f"re-armed: {GO_KEY} starts the next cue")
         self.refresh_now()
 
     def action_reconnect(self) -> None:
@@ -457,11 +497,11 @@ class RunView(Vertical):
         try:
             self.engine.reopen(self.session_device())
         except DeviceError as exc:
-            self.set_message(f"no audio output: {exc.line()}; then press o to connect again", warn=True)
+            self.set_message(f"no audio output: {exc.line()}; then press {RECONNECT_KEY} to connect again", warn=True)
             return
         dev = self.engine.device
-        self.set_message(f"output: {dev.index} {dev.name} at {self.engine.rate_hz} Hz; g resumes at the next cue")
-        self.app.say("device connected: g resumes at the next cue")
+        self.set_message(f"output: {dev.index} {dev.name} at {self.engine.rate_hz} Hz; {GO_KEY} resumes at the next cue")
+        self.app.say(f"device connected: {GO_KEY} resumes at the next cue")
 
     def panic(self) -> bool:
         """Panic now (the App's panic key calls this first); True when an engine was there."""
