@@ -22,7 +22,11 @@ from showkit.errors import ShowkitError
 from showkit.physics import ceiling as rule
 from showkit.rigfile import Rig, load_rig
 from showkit.show.sheet import Cue, Lock, Sheet
-from showkit.show.sources import CueSignal, cue_signal
+from showkit.show.sources import TONE_RATE_HZ, CueSignal, cue_signal
+
+#: The rate a whole show is rendered and usually played at, Hz: a cue at another
+#: rate is locked at both (see :func:`compute_lock`).
+SHOW_RATE_HZ = TONE_RATE_HZ
 
 #: Gains are clamped to the ceiling rounded down to this step, dB.
 GAIN_STEP_DB = 0.01
@@ -47,7 +51,12 @@ def safe_gain(ceiling_db: float) -> float:
 
 
 def compute_lock(rig: Rig, signal: CueSignal) -> Lock:
-    """The lock for a cue's sound on a rig."""
+    """The lock for a cue's sound on a rig.
+
+    A cue whose source is at another rate than :data:`SHOW_RATE_HZ` is checked
+    at both rates (resampled as playback resamples it) and the lower ceiling is
+    locked: the resampled cue may take the tube a little further.
+    """
     from showkit.analysis.pressure import signal_report
 
     if not signal.samples.any():
@@ -55,6 +64,15 @@ def compute_lock(rig: Rig, signal: CueSignal) -> Lock:
         worst_hole, worst_t = -1, 0.0
     else:
         report = signal_report(rig, signal.samples, signal.rate_hz, flames=False)
+        if signal.rate_hz != SHOW_RATE_HZ:
+            # the cue is also played (and rendered with -o) at the show rate: lock the lower of
+            # the two, from the same resampler as playback, so lock, check, render and run agree
+            from showkit.show.playlist import resample_samples
+
+            at_show = signal_report(rig, resample_samples(signal.samples, signal.rate_hz, SHOW_RATE_HZ)
+                                    .astype(float), SHOW_RATE_HZ, flames=False)
+            if at_show.ceiling.ceiling_db < report.ceiling.ceiling_db:
+                report = at_show
         c = report.ceiling
         worst_hole, worst_t = report.worst_hole, report.worst_time_s
     lock = Lock(ceiling_db=c.ceiling_db, pressure_db=c.pressure_db, full_scale_db=c.full_scale_db,

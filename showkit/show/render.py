@@ -110,13 +110,30 @@ def render_sheet(sheet: Sheet, rig: Rig | None = None, progress=None) -> list[Ve
 
 
 def _resampled(cue: VerifiedCue, rate_hz: int) -> np.ndarray:
+    """The playback resampler (:func:`showkit.show.playlist.resample_samples`): the same
+    samples the live engine plays at that rate, and that the lock checked at the show rate."""
+    from showkit.show.playlist import resample_samples
+
     if cue.rate_hz == rate_hz:
         return cue.samples
-    import soxr
+    return resample_samples(cue.samples, cue.rate_hz, rate_hz)
 
-    y = soxr.resample(cue.samples.astype(np.float64), cue.rate_hz, rate_hz, quality="VHQ")
-    # resampling can raise inter-sample peaks; never let it pass full scale
-    return np.clip(y, -1.0, 1.0).astype(np.float32)
+
+def played_rate_check(rig: Rig):
+    """``check(samples, rate_hz) -> dB``: the ceiling of exactly these samples on ``rig``.
+
+    Handed to each rendered cue (:attr:`RenderedCue.verify_at`) so that a cue
+    resampled for the device is verified at the rate that is played.
+    """
+    from showkit.analysis.pressure import signal_report
+
+    def check(samples: np.ndarray, rate_hz: int) -> float:
+        x = np.asarray(samples, dtype=float)
+        if not x.any():
+            return math.inf
+        return signal_report(rig, x, int(rate_hz), flames=False).ceiling_db
+
+    return check
 
 
 def check_samples(samples: np.ndarray, where: str) -> None:
@@ -223,7 +240,7 @@ def render_for_playback(sheet_path, static_pa: float | None = None,
                 continue
             v = render_cue(sheet, today, cue)
             out.append(RenderedCue(v.id, v.label, v.samples, v.rate_hz, v.then, v.gain_db,
-                                   v.ceiling_db, "ok", ""))
+                                   v.ceiling_db, "ok", "", verify_at=played_rate_check(today)))
         except ShowkitError as exc:
             problems.append(f"cue {cue.id}: error: {exc.line()}")
             out.append(RenderedCue(cue.id, cue.label, np.zeros(0, np.float32), 48000, cue.then,
