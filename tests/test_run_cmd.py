@@ -78,14 +78,17 @@ def test_auto_rehearsal_plays_every_playable_cue_in_order(sheet, tmp_path, patch
     status = main(["run", str(sheet), "--auto", "--log", str(log_path), "--static", "0.09 inH2O",
                    "--temperature", "24 C"])
     out = capsys.readouterr().out
-    assert status == 0
+    # issue 11: a rehearsal that skipped a cue says so, names it and why, and is not a success
+    assert status == 1
+    assert "rehearsal NOT complete: 1 of 4 cue(s) skipped: old (stale" in out
+    assert "every playable cue was played" not in out
     # the readings reached the pre-show render in SI (0.09 inH2O = 22.4 Pa): conventional
     # 1 inH2O = 249.0889 Pa, 1000 kg/m3 x 9.80665 m/s2 x 0.0254 m (physics.md s.10; NIST SP 811's
     # 4 C / 39.2 F value would be 249.082 Pa)
     assert patched_render[0][1] == pytest.approx(0.09 * 249.0889, rel=1e-3)
     assert patched_render[0][2] == pytest.approx(297.15)
     assert CAUTION_TITLE in out and "cannot be started today" in out and "old" in out
-    assert "skipping cue 'old'" in out and "rehearsal done" in out
+    assert "skipping cue 'old'" in out
     records = read_log(log_path)
     assert records[0]["event"] == "check" and "static 22.4" in records[0]["detail"]
     plays = [(r["event"], r["cue"]) for r in records if r["event"] in ("start", "stop")]
@@ -211,7 +214,9 @@ def test_real_portaudio_stream_on_a_null_device(tmp_path, sheet):
     log_path = tmp_path / "log.jsonl"
     proc = subprocess.run([sys.executable, "-c", DRIVER, "run", str(sheet), "--auto", "--log",
                            str(log_path)], env=env, capture_output=True, text=True, timeout=120)
-    assert proc.returncode == 0, proc.stdout + proc.stderr
+    # the synthetic show holds one stale cue: the rehearsal plays the rest and exits 1 naming it
+    assert proc.returncode == 1, proc.stdout + proc.stderr
+    assert "1 of 4 cue(s) skipped: old (stale" in proc.stdout
     assert "device: " in proc.stdout and "ALSA" in proc.stdout
     plays = [(r["event"], r["cue"]) for r in read_log(log_path) if r["event"] in ("start", "stop")]
     assert plays == [("start", "intro"), ("stop", "intro"), ("start", "climb"), ("stop", "climb"),

@@ -43,7 +43,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         help="show log file, one JSON object a line (default: "
                              "<user data dir>/showkit/logs/show-<date>.jsonl)")
     parser.add_argument("--auto", action="store_true",
-                        help="rehearsal: play every cue in order with no keyboard, then exit")
+                        help="rehearsal: play every cue in order with no keyboard, then exit; names every "
+                             "cue it skipped and why, and exits 1 when any was")
     parser.add_argument("--static", metavar="PRESSURE",
                         help='today\'s static overpressure from the manometer, e.g. "22 Pa", '
                              '"0.09 inH2O" (default: the rig file\'s)')
@@ -162,11 +163,18 @@ def _run(args, log, static_pa, temperature_k, out) -> int:
 
 # ---------------------------------------------------------------- rehearsal
 def run_auto(engine, out, poll_s: float = 0.01) -> int:
-    """Play every playable cue in order (followed on); returns 0, or 1 after a device fault."""
+    """Play every playable cue in order (followed on).
+
+    Returns 0 when every cue was played; 1 when any cue was skipped (it may not be
+    played today: stale, over or error; each is named with why) or the device faulted.
+    """
     faults = 0
+    skipped: list[int] = []
     while True:
         for k in engine.skipped:
-            _skip(engine, k, out)
+            if k not in skipped:
+                skipped.append(k)
+                _skip(engine, k, out)
         index = engine.next_index
         if index is None:
             break
@@ -180,16 +188,28 @@ def run_auto(engine, out, poll_s: float = 0.01) -> int:
             print(f"DEVICE FAULT: {engine.fault}", file=out)
             print("reconnecting the device and resuming at the next cue ...", file=out)
             engine.reopen()
-    print("rehearsal done: every playable cue was played" if not faults else
-          f"rehearsal done, with {faults} device fault(s): see the log", file=out)
-    return 0 if not faults else 1
+    played = len(engine.cues) - len(skipped)
+    if not skipped and not faults:
+        print(f"rehearsal done: all {played} cue(s) were played", file=out)
+        return 0
+    parts = []
+    if skipped:
+        parts.append(f"{len(skipped)} of {len(engine.cues)} cue(s) skipped: "
+                     + "; ".join(f"{engine.cues[k].id} ({engine.cues[k].status}"
+                                 + (f": {engine.cues[k].message}" if engine.cues[k].message else "") + ")"
+                                 for k in skipped))
+    if faults:
+        parts.append(f"{faults} device fault(s): see the log")
+    print("rehearsal NOT complete: " + " | ".join(parts), file=out)
+    return 1
 
 
 def _skip(engine, index: int, out) -> None:
     cue = engine.cues[index]
     print(f"skipping {cue.refusal()}", file=out)
     if engine.log is not None:
-        engine.log.write("check", cue.id, cue.gain_db, f"skipped in rehearsal: {cue.status}")
+        engine.log.write("check", cue.id, cue.gain_db, f"skipped in rehearsal: {cue.status}"
+                         + (f": {cue.message}" if cue.message else ""))
 
 
 def _fmt_time(seconds: float) -> str:
