@@ -10,7 +10,7 @@ or below full scale, or the cue is refused.  Nothing is assumed.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, replace
+from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
@@ -200,9 +200,10 @@ def render_for_playback(sheet_path, static_pa: float | None = None,
     """The pre-show check and render for the live engine.
 
     Today's static pressure re-derives every ceiling by exact scaling.  Today's
-    gas temperature moves the modes: every cue is then locked again in memory
-    for the warmer or cooler gas (tone and glide cues on modes follow the modes;
-    the file is not changed) and checked against its gain.
+    gas temperature moves the modes: every valid cue is then locked again in
+    memory for the warmer or cooler gas (tone and glide cues on modes follow the
+    modes; the file is not changed) and checked against its gain; a stale cue
+    stays stale (:func:`showkit.show.preshow.cue_for_today`).
 
     Returns
     -------
@@ -213,8 +214,8 @@ def render_for_playback(sheet_path, static_pa: float | None = None,
         the pre-show check used.
     """
     from showkit.errors import ShowkitError
-    from showkit.show.lock import lock_cue
     from showkit.show.playlist import RenderedCue
+    from showkit.show.preshow import cue_for_today
     from showkit.show.sheet import load_sheet
 
     sheet = load_sheet(sheet_path)
@@ -222,17 +223,12 @@ def render_for_playback(sheet_path, static_pa: float | None = None,
     today = rig.with_conditions(static_pa=static_pa, temperature_k=temperature_k)
     problems = [f"pre-show check: static {today.static_pa:g} Pa, gas {today.temperature_k - 273.15:.1f} C, "
                 f"reserve {today.reserve:g}"]
-    relock = temperature_k is not None and abs(temperature_k - rig.temperature_k) > 1e-9
     out = []
     for cue in sheet.cues:
         try:
-            if relock:
-                original = cue.gain_db
-                cue, _ = lock_cue(sheet, today, cue)
-                if cue.gain_db < original:
-                    # the gain no longer fits at this temperature: do not clamp silently
-                    cue = replace(cue, gain_db=original)
-            state = check_cue(sheet, today, cue)
+            # the one rule for today's conditions and a lock (also the UI's): stale is judged
+            # against the rig file; a gas temperature of today re-locks valid cues in memory
+            cue, state = cue_for_today(sheet, rig, today, cue)
             if state.status != "ok":
                 problems.append(f"cue {cue.id}: {state.status}: {state.message}")
                 out.append(RenderedCue(cue.id, cue.label, np.zeros(0, np.float32), 48000, cue.then,

@@ -307,19 +307,27 @@ class ShowkitApp(App):
         self.say(f"added cue {cue.id} at {cue.gain_db:+.1f} dB (saved); locking its ceiling…")
         self.start_lock([cue.id])
 
-    def change_conditions(self, static=None, temperature=None) -> None:
+    def change_conditions(self, static=None, temperature=None, *, recheck_run: bool = True) -> bool:
+        """Today's conditions changed (the manometer key, the gas temperature, the pre-show check).
+
+        One door (:meth:`Session.set_conditions`), then every view follows at once: the
+        top line and the Tube view's facts, the modes (a new temperature), every cue's
+        ceiling and check (Show view), the Track view, and the Run view, which
+        withdraws at once the cues whose fit is no longer known and runs its pre-show
+        check again (``recheck_run``; its own check runs it itself).  Returns False
+        when the value was refused (the status line says why; nothing changed).
+        """
         try:
-            if static is not None:
-                self.session.set_static(static)
-            if temperature is not None:
-                self.session.set_temperature(temperature)
+            static_changed, temperature_changed = self.session.set_conditions(static, temperature)
         except ShowkitError as exc:
             self.say(exc.line(), warn=True)
-            return
+            return False
+        if not (static_changed or temperature_changed):
+            return True
         self.update_topbar()
         self.query_one(TubeView).refresh_facts()
         self._flames_cache.clear()
-        if temperature is not None:
+        if temperature_changed:
             self.start_modes()
         else:
             mode = self.query_one(TubeView).selected_mode()
@@ -327,6 +335,8 @@ class ShowkitApp(App):
                 self.start_mode_flames(mode)
         self.start_checks()
         self.query_one(TrackView).conditions_changed()
+        self.query_one(RunView).conditions_changed(static_changed, temperature_changed, recheck=recheck_run)
+        return True
 
     def update_topbar(self) -> None:
         """Sheet title, today's conditions and the rig name, with the panic key always at the right.
@@ -378,10 +388,9 @@ class ShowkitApp(App):
         rig = self.session.rig
 
         def done(values):
-            if values:
-                self.change_conditions(static=values["static"])
+            if values and self.change_conditions(static=values["static"]):
                 self.say(f"today's static pressure {self.session.rig.static_pa:.2f} Pa: "
-                         "ceilings re-derived")
+                         "every ceiling re-derived, in every view")
 
         self.push_screen(AskScreen("Today's manometer reading (static overpressure)",
                                    [("static", 'reading (e.g. "18 Pa", "0.08 inH2O", "0.2 mbar")',

@@ -132,6 +132,10 @@ class RunView(Vertical):
         self.readings = ""
         self.message = ""
         self._timer = None
+        self.checking = False             # a pre-show check is running
+        self._checked_static_pa = None    # the static pressure of the last check, Pa
+        self._deferred = None             # a check that came back while a cue played
+        self._running_static_pa = None
 
     def compose(self) -> ComposeResult:
         yield Static("", id="run-title")
@@ -181,32 +185,34 @@ class RunView(Vertical):
             note=f"CAUTION: {LEVEL_CAUTION}"), done)
 
     def start_check(self, static_text: str, temperature_text: str) -> None:
-        """Read today's values, then re-derive every ceiling in a worker."""
+        """Today's readings through the session's one door (every view follows), then the check."""
         app, s = self.app, self.session
-        before = (s.static_pa, s.temperature_k)
         try:
-            base = s.base_rig()
-            static_pa = s.set_static(static_text)
-            temperature_k = s.set_temperature(temperature_text)
-            s.save()
-            log = app.show_log()
+            s.base_rig()
+            app.show_log()
         except ShowkitError as exc:
-            s.static_pa, s.temperature_k = before
             app.say(exc.line(), warn=True)
             return
-        # a reading equal to the rig file's (as the dialog shows it) is the rig file's
-        file_static = abs(static_pa - base.static_pa) < 1e-9
-        file_temp = abs(temperature_k - base.temperature_k) < 0.05
-        s.static_pa = None if file_static else static_pa
-        s.temperature_k = None if file_temp else temperature_k
-        if (s.static_pa, s.temperature_k) != before:  # today's conditions for every view
-            app.change_conditions()
-            if s.temperature_k != before[1]:
-                app.start_modes()
+        if not app.change_conditions(static_text, temperature_text, recheck_run=False):
+            return
+        try:
+            s.save()
+        except ShowkitError as exc:
+            app.say(exc.line(), warn=True)
+            return
         self._close_engine()
-        self.readings = f"static {static_pa:.2f} Pa, gas {temperature_k - 273.15:.1f} °C"
+        self.run_check()
+
+    def run_check(self) -> None:
+        """The pre-show check for the session's conditions, in a worker (also after a change elsewhere)."""
+        app, s = self.app, self.session
+        c = s.conditions
+        self.readings = f"static {c.static_pa:.2f} Pa, gas {c.temperature_k - 273.15:.1f} °C"
         path = s.sheet.path
         check_static, check_temp = s.static_pa, s.temperature_k
+        self._running_static_pa = c.static_pa
+        self.checking = True
+        log = app.show_log()
 
         def work(progress):
             from showkit.show.preshow import pre_show_check
@@ -215,11 +221,113 @@ class RunView(Vertical):
 
         app.run_job("preshow", work, self.check_done, "pre-show check: re-deriving every ceiling")
 
+    def conditions_changed(self, static_changed: bool, temperature_changed: bool, recheck: bool = True) -> None:
+        """Today's conditions changed elsewhere: hold back at once what may no longer fit, then check again.
+
+        A manometer change moves each pressure-limited ceiling by exactly
+        20 log10(new/old) dB and leaves the full-scale limit where it is, so a lower
+        reading lowers every ceiling by at most that much: a cue whose gain is
+        within the lowered bound still fits and stays playable; every other cue is
+        withdrawn until the check is back, and a cue playing above the bound is
+        brought down to it by the fader (held there).  A new gas temperature moves
+        the modes, so every cue is withdrawn and a cue playing is faded out.
+        """
+        if not self.cues:
+            return  # no pre-show check yet: it will use today's conditions
+        c = self.session.conditions
+        before = self._checked_static_pa
+        engine = self.engine
+        drop_db = 0.0
+        if static_changed and before:
+            drop_db = min(0.0, 20.0 * math.log10(c.static_pa / before))
+        held, what = [], "today's conditions changed: the cue is being checked again"
+        fix = "wait for the pre-show check (a few seconds)"
+        if engine is not None:
+            for k, cue in enumerate(self.cues):
+                if not engine.startable(k):
+                    continue
+                fits = (not temperature_changed and cue.ceiling_db is not None
+                        and cue.gain_db <= cue.ceiling_db + drop_db + 1e-9)
+                if not fits:
+                    engine.withdraw(k, what, fix)
+                    held.append(cue.id)
+            st = engine.status()
+            if st.cue_index is not None and engine.cues[st.cue_index].id in held:
+                playing = self.cues[st.cue_index]
+                if temperature_changed or playing.ceiling_db is None:
+                    try:
+                        engine.fade_out()
+                    except ShowkitError:
+                        pass
+                    self.app.say(f"{playing.id}: gas temperature changed while it played: fading out until "
+                                 "the check says it fits", warn=True)
+                else:
+                    room = playing.ceiling_db + drop_db - playing.gain_db
+                    fader = engine.cap_fader_db(room, f"static {c.static_pa:g} Pa lowered the ceiling")
+                    self.app.say(f"{playing.id}: today's ceiling came down while it played: fader held at "
+                                 f"{fader:+.1f} dB", warn=True)
+        self._mark_held(held)
+        if recheck:
+            self.run_check()
+
+    def _mark_held(self, held: list[str]) -> None:
+        """Show at once which cues are held back until the check is back."""
+        title = ("[b]Run the show[/b]  today's conditions changed: checking again; "
+                 + (f"[b]{len(held)} cue(s) held back[/b] until then: " + escape(", ".join(held))
+                    if held else "every cue still fits"))
+        self.query_one("#run-title", Static).update(title)
+        table = self.query_one(RunTable)
+        for cid in held:
+            try:
+                table.update_cell(cid, "state", Text("HELD", style="bold reverse"))
+                table.update_cell(cid, "why", "today's conditions changed: being checked again")
+            except Exception:  # noqa: BLE001 - a row gone from the table: nothing to mark
+                pass
+        if held:
+            self.app.say(f"today's conditions changed: {len(held)} cue(s) held back until the "
+                         f"pre-show check is back: {', '.join(held)}", warn=True)
+
     def check_done(self, result) -> None:
         cues, problems = result
+        self.checking = False
+        self._checked_static_pa = self._running_static_pa
+        engine = self.engine
+        if engine is not None and engine.busy:
+            # a cue plays: the new cues are handed over when it stops; meanwhile every
+            # cue that does not fit now is withdrawn as well
+            self._deferred = (cues, problems)
+            for k, c in enumerate(cues):
+                if not c.playable and k < len(engine.cues) and engine.startable(k):
+                    what, fix = c.refusal_parts()
+                    engine.withdraw(k, what, fix)
+            self._show_result(cues)
+            return
+        self._apply_result(cues, problems)
+
+    def _apply_result(self, cues, problems) -> None:
+        self._deferred = None
         self.cues, self.problems = cues, problems
         self.flames = {}
-        self.fill_table()
+        self._show_result(cues)
+        engine = self.engine
+        if engine is not None and any(c.playable for c in cues):
+            try:
+                engine.replace_cues(cues)  # same show, same device: the show position is kept
+            except ShowkitError:
+                self._close_engine()
+                self.open_engine()
+            self.start_flames()
+            self.refresh_now()
+        elif any(c.playable for c in cues):
+            self.open_engine()
+            self.start_flames()
+        else:
+            self._close_engine()
+            self.refresh_now()
+            self.set_message("no cue can be played today: lower the gains or lock the sheet again (show view)")
+
+    def _show_result(self, cues) -> None:
+        self.fill_table(cues)
         bad = [c for c in cues if not c.playable]
         title = f"[b]Run the show[/b]  pre-show check: {escape(self.readings)}: "
         if bad:
@@ -233,16 +341,11 @@ class RunView(Vertical):
                          warn=True)
         else:
             self.app.say(f"pre-show check: all {len(cues)} cues fit today; {GO_KEY} starts the first")
-        if any(c.playable for c in cues):
-            self.open_engine()
-            self.start_flames()
-        else:
-            self.set_message("no cue can be played today: lower the gains or lock the sheet again (show view)")
 
-    def fill_table(self) -> None:
+    def fill_table(self, cues=None) -> None:
         table = self.query_one(RunTable)
         table.clear()
-        for k, c in enumerate(self.cues, 1):
+        for k, c in enumerate(self.cues if cues is None else cues, 1):
             state = Text(c.status if c.playable else c.status.upper(),
                          style="" if c.playable else "bold reverse")
             why = c.label if c.playable else c.message
@@ -338,6 +441,11 @@ class RunView(Vertical):
         except ShowkitError as exc:
             self.set_message(exc.line(), warn=True)
             return
+        if self._deferred is not None and not engine.busy:
+            self._apply_result(*self._deferred)  # the cue stopped: hand over the new check
+            engine = self.engine
+            if engine is None:
+                return
         for ev in events:
             if ev.kind == "device_error":
                 self.set_message(f"{ev.detail}; press {RECONNECT_KEY} to reconnect", warn=True)
