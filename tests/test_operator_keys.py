@@ -81,3 +81,18 @@ def test_arrow_key_in_the_runner_is_not_a_panic():
     assert engine.status().state == "playing"
     runner.handle("\x1b")
     assert engine.status().state == "panic"
+
+
+def test_documented_once_in_the_readme_and_in_the_help():
+    readme = (ROOT / "README.md").read_text(encoding="utf-8")
+    assert ok.markdown_table() in readme
+    section = readme[readme.index("## Running a show"):]
+    section = section[:section.index("\n## ", 5)]
+    assert "`x`" not in section and "ctrl+x" not in readme
+    from showkit.ui.app import _operator_help
+    from showkit.ui.help import binding_lines
+
+    text = "\n".join(binding_lines(_operator_help()))
+    for k in ok.OPERATOR_KEYS:
+        assert k.does in text
+    assert "esc, ctrl+c" in text and "enter, space" in text
