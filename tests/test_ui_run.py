@@ -378,3 +378,28 @@ async def test_gas_temperature_moves_tones_and_stales_nothing_even_after_a_resta
         await settle(pilot)
         assert app.session.temperature_k is None
         assert {c.status for c in app.session.checks.values()} <= {"ok", "over"}
+
+
+@sync
+async def test_a_rig_written_by_the_measure_view_holds_every_cue_until_checked_again(ui_show, tmp_path, fake_sd):
+    from showkit.show.showlog import read_log
+    from showkit.ui.run import RunView
+
+    log = tmp_path / "show.jsonl"
+    app = make_app(ui_show, view="run", log_path=log)
+    async with app.run_test(size=APP_SIZE) as pilot:
+        await settle(pilot)
+        await _check(pilot)
+        run = app.query_one(RunView)
+        engine = run.engine
+        playable = [k for k, c in enumerate(run.cues) if c.playable]
+        run.rig_changed()                                 # what the Measure view's W calls
+        assert not any(engine.startable(k) for k in range(len(engine.cues)))
+        await pilot.press("enter")
+        assert "refused" in app._status_text or engine.status().state == "idle"
+        assert engine.status().cue_id is None
+        await settle(pilot)
+        assert [k for k in range(len(engine.cues)) if engine.startable(k)] == playable
+    records = read_log(log)
+    assert not [r for r in records if r["event"] == "start"]
+    assert sum(r["detail"].startswith("withdrawn: the rig file changed") for r in records) == len(playable)

@@ -221,7 +221,16 @@ class RunView(Vertical):
 
         app.run_job("preshow", work, self.check_done, "pre-show check: re-deriving every ceiling")
 
-    def conditions_changed(self, static_changed: bool, temperature_changed: bool, recheck: bool = True) -> None:
+    def rig_changed(self) -> None:
+        """The rig file changed (the Measure view wrote a fit into it): every cue is checked again.
+
+        The rendered cues were verified on the old rig, so all are held back at once
+        and a cue playing is faded out, as for a new gas temperature.
+        """
+        self.conditions_changed(False, True, why="the rig file changed")
+
+    def conditions_changed(self, static_changed: bool, temperature_changed: bool, recheck: bool = True,
+                           why: str | None = None) -> None:
         """Today's conditions changed elsewhere: hold back at once what may no longer fit, then check again.
 
         A manometer change moves each pressure-limited ceiling by exactly
@@ -240,39 +249,42 @@ class RunView(Vertical):
         drop_db = 0.0
         if static_changed and before:
             drop_db = min(0.0, 20.0 * math.log10(c.static_pa / before))
-        held, what = [], "today's conditions changed: the cue is being checked again"
+        reason = why or "today's conditions changed"
+        what = f"{reason}: the cue is being checked again"
         fix = "wait for the pre-show check (a few seconds)"
+        held = []
+
+        def fits(cue) -> bool:
+            return (not temperature_changed and cue.ceiling_db is not None
+                    and cue.gain_db <= cue.ceiling_db + drop_db + 1e-9)
+
         if engine is not None:
             for k, cue in enumerate(self.cues):
-                if not engine.startable(k):
-                    continue
-                fits = (not temperature_changed and cue.ceiling_db is not None
-                        and cue.gain_db <= cue.ceiling_db + drop_db + 1e-9)
-                if not fits:
+                if engine.startable(k) and not fits(cue):
                     engine.withdraw(k, what, fix)
                     held.append(cue.id)
             st = engine.status()
-            if st.cue_index is not None and engine.cues[st.cue_index].id in held:
-                playing = self.cues[st.cue_index]
+            playing = self.cues[st.cue_index] if st.cue_index is not None else None
+            if playing is not None and playing.id == engine.cues[st.cue_index].id and not fits(playing):
                 if temperature_changed or playing.ceiling_db is None:
                     try:
                         engine.fade_out()
                     except ShowkitError:
                         pass
-                    self.app.say(f"{playing.id}: gas temperature changed while it played: fading out until "
-                                 "the check says it fits", warn=True)
+                    self.app.say(f"{playing.id}: {why or 'the gas temperature changed'} while it played: "
+                                 "fading out until the check says it fits", warn=True)
                 else:
                     room = playing.ceiling_db + drop_db - playing.gain_db
                     fader = engine.cap_fader_db(room, f"static {c.static_pa:g} Pa lowered the ceiling")
                     self.app.say(f"{playing.id}: today's ceiling came down while it played: fader held at "
                                  f"{fader:+.1f} dB", warn=True)
-        self._mark_held(held)
+        self._mark_held(held, reason)
         if recheck:
             self.run_check()
 
-    def _mark_held(self, held: list[str]) -> None:
+    def _mark_held(self, held: list[str], reason: str = "today's conditions changed") -> None:
         """Show at once which cues are held back until the check is back."""
-        title = ("[b]Run the show[/b]  today's conditions changed: checking again; "
+        title = (f"[b]Run the show[/b]  {escape(reason)}: checking again; "
                  + (f"[b]{len(held)} cue(s) held back[/b] until then: " + escape(", ".join(held))
                     if held else "every cue still fits"))
         self.query_one("#run-title", Static).update(title)
@@ -280,11 +292,11 @@ class RunView(Vertical):
         for cid in held:
             try:
                 table.update_cell(cid, "state", Text("HELD", style="bold reverse"))
-                table.update_cell(cid, "why", "today's conditions changed: being checked again")
+                table.update_cell(cid, "why", f"{reason}: being checked again")
             except Exception:  # noqa: BLE001 - a row gone from the table: nothing to mark
                 pass
         if held:
-            self.app.say(f"today's conditions changed: {len(held)} cue(s) held back until the "
+            self.app.say(f"{reason}: {len(held)} cue(s) held back until the "
                          f"pre-show check is back: {', '.join(held)}", warn=True)
 
     def check_done(self, result) -> None:
