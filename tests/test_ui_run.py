@@ -403,3 +403,30 @@ async def test_a_rig_written_by_the_measure_view_holds_every_cue_until_checked_a
     records = read_log(log)
     assert not [r for r in records if r["event"] == "start"]
     assert sum(r["detail"].startswith("withdrawn: the rig file changed") for r in records) == len(playable)
+
+
+@sync
+async def test_a_gain_lowered_in_the_show_view_is_followed_by_the_run_view(ui_show, tmp_path, fake_sd):
+    from showkit.ui.run import RunView
+
+    app = make_app(ui_show, view="run", log_path=tmp_path / "show.jsonl")
+    async with app.run_test(size=APP_SIZE) as pilot:
+        await settle(pilot)
+        await _check(pilot)
+        run = app.query_one(RunView)
+        engine = run.engine
+        old = run.cues[0].gain_db
+        await pilot.press("1", "minus", "4")              # welcome 0.5 dB down, back to the Run view
+        await asyncio.sleep(0.12)                         # one poll of the view
+        await settle(pilot)
+        assert run.engine is engine and engine.startable(0)
+        assert run.cues[0].gain_db == pytest.approx(old - 0.5)
+        assert engine.cues[0].gain_db == pytest.approx(old - 0.5)
+    from showkit.show.showlog import read_log
+
+    records = read_log(tmp_path / "show.jsonl")
+    # held back at once (it is quieter now), before the check came back with the new gain
+    held = next(k for k, r in enumerate(records) if r["detail"].startswith("withdrawn: the cue changed"))
+    assert records[held]["cue"] == "welcome"
+    assert any(r["event"] == "check" and r["cue"] == "welcome" and r["gain_db"] == pytest.approx(old - 0.5)
+               for r in records[held:])

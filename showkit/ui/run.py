@@ -136,6 +136,7 @@ class RunView(Vertical):
         self._checked_static_pa = None    # the static pressure of the last check, Pa
         self._deferred = None             # a check that came back while a cue played
         self._running_static_pa = None
+        self._checked_text = None         # the saved sheet the last check read
 
     def compose(self) -> ComposeResult:
         yield Static("", id="run-title")
@@ -211,6 +212,7 @@ class RunView(Vertical):
         path = s.sheet.path
         check_static, check_temp = s.static_pa, s.temperature_k
         self._running_static_pa = c.static_pa
+        self._checked_text = s.saved_text  # the sheet as saved: what the check reads
         self.checking = True
         log = app.show_log()
 
@@ -220,6 +222,33 @@ class RunView(Vertical):
             return pre_show_check(path, log, check_static, check_temp)
 
         app.run_job("preshow", work, self.check_done, "pre-show check: re-deriving every ceiling")
+
+    def sheet_changed(self) -> None:
+        """The sheet was edited after the check (any view): follow it at once, then check again.
+
+        A cue gone from the sheet, or whose gain came down, is withdrawn at once;
+        a cue playing whose gain came down is brought down to it by the fader.
+        """
+        engine = self.engine
+        gains = {c.id: c.gain_db for c in self.session.sheet.cues}
+        held = []
+        what, fix = "the cue changed in the sheet since the check", "wait for the pre-show check"
+        if engine is not None:
+            for k, cue in enumerate(self.cues):
+                lower = cue.id not in gains or gains[cue.id] < cue.gain_db - 1e-9
+                if lower and engine.startable(k):
+                    engine.withdraw(k, what, fix)
+                    held.append(cue.id)
+            st = engine.status()
+            if st.cue_index is not None:
+                playing = engine.cues[st.cue_index]
+                if playing.id not in gains:
+                    engine.fade_out()
+                elif gains[playing.id] < playing.gain_db - 1e-9:
+                    engine.cap_fader_db(gains[playing.id] - playing.gain_db,
+                                        "its gain came down in the sheet")
+        self._mark_held(held, "the show changed")
+        self.run_check()
 
     def rig_changed(self) -> None:
         """The rig file changed (the Measure view wrote a fit into it): every cue is checked again.
@@ -328,6 +357,8 @@ class RunView(Vertical):
             except ShowkitError:
                 self._close_engine()
                 self.open_engine()
+                self.app.say(f"the show's cues changed since the last check: {GO_KEY} starts again at "
+                             "the first cue that fits", warn=True)
             self.start_flames()
             self.refresh_now()
         elif any(c.playable for c in cues):
@@ -458,6 +489,10 @@ class RunView(Vertical):
             engine = self.engine
             if engine is None:
                 return
+        if not self.checking and self._checked_text is not None \
+                and self.session.saved_text is not self._checked_text \
+                and self.session.saved_text != self._checked_text:
+            self.sheet_changed()
         for ev in events:
             if ev.kind == "device_error":
                 self.set_message(f"{ev.detail}; press {RECONNECT_KEY} to reconnect", warn=True)
