@@ -181,6 +181,7 @@ def _option_cases(track, sheet):
                                   (-80.0, 0.0)),
         "measure level --frequency": (["measure", "level", "--out", sheet.parent / "ref.wav", "--frequency"],
                                       (10.0, 1030.0)),  # and below the demo tube's plane-wave limit
+        "modes --max-frequency": (["modes", "--json", "--max-frequency"], (5e-324, 1.8e308)),
         "measure sweep --level": (["measure", "sweep", "--out", sheet.parent / "sw.wav", "--length", "1",
                                    "--level"], (-80.0, -1.0)),
     }
@@ -188,7 +189,7 @@ def _option_cases(track, sheet):
 
 OPTIONS = ["ceiling --static", "ceiling --reserve", "check --static", "check --reserve", "render --static",
            "measure level --pressure", "measure level --level", "measure level --frequency",
-           "measure sweep --level"]
+           "measure sweep --level", "modes --max-frequency"]
 
 
 @settings(max_examples=120, **SETTINGS)
