@@ -213,8 +213,13 @@ class RunView(Vertical):
         check_static, check_temp = s.static_pa, s.temperature_k
         self._running_static_pa = c.static_pa
         self._checked_text = s.saved_text  # the sheet as saved: what the check reads
+        self._deferred = None              # a result waiting for the cue to stop is out of date now
+        try:
+            log = app.show_log()
+        except ShowkitError as exc:  # what was withdrawn stays withdrawn
+            app.say(f"the pre-show check cannot run: {exc.line()}", warn=True)
+            return
         self.checking = True
-        log = app.show_log()
 
         def work(progress):
             from showkit.show.preshow import pre_show_check
@@ -484,7 +489,7 @@ class RunView(Vertical):
         except ShowkitError as exc:
             self.set_message(exc.line(), warn=True)
             return
-        if self._deferred is not None and not engine.busy:
+        if self._deferred is not None and not engine.busy and not self.checking:
             self._apply_result(*self._deferred)  # the cue stopped: hand over the new check
             engine = self.engine
             if engine is None:
