@@ -192,7 +192,7 @@ OPTIONS = ["ceiling --static", "ceiling --reserve", "check --static", "check --r
            "measure sweep --level", "modes --max-frequency"]
 
 
-@settings(max_examples=120, **SETTINGS)
+@settings(max_examples=80, **SETTINGS)
 @given(option=st.sampled_from(OPTIONS), value=values)
 def test_every_numeric_option(option, value, track, folder, locked_sheet, capsys):
     sheet = folder / "opt.toml"
