@@ -252,15 +252,15 @@ def _example_sheet(tmp_path) -> Path:
 @pytest.mark.skipif(not (ROOT / "cues" / "first-look.toml").exists(), reason="example sheet not present")
 def test_example_sheet_rehearsed_through_a_null_device(tmp_path):
     env = null_alsa_env(tmp_path)
+    # as shipped: the example is locked in the repository (issue 11), and a lock rests on the
+    # samples, not on the path written, so the copy with absolute paths is still locked
     sheet = _example_sheet(tmp_path)
-    lock = subprocess.run([sys.executable, "-m", "showkit", "lock", str(sheet)], env=env,
-                          capture_output=True, text=True, timeout=300)
-    assert lock.returncode == 0, lock.stdout + lock.stderr
     log_path = tmp_path / "log.jsonl"
     proc = subprocess.run([sys.executable, "-m", "showkit", "run", str(sheet), "--auto", "--static",
                            "22 Pa", "--log", str(log_path)], env=env, capture_output=True, text=True,
                           timeout=300)
     assert proc.returncode == 0, proc.stdout + proc.stderr
+    assert "rehearsal done: all" in proc.stdout
     import tomlkit
 
     ids = [str(c["id"]) for c in tomlkit.parse(sheet.read_text())["cue"]]
