@@ -179,18 +179,30 @@ def make_conditions(static=None, temperature=None, reserve=None, *, base: Condit
         else:
             values[key] = raw
     at = {k: _where(where, k, _CONDITION_NAMES[k]) for k in values}
-    static_raw = _text_or_number(values["static"])
-    static_pa = check_static_pa(units.pressure_pa(static_raw, at["static"]), at["static"])
-    temp_raw = _text_or_number(values["temperature"])
+    static_pa = static_reading(values["static"], at["static"])
+    temperature_k = temperature_reading(values["temperature"], at["temperature"])
+    reserve_v = check_reserve(_finite_number(values["reserve"], at["reserve"], "fraction"), at["reserve"])
+    return Conditions(static_pa, temperature_k, reserve_v)
+
+
+def static_reading(value, where: str = "static pressure") -> float:
+    """A static overpressure (number in Pa, or text with a unit) parsed and checked, Pa.
+
+    The part of :func:`make_conditions` for one reading on its own (e.g. a
+    command-line option checked before the rig is read).
+    """
+    return check_static_pa(units.pressure_pa(_text_or_number(value), where), where)
+
+
+def temperature_reading(value, where: str = "gas temperature") -> float:
+    """A gas temperature (number in K, or text such as ``"24 C"``) parsed and checked, K."""
     try:
-        temperature_k = units.temperature_k(temp_raw, at["temperature"])
+        temperature_k = units.temperature_k(_text_or_number(value), where)
     except InputError as exc:
         if "absolute zero" not in exc.what:
             raise
         temperature_k = -math.inf
-    temperature_k = check_temperature_k(temperature_k, at["temperature"])
-    reserve_v = check_reserve(_finite_number(values["reserve"], at["reserve"], "fraction"), at["reserve"])
-    return Conditions(static_pa, temperature_k, reserve_v)
+    return check_temperature_k(temperature_k, where)
 
 
 # ---------------------------------------------------------------- calibration

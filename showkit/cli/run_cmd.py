@@ -66,15 +66,10 @@ def run(args) -> int:
     print(file=out)
     level_caution()
     # today's readings through the one door (the rig file's limits), before anything plays
-    static_pa = temperature_k = None
-    if args.static is not None or args.temperature is not None:
-        from showkit.cli.common import conditions_from_args
-        from showkit.conditions import Conditions
+    from showkit.conditions import static_reading, temperature_reading
 
-        # checked on their own here (the rig's values fill in later, in the pre-show check)
-        today = conditions_from_args(args, Conditions(20.0, 293.15, 0.25))
-        static_pa = today.static_pa if args.static is not None else None
-        temperature_k = today.temperature_k if args.temperature is not None else None
+    static_pa = None if args.static is None else static_reading(args.static, "--static")
+    temperature_k = None if args.temperature is None else temperature_reading(args.temperature, "--temperature")
     if not (args.fade > 0 and math.isfinite(args.fade)):
         raise InputError(f"the fade time must be above zero (got {args.fade:g})", "--fade",
                          "give seconds, e.g. --fade 3")
