@@ -5,12 +5,12 @@ temperature (--temperature) re-derive every ceiling and move the tone cues
 with the modes; the cues that no longer fit are listed and cannot be started.
 Then the show, one key per action.  The keys are the operator's key map of
 :mod:`showkit.show.operator_keys`, the same as in the UI's Run view: Enter or
-space starts the next cue, Esc (or Ctrl+C) panics, f fades out, - and + move
-the fader, a re-arms after a panic, d reconnects the device, ? lists them; q
-quits (press twice while a cue plays).
+space starts the next cue, Esc panics, f fades out, - and + move the fader,
+a re-arms after a panic, d reconnects the device, ? lists them; q quits (press
+twice while a cue plays).  Ctrl+C panics too, and then quits.
 
-Ctrl+C panics and then quits.  --auto plays every cue in order with no keyboard, treating every
-cue as "then = next": a rehearsal, or a test.
+--auto plays every cue in order with no keyboard, treating every cue as
+"then = next": a rehearsal, or a test.
 Every reading, start, stop, fade, fader move, panic and device error goes to
 the show log (one JSON object a line; --log FILE, default in the user's data
 directory).
