@@ -10,12 +10,14 @@ from __future__ import annotations
 import difflib
 import hashlib
 import json
+import math
 from dataclasses import dataclass, field, replace
 from functools import cached_property
 from importlib import resources
 from pathlib import Path
 
 from showkit import units
+from showkit.conditions import Conditions, make_calibration, make_conditions
 from showkit.errors import InputError, RigError
 from showkit.physics.drive import DriveCalibration
 from showkit.physics.gas import FUELS, STANDARD_AMBIENT_PA, GasState, gas_state
@@ -56,14 +58,13 @@ class Rig:
     fuel : str
     air_fraction : float
         Mole fraction of air in the tube gas.
-    temperature_k : float
-    static_pa : float
-        Static overpressure above ambient (manometer reading), Pa.
+    conditions : Conditions
+        Static pressure, gas temperature and reserve (the rig file's, or today's
+        through :meth:`with_conditions`); ``static_pa``, ``temperature_k`` and
+        ``reserve`` read them.
     ambient_pa : float
         Ambient absolute pressure, Pa.
     drive : DriveCalibration
-    reserve : float
-        Fraction of ``static_pa`` kept in reserve at every hole (0 to 0.9).
     path : Path or None
     measured : dict
         The ``[measured]`` section as written by measurement, or empty.
@@ -73,11 +74,9 @@ class Rig:
     geometry: TubeGeometry
     fuel: str
     air_fraction: float
-    temperature_k: float
-    static_pa: float
+    conditions: Conditions
     ambient_pa: float
     drive: DriveCalibration
-    reserve: float
     path: Path | None = None
     measured: dict = field(default_factory=dict, compare=False, hash=False)
 
@@ -91,15 +90,37 @@ class Rig:
     def model(self) -> TubeModel:
         return TubeModel(self.geometry, self.gas)
 
-    def with_conditions(self, static_pa: float | None = None, temperature_k: float | None = None,
-                        reserve: float | None = None) -> "Rig":
-        """A copy with today's static pressure, gas temperature or reserve."""
-        return replace(
-            self,
-            static_pa=self.static_pa if static_pa is None else static_pa,
-            temperature_k=self.temperature_k if temperature_k is None else temperature_k,
-            reserve=self.reserve if reserve is None else reserve,
-        )
+    @property
+    def static_pa(self) -> float:
+        """Static overpressure above ambient (manometer reading), Pa."""
+        return self.conditions.static_pa
+
+    @property
+    def temperature_k(self) -> float:
+        """Gas temperature in the tube, K."""
+        return self.conditions.temperature_k
+
+    @property
+    def reserve(self) -> float:
+        """Fraction of ``static_pa`` kept in reserve at every hole (0 to 0.9)."""
+        return self.conditions.reserve
+
+    def with_conditions(self, static_pa=None, temperature_k=None, reserve=None, *,
+                        conditions: Conditions | None = None, where: dict | None = None) -> "Rig":
+        """A copy with today's static pressure, gas temperature or reserve.
+
+        Every value goes through :func:`showkit.conditions.make_conditions` (numbers
+        in SI or text with units); ``None`` keeps the rig's.  ``conditions`` replaces
+        all three at once.  Raises :class:`~showkit.errors.InputError` for a value
+        outside the limits.
+        """
+        if conditions is None:
+            conditions = make_conditions(static_pa, temperature_k, reserve, base=self.conditions, where=where)
+        elif not isinstance(conditions, Conditions):
+            raise TypeError(conditions)
+        if conditions == self.conditions:
+            return self
+        return replace(self, conditions=conditions)
 
     def acoustic_fields(self) -> dict:
         """Everything that shapes the tube's response (not static pressure or reserve)."""
@@ -190,14 +211,50 @@ def _check_keys(data: dict, where: str) -> None:
 def _number(value, where: str, kind: str = "number") -> float:
     if isinstance(value, bool) or not isinstance(value, (int, float)):
         raise InputError(f"expected a {kind}, got {value!r}", where, "write a plain number")
+    if not math.isfinite(value):
+        raise InputError(f"{value!r} is not a finite {kind}", where, "give a finite number")
     return float(value)
 
 
 def _positive(value: float, where: str, what: str) -> float:
-    if not value > 0:
+    if not (value > 0 and math.isfinite(value)):
         raise InputError(f"{what} must be greater than zero (got {value:g})", where,
                          f"give the {what} of your tube")
     return value
+
+
+#: Plausible sizes (m): a flame tube is 1 to 4 m long with a 50 to 130 mm bore, 1 to 2 mm holes
+#: a few cm apart, in a wall of a few mm.  The limits are generous around that and catch
+#: a wrong unit (a bare number is metres: ``length = 3000`` is a 3 km tube).
+LENGTH_LIMITS_M = (0.2, 20.0)
+BORE_LIMITS_M = (0.01, 0.5)
+WALL_LIMITS_M = (0.0001, 0.02)
+HOLE_DIAMETER_LIMITS_M = (0.0002, 0.01)
+#: Largest extra hole resistance, Pa s/m^3: the outflow resistance of a 1.5 mm hole at
+#: 20 Pa is about 5e6; a thousand times that is a closed hole.
+MAX_HOLE_RESISTANCE_PA_S_M3 = 5e9
+#: Most holes a rig may have (a 20 m tube with a hole every 10 mm).
+MAX_HOLES = 2000
+
+_UNIT_HINT = {"length": '"2.2 m" or "7 ft"', "bore": '"80 mm" or "3 in"', "wall thickness": '"2 mm"',
+              "hole diameter": '"1.5 mm"'}
+
+
+def _length(value, at: str, what: str, limits: tuple[float, float]) -> float:
+    """A length in metres within ``limits``; a bare number is metres."""
+    metres = _positive(units.length_m(value, at), at, what)
+    low, high = limits
+    if not low <= metres <= high:
+        bare = isinstance(value, (int, float)) and not isinstance(value, bool)
+        hint = (f"a bare number is metres: write the unit, e.g. {_UNIT_HINT[what]}" if bare else
+                f"check the value and its unit, e.g. {_UNIT_HINT[what]}")
+        raise RigError(f"{what} {_metres_text(metres)} is outside the plausible "
+                       f"{_metres_text(low)} to {_metres_text(high)} for a flame tube", at, hint)
+    return metres
+
+
+def _metres_text(metres: float) -> str:
+    return f"{metres * 1e3:g} mm" if metres < 0.1 else f"{metres:g} m"
 
 
 def _build(data: dict, where: str, path: Path | None) -> Rig:
@@ -209,12 +266,9 @@ def _build(data: dict, where: str, path: Path | None) -> Rig:
     gas, drive = data["gas"], data.get("drive", {})
     safety = data.get("safety", {})
 
-    length = _positive(units.length_m(tube["length"], _field(where, "tube", "length")),
-                       _field(where, "tube", "length"), "length")
-    bore = _positive(units.length_m(tube["bore"], _field(where, "tube", "bore")),
-                     _field(where, "tube", "bore"), "bore")
-    wall = _positive(units.length_m(tube["wall"], _field(where, "tube", "wall")),
-                     _field(where, "tube", "wall"), "wall thickness")
+    length = _length(tube["length"], _field(where, "tube", "length"), "length", LENGTH_LIMITS_M)
+    bore = _length(tube["bore"], _field(where, "tube", "bore"), "bore", BORE_LIMITS_M)
+    wall = _length(tube["wall"], _field(where, "tube", "wall"), "wall thickness", WALL_LIMITS_M)
     if bore >= length:
         raise RigError(f"bore ({bore:g} m) is not smaller than the length ({length:g} m)",
                        _field(where, "tube", "bore"), "give the inner diameter and the length in the right units")
@@ -240,24 +294,16 @@ def _build(data: dict, where: str, path: Path | None) -> Rig:
         raise RigError(f"air_fraction must be within 0 and 0.5 (got {air:g})",
                        _field(where, "gas", "air_fraction"),
                        "give the mole fraction of air mixed into the fuel, e.g. 0.05")
-    temp = units.temperature_k(gas.get("temperature", "20 C"), _field(where, "gas", "temperature"))
-    if not 233.15 <= temp <= 373.15:
-        raise RigError(f"gas temperature {temp - 273.15:.1f} C is outside -40 to 100 C",
-                       _field(where, "gas", "temperature"), 'give the gas temperature, e.g. "20 C"')
-    static = units.pressure_pa(gas.get("static_pressure", "20 Pa"), _field(where, "gas", "static_pressure"))
-    _positive(static, _field(where, "gas", "static_pressure"), "static pressure")
-    if static > 5000.0:
-        raise RigError(f"static pressure {static:g} Pa is far above a flame tube's few to tens of pascals",
-                       _field(where, "gas", "static_pressure"), 'check the unit, e.g. "25 Pa" or "0.1 inH2O"')
     ambient = units.pressure_pa(gas.get("ambient", STANDARD_AMBIENT_PA), _field(where, "gas", "ambient"))
     if not 50_000.0 <= ambient <= 120_000.0:
         raise RigError(f"ambient pressure {ambient:g} Pa is not an absolute air pressure",
                        _field(where, "gas", "ambient"), 'give the absolute ambient pressure, e.g. "1013 mbar"')
-
-    reserve = _number(safety.get("reserve", 0.25), _field(where, "safety", "reserve"))
-    if not 0.0 <= reserve <= 0.9:
-        raise RigError(f"reserve must be within 0 and 0.9 (got {reserve:g})",
-                       _field(where, "safety", "reserve"), "give the fraction of static pressure to keep, e.g. 0.25")
+    conditions = make_conditions(gas.get("static_pressure", "20 Pa"), gas.get("temperature", "20 C"),
+                                 safety.get("reserve", 0.25),
+                                 where={"static": _field(where, "gas", "static_pressure"),
+                                        "temperature": _field(where, "gas", "temperature"),
+                                        "reserve": _field(where, "safety", "reserve")})
+    temp = conditions.temperature_k
 
     calibration = _drive(drive, where)
     gas_now = gas_state(fuel, air, temp, ambient)
@@ -271,13 +317,19 @@ def _build(data: dict, where: str, path: Path | None) -> Rig:
         if r_value < 0:
             raise RigError("resistance must not be negative", _field(where, "holes", "resistance"),
                            'leave it out, or write "outflow" or a value in Pa s/m3')
+        if r_value > MAX_HOLE_RESISTANCE_PA_S_M3:
+            raise RigError(f"resistance {r_value:g} Pa s/m3 is far above a flame hole's "
+                           f"(at most {MAX_HOLE_RESISTANCE_PA_S_M3:g})", _field(where, "holes", "resistance"),
+                           'leave it out, or write "outflow" or let showkit measure fit it')
     geometry = replace(geometry, hole_resistance_pa_s_m3=r_value)
     measured = data.get("measured", {})
     if not isinstance(measured, dict):
         raise RigError("'measured' must be a section", f"{where}: measured", "let showkit measure write it")
-    return Rig(name=name, geometry=geometry, fuel=fuel, air_fraction=air, temperature_k=temp,
-               static_pa=static, ambient_pa=ambient, drive=calibration, reserve=reserve,
-               path=path, measured=measured)
+    rig = Rig(name=name, geometry=geometry, fuel=fuel, air_fraction=air, conditions=conditions,
+              ambient_pa=ambient, drive=calibration, path=path, measured=measured)
+    # checks of the calibration against the tube (the same door, with the tube)
+    _drive(drive, where, rig.model)
+    return rig
 
 
 def _holes(holes: dict, where: str, length: float, bore: float) -> tuple[tuple[float, ...], float]:
@@ -292,6 +344,9 @@ def _holes(holes: dict, where: str, length: float, bore: float) -> tuple[tuple[f
         if not isinstance(raw, list):
             raise RigError("positions must be a list", _field(where, "holes", "positions"),
                            'write positions = ["0.1 m", "0.125 m", ...]')
+        if len(raw) > MAX_HOLES:
+            raise RigError(f"{len(raw)} positions are more holes than a flame tube has (at most {MAX_HOLES})",
+                           _field(where, "holes", "positions"), "give one position per hole")
         positions = tuple(units.length_m(v, f"{_field(where, 'holes', 'positions')}[{i}]")
                           for i, v in enumerate(raw))
         if list(positions) != sorted(positions):
@@ -307,6 +362,9 @@ def _holes(holes: dict, where: str, length: float, bore: float) -> tuple[tuple[f
                            "write the number of holes, or 0 for a plain pipe")
         if count == 0:
             return (), 0.0
+        if count > MAX_HOLES:
+            raise RigError(f"count {count} is more holes than a flame tube has (at most {MAX_HOLES})",
+                           _field(where, "holes", "count"), "give the number of holes in the tube")
         for key in ("spacing", "first", "diameter"):
             if key not in holes:
                 raise RigError(f"missing field {key!r} in [holes]", _field(where, "holes", key),
@@ -320,8 +378,8 @@ def _holes(holes: dict, where: str, length: float, bore: float) -> tuple[tuple[f
     if "diameter" not in holes:
         raise RigError("missing field 'diameter' in [holes]", _field(where, "holes", "diameter"),
                        'add diameter = "1.5 mm" under [holes]')
-    diameter = units.length_m(holes["diameter"], _field(where, "holes", "diameter"))
-    _positive(diameter, _field(where, "holes", "diameter"), "hole diameter")
+    diameter = _length(holes["diameter"], _field(where, "holes", "diameter"), "hole diameter",
+                       HOLE_DIAMETER_LIMITS_M)
     if diameter > bore / 4.0:
         raise RigError(f"hole diameter {diameter * 1e3:g} mm is not much smaller than the bore "
                        f"({bore * 1e3:g} mm)", _field(where, "holes", "diameter"),
@@ -340,32 +398,6 @@ def _holes(holes: dict, where: str, length: float, bore: float) -> tuple[tuple[f
     return positions, diameter
 
 
-def _drive(drive: dict, where: str) -> DriveCalibration:
-    base = DriveCalibration()
-    f_ref = units.frequency_hz(drive.get("reference_frequency", base.reference_frequency_hz),
-                               _field(where, "drive", "reference_frequency"))
-    _positive(f_ref, _field(where, "drive", "reference_frequency"), "reference frequency")
-    level = _number(drive.get("reference_level", base.reference_level_dbfs),
-                    _field(where, "drive", "reference_level"), "level in dBFS")
-    if level > 0.0:
-        raise RigError(f"reference_level {level:g} dBFS is above full scale",
-                       _field(where, "drive", "reference_level"), "give the peak level in dBFS, e.g. -20")
-    p_ref = units.pressure_pa(drive.get("reference_pressure", base.reference_pressure_pa),
-                              _field(where, "drive", "reference_pressure"))
-    _positive(p_ref, _field(where, "drive", "reference_pressure"), "reference pressure")
-    f_s = units.frequency_hz(drive.get("speaker_resonance", base.speaker_resonance_hz),
-                             _field(where, "drive", "speaker_resonance"))
-    _positive(f_s, _field(where, "drive", "speaker_resonance"), "speaker resonance")
-    q_s = _number(drive.get("speaker_q", base.speaker_q), _field(where, "drive", "speaker_q"))
-    _positive(q_s, _field(where, "drive", "speaker_q"), "speaker Q")
-    rf = drive.get("response_frequencies", [])
-    rd = drive.get("response_db", [])
-    if not isinstance(rf, list) or not isinstance(rd, list) or len(rf) != len(rd):
-        raise RigError("response_frequencies and response_db must be lists of the same length",
-                       _field(where, "drive", "response_db"), "let showkit measure write them")
-    rf_hz = tuple(units.frequency_hz(v, _field(where, "drive", "response_frequencies")) for v in rf)
-    rd_db = tuple(_number(v, _field(where, "drive", "response_db")) for v in rd)
-    if rf_hz and list(rf_hz) != sorted(rf_hz):
-        raise RigError("response_frequencies must ascend", _field(where, "drive", "response_frequencies"),
-                       "let showkit measure write them")
-    return DriveCalibration(f_ref, level, p_ref, f_s, q_s, rf_hz, rd_db)
+def _drive(drive: dict, where: str, tube=None) -> DriveCalibration:
+    return make_calibration(**{k: drive.get(k) for k in _FIELDS["drive"]}, tube=tube,
+                            where={k: _field(where, "drive", k) for k in _FIELDS["drive"]})

@@ -111,6 +111,10 @@ def update_rig(path, *, sound_speed_m_s: float | None = None, end_correction: fl
     """
     import tomlkit
 
+    _all_finite({"sound_speed": sound_speed_m_s, "end_correction": end_correction,
+                 "resistance": resistance_pa_s_m3, "modes": modes, "measured": measured_extra,
+                 "response_frequencies": response_freq_hz, "response_db": response_db,
+                 "reference": reference})
     path = _writable(path)
     text = path.read_text(encoding="utf-8")
     rig = parse_rig(text, str(path), path)
@@ -160,6 +164,27 @@ def update_rig(path, *, sound_speed_m_s: float | None = None, end_correction: fl
             del doc["measured"]
         doc["measured"] = measured
     return save_text(path, tomlkit.dumps(doc))
+
+
+def _all_finite(values: dict, where: str = "measurement") -> None:
+    """Refuse (RigError) any NaN or infinite number about to be written into a rig file."""
+    import math
+
+    def walk(name, value):
+        if isinstance(value, dict):
+            for k, v in value.items():
+                walk(f"{name}.{k}", v)
+        elif isinstance(value, (list, tuple)) or type(value).__name__ == "ndarray":
+            for k, v in enumerate(list(value)):
+                walk(f"{name}[{k}]", v)
+        elif isinstance(value, (int, float)) and not isinstance(value, bool) or hasattr(value, "dtype"):
+            if not math.isfinite(float(value)):
+                raise RigError(f"{name} is not a finite number ({float(value)!r})", where,
+                               "nothing was written; measure again")
+
+    for key, value in values.items():
+        if value is not None:
+            walk(key, value)
 
 
 def write_fit(path, report: dict, drive_response: bool = True, prefer_gas: str = "air_fraction") -> Path:

@@ -182,3 +182,12 @@ def test_saving_keeps_the_header_comments_and_the_file_permissions(tmp_path):
     finally:
         os.umask(old)
     assert oct(fresh.stat().st_mode & 0o777) == oct(0o644)  # a new file: 0666 less the umask
+
+
+def test_a_sheet_without_a_rig_line_is_refused_not_given_the_demo_rig():
+    """Issue 11: a sheet with no `rig =` silently used the demo rig (a ceiling moved from
+    -21.3 to -3.2 dB); now it is one line saying what to write."""
+    with pytest.raises(SheetError) as info:
+        parse_sheet('title = "t"\nformat = 1\n[[cue]]\nid = "a"\npause = { duration = 2 }\n', "show.toml")
+    line = info.value.line()
+    assert line.startswith("show.toml: rig:") and 'rig = "demo"' in line and "path" in line

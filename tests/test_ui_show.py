@@ -126,10 +126,16 @@ async def test_move_edit_delete_and_undo(ui_show):
         cue = app.session.sheet.cue("welcome")
         assert (cue.label, cue.fade_in_s, cue.then) == ("Hello, flames", 2.0, "next")
         assert app.session.checks["welcome"].status == "ok"     # re-locked after the fade change
+        # x (the old panic key of `showkit run`) deletes nothing; Delete does, and says how to undo
         await pilot.press("x")
+        assert "welcome" in [c.id for c in app.session.sheet.cues]
+        await pilot.press("delete")
         assert "welcome" not in [c.id for c in app.session.sheet.cues]
         assert "welcome" not in [c.id for c in load_sheet(ui_show).cues]
-        await pilot.press("ctrl+z")
+        assert "deleted cue welcome" in app._status_text and "press u" in app._status_text
+        await pilot.press("u")                              # undo, right there
+        assert "welcome" in [c.id for c in load_sheet(ui_show).cues]
+        await pilot.press("delete", "ctrl+z")               # ctrl+z does the same
         assert "welcome" in [c.id for c in load_sheet(ui_show).cues]
 
 
@@ -201,9 +207,9 @@ async def test_audition_plays_the_rendered_cue_and_stops(ui_show, monkeypatch):
         assert engine.cues[0].id == "mode-4"
         assert np.array_equal(engine.cues[0].samples, expected.samples)
         assert "playing mode-4" in app._status_text
-        await pilot.press("escape")
+        await pilot.press("escape")                 # Esc: the panic key, which silences auditions too
         assert not app.audition.playing
-        assert "stopped" in app._status_text
+        assert "PANIC" in app._status_text and "audition was silenced" in app._status_text
 
 
 @sync

@@ -56,12 +56,95 @@ def sine_amplitude(signal, rate: float, freq_hz: float) -> float:
     return float(np.hypot(coef[0], coef[1]))
 
 
+#: The steady part of a calibration sine: frames within this of its level, dB.
+STEADY_TOLERANCE_DB = 0.5
+#: Shortest steady part accepted, s (and at least :data:`STEADY_MIN_PERIODS` periods).
+STEADY_MIN_S = 0.5
+STEADY_MIN_PERIODS = 20
+#: Share of the sine's "on" part (within 6 dB of its level) that must be steady.
+STEADY_MIN_SHARE = 0.8
+
+
+def _frame_amplitudes(x, rate: float, freq_hz: float):
+    """Amplitude of the ``freq_hz`` component per frame (Hann-weighted lock-in), and the frame length.
+
+    Frames are a whole number of periods where the rate allows, at least 4 periods and 50 ms.
+    """
+    import numpy as np
+
+    periods = max(4, int(np.ceil(0.05 * freq_hz)))
+    n = max(8, int(round(periods * rate / freq_hz)))
+    count = x.size // n
+    if count == 0:
+        return np.zeros(0), n
+    frames = x[:count * n].reshape(count, n)
+    t = np.arange(count * n).reshape(count, n) / rate
+    w = np.hanning(n + 2)[1:-1]
+    z = (frames - frames.mean(axis=1, keepdims=True)) * np.exp(-2j * np.pi * freq_hz * t)
+    return 2.0 * np.abs(z @ w) / w.sum(), n
+
+
+def steady_part(signal, rate: float, freq_hz: float, where: str = "recording",
+                role: str = "recording") -> tuple[int, int]:
+    """Sample range ``(start, end)`` of the steady part of a sine at ``freq_hz`` in a recording.
+
+    Onset and offset detection on the sine's own amplitude (a lock-in at ``freq_hz``
+    per frame of a few periods, so room noise at other frequencies does not count):
+    the sine is "on" where a frame is within 6 dB of its level (the median of the
+    frames above half the largest), and steady where a frame is within
+    :data:`STEADY_TOLERANCE_DB` of that level.  The longest steady run is the part
+    a level may be read from: silence, fades, the start and the end of the
+    recording are left out, so silence around the sine cannot make it read low.
+
+    Raises
+    ------
+    MeasureError
+        The steady part is shorter than :data:`STEADY_MIN_S` (or 20 periods), or
+        less than :data:`STEADY_MIN_SHARE` of the "on" part is steady (the level wanders).
+    """
+    import numpy as np
+
+    from showkit.errors import MeasureError
+
+    x = np.asarray(signal, dtype=float)
+    x = x[:, 0] if x.ndim == 2 else x
+    amp, n = _frame_amplitudes(x, rate, freq_hz)
+    need = max(STEADY_MIN_S, STEADY_MIN_PERIODS / freq_hz)
+    if amp.size == 0 or not np.any(amp > 0):
+        raise MeasureError(f"no {freq_hz:g} Hz sine found in the {role}", where,
+                           f"record the sine for a few seconds (at least {need:.1f} s steady)")
+    level = float(np.median(amp[amp >= 0.5 * amp.max()]))
+    on = amp >= level * 10 ** (-6.0 / 20)
+    steady = np.abs(20 * np.log10(np.maximum(amp, 1e-300) / level)) <= STEADY_TOLERANCE_DB
+    best, best_start, run, run_start = 0, 0, 0, 0
+    for k, s_ in enumerate(steady):  # a loop over frames (a few hundred), not samples
+        run = run + 1 if s_ else 0
+        run_start = k - run + 1
+        if run > best:
+            best, best_start = run, run_start
+    seconds = best * n / rate
+    on_seconds = np.count_nonzero(on) * n / rate
+    if on_seconds >= need and best < STEADY_MIN_SHARE * np.count_nonzero(on):
+        spread = 20 * np.log10(np.percentile(amp[on], 95) / np.percentile(amp[on], 5))
+        raise MeasureError(f"the {freq_hz:g} Hz sine in the {role} is not steady: its level wanders by "
+                           f"{spread:.1f} dB", where,
+                           "hold the level steady while recording (no fades, no other sounds)")
+    if seconds < need:
+        raise MeasureError(f"the steady part of the {freq_hz:g} Hz sine in the {role} is only "
+                           f"{seconds:.2f} s (at least {need:.2f} s needed)", where,
+                           "record the sine longer, with the level held, and start recording before it")
+    return best_start * n, (best_start + best) * n
+
+
 def calibrated_pressure(recording, calibrator, rate: float, cal_rate: float, freq_hz: float,
                         where: str = "recording") -> float:
     """Pressure amplitude at ``freq_hz`` (Pa, zero to peak) from a mic checked with a 94 dB calibrator.
 
     The calibrator gives 94 dB SPL = 1 Pa rms at 1 kHz (IEC 60942; SPL re 20 uPa, ISO 1683), so
-    the microphone chain reads ``1 Pa * sqrt 2`` per its fitted 1 kHz amplitude.
+    the microphone chain reads ``1 Pa * sqrt 2`` per its fitted 1 kHz amplitude.  Both
+    amplitudes are fitted over the steady part of each sine only (:func:`steady_part`):
+    silence or fades around a sine would otherwise read low, and a low calibration
+    raises every ceiling.
     """
     import numpy as np
 
@@ -77,5 +160,9 @@ def calibrated_pressure(recording, calibrator, rate: float, cal_rate: float, fre
     if abs(f_peak - 1000.0) > 50.0:
         raise MeasureError(f"the calibrator recording peaks at {f_peak:.0f} Hz, not 1 kHz", "--calibrator",
                            "record the 94 dB SPL, 1 kHz calibrator on the microphone")
-    cal_amp = sine_amplitude(cal, cal_rate, f_peak)
-    return sine_amplitude(recording, rate, freq_hz) * np.sqrt(2.0) / cal_amp
+    a, b = steady_part(cal, cal_rate, f_peak, "--calibrator", "calibrator recording")
+    cal_amp = sine_amplitude(cal[a:b], cal_rate, f_peak)
+    rec = np.asarray(recording, dtype=float)
+    rec = rec[:, 0] if rec.ndim == 2 else rec
+    a, b = steady_part(rec, rate, freq_hz, where)
+    return sine_amplitude(rec[a:b], rate, freq_hz) * np.sqrt(2.0) / cal_amp

@@ -13,7 +13,7 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from showkit.analysis.audio import audio_info, read_blocks
-from showkit.errors import AudioError
+from showkit.errors import AudioError, RigError
 from showkit.physics import ceiling as ceil_rule
 from showkit.physics.flames import row_contrast
 from showkit.physics.response import HoleFilters, PressureFrames, design_hole_filters, simulate
@@ -120,14 +120,27 @@ def hole_filters(rig: Rig) -> HoleFilters:
     if key not in _FILTERS:
         if len(_FILTERS) >= _FILTERS_KEPT:
             _FILTERS.pop(next(iter(_FILTERS)))
-        _FILTERS[key] = design_hole_filters(rig.model, rig.drive)
+        try:
+            _FILTERS[key] = design_hole_filters(rig.model, rig.drive)
+        except ValueError as exc:
+            raise RigError(f"the pressure model cannot be built from this rig ({exc})", rig.name,
+                           "check the rig file's [tube], [holes] and [drive] values") from None
     return _FILTERS[key]
 
 
 def _report(rig: Rig, filters: HoleFilters, first: PressureFrames, peak: float, rerun,
             start_s: float, end_s: float, flames: bool) -> PassageReport:
-    pressure_db = ceil_rule.pressure_ceiling_db(first.worst_pa, rig.static_pa, rig.reserve)
-    result = ceil_rule.combine(pressure_db, ceil_rule.full_scale_db(peak))
+    # fails closed: a NaN or infinite pressure, or a loud signal that moves no gas at
+    # all, is an error, never the full-scale limit
+    if not math.isfinite(first.worst_pa) or not math.isfinite(peak):
+        raise RigError(f"the pressure model gave a non-finite pressure (largest swing {first.worst_pa!r} Pa)",
+                       rig.name, "check the rig file's [tube], [holes] and [drive] values")
+    try:
+        pressure_db = ceil_rule.pressure_ceiling_db(first.worst_pa, rig.static_pa, rig.reserve)
+        result = ceil_rule.combine(pressure_db, ceil_rule.full_scale_db(peak))
+    except ValueError as exc:
+        raise RigError(f"no ceiling can be computed ({exc})", rig.name,
+                       "check the rig file and today's static pressure and reserve") from None
     frames = first
     if flames:
         # a flames-only pass (real pressure, half the work) at the ceiling;

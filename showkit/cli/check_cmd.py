@@ -19,7 +19,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--static", metavar="PRESSURE",
                         help='today\'s static overpressure from the manometer, e.g. "22 Pa", '
                              '"0.09 inH2O", "0.22 mbar" (default: the rig file\'s)')
-    parser.add_argument("--reserve", metavar="FRACTION", type=float,
+    parser.add_argument("--reserve", metavar="FRACTION",
                         help="fraction of the static pressure kept in reserve, 0 to 0.9 (default: the rig's)")
     add_json_option(parser)
 
@@ -35,15 +35,14 @@ def headroom_bar(headroom_db: float | None, width: int = 12, span_db: float = 12
 
 
 def run(args) -> int:
-    from showkit.cli.common import level_caution, load_rig_from_args, print_json, table
+    from showkit.cli.common import conditions_from_args, level_caution, print_json, table
     from showkit.show.lock import check_sheet, sheet_rig
     from showkit.show.sheet import load_sheet
 
     sheet = load_sheet(args.sheet)
     rig = sheet_rig(sheet)
-    args.rig = str(rig.path) if rig.path else None
-    today = load_rig_from_args(args)
-    checks = check_sheet(sheet, rig, today.static_pa, today.reserve)
+    today = rig.with_conditions(conditions=conditions_from_args(args, rig.conditions))
+    checks = check_sheet(sheet, today)
     level_caution()
     if args.json:
         print_json({"sheet": str(sheet.path), "static_pressure_pa": today.static_pa,

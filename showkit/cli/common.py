@@ -19,7 +19,7 @@ def add_conditions_options(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--static", metavar="PRESSURE",
                         help='today\'s static overpressure from the manometer, e.g. "18 Pa", '
                              '"0.08 inH2O", "0.2 mbar" (default: the rig file\'s)')
-    parser.add_argument("--reserve", metavar="FRACTION", type=float,
+    parser.add_argument("--reserve", metavar="FRACTION",
                         help="fraction of the static pressure kept in reserve at every hole, "
                              "0 to 0.9 (default: the rig file's)")
 
@@ -28,32 +28,25 @@ def add_json_option(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--json", action="store_true", help="print the result as JSON on stdout")
 
 
+def conditions_from_args(args, base):
+    """Today's conditions from ``--static``/``--temperature``/``--reserve`` over ``base``.
+
+    Through the one door (:func:`showkit.conditions.make_conditions`): the same
+    limits as the rig file, one line naming the option when a value is outside.
+    """
+    from showkit.conditions import make_conditions
+
+    return make_conditions(getattr(args, "static", None), getattr(args, "temperature", None),
+                           getattr(args, "reserve", None), base=base,
+                           where={"static": "--static", "temperature": "--temperature", "reserve": "--reserve"})
+
+
 def load_rig_from_args(args):
-    """The rig named by ``--rig`` (or the demo) with ``--static``/``--reserve`` applied."""
-    from showkit import units
-    from showkit.errors import InputError
+    """The rig named by ``--rig`` (or the demo) with ``--static``/``--temperature``/``--reserve`` applied."""
     from showkit.rigfile import load_rig
 
     rig = load_rig(getattr(args, "rig", None))
-    static = getattr(args, "static", None)
-    reserve = getattr(args, "reserve", None)
-    static_pa = None
-    if static is not None:
-        static_pa = units.pressure_pa(_maybe_number(static), "--static")
-        if not static_pa > 0:
-            raise InputError("the static pressure must be above zero", "--static",
-                             'give the manometer reading, e.g. --static "18 Pa"')
-    if reserve is not None and not 0.0 <= reserve <= 0.9:
-        raise InputError(f"reserve must be within 0 and 0.9 (got {reserve:g})", "--reserve",
-                         "give a fraction such as 0.25")
-    return rig.with_conditions(static_pa=static_pa, reserve=reserve)
-
-
-def _maybe_number(text: str):
-    try:
-        return float(text)
-    except ValueError:
-        return text
+    return rig.with_conditions(conditions=conditions_from_args(args, rig.conditions))
 
 
 def clean_json(value):

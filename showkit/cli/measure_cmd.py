@@ -214,16 +214,18 @@ def _run_live(args) -> int:
 def _run_level(args) -> int:
     import numpy as np
 
-    from showkit import units
     from showkit.cli.common import load_rig_from_args
+    from showkit.conditions import make_calibration
     from showkit.errors import InputError
     from showkit.rigwrite import update_rig
 
     rig = load_rig_from_args(args)
-    freq = args.frequency or rig.drive.reference_frequency_hz
-    level = rig.drive.reference_level_dbfs if args.level is None else args.level
-    if level > 0:
-        raise InputError(f"--level {level:g} dBFS is above full scale", "--level", "give e.g. -20")
+    where = {"reference_frequency": "--frequency", "reference_level": "--level",
+             "reference_pressure": "--pressure"}
+    # the one door for a calibration: the sine's frequency and level are checked before it is made
+    drive = make_calibration(reference_frequency=args.frequency, reference_level=args.level,
+                             base=rig.drive, where=where, tube=rig.model)
+    freq, level = drive.reference_frequency_hz, drive.reference_level_dbfs
     level_caution()
     rate = 48000
     t = np.arange(int(10 * rate)) / rate
@@ -232,8 +234,11 @@ def _run_level(args) -> int:
     sine[:ramp] *= np.linspace(0, 1, ramp)
     sine[-ramp:] *= np.linspace(1, 0, ramp)
     if args.out:
-        import soundfile as sf
-        sf.write(args.out, sine.astype(np.float32), rate, subtype="FLOAT")
+        from pathlib import Path
+
+        from showkit.show.render import write_wav
+
+        write_wav(Path(args.out), sine.astype(np.float32), rate)
         print(f"wrote {args.out}: {freq:g} Hz at {level:g} dBFS peak, 10 s; play it and read the cap pressure")
     played = None
     if args.play:
@@ -253,7 +258,7 @@ def _run_level(args) -> int:
               file=sys.stderr)
         played = play_record(sine, rate, tail_s=0.5, device=args.device)
     if args.pressure is not None:
-        p = units.pressure_pa(args.pressure, "--pressure")
+        p = args.pressure
     elif played is not None and args.calibrator:
         cal, cal_rate = _read(args.calibrator, "calibrator recording")
         steady = played[int(1.0 * rate):int(9.0 * rate)]  # away from the fades
@@ -268,8 +273,11 @@ def _run_level(args) -> int:
                              'give --pressure "5.8 Pa", or --recording and --calibrator, or --out to write '
                              'the sine, or --play to play it')
         return 0
-    if not p > 0:
-        raise InputError("the pressure must be above zero", "--pressure", 'give e.g. "5.8 Pa"')
+    # the reading through the same door: finite and within the calibration limits
+    if args.pressure is None:
+        where["reference_pressure"] = f"{args.recording or 'live recording'}: measured pressure"
+    drive = make_calibration(reference_pressure=p, base=drive, where=where, tube=rig.model)
+    p = drive.reference_pressure_pa
     spl = 20 * np.log10(p / np.sqrt(2) / 20e-6)
     result = {"reference_frequency": freq, "reference_level": level, "reference_pressure": p,
               "spl_db": spl}

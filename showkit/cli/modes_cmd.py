@@ -47,7 +47,15 @@ def modes_report(rig, f_max_hz=None) -> dict:
 def run(args) -> int:
     from showkit.cli.common import load_rig_from_args
 
+    import math
+
+    from showkit.errors import InputError
+
     rig = load_rig_from_args(args)
+    if args.max_frequency is not None and not (math.isfinite(args.max_frequency) and args.max_frequency > 0):
+        raise InputError(f"--max-frequency must be a frequency above 0 Hz (got {args.max_frequency:g})",
+                         "--max-frequency", "give e.g. --max-frequency 800, or leave it out for the "
+                         "plane-wave limit")
     report = modes_report(rig, args.max_frequency)
     if getattr(args, "plot", None):
         import sys

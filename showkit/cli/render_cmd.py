@@ -21,22 +21,21 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         help="sample format: 32-bit float (default) or 24-bit integer")
     parser.add_argument("--static", metavar="PRESSURE",
                         help='today\'s static overpressure, e.g. "22 Pa" (default: the rig file\'s)')
-    parser.add_argument("--reserve", metavar="FRACTION", type=float,
+    parser.add_argument("--reserve", metavar="FRACTION",
                         help="fraction of the static pressure kept in reserve, 0 to 0.9 (default: the rig's)")
 
 
 def run(args) -> int:
     from pathlib import Path
 
-    from showkit.cli.common import level_caution, load_rig_from_args, table
+    from showkit.cli.common import conditions_from_args, level_caution, table
     from showkit.show.lock import sheet_rig
     from showkit.show.render import render_sheet, write_per_cue, write_show
     from showkit.show.sheet import load_sheet
 
     sheet = load_sheet(args.sheet)
     rig = sheet_rig(sheet)
-    args.rig = str(rig.path) if rig.path else None
-    today = load_rig_from_args(args)
+    today = rig.with_conditions(conditions=conditions_from_args(args, rig.conditions))
     cues = render_sheet(sheet, today)
     subtype = "FLOAT" if args.bits == "float" else "PCM_24"
     level_caution()

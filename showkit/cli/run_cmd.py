@@ -3,20 +3,14 @@
 First the pre-show check: today's manometer reading (--static) and gas
 temperature (--temperature) re-derive every ceiling and move the tone cues
 with the modes; the cues that no longer fit are listed and cannot be started.
-Then the show, one key per action:
+Then the show, one key per action.  The keys are the operator's key map of
+:mod:`showkit.show.operator_keys`, the same as in the UI's Run view: Enter or
+space starts the next cue, Esc panics, f fades out, - and + move the fader,
+a re-arms after a panic, d reconnects the device, ? lists them; q quits (press
+twice while a cue plays).  Ctrl+C panics too, and then quits.
 
-  Enter     start the next cue (a cue playing is cut quickly first)
-  f         fade the current cue out (--fade seconds, default 3)
-  -         operator fader down 1 dB
-  +  or =   operator fader up 1 dB (never above the cue's locked gain)
-  x         PANIC: silence within 20 ms, the show stops until re-armed
-  a         re-arm after a panic (then Enter resumes at the next cue)
-  r         reconnect the audio device after a fault
-  h  or ?   show the keys
-  q         quit (press twice while a cue plays)
-
-Ctrl+C is a panic too, and then quits.  --auto plays every cue in order with
-no keyboard, treating every cue as "then = next": a rehearsal, or a test.
+--auto plays every cue in order with no keyboard, treating every cue as
+"then = next": a rehearsal, or a test.
 Every reading, start, stop, fade, fader move, panic and device error goes to
 the show log (one JSON object a line; --log FILE, default in the user's data
 directory).
@@ -33,8 +27,11 @@ import time
 
 POLL_S = 0.05
 
-KEYS_HELP = ("keys: Enter next cue | f fade out | - / + fader | x PANIC | a re-arm | "
-             "r reconnect | h help | q quit")
+def keys_help() -> str:
+    """The key line printed at the start and on ``?`` (from the one operator key table)."""
+    from showkit.show.operator_keys import keys_line
+
+    return keys_line() + " | q quit"
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -46,7 +43,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         help="show log file, one JSON object a line (default: "
                              "<user data dir>/showkit/logs/show-<date>.jsonl)")
     parser.add_argument("--auto", action="store_true",
-                        help="rehearsal: play every cue in order with no keyboard, then exit")
+                        help="rehearsal: play every cue in order with no keyboard, then exit; names every "
+                             "cue it skipped and why, and exits 1 when any was")
     parser.add_argument("--static", metavar="PRESSURE",
                         help='today\'s static overpressure from the manometer, e.g. "22 Pa", '
                              '"0.09 inH2O" (default: the rig file\'s)')
@@ -58,7 +56,6 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def run(args) -> int:
-    from showkit import units
     from showkit.cli.common import level_caution
     from showkit.errors import InputError
     from showkit.safety import caution_text
@@ -68,15 +65,11 @@ def run(args) -> int:
     print(caution_text(), file=out)
     print(file=out)
     level_caution()
-    static_pa = None
-    if args.static is not None:
-        static_pa = units.pressure_pa(_maybe_number(args.static), "--static")
-        if not static_pa > 0:
-            raise InputError("the static pressure must be above zero", "--static",
-                             'give the manometer reading, e.g. --static "22 Pa"')
-    temperature_k = None
-    if args.temperature is not None:
-        temperature_k = units.temperature_k(_maybe_number(args.temperature), "--temperature")
+    # today's readings through the one door (the rig file's limits), before anything plays
+    from showkit.conditions import static_reading, temperature_reading
+
+    static_pa = None if args.static is None else static_reading(args.static, "--static")
+    temperature_k = None if args.temperature is None else temperature_reading(args.temperature, "--temperature")
     if not (args.fade > 0 and math.isfinite(args.fade)):
         raise InputError(f"the fade time must be above zero (got {args.fade:g})", "--fade",
                          "give seconds, e.g. --fade 3")
@@ -125,7 +118,9 @@ def pre_show(args, log, static_pa, temperature_k, out):
         print(f"\n{len(bad)} cue(s) cannot be started today:", file=out)
         for c in bad:
             print(f"  {c.refusal()}", file=out)
-        print("Enter passes over them to the next cue that may be played.", file=out)
+        from showkit.show.operator_keys import shown
+
+        print(f"{shown('go')} passes over them to the next cue that may be played.", file=out)
     if not any(c.playable for c in cues):
         raise SheetError("no cue in the sheet can be played today", args.sheet,
                          "lock it with `showkit lock SHEET` and check it with `showkit check SHEET`")
@@ -163,11 +158,18 @@ def _run(args, log, static_pa, temperature_k, out) -> int:
 
 # ---------------------------------------------------------------- rehearsal
 def run_auto(engine, out, poll_s: float = 0.01) -> int:
-    """Play every playable cue in order (followed on); returns 0, or 1 after a device fault."""
+    """Play every playable cue in order (followed on).
+
+    Returns 0 when every cue was played; 1 when any cue was skipped (it may not be
+    played today: stale, over or error; each is named with why) or the device faulted.
+    """
     faults = 0
+    skipped: list[int] = []
     while True:
         for k in engine.skipped:
-            _skip(engine, k, out)
+            if k not in skipped:
+                skipped.append(k)
+                _skip(engine, k, out)
         index = engine.next_index
         if index is None:
             break
@@ -181,16 +183,28 @@ def run_auto(engine, out, poll_s: float = 0.01) -> int:
             print(f"DEVICE FAULT: {engine.fault}", file=out)
             print("reconnecting the device and resuming at the next cue ...", file=out)
             engine.reopen()
-    print("rehearsal done: every playable cue was played" if not faults else
-          f"rehearsal done, with {faults} device fault(s): see the log", file=out)
-    return 0 if not faults else 1
+    played = len(engine.cues) - len(skipped)
+    if not skipped and not faults:
+        print(f"rehearsal done: all {played} cue(s) were played", file=out)
+        return 0
+    parts = []
+    if skipped:
+        parts.append(f"{len(skipped)} of {len(engine.cues)} cue(s) skipped: "
+                     + "; ".join(f"{engine.cues[k].id} ({engine.cues[k].status}"
+                                 + (f": {engine.cues[k].message}" if engine.cues[k].message else "") + ")"
+                                 for k in skipped))
+    if faults:
+        parts.append(f"{faults} device fault(s): see the log")
+    print("rehearsal NOT complete: " + " | ".join(parts), file=out)
+    return 1
 
 
 def _skip(engine, index: int, out) -> None:
     cue = engine.cues[index]
     print(f"skipping {cue.refusal()}", file=out)
     if engine.log is not None:
-        engine.log.write("check", cue.id, cue.gain_db, f"skipped in rehearsal: {cue.status}")
+        engine.log.write("check", cue.id, cue.gain_db, f"skipped in rehearsal: {cue.status}"
+                         + (f": {cue.message}" if cue.message else ""))
 
 
 def _fmt_time(seconds: float) -> str:
@@ -239,39 +253,49 @@ class KeyRunner:
         print(f"\r\x1b[K{text}" if _is_tty(self.out) else text, file=self.out)
 
     def handle(self, key: str) -> bool:
-        """Act on one key; returns False to quit."""
+        """Act on one key (a character, or a whole control sequence); returns False to quit.
+
+        The keys are :data:`showkit.show.operator_keys.OPERATOR_KEYS`; ``q`` quits.
+        """
         from showkit.errors import ShowkitError
+        from showkit.show.operator_keys import shown, terminal_actions
 
         engine = self.engine
+        action = terminal_actions().get(key)
         try:
-            if key in ("\r", "\n"):
+            if action == "panic":
+                engine.panic()
+                if key == "\x03":  # Ctrl+C from a raw terminal: as the signal, panic then quit
+                    self.say("PANIC (Ctrl+C): output to silence; quitting")
+                    return False
+                self.say(f"PANIC: output to silence; press {shown('rearm')} to re-arm when it is safe")
+            elif action == "go":
                 index = engine.go()
                 self.say(f"GO {index + 1} {engine.cues[index].id}")
-            elif key == "f":
+            elif action == "fade":
                 engine.fade_out()
-            elif key == "-":
+            elif action == "fader_down":
                 new = engine.fader_step(-1.0)
                 self.say("fader " + ("silent" if new == -math.inf else f"{new:+.1f} dB"))
-            elif key in ("+", "="):
+            elif action == "fader_up":
                 new = engine.fader_step(+1.0)
                 self.say(f"fader {new:+.1f} dB")
-            elif key == "x":
-                engine.panic()
-                self.say("PANIC: output to silence; press a to re-arm when it is safe")
-            elif key == "a":
+            elif action == "rearm":
                 engine.rearm()
-                self.say("re-armed: Enter starts the next cue")
-            elif key == "r":
+                self.say(f"re-armed: {shown('go')} starts the next cue")
+            elif action == "reconnect":
                 engine.reopen()
-                self.say(f"device reconnected: {engine.device.name}; Enter starts the next cue")
-            elif key in ("h", "?"):
-                self.say(KEYS_HELP)
+                self.say(f"device reconnected: {engine.device.name}; {shown('go')} starts the next cue")
+            elif action == "help":
+                self.say(keys_help())
             elif key == "q":
                 if engine.busy and time.monotonic() > self._quit_armed_until:
                     self._quit_armed_until = time.monotonic() + 3.0
                     self.say("a cue is playing: press q again within 3 s to stop it and quit")
                     return True
                 return False
+            elif key.isprintable() and key.strip():
+                self.say(f"{key!r} is not an operator key ({shown('panic')} is PANIC; ? lists the keys)")
         except ShowkitError as exc:
             self.say(f"refused: {exc.line()}")
         return True
@@ -282,12 +306,14 @@ class KeyRunner:
         import termios
         import tty
 
+        from showkit.show.operator_keys import split_terminal_input
+
         fd = stdin.fileno()
         saved = termios.tcgetattr(fd)
         shown = ""
         try:
             tty.setcbreak(fd)
-            self.say(KEYS_HELP)
+            self.say(keys_help())
             running = True
             while running:
                 ready, _, _ = select.select([fd], [], [], POLL_S)
@@ -295,7 +321,7 @@ class KeyRunner:
                     data = os.read(fd, 64).decode("utf-8", "replace")
                     if not data:
                         break
-                    for key in data:
+                    for key in split_terminal_input(data):
                         if not self.handle(key):
                             running = False
                             break

@@ -11,6 +11,11 @@ and the ceiling
 capped so that the output never exceeds digital full scale (and never more
 than :data:`MAX_GAIN_DB`).  Ceilings scale exactly with ``dP0`` and with
 ``1 - m``: today's manometer reading re-derives them without re-analysis.
+
+Fails closed: a swing, peak, static pressure or reserve that is NaN, infinite,
+negative or otherwise degenerate raises ``ValueError``; it never falls through
+to the full-scale limit.  Only a swing of exactly zero (silence at the holes)
+has no pressure limit.
 """
 
 from __future__ import annotations
@@ -46,22 +51,39 @@ class Ceiling:
 
 def pressure_ceiling_db(swing_pa: float, static_pa: float, reserve: float) -> float:
     """``20 log10((1 - m) dP0 / P)`` for a largest swing ``P`` below the static level, Pa."""
-    if not static_pa > 0:
-        raise ValueError("static pressure must be positive")
-    if not 0.0 <= reserve < 1.0:
-        raise ValueError("reserve must be within 0 and 1")
-    if swing_pa <= 0:
+    _check_conditions(static_pa, reserve)
+    if not (math.isfinite(swing_pa) and swing_pa >= 0.0):
+        raise ValueError(f"the pressure swing must be finite and not negative (got {swing_pa!r})")
+    if swing_pa == 0.0:
         return math.inf
-    return 20.0 * math.log10((1.0 - reserve) * static_pa / swing_pa)
+    result = 20.0 * math.log10((1.0 - reserve) * static_pa / swing_pa)
+    if math.isnan(result):  # pragma: no cover - excluded by the checks above
+        raise ValueError("the pressure ceiling is not a number")
+    return result
+
+
+def _check_conditions(static_pa: float, reserve: float) -> None:
+    if not (math.isfinite(static_pa) and static_pa > 0):
+        raise ValueError(f"static pressure must be finite and positive (got {static_pa!r})")
+    if not (math.isfinite(reserve) and 0.0 <= reserve < 1.0):
+        raise ValueError(f"reserve must be within 0 and 1 (got {reserve!r})")
 
 
 def full_scale_db(peak: float) -> float:
-    """Gain that brings a digital peak (1.0 = full scale) to 0 dBFS, dB."""
-    return math.inf if peak <= 0 else -20.0 * math.log10(peak)
+    """Gain that brings a digital peak (1.0 = full scale) to 0 dBFS, dB (``inf`` for silence)."""
+    if not (math.isfinite(peak) and peak >= 0.0):
+        raise ValueError(f"the digital peak must be finite and not negative (got {peak!r})")
+    return math.inf if peak == 0 else -20.0 * math.log10(peak)
 
 
 def combine(pressure_db: float, full_scale_db_: float) -> Ceiling:
-    """The lower of the two limits, capped at :data:`MAX_GAIN_DB`."""
+    """The lower of the two limits, capped at :data:`MAX_GAIN_DB`.
+
+    Either limit may be ``+inf`` (silence); a NaN or ``-inf`` limit is refused.
+    """
+    for value in (pressure_db, full_scale_db_):
+        if math.isnan(value) or value == -math.inf:
+            raise ValueError(f"a ceiling limit must be a number or +inf (got {value!r})")
     if pressure_db <= full_scale_db_ and math.isfinite(pressure_db):
         return Ceiling(min(pressure_db, MAX_GAIN_DB), pressure_db, full_scale_db_, "pressure")
     return Ceiling(min(full_scale_db_, MAX_GAIN_DB), pressure_db, full_scale_db_, "full_scale")
@@ -73,5 +95,7 @@ def rescale(ceiling: Ceiling, static_from_pa: float, static_to_pa: float,
 
     ``g*`` is proportional to ``(1 - m) dP0``; the full-scale limit does not move.
     """
+    _check_conditions(static_from_pa, reserve_from)
+    _check_conditions(static_to_pa, reserve_to)
     shift = 20.0 * math.log10((1.0 - reserve_to) * static_to_pa / ((1.0 - reserve_from) * static_from_pa))
     return combine(ceiling.pressure_db + shift, ceiling.full_scale_db)

@@ -124,7 +124,16 @@ def drive_scale(model: TubeModel, drive: DriveCalibration) -> float:
     f_ref = drive.reference_frequency_hz
     h_cap = model.response([f_ref]).cap_pressure[0]
     amplitude = 10.0 ** (drive.reference_level_dbfs / 20.0)
-    return float(drive.reference_pressure_pa / (amplitude * abs(driver_shape([f_ref], drive)[0] * h_cap)))
+    per_unit = amplitude * abs(driver_shape([f_ref], drive)[0] * h_cap)
+    if not (math.isfinite(per_unit) and per_unit > 0 and math.isfinite(drive.reference_pressure_pa)
+            and drive.reference_pressure_pa > 0):
+        # fails closed: a degenerate calibration never becomes a scale of 0 or inf
+        raise ValueError(f"the calibration point gives no finite drive scale ({per_unit!r} per unit, "
+                         f"{drive.reference_pressure_pa!r} Pa)")
+    scale = float(drive.reference_pressure_pa / per_unit)
+    if not (math.isfinite(scale) and scale > 0):
+        raise ValueError(f"the drive scale is not finite and positive ({scale!r})")
+    return scale
 
 
 def transfer(model: TubeModel, drive: DriveCalibration, freq_hz) -> tuple[np.ndarray, np.ndarray]:
@@ -185,6 +194,9 @@ def design_hole_filters(model: TubeModel, drive: DriveCalibration, rate_hz: int 
     cut = int(np.searchsorted(-tail, -max(tolerance ** 2, 4.0 * float(tail[n - n // 8]))))
     taps = int(min(n, max(256, 256 * math.ceil(cut / 256))))
     ir = ir[:, :taps].copy()
+    if not np.all(np.isfinite(ir)) or not np.any(ir[:-1]):
+        # fails closed: NaN, infinite or all-zero responses would read as "no pressure"
+        raise ValueError("the hole impulse responses are not finite or are all zero")
     fade = min(64, taps // 8)
     ir[:, taps - fade:] *= 0.5 * (1.0 + np.cos(np.pi * np.arange(1, fade + 1) / fade))
     return HoleFilters(rate_hz=fs, impulse=ir[:-1], cap_impulse=ir[-1], delay=delay,
@@ -289,6 +301,7 @@ def simulate(filters: HoleFilters, blocks: Iterable[np.ndarray], static_pa: floa
     tail = np.zeros((holes, ntail), dtype=y.dtype)
     env_frames, h_frames, a_frames = [], [], []
     worst = (0.0, 0, 0.0)
+    finite = True  # a NaN or infinite envelope anywhere makes worst_pa NaN (fails closed)
     done = 0  # output samples produced
 
     def chunks():
@@ -345,6 +358,8 @@ def simulate(filters: HoleFilters, blocks: Iterable[np.ndarray], static_pa: floa
             if envelope:
                 envf = np.concatenate([p[0] for p in parts], axis=0)
                 env_frames.append(envf.T)
+                if envf.size and not np.all(np.isfinite(envf)):
+                    finite = False
                 if envf.size:
                     hole, fr = divmod(int(np.argmax(envf)), frames)
                     if envf[hole, fr] > worst[0]:
@@ -364,6 +379,8 @@ def simulate(filters: HoleFilters, blocks: Iterable[np.ndarray], static_pa: floa
         result.envelope = (np.concatenate(env_frames) if env_frames
                            else np.zeros((0, holes), np.float32)).astype(np.float32)
         result.worst_pa, result.worst_hole, result.worst_time_s = worst
+        if not finite:
+            result.worst_pa = math.nan
     if static_pa is not None:
         result.height = np.concatenate(h_frames) if h_frames else np.zeros((0, holes), np.float32)
         result.air_in = np.concatenate(a_frames) if a_frames else np.zeros((0, holes), np.float32)

@@ -47,6 +47,14 @@ How to use it (the API the terminal runner and the UI call)
                                                 # resumes with go() at the next cue
     engine.close()                              # ramp out, stop the stream
 
+When today's conditions change during a show (the UI's manometer or temperature
+keys), the caller withdraws the cues whose fit is no longer known at once
+(``engine.withdraw(index, what, fix)``: go() refuses them and no cue follows on
+into them), caps the fader for a cue playing above its new ceiling
+(``engine.cap_fader_db(db)``), and, once the pre-show check has run again and
+nothing plays, hands the engine the new rendered cues (``engine.replace_cues(cues)``,
+the show position kept).
+
 Tests (and a UI preview) may drive :meth:`Engine.render_into` directly with no
 device: ``out = np.zeros((frames, 1), np.float32); engine.render_into(out, frames)``.
 
@@ -230,6 +238,8 @@ class Engine:
         self.fault = ""
         self.note = ""
         self._source_cues = list(cues)
+        self._withdrawn: dict[int, tuple[str, str]] = {}
+        self._fader_cap = 1.0
         self._prepare(_show_rate(cues))
         self._reset_state()
 
@@ -397,7 +407,7 @@ class Engine:
         names them.  None past the end.
         """
         index = self._next_raw()
-        while index < len(self.cues) and not self.cues[index].playable:
+        while index < len(self.cues) and not self._playable[index]:
             index += 1
         return index if index < len(self.cues) else None
 
@@ -406,7 +416,7 @@ class Engine:
         """Indexes of the not-playable cues that ``go()`` would pass over to reach the next one."""
         out = []
         index = self._next_raw()
-        while index < len(self.cues) and not self.cues[index].playable:
+        while index < len(self.cues) and not self._playable[index]:
             out.append(index)
             index += 1
         return out
@@ -442,7 +452,13 @@ class Engine:
         if not cue.playable:
             what, fix = cue.refusal_parts()
             raise CueRefused(what, f"cue {cue.id!r}", f"{fix}; or skip it and start the one after")
+        if index in self._withdrawn or not self._playable[index]:
+            what, fix = self._withdrawn.get(index, ("the cue was withdrawn", "check the show again"))
+            raise CueRefused(what, f"cue {cue.id!r}", f"{fix}; or skip it and start the one after")
         self.note = ""
+        self._fader_cap = 1.0  # a cap set for the cue that played does not carry to a new go
+        if self._fader_target > self._fader_cap:
+            self._fader_target = self._fader_cap
         self._requested = index
         self._go_index = index
         self._watch_t = time.monotonic()
@@ -479,6 +495,10 @@ class Engine:
         if level < 0:
             raise FaderRefused(f"the fader level cannot be negative (got {level:g})", "fader",
                                "give 0 (silent) to 1 (the locked gain)")
+        if level > self._fader_cap * (1 + 1e-9):
+            raise FaderRefused(f"the fader is held at {_fmt_db(db(self._fader_cap))}: the cue playing is "
+                               "above today's ceiling", "fader",
+                               "fade it out; the next cue plays at its own checked gain")
         self._fader_target = level
         cue = self.cues[self._cur] if self._cur >= 0 else None
         self._write("fader", cue.id if cue else None, self._gain_db(cue) if cue else None,
@@ -502,10 +522,14 @@ class Engine:
         if step_db > 0 and current >= -1e-9:
             raise FaderRefused("the fader is at the cue's locked gain and cannot go higher",
                                "fader", "the locked gain is the most a cue may play at")
+        if step_db > 0 and self._fader_cap < 1.0 and current >= db(self._fader_cap) - 1e-9:
+            raise FaderRefused(f"the fader is held at {_fmt_db(db(self._fader_cap))}: the cue playing is "
+                               "above today's ceiling", "fader",
+                               "fade it out; the next cue plays at its own checked gain")
         if current == -math.inf:
             new = -math.inf if step_db <= 0 else -60.0
         else:
-            new = min(0.0, current + step_db)
+            new = min(0.0, db(self._fader_cap), current + step_db)
             if new < -60.0:
                 new = -math.inf
         self.set_fader_db(new)
@@ -515,6 +539,55 @@ class Engine:
     def fader_db(self) -> float:
         """The fader setting in dB (<= 0, -inf at zero)."""
         return db(self._fader_target)
+
+    def startable(self, index: int) -> bool:
+        """True when cue ``index`` may be started now (ok, and not withdrawn)."""
+        return bool(self._playable[index]) and index not in self._withdrawn
+
+    def withdraw(self, index: int, what: str, fix: str) -> None:
+        """Cue ``index`` may not be started from now on (today's conditions changed).
+
+        Takes effect at once for :meth:`go` and for a follow-on from the cue before
+        (the callback reads the same flag).  A cue playing is not stopped here: the
+        caller caps the fader (:meth:`cap_fader_db`) or fades it out.  Logged as a
+        ``check`` event.
+        """
+        self._playable[index] = False
+        self._withdrawn[index] = (what, fix)
+        cue = self.cues[index]
+        self._write("check", cue.id, cue.gain_db, f"withdrawn: {what}")
+
+    def cap_fader_db(self, fader_db: float, why: str) -> float:
+        """Hold the fader at or below ``fader_db`` (<= 0) until the next go; returns the fader dB.
+
+        For a cue playing above a ceiling that came down while it played: the fader
+        moves down at once (the usual 30 ms ramp) and cannot be brought back up.
+        """
+        level = 0.0 if fader_db == -math.inf else min(1.0, undb(min(0.0, float(fader_db))))
+        self._fader_cap = min(self._fader_cap, level)
+        if self._fader_target > self._fader_cap:
+            self._fader_target = self._fader_cap
+            cue = self.cues[self._cur] if self._cur >= 0 else None
+            self._write("fader", cue.id if cue else None, self._gain_db(cue) if cue else None,
+                        f"fader {_fmt_db(db(self._fader_cap))}: {why}")
+        return self.fader_db
+
+    def replace_cues(self, cues: list[RenderedCue]) -> None:
+        """The same show rendered again (a new pre-show check), the show position kept.
+
+        Only while nothing plays, and only for the same cue ids in the same order
+        (otherwise make a new engine).  The cues are resampled to the device's rate
+        ahead of time, as at :meth:`open`; withdrawals end (the new cues carry their
+        own status) and so does a fader cap.
+        """
+        if self.busy:
+            raise CueRefused("a cue is playing", "show", "fade it out first")
+        if [c.id for c in cues] != [c.id for c in self._source_cues]:
+            raise InputError("the cues are not the same show", "show", "make a new engine for them")
+        self._source_cues = list(cues)
+        self._withdrawn = {}
+        self._fader_cap = 1.0
+        self._prepare(self.rate_hz)
 
     def panic(self) -> None:
         """Silence within ``panic_s`` from any state, and stop the show until :meth:`rearm`."""

@@ -22,7 +22,11 @@ from showkit.errors import ShowkitError
 from showkit.physics import ceiling as rule
 from showkit.rigfile import Rig, load_rig
 from showkit.show.sheet import Cue, Lock, Sheet
-from showkit.show.sources import CueSignal, cue_signal
+from showkit.show.sources import TONE_RATE_HZ, CueSignal, cue_signal
+
+#: The rate a whole show is rendered and usually played at, Hz: a cue at another
+#: rate is locked at both (see :func:`compute_lock`).
+SHOW_RATE_HZ = TONE_RATE_HZ
 
 #: Gains are clamped to the ceiling rounded down to this step, dB.
 GAIN_STEP_DB = 0.01
@@ -47,7 +51,12 @@ def safe_gain(ceiling_db: float) -> float:
 
 
 def compute_lock(rig: Rig, signal: CueSignal) -> Lock:
-    """The lock for a cue's sound on a rig."""
+    """The lock for a cue's sound on a rig.
+
+    A cue whose source is at another rate than :data:`SHOW_RATE_HZ` is checked
+    at both rates (resampled as playback resamples it) and the lower ceiling is
+    locked: the resampled cue may take the tube a little further.
+    """
     from showkit.analysis.pressure import signal_report
 
     if not signal.samples.any():
@@ -55,15 +64,31 @@ def compute_lock(rig: Rig, signal: CueSignal) -> Lock:
         worst_hole, worst_t = -1, 0.0
     else:
         report = signal_report(rig, signal.samples, signal.rate_hz, flames=False)
+        if signal.rate_hz != SHOW_RATE_HZ:
+            # the cue is also played (and rendered with -o) at the show rate: lock the lower of
+            # the two, from the same resampler as playback, so lock, check, render and run agree
+            from showkit.show.playlist import resample_samples
+
+            at_show = signal_report(rig, resample_samples(signal.samples, signal.rate_hz, SHOW_RATE_HZ)
+                                    .astype(float), SHOW_RATE_HZ, flames=False)
+            if at_show.ceiling.ceiling_db < report.ceiling.ceiling_db:
+                report = at_show
         c = report.ceiling
         worst_hole, worst_t = report.worst_hole, report.worst_time_s
-    return Lock(ceiling_db=c.ceiling_db, pressure_db=c.pressure_db, full_scale_db=c.full_scale_db,
+    lock = Lock(ceiling_db=c.ceiling_db, pressure_db=c.pressure_db, full_scale_db=c.full_scale_db,
                 limited_by=c.limited_by, source_hash=signal.source_hash, rig_hash=rig.acoustic_hash(),
                 calibration_hash=rig.calibration_hash(), static_pa=rig.static_pa, reserve=rig.reserve,
                 analysis_version=ANALYSIS_VERSION,
                 locked_at=datetime.now(timezone.utc).isoformat(timespec="seconds"),
                 worst_hole=worst_hole, worst_time_s=worst_t,
                 frequency_hz=signal.frequency_hz, to_frequency_hz=signal.to_frequency_hz)
+    problem = lock_problem(lock)
+    if problem:  # never write a number into a lock that is not finite and consistent
+        from showkit.errors import SheetError
+
+        raise SheetError(f"the computed lock is not usable: {problem}", rig.name,
+                         "check the rig file; nothing was locked")
+    return lock
 
 
 def lock_cue(sheet: Sheet, rig: Rig, cue: Cue) -> tuple[Cue, str | None]:
@@ -114,10 +139,57 @@ class CueCheck:
                 "limited_by": self.limited_by}
 
 
+def lock_problem(lock: Lock) -> str | None:
+    """Why a lock's numbers cannot be trusted, or ``None`` when they are finite and consistent.
+
+    The static pressure, temperature-free reserve and the limits go through the same
+    checks as today's conditions (:mod:`showkit.conditions`); the ceiling must be the
+    lower of its two limits, as :func:`showkit.physics.ceiling.combine` gives it.
+    """
+    from showkit.conditions import check_reserve, check_static_pa
+    from showkit.errors import InputError
+
+    def bad(value, inf_ok=False):
+        return (not isinstance(value, (int, float)) or isinstance(value, bool) or math.isnan(value)
+                or (math.isinf(value) and not (inf_ok and value > 0)))
+
+    try:
+        check_static_pa(lock.static_pa, "lock static_pa")
+        check_reserve(lock.reserve, "lock reserve")
+    except (InputError, TypeError) as exc:
+        what = exc.what if isinstance(exc, InputError) else str(exc)
+        return f"the lock's conditions are damaged ({what})"
+    for name, inf_ok in (("ceiling_db", False), ("pressure_db", True), ("full_scale_db", True),
+                         ("worst_time_s", False)):
+        if bad(getattr(lock, name), inf_ok):
+            return f"the lock's {name} is not a finite number ({getattr(lock, name)!r})"
+    for name in ("frequency_hz", "to_frequency_hz"):
+        value = getattr(lock, name)
+        if value is not None and (bad(value) or value <= 0):
+            return f"the lock's {name} is not a positive finite number ({value!r})"
+    try:
+        expected = rule.combine(lock.pressure_db, lock.full_scale_db)
+    except ValueError as exc:
+        return f"the lock's limits are damaged ({exc})"
+    if abs(expected.ceiling_db - lock.ceiling_db) > 1e-6 or expected.limited_by != lock.limited_by:
+        return (f"the lock's ceiling {lock.ceiling_db!r} dB ({lock.limited_by}) is not the lower of its "
+                f"limits ({expected.ceiling_db!r} dB, {expected.limited_by})")
+    if not all(isinstance(h, str) and h for h in (lock.source_hash, lock.rig_hash, lock.calibration_hash)):
+        return "the lock's hashes are missing"
+    return None
+
+
 def stale_reason(rig: Rig, lock: Lock | None, signal: CueSignal | None) -> str | None:
-    """Why a lock is not valid for this sound and rig, or ``None`` if it is."""
+    """Why a lock is not valid for this sound and rig, or ``None`` if it is.
+
+    A lock whose numbers are not finite and consistent (:func:`lock_problem`) is
+    stale too: it is never re-derived into a ceiling.
+    """
     if lock is None:
         return "not locked yet"
+    problem = lock_problem(lock)
+    if problem:
+        return problem
     if lock.analysis_version != ANALYSIS_VERSION:
         return f"locked with analysis version {lock.analysis_version}, this is {ANALYSIS_VERSION}"
     if lock.rig_hash != rig.acoustic_hash():
@@ -137,9 +209,13 @@ def today_ceiling(lock: Lock, static_pa: float, reserve: float) -> rule.Ceiling:
 
 def check_cue(sheet: Sheet, rig: Rig, cue: Cue, static_pa: float | None = None,
               reserve: float | None = None, signal: CueSignal | None = None) -> CueCheck:
-    """The cue's status, ceiling and headroom for today's conditions."""
-    static = rig.static_pa if static_pa is None else static_pa
-    res = rig.reserve if reserve is None else reserve
+    """The cue's status, ceiling and headroom for today's conditions.
+
+    ``static_pa`` and ``reserve`` (None: the rig's) go through
+    :func:`showkit.conditions.make_conditions` via :meth:`Rig.with_conditions`.
+    """
+    rig = rig.with_conditions(static_pa=static_pa, reserve=reserve)
+    static, res = rig.static_pa, rig.reserve
     try:
         signal = signal or cue_signal(sheet, rig, cue)
     except ShowkitError as exc:
@@ -148,8 +224,13 @@ def check_cue(sheet: Sheet, rig: Rig, cue: Cue, static_pa: float | None = None,
     if reason:
         return CueCheck(cue.id, cue.gain_db, None, None, "stale",
                         f"{reason}: run `showkit lock {sheet.path or 'SHEET'}` to re-lock")
-    c = today_ceiling(cue.lock, static, res)
+    try:
+        c = today_ceiling(cue.lock, static, res)
+    except ValueError as exc:  # pragma: no cover - lock_problem refuses these first
+        return CueCheck(cue.id, cue.gain_db, None, None, "stale", f"the lock is damaged ({exc})")
     headroom = c.ceiling_db - cue.gain_db
+    if not math.isfinite(headroom):  # pragma: no cover - a finite lock gives a finite ceiling
+        return CueCheck(cue.id, cue.gain_db, None, None, "stale", "the lock gives no finite ceiling")
     if headroom < -1e-9:
         return CueCheck(cue.id, cue.gain_db, c.ceiling_db, headroom, "over",
                         f"gain is {-headroom:.2f} dB above today's ceiling: bring it down to "
@@ -161,5 +242,5 @@ def check_cue(sheet: Sheet, rig: Rig, cue: Cue, static_pa: float | None = None,
 def check_sheet(sheet: Sheet, rig: Rig | None = None, static_pa: float | None = None,
                 reserve: float | None = None) -> list[CueCheck]:
     """:func:`check_cue` for every cue in show order."""
-    rig = rig or sheet_rig(sheet)
-    return [check_cue(sheet, rig, c, static_pa, reserve) for c in sheet.cues]
+    rig = (rig or sheet_rig(sheet)).with_conditions(static_pa=static_pa, reserve=reserve)
+    return [check_cue(sheet, rig, c) for c in sheet.cues]

@@ -16,7 +16,9 @@ or below the source's, so a resampled cue is never louder than the verified one.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field, replace
+from typing import Callable
 
 import numpy as np
 
@@ -73,6 +75,11 @@ class RenderedCue:
     ceiling_db: float | None = None
     status: str = "ok"
     message: str = ""
+    #: ``verify_at(samples, rate_hz) -> dB``: how much more gain these exact samples may
+    #: take on the rig today (the pressure model's ceiling of them; <= 0 means too loud).
+    #: Set by the renderer; :func:`resample_cue` calls it on the resampled samples, so a
+    #: cue is verified at the rate that is played.
+    verify_at: Callable | None = field(default=None, repr=False, compare=False)
 
     def __post_init__(self):
         where = f"cue {self.id!r}"
@@ -145,8 +152,6 @@ def resample_cue(cue: RenderedCue, rate_hz: int) -> RenderedCue:
         The same cue with ``samples`` resampled (soxr, "HQ") and ``rate_hz`` set;
         the cue itself when the rate already matches.
     """
-    import soxr
-
     rate_hz = int(rate_hz)
     if rate_hz == cue.rate_hz:
         return cue
@@ -155,8 +160,58 @@ def resample_cue(cue: RenderedCue, rate_hz: int) -> RenderedCue:
                          "choose a device with a positive sample rate")
     if cue.frames == 0:
         return replace(cue, samples=np.zeros(0, np.float32), rate_hz=rate_hz)
-    out = soxr.resample(cue.samples, cue.rate_hz, rate_hz, quality="HQ").astype(np.float32)
-    source_peak = float(np.max(np.abs(cue.samples)))
+    out = resample_samples(cue.samples, cue.rate_hz, rate_hz)
+    if cue.verify_at is None or not cue.playable:
+        return replace(cue, samples=out, rate_hz=rate_hz)
+    return _verified_at_rate(cue, out, rate_hz)
+
+
+def _verified_at_rate(cue: RenderedCue, out: np.ndarray, rate_hz: int) -> RenderedCue:
+    """The resampled cue checked against the pressure model at the rate it is played.
+
+    Resampling can move the pressure a little (the tube sees the band-limited
+    waveform between the old samples).  Where the resampled samples would pass
+    the ceiling, they are brought down to it (never up) and the cue says so; a
+    cue that cannot be verified cannot be started.
+    """
+    from showkit.errors import ShowkitError
+
+    try:
+        room_db = float(cue.verify_at(out, rate_hz))
+        if not math.isfinite(room_db):
+            raise InputError(f"the pressure model gave no finite ceiling at {rate_hz} Hz", f"cue {cue.id!r}",
+                             "check the rig")
+        if room_db >= 0.0:
+            return replace(cue, samples=out, rate_hz=rate_hz)
+        step = math.floor(room_db / 0.01 + 1e-9) * 0.01  # rounded down to 0.01 dB, as gains are
+        lowered = (out.astype(np.float64) * 10.0 ** (step / 20.0)).astype(np.float32)
+        again = float(cue.verify_at(lowered, rate_hz))
+        if not (math.isfinite(again) and again >= -1e-6):
+            raise InputError(f"the cue resampled to {rate_hz} Hz cannot be brought under its ceiling",
+                             f"cue {cue.id!r}", "render the cue at the device's rate")
+        note = (f"resampled to {rate_hz} Hz, where its pressure is {-room_db:.2f} dB higher: "
+                f"played {-step:.2f} dB lower, at {cue.gain_db + step:+.2f} dB")
+        return replace(cue, samples=lowered, rate_hz=rate_hz, gain_db=cue.gain_db + step,
+                       ceiling_db=None if cue.ceiling_db is None else cue.ceiling_db + step,
+                       message=(cue.message + "; " if cue.message else "") + note)
+    except ShowkitError as exc:
+        return replace(cue, samples=np.zeros(0, np.float32), rate_hz=rate_hz, status="error",
+                       message=f"not verified at {rate_hz} Hz: {exc.line()}")
+
+
+def resample_samples(samples: np.ndarray, from_hz: int, to_hz: int) -> np.ndarray:
+    """Mono samples at another rate (soxr "HQ"), float32, never above the source's sample peak.
+
+    The one resampler for everything that is played or written at another rate
+    (the live engine, a whole-show render, the lock's check at the show rate).
+    """
+    import soxr
+
+    x = np.asarray(samples, dtype=np.float32)
+    if int(from_hz) == int(to_hz) or x.size == 0:
+        return x.copy()
+    out = soxr.resample(x, int(from_hz), int(to_hz), quality="HQ").astype(np.float32)
+    source_peak = float(np.max(np.abs(x)))
     peak = float(np.max(np.abs(out))) if out.size else 0.0
     if peak > source_peak:
         # Scale in float64, then round down to float32 so the peak cannot round up.
@@ -164,7 +219,7 @@ def resample_cue(cue: RenderedCue, rate_hz: int) -> RenderedCue:
         out = scaled.astype(np.float32)
         over = np.abs(out) > source_peak
         out[over] = np.nextafter(out[over], np.float32(0.0))
-    return replace(cue, samples=out, rate_hz=rate_hz)
+    return out
 
 
 def resample_cues(cues: list[RenderedCue], rate_hz: int) -> list[RenderedCue]:

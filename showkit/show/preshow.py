@@ -4,9 +4,69 @@ Today's manometer reading and gas temperature re-derive every ceiling
 (:func:`showkit.show.render.render_for_playback`); each reading and each
 cue's verdict goes to the show log (:mod:`showkit.show.showlog`) as a
 ``check`` event.  Nothing here prints: the caller shows the result.
+
+:func:`cue_for_today` is the one rule for how today's conditions meet a lock,
+used by the pre-show check (:func:`showkit.show.render.render_for_playback`)
+and by every view of the terminal UI.
 """
 
 from __future__ import annotations
+
+#: A gas temperature within this of the rig file's is the rig file's, K (the
+#: dialogs and the screen show temperatures to 0.1 C).
+SAME_TEMPERATURE_K = 0.05
+
+
+def cue_for_today(sheet, file_rig, today_rig, cue, signal=None):
+    """The cue as it plays today, and its check.
+
+    Whether a lock is valid (not stale) is judged against the rig file, with its
+    own gas temperature: a lock made for the rig file stays valid whatever the
+    gas temperature is today, so a temperature typed in never makes a passage or
+    a pause stale, and nothing is stale after a restart because of it.  Today's
+    static pressure and reserve re-derive a valid lock's ceiling exactly
+    (:func:`showkit.show.lock.today_ceiling`).  When today's gas temperature
+    differs from the rig file's (by more than :data:`SAME_TEMPERATURE_K`), the
+    modes move: a valid cue is locked again, in memory, for today's gas (tone and
+    glide cues on modes follow the modes, as `showkit run --temperature` plays
+    them), its gain unchanged, and checked against that ceiling.  Nothing is
+    written to the sheet.
+
+    Parameters
+    ----------
+    sheet : Sheet
+    file_rig : Rig
+        The rig as its file gives it.
+    today_rig : Rig
+        The same rig with today's conditions (``file_rig.with_conditions(...)``).
+    cue : Cue
+    signal : CueSignal, optional
+        The cue's source signal on the rig file's gas, when already made.
+
+    Returns
+    -------
+    cue : Cue
+        The cue to render today (with today's lock when the temperature moved).
+    check : CueCheck
+        ``ok``, ``over``, ``stale`` or ``error``, with today's ceiling.
+    """
+    from dataclasses import replace
+
+    from showkit.errors import ShowkitError
+    from showkit.show.lock import CueCheck, check_cue, lock_cue
+
+    same_gas = abs(today_rig.temperature_k - file_rig.temperature_k) <= SAME_TEMPERATURE_K
+    file_today = file_rig.with_conditions(static_pa=today_rig.static_pa, reserve=today_rig.reserve)
+    state = check_cue(sheet, file_today, cue, signal=signal)
+    if same_gas or state.status in ("stale", "error"):
+        return cue, state
+    try:
+        relocked, _ = lock_cue(sheet, today_rig, cue)
+    except ShowkitError as exc:
+        return cue, CueCheck(cue.id, cue.gain_db, None, None, "error", exc.line())
+    relocked = replace(relocked, gain_db=cue.gain_db)  # a gain that no longer fits is not clamped silently
+    return relocked, check_cue(sheet, today_rig, relocked)
+
 
 
 def pre_show_check(sheet_path, log, static_pa: float | None = None,

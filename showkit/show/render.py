@@ -10,7 +10,7 @@ or below full scale, or the cue is refused.  Nothing is assumed.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, replace
+from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
@@ -110,19 +110,52 @@ def render_sheet(sheet: Sheet, rig: Rig | None = None, progress=None) -> list[Ve
 
 
 def _resampled(cue: VerifiedCue, rate_hz: int) -> np.ndarray:
+    """The playback resampler (:func:`showkit.show.playlist.resample_samples`): the same
+    samples the live engine plays at that rate, and that the lock checked at the show rate."""
+    from showkit.show.playlist import resample_samples
+
     if cue.rate_hz == rate_hz:
         return cue.samples
-    import soxr
+    return resample_samples(cue.samples, cue.rate_hz, rate_hz)
 
-    y = soxr.resample(cue.samples.astype(np.float64), cue.rate_hz, rate_hz, quality="VHQ")
-    # resampling can raise inter-sample peaks; never let it pass full scale
-    return np.clip(y, -1.0, 1.0).astype(np.float32)
+
+def played_rate_check(rig: Rig):
+    """``check(samples, rate_hz) -> dB``: the ceiling of exactly these samples on ``rig``.
+
+    Handed to each rendered cue (:attr:`RenderedCue.verify_at`) so that a cue
+    resampled for the device is verified at the rate that is played.
+    """
+    from showkit.analysis.pressure import signal_report
+
+    def check(samples: np.ndarray, rate_hz: int) -> float:
+        x = np.asarray(samples, dtype=float)
+        if not x.any():
+            return math.inf
+        return signal_report(rig, x, int(rate_hz), flames=False).ceiling_db
+
+    return check
+
+
+def check_samples(samples: np.ndarray, where: str) -> None:
+    """Every sample finite and within full scale (1.0), or a SheetError naming ``where``."""
+    x = np.asarray(samples)
+    if x.size and not np.all(np.isfinite(x)):
+        raise SheetError("the samples hold NaN or infinite values", where, "nothing was written; report this")
+    peak = float(np.max(np.abs(x))) if x.size else 0.0
+    if peak > 1.0 + VERIFY_TOLERANCE:
+        raise SheetError(f"the samples peak at {20 * math.log10(peak):+.2f} dBFS, above full scale", where,
+                         "nothing was written; lower the level")
 
 
 def write_wav(path: Path, samples: np.ndarray, rate_hz: int, subtype: str = "FLOAT") -> None:
-    """Write mono samples as WAV (``FLOAT`` 32-bit or ``PCM_24``), via a temporary file."""
+    """Write mono samples as WAV (``FLOAT`` 32-bit or ``PCM_24``), via a temporary file.
+
+    Refuses (SheetError) samples that are not finite or that pass full scale:
+    nothing unchecked is ever written.
+    """
     import soundfile as sf
 
+    check_samples(samples, str(path))
     from showkit.safesave import replacing
 
     path = Path(path)
@@ -167,9 +200,10 @@ def render_for_playback(sheet_path, static_pa: float | None = None,
     """The pre-show check and render for the live engine.
 
     Today's static pressure re-derives every ceiling by exact scaling.  Today's
-    gas temperature moves the modes: every cue is then locked again in memory
-    for the warmer or cooler gas (tone and glide cues on modes follow the modes;
-    the file is not changed) and checked against its gain.
+    gas temperature moves the modes: every valid cue is then locked again in
+    memory for the warmer or cooler gas (tone and glide cues on modes follow the
+    modes; the file is not changed) and checked against its gain; a stale cue
+    stays stale (:func:`showkit.show.preshow.cue_for_today`).
 
     Returns
     -------
@@ -180,8 +214,8 @@ def render_for_playback(sheet_path, static_pa: float | None = None,
         the pre-show check used.
     """
     from showkit.errors import ShowkitError
-    from showkit.show.lock import lock_cue
     from showkit.show.playlist import RenderedCue
+    from showkit.show.preshow import cue_for_today
     from showkit.show.sheet import load_sheet
 
     sheet = load_sheet(sheet_path)
@@ -189,17 +223,12 @@ def render_for_playback(sheet_path, static_pa: float | None = None,
     today = rig.with_conditions(static_pa=static_pa, temperature_k=temperature_k)
     problems = [f"pre-show check: static {today.static_pa:g} Pa, gas {today.temperature_k - 273.15:.1f} C, "
                 f"reserve {today.reserve:g}"]
-    relock = temperature_k is not None and abs(temperature_k - rig.temperature_k) > 1e-9
     out = []
     for cue in sheet.cues:
         try:
-            if relock:
-                original = cue.gain_db
-                cue, _ = lock_cue(sheet, today, cue)
-                if cue.gain_db < original:
-                    # the gain no longer fits at this temperature: do not clamp silently
-                    cue = replace(cue, gain_db=original)
-            state = check_cue(sheet, today, cue)
+            # the one rule for today's conditions and a lock (also the UI's): stale is judged
+            # against the rig file; a gas temperature of today re-locks valid cues in memory
+            cue, state = cue_for_today(sheet, rig, today, cue)
             if state.status != "ok":
                 problems.append(f"cue {cue.id}: {state.status}: {state.message}")
                 out.append(RenderedCue(cue.id, cue.label, np.zeros(0, np.float32), 48000, cue.then,
@@ -207,7 +236,7 @@ def render_for_playback(sheet_path, static_pa: float | None = None,
                 continue
             v = render_cue(sheet, today, cue)
             out.append(RenderedCue(v.id, v.label, v.samples, v.rate_hz, v.then, v.gain_db,
-                                   v.ceiling_db, "ok", ""))
+                                   v.ceiling_db, "ok", "", verify_at=played_rate_check(today)))
         except ShowkitError as exc:
             problems.append(f"cue {cue.id}: error: {exc.line()}")
             out.append(RenderedCue(cue.id, cue.label, np.zeros(0, np.float32), 48000, cue.then,

@@ -1,6 +1,6 @@
 """The cue sheet: a presenter's show file (TOML), read, checked and saved safely.
 
-A sheet has ``title``, ``rig`` (path relative to the sheet, or ``"demo"``),
+A sheet has ``title``, ``rig`` (path relative to the sheet, or ``"demo"``; required),
 ``format`` (an integer version) and ``[[cue]]`` tables in show order.  Each cue
 has an ``id``, a ``label``, exactly one source (``audio`` with ``start`` and
 ``end``; ``tone``; ``glide``; ``pause``), a ``gain`` in dB, ``fade_in``,
@@ -249,7 +249,12 @@ def _sheet_from_data(data: dict, where: str) -> Sheet:
     if fmt < 1:
         raise SheetError(f"unknown format {fmt}", f"{where}: format", f"write format = {FORMAT_VERSION}")
     title = data.get("title", "Untitled show")
-    rig = data.get("rig", DEMO_RIG)
+    if "rig" not in data:
+        # never a silent default: the rig sets every level
+        raise SheetError("the sheet names no rig", f"{where}: rig",
+                         'add rig = "demo" for the bundled demo rig, or rig = "my_tube.toml" '
+                         "(a path relative to the sheet)")
+    rig = data["rig"]
     notes = data.get("notes", "")
     for key, value in (("title", title), ("rig", rig), ("notes", notes)):
         if not isinstance(value, str):
@@ -397,7 +402,7 @@ def _lock_from_data(raw, at: str) -> Lock | None:
                     locked_at=str(raw.get("locked_at", "")), worst_hole=int(raw.get("worst_hole", -1)),
                     worst_time_s=num("worst_time_s", 0.0), frequency_hz=num("frequency_hz"),
                     to_frequency_hz=num("to_frequency_hz"))
-    except (KeyError, TypeError, ValueError) as exc:
+    except (KeyError, TypeError, ValueError, OverflowError) as exc:
         raise SheetError(f"the lock table is incomplete or damaged ({exc})", at,
                          "run showkit lock on the sheet again") from None
 

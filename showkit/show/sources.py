@@ -72,6 +72,9 @@ def fade(samples: np.ndarray, rate_hz: int, fade_in_s: float, fade_out_s: float,
          where: str = "cue") -> np.ndarray:
     """Apply raised-cosine fade-in and fade-out ramps (returns a new array)."""
     n = samples.size
+    if not (fade_in_s + fade_out_s <= (n + 1) / rate_hz):  # in seconds first: a huge fade is no int
+        raise SheetError(f"fades ({fade_in_s:g} s + {fade_out_s:g} s) are longer than the cue "
+                         f"({n / rate_hz:.2f} s)", where, "shorten the fades or lengthen the cue")
     a, b = int(round(fade_in_s * rate_hz)), int(round(fade_out_s * rate_hz))
     if a + b > n:
         raise SheetError(f"fades ({fade_in_s:g} s + {fade_out_s:g} s) are longer than the cue "

@@ -6,8 +6,11 @@ is in :mod:`showkit.ui.session`; slow work (modes, checks, locks, track
 analysis, rendering for the audition) runs in worker threads with a progress
 bar in the status line, so keys are answered at once.
 
-Panic (ctrl+x) is an App-level priority binding: it works in every view and
-every dialog, and calls the live engine's ``panic()`` before anything else.
+Panic is the operator key map's (:mod:`showkit.show.operator_keys`): Ctrl+C is
+an App-level priority binding, so it works in every view and every dialog; Esc
+panics in every view (in a dialog Esc closes the dialog).  Both call the live
+engine's ``panic()`` before anything else, and the panic is written to the show
+log.  No key that panics does anything else anywhere in the UI.
 """
 
 from __future__ import annotations
@@ -53,7 +56,8 @@ class ShowkitApp(App):
     ENABLE_COMMAND_PALETTE = False
 
     BINDINGS = [
-        Binding("ctrl+x", "panic", "PANIC", priority=True, show=False),  # always in the top bar
+        Binding("ctrl+c", "panic", "PANIC", priority=True, show=False),  # always in the top bar
+        Binding("escape", "panic", "PANIC", key_display="esc"),
         Binding("ctrl+q", "quit_safely", "quit", priority=True),
         Binding("1", "view('show')", "show"),
         Binding("2", "view('tube')", "tube"),
@@ -63,7 +67,6 @@ class ShowkitApp(App):
         Binding("m", "manometer", "manometer"),
         Binding("a", "audition", "audition"),
         Binding("D", "device", "audio device", show=False),
-        Binding("escape", "stop", "stop sound", show=False),
         Binding("ctrl+z", "undo", "undo"),
         Binding("ctrl+s", "save", "save", show=False),
         Binding("question_mark", "help", "keys"),
@@ -304,19 +307,27 @@ class ShowkitApp(App):
         self.say(f"added cue {cue.id} at {cue.gain_db:+.1f} dB (saved); locking its ceiling…")
         self.start_lock([cue.id])
 
-    def change_conditions(self, static=None, temperature=None) -> None:
+    def change_conditions(self, static=None, temperature=None, *, recheck_run: bool = True) -> bool:
+        """Today's conditions changed (the manometer key, the gas temperature, the pre-show check).
+
+        One door (:meth:`Session.set_conditions`), then every view follows at once: the
+        top line and the Tube view's facts, the modes (a new temperature), every cue's
+        ceiling and check (Show view), the Track view, and the Run view, which
+        withdraws at once the cues whose fit is no longer known and runs its pre-show
+        check again (``recheck_run``; its own check runs it itself).  Returns False
+        when the value was refused (the status line says why; nothing changed).
+        """
         try:
-            if static is not None:
-                self.session.set_static(static)
-            if temperature is not None:
-                self.session.set_temperature(temperature)
+            static_changed, temperature_changed = self.session.set_conditions(static, temperature)
         except ShowkitError as exc:
             self.say(exc.line(), warn=True)
-            return
+            return False
+        if not (static_changed or temperature_changed):
+            return True
         self.update_topbar()
         self.query_one(TubeView).refresh_facts()
         self._flames_cache.clear()
-        if temperature is not None:
+        if temperature_changed:
             self.start_modes()
         else:
             mode = self.query_one(TubeView).selected_mode()
@@ -324,12 +335,14 @@ class ShowkitApp(App):
                 self.start_mode_flames(mode)
         self.start_checks()
         self.query_one(TrackView).conditions_changed()
+        self.query_one(RunView).conditions_changed(static_changed, temperature_changed, recheck=recheck_run)
+        return True
 
     def update_topbar(self) -> None:
         """Sheet title, today's conditions and the rig name, with the panic key always at the right.
 
         On a narrow terminal the words are shortened first, then the title, so the
-        rig name and ``ctrl+x PANIC`` stay on screen.
+        rig name and the panic key stay on screen.
         """
         s = self.session
         bar = self.query_one("#topbar", Static)
@@ -375,10 +388,9 @@ class ShowkitApp(App):
         rig = self.session.rig
 
         def done(values):
-            if values:
-                self.change_conditions(static=values["static"])
+            if values and self.change_conditions(static=values["static"]):
                 self.say(f"today's static pressure {self.session.rig.static_pa:.2f} Pa: "
-                         "ceilings re-derived")
+                         "every ceiling re-derived, in every view")
 
         self.push_screen(AskScreen("Today's manometer reading (static overpressure)",
                                    [("static", 'reading (e.g. "18 Pa", "0.08 inH2O", "0.2 mbar")',
@@ -406,7 +418,8 @@ class ShowkitApp(App):
         self.push_screen(HelpScreen([("Everywhere", self.BINDINGS), ("Show view (1)", ShowView.BINDINGS),
                                      ("Tube view (2)", TubeView.BINDINGS),
                                      ("Track view (3)", TrackView.BINDINGS),
-                                     ("Run view (4)", RunView.BINDINGS),
+                                     ("Run view (4): the operator's keys, the same in `showkit run`",
+                                      _operator_help()),
                                      ("Measure view (5)", MeasureView.BINDINGS),
                                      ("Lists", [("up,down", "", "move the selection")])]))
 
@@ -458,7 +471,7 @@ class ShowkitApp(App):
         except ShowkitError as exc:
             self.say(f"no audition: {exc.line()}", warn=True)
             return
-        self.say(f"playing {rendered.id} at {rendered.gain_db:+.1f} dB -- escape stops")
+        self.say(f"playing {rendered.id} at {rendered.gain_db:+.1f} dB -- esc stops it (panic)")
         if self._audition_timer is None:
             self._audition_timer = self.set_interval(0.1, self._poll_audition, name="audition")
 
@@ -471,11 +484,6 @@ class ShowkitApp(App):
             text = exc.line()
         if text:
             self.say(text)
-
-    def action_stop(self) -> None:
-        if self.audition is not None and self.audition.playing:
-            self.audition.stop()
-            self.say("audition stopped")
 
     # ------------------------------------------------------------ live sound: panic, device, log
     def action_panic(self) -> None:
@@ -490,11 +498,17 @@ class ShowkitApp(App):
             self.audition.stop()  # panic() then close()
             heard = True
         if live:
-            self.say("PANIC: output to silence, the show is stopped; press r in the run view (4) to "
-                     "re-arm when it is safe", warn=True)
+            from showkit.show.operator_keys import shown
+
+            self.say(f"PANIC: output to silence, the show is stopped; press {shown('rearm')} in the run "
+                     "view (4) to re-arm when it is safe", warn=True)
             run.refresh_now()
         elif heard:
             self.say("PANIC: the audition was silenced", warn=True)
+            try:  # the show log records every panic that silenced something
+                self.show_log().write("panic", None, None, "panic key in the UI: the audition was silenced")
+            except ShowkitError as exc:
+                self.say(f"PANIC: the audition was silenced; not logged: {exc.line()}", warn=True)
         else:
             self.say("PANIC: nothing was playing")
 
@@ -547,7 +561,8 @@ class ShowkitApp(App):
         self.exit(return_code=0, message=message)
 
 
-PANIC_HINT = "ctrl+x PANIC"
+#: The panic keys as the top line shows them (Esc in every view, Ctrl+C also in dialogs).
+PANIC_HINT = "esc/ctrl+c PANIC"
 
 
 def _topbar_text(title: str, variants: list[list[str]], width: int) -> Text:
@@ -570,6 +585,15 @@ def _with_panic(left: str, width: int) -> Text:
     out.append(" " * max(2, width - len(left) - len(PANIC_HINT)))
     out.append(PANIC_HINT, style="bold reverse")
     return out
+
+
+def _operator_help() -> list[tuple[str, str, str]]:
+    """The Run view's keys for the help: the one operator key table, then the view's own."""
+    from showkit.show.operator_keys import OPERATOR_KEYS
+
+    rows = [(",".join(k.keys), "", k.does) for k in OPERATOR_KEYS]
+    rows += [(b.key, "", b.description) for b in RunView.BINDINGS if not b.action.startswith("operator")]
+    return rows
 
 
 def _cautions_seen() -> bool:

@@ -44,7 +44,7 @@ class Audition:
             self.stop()
             return f"audition: {text}"
         if st.state == "playing":
-            return f"playing {st.cue_id}: {st.elapsed_s:.1f} s, {st.left_s:.1f} s left -- escape stops"
+            return f"playing {st.cue_id}: {st.elapsed_s:.1f} s, {st.left_s:.1f} s left -- esc stops it (panic)"
         return None
 
     @property

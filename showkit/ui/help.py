@@ -13,8 +13,9 @@ KEY_NAMES = {"ctrl+q": "ctrl+q", "ctrl+z": "ctrl+z", "ctrl+s": "ctrl+s", "questi
              "exclamation_mark": "!", "plus": "+", "minus": "-", "left_square_bracket": "[",
              "right_square_bracket": "]", "left_parenthesis": "(", "right_parenthesis": ")",
              "shift+left": "shift+←", "shift+right": "shift+→", "left": "←", "right": "→",
-             "up": "↑", "down": "↓", "enter": "enter", "escape": "escape", "home": "home", "end": "end",
-             "equals_sign": "=", "less_than_sign": "<", "greater_than_sign": ">"}
+             "up": "↑", "down": "↓", "enter": "enter", "escape": "esc", "home": "home", "end": "end",
+             "equals_sign": "=", "less_than_sign": "<", "greater_than_sign": ">", "delete": "del",
+             "space": "space", "ctrl+c": "ctrl+c"}
 
 
 def key_label(key: str) -> str:

@@ -9,8 +9,19 @@ pressure model's prediction for each rendered cue
 (:func:`showkit.analysis.pressure.signal_report`), computed ahead of time in a
 worker and looked up by the engine's play position: this view holds no physics.
 
-Panic is bound at the App level (ctrl+x, every view and dialog); see
+The operator's keys are those of `showkit run`, read from the one table in
+:mod:`showkit.show.operator_keys` (Enter or space go, Esc or Ctrl+C panic, f
+fade, - and + the fader, a re-arm, d reconnect); the view adds c (pre-show
+check) and s (start the selected cue).  Ctrl+C is also an App-level priority
+binding, so it panics from every view and dialog; see
 :meth:`showkit.ui.app.ShowkitApp.action_panic`.
+
+Today's conditions are the session's one set (:meth:`showkit.ui.session.Session.set_conditions`).
+When they change anywhere (the manometer key, the gas temperature, this view's
+check), :meth:`RunView.conditions_changed` at once withdraws every cue whose fit
+is no longer known (a manometer change re-derives each ceiling exactly and
+withdraws only those that no longer fit; a cue playing above its new ceiling is
+brought down to it by the fader), then runs the pre-show check again.
 """
 
 from __future__ import annotations
@@ -27,6 +38,11 @@ from textual.widgets import DataTable, Static
 
 from showkit.errors import ShowkitError
 from showkit.safety import LEVEL_CAUTION
+from showkit.show.operator_keys import shown
+
+#: The operator's keys as printed in this view's messages (from the one table).
+GO_KEY, PANIC_KEY, REARM_KEY, RECONNECT_KEY, FADE_KEY = (
+    shown("go"), shown("panic"), shown("rearm"), shown("reconnect"), shown("fade"))
 from showkit.ui.drawing import flame_picture
 
 #: How often the view asks the engine what is happening, s.
@@ -45,8 +61,31 @@ def fmt_time(seconds: float) -> str:
     return format_time(seconds)
 
 
-class RunTable(DataTable):
-    """The cues as the pre-show check found them (keeps DataTable's cursor keys)."""
+class RunTable(DataTable, inherit_bindings=False):
+    """The cues as the pre-show check found them.
+
+    DataTable's cursor keys, but not its Enter: Enter is the operator's go key,
+    which the Run view binds (from the one operator key table).
+    """
+
+    BINDINGS = [Binding("up", "cursor_up", show=False), Binding("down", "cursor_down", show=False),
+                Binding("pageup", "page_up", show=False), Binding("pagedown", "page_down", show=False),
+                Binding("home", "scroll_home", show=False), Binding("end", "scroll_end", show=False)]
+
+
+def _operator_bindings() -> list[Binding]:
+    """The Run view's bindings of the operator key table (help is the App's ``?``)."""
+    from showkit.show.operator_keys import OPERATOR_KEYS
+
+    out = []
+    for k in OPERATOR_KEYS:
+        if k.action == "help":
+            continue
+        keys = [name for name in k.keys if name != "ctrl+c"]  # ctrl+c: the App's, every view
+        display = {"go": "⏎/space", "panic": "esc"}.get(k.action)
+        out.append(Binding(",".join(keys), f"operator('{k.action}')", k.short, key_display=display,
+                           show=k.action not in ("reconnect",)))
+    return out
 
 
 class RunFlames(Widget):
@@ -61,7 +100,7 @@ class RunFlames(Widget):
         self.row = None
         self.lo = 0.0
         self.hi = 1.0
-        self.caption = "flame row: run the pre-show check (c), then start a cue (g)"
+        self.caption = f"flame row: run the pre-show check (c), then start a cue ({GO_KEY})"
 
     def set_rig(self, positions_m, length_m: float) -> None:
         self.positions_m, self.length_m = list(positions_m), float(length_m)
@@ -81,16 +120,8 @@ class RunFlames(Widget):
 class RunView(Vertical):
     """Pre-show check, the cue playing and the next, fader, flame row, faults, level caution."""
 
-    BINDINGS = [
-        Binding("c", "check", "check"),
-        Binding("g", "go", "go"),
-        Binding("s", "start_selected", "start selected", show=False),
-        Binding("f", "fade", "fade out"),
-        Binding("minus", "fader(-1)", "fader -1"),
-        Binding("plus,equals_sign", "fader(1)", "fader +1"),
-        Binding("r", "rearm", "re-arm"),
-        Binding("o", "reconnect", "reconnect device", show=False),
-    ]
+    BINDINGS = [Binding("c", "check", "check"), *_operator_bindings(),
+                Binding("s", "start_selected", "start selected", show=False)]
 
     def __init__(self, **kw):
         super().__init__(**kw)
@@ -101,6 +132,11 @@ class RunView(Vertical):
         self.readings = ""
         self.message = ""
         self._timer = None
+        self.checking = False             # a pre-show check is running
+        self._checked_static_pa = None    # the static pressure of the last check, Pa
+        self._deferred = None             # a check that came back while a cue played
+        self._running_static_pa = None
+        self._checked_text = None         # the saved sheet the last check read
 
     def compose(self) -> ComposeResult:
         yield Static("", id="run-title")
@@ -129,7 +165,7 @@ class RunView(Vertical):
     # ------------------------------------------------------------ pre-show check
     def action_check(self) -> None:
         if self.engine is not None and self.engine.busy:
-            self.app.say("a cue is playing: fade it out (f) or panic (ctrl+x) before a new check",
+            self.app.say(f"a cue is playing: fade it out ({FADE_KEY}) or panic ({PANIC_KEY}) before a new check",
                          warn=True)
             return
         from showkit.ui.dialogs import AskScreen
@@ -150,32 +186,40 @@ class RunView(Vertical):
             note=f"CAUTION: {LEVEL_CAUTION}"), done)
 
     def start_check(self, static_text: str, temperature_text: str) -> None:
-        """Read today's values, then re-derive every ceiling in a worker."""
+        """Today's readings through the session's one door (every view follows), then the check."""
         app, s = self.app, self.session
-        before = (s.static_pa, s.temperature_k)
         try:
-            base = s.base_rig()
-            static_pa = s.set_static(static_text)
-            temperature_k = s.set_temperature(temperature_text)
-            s.save()
-            log = app.show_log()
+            s.base_rig()
+            app.show_log()
         except ShowkitError as exc:
-            s.static_pa, s.temperature_k = before
             app.say(exc.line(), warn=True)
             return
-        # a reading equal to the rig file's (as the dialog shows it) is the rig file's
-        file_static = abs(static_pa - base.static_pa) < 1e-9
-        file_temp = abs(temperature_k - base.temperature_k) < 0.05
-        s.static_pa = None if file_static else static_pa
-        s.temperature_k = None if file_temp else temperature_k
-        if (s.static_pa, s.temperature_k) != before:  # today's conditions for every view
-            app.change_conditions()
-            if s.temperature_k != before[1]:
-                app.start_modes()
+        if not app.change_conditions(static_text, temperature_text, recheck_run=False):
+            return
+        try:
+            s.save()
+        except ShowkitError as exc:
+            app.say(exc.line(), warn=True)
+            return
         self._close_engine()
-        self.readings = f"static {static_pa:.2f} Pa, gas {temperature_k - 273.15:.1f} °C"
+        self.run_check()
+
+    def run_check(self) -> None:
+        """The pre-show check for the session's conditions, in a worker (also after a change elsewhere)."""
+        app, s = self.app, self.session
+        c = s.conditions
+        self.readings = f"static {c.static_pa:.2f} Pa, gas {c.temperature_k - 273.15:.1f} °C"
         path = s.sheet.path
         check_static, check_temp = s.static_pa, s.temperature_k
+        self._running_static_pa = c.static_pa
+        self._checked_text = s.saved_text  # the sheet as saved: what the check reads
+        self._deferred = None              # a result waiting for the cue to stop is out of date now
+        try:
+            log = app.show_log()
+        except ShowkitError as exc:  # what was withdrawn stays withdrawn
+            app.say(f"the pre-show check cannot run: {exc.line()}", warn=True)
+            return
+        self.checking = True
 
         def work(progress):
             from showkit.show.preshow import pre_show_check
@@ -184,11 +228,154 @@ class RunView(Vertical):
 
         app.run_job("preshow", work, self.check_done, "pre-show check: re-deriving every ceiling")
 
+    def sheet_changed(self) -> None:
+        """The sheet was edited after the check (any view): follow it at once, then check again.
+
+        A cue gone from the sheet, or whose gain came down, is withdrawn at once;
+        a cue playing whose gain came down is brought down to it by the fader.
+        """
+        engine = self.engine
+        gains = {c.id: c.gain_db for c in self.session.sheet.cues}
+        held = []
+        what, fix = "the cue changed in the sheet since the check", "wait for the pre-show check"
+        if engine is not None:
+            for k, cue in enumerate(self.cues):
+                lower = cue.id not in gains or gains[cue.id] < cue.gain_db - 1e-9
+                if lower and engine.startable(k):
+                    engine.withdraw(k, what, fix)
+                    held.append(cue.id)
+            st = engine.status()
+            if st.cue_index is not None:
+                playing = engine.cues[st.cue_index]
+                if playing.id not in gains:
+                    engine.fade_out()
+                elif gains[playing.id] < playing.gain_db - 1e-9:
+                    engine.cap_fader_db(gains[playing.id] - playing.gain_db,
+                                        "its gain came down in the sheet")
+        self._mark_held(held, "the show changed")
+        self.run_check()
+
+    def rig_changed(self) -> None:
+        """The rig file changed (the Measure view wrote a fit into it): every cue is checked again.
+
+        The rendered cues were verified on the old rig, so all are held back at once
+        and a cue playing is faded out, as for a new gas temperature.
+        """
+        self.conditions_changed(False, True, why="the rig file changed")
+
+    def conditions_changed(self, static_changed: bool, temperature_changed: bool, recheck: bool = True,
+                           why: str | None = None) -> None:
+        """Today's conditions changed elsewhere: hold back at once what may no longer fit, then check again.
+
+        A manometer change moves each pressure-limited ceiling by exactly
+        20 log10(new/old) dB and leaves the full-scale limit where it is, so a lower
+        reading lowers every ceiling by at most that much: a cue whose gain is
+        within the lowered bound still fits and stays playable; every other cue is
+        withdrawn until the check is back, and a cue playing above the bound is
+        brought down to it by the fader (held there).  A new gas temperature moves
+        the modes, so every cue is withdrawn and a cue playing is faded out.
+        """
+        if not self.cues:
+            return  # no pre-show check yet: it will use today's conditions
+        c = self.session.conditions
+        before = self._checked_static_pa
+        engine = self.engine
+        drop_db = 0.0
+        if static_changed and before:
+            drop_db = min(0.0, 20.0 * math.log10(c.static_pa / before))
+        reason = why or "today's conditions changed"
+        what = f"{reason}: the cue is being checked again"
+        fix = "wait for the pre-show check (a few seconds)"
+        held = []
+
+        def fits(cue) -> bool:
+            return (not temperature_changed and cue.ceiling_db is not None
+                    and cue.gain_db <= cue.ceiling_db + drop_db + 1e-9)
+
+        if engine is not None:
+            for k, cue in enumerate(self.cues):
+                if engine.startable(k) and not fits(cue):
+                    engine.withdraw(k, what, fix)
+                    held.append(cue.id)
+            st = engine.status()
+            playing = self.cues[st.cue_index] if st.cue_index is not None else None
+            if playing is not None and playing.id == engine.cues[st.cue_index].id and not fits(playing):
+                if temperature_changed or playing.ceiling_db is None:
+                    try:
+                        engine.fade_out()
+                    except ShowkitError:
+                        pass
+                    self.app.say(f"{playing.id}: {why or 'the gas temperature changed'} while it played: "
+                                 "fading out until the check says it fits", warn=True)
+                else:
+                    room = playing.ceiling_db + drop_db - playing.gain_db
+                    fader = engine.cap_fader_db(room, f"static {c.static_pa:g} Pa lowered the ceiling")
+                    self.app.say(f"{playing.id}: today's ceiling came down while it played: fader held at "
+                                 f"{fader:+.1f} dB", warn=True)
+        self._mark_held(held, reason)
+        if recheck:
+            self.run_check()
+
+    def _mark_held(self, held: list[str], reason: str = "today's conditions changed") -> None:
+        """Show at once which cues are held back until the check is back."""
+        title = (f"[b]Run the show[/b]  {escape(reason)}: checking again; "
+                 + (f"[b]{len(held)} cue(s) held back[/b] until then: " + escape(", ".join(held))
+                    if held else "every cue still fits"))
+        self.query_one("#run-title", Static).update(title)
+        table = self.query_one(RunTable)
+        for cid in held:
+            try:
+                table.update_cell(cid, "state", Text("HELD", style="bold reverse"))
+                table.update_cell(cid, "why", f"{reason}: being checked again")
+            except Exception:  # noqa: BLE001 - a row gone from the table: nothing to mark
+                pass
+        if held:
+            self.app.say(f"{reason}: {len(held)} cue(s) held back until the "
+                         f"pre-show check is back: {', '.join(held)}", warn=True)
+
     def check_done(self, result) -> None:
         cues, problems = result
+        self.checking = False
+        self._checked_static_pa = self._running_static_pa
+        engine = self.engine
+        if engine is not None and engine.busy:
+            # a cue plays: the new cues are handed over when it stops; meanwhile every
+            # cue that does not fit now is withdrawn as well
+            self._deferred = (cues, problems)
+            for k, c in enumerate(cues):
+                if not c.playable and k < len(engine.cues) and engine.startable(k):
+                    what, fix = c.refusal_parts()
+                    engine.withdraw(k, what, fix)
+            self._show_result(cues)
+            return
+        self._apply_result(cues, problems)
+
+    def _apply_result(self, cues, problems) -> None:
+        self._deferred = None
         self.cues, self.problems = cues, problems
         self.flames = {}
-        self.fill_table()
+        self._show_result(cues)
+        engine = self.engine
+        if engine is not None and any(c.playable for c in cues):
+            try:
+                engine.replace_cues(cues)  # same show, same device: the show position is kept
+            except ShowkitError:
+                self._close_engine()
+                self.open_engine()
+                self.app.say(f"the show's cues changed since the last check: {GO_KEY} starts again at "
+                             "the first cue that fits", warn=True)
+            self.start_flames()
+            self.refresh_now()
+        elif any(c.playable for c in cues):
+            self.open_engine()
+            self.start_flames()
+        else:
+            self._close_engine()
+            self.refresh_now()
+            self.set_message("no cue can be played today: lower the gains or lock the sheet again (show view)")
+
+    def _show_result(self, cues) -> None:
+        self.fill_table(cues)
         bad = [c for c in cues if not c.playable]
         title = f"[b]Run the show[/b]  pre-show check: {escape(self.readings)}: "
         if bad:
@@ -201,17 +388,12 @@ class RunView(Vertical):
             self.app.say(f"pre-show check: {len(bad)} cue(s) no longer fit today: {bad[0].refusal()}",
                          warn=True)
         else:
-            self.app.say(f"pre-show check: all {len(cues)} cues fit today; g starts the first")
-        if any(c.playable for c in cues):
-            self.open_engine()
-            self.start_flames()
-        else:
-            self.set_message("no cue can be played today: lower the gains or lock the sheet again (show view)")
+            self.app.say(f"pre-show check: all {len(cues)} cues fit today; {GO_KEY} starts the first")
 
-    def fill_table(self) -> None:
+    def fill_table(self, cues=None) -> None:
         table = self.query_one(RunTable)
         table.clear()
-        for k, c in enumerate(self.cues, 1):
+        for k, c in enumerate(self.cues if cues is None else cues, 1):
             state = Text(c.status if c.playable else c.status.upper(),
                          style="" if c.playable else "bold reverse")
             why = c.label if c.playable else c.message
@@ -275,7 +457,7 @@ class RunView(Vertical):
         except DeviceError as exc:
             if not engine.fault:  # open() logs stream failures itself
                 engine.log.write("device_error", None, None, exc.line())
-            self.set_message(f"no audio output: {exc.line()}; then press o to connect again", warn=True)
+            self.set_message(f"no audio output: {exc.line()}; then press {RECONNECT_KEY} to connect again", warn=True)
             return False
         dev = engine.device
         self.set_message(f"output: {dev.index} {dev.name} ({dev.hostapi}) at {engine.rate_hz} Hz")
@@ -307,9 +489,18 @@ class RunView(Vertical):
         except ShowkitError as exc:
             self.set_message(exc.line(), warn=True)
             return
+        if self._deferred is not None and not engine.busy and not self.checking:
+            self._apply_result(*self._deferred)  # the cue stopped: hand over the new check
+            engine = self.engine
+            if engine is None:
+                return
+        if not self.checking and self._checked_text is not None \
+                and self.session.saved_text is not self._checked_text \
+                and self.session.saved_text != self._checked_text:
+            self.sheet_changed()
         for ev in events:
             if ev.kind == "device_error":
-                self.set_message(f"{ev.detail}; press o to reconnect", warn=True)
+                self.set_message(f"{ev.detail}; press {RECONNECT_KEY} to reconnect", warn=True)
             elif ev.kind in ("start", "stop") and ev.cue:
                 self.app.say(f"{ev.cue}: {ev.detail}")
         self.refresh_now()
@@ -356,7 +547,7 @@ class RunView(Vertical):
             self._now_text = text
             now.update(Text(text))
         if st.state == "fault" and st.message:
-            self.set_message(f"{st.message}; press o to reconnect", warn=True)
+            self.set_message(f"{st.message}; press {RECONNECT_KEY} to reconnect", warn=True)
         # the flame row at the play position
         flames = self.query_one(RunFlames)
         if st.cue_id is not None and st.cue_id in self.flames:
@@ -388,9 +579,18 @@ class RunView(Vertical):
         if engine is None or (need_device and engine.device is None):
             self.app.say("run the pre-show check first (c)" if not self.cues else
                          self.message if self.message.startswith("no audio output") else
-                         "no audio output: connect the device (D chooses one), then press o", warn=True)
+                         f"no audio output: connect the device (D chooses one), then press {RECONNECT_KEY}", warn=True)
             return None
         return engine
+
+    def action_operator(self, action: str) -> None:
+        """One operator key (see :mod:`showkit.show.operator_keys`)."""
+        if action == "panic":
+            self.app.action_panic()
+            return
+        {"go": self.action_go, "fade": self.action_fade, "fader_down": lambda: self.action_fader(-1),
+         "fader_up": lambda: self.action_fader(1), "rearm": self.action_rearm,
+         "reconnect": self.action_reconnect}[action]()
 
     def _refused(self, exc: ShowkitError) -> None:
         self.app.say(f"refused: {exc.line()}", warn=True)
@@ -442,7 +642,7 @@ class RunView(Vertical):
         if engine is None:
             return
         engine.rearm()
-        self.app.say("re-armed: g starts the next cue")
+        self.app.say(f"re-armed: {GO_KEY} starts the next cue")
         self.refresh_now()
 
     def action_reconnect(self) -> None:
@@ -457,11 +657,11 @@ class RunView(Vertical):
         try:
             self.engine.reopen(self.session_device())
         except DeviceError as exc:
-            self.set_message(f"no audio output: {exc.line()}; then press o to connect again", warn=True)
+            self.set_message(f"no audio output: {exc.line()}; then press {RECONNECT_KEY} to connect again", warn=True)
             return
         dev = self.engine.device
-        self.set_message(f"output: {dev.index} {dev.name} at {self.engine.rate_hz} Hz; g resumes at the next cue")
-        self.app.say("device connected: g resumes at the next cue")
+        self.set_message(f"output: {dev.index} {dev.name} at {self.engine.rate_hz} Hz; {GO_KEY} resumes at the next cue")
+        self.app.say(f"device connected: {GO_KEY} resumes at the next cue")
 
     def panic(self) -> bool:
         """Panic now (the App's panic key calls this first); True when an engine was there."""

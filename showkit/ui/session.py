@@ -282,29 +282,43 @@ class Session(TrackWork):
         self._base_rig = None
         self.checks = {}
 
-    def set_static(self, value) -> float:
-        """Today's manometer reading (a number in Pa or text with a unit); returns Pa."""
-        from showkit import units
-        from showkit.errors import InputError
+    @property
+    def conditions(self):
+        """Today's conditions (:class:`showkit.conditions.Conditions`): the UI's one current set."""
+        return self.rig.conditions
 
-        pa = units.pressure_pa(_number_or_text(value), "static pressure")
-        if not (pa > 0 and math.isfinite(pa)):
-            raise InputError("the static pressure must be above zero", "static pressure",
-                             'give the manometer reading, e.g. "18 Pa" or "0.08 inH2O"')
-        self.static_pa = pa
-        return pa
+    def set_conditions(self, static=None, temperature=None) -> tuple[bool, bool]:
+        """The UI's one door for today's conditions; returns (static changed, temperature changed).
+
+        ``static`` (a number in Pa or text with a unit, e.g. ``"18 Pa"``) and
+        ``temperature`` (a number in K or text, e.g. ``"18 C"``) go through
+        :func:`showkit.conditions.make_conditions` together, with the limits every
+        other door uses; ``None`` keeps today's value.  Either is refused (an
+        :class:`~showkit.errors.InputError` line) before anything changes.  A value
+        equal to the rig file's (as the dialogs show it) is the rig file's.
+        """
+        from showkit.conditions import make_conditions
+        from showkit.show.preshow import SAME_TEMPERATURE_K
+
+        base = self.base_rig()
+        new = make_conditions(static, temperature, None, base=self.rig.conditions,
+                              where={"static": "static pressure", "temperature": "gas temperature"})
+        static_pa = None if abs(new.static_pa - base.static_pa) < 1e-9 else new.static_pa
+        temperature_k = (None if abs(new.temperature_k - base.temperature_k) <= SAME_TEMPERATURE_K
+                         else new.temperature_k)
+        changed = (static_pa != self.static_pa, temperature_k != self.temperature_k)
+        self.static_pa, self.temperature_k = static_pa, temperature_k
+        return changed
+
+    def set_static(self, value) -> float:
+        """Today's manometer reading (see :meth:`set_conditions`); returns Pa."""
+        self.set_conditions(static=value)
+        return self.rig.static_pa
 
     def set_temperature(self, value) -> float:
-        """Today's gas temperature (a number in K or text such as "18 C"); returns K."""
-        from showkit import units
-        from showkit.errors import InputError
-
-        k = units.temperature_k(_number_or_text(value), "gas temperature")
-        if not 150.0 < k < 500.0:
-            raise InputError(f"{k:.1f} K is not a plausible gas temperature", "gas temperature",
-                             'give the temperature in the tube, e.g. "20 C"')
-        self.temperature_k = k
-        return k
+        """Today's gas temperature (see :meth:`set_conditions`); returns K."""
+        self.set_conditions(temperature=value)
+        return self.rig.temperature_k
 
     # ------------------------------------------------------------ slow work (worker threads)
     def compute_modes(self, rig=None) -> list:
@@ -313,12 +327,19 @@ class Session(TrackWork):
         return find_modes((rig or self.rig).model)
 
     def compute_checks(self, sheet_text: str | None = None, rig=None) -> dict:
-        """CueCheck for every cue of a snapshot of the sheet (today's conditions)."""
-        from showkit.show.lock import check_cue
+        """CueCheck for every cue of a snapshot of the sheet, for today's conditions.
+
+        The rule of the pre-show check (:func:`showkit.show.preshow.cue_for_today`):
+        a lock is stale only against the rig file; today's static pressure re-derives
+        the ceilings, and a gas temperature of today locks the valid cues again in
+        memory (tone and glide cues on today's modes), so it never makes a cue stale.
+        """
+        from showkit.show.preshow import cue_for_today
 
         sheet = self._copy(sheet_text)
         rig = rig or self.rig
-        return {c.id: check_cue(sheet, rig, c) for c in sheet.cues}
+        base = self.base_rig()
+        return {c.id: cue_for_today(sheet, base, rig, c)[1] for c in sheet.cues}
 
     def lock_job(self, ids: list[str] | None = None, progress=None, sheet_text: str | None = None,
                  rig=None) -> list[Cue]:
@@ -327,6 +348,9 @@ class Session(TrackWork):
 
         sheet = self._copy(sheet_text)
         rig = rig or self.rig
+        # a lock is written for the rig file's gas (today's static pressure is recorded in it and
+        # re-derived exactly): a temperature typed in today never leaves a lock stale tomorrow
+        rig = self.base_rig().with_conditions(static_pa=rig.static_pa, reserve=rig.reserve)
         if ids is None:
             ids = [c.id for c in sheet.cues
                    if self.checks.get(c.id) is None or self.checks[c.id].status in ("stale", "error")]
@@ -369,10 +393,13 @@ class Session(TrackWork):
 
     def render_job(self, cue_id: str):
         """The cue rendered at its gain and verified (for the audition)."""
+        from showkit.show.preshow import cue_for_today
         from showkit.show.render import render_cue
 
         sheet = self._copy()
-        return render_cue(sheet, self.rig, sheet.cue(cue_id))
+        rig = self.rig
+        cue, _ = cue_for_today(sheet, self.base_rig(), rig, sheet.cue(cue_id))
+        return render_cue(sheet, rig, cue)
 
     # ------------------------------------------------------------ applying results (UI thread)
     def apply_locks(self, cues: list[Cue]) -> list[str]:
@@ -612,16 +639,6 @@ def _relative_to(path: Path, folder: Path) -> str:
 def _sound(cue: Cue):
     """What a lock depends on in a cue (the source and the fades)."""
     return (cue.source, cue.fade_in_s, cue.fade_out_s)
-
-
-def _number_or_text(value):
-    if isinstance(value, (int, float)):
-        return float(value)
-    text = str(value).strip()
-    try:
-        return float(text)
-    except ValueError:
-        return text
 
 
 def _clock(seconds: float) -> str:

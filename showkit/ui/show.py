@@ -35,7 +35,10 @@ class ShowView(Vertical):
         Binding("t", "add_tone", "+tone"),
         Binding("w", "add_glide", "+glide", show=False),
         Binding("p", "add_pause", "+pause", show=False),
-        Binding("x", "delete", "delete cue", show=False),
+        # Delete (never a letter: no operator key, and no key of `showkit run`, deletes a cue);
+        # the line that says it was deleted says how to bring it back (u, at once)
+        Binding("delete", "delete", "delete cue", key_display="del", show=False),
+        Binding("u", "app.undo", "undo", show=False),
         Binding("L", "relock", "re-lock"),
         Binding("B", "export('book')", "show book PDF", show=False),
         Binding("V", "export('sheet_preview')", "preview video", show=False),
@@ -260,9 +263,11 @@ class ShowView(Vertical):
         cid = self._cue_or_say()
         if cid is None:
             return
+        label = self.session.sheet.cue(cid).label
         self.session.delete(cid)
         self.refresh_table()
-        self.app.say(f"{cid}: deleted (saved; ctrl+z brings it back)")
+        self.app.say(f"deleted cue {cid} ({label}) and saved -- press u (or ctrl+z) now to bring it back",
+                     warn=True)
 
     def action_relock(self) -> None:
         self.app.start_lock(None, everything=True)
