@@ -17,6 +17,7 @@ from pathlib import Path
 
 from showkit import units
 from showkit.errors import InputError, RigError
+from showkit.limits import MAX_HOLES
 from showkit.physics.drive import DriveCalibration
 from showkit.physics.gas import FUELS, STANDARD_AMBIENT_PA, GasState, gas_state
 from showkit.physics.geometry import TubeGeometry, evenly_spaced
@@ -292,6 +293,9 @@ def _holes(holes: dict, where: str, length: float, bore: float) -> tuple[tuple[f
         if not isinstance(raw, list):
             raise RigError("positions must be a list", _field(where, "holes", "positions"),
                            'write positions = ["0.1 m", "0.125 m", ...]')
+        if len(raw) > MAX_HOLES:
+            raise RigError(f"{len(raw)} positions are more holes than showkit models ({MAX_HOLES})",
+                           _field(where, "holes", "positions"), "give the positions of your tube's holes")
         positions = tuple(units.length_m(v, f"{_field(where, 'holes', 'positions')}[{i}]")
                           for i, v in enumerate(raw))
         if list(positions) != sorted(positions):
@@ -307,6 +311,9 @@ def _holes(holes: dict, where: str, length: float, bore: float) -> tuple[tuple[f
                            "write the number of holes, or 0 for a plain pipe")
         if count == 0:
             return (), 0.0
+        if count > MAX_HOLES:  # bounded work: checked before any position is made
+            raise RigError(f"count {count} is more holes than showkit models ({MAX_HOLES})",
+                           _field(where, "holes", "count"), "give the number of holes in your tube")
         for key in ("spacing", "first", "diameter"):
             if key not in holes:
                 raise RigError(f"missing field {key!r} in [holes]", _field(where, "holes", key),
