@@ -41,6 +41,8 @@ from pathlib import Path
 
 from showkit.errors import OutputError, ShowkitError
 
+#: A write that fails with less room than this left on the disk failed for want of room, bytes.
+FULL_BELOW_BYTES = 1 << 20
 #: Temporary files in the old naming (no process id) older than this are stale, s.
 STALE_AFTER_S = 3600.0
 
@@ -67,13 +69,21 @@ def _fsync_folder(folder: Path) -> None:
         os.close(fd)
 
 
-def _reason(exc: BaseException) -> str:
+def _reason(exc: BaseException, folder: Path | None = None) -> str:
     if isinstance(exc, OSError):
         if exc.errno in (errno.ENOSPC, errno.EDQUOT):
             return "the disk is full"
         return exc.strerror or exc.__class__.__name__
+    # a library's error (libsndfile says only "System error"): a full disk is the usual cause
+    if folder is not None:
+        try:
+            vfs = os.statvfs(folder)
+            if vfs.f_bavail * vfs.f_frsize < FULL_BELOW_BYTES:
+                return "the disk is full"
+        except OSError:
+            pass
     text = " ".join(str(exc).split())
-    return text[:120] or exc.__class__.__name__
+    return text[-120:] or exc.__class__.__name__
 
 
 def _same_file(a: Path, b: Path) -> bool:
@@ -276,9 +286,10 @@ def replacing(path, backups: int = 0, suffix: str = ".tmp", _before_rename=None,
             os.unlink(tmp)
         raise
     except (OSError, RuntimeError) as exc:  # OSError, or a library's write error (libsndfile)
+        reason = _reason(exc, folder)
         with contextlib.suppress(OSError):
             os.unlink(tmp)
-        raise OutputError(f"cannot write the {what} ({_reason(exc)})", str(path),
+        raise OutputError(f"cannot write the {what} ({reason})", str(path),
                           "free some space or choose a writable folder; the previous file is unchanged"
                           ) from None
     except BaseException:
