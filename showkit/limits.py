@@ -17,8 +17,8 @@ GiB = 1 << 30
 
 #: Largest rig file read, bytes: a rig is a few hundred bytes to a few kB (5000 hole positions ~ 100 kB).
 RIG_MAX_BYTES = 1 * MiB
-#: Largest cue sheet read, bytes: 2000 cues with long notes fit easily; the parsed
-#: sheet costs about ten times its text in memory.
+#: Largest cue sheet read, bytes: 2000 cues with long notes fit easily (`check` of a
+#: 31 MB sheet of 2000 cues peaked at 133 MB, measured).
 SHEET_MAX_BYTES = 32 * MiB
 #: Largest show log read back, bytes (about 200 000 events).
 LOG_MAX_BYTES = 64 * MiB
