@@ -282,7 +282,14 @@ def read_whole(path: str | Path, role: str = "recording") -> tuple[np.ndarray, i
     try:
         info = audio_info(path)
     except AudioError as exc:
-        raise AudioError(f"the {role}: {exc.what}", exc.where, exc.fix) from None
+        unreadable = "not an audio file showkit can read"
+        if exc.what.startswith(unreadable):
+            what = f"cannot read the {role}" + exc.what[len(unreadable):]
+        elif "audio file" in exc.what:
+            what = exc.what.replace("an audio file", f"a {role} file").replace("audio file", f"{role} file")
+        else:
+            what = f"the {role}: {exc.what}"
+        raise AudioError(what, exc.where, exc.fix) from None
     if info.frames * info.channels > MAX_CUE_SAMPLES:
         raise AudioError(f"the {role} is {info.duration_s:.0f} s x {info.channels} channels, more than "
                          f"showkit holds in memory ({MAX_CUE_SAMPLES} samples)", str(path),
