@@ -62,3 +62,38 @@ def test_the_limits_keep_a_cue_under_two_gigabytes():
     assert limits.MAX_CUE_SAMPLES * 8 * 5 < 2e9
     assert limits.MAX_GENERATED_S * 48000 <= limits.MAX_CUE_SAMPLES
     assert limits.MAX_SHOW_SAMPLES * 4 < 2e9
+
+
+def _sparse_wav(path, seconds: float, rate: int = 8000) -> None:
+    """A 16-bit mono WAV of ``seconds`` of silence, written as a sparse file (no disk used)."""
+    import struct
+
+    data_bytes = int(seconds * rate) * 2
+    fmt = struct.pack("<HHIIHH", 1, 1, rate, rate * 2, 2, 16)
+    header = (b"RIFF" + struct.pack("<I", 4 + 8 + len(fmt) + 8 + data_bytes) + b"WAVE"
+              + b"fmt " + struct.pack("<I", len(fmt)) + fmt + b"data" + struct.pack("<I", data_bytes))
+    with open(path, "wb") as f:
+        f.write(header)
+        f.truncate(len(header) + data_bytes)
+
+
+def test_a_three_hour_track_works_where_it_streams(tmp_path, monkeypatch, capsys):
+    from showkit.cli.main import main
+
+    monkeypatch.setenv("SHOWKIT_CACHE_DIR", str(tmp_path / "cache"))
+    track = tmp_path / "long.wav"
+    _sparse_wav(track, 3 * 3600)
+    # a passage deep inside it: only that passage is read
+    assert main(["ceiling", str(track), "--start", "2:59:00", "--end", "2:59:20"]) == 0
+    sheet = tmp_path / "s.toml"
+    sheet.write_text('title = "t"\nrig = "demo"\nformat = 1\n[[cue]]\nid = "late"\naudio = "long.wav"\n'
+                     'start = "1:30:00"\nend = "1:30:10"\ngain = -20\n')
+    assert main(["lock", str(sheet)]) == 0
+    # a whole-track scan is refused in its row with one line, not run out of memory
+    capsys.readouterr()
+    assert main(["scan", str(track), "--jobs", "1"]) == 2
+    assert "more than a scan analyses in one piece" in capsys.readouterr().out
+    # and the whole track as one cue is refused: it would be held in memory
+    sheet.write_text('title = "t"\nrig = "demo"\nformat = 1\n[[cue]]\nid = "all"\naudio = "long.wav"\n')
+    assert main(["lock", str(sheet)]) == 2
+    assert "more than showkit holds in memory" in capsys.readouterr().err
