@@ -158,3 +158,23 @@ def test_protected_files_are_never_written(tmp_path):
     with pytest.raises(OutputError, match="will not write the file over"):
         write_text(tmp_path / "alias.wav", "x", protect=[(track, "the show reads it")])
     assert track.read_bytes() == b"RIFF"
+
+
+def test_an_unchanged_track_is_not_hashed_again(tmp_path, monkeypatch):
+    import numpy as np
+    import soundfile as sf
+
+    from showkit.analysis import audio, scancache
+
+    monkeypatch.setenv("SHOWKIT_CACHE_DIR", str(tmp_path / "cache"))
+    track = tmp_path / "t.wav"
+    sf.write(track, np.zeros(800), 8000)
+    calls = []
+    real = audio.content_hash
+    monkeypatch.setattr(audio, "content_hash", lambda p: (calls.append(p), real(p))[1])
+    first = scancache.content_key(track)
+    assert first == real(track) and len(calls) == 1
+    assert scancache.content_key(track) == first and len(calls) == 1  # size and mtime first
+    sf.write(track, np.ones(800) * 0.5, 8000)  # changed: hashed again
+    os.utime(track, ns=(1, 1))
+    assert scancache.content_key(track) != first and len(calls) == 2

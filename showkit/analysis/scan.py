@@ -20,7 +20,7 @@ from typing import Callable
 import numpy as np
 
 from showkit.analysis import scancache
-from showkit.analysis.audio import audio_info, content_hash, read_blocks
+from showkit.analysis.audio import audio_info, read_blocks
 from showkit.analysis.features import track_features
 from showkit.analysis.pitches import ModeTable
 from showkit.analysis.pressure import hole_filters
@@ -320,7 +320,7 @@ def scan_paths(rig: Rig, paths, jobs: int | None = None, use_cache: bool = True,
         key = None
         if use_cache:
             try:
-                key = scancache.cache_key(content_hash(f), rig)
+                key = scancache.cache_key(scancache.content_key(f), rig)
             except (ShowkitError, OSError, IsADirectoryError):
                 key = None
             hit = scancache.load(key) if key else None

@@ -32,6 +32,45 @@ def cache_dir() -> Path:
     return Path(platformdirs.user_cache_dir("showkit")) / "scan"
 
 
+def content_key(path) -> str:
+    """The SHA-256 of an audio file's content, found in bounded time.
+
+    The file's identity and ``stat`` (device, inode, size, modification time
+    in ns) come first: a file seen before with the same ones is not read again
+    (its hash is kept under ``hashes/`` in the cache).  Otherwise the content is
+    hashed by :func:`showkit.analysis.audio.content_hash`, which accepts only a
+    regular file within the audio size limit.
+    """
+    from showkit.analysis.audio import content_hash
+    from showkit.fileio import read_json
+
+    path = Path(path)
+    try:
+        st = os.stat(path)
+        ident = json.dumps([str(path.resolve()), st.st_dev, st.st_ino, st.st_size, st.st_mtime_ns])
+    except (OSError, RuntimeError):
+        return content_hash(path)  # says what is wrong in one line
+    memo = cache_dir() / "hashes" / (hashlib.sha256(ident.encode()).hexdigest()[:32] + ".json")
+    known = read_json(memo)
+    if isinstance(known, dict) and known.get("stat") == ident and isinstance(known.get("sha256"), str) \
+            and len(known["sha256"]) == 64:
+        return known["sha256"]
+    sha = content_hash(path)
+    _store(memo, {"stat": ident, "sha256": sha})
+    return sha
+
+
+def _store(path: Path, data: dict) -> None:
+    from showkit.errors import ShowkitError
+    from showkit.safesave import write_bytes
+
+    try:
+        path.parent.mkdir(parents=True, exist_ok=True)
+        write_bytes(path, json.dumps(data).encode("utf-8"), backups=0, what="cache entry")
+    except (OSError, ShowkitError, TypeError, ValueError):
+        pass  # only a cache
+
+
 def cache_key(content_sha256: str, rig) -> str:
     """Key of a track's result for a rig at its static pressure and reserve (hex)."""
     data = {"content": content_sha256, "acoustic": rig.acoustic_hash(),
@@ -86,13 +125,4 @@ def load(key: str) -> dict | None:
 
 def save(key: str, result: dict) -> None:
     """Store a result with the safe writer; a cache that cannot be written is skipped silently."""
-    from showkit.errors import ShowkitError
-    from showkit.safesave import write_bytes
-
-    folder = cache_dir()
-    try:
-        folder.mkdir(parents=True, exist_ok=True)
-        data = json.dumps({"version": showkit.ANALYSIS_VERSION, "result": result}).encode("utf-8")
-        write_bytes(folder / f"{key}.json", data, backups=0, what="cache entry")
-    except (OSError, ShowkitError, TypeError, ValueError):
-        pass
+    _store(cache_dir() / f"{key}.json", {"version": showkit.ANALYSIS_VERSION, "result": result})
