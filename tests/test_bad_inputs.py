@@ -24,9 +24,9 @@ import signal
 import struct
 import subprocess
 import sys
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from pathlib import Path
-from typing import Callable
+from collections.abc import Callable
 
 import numpy as np
 import pytest
@@ -210,7 +210,6 @@ class Case:
     unchanged: tuple = ()  # files whose bytes must not change
     check: Callable[[Env, str, str], None] | None = None
     patch: Callable | None = None  # called with (monkeypatch) before the run
-    slow_ok: bool = False
 
 
 def _enospc(*args, **kwargs):

@@ -15,21 +15,12 @@ from __future__ import annotations
 
 import argparse
 
-# the work itself lives in the analysis and show layers
-from showkit.analysis.measurement import (  # noqa: F401,E402
-    analyse_recording,
-    calibrated_pressure,
-    sine_amplitude,
-)
-from showkit.cli.common import (
-    add_conditions_options,
-    add_json_option,
-    add_rig_option,
-    level_caution,
-    print_json,
-    table,
-)
+from showkit.cli.common import (add_conditions_options, add_json_option, add_rig_option,
+                                level_caution, print_json, table)
 from showkit.printable import printable
+
+# the work itself lives in the analysis and show layers
+from showkit.analysis.measurement import analyse_recording, calibrated_pressure, sine_amplitude  # noqa: F401,E402
 from showkit.show.playrec import play_record  # noqa: F401,E402
 
 

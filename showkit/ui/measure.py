@@ -252,7 +252,8 @@ class MeasureView(Vertical):
         self.query_one("#measure-fit", Static).update(Text(text))
         self.query_one("#measure-title", Static).update(
             f"[b]Measure the tube[/b]  {escape(printable(m.recording.name))} with "
-            f"{escape(printable(m.sweep.name))} on {escape(printable(m.rig_name))}: {len(report['modes'])} modes   W writes the fit into the rig file")
+            f"{escape(printable(m.sweep.name))} on {escape(printable(m.rig_name))}: {len(report['modes'])} modes"
+            "   W writes the fit into the rig file")
         self.app.say(f"{len(report['modes'])} modes measured; the model was off by "
                      f"{_rms(fit['before_cents']):.1f} cents rms before the fit, {fit['rms_cents']:.1f} after"
                      + (f"; {len(warnings)} warning(s)" if warnings else ""), warn=bool(warnings))

@@ -19,18 +19,8 @@ from dataclasses import dataclass, replace
 from pathlib import Path
 
 from showkit.errors import SheetError, ShowkitError
-from showkit.show.sheet import (
-    AudioSource,
-    Cue,
-    GlideSource,
-    PauseSource,
-    Sheet,
-    ToneSource,
-    load_sheet,
-    parse_sheet,
-    save_sheet,
-    sheet_to_text,
-)
+from showkit.show.sheet import (AudioSource, Cue, GlideSource, PauseSource, Sheet, ToneSource,
+                                load_sheet, parse_sheet, save_sheet, sheet_to_text)
 
 #: How many undo snapshots are kept.
 UNDO_DEPTH = 200
