@@ -10,12 +10,12 @@ installed package.
 from __future__ import annotations
 
 import os
-import shutil
 from importlib import resources
 from pathlib import Path
 
 from showkit import __version__
 from showkit.errors import ShowkitError
+from showkit.safesave import write_bytes, write_text
 
 
 def _repo_demo_audio() -> Path:
@@ -56,7 +56,7 @@ def demo_audio_folder() -> Path:
             raise ShowkitError("the demo tracks are missing", str(folder), f"reinstall showkit ({exc})") from None
         folder.mkdir(parents=True, exist_ok=True)
         write_demo_audio(folder)
-        marker.write_text("ok\n")
+        write_text(marker, "ok\n", backups=0, what="marker")
     return folder
 
 
@@ -74,5 +74,5 @@ def user_demo_show() -> Path:
     target = data_folder() / "demo-show.toml"
     if not target.exists():
         target.parent.mkdir(parents=True, exist_ok=True)
-        shutil.copyfile(bundled_demo_show(), target)
+        write_bytes(target, bundled_demo_show().read_bytes(), backups=0, what="demo show")
     return target

@@ -35,7 +35,11 @@ class ShowkitError(Exception):
         text = f"{self.where}: {self.what}" if self.where else self.what
         if self.fix:
             text = f"{text} -- {self.fix}"
-        return " ".join(text.split())
+        from showkit.printable import printable
+
+        # a path or cue id quoted from a file may hold control characters: shown as escapes
+        text = text.replace("\r\n", " ").replace("\n", " ").replace("\t", " ")
+        return " ".join(part for part in printable(text).split(" ") if part)
 
 
 class InputError(ShowkitError):
@@ -60,3 +64,7 @@ class DeviceError(ShowkitError):
 
 class MeasureError(ShowkitError):
     """A measurement recording cannot be analysed."""
+
+
+class OutputError(ShowkitError):
+    """A file cannot be written (disk full, no permission, not a file, one the show reads)."""

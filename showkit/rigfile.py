@@ -19,6 +19,7 @@ from pathlib import Path
 from showkit import units
 from showkit.conditions import Conditions, make_calibration, make_conditions
 from showkit.errors import InputError, RigError
+from showkit.limits import MAX_HOLES
 from showkit.physics.drive import DriveCalibration
 from showkit.physics.gas import FUELS, STANDARD_AMBIENT_PA, GasState, gas_state
 from showkit.physics.geometry import TubeGeometry, evenly_spaced
@@ -233,8 +234,6 @@ HOLE_DIAMETER_LIMITS_M = (0.0002, 0.01)
 #: Largest extra hole resistance, Pa s/m^3: the outflow resistance of a 1.5 mm hole at
 #: 20 Pa is about 5e6; a thousand times that is a closed hole.
 MAX_HOLE_RESISTANCE_PA_S_M3 = 5e9
-#: Most holes a rig may have (a 20 m tube with a hole every 10 mm).
-MAX_HOLES = 2000
 
 _UNIT_HINT = {"length": '"2.2 m" or "7 ft"', "bore": '"80 mm" or "3 in"', "wall thickness": '"2 mm"',
               "hole diameter": '"1.5 mm"'}

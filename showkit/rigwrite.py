@@ -65,7 +65,7 @@ def gas_for_sound_speed(fuel: str, air_fraction: float, temperature_k: float, am
 def save_text(path: Path, text: str) -> Path:
     """Check ``text`` as a rig, back up ``path``, write atomically; returns the backup path."""
     parse_rig(text, str(path), path)
-    write_text(path, text, backups=BACKUPS_KEPT + 1)  # NAME.bak and NAME.bak.1 .. .bak.9
+    write_text(path, text, backups=BACKUPS_KEPT + 1, what="rig file")  # NAME.bak and NAME.bak.1 .. .bak.9
     return path.with_name(path.name + ".bak")
 
 
@@ -111,12 +111,14 @@ def update_rig(path, *, sound_speed_m_s: float | None = None, end_correction: fl
     """
     import tomlkit
 
+    from showkit.fileio import read_rig_text
+
     _all_finite({"sound_speed": sound_speed_m_s, "end_correction": end_correction,
                  "resistance": resistance_pa_s_m3, "modes": modes, "measured": measured_extra,
                  "response_frequencies": response_freq_hz, "response_db": response_db,
                  "reference": reference})
     path = _writable(path)
-    text = path.read_text(encoding="utf-8")
+    text = read_rig_text(path, RigError, "give the rig file to update with --rig")
     rig = parse_rig(text, str(path), path)
     doc = tomlkit.parse(text)
     notes = []

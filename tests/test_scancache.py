@@ -63,8 +63,11 @@ def test_version_is_part_of_the_key(cache, monkeypatch):
 
     rig = load_rig()
     key = scancache.cache_key("abc", rig)
-    scancache.save(key, {"score": 1.0})
-    assert scancache.load(key) == {"score": 1.0}
+    # a result of the shape a scan writes (a wrongly shaped one is ignored: issue 14)
+    result = {"path": "t.wav", "duration_s": 1.0, "score": 1.0, "transpose_semitones": 0.0,
+              "transpose_score": 1.0, "error": None, "passages": []}
+    scancache.save(key, result)
+    assert scancache.load(key) == result
     monkeypatch.setattr(showkit, "ANALYSIS_VERSION", showkit.ANALYSIS_VERSION + 1)
     assert scancache.cache_key("abc", rig) != key
     assert scancache.load(key) is None  # a file written by another version is stale

@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import hashlib
 import math
+import os
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Iterator
@@ -21,6 +22,7 @@ from typing import Iterator
 import numpy as np
 
 from showkit.errors import AudioError
+from showkit.limits import AUDIO_MAX_BYTES, MAX_CUE_SAMPLES, MAX_RATE_HZ
 
 #: Files shorter than this many samples cannot be analysed.
 MIN_FRAMES = 1
@@ -65,23 +67,13 @@ def audio_info(path: str | Path) -> AudioInfo:
     """Check that ``path`` is a readable audio file and say what it holds."""
     import soundfile as sf
 
+    from showkit.fileio import check_audio_file
+
     path = Path(path)
     where = str(path)
-    if not path.exists():
-        raise AudioError("no such audio file", where, "check the path")
-    if path.is_dir():
-        raise AudioError("is a folder, not an audio file", where, "give the path of an audio file")
-    try:
-        size = path.stat().st_size
-    except OSError as exc:
-        raise AudioError(f"cannot read the file ({exc.strerror})", where, "check its permissions") from None
-    if size == 0:
+    st = check_audio_file(path, AudioError)  # a regular file within the size limit, or one line
+    if st.st_size == 0:
         raise AudioError("the file is empty (0 bytes)", where, "export the track again")
-    try:
-        with open(path, "rb"):
-            pass
-    except OSError as exc:
-        raise AudioError(f"cannot read the file ({exc.strerror})", where, "check its permissions") from None
     try:
         info = sf.info(str(path))
     except Exception as exc:  # libsndfile's errors are not one class across versions
@@ -91,8 +83,52 @@ def audio_info(path: str | Path) -> AudioInfo:
         raise AudioError("the file holds no samples", where, "export the track again")
     if info.channels < 1:
         raise AudioError("the file has no channels", where, "export the track again")
+    if info.samplerate > MAX_RATE_HZ:
+        raise AudioError(f"the sample rate {info.samplerate} Hz is above showkit's limit "
+                         f"({MAX_RATE_HZ} Hz)", where, "resample it to 48 kHz or 96 kHz")
+    _check_wav_length(path, st.st_size, where)
     return AudioInfo(path=path, rate_hz=int(info.samplerate), channels=int(info.channels),
                      frames=int(info.frames), format=str(info.format))
+
+
+def _check_wav_length(path: Path, size: int, where: str) -> None:
+    """Refuse a WAV whose header promises more sample data than the file holds.
+
+    libsndfile quietly reads what is there when a WAV is cut short, so the
+    header is read here: the ``data`` chunk's length against the bytes that
+    follow it.  A file cut short (a copy or a download broken off, a header
+    claiming 4 GB) is refused, never analysed as if it were whole.
+    """
+    import struct
+
+    try:
+        with open(path, "rb") as f:
+            head = f.read(12)
+            if len(head) < 12 or head[:4] != b"RIFF" or head[8:12] != b"WAVE":
+                return
+            block_align = 0
+            offset = 12
+            for _ in range(64):  # a WAV has a handful of chunks before its data
+                f.seek(offset)
+                chunk = f.read(8)
+                if len(chunk) < 8:
+                    return
+                cid, length = chunk[:4], struct.unpack("<I", chunk[4:])[0]
+                if cid == b"fmt ":
+                    fmt = f.read(16)
+                    if len(fmt) >= 14:
+                        block_align = struct.unpack("<H", fmt[12:14])[0]
+                elif cid == b"data":
+                    present = size - (offset + 8)
+                    if length > present and block_align > 0:
+                        raise AudioError(
+                            f"the file is cut short (truncated): its header says {length // block_align} frames "
+                            f"({length} bytes of samples) but only {present // block_align} are present",
+                            where, "copy or export the file again; showkit will not guess at the missing part")
+                    return
+                offset += 8 + length + (length & 1)
+    except OSError as exc:
+        raise AudioError(f"cannot read the file ({exc.strerror})", where, "check its permissions") from None
 
 
 def _short(exc: Exception) -> str:
@@ -187,8 +223,19 @@ def read_blocks(path: str | Path, rate_hz: int | None = None, start_s: float | N
 
 def load_audio(path: str | Path, rate_hz: int | None = None, start_s: float | None = None,
                end_s: float | None = None) -> Audio:
-    """The whole file (or passage) as mono samples at ``rate_hz`` (default: the file's rate)."""
+    """The whole file (or passage) as mono samples at ``rate_hz`` (default: the file's rate).
+
+    The passage is held whole in memory: at most :data:`showkit.limits.MAX_CUE_SAMPLES`
+    samples (at the file's rate and at ``rate_hz``); longer ones get one line.
+    """
     info = audio_info(path)
+    first, last = _span(info, start_s, end_s)
+    out_frames = (last - first) * (int(rate_hz) / info.rate_hz if rate_hz else 1.0)
+    if max(last - first, out_frames) > MAX_CUE_SAMPLES:
+        raise AudioError(f"the passage is {(last - first) / info.rate_hz:.0f} s long, more than showkit holds "
+                         f"in memory ({MAX_CUE_SAMPLES / max(info.rate_hz, rate_hz or 0):.0f} s at "
+                         f"{max(info.rate_hz, rate_hz or 0)} Hz)", str(info.path),
+                         "use a shorter passage (start/end), or split it into several cues")
     blocks = list(read_blocks(path, rate_hz, start_s, end_s))
     samples = np.concatenate(blocks) if blocks else np.zeros(0)
     first, _ = _span(info, start_s, end_s)
@@ -199,15 +246,59 @@ def load_audio(path: str | Path, rate_hz: int | None = None, start_s: float | No
 
 
 def content_hash(path: str | Path) -> str:
-    """SHA-256 of the file's bytes (hex): the key for caches and cue locks."""
+    """SHA-256 of the file's bytes (hex): the key for caches.
+
+    Bounded: the file is checked first (:func:`showkit.fileio.open_checked`: a
+    regular file, at most :data:`showkit.limits.AUDIO_MAX_BYTES`), and at most
+    its size at that moment is read, so a pipe, a device or a file that keeps
+    growing cannot make it run forever.
+    """
+    from showkit.fileio import open_checked
+
     digest = hashlib.sha256()
-    try:
-        with open(path, "rb") as f:
-            for chunk in iter(lambda: f.read(1 << 20), b""):
+    with open_checked(path, "audio file", AudioError) as f:
+        left = min(os.fstat(f.fileno()).st_size, AUDIO_MAX_BYTES)
+        try:
+            while left > 0:
+                chunk = f.read(min(1 << 20, left))
+                if not chunk:
+                    break
                 digest.update(chunk)
-    except OSError as exc:
-        raise AudioError(f"cannot read the file ({exc.strerror})", str(path), "check the path") from None
+                left -= len(chunk)
+        except OSError as exc:
+            raise AudioError(f"cannot read the file ({exc.strerror})", str(path), "check the path") from None
     return digest.hexdigest()
+
+
+def read_whole(path: str | Path, role: str = "recording") -> tuple[np.ndarray, int]:
+    """A whole recording as float64 (frames, or frames x channels) and its rate, checked.
+
+    For measurements, which need every channel as recorded: the same checks as
+    :func:`audio_info` (a regular file, size, rate, cut short) and at most
+    :data:`showkit.limits.MAX_CUE_SAMPLES` frames x channels in memory.
+    """
+    import soundfile as sf
+
+    try:
+        info = audio_info(path)
+    except AudioError as exc:
+        unreadable = "not an audio file showkit can read"
+        if exc.what.startswith(unreadable):
+            what = f"cannot read the {role}" + exc.what[len(unreadable):]
+        elif "audio file" in exc.what:
+            what = exc.what.replace("an audio file", f"a {role} file").replace("audio file", f"{role} file")
+        else:
+            what = f"the {role}: {exc.what}"
+        raise AudioError(what, exc.where, exc.fix) from None
+    if info.frames * info.channels > MAX_CUE_SAMPLES:
+        raise AudioError(f"the {role} is {info.duration_s:.0f} s x {info.channels} channels, more than "
+                         f"showkit holds in memory ({MAX_CUE_SAMPLES} samples)", str(path),
+                         "record a shorter take (a sweep of 5 to 30 s)")
+    try:
+        data, rate = sf.read(str(info.path), dtype="float64", always_2d=False)
+    except Exception as exc:  # noqa: BLE001 - libsndfile errors vary
+        raise AudioError(f"cannot read the {role} ({_short(exc)})", str(path), "give a WAV or FLAC file") from None
+    return data, int(rate)
 
 
 def samples_hash(samples: np.ndarray, rate_hz: int) -> str:

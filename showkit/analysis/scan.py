@@ -20,7 +20,7 @@ from typing import Callable
 import numpy as np
 
 from showkit.analysis import scancache
-from showkit.analysis.audio import audio_info, content_hash, read_blocks
+from showkit.analysis.audio import audio_info, read_blocks
 from showkit.analysis.features import track_features
 from showkit.analysis.pitches import ModeTable
 from showkit.analysis.pressure import hole_filters
@@ -28,7 +28,7 @@ from showkit.analysis.score import (APPROXIMATION, frame_scores, mode_shares, pa
                                     passage_score, track_score)
 from showkit.analysis.segments import passages as find_passages
 from showkit.analysis.transpose import best_shift, shifted_scores
-from showkit.errors import ShowkitError
+from showkit.errors import AudioError, ShowkitError
 from showkit.physics.flames import FRAME_RATE_HZ
 from showkit.physics.response import simulate
 from showkit.rigfile import Rig
@@ -103,7 +103,13 @@ def _analyse(rig: Rig, path: str | Path, threads: int | None = None) -> _Work:
 
 
 def _analyse_now(rig: Rig, path: Path, threads: int | None) -> _Work:
+    from showkit.limits import MAX_SCAN_S
+
     info = audio_info(path)
+    if info.duration_s > MAX_SCAN_S:
+        raise AudioError(f"the track is {info.duration_s / 60:.0f} min long, more than a scan analyses in one "
+                         f"piece ({MAX_SCAN_S / 60:.0f} min, about 1.5 GB of analysis)", str(path),
+                         "`showkit ceiling` streams any length; to scan it, cut it into parts")
     filters = hole_filters(rig)
     x, native_peaks = _decode(path, filters.rate_hz, info.rate_hz)
     hop = filters.frame_samples
@@ -314,7 +320,7 @@ def scan_paths(rig: Rig, paths, jobs: int | None = None, use_cache: bool = True,
         key = None
         if use_cache:
             try:
-                key = scancache.cache_key(content_hash(f), rig)
+                key = scancache.cache_key(scancache.content_key(f), rig)
             except (ShowkitError, OSError, IsADirectoryError):
                 key = None
             hit = scancache.load(key) if key else None

@@ -6,8 +6,8 @@ calibration hashes, the static pressure and reserve, and
 from the cache.  The files live in ``platformdirs.user_cache_dir("showkit")``
 under ``scan/``; the environment variable ``SHOWKIT_CACHE_DIR`` replaces that
 folder (the tests use it).  Writes go to a temporary file, fsync'd and renamed,
-so a broken write never leaves a half file; an unreadable cache file is
-treated as missing.
+so a broken write never leaves a half file (:mod:`showkit.safesave`); an
+unreadable, oversized or wrongly shaped cache file is treated as missing.
 """
 
 from __future__ import annotations
@@ -15,7 +15,6 @@ from __future__ import annotations
 import hashlib
 import json
 import os
-import tempfile
 from pathlib import Path
 
 import showkit
@@ -33,6 +32,45 @@ def cache_dir() -> Path:
     return Path(platformdirs.user_cache_dir("showkit")) / "scan"
 
 
+def content_key(path) -> str:
+    """The SHA-256 of an audio file's content, found in bounded time.
+
+    The file's identity and ``stat`` (device, inode, size, modification time
+    in ns) come first: a file seen before with the same ones is not read again
+    (its hash is kept under ``hashes/`` in the cache).  Otherwise the content is
+    hashed by :func:`showkit.analysis.audio.content_hash`, which accepts only a
+    regular file within the audio size limit.
+    """
+    from showkit.analysis.audio import content_hash
+    from showkit.fileio import read_json
+
+    path = Path(path)
+    try:
+        st = os.stat(path)
+        ident = json.dumps([str(path.resolve()), st.st_dev, st.st_ino, st.st_size, st.st_mtime_ns])
+    except (OSError, RuntimeError):
+        return content_hash(path)  # says what is wrong in one line
+    memo = cache_dir() / "hashes" / (hashlib.sha256(ident.encode()).hexdigest()[:32] + ".json")
+    known = read_json(memo)
+    if isinstance(known, dict) and known.get("stat") == ident and isinstance(known.get("sha256"), str) \
+            and len(known["sha256"]) == 64:
+        return known["sha256"]
+    sha = content_hash(path)
+    _store(memo, {"stat": ident, "sha256": sha})
+    return sha
+
+
+def _store(path: Path, data: dict) -> None:
+    from showkit.errors import ShowkitError
+    from showkit.safesave import write_bytes
+
+    try:
+        path.parent.mkdir(parents=True, exist_ok=True)
+        write_bytes(path, json.dumps(data).encode("utf-8"), backups=0, what="cache entry")
+    except (OSError, ShowkitError, TypeError, ValueError):
+        pass  # only a cache
+
+
 def cache_key(content_sha256: str, rig) -> str:
     """Key of a track's result for a rig at its static pressure and reserve (hex)."""
     data = {"content": content_sha256, "acoustic": rig.acoustic_hash(),
@@ -41,34 +79,50 @@ def cache_key(content_sha256: str, rig) -> str:
     return hashlib.sha256(json.dumps(data, sort_keys=True).encode()).hexdigest()[:32]
 
 
+#: What a cached track result must hold, and of what type, to be served.
+_RESULT_FIELDS = {"path": str, "duration_s": (int, float), "score": (int, float),
+                  "transpose_semitones": (int, float), "transpose_score": (int, float),
+                  "passages": list}
+_PASSAGE_FIELDS = {"start_s": (int, float), "end_s": (int, float), "score": (int, float),
+                   "modes": list, "ceiling_db": (int, float), "contrast": (int, float)}
+
+
+def _well_formed(result) -> bool:
+    """True when ``result`` has the shape :func:`showkit.analysis.scan.scan_track` returns."""
+    if not isinstance(result, dict) or result.get("error") is not None:
+        return False
+    for key, kind in _RESULT_FIELDS.items():
+        if not isinstance(result.get(key), kind) or isinstance(result.get(key), bool):
+            return False
+    for p in result["passages"]:
+        if not isinstance(p, dict):
+            return False
+        for key, kind in _PASSAGE_FIELDS.items():
+            if not isinstance(p.get(key), kind) or isinstance(p.get(key), bool):
+                return False
+        if not all(isinstance(n, int) and not isinstance(n, bool) for n in p["modes"]):
+            return False
+        shares = p.get("mode_shares", [])
+        if not isinstance(shares, list) or not all(
+                isinstance(m, dict) and isinstance(m.get("n"), int) and isinstance(m.get("note"), str)
+                and isinstance(m.get("share"), (int, float)) for m in shares):
+            return False
+    return True
+
+
 def load(key: str) -> dict | None:
-    """The cached result, or ``None`` when there is none (or it cannot be read)."""
-    path = cache_dir() / f"{key}.json"
-    try:
-        with open(path, encoding="utf-8") as f:
-            data = json.load(f)
-    except (OSError, ValueError):
-        return None
+    """The cached result, or ``None`` when there is none, or it cannot be read or is not
+    the shape a scan writes (a damaged or foreign entry is ignored and the track analysed again).
+    """
+    from showkit.fileio import read_json
+
+    data = read_json(cache_dir() / f"{key}.json")
     if not isinstance(data, dict) or data.get("version") != showkit.ANALYSIS_VERSION:
         return None
-    return data.get("result")
+    result = data.get("result")
+    return result if _well_formed(result) else None
 
 
 def save(key: str, result: dict) -> None:
-    """Store a result; a cache that cannot be written is skipped silently (it is only a cache)."""
-    folder = cache_dir()
-    tmp = None
-    try:
-        folder.mkdir(parents=True, exist_ok=True)
-        fd, tmp = tempfile.mkstemp(prefix=".scan-", suffix=".tmp", dir=folder)
-        with os.fdopen(fd, "w", encoding="utf-8") as f:
-            json.dump({"version": showkit.ANALYSIS_VERSION, "result": result}, f)
-            f.flush()
-            os.fsync(f.fileno())
-        os.replace(tmp, folder / f"{key}.json")
-    except OSError:
-        if tmp is not None:
-            try:
-                os.unlink(tmp)
-            except OSError:
-                pass
+    """Store a result with the safe writer; a cache that cannot be written is skipped silently."""
+    _store(cache_dir() / f"{key}.json", {"version": showkit.ANALYSIS_VERSION, "result": result})

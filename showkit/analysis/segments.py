@@ -94,6 +94,37 @@ def novelty(similarity: np.ndarray, half: int) -> np.ndarray:
     return np.maximum(out, 0.0) / 2.0
 
 
+def novelty_from_blocks(blocks: np.ndarray, half: int) -> np.ndarray:
+    """:func:`novelty` of ``self_similarity(blocks)`` without the n x n matrix.
+
+    The checkerboard kernel only reaches ``2 half`` blocks off the diagonal, so
+    only those diagonals of the cosine similarity are formed (memory grows with
+    the track's length, not its square: a 3-hour track has 43 200 blocks, whose
+    full matrix would be 15 GB).  Equal to ``novelty(self_similarity(blocks), half)``
+    up to rounding.
+    """
+    n = blocks.shape[0]
+    if n == 0:
+        return np.zeros(0)
+    norm = np.linalg.norm(blocks, axis=1)
+    unit = blocks / np.where(norm > 0, norm, 1.0)[:, None]
+    kernel = checkerboard(half)
+    w = 2 * half
+    size = n + w
+    padded = np.zeros((size, blocks.shape[1]))
+    padded[half:half + n] = unit
+    out = np.zeros(n)
+    for d in range(-(w - 1), w):
+        diag = np.zeros(size)  # diag[s] = similarity of padded block s with block s + d
+        if d >= 0:
+            diag[:size - d] = np.einsum("sk,sk->s", padded[:size - d], padded[d:])
+        else:
+            diag[-d:] = np.einsum("sk,sk->s", padded[-d:], padded[:size + d])
+        for i in range(max(0, -d), min(w, w - d)):
+            out += kernel[i, i + d] * diag[i:i + n]
+    return np.maximum(out, 0.0) / 2.0
+
+
 def pick_peaks(curve: np.ndarray, spacing: int, floor: float) -> np.ndarray:
     """Local maxima of ``curve`` above ``floor``, at least ``spacing`` apart (highest first kept)."""
     if curve.size < 3:
@@ -175,7 +206,7 @@ def passages(features: TrackFeatures, duration_s: float) -> tuple[list[tuple[flo
     blocks, per = block_features(features)
     block_s = per / features.frame_rate_hz
     half = max(2, int(round(KERNEL_HALF_S / block_s)))
-    curve = novelty(self_similarity(blocks), half) if blocks.shape[0] else np.zeros(0)
+    curve = novelty_from_blocks(blocks, half) if blocks.shape[0] else np.zeros(0)
     peaks = pick_peaks(curve, max(1, int(round(MIN_PASSAGE_S / block_s))), NOVELTY_FLOOR)
     times = _snap(peaks * block_s, beats)
     inner = [float(t) for t in times if MIN_PASSAGE_S * 0.5 <= t <= duration_s - MIN_PASSAGE_S * 0.5]

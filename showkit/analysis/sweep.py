@@ -28,6 +28,7 @@ short, a recording of some other sweep) raises a
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 from typing import Callable
 
@@ -94,6 +95,20 @@ class SweepSpec:
 
 def check_spec(spec: SweepSpec) -> None:
     """Raise :class:`MeasureError` for a sweep that cannot be made."""
+    from showkit.limits import MAX_CUE_SAMPLES, MAX_RATE_HZ, MIN_SWEEP_RATE_HZ
+
+    rate = spec.sample_rate_hz
+    if not MIN_SWEEP_RATE_HZ <= rate <= MAX_RATE_HZ:
+        raise MeasureError(f"sample rate {rate:g} Hz is outside {MIN_SWEEP_RATE_HZ} to {MAX_RATE_HZ} Hz",
+                           "--rate", "use the rate of your audio interface, e.g. --rate 48000")
+    for name, value in (("start", spec.f_start_hz), ("stop", spec.f_stop_hz), ("length", spec.duration_s)):
+        if not math.isfinite(value):
+            raise MeasureError(f"the sweep's {name} must be a finite number (got {value})", f"--{name}",
+                               "give a plain number")
+    if spec.duration_s * rate > MAX_CUE_SAMPLES:
+        raise MeasureError(f"a sweep of {spec.duration_s:g} s at {rate:g} Hz is "
+                           f"{spec.duration_s * rate:.3g} samples, more than showkit makes "
+                           f"({MAX_CUE_SAMPLES:.3g})", "--length", "use --length 5 to 30 s")
     nyq = spec.sample_rate_hz / 2.0
     if not 0 < spec.f_start_hz < spec.f_stop_hz:
         raise MeasureError(f"sweep range {spec.f_start_hz:g}-{spec.f_stop_hz:g} Hz is not rising",

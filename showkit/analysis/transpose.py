@@ -71,7 +71,7 @@ def best_shift(scores_by_shift: dict[float, float]) -> tuple[float, float]:
 
 
 def render_preview(path: str | Path, start_s: float, end_s: float, semitones: float,
-                   out_path: str | Path) -> Path:
+                   out_path: str | Path, protect=()) -> Path:
     """Write the passage ``start_s``-``end_s`` of ``path`` shifted by ``semitones`` as a 16-bit WAV.
 
     Parameters
@@ -86,7 +86,6 @@ def render_preview(path: str | Path, start_s: float, end_s: float, semitones: fl
         WAV file written (replaced if present).
     """
     import librosa
-    import soundfile as sf
 
     from showkit.analysis.audio import load_audio
 
@@ -96,6 +95,7 @@ def render_preview(path: str | Path, start_s: float, end_s: float, semitones: fl
     peak = float(np.max(np.abs(shifted))) if shifted.size else 0.0
     if peak > 1.0:
         shifted = shifted / peak
-    out = Path(out_path)
-    sf.write(str(out), shifted, audio.rate_hz, subtype="PCM_16")
-    return out
+    from showkit.safesave import write_audio
+
+    return write_audio(Path(out_path), shifted, audio.rate_hz, "PCM_16",
+                       protect=[(path, "the source track")] + list(protect), what="preview")

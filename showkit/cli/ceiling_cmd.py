@@ -41,6 +41,7 @@ def run(args) -> int:
     from showkit.analysis.pressure import passage_report
     from showkit.physics.ceiling import MAX_GAIN_DB
     from showkit.cli.common import load_rig_from_args
+    from showkit.printable import printable
     from showkit.units import format_time
 
     rig = load_rig_from_args(args)
@@ -56,7 +57,7 @@ def run(args) -> int:
              else "digital full scale (0 dBFS)")
     if r.ceiling_db >= MAX_GAIN_DB:
         limit = f"the {MAX_GAIN_DB:+.0f} dB cap on any gain"
-    print(f"{args.track}, {where}, on {rig.name}")
+    print(f"{printable(args.track)}, {where}, on {printable(rig.name)}")
     print(f"  ceiling            {r.ceiling_db:+.1f} dB  (set by {limit})")
     if math.isfinite(r.output_peak_dbfs):
         print(f"  output peak        {r.output_peak_dbfs:.1f} dBFS at the ceiling")

@@ -36,6 +36,7 @@ def headroom_bar(headroom_db: float | None, width: int = 12, span_db: float = 12
 
 def run(args) -> int:
     from showkit.cli.common import conditions_from_args, level_caution, print_json, table
+    from showkit.printable import printable
     from showkit.show.lock import check_sheet, sheet_rig
     from showkit.show.sheet import load_sheet
 
@@ -51,11 +52,12 @@ def run(args) -> int:
         rows = [[c.id, f"{c.gain_db:+.2f}", "-" if c.ceiling_db is None else f"{c.ceiling_db:+.2f}",
                  "-" if c.headroom_db is None else f"{c.headroom_db:+.2f}", headroom_bar(c.headroom_db),
                  c.status, c.message] for c in checks]
-        print(f"{sheet.title}: {len(checks)} cues on {rig.name}, static {today.static_pa:.2f} Pa, "
+        print(f"{printable(sheet.title)}: {len(checks)} cues on {printable(rig.name)}, static {today.static_pa:.2f} Pa, "
               f"reserve {today.reserve:g}")
         print(f"ceilings rest on: {rig.drive.describe()}")
         print(table(rows, ["cue", "gain dB", "ceiling dB", "headroom", "", "status", "note"], "<>>><<<"))
         bad = [c for c in checks if c.status != "ok"]
         if bad:
-            print(f"\n{len(bad)} cue(s) need attention: " + ", ".join(f"{c.id} ({c.status})" for c in bad))
+            print(f"\n{len(bad)} cue(s) need attention: "
+                  + ", ".join(f"{printable(c.id)} ({c.status})" for c in bad))
     return 0 if all(c.status == "ok" for c in checks) else 2

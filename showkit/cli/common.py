@@ -78,6 +78,9 @@ def level_caution() -> None:
 
 def table(rows: list[list[str]], header: list[str], align: str | None = None) -> str:
     """A plain text table; ``align`` has one of ``<``/``>`` per column."""
+    from showkit.printable import printable
+
+    rows = [[printable(c) for c in r] for r in rows]  # cells may quote a file: ids, labels, paths
     cols = len(header)
     align = align or "<" * cols
     width = [max(len(str(r[i])) for r in [header] + rows) for i in range(cols)]

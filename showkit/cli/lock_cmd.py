@@ -23,6 +23,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 def run(args) -> int:
     from showkit.cli.common import level_caution, table
+    from showkit.printable import printable
     from showkit.show.lock import check_sheet, lock_sheet, sheet_rig
     from showkit.show.sheet import load_sheet, save_sheet
 
@@ -34,7 +35,7 @@ def run(args) -> int:
 
     def progress(k, n, cid):
         if cid is not None and sys.stderr.isatty():
-            print(f"\rlocking {k + 1}/{n}: {cid:<24}", end="", file=sys.stderr, flush=True)
+            print(f"\rlocking {k + 1}/{n}: {printable(cid):<24}", end="", file=sys.stderr, flush=True)
 
     messages = lock_sheet(sheet, rig, args.cue, progress)
     if sys.stderr.isatty():
@@ -42,7 +43,7 @@ def run(args) -> int:
     save_sheet(sheet)
     level_caution()
     for m in messages:
-        print(f"clamped: {m}")
+        print(f"clamped: {printable(m)}")
     rows = []
     for c, state in zip(sheet.cues, check_sheet(sheet, rig)):
         lock = c.lock
@@ -50,7 +51,7 @@ def run(args) -> int:
                      "-" if lock is None else f"{lock.ceiling_db:+.2f}",
                      "-" if lock is None else lock.limited_by.replace("_", " "), state.status])
     print(table(rows, ["cue", "kind", "gain dB", "ceiling dB", "limited by", "status"], "<<>><<"))
-    print(f"locked for {rig.name} at {rig.static_pa:.2f} Pa static, reserve {rig.reserve:g}; "
-          f"saved {sheet.path}")
+    print(f"locked for {printable(rig.name)} at {rig.static_pa:.2f} Pa static, reserve {rig.reserve:g}; "
+          f"saved {printable(sheet.path)}")
     print(f"ceilings rest on: {rig.drive.describe()}")
     return 0

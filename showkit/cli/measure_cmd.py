@@ -17,6 +17,7 @@ import argparse
 
 from showkit.cli.common import (add_conditions_options, add_json_option, add_rig_option,
                                 level_caution, print_json, table)
+from showkit.printable import printable
 
 # the work itself lives in the analysis and show layers
 from showkit.analysis.measurement import analyse_recording, calibrated_pressure, sine_amplitude  # noqa: F401,E402
@@ -88,27 +89,43 @@ def run(args) -> int:
 
 
 def _read(path: str, role: str):
-    import soundfile as sf
+    from showkit.analysis.audio import read_whole
 
-    from showkit.errors import AudioError
-    try:
-        data, rate = sf.read(path, dtype="float64", always_2d=False)
-    except (RuntimeError, sf.LibsndfileError, OSError) as exc:
-        raise AudioError(f"cannot read the {role} ({str(exc).splitlines()[0]})", path,
-                         "give a WAV or FLAC file") from None
-    return data, rate
+    return read_whole(path, role)  # a regular file, size, rate and length checked
+
+
+def _protect(args) -> list:
+    """Files a measurement reads, which its outputs must never replace."""
+    from showkit.rigfile import demo_rig_path
+
+    out = [(demo_rig_path(), "the bundled demo rig")]
+    for name, role in (("rig", "the rig file"), ("sweep", "the sweep"), ("recording", "the recording"),
+                       ("calibrator", "the calibrator recording")):
+        value = getattr(args, name, None)
+        if value:
+            out.append((value, role))
+    return out
+
+
+def _out_path(path: str, args, what: str):
+    from pathlib import Path
+
+    from showkit.safesave import check_target
+
+    return check_target(Path(path), _protect(args), what)
 
 
 def _run_sweep(args) -> int:
     import numpy as np
-    import soundfile as sf
 
     from showkit.analysis.drivefit import sweep_amplitude_bound
     from showkit.analysis.sweep import SweepSpec, check_spec, exponential_sweep
     from showkit.cli.common import load_rig_from_args
     from showkit.errors import MeasureError
+    from showkit.safesave import write_audio
 
     rig = load_rig_from_args(args)
+    _out_path(args.out, args, "sweep")  # before any work: not a folder, not the rig
     check_spec(SweepSpec(args.start, args.stop, args.length, args.rate, 0.5))
     bound, f_worst = sweep_amplitude_bound(rig.model, rig.drive, rig.static_pa, rig.reserve,
                                            (args.start, args.stop))
@@ -120,8 +137,8 @@ def _run_sweep(args) -> int:
                            "--level", f"use {bound_db:.1f} dBFS or lower (the tube peaks near {f_worst:.0f} Hz)")
     spec = SweepSpec(args.start, args.stop, args.length, args.rate, 10 ** (level_db / 20))
     x = exponential_sweep(spec)
-    sf.write(args.out, x.astype(np.float32), args.rate, subtype="FLOAT")
-    print(f"wrote {args.out}: {args.start:g}-{args.stop:g} Hz, {args.length:g} s at {args.rate} Hz, "
+    write_audio(args.out, x.astype(np.float32), args.rate, "FLOAT", protect=_protect(args), what="sweep")
+    print(f"wrote {printable(args.out)}: {args.start:g}-{args.stop:g} Hz, {args.length:g} s at {args.rate} Hz, "
           f"peak {level_db:.1f} dBFS")
     print(f"safe bound {bound_db:.1f} dBFS: keeps every hole at least {rig.reserve:.0%} of "
           f"{rig.static_pa:.2f} Pa above ambient in steady state (most sensitive near {f_worst:.0f} Hz), "
@@ -175,7 +192,7 @@ def _update(rig, report, args) -> None:
         raise RigError("--update-rig needs your own rig file", "--rig", "copy the demo rig and give --rig FILE")
     backup = write_fit(args.rig, report, drive_response=not args.no_drive_response, prefer_gas=args.gas_as)
     if not args.json:
-        print(f"updated {args.rig} (previous version kept as {backup})")
+        print(f"updated {printable(args.rig)} (previous version kept as {printable(backup)})")
 
 
 def _run_analyse(args) -> int:
@@ -193,16 +210,17 @@ def _run_analyse(args) -> int:
 
 
 def _run_live(args) -> int:
-    import soundfile as sf
-
     from showkit.cli.common import load_rig_from_args
+    from showkit.safesave import write_audio
 
     rig = load_rig_from_args(args)
+    if args.save:
+        _out_path(args.save, args, "recording")
     sweep, rate = _read(args.sweep, "sweep")
     level_caution()
     rec = play_record(sweep, int(rate), device=args.device)
     if args.save:
-        sf.write(args.save, rec, int(rate), subtype="FLOAT")
+        write_audio(args.save, rec, int(rate), "FLOAT", protect=_protect(args), what="recording")
     report = analyse_recording(rig, rec, rate, sweep, rate, "live recording")
     _report(rig, report, args)
     _plot(report, rec, rate, sweep, rate, args)
@@ -234,12 +252,11 @@ def _run_level(args) -> int:
     sine[:ramp] *= np.linspace(0, 1, ramp)
     sine[-ramp:] *= np.linspace(1, 0, ramp)
     if args.out:
-        from pathlib import Path
-
         from showkit.show.render import write_wav
 
-        write_wav(Path(args.out), sine.astype(np.float32), rate)
-        print(f"wrote {args.out}: {freq:g} Hz at {level:g} dBFS peak, 10 s; play it and read the cap pressure")
+        _out_path(args.out, args, "reference sine")
+        write_wav(args.out, sine.astype(np.float32), rate, protect=_protect(args))
+        print(f"wrote {printable(args.out)}: {freq:g} Hz at {level:g} dBFS peak, 10 s; play it and read the cap pressure")
     played = None
     if args.play:
         from showkit.analysis.pressure import signal_report
@@ -292,5 +309,5 @@ def _run_level(args) -> int:
             raise RigError("--update-rig needs your own rig file", "--rig", "give --rig FILE")
         backup = update_rig(args.rig, reference=result)
         if not args.json:
-            print(f"updated {args.rig} (previous version kept as {backup})")
+            print(f"updated {printable(args.rig)} (previous version kept as {printable(backup)})")
     return 0

@@ -45,29 +45,29 @@ def modes_report(rig, f_max_hz=None) -> dict:
 
 
 def run(args) -> int:
-    from showkit.cli.common import load_rig_from_args
-
     import math
 
+    from showkit.cli.common import load_rig_from_args
     from showkit.errors import InputError
+    from showkit.printable import printable
 
+    f_max = args.max_frequency
+    if f_max is not None and not (math.isfinite(f_max) and f_max > 0):
+        raise InputError(f"--max-frequency must be a frequency above 0 Hz (got {f_max})", "--max-frequency",
+                         "give e.g. --max-frequency 800, or leave it out for the plane-wave limit")
     rig = load_rig_from_args(args)
-    if args.max_frequency is not None and not (math.isfinite(args.max_frequency) and args.max_frequency > 0):
-        raise InputError(f"--max-frequency must be a frequency above 0 Hz (got {args.max_frequency:g})",
-                         "--max-frequency", "give e.g. --max-frequency 800, or leave it out for the "
-                         "plane-wave limit")
-    report = modes_report(rig, args.max_frequency)
+    report = modes_report(rig, f_max)
     if getattr(args, "plot", None):
         import sys
 
         from showkit.export.figures import plot_modes
 
-        print(f"wrote {plot_modes(rig, args.plot, args.max_frequency)}", file=sys.stderr)
+        print(f"wrote {plot_modes(rig, args.plot, f_max)}", file=sys.stderr)
     if args.json:
         print_json(report)
         return 0
     gas = rig.gas
-    print(f"{rig.name}: {rig.geometry.length_m:.3f} m long, {rig.geometry.bore_m * 1e3:.1f} mm bore, "
+    print(f"{printable(rig.name)}: {rig.geometry.length_m:.3f} m long, {rig.geometry.bore_m * 1e3:.1f} mm bore, "
           f"{rig.geometry.hole_count} holes")
     print(f"gas: {rig.fuel} with {rig.air_fraction * 100:g} % air at "
           f"{rig.temperature_k - 273.15:.1f} C; sound speed {gas.sound_speed_m_s:.2f} m/s, "

@@ -29,26 +29,32 @@ def run(args) -> int:
     from pathlib import Path
 
     from showkit.cli.common import conditions_from_args, level_caution, table
+    from showkit.printable import printable
+    from showkit.safesave import check_target
     from showkit.show.lock import sheet_rig
-    from showkit.show.render import render_sheet, write_per_cue, write_show
-    from showkit.show.sheet import load_sheet
+    from showkit.show.render import render_iter, write_per_cue, write_show
+    from showkit.show.sheet import load_sheet, sheet_inputs
 
     sheet = load_sheet(args.sheet)
+    protect = sheet_inputs(sheet)  # never write over the sheet, its rig or a cue's audio
+    if args.output:
+        check_target(Path(args.output), protect, "rendered show")  # before any work
     rig = sheet_rig(sheet)
     today = rig.with_conditions(conditions=conditions_from_args(args, rig.conditions))
-    cues = render_sheet(sheet, today)
     subtype = "FLOAT" if args.bits == "float" else "PCM_24"
-    level_caution()
+    cues = render_iter(sheet, today)
     if args.output:
-        written = [write_show(today, cues, Path(args.output), subtype)]
+        summaries = write_show(today, cues, Path(args.output), subtype, protect=protect)
+        written = [Path(args.output)]
     else:
-        written = write_per_cue(cues, Path(args.per_cue), subtype)
-    rows = [[c.id, f"{c.gain_db:+.2f}", f"{c.ceiling_db:+.2f}", f"{c.min_pressure_pa:.2f}",
-             f"{c.margin_pa:+.2f}", f"{c.samples.size / c.rate_hz:.1f}"] for c in cues]
+        written, summaries = write_per_cue(cues, Path(args.per_cue), subtype, protect=protect)
+    level_caution()
+    rows = [[printable(c.id), f"{c.gain_db:+.2f}", f"{c.ceiling_db:+.2f}", f"{c.min_pressure_pa:.2f}",
+             f"{c.margin_pa:+.2f}", f"{c.duration_s:.1f}"] for c in summaries]
     print(table(rows, ["cue", "gain dB", "ceiling dB", "lowest Pa", "margin Pa", "seconds"], "<>>>>>"))
     print(f"every cue verified against the pressure model at {today.static_pa:.2f} Pa static, "
           f"reserve {today.reserve:g} (safe line {today.reserve * today.static_pa:.2f} Pa); "
           f"rests on: {today.drive.describe()}")
     for p in written:
-        print(f"wrote {p}")
+        print(f"wrote {printable(p)}")
     return 0

@@ -25,6 +25,8 @@ import shutil
 import sys
 import time
 
+from showkit.printable import printable
+
 POLL_S = 0.05
 
 def keys_help() -> str:
@@ -76,12 +78,23 @@ def run(args) -> int:
     if not args.auto and not _is_tty(sys.stdin):
         raise InputError("no keyboard: standard input is not a terminal", "showkit run",
                          "run it in a terminal, or use --auto for a rehearsal with no keyboard")
-    log = ShowLog(args.log)
-    print(f"show log: {log.path}", file=out)
+    log = ShowLog(args.log, protect=_show_files(args.sheet))
+    print(f"show log: {printable(log.path)}", file=out)
     try:
         return _run(args, log, static_pa, temperature_k, out)
     finally:
         log.close()
+
+
+def _show_files(sheet_path) -> list:
+    """The files the show reads (the log must never be written into one of them)."""
+    from showkit.errors import ShowkitError
+    from showkit.show.sheet import load_sheet, sheet_inputs
+
+    try:
+        return sheet_inputs(load_sheet(sheet_path))
+    except ShowkitError:
+        return [(sheet_path, "the cue sheet")]
 
 
 def _maybe_number(text: str):
@@ -107,7 +120,7 @@ def pre_show(args, log, static_pa, temperature_k, out):
     cues, problems = pre_show_check(args.sheet, log, static_pa, temperature_k)
     for line in problems:
         if not line.startswith("cue "):
-            print(line, file=out)
+            print(printable(line), file=out)
     rows = [[str(k + 1), c.id, c.label[:32], _fmt_time(c.duration_s) if c.playable else "-",
              f"{c.gain_db:+.1f}", "-" if c.ceiling_db is None else f"{c.ceiling_db:+.1f}",
              c.then, c.status] for k, c in enumerate(cues)]
@@ -117,7 +130,7 @@ def pre_show(args, log, static_pa, temperature_k, out):
     if bad:
         print(f"\n{len(bad)} cue(s) cannot be started today:", file=out)
         for c in bad:
-            print(f"  {c.refusal()}", file=out)
+            print(f"  {printable(c.refusal())}", file=out)
         from showkit.show.operator_keys import shown
 
         print(f"{shown('go')} passes over them to the next cue that may be played.", file=out)
@@ -141,7 +154,7 @@ def _run(args, log, static_pa, temperature_k, out) -> int:
             log.write("device_error", None, None, exc.line())
         raise
     dev = engine.device
-    print(f"device: {dev.index} {dev.name} ({dev.hostapi}) at {engine.rate_hz} Hz", file=out)
+    print(f"device: {dev.index} {printable(dev.name)} ({printable(dev.hostapi)}) at {engine.rate_hz} Hz", file=out)
     try:
         if args.auto:
             try:
@@ -201,7 +214,7 @@ def run_auto(engine, out, poll_s: float = 0.01) -> int:
 
 def _skip(engine, index: int, out) -> None:
     cue = engine.cues[index]
-    print(f"skipping {cue.refusal()}", file=out)
+    print(f"skipping {printable(cue.refusal())}", file=out)
     if engine.log is not None:
         engine.log.write("check", cue.id, cue.gain_db, f"skipped in rehearsal: {cue.status}"
                          + (f": {cue.message}" if cue.message else ""))
@@ -216,9 +229,10 @@ def _fmt_time(seconds: float) -> str:
 def _print_events(events, out) -> None:
     for ev in events:
         when = "" if ev.show_time_s is None else f"[{_fmt_time(ev.show_time_s)}] "
-        cue = f" {ev.cue}" if ev.cue else ""
-        print(f"\r\x1b[K{when}{ev.kind}{cue}: {ev.detail}" if _is_tty(out)
-              else f"{when}{ev.kind}{cue}: {ev.detail}", file=out)
+        cue = f" {printable(ev.cue)}" if ev.cue else ""
+        detail = printable(ev.detail)
+        print(f"\r\x1b[K{when}{ev.kind}{cue}: {detail}" if _is_tty(out)
+              else f"{when}{ev.kind}{cue}: {detail}", file=out)
 
 
 def status_line(engine) -> str:
@@ -237,7 +251,7 @@ def status_line(engine) -> str:
     line = f"{now} | {nxt} | fader {fader} | {st.state.upper()}"
     if st.message:
         line += f" | {st.message}"
-    return line
+    return printable(line)  # cue ids and labels come from the sheet
 
 
 # ----------------------------------------------------------------- keyboard
@@ -250,6 +264,7 @@ class KeyRunner:
         self._quit_armed_until = 0.0
 
     def say(self, text: str) -> None:
+        text = printable(text)  # may quote cue ids and messages from the sheet
         print(f"\r\x1b[K{text}" if _is_tty(self.out) else text, file=self.out)
 
     def handle(self, key: str) -> bool:

@@ -51,6 +51,9 @@ class _Bar:
         if total <= 1:
             return
         fill = int(round(self.width * done / total))
+        from showkit.printable import printable
+
+        path = printable(path)
         name = path if len(path) <= 40 else "..." + path[-37:]
         self.stream.write(f"\rscanning [{'#' * fill}{'.' * (self.width - fill)}] {done}/{total} {name:<40}")
         self.stream.flush()
@@ -87,6 +90,8 @@ def _modes_text(p: dict) -> str:
 
 
 def _print_table(tracks: list[dict]) -> None:
+    from showkit.printable import printable
+
     rows = []
     for rank, t in enumerate(tracks, 1):
         if t["error"]:
@@ -101,20 +106,21 @@ def _print_table(tracks: list[dict]) -> None:
         if t["error"] or not t["passages"]:
             continue
         print()
-        print(f"{t['path']}  (score {t['score']:.0f}{', cached' if t.get('cached') else ''})")
+        print(f"{printable(t['path'])}  (score {t['score']:.0f}{', cached' if t.get('cached') else ''})")
         prow = [[f"{_fmt(p['start_s'])}-{_fmt(p['end_s'])}", f"{p['score']:.0f}", _modes_text(p),
                  f"{p['ceiling_db']:+.1f}", f"{100 * p['contrast']:.1f}"] for p in t["passages"]]
         print(table(prow, ["passage", "score", "modes hit (time share)", "ceiling dB", "contrast %"],
                     "<><>>"))
 
 
-def _write_csv(path: str, tracks: list[dict]) -> None:
+def _write_csv(path: str, tracks: list[dict], protect=()) -> None:
     import csv
+    import io
 
-    from showkit.errors import InputError
+    from showkit.safesave import write_text
 
-    try:
-        with open(path, "w", newline="", encoding="utf-8") as f:
+    if True:
+        with io.StringIO(newline="") as f:
             w = csv.writer(f)
             w.writerow(["path", "track_score", "transpose_semitones", "transpose_score", "error",
                         "start_s", "end_s", "passage_score", "modes", "ceiling_db", "contrast"])
@@ -125,16 +131,18 @@ def _write_csv(path: str, tracks: list[dict]) -> None:
                 for p in t["passages"]:
                     w.writerow(base + [p["start_s"], p["end_s"], p["score"],
                                        " ".join(str(n) for n in p["modes"]), p["ceiling_db"], p["contrast"]])
-    except OSError as exc:
-        raise InputError(f"cannot write the CSV file ({exc.strerror})", path, "check the folder and its permissions") from None
+            text = f.getvalue()
+    # the safe writer: a full disk or a bad path leaves any earlier CSV whole
+    write_text(path, text, backups=0, protect=protect, what="CSV file")
 
 
-def _previews(tracks: list[dict], semitones: float) -> None:
+def _previews(tracks: list[dict], semitones: float, protect=()) -> None:
     from pathlib import Path
 
     from showkit.analysis.scan import best_passage
     from showkit.analysis.transpose import render_preview
     from showkit.errors import ShowkitError
+    from showkit.printable import printable
 
     for t in tracks:
         p = best_passage(t) if not t["error"] else None
@@ -142,8 +150,8 @@ def _previews(tracks: list[dict], semitones: float) -> None:
             continue
         out = Path.cwd() / f"{Path(t['path']).stem}_shift{semitones:+.2f}st_{p['start_s']:.0f}-{p['end_s']:.0f}s.wav"
         try:
-            render_preview(t["path"], p["start_s"], p["end_s"], semitones, out)
-            print(f"preview: {out}", file=sys.stderr)
+            render_preview(t["path"], p["start_s"], p["end_s"], semitones, out, protect=protect)
+            print(f"preview: {printable(out)}", file=sys.stderr)
         except ShowkitError as exc:
             print(f"showkit: preview of {t['path']} skipped: {exc.line()}", file=sys.stderr)
 
@@ -159,6 +167,13 @@ def run(args) -> int:
         raise InputError(f"--transpose must be within -3 and 3 semitones (got {args.transpose:g})",
                          "--transpose", "give a shift such as --transpose -2 or --transpose 0.5")
     rig = load_rig_from_args(args)
+    if args.csv:
+        from pathlib import Path
+
+        from showkit.safesave import check_target
+
+        # before the work: a CSV over a track, a folder or a pipe is refused at once
+        check_target(Path(args.csv), [(p, "a file being scanned") for p in args.paths], "CSV file")
     bar = _Bar()
     try:
         tracks = scan_paths(rig, args.paths, jobs=args.jobs, use_cache=not args.no_cache, progress=bar)
@@ -177,10 +192,11 @@ def run(args) -> int:
               "ceilings in dB applied to the file as recorded; scores use the steady-sine flame "
               "heights on the per-frame pressure envelope.")
         print(f"Ceilings rest on: {rig.drive.describe()}.")
+    protect = [(t["path"], "a scanned track") for t in tracks] + [(p, "a scanned path") for p in args.paths]
     if args.csv:
-        _write_csv(args.csv, tracks)
+        _write_csv(args.csv, tracks, protect)
     if args.transpose is not None:
-        _previews(tracks, args.transpose)
+        _previews(tracks, args.transpose, protect)
     if getattr(args, "plot", None) and any(t["error"] is None for t in tracks):
         from showkit.export.figures import plot_scan
 

@@ -255,13 +255,12 @@ EXPECTED_ORDER = ("ember_steps", "three_rooms", ("lantern_drift", "kettle_parade
 
 def write_piece(piece: Piece, folder: Path) -> Path:
     """Render one piece and write it as 16-bit FLAC in ``folder``; returns the path."""
-    import soundfile as sf
+    from showkit.safesave import write_audio
 
     folder.mkdir(parents=True, exist_ok=True)
     samples = np.clip(piece.render(), -1.0, 1.0)
-    path = folder / piece.filename
-    sf.write(str(path), samples, RATE_HZ, format="FLAC", subtype="PCM_16")
-    return path
+    return write_audio(folder / piece.filename, samples, RATE_HZ, "PCM_16", what="demo track",
+                       file_format="FLAC")
 
 
 def write_demo_audio(folder: str | Path = "demo_audio") -> list[Path]:

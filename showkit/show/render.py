@@ -9,6 +9,7 @@ or below full scale, or the cue is refused.  Nothing is assumed.
 
 from __future__ import annotations
 
+import contextlib
 import math
 from dataclasses import dataclass
 from pathlib import Path
@@ -147,52 +148,124 @@ def check_samples(samples: np.ndarray, where: str) -> None:
                          "nothing was written; lower the level")
 
 
-def write_wav(path: Path, samples: np.ndarray, rate_hz: int, subtype: str = "FLOAT") -> None:
-    """Write mono samples as WAV (``FLOAT`` 32-bit or ``PCM_24``), via a temporary file.
+def write_wav(path: Path, samples: np.ndarray, rate_hz: int, subtype: str = "FLOAT", protect=()) -> None:
+    """Write mono samples as WAV (``FLOAT`` 32-bit or ``PCM_24``) with the safe writer.
 
     Refuses (SheetError) samples that are not finite or that pass full scale:
     nothing unchecked is ever written.
     """
-    import soundfile as sf
+    from showkit.safesave import write_audio
 
     check_samples(samples, str(path))
-    from showkit.safesave import replacing
-
-    path = Path(path)
-    path.parent.mkdir(parents=True, exist_ok=True)
-    with replacing(path, backups=0, suffix=".wav") as tmp:
-        sf.write(str(tmp), samples, rate_hz, subtype=subtype, format="WAV")
+    _check_rate(rate_hz, str(path))
+    write_audio(path, samples, rate_hz, subtype, protect=protect, what="rendered audio")
 
 
-def write_show(rig: Rig, cues: list[VerifiedCue], path: Path, subtype: str = "FLOAT",
-               gap_s: float = 0.0) -> Path:
-    """All cues, in order, in one WAV at :data:`SHOW_RATE_HZ`.
+def _check_rate(rate_hz: int, where: str) -> None:
+    from showkit.limits import MAX_RATE_HZ
 
-    Cues at another rate are resampled (and clipped to full scale), and the
-    resampled samples are verified against the pressure model again.
+    if not 0 < rate_hz <= MAX_RATE_HZ:
+        raise SheetError(f"a render at {rate_hz} Hz is above showkit's limit ({MAX_RATE_HZ} Hz)", where,
+                         "resample the source audio to 48 or 96 kHz")
+
+
+@dataclass(frozen=True)
+class RenderedSummary:
+    """What was rendered of a cue once its samples are written (for the summary table)."""
+
+    id: str
+    gain_db: float
+    ceiling_db: float
+    min_pressure_pa: float
+    margin_pa: float
+    duration_s: float
+
+
+def _summary(v: VerifiedCue) -> RenderedSummary:
+    return RenderedSummary(v.id, v.gain_db, v.ceiling_db, v.min_pressure_pa, v.margin_pa,
+                           v.samples.size / v.rate_hz)
+
+
+def write_show(rig: Rig, cues, path: Path, subtype: str = "FLOAT", gap_s: float = 0.0,
+               protect=()) -> list[RenderedSummary]:
+    """All cues, in order, in one WAV at :data:`SHOW_RATE_HZ`, written cue by cue.
+
+    ``cues`` is an iterable of :class:`VerifiedCue` (e.g. a generator rendering
+    them one at a time, so that only one cue is in memory).  Cues at another
+    rate are resampled (and clipped to full scale), and the resampled samples
+    are verified against the pressure model again.  The file appears only when
+    every cue is written (the safe writer); a refusal leaves no file.
     """
+    from showkit.safesave import audio_writer
+
     gap = np.zeros(int(round(gap_s * SHOW_RATE_HZ)), dtype=np.float32)
-    parts = []
-    for cue in cues:
-        part = _resampled(cue, SHOW_RATE_HZ)
-        if cue.rate_hz != SHOW_RATE_HZ:
-            verify(rig, part.astype(float), SHOW_RATE_HZ, f"cue {cue.id} (resampled)")
-        parts.append(part)
-        if gap.size:
-            parts.append(gap)
-    write_wav(path, np.concatenate(parts) if parts else np.zeros(0, np.float32), SHOW_RATE_HZ, subtype)
-    return Path(path)
+    done = []
+    with audio_writer(path, SHOW_RATE_HZ, 1, subtype, protect=protect, what="rendered show") as f:
+        for cue in cues:
+            part = _resampled(cue, SHOW_RATE_HZ)
+            if cue.rate_hz != SHOW_RATE_HZ:
+                verify(rig, part.astype(float), SHOW_RATE_HZ, f"cue {cue.id} (resampled)")
+            check_samples(part, f"cue {cue.id}")
+            f.write(part)
+            if gap.size:
+                f.write(gap)
+            done.append(_summary(cue))
+            del part
+    return done
 
 
-def write_per_cue(cues: list[VerifiedCue], folder: Path, subtype: str = "FLOAT") -> list[Path]:
-    """One WAV per cue at its own rate: ``NN-id.wav`` in show order."""
-    paths = []
-    for k, cue in enumerate(cues, 1):
-        safe = "".join(ch if ch.isalnum() or ch in "-_" else "_" for ch in cue.id)
-        p = Path(folder) / f"{k:02d}-{safe}.wav"
-        write_wav(p, cue.samples, cue.rate_hz, subtype)
-        paths.append(p)
-    return paths
+def _cue_file_name(k: int, cue_id: str) -> str:
+    safe = "".join(ch if ch.isalnum() or ch in "-_" else "_" for ch in cue_id)
+    return f"{k:02d}-{safe}.wav"
+
+
+def write_per_cue(cues, folder: Path, subtype: str = "FLOAT", protect=()) -> tuple[list[Path], list]:
+    """One WAV per cue at its own rate: ``NN-id.wav`` in show order; the paths and summaries.
+
+    ``folder`` must be a folder (made if missing, its parent must exist).  Every
+    file is written to a temporary file first; they are all renamed into place
+    only once every cue has been rendered and verified.
+    """
+    from showkit.errors import OutputError
+    from showkit.safesave import audio_writer
+
+    folder = Path(folder)
+    if folder.exists() and not folder.is_dir():
+        raise OutputError("is a file; --per-cue needs a folder", str(folder),
+                          "give a folder name (it is made if missing)")
+    if not folder.exists():
+        parent = folder.parent if str(folder.parent) else Path(".")
+        if not parent.is_dir():
+            raise OutputError(f"the folder {parent} does not exist", str(folder),
+                              "give a folder inside an existing one")
+        try:
+            folder.mkdir()
+        except OSError as exc:
+            raise OutputError(f"cannot make the folder ({exc.strerror})", str(folder),
+                              "give a folder you may write") from None
+    paths, summaries = [], []
+    with contextlib.ExitStack() as stack:
+        for k, cue in enumerate(cues, 1):
+            _check_rate(cue.rate_hz, f"cue {cue.id}")
+            p = folder / _cue_file_name(k, cue.id)
+            check_samples(cue.samples, f"cue {cue.id}")
+            f = stack.enter_context(audio_writer(p, cue.rate_hz, 1, subtype, protect=protect,
+                                                 what="rendered cue"))
+            f.write(cue.samples)
+            f.close()
+            paths.append(p)
+            summaries.append(_summary(cue))
+    return paths, summaries
+
+
+def render_iter(sheet: Sheet, rig: Rig, progress=None):
+    """Render and verify the cues one at a time, in show order (a generator)."""
+    for k, cue in enumerate(sheet.cues):
+        if progress:
+            progress(k, len(sheet.cues), cue.id)
+        yield render_cue(sheet, rig, cue)
+    if progress:
+        progress(len(sheet.cues), len(sheet.cues), None)
 
 
 def render_for_playback(sheet_path, static_pa: float | None = None,
@@ -214,6 +287,7 @@ def render_for_playback(sheet_path, static_pa: float | None = None,
         the pre-show check used.
     """
     from showkit.errors import ShowkitError
+    from showkit.limits import MAX_SHOW_SAMPLES
     from showkit.show.playlist import RenderedCue
     from showkit.show.preshow import cue_for_today
     from showkit.show.sheet import load_sheet
@@ -224,7 +298,16 @@ def render_for_playback(sheet_path, static_pa: float | None = None,
     problems = [f"pre-show check: static {today.static_pa:g} Pa, gas {today.temperature_k - 273.15:.1f} C, "
                 f"reserve {today.reserve:g}"]
     out = []
+    held = 0  # samples held for the live run, all cues together
     for cue in sheet.cues:
+        if held > MAX_SHOW_SAMPLES:
+            msg = (f"the show before this cue already holds {held / 48000 / 60:.0f} min of audio, "
+                   f"the most a live run keeps in memory ({MAX_SHOW_SAMPLES / 48000 / 60:.0f} min at 48 kHz); "
+                   "split the show into two sheets")
+            problems.append(f"cue {cue.id}: error: {msg}")
+            out.append(RenderedCue(cue.id, cue.label, np.zeros(0, np.float32), 48000, cue.then,
+                                   cue.gain_db, None, "error", msg))
+            continue
         try:
             # the one rule for today's conditions and a lock (also the UI's): stale is judged
             # against the rig file; a gas temperature of today re-locks valid cues in memory
@@ -235,6 +318,7 @@ def render_for_playback(sheet_path, static_pa: float | None = None,
                                        cue.gain_db, state.ceiling_db, state.status, state.message))
                 continue
             v = render_cue(sheet, today, cue)
+            held += v.samples.size * max(1.0, v.rate_hz / 48000)
             out.append(RenderedCue(v.id, v.label, v.samples, v.rate_hz, v.then, v.gain_db,
                                    v.ceiling_db, "ok", "", verify_at=played_rate_check(today)))
         except ShowkitError as exc:

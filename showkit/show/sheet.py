@@ -18,11 +18,13 @@ from __future__ import annotations
 
 import difflib
 import math
+import re
 from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 from showkit import units
 from showkit.errors import InputError, SheetError
+from showkit.limits import MAX_CUES, MAX_GENERATED_S
 from showkit.safesave import write_text
 from showkit.tomlfile import parse_toml, read_text
 
@@ -220,7 +222,8 @@ def parse_sheet(text: str, where: str = "sheet") -> Sheet:
 def _header_comments(text: str) -> str:
     """The comment block at the top of a TOML text (comment and blank lines before the first key)."""
     kept = []
-    for line in text.splitlines():
+    for line in text.split("\n"):  # TOML lines end at LF only (not at form feed or U+2028)
+        line = line.removesuffix("\r")
         if line.strip().startswith("#"):
             kept.append(line.rstrip())
         elif line.strip():
@@ -262,6 +265,9 @@ def _sheet_from_data(data: dict, where: str) -> Sheet:
     raw_cues = data.get("cue", [])
     if not isinstance(raw_cues, list):
         raise SheetError("cues must be [[cue]] tables", f"{where}: cue", "write each cue as a [[cue]] table")
+    if len(raw_cues) > MAX_CUES:
+        raise SheetError(f"the sheet has {len(raw_cues)} cues, more than showkit runs in one show ({MAX_CUES})",
+                         f"{where}: cue", "split the show into several sheets")
     cues, seen = [], set()
     for k, raw in enumerate(raw_cues):
         cue = _cue_from_data(raw, where, k)
@@ -275,6 +281,9 @@ def _sheet_from_data(data: dict, where: str) -> Sheet:
 
 def _seconds(value, at: str, what: str = "duration", positive: bool = True) -> float:
     seconds = units.duration_s(value, at)
+    if not math.isfinite(seconds):
+        raise InputError(f"{what} must be a finite time (got {seconds})", at,
+                         f"give a {what} in seconds or m:ss")
     if positive and not seconds > 0:
         raise InputError(f"{what} must be greater than zero (got {seconds:g} s)", at,
                          f"give a {what} in seconds or m:ss")
@@ -282,6 +291,16 @@ def _seconds(value, at: str, what: str = "duration", positive: bool = True) -> f
         raise InputError(f"{what} must not be negative (got {seconds:g} s)", at,
                          f"give a {what} of 0 or more seconds")
     return seconds
+
+
+def _long(seconds: float) -> str:
+    if not math.isfinite(seconds):
+        return f"{seconds} s"
+    if seconds >= 3600:
+        return f"{seconds / 3600:.3g} h"
+    if seconds >= 60:
+        return f"{seconds / 60:.3g} min"
+    return f"{seconds:.3g} s"
 
 
 def _mode(value, at: str) -> int:
@@ -333,6 +352,10 @@ def _cue_from_data(raw, where: str, k: int) -> Cue:
         if "duration" not in table:
             raise SheetError("missing duration", f"{at}: {kind}.duration", 'add duration = "10 s"')
         duration = _seconds(table["duration"], f"{at}: {kind}.duration")
+        if not duration <= MAX_GENERATED_S:  # also refuses inf and nan
+            raise SheetError(f"a {kind} of {duration:.6g} s is longer than showkit makes "
+                             f"({MAX_GENERATED_S:g} s = {_long(MAX_GENERATED_S)})", f"{at}: {kind}.duration",
+                             "split it into several cues (see Limits in the README)")
         if kind == "pause":
             source = PauseSource(duration)
         elif kind == "tone":
@@ -419,8 +442,18 @@ def _toml_value(value) -> str:
             return '"inf"' if value > 0 else '"-inf"'
         return repr(float(value))
     if isinstance(value, str):
-        return '"' + value.replace("\\", "\\\\").replace('"', '\\"').replace("\n", "\\n") + '"'
+        return '"' + _CONTROL.sub(_toml_escape, value.replace("\\", "\\\\").replace('"', '\\"')) + '"'
     raise TypeError(value)
+
+
+# every control character TOML forbids raw in a basic string (all of C0 but tab, and DEL)
+_CONTROL = re.compile("[\x00-\x08\x0a-\x1f\x7f]")
+_SHORT_ESCAPES = {"\b": "\\b", "\n": "\\n", "\f": "\\f", "\r": "\\r"}
+
+
+def _toml_escape(match: re.Match) -> str:
+    ch = match.group(0)
+    return _SHORT_ESCAPES.get(ch) or f"\\u{ord(ch):04X}"
 
 
 def _inline(table: dict) -> str:
@@ -470,16 +503,43 @@ def sheet_to_text(sheet: Sheet) -> str:
 
 
 def save_sheet(sheet: Sheet, path: str | Path | None = None, _before_rename=None) -> Path:
-    """Save the sheet safely (:func:`showkit.safesave.write_text`); returns the path written."""
+    """Save the sheet safely (:func:`showkit.safesave.write_text`); returns the path written.
+
+    Never over one of the sheet's own audio files or its rig file.
+    """
+    from showkit.errors import OutputError
+
     target = Path(path) if path is not None else sheet.path
     if target is None:
         raise SheetError("the sheet has no file name yet", None, "save it with a path")
     text = sheet_to_text(sheet)
     parse_sheet(text, str(target))  # never write what we could not read back
     try:
-        write_text(target, text, backups=1, _before_rename=_before_rename)
-    except OSError as exc:
-        raise SheetError(f"cannot save ({exc.strerror or exc})", str(target),
+        write_text(target, text, backups=1, _before_rename=_before_rename,
+                   protect=sheet_inputs(sheet, include_sheet=False), what="cue sheet")
+    except OutputError as exc:
+        raise SheetError(f"cannot save ({exc.what})", exc.where,
                          "check the folder exists and is writable; the previous version is untouched") from None
     sheet.path = target
     return target
+
+
+def sheet_inputs(sheet: Sheet, include_sheet: bool = True) -> list[tuple[Path, str]]:
+    """The files the show reads, as ``(path, role)``: its sheet, its rig and every cue's audio.
+
+    Writers are given these so that nothing showkit writes lands on one of them.
+    """
+    out: list[tuple[Path, str]] = []
+    if include_sheet and sheet.path is not None:
+        out.append((sheet.path, "the cue sheet itself"))
+    try:
+        rig = sheet.rig_path()
+    except (OSError, RuntimeError):
+        rig = None
+    if rig is not None:
+        out.append((rig, "the sheet's rig file"))
+    for cue in sheet.cues:
+        if isinstance(cue.source, AudioSource) and not cue.source.path.startswith(DEMO_AUDIO_PREFIX):
+            p = Path(cue.source.path).expanduser()
+            out.append((p if p.is_absolute() else sheet.folder / p, f"the source audio of cue {cue.id}"))
+    return out

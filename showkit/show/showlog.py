@@ -27,6 +27,7 @@ import datetime as _dt
 import json
 import math
 import os
+import stat
 from pathlib import Path
 
 from showkit.errors import InputError, ShowkitError
@@ -90,14 +91,32 @@ class ShowLog:
         if missing.  An existing file is appended to, never truncated.
     """
 
-    def __init__(self, path: str | Path | None = None):
+    def __init__(self, path: str | Path | None = None, protect=()):
+        from showkit.safesave import check_target
+
+        self._fd = None
         self.path = Path(path) if path is not None else default_log_path()
         try:
             self.path.parent.mkdir(parents=True, exist_ok=True)
-            self._fd = os.open(self.path, os.O_WRONLY | os.O_APPEND | os.O_CREAT, 0o644)
+            check_target(self.path, protect, "show log")  # not a folder, pipe, device or show file
+            # O_NONBLOCK: a named pipe planted at the path must not hang the show
+            flags = (os.O_WRONLY | os.O_APPEND | os.O_CREAT | getattr(os, "O_NONBLOCK", 0)
+                     | getattr(os, "O_NOCTTY", 0))
+            fd = os.open(self.path, flags, 0o644)
+        except ShowkitError as exc:
+            raise LogError(exc.what, exc.where, "give a regular file with --log FILE") from None
         except OSError as exc:
             raise LogError(f"cannot open the show log ({exc.strerror or exc})", str(self.path),
                            "give a writable file with --log FILE") from None
+        try:
+            if not stat.S_ISREG(os.fstat(fd).st_mode):
+                raise LogError("is not a regular file, not a show log", str(self.path),
+                               "give a regular file with --log FILE")
+            os.set_blocking(fd, True)
+        except BaseException:
+            os.close(fd)
+            raise
+        self._fd = fd
         self.count = 0
 
     def write(self, event: str, cue: str | None = None, gain_db: float | None = None,
@@ -131,9 +150,15 @@ class ShowLog:
 
 
 def read_log(path: str | Path) -> list[dict]:
-    """Every whole record in a show log, in order; a torn or garbled line is skipped."""
+    """Every whole record in a show log, in order; a torn or garbled line is skipped.
+
+    The log is read through :func:`showkit.fileio.open_log`: a regular file of at
+    most :data:`showkit.limits.LOG_MAX_BYTES`, or one :class:`LogError` line.
+    """
+    from showkit.fileio import open_log
+
     records = []
-    with open(path, "rb") as fh:
+    with open_log(path, LogError) as fh:
         for raw in fh:
             if not raw.endswith(b"\n"):
                 continue  # the last line of a crash, cut short: not a whole record

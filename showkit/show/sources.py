@@ -1,6 +1,8 @@
 """The sound of a cue at unit gain: audio passages, tones, glides and pauses.
 
-Tones and glides are made at 48 kHz with a peak of 1.0 (0 dBFS) before the
+A generated cue (tone, glide, pause) is at most
+:data:`showkit.limits.MAX_GENERATED_S` long: it is held whole in memory for
+locking and rendering.  Tones and glides are made at 48 kHz with a peak of 1.0 (0 dBFS) before the
 cue's gain; a tone on a mode lands on the rig's mode frequency; a glide
 sweeps exponentially in frequency, ``f(t) = f1 (f2 / f1)^(t / T)``, with the
 phase its integral, ``2 pi f1 T (exp(t ln(f2/f1) / T) - 1) / ln(f2/f1)``
@@ -17,6 +19,7 @@ from functools import lru_cache
 import numpy as np
 
 from showkit.errors import SheetError
+from showkit.limits import MAX_GENERATED_S
 from showkit.rigfile import Rig
 from showkit.show.sheet import AudioSource, Cue, GlideSource, PauseSource, Sheet, ToneSource
 
@@ -118,6 +121,10 @@ def cue_signal(sheet: Sheet, rig: Rig, cue: Cue) -> CueSignal:
     where = f"{sheet.path or 'sheet'}: cue {cue.id}"
     s = cue.source
     f1 = f2 = None
+    if not isinstance(s, AudioSource) and not s.duration_s <= MAX_GENERATED_S:
+        raise SheetError(f"a {s.kind} of {s.duration_s:g} s is longer than showkit makes "
+                         f"({MAX_GENERATED_S:g} s)", f"{where}: {s.kind}.duration",
+                         "split it into several cues (see Limits in the README)")
     if isinstance(s, AudioSource):
         path = sheet.audio_path(s)
         try:

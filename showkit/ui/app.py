@@ -24,6 +24,7 @@ from textual.containers import Horizontal
 from textual.widgets import ContentSwitcher, Footer, ProgressBar, Static
 
 from showkit.errors import ShowkitError
+from showkit.printable import printable
 from showkit.ui.measure import MeasureView
 from showkit.ui.run import RunView
 from showkit.ui.session import Session
@@ -125,6 +126,7 @@ class ShowkitApp(App):
     # ------------------------------------------------------------ status line and progress
     def say(self, text: str, warn: bool = False) -> None:
         """A message in the status line (warnings also as a notification, once per text)."""
+        text = printable(text)  # may quote cue ids, labels and paths from files
         self._status_text = text
         status = self.query_one("#status", Static)
         status.update(Text(("⚠ " if warn else "") + text))
@@ -568,6 +570,8 @@ PANIC_HINT = "esc/ctrl+c PANIC"
 def _topbar_text(title: str, variants: list[list[str]], width: int) -> Text:
     """The top line in ``width`` cells: the first variant that fits, else the title cut."""
     sep = "  ·  "
+    title = printable(title)
+    variants = [[printable(p) for p in parts] for parts in variants]
     for prefix in ("showkit" + sep, ""):
         for parts in variants:
             left = prefix + sep.join([title] + parts)

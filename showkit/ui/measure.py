@@ -25,6 +25,7 @@ from textual.widget import Widget
 from textual.widgets import DataTable, Static
 
 from showkit.errors import ShowkitError
+from showkit.printable import printable
 from showkit.safety import LEVEL_CAUTION
 from showkit.ui.drawing import BLOCKS
 
@@ -251,8 +252,9 @@ class MeasureView(Vertical):
             text += "\n" + "\n".join(f"⚠ {w}" for w in warnings)
         self.query_one("#measure-fit", Static).update(Text(text))
         self.query_one("#measure-title", Static).update(
-            f"[b]Measure the tube[/b]  {escape(m.recording.name)} with {escape(m.sweep.name)} on "
-            f"{escape(m.rig_name)}: {len(report['modes'])} modes   W writes the fit into the rig file")
+            f"[b]Measure the tube[/b]  {escape(printable(m.recording.name))} with "
+            f"{escape(printable(m.sweep.name))} on {escape(printable(m.rig_name))}: {len(report['modes'])} modes"
+            "   W writes the fit into the rig file")
         self.app.say(f"{len(report['modes'])} modes measured; the model was off by "
                      f"{_rms(fit['before_cents']):.1f} cents rms before the fit, {fit['rms_cents']:.1f} after"
                      + (f"; {len(warnings)} warning(s)" if warnings else ""), warn=bool(warnings))
@@ -293,7 +295,7 @@ class MeasureView(Vertical):
         self.app.query_one(RunView).rig_changed()  # its cues were verified on the old rig
         self.app.update_topbar()
         done = f"wrote the fit into {Path(path).name} (previous version kept as {Path(backup).name})"
-        self.query_one("#measure-title", Static).update(f"[b]Measure the tube[/b]  {escape(done)}")
+        self.query_one("#measure-title", Static).update(f"[b]Measure the tube[/b]  {escape(printable(done))}")
         self.app.say(f"{done}; modes and ceilings re-derived for the measured tube")
 
 
@@ -340,15 +342,6 @@ def _rms(values) -> float:
 
 
 def _read(path: Path, role: str):
-    import soundfile as sf
+    from showkit.analysis.audio import read_whole
 
-    from showkit.errors import AudioError
-
-    if not Path(path).is_file():
-        raise AudioError(f"no such {role} file", str(path), f"give the path of the {role} (WAV or FLAC)")
-    try:
-        data, rate = sf.read(str(path), dtype="float64", always_2d=False)
-    except (RuntimeError, sf.LibsndfileError, OSError) as exc:
-        raise AudioError(f"cannot read the {role} ({str(exc).splitlines()[0]})", str(path),
-                         "give a WAV or FLAC file") from None
-    return data, rate
+    return read_whole(path, role)  # a regular file within the limits, or one line

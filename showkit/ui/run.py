@@ -37,6 +37,7 @@ from textual.widget import Widget
 from textual.widgets import DataTable, Static
 
 from showkit.errors import ShowkitError
+from showkit.printable import printable
 from showkit.safety import LEVEL_CAUTION
 from showkit.show.operator_keys import shown
 
@@ -380,7 +381,7 @@ class RunView(Vertical):
         title = f"[b]Run the show[/b]  pre-show check: {escape(self.readings)}: "
         if bad:
             title += f"[b]{len(bad)} cue(s) no longer fit[/b] and cannot be started: " + \
-                escape(", ".join(c.id for c in bad))
+                escape(printable(", ".join(c.id for c in bad)))
         else:
             title += f"all {len(cues)} cues fit"
         self.query_one("#run-title", Static).update(title)
@@ -396,8 +397,8 @@ class RunView(Vertical):
         for k, c in enumerate(self.cues if cues is None else cues, 1):
             state = Text(c.status if c.playable else c.status.upper(),
                          style="" if c.playable else "bold reverse")
-            why = c.label if c.playable else c.message
-            table.add_row(str(k), c.id, fmt_time(c.duration_s) if c.playable else "-", f"{c.gain_db:+.1f}",
+            why = Text(printable(c.label if c.playable else c.message))
+            table.add_row(str(k), Text(printable(c.id)), fmt_time(c.duration_s) if c.playable else "-", f"{c.gain_db:+.1f}",
                           "-" if c.ceiling_db is None else f"{c.ceiling_db:+.1f}", state, c.then, why,
                           key=c.id)
 
@@ -526,16 +527,17 @@ class RunView(Vertical):
             cue = engine.cues[st.cue_index]
             total = max(cue.duration_s, 1e-9)
             done = int(round(12 * min(1.0, st.elapsed_s / total)))
-            lines.append(f"NOW  {st.cue_index + 1} {st.cue_id}  '{cue.label[:26]}'  "
+            lines.append(f"NOW  {st.cue_index + 1} {printable(st.cue_id)}  '{printable(cue.label[:26])}'  "
                          f"{fmt_time(st.elapsed_s)} elapsed, {fmt_time(st.left_s)} left "
                          + "█" * done + "·" * (12 - done))
         else:
             lines.append("NOW  -")
         if st.next_id is not None:
             nxt = engine.cues[st.next_index]
-            line = f"NEXT {st.next_index + 1} {st.next_id}  '{nxt.label[:26]}'  ({fmt_time(nxt.duration_s)})"
+            line = (f"NEXT {st.next_index + 1} {printable(st.next_id)}  '{printable(nxt.label[:26])}'  "
+                    f"({fmt_time(nxt.duration_s)})")
             if st.skipped_ids:
-                line += f"  passing over {', '.join(st.skipped_ids)}: they do not fit today"
+                line += f"  passing over {printable(', '.join(st.skipped_ids))}: they do not fit today"
             lines.append(line)
         else:
             lines.append("NEXT (end of show)")

@@ -10,6 +10,8 @@ from textual.containers import VerticalScroll
 from textual.screen import ModalScreen
 from textual.widgets import Static
 
+from showkit.errors import ShowkitError
+from showkit.safesave import write_text
 from showkit.safety import CAUTION_TITLE, CAUTIONS, LEVEL_CAUTION
 
 MARKER = "cautions-read"
@@ -30,8 +32,8 @@ def mark_cautions_seen() -> None:
     try:
         p = marker_path()
         p.parent.mkdir(parents=True, exist_ok=True)
-        p.write_text("The safety cautions were shown and acknowledged.\n", encoding="utf-8")
-    except OSError:
+        write_text(p, "The safety cautions were shown and acknowledged.\n", backups=0, what="marker")
+    except (OSError, ShowkitError):
         pass
 
 

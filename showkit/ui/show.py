@@ -10,6 +10,7 @@ from textual.containers import Vertical
 from textual.widgets import DataTable, Static
 
 from showkit.errors import ShowkitError
+from showkit.printable import printable
 from showkit.safety import LEVEL_CAUTION
 from showkit.ui.drawing import headroom_bar
 from showkit.ui.session import GAIN_STEP_DB, describe_source
@@ -89,8 +90,9 @@ class ShowView(Vertical):
             head = None if check is None else check.headroom_db
             state = Text(STATUS_MARK[status], style="bold reverse" if status in ("over", "error") else
                          ("italic" if status == "stale" else ""))
-            table.add_row(str(k), cue.id, f"{cue.gain_db:+.1f}", ceiling, headroom_bar(head), state,
-                          cue.then, cue.label, describe_source(cue), key=cue.id)
+            table.add_row(str(k), Text(printable(cue.id)), f"{cue.gain_db:+.1f}", ceiling, headroom_bar(head),
+                          state, cue.then, Text(printable(cue.label)), Text(printable(describe_source(cue))),
+                          key=cue.id)
         if keep is not None and keep in [c.id for c in sheet.cues]:
             table.move_cursor(row=sheet.index(keep))
         self.query_one("#show-title", Static).update(self._title())
@@ -101,7 +103,8 @@ class ShowView(Vertical):
         checks = list(s.checks.values())
         counts = {k: sum(1 for c in checks if c.status == k) for k in ("ok", "over", "stale", "error")}
         state = "  ".join(f"{v} {k}" for k, v in counts.items() if v) or "checking…"
-        return f"[b]{escape(s.sheet.title)}[/b]  ({len(s.sheet.cues)} cues: {state})  {escape(s.sheet.path.name)}"
+        return (f"[b]{escape(printable(s.sheet.title))}[/b]  ({len(s.sheet.cues)} cues: {state})  "
+                f"{escape(printable(s.sheet.path.name))}")
 
     def refresh_detail(self) -> None:
         cid = self.selected_id()
@@ -116,9 +119,9 @@ class ShowView(Vertical):
         rests = ""
         if check is not None and check.ceiling_db is not None and self.session.rig_loaded:
             rests = f"; rests on {self.session.rig.drive.brief()}"
-        detail.update(f"[b]{escape(cue.id)}[/b]  gain {cue.gain_db:+.2f} dB{ceiling}, fade in {cue.fade_in_s:g} s, "
+        detail.update(f"[b]{escape(printable(cue.id))}[/b]  gain {cue.gain_db:+.2f} dB{ceiling}, fade in {cue.fade_in_s:g} s, "
                       f"out {cue.fade_out_s:g} s, then {cue.then}{', ride' if cue.ride else ''}\n"
-                      f"{escape(msg + rests)}")
+                      f"{escape(printable(msg + rests))}")
 
     def on_data_table_row_highlighted(self, event: DataTable.RowHighlighted) -> None:
         self.refresh_detail()

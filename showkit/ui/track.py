@@ -13,6 +13,7 @@ from textual.widget import Widget
 from textual.widgets import DataTable, Static
 
 from showkit.errors import ShowkitError
+from showkit.printable import printable
 from showkit.ui.drawing import flame_rows, hole_columns, mode_map, span_strip
 
 #: Cursor steps, s.
@@ -220,7 +221,7 @@ class TrackView(Vertical):
             self.show_analysis(analysis)
 
         name = Path(wanted.removeprefix("demo:")).name
-        self.query_one("#track-title", Static).update(Text(f"{name}  analysing…"))
+        self.query_one("#track-title", Static).update(Text(f"{printable(name)}  analysing…"))
         self.app.run_job("track", work, done, f"analysing {name}" + (f" transposed {shift:+d}" if shift else ""))
 
     def conditions_changed(self) -> None:
@@ -243,7 +244,7 @@ class TrackView(Vertical):
         before = "" if old is None or old.path != a.path or old.transpose == a.transpose else \
             f" (was {old.score:.1f} at {old.transpose:+d})"
         self.query_one("#track-title", Static).update(
-            f"[b]{escape(a.path.name)}[/b]  {_clock(a.duration_s)}  transposed {a.transpose:+d} st  "
+            f"[b]{escape(printable(a.path.name))}[/b]  {_clock(a.duration_s)}  transposed {a.transpose:+d} st  "
             f"score {a.score:.1f}{before}  ceiling {a.ceiling_db:+.1f} dB  "
             + (f"scan suggests {a.suggestion:+d} st" if a.suggestion else "")
             + ("" if a.map_modes else "  (no mode map: " + a.note + ")"))

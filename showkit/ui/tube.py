@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from rich.markup import escape
 from rich.text import Text
 from textual.app import ComposeResult
 from textual.binding import Binding
@@ -9,6 +10,7 @@ from textual.containers import Vertical
 from textual.widget import Widget
 from textual.widgets import DataTable, Static
 
+from showkit.printable import printable
 from showkit.ui.drawing import flame_picture
 
 FLAME_LINES = 5
@@ -81,7 +83,7 @@ class TubeView(Vertical):
         if self.session.temperature_k is not None:
             marks.append("temperature: today's")
         self.query_one("#rig-facts", Static).update(
-            f"[b]{rig.name}[/b]  {g.length_m * 1000:.0f} mm long, bore {g.bore_m * 1000:.0f} mm, "
+            f"[b]{escape(printable(rig.name))}[/b]  {g.length_m * 1000:.0f} mm long, bore {g.bore_m * 1000:.0f} mm, "
             f"{g.hole_count} holes of {g.hole_diameter_m * 1000:.1f} mm\n"
             f"gas {rig.fuel} ({rig.air_fraction * 100:.0f} % air) at {temp_c:.1f} °C   "
             f"static {rig.static_pa:.1f} Pa   reserve {rig.reserve * 100:.0f} %"

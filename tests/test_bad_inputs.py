@@ -1,0 +1,578 @@
+"""A corpus of bad inputs: rig files, sheets, audio, options and output paths (issue 14).
+
+Every case runs the command line (``main(argv)`` in this process, under an
+alarm so that a hang fails the test instead of stalling it) and asserts:
+
+* no traceback -- ``main`` returns; any exception escaping it fails the case;
+* the exit status (2 for a refusal, 0 where the input is odd but fine);
+* one printable line per error on stderr, naming what is wrong;
+* files the user had are unchanged (sheet, rig, tracks, backups) where the
+  case writes;
+* no hang: ``signal.alarm`` stops a case after :data:`HANG_S` seconds.
+
+A handful run as subprocesses with a timeout and an address-space limit
+(``RLIMIT_AS`` of 2 GB), which asserts the memory bound of the worst inputs:
+a memory bomb dies with MemoryError there instead of passing.
+"""
+
+from __future__ import annotations
+
+import errno
+import os
+import shutil
+import signal
+import struct
+import subprocess
+import sys
+from dataclasses import dataclass
+from pathlib import Path
+from collections.abc import Callable
+
+import numpy as np
+import pytest
+import soundfile as sf
+
+from showkit.printable import printable
+
+HANG_S = 60
+MEMORY_LIMIT_BYTES = 2 << 30
+REPO = Path(__file__).resolve().parent.parent
+
+RIG = """name = "Bench tube"
+[tube]
+length = "1.2 m"
+bore = "50 mm"
+wall = "2 mm"
+[holes]
+count = 40
+spacing = "25 mm"
+first = "0.1 m"
+diameter = "1.5 mm"
+[gas]
+fuel = "propane"
+static_pressure = "20 Pa"
+"""
+
+SHEET = """title = "Bad input show"
+rig = "rig.toml"
+format = 1
+
+[[cue]]
+id = "song"
+audio = "track.wav"
+start = 0.0
+end = 1.0
+gain = -30.0
+
+[[cue]]
+id = "tone"
+tone = { frequency = "120 Hz", duration = 1.0 }
+gain = -40.0
+"""
+
+
+class Hang(Exception):
+    pass
+
+
+def _alarm(signum, frame):
+    raise Hang(f"no answer within {HANG_S} s")
+
+
+def run_cli(argv, capsys, timeout: int = HANG_S):
+    """``(status, stdout, stderr)`` of ``showkit argv`` run in this process, under an alarm."""
+    from showkit.cli.main import main
+
+    old = signal.signal(signal.SIGALRM, _alarm)
+    signal.alarm(timeout)
+    try:
+        status = main([str(a) for a in argv])
+    finally:
+        signal.alarm(0)
+        signal.signal(signal.SIGALRM, old)
+    out, err = capsys.readouterr()
+    return status, out, err
+
+
+def error_lines(err: str) -> list[str]:
+    return [line for line in err.splitlines() if line.startswith("showkit:")]
+
+
+def assert_printable(text: str) -> None:
+    for line in text.splitlines():
+        assert printable(line) == line, f"unprintable output: {line!r}"
+
+
+# ---------------------------------------------------------------- shared files
+def _tone_wav(path: Path, seconds: float = 1.5, rate: int = 48000) -> Path:
+    t = np.arange(int(seconds * rate)) / rate
+    sf.write(path, 0.3 * np.sin(2 * np.pi * 120.0 * t), rate, subtype="PCM_16")
+    return path
+
+
+@pytest.fixture(scope="module")
+def base(tmp_path_factory):
+    """A rig, a track and the sheet locked once (its locked text is copied into every case)."""
+    from showkit.cli.main import main
+
+    folder = tmp_path_factory.mktemp("bad-inputs-base")
+    cache = tmp_path_factory.mktemp("bad-inputs-cache")
+    old = os.environ.get("SHOWKIT_CACHE_DIR")
+    os.environ["SHOWKIT_CACHE_DIR"] = str(cache)
+    try:
+        (folder / "rig.toml").write_text(RIG)
+        _tone_wav(folder / "track.wav")
+        (folder / "show.toml").write_text(SHEET)
+        assert main(["lock", str(folder / "show.toml")]) == 0
+    finally:
+        if old is None:
+            os.environ.pop("SHOWKIT_CACHE_DIR", None)
+        else:
+            os.environ["SHOWKIT_CACHE_DIR"] = old
+    return folder
+
+
+@dataclass
+class Env:
+    """One case's folder: the locked sheet, its rig and track, copied fresh."""
+
+    dir: Path
+
+    def p(self, name: str) -> Path:
+        return self.dir / name
+
+    def write(self, name: str, text: str | bytes) -> Path:
+        path = self.dir / name
+        path.parent.mkdir(parents=True, exist_ok=True)
+        if isinstance(text, bytes):
+            path.write_bytes(text)
+        else:
+            path.write_text(text, encoding="utf-8")
+        return path
+
+    def fifo(self, name: str) -> Path:
+        path = self.dir / name
+        path.parent.mkdir(parents=True, exist_ok=True)
+        os.mkfifo(path)
+        return path
+
+    def sheet_with(self, name: str, body: str, rig: str = "rig.toml") -> Path:
+        return self.write(name, f'title = "x"\nrig = "{rig}"\nformat = 1\n' + body)
+
+    def snapshot(self) -> dict[str, bytes]:
+        return {p.name: p.read_bytes() for p in self.dir.iterdir() if p.is_file() and not p.is_symlink()}
+
+
+@pytest.fixture
+def env(base, tmp_path, monkeypatch):
+    for name in ("rig.toml", "track.wav", "show.toml"):
+        shutil.copy(base / name, tmp_path / name)
+    monkeypatch.setenv("SHOWKIT_CACHE_DIR", str(tmp_path / "cache"))
+    monkeypatch.setenv("SHOWKIT_DATA_DIR", str(tmp_path / "data"))
+    monkeypatch.chdir(tmp_path)
+    return Env(tmp_path)
+
+
+# ---------------------------------------------------------------- the corpus
+def _nested(depth: int) -> str:
+    return "[" * depth + "]" * depth
+
+
+def _wav_cut_short(env: Env, name: str = "cut.wav") -> Path:
+    """Header says 96 000 frames (16-bit mono), 47 989 are present."""
+    full = _tone_wav(env.p("full.wav"), 2.0)
+    data = full.read_bytes()
+    offset = data.index(b"data") + 8
+    return env.write(name, data[:offset + 47989 * 2])
+
+
+def _wav_claims_4gb(env: Env, name: str = "huge.wav") -> Path:
+    data = bytearray(_tone_wav(env.p("small.wav"), 0.5).read_bytes())
+    i = data.index(b"data")
+    data[i + 4:i + 8] = struct.pack("<I", 0xFFFFFFF0)
+    return env.write(name, bytes(data))
+
+
+def _big_rig(env: Env) -> Path:
+    return env.write("big.toml", RIG + "# " + "x" * (2 << 20) + "\n")
+
+
+def _rig_case(name, make, expect, status=2):
+    return Case(f"rig-{name}", lambda e: ["modes", "--rig", make(e)], expect, status)
+
+
+@dataclass
+class Case:
+    id: str
+    argv: Callable[[Env], list]
+    expect: str | None  # a piece of the error line (None: no error expected)
+    status: int = 2
+    unchanged: tuple = ()  # files whose bytes must not change
+    check: Callable[[Env, str, str], None] | None = None
+    patch: Callable | None = None  # called with (monkeypatch) before the run
+
+
+def _enospc(*args, **kwargs):
+    raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC))
+
+
+def _disk_full(monkeypatch):
+    """Every fsync and every write through os.write fails as on a full disk."""
+    import showkit.safesave as safesave
+
+    monkeypatch.setattr(safesave.os, "fsync", _enospc)
+
+
+def _no_escape_chars(env, out, err):
+    assert "\x1b" not in out + err and "\x07" not in out + err
+    assert "\\x1b" in out  # shown, as an escape
+
+
+def _keeps_form_feed(env, out, err):
+    from showkit.show.sheet import load_sheet
+
+    sheet = load_sheet(env.p("ff.toml"))
+    assert sheet.cue("t").notes == "form\ffeed\x01"
+
+
+def _lock_twice(e):
+    from showkit.cli.main import main
+
+    path = e.sheet_with("ff.toml", '[[cue]]\nid = "t"\npause = { duration = 1 }\nnotes = "form\\ffeed\\u0001"\n')
+    assert main(["lock", str(path)]) == 0
+    return ["lock", path]
+
+
+def _scan_rows(expect_errors: int, expect_ok: int):
+    def check(env, out, err):
+        assert out.count("ERROR:") == expect_errors
+        assert "d/track.wav" in out or "track.wav" in out
+        assert_printable(out)
+    return check
+
+
+def _cached_shape(shape):
+    def argv(e):
+        from showkit.analysis import scancache
+        from showkit.analysis.audio import content_hash
+        from showkit.rigfile import load_rig
+
+        key = scancache.cache_key(content_hash(e.p("track.wav")), load_rig(e.p("rig.toml")))
+        folder = scancache.cache_dir()
+        folder.mkdir(parents=True, exist_ok=True)
+        import json
+
+        import showkit
+        (folder / f"{key}.json").write_text(json.dumps({"version": showkit.ANALYSIS_VERSION, "result": shape}))
+        return ["scan", e.p("track.wav"), "--rig", e.p("rig.toml"), "--jobs", "1", "--json"]
+    return argv
+
+
+def _scanned_fresh(env, out, err):
+    import json
+
+    data = json.loads(out)
+    track = data["tracks"][0]
+    assert track["error"] is None and track["cached"] is False and track["passages"]
+
+
+def _victim_intact(env, out, err):
+    assert env.p("victim.txt").read_text() == "precious\n"
+    assert env.p("show.toml.bak").is_file() and not env.p("show.toml.bak").is_symlink()
+
+
+CASES = [
+    # ---- rig files (modes --rig)
+    _rig_case("fifo", lambda e: e.fifo("r.fifo"), "named pipe"),
+    _rig_case("dev-zero", lambda e: "/dev/zero", "character device"),
+    _rig_case("dev-urandom", lambda e: "/dev/urandom", "character device"),
+    _rig_case("folder", lambda e: e.dir, "folder"),
+    _rig_case("missing", lambda e: e.p("nope.toml"), "no such rig file"),
+    _rig_case("symlink-to-dev-zero", lambda e: (os.symlink("/dev/zero", e.p("z.toml")), e.p("z.toml"))[1],
+              "character device"),
+    _rig_case("nested-3000", lambda e: e.write("n.toml", RIG + "x = " + _nested(3000) + "\n"),
+              "nest too deeply"),
+    _rig_case("nested-40", lambda e: e.write("n.toml", RIG + "x = " + _nested(40) + "\n"), "nest too deeply"),
+    _rig_case("over-1-MiB", _big_rig, "more than showkit reads"),
+    _rig_case("not-utf8", lambda e: e.write("b.toml", RIG.encode() + b"# \xff\xfe\n"), "not UTF-8"),
+    _rig_case("nul-bytes", lambda e: e.write("b.toml", b"\x00" * 64), None),
+    _rig_case("syntax", lambda e: e.write("s.toml", "[tube\nlength = 1"), "TOML syntax error"),
+    _rig_case("empty", lambda e: e.write("e.toml", ""), "missing field"),
+    _rig_case("holes-1e9", lambda e: e.write("h.toml", _rig_text(count_=_rig_count("1000000000"))),
+              "more holes than showkit models"),
+    _rig_case("holes-negative", lambda e: e.write("h.toml", _rig_text(count_=_rig_count("-1"))), "negative"),
+    _rig_case("holes-text", lambda e: e.write("h.toml", _rig_text(count_=_rig_count('"many"'))), "whole number"),
+    _rig_case("positions-6000", lambda e: e.write(
+        "p.toml", RIG.replace('count = 40\nspacing = "25 mm"\nfirst = "0.1 m"\n',
+                              "positions = [" + ", ".join(["0.5"] * 6000) + "]\n")), "more holes"),
+    _rig_case("unknown-field", lambda e: e.write("u.toml", RIG + "[colour]\nred = 1\n"), "unknown field"),
+    _rig_case("length-nan", lambda e: e.write("l.toml", RIG.replace('"1.2 m"', "nan")), None),
+    Case("rig-name-escapes", lambda e: ["modes", "--rig", e.write(
+        "esc.toml", RIG.replace('"Bench tube"', '"Tube\\u001b]0;title\\u0007\\u001b[2J"'))],
+        None, 0, check=_no_escape_chars),
+    # ---- sheets (check / lock)
+    Case("sheet-fifo", lambda e: ["check", e.fifo("s.fifo")], "named pipe"),
+    Case("sheet-dev-zero", lambda e: ["check", "/dev/zero"], "character device"),
+    Case("sheet-folder", lambda e: ["check", e.dir], "folder"),
+    Case("sheet-missing", lambda e: ["check", e.p("none.toml")], "no such cue sheet"),
+    Case("sheet-nested-3000", lambda e: ["check", e.sheet_with("n.toml", "notes2 = " + _nested(3000) + "\n")],
+         "nest too deeply"),
+    Case("sheet-over-limit", lambda e: ["check", e.write("big.toml", SHEET + "#" + "y" * (33 << 20) + "\n")],
+         "more than showkit reads"),
+    Case("sheet-not-utf8", lambda e: ["check", e.write("b.toml", SHEET.encode() + b"# \xc3\x28\n")], "not UTF-8"),
+    Case("sheet-rig-fifo", lambda e: (e.fifo("r.fifo"), ["check", e.sheet_with(
+        "s.toml", '[[cue]]\nid = "p"\npause = { duration = 1 }\n', rig="r.fifo")])[1], "named pipe"),
+    Case("sheet-rig-dev-zero", lambda e: ["check", e.sheet_with(
+        "s.toml", '[[cue]]\nid = "p"\npause = { duration = 1 }\n', rig="/dev/zero")], "character device"),
+    Case("tone-8h20", lambda e: ["lock", e.sheet_with(
+        "s.toml", '[[cue]]\nid = "t"\ntone = { frequency = 100, duration = "8:20:00" }\n')],
+        "longer than showkit makes", unchanged=("s.toml",)),
+    Case("tone-1e9", lambda e: ["lock", e.sheet_with(
+        "s.toml", '[[cue]]\nid = "t"\ntone = { frequency = 100, duration = 1e9 }\n')], "longer than showkit makes"),
+    Case("pause-inf", lambda e: ["lock", e.sheet_with(
+        "s.toml", '[[cue]]\nid = "t"\npause = { duration = inf }\n')], "finite"),
+    Case("glide-nan", lambda e: ["lock", e.sheet_with(
+        "s.toml", '[[cue]]\nid = "t"\nglide = { from_frequency = 100, to_frequency = 200, duration = nan }\n')],
+        "finite"),
+    Case("glide-16min", lambda e: ["lock", e.sheet_with(
+        "s.toml", '[[cue]]\nid = "t"\nglide = { from_frequency = 100, to_frequency = 200, duration = "16:00" }\n')],
+        "longer than showkit makes"),
+    Case("fade-1e300", lambda e: ["lock", e.sheet_with(
+        "s.toml", '[[cue]]\nid = "t"\npause = { duration = 1 }\nfade_in = 1e300\n')], "fades"),
+    Case("audio-start-inf", lambda e: ["lock", e.sheet_with(
+        "s.toml", '[[cue]]\nid = "a"\naudio = "track.wav"\nstart = inf\n')], "finite"),
+    Case("cues-2001", lambda e: ["check", e.sheet_with(
+        "s.toml", "".join(f'[[cue]]\nid = "p{k}"\npause = {{ duration = 1 }}\n' for k in range(2001)))],
+        "more than showkit runs"),
+    Case("cue-id-escapes", lambda e: ["lock", e.sheet_with(
+        "s.toml", '[[cue]]\nid = "x\\u001b[2J\\u0007\\u009b"\nlabel = "\\u001b]0;t\\u0007"\npause = { duration = 1 }\n')],
+        None, 0, check=_no_escape_chars),
+    Case("cue-audio-fifo", lambda e: (e.fifo("f.wav"), ["lock", e.sheet_with(
+        "s.toml", '[[cue]]\nid = "a"\naudio = "f.wav"\n')])[1], "named pipe", unchanged=("s.toml",)),
+    Case("cue-audio-dev-zero", lambda e: ["lock", e.sheet_with(
+        "s.toml", '[[cue]]\nid = "a"\naudio = "/dev/zero"\n')], "character device"),
+    Case("cue-audio-link-to-dev-zero", lambda e: (os.symlink("/dev/zero", e.p("z.wav")), ["lock", e.sheet_with(
+        "s.toml", '[[cue]]\nid = "a"\naudio = "z.wav"\n')])[1], "character device"),
+    Case("cue-audio-cut-short", lambda e: (_wav_cut_short(e), ["lock", e.sheet_with(
+        "s.toml", '[[cue]]\nid = "a"\naudio = "cut.wav"\n')])[1], "cut short", unchanged=("s.toml",)),
+    Case("cue-audio-claims-4gb", lambda e: (_wav_claims_4gb(e), ["lock", e.sheet_with(
+        "s.toml", '[[cue]]\nid = "a"\naudio = "huge.wav"\n')])[1], "cut short"),
+    Case("form-feed-notes-round-trip", _lock_twice, None, 0, check=_keeps_form_feed),
+    Case("sheet-format-99", lambda e: ["check", e.write("f.toml", SHEET.replace("format = 1", "format = 99"))],
+         "newer than"),
+    # ---- audio (ceiling, scan)
+    Case("audio-fifo", lambda e: ["ceiling", e.fifo("x.wav")], "named pipe"),
+    Case("audio-dev-zero", lambda e: ["ceiling", "/dev/zero"], "character device"),
+    Case("audio-folder", lambda e: ["ceiling", e.dir], "folder"),
+    Case("audio-cut-short", lambda e: ["ceiling", _wav_cut_short(e)], "header says 96000 frames"),
+    Case("audio-claims-4gb", lambda e: ["ceiling", _wav_claims_4gb(e)], "cut short"),
+    Case("audio-text", lambda e: ["ceiling", e.write("t.wav", "not audio\n")], "not an audio file"),
+    Case("audio-empty", lambda e: ["ceiling", e.write("e.wav", b"")], "empty"),
+    Case("audio-rate-too-high", lambda e: ["ceiling", e.write("r.wav", _rate_header(20_000_000))], None),
+    Case("scan-dev-zero", lambda e: ["scan", "/dev/zero", "--jobs", "1"], None, 2,
+         check=lambda e, out, err: ("character device" in out) or pytest.fail(out)),
+    Case("scan-folder-with-fifo-and-device-link", lambda e: (
+        shutil.copy(e.p("track.wav"), e.p("d/track.wav")) if e.p("d").mkdir() is None else None,
+        e.fifo("d/x.wav"), os.symlink("/dev/zero", e.p("d/z.wav")),
+        ["scan", e.p("d"), "--jobs", "1"])[-1], None, 0, check=_scan_rows(2, 1)),
+    Case("scan-cache-list", _cached_shape([1, 2, 3]), None, 0, check=_scanned_fresh),
+    Case("scan-cache-missing-keys", _cached_shape({"score": 5.0}), None, 0, check=_scanned_fresh),
+    Case("scan-cache-bad-passages", _cached_shape({
+        "path": "t", "duration_s": 1.0, "score": 9.0, "transpose_semitones": 0, "transpose_score": 9.0,
+        "error": None, "passages": [{"start_s": "0", "modes": None}]}), None, 0, check=_scanned_fresh),
+    # ---- options
+    Case("max-frequency-negative", lambda e: ["modes", "--max-frequency=-5"], "--max-frequency"),
+    Case("max-frequency-nan", lambda e: ["modes", "--max-frequency", "nan"], "--max-frequency"),
+    Case("max-frequency-inf", lambda e: ["modes", "--max-frequency", "inf"], "--max-frequency"),
+    Case("sweep-rate-20M", lambda e: ["measure", "sweep", "--out", e.p("s.wav"), "--rate", "20000000",
+                                      "--length", "60"], "sample rate"),
+    Case("sweep-rate-100", lambda e: ["measure", "sweep", "--out", e.p("s.wav"), "--rate", "100"], "sample rate"),
+    Case("sweep-length-nan", lambda e: ["measure", "sweep", "--out", e.p("s.wav"), "--length", "nan"], "finite"),
+    Case("sweep-too-many-samples", lambda e: ["measure", "sweep", "--out", e.p("s.wav"), "--rate", "384000",
+                                              "--length", "600"], "more than showkit makes"),
+    Case("scan-jobs-0", lambda e: ["scan", e.p("track.wav"), "--jobs", "0"], "--jobs"),
+    Case("run-log-fifo", lambda e: ["run", e.p("show.toml"), "--auto", "--log", e.fifo("l.fifo")],
+         "not a regular file"),
+    Case("run-log-folder", lambda e: ["run", e.p("show.toml"), "--auto", "--log", e.dir], "folder"),
+    Case("run-log-is-the-sheet", lambda e: ["run", e.p("show.toml"), "--auto", "--log", e.p("show.toml")],
+         "cue sheet itself", unchanged=("show.toml",)),
+    Case("run-log-is-the-rig", lambda e: ["run", e.p("show.toml"), "--auto", "--log", e.p("rig.toml")],
+         "rig file", unchanged=("rig.toml",)),
+    # ---- output paths
+    Case("render-o-folder", lambda e: ["render", e.p("show.toml"), "-o", e.dir], "folder"),
+    Case("render-o-proc", lambda e: ["render", e.p("show.toml"), "-o", "/proc/x.wav"], "cannot write"),
+    Case("render-per-cue-file", lambda e: ["render", e.p("show.toml"), "--per-cue", e.p("rig.toml")],
+         "needs a folder", unchanged=("rig.toml",)),
+    Case("render-o-source-track", lambda e: ["render", e.p("show.toml"), "-o", e.p("track.wav")],
+         "source audio of cue song", unchanged=("track.wav", "show.toml")),
+    Case("render-o-sheet", lambda e: ["render", e.p("show.toml"), "-o", e.p("show.toml")],
+         "cue sheet itself", unchanged=("show.toml",)),
+    Case("render-o-rig", lambda e: ["render", e.p("show.toml"), "-o", e.p("rig.toml")],
+         "rig file", unchanged=("rig.toml",)),
+    Case("render-o-missing-folder", lambda e: ["render", e.p("show.toml"), "-o", e.p("no/such/x.wav")],
+         "does not exist"),
+    Case("render-o-fifo", lambda e: ["render", e.p("show.toml"), "-o", e.fifo("o.wav")], "not a regular file"),
+    Case("sweep-out-folder", lambda e: ["measure", "sweep", "--out", e.dir], "folder"),
+    Case("sweep-out-rig", lambda e: ["measure", "sweep", "--rig", e.p("rig.toml"), "--out", e.p("rig.toml")],
+         "rig file", unchanged=("rig.toml",)),
+    Case("scan-csv-over-track", lambda e: ["scan", e.p("track.wav"), "--jobs", "1", "--csv", e.p("track.wav")],
+         "file being scanned", unchanged=("track.wav",)),
+    Case("scan-csv-folder", lambda e: ["scan", e.p("track.wav"), "--jobs", "1", "--csv", e.dir], "folder"),
+    Case("lock-backup-symlink", lambda e: (e.write("victim.txt", "precious\n"),
+                                           os.symlink(e.p("victim.txt"), e.p("show.toml.bak")),
+                                           ["lock", e.p("show.toml")])[-1], None, 0, check=_victim_intact),
+    # ---- disk full (ENOSPC): one line, exit 2, nothing that existed changed
+    Case("disk-full-lock", lambda e: (shutil.copy(e.p("show.toml"), e.p("show.toml.bak")),
+                                      ["lock", e.p("show.toml")])[-1],
+         "disk is full", unchanged=("show.toml", "show.toml.bak"), patch=_disk_full),
+    Case("disk-full-scan-csv", lambda e: (e.write("scan.csv", "old,csv\n" * 2000),
+                                          ["scan", e.p("track.wav"), "--jobs", "1", "--csv", e.p("scan.csv")])[-1],
+         "disk is full", unchanged=("scan.csv",), patch=_disk_full),
+    Case("disk-full-render", lambda e: (e.write("out.wav", b"old render"),
+                                        ["render", e.p("show.toml"), "-o", e.p("out.wav")])[-1],
+         "disk is full", unchanged=("out.wav",), patch=_disk_full),
+    Case("disk-full-update-rig", lambda e: ["measure", "level", "--rig", e.p("rig.toml"), "--pressure", "5 Pa",
+                                            "--update-rig"],
+         "disk is full", unchanged=("rig.toml",), patch=_disk_full),
+    Case("disk-full-sweep", lambda e: (e.write("s.wav", b"old sweep"),
+                                       ["measure", "sweep", "--out", e.p("s.wav"), "--length", "2"])[-1],
+         "disk is full", unchanged=("s.wav",), patch=_disk_full),
+]
+
+
+def _rig_count(value: str) -> str:
+    return f"count = {value}"
+
+
+def _rig_text(count_: str | None = None) -> str:
+    """The rig with its ``count = 40`` line replaced."""
+    return RIG.replace("count = 40", count_) if count_ else RIG
+
+
+def _rate_header(rate: int) -> bytes:
+    """A 16-bit mono WAV of 100 frames whose header says ``rate`` Hz."""
+    data = np.zeros(100, "<i2").tobytes()
+    fmt = struct.pack("<HHIIHH", 1, 1, rate, rate * 2, 2, 16)
+    return (b"RIFF" + struct.pack("<I", 4 + 8 + len(fmt) + 8 + len(data)) + b"WAVE"
+            + b"fmt " + struct.pack("<I", len(fmt)) + fmt + b"data" + struct.pack("<I", len(data)) + data)
+
+
+def test_the_corpus_is_large_enough():
+    assert len(CASES) >= 60
+    assert len({c.id for c in CASES}) == len(CASES)
+
+
+@pytest.mark.parametrize("case", CASES, ids=[c.id for c in CASES])
+def test_bad_input(case: Case, env: Env, capsys, monkeypatch):
+    argv = case.argv(env)
+    before = {name: env.p(name).read_bytes() for name in case.unchanged}
+    capsys.readouterr()
+    if case.patch is not None:
+        case.patch(monkeypatch)
+    status, out, err = run_cli(argv, capsys)
+    assert "Traceback" not in err
+    assert status == case.status, f"exit {status}: {err}"
+    lines = error_lines(err)
+    if case.status == 2 and case.check is None or case.expect is not None:
+        assert len(lines) == 1, err
+        assert printable(lines[0]) == lines[0]
+        if case.expect:
+            assert case.expect in lines[0], lines[0]
+    assert_printable(out)
+    assert_printable(err)
+    for name, data in before.items():
+        assert env.p(name).read_bytes() == data, f"{name} was changed"
+    leftovers = [p.name for p in env.dir.iterdir() if p.name.startswith(".") and ".tmp" in p.name]
+    assert not leftovers
+    if case.check is not None:
+        case.check(env, out, err)
+
+
+# ---------------------------------------------------------------- a real full disk
+@pytest.fixture
+def small_disk(tmp_path):
+    """A 1 MB tmpfs (needs root and mount rights; skipped where it cannot be mounted)."""
+    mnt = tmp_path / "small"
+    mnt.mkdir()
+    if os.geteuid() != 0 or shutil.which("mount") is None:
+        pytest.skip("mounting a tmpfs needs root")
+    done = subprocess.run(["mount", "-t", "tmpfs", "-o", "size=1m", "tmpfs", str(mnt)], capture_output=True)
+    if done.returncode != 0:
+        pytest.skip(f"cannot mount a tmpfs here: {done.stderr.decode(errors='replace').strip()}")
+    try:
+        yield mnt
+    finally:
+        subprocess.run(["umount", str(mnt)], capture_output=True)
+
+
+def test_a_real_full_disk_leaves_the_old_files_whole(small_disk, base, tmp_path, capsys, monkeypatch):
+    for name in ("rig.toml", "track.wav", "show.toml"):
+        shutil.copy(base / name, small_disk / name)
+    monkeypatch.setenv("SHOWKIT_CACHE_DIR", str(tmp_path / "cache"))
+    old_render = small_disk / "out.wav"
+    old_render.write_bytes(b"an earlier render")
+    sheet = small_disk / "show.toml"
+    shutil.copy(sheet, small_disk / "show.toml.bak")
+    before = {p.name: p.read_bytes() for p in small_disk.iterdir()}
+    filler = small_disk / "filler"
+    fd = os.open(filler, os.O_WRONLY | os.O_CREAT)
+    try:  # fill the disk to the last byte
+        for block in (65536, 4096, 1):
+            try:
+                while True:
+                    os.write(fd, b"\0" * block)
+            except OSError as exc:
+                assert exc.errno == errno.ENOSPC
+    finally:
+        os.close(fd)
+    status, out, err = run_cli(["render", sheet, "-o", old_render], capsys)
+    assert status == 2 and "Traceback" not in err
+    assert len(error_lines(err)) == 1 and "disk is full" in error_lines(err)[0]
+    status, out, err = run_cli(["lock", sheet], capsys)
+    assert status == 2 and "Traceback" not in err
+    assert len(error_lines(err)) == 1 and "disk is full" in error_lines(err)[0]
+    assert {p.name: p.read_bytes() for p in small_disk.iterdir() if p != filler} == before
+    filler.unlink()  # room again: the same commands now work
+    assert run_cli(["lock", sheet], capsys)[0] == 0
+    assert (small_disk / "show.toml.bak").read_bytes() == before["show.toml"]
+    assert run_cli(["render", sheet, "-o", old_render], capsys)[0] == 0
+    assert sf.info(str(old_render)).frames > 0
+    assert not [p.name for p in small_disk.iterdir() if p.name.startswith(".")]
+
+
+# ---------------------------------------------------------------- subprocesses: hangs and memory
+def _limit_memory():
+    import resource
+
+    resource.setrlimit(resource.RLIMIT_AS, (MEMORY_LIMIT_BYTES, MEMORY_LIMIT_BYTES))
+
+
+SUBPROCESS_CASES = {
+    "modes-rig-fifo": lambda e: ["modes", "--rig", e.fifo("r.fifo")],
+    "check-sheet-fifo": lambda e: ["check", e.fifo("s.fifo")],
+    "check-dev-zero": lambda e: ["check", "/dev/zero"],
+    "run-log-fifo": lambda e: ["run", e.p("show.toml"), "--auto", "--log", e.fifo("l.fifo")],
+    "tone-8h20-lock": lambda e: ["lock", e.sheet_with(
+        "s.toml", '[[cue]]\nid = "t"\ntone = { frequency = 100, duration = "8:20:00" }\n')],
+    "holes-1e9": lambda e: ["modes", "--rig", e.write("h.toml", RIG.replace("count = 40", "count = 1000000000"))],
+    "sweep-20MHz": lambda e: ["measure", "sweep", "--out", e.p("s.wav"), "--rate", "20000000", "--length", "60"],
+    "scan-fifo-in-folder": lambda e: (e.p("d").mkdir(), e.fifo("d/x.wav"), os.symlink("/dev/zero", e.p("d/z.wav")),
+                                      ["scan", e.p("d"), "--jobs", "1"])[-1],
+}
+
+
+@pytest.mark.parametrize("name", sorted(SUBPROCESS_CASES))
+def test_bad_input_in_a_subprocess_neither_hangs_nor_exhausts_memory(name, env):
+    argv = [sys.executable, "-m", "showkit", *map(str, SUBPROCESS_CASES[name](env))]
+    environ = dict(os.environ, PYTHONPATH=str(REPO))
+    done = subprocess.run(argv, capture_output=True, timeout=HANG_S, preexec_fn=_limit_memory,
+                          stdin=subprocess.DEVNULL, env=environ, cwd=env.dir)
+    err = done.stderr.decode("utf-8", "replace")
+    assert done.returncode == 2, err
+    assert "Traceback" not in err and "MemoryError" not in err
+    if name.startswith("scan"):  # a scan reports each file in its row and goes on
+        out = done.stdout.decode("utf-8", "replace")
+        assert out.count("ERROR:") == 2 and "named pipe" in out and "character device" in out
+        assert_printable(out)
+    else:
+        assert len(error_lines(err)) == 1 and printable(error_lines(err)[0]) == error_lines(err)[0]
