@@ -87,10 +87,11 @@ class EventRing:
     """A lock-free single-producer, single-consumer ring of numeric events.
 
     Each event is a row of five float64 (kind, cue index, frame, reason, fader).
-    The producer (the audio thread) writes a row, then bumps :attr:`written`; it
-    never waits, so a consumer too slow by more than ``size`` events loses the
-    oldest, and :meth:`drain` counts them.  A row overwritten while the consumer
-    copied it is counted lost too, never returned torn.
+    The producer (the audio thread) announces the row it starts (:attr:`begun`),
+    writes it, then bumps :attr:`written`; it never waits, so a consumer too slow
+    by more than ``size`` events loses the oldest, and :meth:`drain` counts them.
+    A row the producer began to overwrite while the consumer copied it is counted
+    lost too, never returned torn (a seqlock's check, one counter each side).
     """
 
     WIDTH = 5
@@ -98,12 +99,14 @@ class EventRing:
     def __init__(self, size: int = RING):
         self.size = int(size)
         self._rows = np.zeros((self.size, self.WIDTH), np.float64)
-        self.written = 0   # written by the producer only
+        self.begun = 0     # written by the producer only: rows started
+        self.written = 0   # written by the producer only: rows finished
         self._read = 0     # written by the consumer only
 
     def post(self, kind, index, frame, reason, fader) -> None:
         """Producer: add one event (no allocation, no lock)."""
         rows, i = self._rows, self.written % self.size
+        self.begun = self.written + 1
         rows[i, 0] = kind
         rows[i, 1] = index
         rows[i, 2] = frame
@@ -123,7 +126,7 @@ class EventRing:
             i = self._read
             row = tuple(self._rows[i % self.size].tolist())
             self._read = i + 1
-            if self.written - i >= self.size:  # the producer reached this slot while we copied
+            if self.begun - i > self.size:  # the producer began this slot's next row while we copied
                 lost += 1
             else:
                 out.append(row)
@@ -294,6 +297,68 @@ class Mixer:
         out[:, :] = buf[:, None]
         self.frames_total += n
 
+    def _fader_gain(self, gain: np.ndarray, n: int, snap: bool) -> None:
+        """The fader, slewed toward its target (snapped to it after silence), into ``gain``."""
+        target = min(1.0, max(0.0, float(self.fader_target)))
+        if snap or self._fader_g == target:
+            self._fader_g = target
+            gain.fill(target)
+            return
+        step = self._fader_step if target > self._fader_g else -self._fader_step
+        np.multiply(self._steps[:n], step, out=gain)
+        np.add(gain, self._fader_g, out=gain)
+        (np.minimum if step > 0 else np.maximum)(gain, target, out=gain)
+        self._fader_g = float(gain[n - 1])
+
+    def _panic_gain(self, gain: np.ndarray, n: int) -> int:
+        """Multiply the panic ramp into ``gain``; returns where the block falls silent (n: not in it)."""
+        if self.panic_left <= 0:
+            return n
+        tmp = self._tmp[:n]
+        self._ramp(self.panic_left, self._panic_frames, n, tmp)
+        np.multiply(gain, tmp, out=gain)
+        silent_from = max(0, self.panic_left - 1) if self.panic_left <= n else n
+        self.panic_left = max(0, self.panic_left - n)
+        return silent_from
+
+    def _fill(self, buf: np.ndarray, n: int) -> None:
+        """Cue samples into ``buf[:n]`` (fade envelope applied), across cue ends; then zeros."""
+        filled = 0
+        while filled < n:
+            if self.cur < 0:
+                buf[filled:n].fill(0.0)
+                return
+            filled += self._copy(buf, filled, n - filled)
+            if self.fade_total > 0 and self.fade_left <= 0:
+                self._fade_ended(filled)
+            elif self.pos >= self._len[self.cur]:
+                self._cue_ended(filled)
+
+    def _copy(self, buf: np.ndarray, at: int, room: int) -> int:
+        """The current cue's next samples into ``buf[at:]``, up to its end or its fade's; returns how many."""
+        cur, pos = self.cur, self.pos
+        m = min(room, self._len[cur] - pos)
+        fading = self.fade_total > 0
+        if fading:
+            m = min(m, self.fade_left)
+        if m > 0:
+            seg = buf[at:at + m]
+            np.copyto(seg, self._samples[cur][pos:pos + m])
+            if fading:
+                env = self._env[:m]
+                self._ramp(self.fade_left, self.fade_total, m, env)
+                np.multiply(seg, env, out=seg)
+                self.fade_left -= m
+            self.pos = pos + m
+        return max(0, m)
+
+    def _ramp(self, left: int, total: int, n: int, out: np.ndarray) -> None:
+        """``out[j] = max(0, left - (j + 1)) / total`` for j < n: exactly 0 from j = left - 1."""
+        np.subtract(float(left), self._steps[:n], out=out)
+        np.maximum(out, 0.0, out=out)
+        np.multiply(out, 1.0 / total, out=out)
+
+    # The state machine's moves, made by the callback (requests, cue ends, panic).
     def serve_requests(self) -> None:
         """Serve the requests made since the last block (called by the callback)."""
         if self._panic_req != self._panic_seen:
@@ -333,66 +398,11 @@ class Mixer:
             self.pending = index
             self._start_fade(self._cut_frames, Reason.CUT)
 
-    def _fader_gain(self, gain: np.ndarray, n: int, snap: bool) -> None:
-        """The fader, slewed toward its target (snapped to it after silence), into ``gain``."""
-        target = min(1.0, max(0.0, float(self.fader_target)))
-        if snap or self._fader_g == target:
-            self._fader_g = target
-            gain.fill(target)
-            return
-        step = self._fader_step if target > self._fader_g else -self._fader_step
-        np.multiply(self._steps[:n], step, out=gain)
-        np.add(gain, self._fader_g, out=gain)
-        (np.minimum if step > 0 else np.maximum)(gain, target, out=gain)
-        self._fader_g = float(gain[n - 1])
-
-    def _panic_gain(self, gain: np.ndarray, n: int) -> int:
-        """Multiply the panic ramp into ``gain``; returns where the block falls silent (n: not in it)."""
-        if self.panic_left <= 0:
-            return n
-        tmp = self._tmp[:n]
-        self._ramp(self.panic_left, self._panic_frames, n, tmp)
-        np.multiply(gain, tmp, out=gain)
-        silent_from = max(0, self.panic_left - 1) if self.panic_left <= n else n
-        self.panic_left = max(0, self.panic_left - n)
-        return silent_from
-
     def _end_panic(self, at: int) -> None:
         if self.cur >= 0:
             self._stop(Reason.PANIC, at)
         self.pending = -1
         self.state = State.PANIC
-
-    def _fill(self, buf: np.ndarray, n: int) -> None:
-        """Cue samples into ``buf[:n]`` (fade envelope applied), across cue ends; then zeros."""
-        filled = 0
-        while filled < n:
-            if self.cur < 0:
-                buf[filled:n].fill(0.0)
-                return
-            filled += self._copy(buf, filled, n - filled)
-            if self.fade_total > 0 and self.fade_left <= 0:
-                self._fade_ended(filled)
-            elif self.pos >= self._len[self.cur]:
-                self._cue_ended(filled)
-
-    def _copy(self, buf: np.ndarray, at: int, room: int) -> int:
-        """The current cue's next samples into ``buf[at:]``, up to its end or its fade's; returns how many."""
-        cur, pos = self.cur, self.pos
-        m = min(room, self._len[cur] - pos)
-        fading = self.fade_total > 0
-        if fading:
-            m = min(m, self.fade_left)
-        if m > 0:
-            seg = buf[at:at + m]
-            np.copyto(seg, self._samples[cur][pos:pos + m])
-            if fading:
-                env = self._env[:m]
-                self._ramp(self.fade_left, self.fade_total, m, env)
-                np.multiply(seg, env, out=seg)
-                self.fade_left -= m
-            self.pos = pos + m
-        return max(0, m)
 
     def _fade_ended(self, at: int) -> None:
         pending = self.pending
@@ -457,12 +467,6 @@ class Mixer:
         if self.pending >= 0:
             self.dropped = self.pending
         self.pending = -1
-
-    def _ramp(self, left: int, total: int, n: int, out: np.ndarray) -> None:
-        """``out[j] = max(0, left - (j + 1)) / total`` for j < n: exactly 0 from j = left - 1."""
-        np.subtract(float(left), self._steps[:n], out=out)
-        np.maximum(out, 0.0, out=out)
-        np.multiply(out, 1.0 / total, out=out)
 
     def _post(self, kind: Event, index: int, reason: Reason, at: int = 0) -> None:
         """An event at frame ``at`` of this block, with the fader as it was then (for the log)."""
