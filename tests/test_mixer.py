@@ -224,6 +224,33 @@ def test_drop_forgets_the_cue_and_keeps_the_waiting_one_next():
     assert np.all(play(m, 256) == 0.0)
 
 
+def test_drop_during_a_panic_ramp_leaves_nothing_to_ramp_and_rearm_is_served():
+    a = np.full(RATE, 0.5, np.float32)
+    m = make([a])
+    m.request_go(0)
+    play(m, 64)
+    m.request_panic()
+    play(m, 32)                         # the ramp runs: still disarmed, busy
+    assert m.panic_left > 0 and m.busy()
+    m.drop()                            # the device went away mid-ramp
+    assert not m.busy() and m.state == State.PANIC and m.disarmed()
+    m.request_arm()
+    m.serve_requests()                  # what the engine does with no stream
+    assert m.state == State.IDLE and not m.disarmed()
+
+
+def test_callback_failure_reports_and_forgets_an_unserved_go():
+    a = np.full(RATE, 0.5, np.float32)
+    m = make([a, a])
+    m.request_go(0)
+    play(m, 64)
+    m.request_go(1)                     # not served: the callback fails first
+    m.fail()
+    assert not m.busy() and m.cur == -1 and m.last == 0
+    assert np.all(play(m, 256) == 0.0)
+    assert [e[0] for e in events(m)] == [Event.START, Event.ERROR]
+
+
 # ---------------------------------------------------------------- the event ring
 @settings(max_examples=60, deadline=None)
 @given(size=st.integers(1, 16), batches=st.lists(st.integers(0, 40), min_size=1, max_size=30))

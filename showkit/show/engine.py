@@ -53,9 +53,10 @@ Faults
 ------
 No PortAudio library or no device: :meth:`open` raises DeviceError (what to
 install or connect).  A buffer underrun (the callback's ``output_underflow``
-flag) or a callback error: the current cue is ramped out at once (cut ramp),
-the show stops, a ``device_error`` event says what happened and what to do,
-and ``go()`` resumes at the next cue.  The device lost mid-show (the stream
+flag): the current cue is ramped out at once (cut ramp); a callback error: the
+block is silenced and the cue dropped.  Either way the show stops, a
+``device_error`` event says what happened and what to do, and ``go()`` resumes
+at the next cue.  The device lost mid-show (the stream
 ends by itself, or is no longer active): the output is gone, so it is silent;
 ``poll()`` reports it and :meth:`reopen` reconnects, the show resuming at the
 next cue.
