@@ -229,7 +229,7 @@ class Mixer:
         return self.state == State.PANIC and self._arm_req == self._arm_seen
 
     def shown_state(self) -> State:
-        """The state as the operator sees it (requests made count as served)."""
+        """The state as the operator sees it (a panic or re-arm asked for counts at once)."""
         if self.disarmed():
             return State.PANIC
         return State.IDLE if self.cur < 0 else self.state
@@ -249,7 +249,7 @@ class Mixer:
         """The output is gone (device lost or callback failed): forget the cue playing and the one waiting.
 
         The cue playing counts as played; the one waiting stays next.  Call it
-        from the operator's thread only when no callback can run.
+        from the callback, or from the operator's thread when no callback can run.
         """
         if self.cur >= 0:
             self.last = self.cur
