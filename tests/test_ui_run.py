@@ -279,7 +279,7 @@ async def test_manometer_change_after_the_check_blocks_the_cue_in_the_run_view(u
         # go passes over them: it starts only a cue that fits
         await pilot.press("enter")
         await pilot.pause()
-        started = engine.status().cue_id or engine.cues[engine._requested].id
+        started = engine.status().cue_id or engine.cues[engine.mixer.requested].id
         assert started not in expected
         await asyncio.sleep(0.12)
         await pilot.press("escape")                       # Esc: panic

@@ -6,16 +6,15 @@ only ever scales them *down*: every output sample is the rendered sample times a
 gain in [0, 1] -- the operator fader, times a fade-out ramp, times the panic
 ramp.  So no output sample is ever above the rendered cue's level at that position.
 
-Threads
--------
-The audio callback (:meth:`Engine.render_into`) runs in PortAudio's thread.  It
-copies samples and multiplies them by gains in preallocated buffers (no array is
-allocated, no lock is taken, nothing is logged or printed).  The operator's
-thread (the terminal runner or the UI) talks to it through plain attributes:
-a request is a counter bumped after its argument is set; the callback compares
-each counter with the last one it served.  The callback reports back through a
-fixed-size event ring (a preallocated numpy array and a counter) that
-:meth:`Engine.poll` drains, on the operator's thread, into the show log.
+Layers
+------
+The audio callback's state machine, its buffers and its event ring are the
+:class:`~showkit.show.mixer.Mixer` (no I/O, no text).  This module is what sits
+on top of it: the sounddevice stream (open, reopen, close, device faults), the
+operator's keys (which it checks, refusing with a reason, before passing them on
+as requests) and the show log's texts (written on the operator's thread by the
+keys and by :meth:`Engine.poll`, which drains the mixer's ring).  The audio
+callback (:meth:`Engine.render_into`) only calls the mixer.
 
 How to use it (the API the terminal runner and the UI call)
 ------------------------------------------------------------
@@ -62,9 +61,10 @@ Faults
 ------
 No PortAudio library or no device: :meth:`open` raises DeviceError (what to
 install or connect).  A buffer underrun (the callback's ``output_underflow``
-flag) or a callback error: the current cue is ramped out at once (cut ramp),
-the show stops, a ``device_error`` event says what happened and what to do,
-and ``go()`` resumes at the next cue.  The device lost mid-show (the stream
+flag): the current cue is ramped out at once (cut ramp); a callback error: the
+block is silenced and the cue dropped.  Either way the show stops, a
+``device_error`` event says what happened and what to do, and ``go()`` resumes
+at the next cue.  The device lost mid-show (the stream
 ends by itself, or is no longer active): the output is gone, so it is silent;
 ``poll()`` reports it and :meth:`reopen` reconnects, the show resuming at the
 next cue.
@@ -82,9 +82,8 @@ import time
 from collections import Counter
 from dataclasses import dataclass
 
-import numpy as np
-
 from showkit.errors import DeviceError, InputError, SheetError
+from showkit.show.mixer import Event, Mixer, Reason, State
 from showkit.show.playlist import RenderedCue, resample_cues
 from showkit.units import db, undb
 
@@ -97,27 +96,23 @@ class FaderRefused(InputError):
     """A fader move above the cue's locked gain (unity) was refused."""
 
 
-# Event kinds posted by the callback (column 0 of the ring).
-EV_START, EV_STOP, EV_UNDERFLOW, EV_ERROR = 1, 2, 3, 4
-# Reasons (column 3): how a cue started or stopped.
-R_OPERATOR, R_FOLLOW, R_END, R_FADED, R_CUT, R_PANIC, R_NEXT_REFUSED, R_UNDERFLOW, R_LAST = range(9)
-
+#: The log's words for how a cue started or stopped.
 _REASON_TEXT = {
-    R_OPERATOR: "started on a go (the operator, or --auto)",
-    R_FOLLOW: "followed on with no gap",
-    R_END: "played to its end",
-    R_FADED: "faded out",
-    R_CUT: "cut for the next cue",
-    R_PANIC: "panic: output silent",
-    R_NEXT_REFUSED: "played to its end; the next cue may not be started",
-    R_UNDERFLOW: "stopped after a buffer underrun",
-    R_LAST: "played to its end; that was the last cue",
+    Reason.OPERATOR: "started on a go (the operator, or --auto)",
+    Reason.FOLLOW: "followed on with no gap",
+    Reason.END: "played to its end",
+    Reason.FADED: "faded out",
+    Reason.CUT: "cut for the next cue",
+    Reason.PANIC: "panic: output silent",
+    Reason.NEXT_REFUSED: "played to its end; the next cue may not be started",
+    Reason.UNDERFLOW: "stopped after a buffer underrun",
+    Reason.LAST: "played to its end; that was the last cue",
 }
 
-# Callback states.
-S_IDLE, S_PLAYING, S_PANIC = 0, 1, 2
 
-RING = 256
+def state_text(state: State) -> str:
+    """The status word for a state ("idle", "playing", "fading", "panic", "fault", "closed")."""
+    return state.name.lower()
 
 
 @dataclass(frozen=True)
@@ -216,19 +211,9 @@ class Engine:
         self.fader_slew_s = float(fader_slew_s)
         self.block_frames = int(block_frames)
         self.stall_s = float(stall_s)
+        self.mixer = Mixer(max_block_frames)
         self._watch_frames = 0
         self._watch_t = 0.0
-        cap = int(max_block_frames)
-        self._cap = cap
-        # Preallocated work buffers (float32) and the ramp index 1..cap.
-        self._steps = np.arange(1, cap + 1, dtype=np.float32)
-        self._buf = np.zeros(cap, np.float32)
-        self._gain = np.zeros(cap, np.float32)
-        self._tmp = np.zeros(cap, np.float32)
-        self._env = np.zeros(cap, np.float32)
-        self._ev = np.zeros((RING, 5), np.float64)  # kind, cue, frame, reason, fader then
-        self._ev_n = 0
-        self._ev_read = 0
         self._backlog: list[EngineEvent] = []
         self._stream = None
         self._generation = 0
@@ -241,48 +226,21 @@ class Engine:
         self._withdrawn: dict[int, tuple[str, str]] = {}
         self._fader_cap = 1.0
         self._prepare(_show_rate(cues))
-        self._reset_state()
 
-    # ------------------------------------------------------------------ set-up
     def _prepare(self, rate_hz: int) -> None:
-        """Resample (ahead of time, from the cues as given) and precompute the tables at ``rate_hz``."""
+        """Resample (ahead of time, from the cues as given) and load the mixer at ``rate_hz``."""
         self.cues = resample_cues(self._source_cues, rate_hz)
         self.rate_hz = int(rate_hz)
-        self._samples = [c.samples for c in self.cues]
-        self._len = [c.frames for c in self.cues]
-        self._playable = [c.playable for c in self.cues]
-        self._follow = [self.auto or c.then == "next" for c in self.cues]
-        self._panic_frames = max(1, int(math.floor(self.panic_s * rate_hz)))
-        self._cut_frames = max(1, int(round(self.cut_s * rate_hz)))
-        self._fader_step = 1.0 / max(1, int(round(self.fader_slew_s * rate_hz)))
+        self.mixer.load([c.samples for c in self.cues], [c.playable for c in self.cues],
+                        [self.auto or c.then == "next" for c in self.cues],
+                        panic_frames=max(1, int(math.floor(self.panic_s * rate_hz))),
+                        cut_frames=max(1, int(round(self.cut_s * rate_hz))),
+                        fader_slew_frames=max(1, int(round(self.fader_slew_s * rate_hz))))
 
-    def _reset_state(self) -> None:
-        # Written by the operator's thread (requests).
-        self._fader_target = 1.0
-        self._go_req = 0
-        self._go_index = -1
-        self._fade_req = 0
-        self._fade_frames_req = 0
-        self._panic_req = 0
-        self._arm_req = 0
-        self._cut_req = 0
-        self._requested = -1
-        # Written by the callback.
-        self._go_seen = self._fade_seen = self._panic_seen = self._arm_seen = self._cut_seen = 0
-        self._state = S_IDLE
-        self._armed = True
-        self._cur = -1
-        self._pos = 0
-        self._last = -1
-        self._pending = -1
-        self._dropped = -1
-        self._fader_g = 1.0
-        self._fade_left = 0
-        self._fade_total = 0
-        self._fade_reason = R_FADED
-        self._panic_left = 0
-        self._panicking = False
-        self._frames_total = 0
+    @property
+    def _last(self) -> int:
+        """The last cue started (-1 for none); tests read it."""
+        return self.mixer.last
 
     # ----------------------------------------------------------- device stream
     def open(self, device=None, *, stream_factory=None, latency="low") -> None:
@@ -331,17 +289,20 @@ class Engine:
         """sounddevice's callback: status flags, then :meth:`render_into`."""
         try:
             if status and status.output_underflow:
-                self._underflow()
+                self.mixer.underflow()
             self.render_into(outdata, frames)
         except Exception:  # never let the audio thread die noisily: silence and report
             outdata.fill(0.0)
-            self._post(EV_ERROR, self._cur, 0)
-            if self._cur >= 0:
-                self._last = self._cur
-            self._cur = -1
-            self._pending = -1
-            self._go_seen = self._go_req
-            self._state = S_IDLE
+            self.mixer.fail()
+
+    def render_into(self, outdata, frames: int) -> None:
+        """Fill ``outdata[:frames]`` (shape (frames, channels), float32) with the show.
+
+        The audio callback's work, done by :meth:`showkit.show.mixer.Mixer.render`
+        (preallocated buffers, no lock, nothing logged).  Tests and previews may call
+        it directly with no device.
+        """
+        self.mixer.render(outdata, frames)
 
     def _on_finished(self, generation: int) -> None:
         if generation == self._generation:  # an old stream ending late does not count
@@ -360,12 +321,7 @@ class Engine:
     def reopen(self, device=None) -> None:
         """After a device fault: close what is left and open the device again (or ``device``)."""
         self._drop_stream()
-        # Anything playing was lost with the device: the show resumes at the next cue.
-        if self._cur >= 0:
-            self._last = self._cur
-        self._cur = -1
-        self._state = S_IDLE if self._armed else S_PANIC
-        self._pending = -1
+        self.mixer.drop()  # anything playing was lost with the device: resume at the next cue
         spec = device if device is not None else (self._device.index if self._device else None)
         try:
             self.open(spec)
@@ -390,10 +346,10 @@ class Engine:
 
     def close(self) -> None:
         """Ramp out what is playing (cut ramp), then stop and close the stream."""
-        if self._stream is not None and self._cur >= 0 and not self._stream_lost():
-            self._cut_req += 1
+        if self._stream is not None and self.mixer.cur >= 0 and not self._stream_lost():
+            self.mixer.request_cut()
             deadline = time.monotonic() + 0.5
-            while self._cur >= 0 and time.monotonic() < deadline:
+            while self.mixer.cur >= 0 and time.monotonic() < deadline:
                 time.sleep(0.005)
         self.poll()
         self._drop_stream()
@@ -406,8 +362,8 @@ class Engine:
         Cues that may not be played (stale, over, error) are passed over; :attr:`skipped`
         names them.  None past the end.
         """
-        index = self._next_raw()
-        while index < len(self.cues) and not self._playable[index]:
+        index = self.mixer.next_start()
+        while index < len(self.cues) and not self.mixer.may_start(index):
             index += 1
         return index if index < len(self.cues) else None
 
@@ -415,17 +371,11 @@ class Engine:
     def skipped(self) -> list[int]:
         """Indexes of the not-playable cues that ``go()`` would pass over to reach the next one."""
         out = []
-        index = self._next_raw()
-        while index < len(self.cues) and not self._playable[index]:
+        index = self.mixer.next_start()
+        while index < len(self.cues) and not self.mixer.may_start(index):
             out.append(index)
             index += 1
         return out
-
-    def _next_raw(self) -> int:
-        if (self._dropped >= 0 and self._dropped == self._requested
-                and self._go_seen == self._go_req):
-            return self._dropped  # asked for, then dropped by a panic or a fault: still next
-        return max(self._last, self._requested) + 1
 
     def go(self, index: int | None = None) -> int:
         """Start cue ``index`` (default: the next cue); returns the index.
@@ -442,7 +392,7 @@ class Engine:
         if not 0 <= index < len(self.cues):
             raise CueRefused(f"there is no cue number {index + 1}", "show",
                              f"pick 1 to {len(self.cues)}")
-        if self._disarmed():
+        if self.mixer.disarmed():
             raise CueRefused("panic stopped the show", "show",
                              "re-arm when it is safe, then start the next cue")
         if self.fault or self._stream_lost():
@@ -452,35 +402,24 @@ class Engine:
         if not cue.playable:
             what, fix = cue.refusal_parts()
             raise CueRefused(what, f"cue {cue.id!r}", f"{fix}; or skip it and start the one after")
-        if index in self._withdrawn or not self._playable[index]:
+        if index in self._withdrawn or not self.mixer.may_start(index):
             what, fix = self._withdrawn.get(index, ("the cue was withdrawn", "check the show again"))
             raise CueRefused(what, f"cue {cue.id!r}", f"{fix}; or skip it and start the one after")
         self.note = ""
         self._fader_cap = 1.0  # a cap set for the cue that played does not carry to a new go
-        if self._fader_target > self._fader_cap:
-            self._fader_target = self._fader_cap
-        self._requested = index
-        self._go_index = index
         self._watch_t = time.monotonic()
-        self._go_req += 1
+        self.mixer.request_go(index)
         return index
-
-    def _disarmed(self) -> bool:
-        """True from a panic key press until a re-arm (as the operator sees it)."""
-        if self._panic_req != self._panic_seen or self._panicking:
-            return True
-        return not self._armed and self._arm_req == self._arm_seen
 
     def fade_out(self, seconds: float | None = None) -> None:
         """Fade the current cue to silence over ``seconds`` (default ``fade_s``), then stop it."""
         seconds = self.fade_s if seconds is None else float(seconds)
         if not seconds > 0:
             raise InputError("a fade must last more than zero seconds", "fade", "give e.g. 3 s")
-        if self._cur < 0:
+        cue = self._playing()
+        if cue is None:
             raise CueRefused("nothing is playing to fade", "show", "start a cue first")
-        cue = self.cues[self._cur]
-        self._fade_frames_req = max(1, int(round(seconds * self.rate_hz)))
-        self._fade_req += 1
+        self.mixer.request_fade(max(1, int(round(seconds * self.rate_hz))))
         self._write("fade", cue.id, self._gain_db(cue), f"fade out over {seconds:g} s")
 
     def set_fader(self, level: float) -> None:
@@ -499,8 +438,8 @@ class Engine:
             raise FaderRefused(f"the fader is held at {_fmt_db(db(self._fader_cap))}: the cue playing is "
                                "above today's ceiling", "fader",
                                "fade it out; the next cue plays at its own checked gain")
-        self._fader_target = level
-        cue = self.cues[self._cur] if self._cur >= 0 else None
+        self.mixer.set_fader(level)
+        cue = self._playing()
         self._write("fader", cue.id if cue else None, self._gain_db(cue) if cue else None,
                     f"fader {_fmt_db(db(level))}")
 
@@ -538,11 +477,11 @@ class Engine:
     @property
     def fader_db(self) -> float:
         """The fader setting in dB (<= 0, -inf at zero)."""
-        return db(self._fader_target)
+        return db(self.mixer.fader_target)
 
     def startable(self, index: int) -> bool:
         """True when cue ``index`` may be started now (ok, and not withdrawn)."""
-        return bool(self._playable[index]) and index not in self._withdrawn
+        return self.mixer.may_start(index) and index not in self._withdrawn
 
     def withdraw(self, index: int, what: str, fix: str) -> None:
         """Cue ``index`` may not be started from now on (today's conditions changed).
@@ -552,7 +491,7 @@ class Engine:
         caller caps the fader (:meth:`cap_fader_db`) or fades it out.  Logged as a
         ``check`` event.
         """
-        self._playable[index] = False
+        self.mixer.withhold(index)
         self._withdrawn[index] = (what, fix)
         cue = self.cues[index]
         self._write("check", cue.id, cue.gain_db, f"withdrawn: {what}")
@@ -565,9 +504,9 @@ class Engine:
         """
         level = 0.0 if fader_db == -math.inf else min(1.0, undb(min(0.0, float(fader_db))))
         self._fader_cap = min(self._fader_cap, level)
-        if self._fader_target > self._fader_cap:
-            self._fader_target = self._fader_cap
-            cue = self.cues[self._cur] if self._cur >= 0 else None
+        if self.mixer.fader_target > self._fader_cap:
+            self.mixer.set_fader(self._fader_cap)
+            cue = self._playing()
             self._write("fader", cue.id if cue else None, self._gain_db(cue) if cue else None,
                         f"fader {_fmt_db(db(self._fader_cap))}: {why}")
         return self.fader_db
@@ -591,40 +530,40 @@ class Engine:
 
     def panic(self) -> None:
         """Silence within ``panic_s`` from any state, and stop the show until :meth:`rearm`."""
-        self._panic_req += 1
-        cue = self.cues[self._cur] if self._cur >= 0 else None
+        self.mixer.request_panic()
+        cue = self._playing()
         self._write("panic", cue.id if cue else None, None,
                     f"panic key: ramp to silence in {self.panic_s * 1000:.0f} ms; "
                     "the show is stopped until re-armed")
 
     def rearm(self) -> None:
         """Allow cues to start again after a panic; the show resumes at the next cue."""
-        self._arm_req += 1
+        self.mixer.request_arm()
         if self._stream is None:  # no callback to serve the request: serve it here
-            self._take_requests()
+            self.mixer.serve_requests()
         self._write("check", None, None, "re-armed after panic; next cue: "
                     f"{self.cues[self.next_index].id if self.next_index is not None else 'none'}")
+
+    def _playing(self) -> RenderedCue | None:
+        cur = self.mixer.cur
+        return self.cues[cur] if cur >= 0 else None
 
     # --------------------------------------------------------- status, events
     def status(self) -> EngineStatus:
         """A snapshot of the engine for the screen."""
-        cur = self._cur
-        pos = self._pos
+        m = self.mixer
+        cur, pos = m.cur, m.pos
         if self._stream is None and self._device is not None and not self.fault:
-            state = "closed"
+            state = State.CLOSED
         elif self.fault:
-            state = "fault"
-        elif self._disarmed():
-            state = "panic"
-        elif cur >= 0:
-            state = "fading" if self._fade_total > 0 else "playing"
+            state = State.FAULT
         else:
-            state = "idle"
+            state = m.shown_state()
         nxt = self.next_index
         cue = self.cues[cur] if cur >= 0 else None
-        elapsed = min(pos, self._len[cur]) / self.rate_hz if cue else 0.0
-        left = max(0, self._len[cur] - pos) / self.rate_hz if cue else 0.0
-        return EngineStatus(state=state, cue_index=cur if cue else None,
+        elapsed = min(pos, cue.frames) / self.rate_hz if cue else 0.0
+        left = max(0, cue.frames - pos) / self.rate_hz if cue else 0.0
+        return EngineStatus(state=state_text(state), cue_index=cur if cue else None,
                             cue_id=cue.id if cue else None, cue_label=cue.label if cue else None,
                             next_index=nxt, next_id=self.cues[nxt].id if nxt is not None else None,
                             skipped_ids=tuple(self.cues[k].id for k in self.skipped),
@@ -634,8 +573,7 @@ class Engine:
     @property
     def busy(self) -> bool:
         """True while a cue plays, a request is not yet served, or a panic ramp runs."""
-        return (self._cur >= 0 or self._go_req != self._go_seen or self._panicking
-                or self._pending >= 0)
+        return self.mixer.busy()
 
     def poll(self) -> list[EngineEvent]:
         """Drain the callback's events into the log and check the device; returns them.
@@ -649,8 +587,9 @@ class Engine:
         stalled = False
         if self._stream is not None and not lost and not self.fault:
             now = time.monotonic()
-            if not self.busy or self._frames_total != self._watch_frames:
-                self._watch_frames = self._frames_total
+            frames = self.mixer.frames_total
+            if not self.busy or frames != self._watch_frames:
+                self._watch_frames = frames
                 self._watch_t = now
             elif now - self._watch_t > self.stall_s:
                 stalled = True
@@ -659,13 +598,8 @@ class Engine:
             self._drain_ring()
             out += self._backlog
             self._backlog = []
-            cue = self.cues[self._cur] if self._cur >= 0 else None
-            if self._cur >= 0:
-                self._last = self._cur
-            if self._pending >= 0:
-                self._dropped = self._pending
-            self._cur = -1
-            self._pending = -1
+            cue = self._playing()
+            self.mixer.drop()
             what = ("the audio device stopped taking samples" if stalled else
                     "the audio device stopped (disconnected or taken by another program)")
             self._device_error(what, "the output is silent: reconnect the device, then resume at "
@@ -674,31 +608,25 @@ class Engine:
 
     def _drain_ring(self) -> None:
         """Move the callback's events into the log and the backlog that :meth:`poll` returns."""
-        end = self._ev_n
-        if end - self._ev_read > RING:
-            lost = end - self._ev_read - RING
+        lost, rows = self.mixer.ring.drain()
+        if lost:
             self._backlog.append(self._emit("device_error", None, None, f"{lost} engine events "
                                             "were lost (the screen was not polled in time)"))
-            self._ev_read = end - RING
-        while self._ev_read < end:
-            row = self._ev[self._ev_read % RING]
-            kind, index, frame, reason = int(row[0]), int(row[1]), row[2], int(row[3])
-            fader = float(row[4])
-            self._ev_read += 1
-            self._backlog.append(self._event_from_ring(kind, index, float(frame) / self.rate_hz,
-                                                       reason, fader))
+        for kind, index, frame, reason, fader in rows:
+            self._backlog.append(self._event_from_ring(int(kind), int(index), frame / self.rate_hz,
+                                                       int(reason), fader))
 
     def _event_from_ring(self, kind, index, t, reason, fader=None) -> EngineEvent:
         cue = self.cues[index] if 0 <= index < len(self.cues) else None
         cue_id = cue.id if cue else None
-        if kind == EV_START:
+        if kind == Event.START:
             return self._emit("start", cue_id, self._gain_db(cue, fader), _REASON_TEXT[reason], t)
-        if kind == EV_STOP:
+        if kind == Event.STOP:
             detail = _REASON_TEXT.get(reason, "stopped")
-            if reason == R_NEXT_REFUSED and index + 1 < len(self.cues):
+            if reason == Reason.NEXT_REFUSED and index + 1 < len(self.cues):
                 detail += f": {self.cues[index + 1].refusal()}"
             return self._emit("stop", cue_id, self._gain_db(cue, fader), detail, t)
-        if kind == EV_UNDERFLOW:
+        if kind == Event.UNDERFLOW:
             self.note = ("buffer underrun: the cue was ramped out -- start the next cue to resume; "
                          "if it repeats, close other programs or choose another device")
             return self._emit("device_error", cue_id, None,
@@ -731,202 +659,6 @@ class Engine:
             return None
         fader = self.fader_db if fader_level is None else db(fader_level)
         return cue.gain_db + fader if math.isfinite(fader) else None
-
-    # ------------------------------------------------------- the audio callback
-    def render_into(self, outdata: np.ndarray, frames: int) -> None:
-        """Fill ``outdata[:frames]`` (shape (frames, channels), float32) with the show.
-
-        Runs in the audio thread: copies samples and applies gains in place, in
-        preallocated buffers; blocks longer than the buffers go in pieces.
-        """
-        done = 0
-        while done < frames:
-            n = min(self._cap, frames - done)
-            self._render_chunk(outdata, done, n)
-            done += n
-
-    def _post(self, kind: int, index: int, reason: int, offset: int = 0) -> None:
-        row = self._ev[self._ev_n % RING]
-        row[0] = kind
-        row[1] = index
-        row[2] = self._frames_total + offset
-        row[3] = reason
-        row[4] = self._fader_target  # the gain as it was at this moment, for the log
-        self._ev_n += 1
-
-    def _underflow(self) -> None:
-        if self._cur >= 0:
-            self._post(EV_UNDERFLOW, self._cur, 0)
-            if self._pending >= 0:
-                self._dropped = self._pending
-            self._pending = -1
-            self._start_fade(self._cut_frames, R_UNDERFLOW)
-
-    def _start_fade(self, total: int, reason: int) -> None:
-        """Fade the current cue to zero at a speed of full scale in ``total`` frames.
-
-        A fade already running keeps its level and only ever speeds up (floor, so
-        the level never rises).
-        """
-        if self._fade_total > 0:
-            left = (self._fade_left * total) // self._fade_total
-            if left < self._fade_left:
-                self._fade_left = left
-                self._fade_total = total
-                self._fade_reason = reason
-        else:
-            self._fade_left = total
-            self._fade_total = total
-            self._fade_reason = reason
-
-    def _start_cue(self, index: int, reason: int, offset: int) -> None:
-        self._cur = index
-        self._pos = 0
-        self._last = index
-        self._dropped = -1
-        self._fade_left = 0
-        self._fade_total = 0
-        self._fade_reason = R_FADED
-        self._state = S_PLAYING
-        self._post(EV_START, index, reason, offset)
-
-    def _stop_cue(self, reason: int, offset: int) -> None:
-        self._post(EV_STOP, self._cur, reason, offset)
-        self._cur = -1
-        self._pos = 0
-        self._fade_left = 0
-        self._fade_total = 0
-        self._state = S_IDLE if not self._panicking else self._state
-
-    def _take_requests(self) -> None:
-        if self._panic_req != self._panic_seen:
-            self._panic_seen = self._panic_req
-            self._armed = False
-            if self._pending >= 0:
-                self._dropped = self._pending
-            self._pending = -1
-            if self._cur >= 0:
-                self._fade_reason = R_PANIC  # a fade or cut running ends as part of the panic
-                if not self._panicking:
-                    self._panicking = True
-                    self._panic_left = self._panic_frames
-            else:
-                self._state = S_PANIC
-        if self._arm_req != self._arm_seen and not self._panicking:
-            self._arm_seen = self._arm_req
-            self._armed = True
-            if self._state == S_PANIC:
-                self._state = S_IDLE
-        if self._go_req != self._go_seen:
-            self._go_seen = self._go_req
-            index = self._go_index
-            if self._armed and not self._panicking and 0 <= index < len(self._samples) \
-                    and self._playable[index]:
-                if self._cur < 0:
-                    self._start_cue(index, R_OPERATOR, 0)
-                else:
-                    self._pending = index
-                    self._start_fade(self._cut_frames, R_CUT)
-        if self._fade_req != self._fade_seen:
-            self._fade_seen = self._fade_req
-            if self._cur >= 0 and not self._panicking:
-                self._start_fade(self._fade_frames_req, R_FADED)
-        if self._cut_req != self._cut_seen:
-            self._cut_seen = self._cut_req
-            if self._cur >= 0:
-                self._pending = -1
-                self._start_fade(self._cut_frames, R_CUT)
-
-    def _ramp(self, left: int, total: int, n: int, out: np.ndarray) -> None:
-        """``out[j] = max(0, left - (j + 1)) / total`` for j < n: exactly 0 from j = left - 1."""
-        np.subtract(float(left), self._steps[:n], out=out)
-        np.maximum(out, 0.0, out=out)
-        np.multiply(out, 1.0 / total, out=out)
-
-    def _render_chunk(self, outdata: np.ndarray, off: int, n: int) -> None:
-        was_silent = self._cur < 0
-        self._take_requests()
-        gain = self._gain[:n]
-        buf = self._buf[:n]
-        tmp = self._tmp[:n]
-        # Operator fader, ramped toward its target; snapped when nothing was playing.
-        target = min(1.0, max(0.0, float(self._fader_target)))
-        if was_silent or self._fader_g == target:
-            self._fader_g = target
-            gain.fill(target)
-        else:
-            up = target > self._fader_g
-            np.multiply(self._steps[:n], self._fader_step if up else -self._fader_step, out=gain)
-            np.add(gain, self._fader_g, out=gain)
-            (np.minimum if up else np.maximum)(gain, target, out=gain)
-            self._fader_g = float(gain[n - 1])
-        # Panic ramp, across the whole chunk.
-        panic_zero = n
-        if self._panicking:
-            self._ramp(self._panic_left, self._panic_frames, n, tmp)
-            np.multiply(gain, tmp, out=gain)
-            if self._panic_left <= n:
-                panic_zero = max(0, self._panic_left - 1)
-            self._panic_left = max(0, self._panic_left - n)
-        np.clip(gain, 0.0, 1.0, out=gain)
-        # Sources: cue samples, crossing cue boundaries within the chunk.
-        filled = 0
-        while filled < n:
-            cur = self._cur
-            if cur < 0:
-                buf[filled:].fill(0.0)
-                break
-            pos = self._pos
-            m = min(n - filled, self._len[cur] - pos)
-            fading = self._fade_total > 0
-            if fading:
-                m = min(m, self._fade_left)
-            if m > 0:
-                seg = buf[filled:filled + m]
-                np.copyto(seg, self._samples[cur][pos:pos + m])
-                if fading:
-                    env = self._env[:m]
-                    self._ramp(self._fade_left, self._fade_total, m, env)
-                    np.multiply(seg, env, out=seg)
-                    self._fade_left -= m
-            filled += m
-            self._pos = pos + m
-            if fading and self._fade_left <= 0:
-                pending = self._pending
-                self._pending = -1
-                self._stop_cue(self._fade_reason, filled)
-                if pending >= 0 and self._playable[pending] and self._armed and not self._panicking:
-                    self._start_cue(pending, R_OPERATOR, filled)
-                continue
-            if self._pos >= self._len[cur]:
-                pending = self._pending
-                self._pending = -1
-                nxt = cur + 1
-                if pending >= 0:
-                    self._stop_cue(R_END, filled)
-                    if self._playable[pending] and self._armed and not self._panicking:
-                        self._start_cue(pending, R_OPERATOR, filled)
-                elif self._follow[cur] and nxt < len(self._samples):
-                    if self._playable[nxt]:
-                        self._post(EV_STOP, cur, R_END, filled)
-                        self._start_cue(nxt, R_FOLLOW, filled)
-                    else:
-                        self._stop_cue(R_NEXT_REFUSED, filled)
-                else:
-                    self._stop_cue(R_LAST if nxt >= len(self._samples) else R_END, filled)
-        np.multiply(buf, gain, out=buf)
-        if panic_zero < n:
-            buf[panic_zero:].fill(0.0)
-        if self._panicking and self._panic_left <= 0:
-            if self._cur >= 0:
-                self._stop_cue(R_PANIC, panic_zero)
-            self._panicking = False
-            self._pending = -1
-            self._state = S_PANIC
-        outdata[off:off + n, 0] = buf
-        if outdata.shape[1] > 1:
-            outdata[off:off + n, 1:] = buf[:, None]
-        self._frames_total += n
 
 
 def _show_rate(cues) -> int:
