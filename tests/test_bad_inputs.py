@@ -299,7 +299,7 @@ CASES = [
     _rig_case("syntax", lambda e: e.write("s.toml", "[tube\nlength = 1"), "TOML syntax error"),
     _rig_case("empty", lambda e: e.write("e.toml", ""), "missing field"),
     _rig_case("holes-1e9", lambda e: e.write("h.toml", _rig_text(count_=_rig_count("1000000000"))),
-              "more holes than showkit models"),
+              "more holes than a flame tube has"),
     _rig_case("holes-negative", lambda e: e.write("h.toml", _rig_text(count_=_rig_count("-1"))), "negative"),
     _rig_case("holes-text", lambda e: e.write("h.toml", _rig_text(count_=_rig_count('"many"'))), "whole number"),
     _rig_case("positions-6000", lambda e: e.write(
