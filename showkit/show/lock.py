@@ -8,7 +8,9 @@ valid only for what it was computed from; a changed source, rig or
 calibration (or a new analysis version) makes it *stale*.
 
 Today's static pressure and reserve re-derive a valid lock's ceiling by
-exact scaling (physics.md section 7), without re-analysis.
+exact scaling, without re-analysis, for a static pressure from half to twice
+the one locked with (the range the rig's loss family covers: the gas jets out
+of the holes faster at a higher pressure, see :mod:`showkit.physics.family`).
 """
 
 from __future__ import annotations
@@ -20,6 +22,7 @@ from datetime import datetime, timezone
 from showkit import ANALYSIS_VERSION
 from showkit.errors import ShowkitError
 from showkit.physics import ceiling as rule
+from showkit.physics.family import STATIC_SPAN
 from showkit.rigfile import Rig, load_rig
 from showkit.show.sheet import Cue, Lock, Sheet
 from showkit.show.sources import CueSignal, cue_signal
@@ -148,6 +151,12 @@ def check_cue(sheet: Sheet, rig: Rig, cue: Cue, static_pa: float | None = None,
     if reason:
         return CueCheck(cue.id, cue.gain_db, None, None, "stale",
                         f"{reason}: run `showkit lock {sheet.path or 'SHEET'}` to re-lock")
+    span = STATIC_SPAN * cue.lock.static_pa
+    if not cue.lock.static_pa / STATIC_SPAN <= static <= span + 1e-9:
+        return CueCheck(cue.id, cue.gain_db, None, None, "stale",
+                        f"today's static pressure {static:g} Pa is outside the {cue.lock.static_pa / STATIC_SPAN:g} to "
+                        f"{span:g} Pa the lock's loss family covers: set the rig's static_pressure to today's "
+                        f"reading and run `showkit lock {sheet.path or 'SHEET'}`")
     c = today_ceiling(cue.lock, static, res)
     headroom = c.ceiling_db - cue.gain_db
     if headroom < -1e-9:
