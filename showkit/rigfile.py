@@ -145,8 +145,11 @@ def _hash(data: dict) -> str:
     return hashlib.sha256(text.encode()).hexdigest()[:16]
 
 
-def load_rig(path: str | Path | None = None) -> Rig:
+def load_rig(path: str | Path | None = None, check_calibration: bool = True) -> Rig:
     """Read and check a rig file; ``None`` loads the bundled demo rig.
+
+    ``check_calibration=False`` skips the calibration-point check (only for
+    ``showkit measure level``, which is how a refused calibration is replaced).
 
     Raises
     ------
@@ -155,14 +158,15 @@ def load_rig(path: str | Path | None = None) -> Rig:
     """
     path = demo_rig_path() if path is None else Path(path)
     text = read_text(path, "rig file", RigError, "check the path, or leave out --rig to use the demo rig")
-    return parse_rig(text, str(path), path)
+    return parse_rig(text, str(path), path, check_calibration)
 
 
-def parse_rig(text: str, where: str = "rig", path: Path | None = None) -> Rig:
+def parse_rig(text: str, where: str = "rig", path: Path | None = None,
+              check_calibration: bool = True) -> Rig:
     """Check the TOML text of a rig file (see :func:`load_rig`)."""
     data = parse_toml(text, where, RigError)
     try:
-        return _build(data, where, path)
+        return _build(data, where, path, check_calibration)
     except InputError as exc:
         raise RigError(exc.what, exc.where, exc.fix) from None
 
@@ -210,7 +214,7 @@ def _positive(value: float, where: str, what: str) -> float:
     return value
 
 
-def _build(data: dict, where: str, path: Path | None) -> Rig:
+def _build(data: dict, where: str, path: Path | None, check_calibration: bool = True) -> Rig:
     _check_keys(data, where)
     name = data.get("name", path.stem if path else "rig")
     if not isinstance(name, str):
@@ -293,7 +297,8 @@ def _build(data: dict, where: str, path: Path | None) -> Rig:
     rig = Rig(name=name, geometry=family.best_model.geometry, fuel=fuel, air_fraction=air,
               temperature_k=temp, static_pa=static, ambient_pa=ambient, drive=calibration,
               reserve=reserve, path=path, measured=measured, loss_family=family)
-    check_calibration_point(rig, where)
+    if check_calibration:
+        check_calibration_point(rig, where)
     return rig
 
 
