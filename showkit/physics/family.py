@@ -14,6 +14,12 @@ is a set of straight paths (*branches*) in the plane (mean jet velocity
   inside), and (b) the quasi-steady outflow resistance at that pressure
   (linearised orifice law, still gas: the same losses without the mode
   shifts).
+- Losses of another kind -- e.g. spread along the bore by the flames or a
+  leaky membrane -- are outside the family.  Adding a uniform loss down to
+  Q 10 at every mode was tried: it changes the cap pressure by 1.9 dB or more
+  at every frequency from 20 Hz to the plane-wave limit of the demo rig, so no
+  calibration point could be accepted.  A measurement narrows the family to
+  what the tube does (its fit), whatever the cause.
 - After a measurement, one branch spans the fitted values minus to plus twice
   their standard error (flow extended by sqrt 2 either way for a static
   pressure from half to twice the rig's).
@@ -46,7 +52,7 @@ from showkit.physics.tube import TubeModel
 #: Largest change of the cap pressure at the reference over the family, dB.
 REFERENCE_LIMIT_DB = 0.1
 #: The members' steady-state envelope reaches the family's within this, dB.
-MEMBER_TOLERANCE_DB = 0.05
+MEMBER_TOLERANCE_DB = 0.025
 #: Before a measurement the family covers static pressures up to this multiple of the rig's.
 STATIC_SPAN = 2.0
 #: Points per branch for the reference spread (the spread is smooth along a branch).
