@@ -63,8 +63,13 @@ def gas_for_sound_speed(fuel: str, air_fraction: float, temperature_k: float, am
 
 
 def save_text(path: Path, text: str) -> Path:
-    """Check ``text`` as a rig, back up ``path``, write atomically; returns the backup path."""
-    parse_rig(text, str(path), path)
+    """Check ``text`` as a rig, back up ``path``, write atomically; returns the backup path.
+
+    The calibration point is not checked here: a fit that moves the modes can move them onto
+    the reference frequency, and the fit must still be kept; the rig then refuses to load
+    (one line naming a frequency that would do) until ``showkit measure level`` calibrates again.
+    """
+    parse_rig(text, str(path), path, check_calibration=False)
     write_text(path, text, backups=BACKUPS_KEPT + 1)  # NAME.bak and NAME.bak.1 .. .bak.9
     return path.with_name(path.name + ".bak")
 

@@ -28,13 +28,16 @@ def add_json_option(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--json", action="store_true", help="print the result as JSON on stdout")
 
 
-def load_rig_from_args(args):
-    """The rig named by ``--rig`` (or the demo) with ``--static``/``--reserve`` applied."""
+def load_rig_from_args(args, check_calibration: bool = True):
+    """The rig named by ``--rig`` (or the demo) with ``--static``/``--reserve`` applied.
+
+    ``check_calibration=False`` only for ``measure level``, which replaces a refused calibration.
+    """
     from showkit import units
     from showkit.errors import InputError
     from showkit.rigfile import load_rig
 
-    rig = load_rig(getattr(args, "rig", None))
+    rig = load_rig(getattr(args, "rig", None), check_calibration)
     static = getattr(args, "static", None)
     reserve = getattr(args, "reserve", None)
     static_pa = None
