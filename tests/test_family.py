@@ -171,7 +171,7 @@ def test_members_reach_the_dense_family_within_a_tenth_of_a_db(rig):
     fam = rig.loss_family
     f_ref = rig.drive.reference_frequency_hz
     chosen = members(fam, f_ref)
-    dense = fam.dense(65)
+    dense = fam.dense(33)
     f = np.geomspace(5.0, fam.base.plane_wave_limit_hz, 6000)
 
     def env(p):
@@ -184,21 +184,16 @@ def test_members_reach_the_dense_family_within_a_tenth_of_a_db(rig):
 
     rate = 4800
     sigs = _signals(rig, rate)
-    for name in ("glide", "clicks", "music"):
-        x = sigs[name]
-        worst = {}
-        for label, pts in (("members", chosen), ("dense", dense[::4])):
-            worst[label] = max(_tool_dip(rig, fam.model(p), x, rate) for p in pts)
-        assert 20 * np.log10(worst["dense"] / worst["members"]) < 0.1, name
-
-
-def _tool_dip(rig, model, x, rate):
-    """Largest dip of the real pressure below static at unit gain: showkit's transfer, direct FFT."""
-    n = x.size + 4 * rate
-    m = 1 << int(np.ceil(np.log2(2 * n)))
-    f = np.fft.rfftfreq(m, 1 / rate)
-    g, _ = transfer(model, rig.drive, f)
-    return float(-np.fft.irfft(np.fft.rfft(x, m)[None, :] * g, m, axis=1).min())
+    spectra = {name: np.fft.rfft(sigs[name], GRID) for name in ("glide", "clicks", "music")}
+    worst = {"members": {}, "dense": {}}
+    for label, pts in (("members", chosen), ("dense", fam.dense(9))):
+        for p in pts:
+            g, _ = transfer(fam.model(p), rig.drive, np.fft.rfftfreq(GRID, 1 / rate))
+            for name, spec in spectra.items():
+                dip = float(-np.fft.irfft(spec[None, :] * g, GRID, axis=1).min())
+                worst[label][name] = max(worst[label].get(name, 0.0), dip)
+    for name in spectra:
+        assert 20 * np.log10(worst["dense"][name] / worst["members"][name]) < 0.1, name
 
 
 # ------------------------------------------------------------------ signals
@@ -219,7 +214,7 @@ def _signals(rig, rate):
     still = [m.frequency_hz for m in find_modes(rig.loss_family.model(LossPoint(0.0, 0.0)), 700)]
     best = [m.frequency_hz for m in find_modes(rig.model, 700)]
     out = {}
-    for n in (2, 3, 5):
+    for n in (2, 5):
         out[f"on still mode {n}"] = _fade(0.05 * np.sin(2 * np.pi * still[n] * t), rate)
         out[f"on flowing mode {n}"] = _fade(0.05 * np.sin(2 * np.pi * best[n - 1] * t), rate)
         mid = 0.5 * (still[n] + still[n + 1])
@@ -252,8 +247,9 @@ def _signals(rig, rate):
 
 #: Issue 13's "real tube": still gas with an extra loss spread uniformly along the bore.
 UNIFORM_Q = 30.0
-#: FFT size of the truth runs at 4800 Hz: 27 s, room for the longest signal and its ring-down.
-GRID = 1 << 17
+#: FFT size of the truth runs at 4800 Hz: 13.7 s, room for the longest signal (6 s) and its
+#: ring-down (the sharpest member rings down by 80 dB in under 3 s).
+GRID = 1 << 16
 
 
 def _truth_tubes(rig):
@@ -326,8 +322,8 @@ def test_guarantee_at_a_second_accepted_calibration(rig):
     f_ref = suggest_reference(rig.loss_family, 760.0)
     other = parse_rig(_rig_at(f_ref, "1 Pa"))
     rate = family_filters(other)[0][1].rate_hz
-    sigs = {k: v for k, v in _signals(other, rate).items() if k.startswith(("on", "between", "glide"))}
-    grids = _truth_grids(other, rate)
+    sigs = {k: v for k, v in _signals(other, rate).items() if k.startswith(("on still", "between", "glide"))}
+    grids = {k: v for k, v in _truth_grids(other, rate).items() if k != "resistance 0.3"}
     for name, x in sigs.items():
         tool = signal_report(other, x, rate, flames=False).ceiling.pressure_db
         for tube, g in grids.items():
