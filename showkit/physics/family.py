@@ -120,6 +120,19 @@ class LossFamily:
             pts += [a.mix(b, float(x)) for x in t]
         return list(dict.fromkeys(pts))
 
+    def describe_best(self) -> str:
+        """The best estimate in a few words."""
+        b = self.best
+        if self.base.geometry.hole_count == 0:
+            return "walls and radiation"
+        if b.flow_m_s > 0:
+            kind = f"gas flowing out of the holes at {b.flow_m_s:.2f} m/s (Howe's bias-flow hole)"
+        else:
+            kind = "still gas, inertive holes"
+        if b.resistance_pa_s_m3 > 0:
+            kind += f", hole resistance {b.resistance_pa_s_m3:.3g} Pa s/m3"
+        return kind + (", measured" if self.measured else "")
+
     def describe(self) -> str:
         """The family in a few words."""
         if self.base.geometry.hole_count == 0:
