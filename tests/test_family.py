@@ -68,7 +68,7 @@ def test_quasi_steady_limit_is_two_rho_u_over_s():
 
 
 def test_jet_velocity_is_the_orifice_law():
-    # u = sqrt(2 dp / rho) (Bernoulli; physics section 6): 20 Pa of propane at 1.865 kg/m3 -> 4.63 m/s
+    # u = sqrt(2 dp / rho) (Bernoulli, the orifice law): 20 Pa of propane at 1.865 kg/m3 -> 4.63 m/s
     assert jet_velocity_m_s(20.0, 1.865) == pytest.approx(math.sqrt(40.0 / 1.865), rel=1e-12)
 
 
