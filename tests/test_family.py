@@ -332,7 +332,7 @@ def test_guarantee_at_a_second_accepted_calibration(rig):
 
 
 def test_robust_ceiling_is_the_lowest_member_and_flames_use_the_best_estimate(rig, rate):
-    x = _signals(rig, rate)["on still mode 3"]
+    x = _signals(rig, rate)["on still mode 2"]
     robust = signal_report(rig, x, rate, flames=True)
     best = signal_report(rig, x, rate, flames=False, robust=False)
     assert robust.ceiling_db <= best.ceiling_db + 1e-9
