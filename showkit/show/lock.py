@@ -8,9 +8,10 @@ valid only for what it was computed from; a changed source, rig or
 calibration (or a new analysis version) makes it *stale*.
 
 Today's static pressure and reserve re-derive a valid lock's ceiling by
-exact scaling, without re-analysis, for a static pressure from half to twice
-the one locked with (the range the rig's loss family covers: the gas jets out
-of the holes faster at a higher pressure, see :mod:`showkit.physics.family`).
+exact scaling, without re-analysis, for a static pressure up to twice the one
+locked with (from half of it after a measurement): the range the rig's loss
+family covers, since the gas jets out of the holes faster at a higher pressure
+(:mod:`showkit.physics.family`).
 """
 
 from __future__ import annotations
@@ -151,12 +152,15 @@ def check_cue(sheet: Sheet, rig: Rig, cue: Cue, static_pa: float | None = None,
     if reason:
         return CueCheck(cue.id, cue.gain_db, None, None, "stale",
                         f"{reason}: run `showkit lock {sheet.path or 'SHEET'}` to re-lock")
-    span = STATIC_SPAN * cue.lock.static_pa
-    if not cue.lock.static_pa / STATIC_SPAN <= static <= span + 1e-9:
+    # the loss family reaches down to still gas before a measurement; a measured one does not
+    top = STATIC_SPAN * cue.lock.static_pa
+    bottom = cue.lock.static_pa / STATIC_SPAN if rig.loss_family and rig.loss_family.measured else 0.0
+    if not bottom - 1e-9 <= static <= top + 1e-9:
         return CueCheck(cue.id, cue.gain_db, None, None, "stale",
-                        f"today's static pressure {static:g} Pa is outside the {cue.lock.static_pa / STATIC_SPAN:g} to "
-                        f"{span:g} Pa the lock's loss family covers: set the rig's static_pressure to today's "
-                        f"reading and run `showkit lock {sheet.path or 'SHEET'}`")
+                        f"today's static pressure {static:g} Pa is outside the {bottom:g} to {top:g} Pa "
+                        f"the lock's loss family covers (the gas jets out of the holes faster or slower): set "
+                        f"the rig's static_pressure to today's reading and run `showkit lock "
+                        f"{sheet.path or 'SHEET'}`")
     c = today_ceiling(cue.lock, static, res)
     headroom = c.ceiling_db - cue.gain_db
     if headroom < -1e-9:
