@@ -339,3 +339,19 @@ def test_robust_ceiling_is_the_lowest_member_and_flames_use_the_best_estimate(ri
     # on a still-gas mode the sharp member sets it, far below the best estimate's
     assert robust.set_by.startswith("still gas") and best.ceiling_db - robust.ceiling_db > 3.0
     assert "still gas" in robust.family_text and robust.frames.height is not None
+
+
+def test_a_measurement_narrows_the_family():
+    text = _rig_at(1439.3) + "\n[measured]\nflow_range = [0.8, 1.1]\nresistance_range = [0.0, 0.0]\n"
+    rig = parse_rig(text, check_calibration=False)
+    fam = rig.loss_family
+    jet = jet_velocity_m_s(rig.static_pa, rig.gas.density_kg_m3)
+    (a, b), = fam.branches
+    # the fit's range, widened by sqrt 2 either way for half to twice the static pressure
+    assert fam.measured and a.flow_m_s == pytest.approx(0.8 * jet / 2 ** 0.5)
+    assert b.flow_m_s == pytest.approx(1.1 * jet * 2 ** 0.5)
+    assert LossPoint(0.0, 0.0) not in members(fam, 1439.3)  # still gas is no longer a member
+    # the narrower family accepts more calibration frequencies
+    assert reference_spread_db(fam, 120.0) < reference_spread_db(load_rig().loss_family, 120.0)
+    with pytest.raises(RigError, match="flow_range"):
+        parse_rig(text.replace("[0.8, 1.1]", "[1.1, 0.8]"), check_calibration=False)
