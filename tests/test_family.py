@@ -9,16 +9,27 @@ from __future__ import annotations
 
 import math
 
+import family_support as ref
 import numpy as np
 import pytest
 import scipy.special as sp
 
-import family_support as ref
 from showkit.analysis.pressure import family_filters, signal_report
 from showkit.errors import RigError
-from showkit.physics.biasflow import _i1e, _k1e, hole_aperture_impedance, howe_factor, jet_velocity_m_s
-from showkit.physics.family import (REFERENCE_LIMIT_DB, LossPoint, members, reference_spread_db,
-                                    suggest_reference)
+from showkit.physics.biasflow import (
+    _i1e,
+    _k1e,
+    hole_aperture_impedance,
+    howe_factor,
+    jet_velocity_m_s,
+)
+from showkit.physics.family import (
+    REFERENCE_LIMIT_DB,
+    LossPoint,
+    members,
+    reference_spread_db,
+    suggest_reference,
+)
 from showkit.physics.modes import find_modes
 from showkit.physics.response import transfer
 from showkit.rigfile import demo_rig_path, load_rig, parse_rig

@@ -73,7 +73,7 @@ class LossPoint:
     flow_m_s: float
     resistance_pa_s_m3: float
 
-    def mix(self, other: "LossPoint", t: float) -> "LossPoint":
+    def mix(self, other: LossPoint, t: float) -> LossPoint:
         return LossPoint(self.flow_m_s + t * (other.flow_m_s - self.flow_m_s),
                          self.resistance_pa_s_m3 + t * (other.resistance_pa_s_m3 - self.resistance_pa_s_m3))
 
