@@ -159,7 +159,7 @@ def test_dc_offset_is_ignored_by_the_tube_but_not_by_full_scale(rig, filters):
     # a steady offset, faded in and out over 2 s (a step would be a real transient)
     dc = 0.3 * _ramp(x.size, 2 * fs)
     offset = signal_report(rig, x + dc, fs, flames=False, robust=False)
-    # the drive model is a band-pass: no DC response (physics.md section 5).  Issue 13: with the
+    # the drive model is a band-pass: no DC response (the README's drive model).  Issue 13: with the
     # gas flowing the holes are resistive, so the tube no longer falls as f^2 below the modes and
     # the 2 s fades themselves (content near 0.25 Hz, through the driver's f roll-off) move the
     # pressure a little: measured 0.65 dB on the best estimate (0.01 dB with still gas)
