@@ -20,7 +20,9 @@ from showkit import units
 from showkit.conditions import Conditions, make_calibration, make_conditions
 from showkit.errors import InputError, RigError
 from showkit.limits import MAX_HOLES
+from showkit.physics.biasflow import jet_velocity_m_s
 from showkit.physics.drive import DriveCalibration
+from showkit.physics.family import STATIC_SPAN, LossFamily, LossPoint, check_reference
 from showkit.physics.gas import FUELS, STANDARD_AMBIENT_PA, GasState, gas_state
 from showkit.physics.geometry import TubeGeometry, evenly_spaced
 from showkit.physics.tube import TubeModel, outflow_resistance
@@ -33,7 +35,7 @@ _FIELDS = {
     "name": None,
     "tube": {"length", "bore", "wall"},
     "holes": {"count", "spacing", "first", "diameter", "positions", "end_correction",
-              "resistance"},
+              "resistance", "flow"},
     "gas": {"fuel", "air_fraction", "temperature", "static_pressure", "ambient"},
     "drive": {"reference_frequency", "reference_level", "reference_pressure",
               "speaker_resonance", "speaker_q", "response_frequencies", "response_db"},
@@ -69,6 +71,10 @@ class Rig:
     path : Path or None
     measured : dict
         The ``[measured]`` section as written by measurement, or empty.
+    loss_family : LossFamily or None
+        The tubes the ceilings must be safe for (:mod:`showkit.physics.family`);
+        ``geometry`` holds its best estimate.  Set from the rig file's static
+        pressure: today's manometer reading does not change it.
     """
 
     name: str
@@ -80,6 +86,7 @@ class Rig:
     drive: DriveCalibration
     path: Path | None = None
     measured: dict = field(default_factory=dict, compare=False, hash=False)
+    loss_family: LossFamily | None = field(default=None, compare=False, hash=False)
 
     @cached_property
     def gas(self) -> GasState:
@@ -131,6 +138,9 @@ class Rig:
             "holes_m": list(g.hole_positions_m), "hole_diameter_m": g.hole_diameter_m,
             "end_correction": g.end_correction,
             "hole_resistance_pa_s_m3": g.hole_resistance_pa_s_m3,
+            "hole_flow_m_s": g.hole_flow_m_s,
+            "loss_family": [[[p.flow_m_s, p.resistance_pa_s_m3] for p in branch]
+                            for branch in (self.loss_family.branches if self.loss_family else ())],
             "fuel": self.fuel, "air_fraction": self.air_fraction,
             "temperature_k": self.temperature_k, "ambient_pa": self.ambient_pa,
         }
@@ -157,8 +167,11 @@ def _hash(data: dict) -> str:
     return hashlib.sha256(text.encode()).hexdigest()[:16]
 
 
-def load_rig(path: str | Path | None = None) -> Rig:
+def load_rig(path: str | Path | None = None, check_calibration: bool = True) -> Rig:
     """Read and check a rig file; ``None`` loads the bundled demo rig.
+
+    ``check_calibration=False`` skips the calibration-point check (only for
+    ``showkit measure level``, which is how a refused calibration is replaced).
 
     Raises
     ------
@@ -167,14 +180,15 @@ def load_rig(path: str | Path | None = None) -> Rig:
     """
     path = demo_rig_path() if path is None else Path(path)
     text = read_text(path, "rig file", RigError, "check the path, or leave out --rig to use the demo rig")
-    return parse_rig(text, str(path), path)
+    return parse_rig(text, str(path), path, check_calibration)
 
 
-def parse_rig(text: str, where: str = "rig", path: Path | None = None) -> Rig:
+def parse_rig(text: str, where: str = "rig", path: Path | None = None,
+              check_calibration: bool = True) -> Rig:
     """Check the TOML text of a rig file (see :func:`load_rig`)."""
     data = parse_toml(text, where, RigError)
     try:
-        return _build(data, where, path)
+        return _build(data, where, path, check_calibration)
     except InputError as exc:
         raise RigError(exc.what, exc.where, exc.fix) from None
 
@@ -256,7 +270,7 @@ def _metres_text(metres: float) -> str:
     return f"{metres * 1e3:g} mm" if metres < 0.1 else f"{metres:g} m"
 
 
-def _build(data: dict, where: str, path: Path | None) -> Rig:
+def _build(data: dict, where: str, path: Path | None, check_calibration: bool = True) -> Rig:
     _check_keys(data, where)
     name = data.get("name", path.stem if path else "rig")
     if not isinstance(name, str):
@@ -320,15 +334,77 @@ def _build(data: dict, where: str, path: Path | None) -> Rig:
             raise RigError(f"resistance {r_value:g} Pa s/m3 is far above a flame hole's "
                            f"(at most {MAX_HOLE_RESISTANCE_PA_S_M3:g})", _field(where, "holes", "resistance"),
                            'leave it out, or write "outflow" or let showkit measure fit it')
-    geometry = replace(geometry, hole_resistance_pa_s_m3=r_value)
     measured = data.get("measured", {})
     if not isinstance(measured, dict):
         raise RigError("'measured' must be a section", f"{where}: measured", "let showkit measure write it")
-    rig = Rig(name=name, geometry=geometry, fuel=fuel, air_fraction=air, conditions=conditions,
-              ambient_pa=ambient, drive=calibration, path=path, measured=measured)
-    # checks of the calibration against the tube (the same door, with the tube)
+    flow = _number(holes.get("flow", 1.0), _field(where, "holes", "flow"))
+    if not 0.0 <= flow <= 3.0:
+        raise RigError(f"flow must be within 0 and 3 (got {flow:g})", _field(where, "holes", "flow"),
+                       "leave it out (1: the orifice law at the static pressure), or 0 for still gas")
+    family = loss_family(replace(geometry, hole_resistance_pa_s_m3=r_value), gas_now, conditions.static_pa,
+                         flow, _ranges(measured, where), r_value)
+    rig = Rig(name=name, geometry=family.best_model.geometry, fuel=fuel, air_fraction=air,
+              conditions=conditions, ambient_pa=ambient, drive=calibration, path=path, measured=measured,
+              loss_family=family)
+    # checks of the calibration against the tube (the same door, with the tube): below the
+    # plane-wave limit, and where the tube's possible losses do not change the cap pressure
     _drive(drive, where, rig.model)
+    if check_calibration:
+        check_calibration_point(rig, where)
     return rig
+
+
+def loss_family(geometry: TubeGeometry, gas, static_pa: float, flow_scale: float,
+                ranges: tuple | None, resistance_pa_s_m3: float) -> LossFamily:
+    """The rig's loss family and best estimate (see :mod:`showkit.physics.family`).
+
+    ``flow_scale`` is the jet velocity relative to the orifice law at ``static_pa``;
+    ``ranges`` the measured ``(flow_lo, flow_hi, resistance_lo, resistance_hi)``
+    (flow as scales), or None before a measurement.
+    """
+    base = TubeModel(replace(geometry, hole_flow_m_s=0.0, hole_resistance_pa_s_m3=0.0), gas)
+    if geometry.hole_count == 0:
+        still = LossPoint(0.0, 0.0)
+        return LossFamily(base, ((still, still),), still)
+    jet = jet_velocity_m_s(static_pa, gas.density_kg_m3)
+    best = LossPoint(flow_scale * jet, resistance_pa_s_m3)
+    span = STATIC_SPAN ** 0.5  # the jet velocity goes as the square root of the static pressure
+    if ranges is not None:
+        f_lo, f_hi, r_lo, r_hi = ranges
+        branch = (LossPoint(f_lo * jet / span, r_lo), LossPoint(f_hi * jet * span, r_hi))
+        return LossFamily(base, (branch,), best, measured=True)
+    still = LossPoint(0.0, 0.0)
+    top = STATIC_SPAN * static_pa
+    flowing = LossPoint(max(flow_scale, 1.0) * jet * span, resistance_pa_s_m3)
+    quasi = LossPoint(0.0, max(resistance_pa_s_m3,
+                               outflow_resistance(gas.density_kg_m3, top, geometry.hole_area_m2)))
+    return LossFamily(base, ((still, flowing), (still, quasi)), best)
+
+
+def _ranges(measured: dict, where: str) -> tuple | None:
+    """The measured loss ranges ``(flow_lo, flow_hi, resistance_lo, resistance_hi)``, or None."""
+    if "flow_range" not in measured and "resistance_range" not in measured:
+        return None
+    out = []
+    for key in ("flow_range", "resistance_range"):
+        value = measured.get(key)
+        if (not isinstance(value, list) or len(value) != 2
+                or not all(isinstance(v, (int, float)) and not isinstance(v, bool) for v in value)
+                or not 0.0 <= value[0] <= value[1] or not all(v < 1e12 for v in value)):
+            raise RigError(f"{key} must be two ascending numbers at or above zero (got {value!r})",
+                           f"{where}: measured.{key}", "let showkit measure analyse --update-rig write it")
+        out += [float(value[0]), float(value[1])]
+    return out[0], out[1], out[2], out[3]
+
+
+def check_calibration_point(rig: Rig, where: str) -> None:
+    """Refuse a calibration frequency where the tube's possible losses change the cap pressure."""
+    check = check_reference(rig.loss_family, rig.drive.reference_frequency_hz)
+    if not check.ok:
+        fix = (f"calibrate at {check.suggestion_hz:g} Hz instead (showkit measure level picks such a frequency)"
+               if check.suggestion_hz else "measure the tube first (showkit measure), then calibrate again")
+        raise RigError(check.message(), _field(where, "drive", "reference_frequency"), fix)
+
 
 
 def _holes(holes: dict, where: str, length: float, bore: float) -> tuple[tuple[float, ...], float]:

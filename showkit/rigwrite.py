@@ -63,8 +63,13 @@ def gas_for_sound_speed(fuel: str, air_fraction: float, temperature_k: float, am
 
 
 def save_text(path: Path, text: str) -> Path:
-    """Check ``text`` as a rig, back up ``path``, write atomically; returns the backup path."""
-    parse_rig(text, str(path), path)
+    """Check ``text`` as a rig, back up ``path``, write atomically; returns the backup path.
+
+    The calibration point is not checked here: a fit that moves the modes can move them onto
+    the reference frequency, and the fit must still be kept; the rig then refuses to load
+    (one line naming a frequency that would do) until ``showkit measure level`` calibrates again.
+    """
+    parse_rig(text, str(path), path, check_calibration=False)
     write_text(path, text, backups=BACKUPS_KEPT + 1, what="rig file")  # NAME.bak and NAME.bak.1 .. .bak.9
     return path.with_name(path.name + ".bak")
 
@@ -80,7 +85,8 @@ def _writable(path: Path) -> Path:
 
 
 def update_rig(path, *, sound_speed_m_s: float | None = None, end_correction: float | None = None,
-               resistance_pa_s_m3: float | None = None, modes: list | None = None,
+               resistance_pa_s_m3: float | None = None, flow: float | None = None,
+               modes: list | None = None,
                measured_extra: dict | None = None, response_freq_hz=None, response_db=None,
                reference: dict | None = None, prefer_gas: str = "air_fraction",
                today: str | None = None) -> Path:
@@ -96,6 +102,8 @@ def update_rig(path, *, sound_speed_m_s: float | None = None, end_correction: fl
         Hole end correction, hole radii (``holes.end_correction``).
     resistance_pa_s_m3 : float, optional
         Hole resistance, Pa s/m^3 (``holes.resistance``).
+    flow : float, optional
+        Jet velocity out of the holes relative to the orifice law (``holes.flow``; 0: still gas).
     modes : list of dict, optional
         Measured modes ``{"frequency_hz", "q", "level_db"}`` for ``[measured]``.
     measured_extra : dict, optional
@@ -136,6 +144,8 @@ def update_rig(path, *, sound_speed_m_s: float | None = None, end_correction: fl
             doc["holes"]["end_correction"] = round(float(end_correction), 4)
         if resistance_pa_s_m3 is not None:
             doc["holes"]["resistance"] = float(f"{resistance_pa_s_m3:.4g}")
+        if flow is not None:
+            doc["holes"]["flow"] = float(f"{flow:.4g}")
     if response_freq_hz is not None:
         drive = doc.setdefault("drive", tomlkit.table())
         drive["response_frequencies"] = [round(float(v), 3) for v in response_freq_hz]
@@ -200,13 +210,21 @@ def write_fit(path, report: dict, drive_response: bool = True, prefer_gas: str =
     fit = report["fit"]
     undetermined = set(fit["undetermined"])
     d = report["drive_response"]
+    extra = {"sound_speed_m_s": round(fit["sound_speed_m_s"], 3),
+             "rms_cents": round(fit["rms_cents"], 2),
+             "snr_db": round(report["recording"]["snr_db"], 1)}
+    losses_known = "resistance" not in undetermined and fit.get("flow_range") is not None
+    if losses_known:
+        # the loss family narrows to the fit: its loss parameter plus and minus two standard errors
+        extra["hole_model"] = fit["hole_model"]
+        extra["flow_range"] = [float(f"{v:.4g}") for v in fit["flow_range"]]
+        extra["resistance_range"] = [float(f"{v:.4g}") for v in fit["resistance_range"]]
     return update_rig(
         path, sound_speed_m_s=fit["sound_speed_m_s"],
         end_correction=None if "end_correction" in undetermined else fit["end_correction"],
         resistance_pa_s_m3=None if "resistance" in undetermined else fit["resistance_pa_s_m3"],
+        flow=fit.get("flow") if losses_known else None,
         modes=report["modes"],
-        measured_extra={"sound_speed_m_s": round(fit["sound_speed_m_s"], 3),
-                        "rms_cents": round(fit["rms_cents"], 2),
-                        "snr_db": round(report["recording"]["snr_db"], 1)},
+        measured_extra=extra,
         response_freq_hz=d["frequency_hz"] if drive_response else None,
         response_db=d["db"] if drive_response else None, prefer_gas=prefer_gas)

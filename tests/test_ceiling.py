@@ -15,6 +15,9 @@ from showkit.physics.response import pressure_signal, transfer
 from showkit.rigfile import load_rig
 
 DB2 = 20 * math.log10(2.0)
+#: A tone near the demo rig's mode 2 for the hand checks.  The calibration used to sit here;
+#: issue 13 moved it between high modes, where the tube's losses do not move the reading.
+TONE_HZ = 120.0
 
 
 @pytest.fixture(scope="module")
@@ -85,8 +88,9 @@ def test_combine_and_rescale():
 def test_sine_at_the_reference_frequency_against_the_hand_value(rig, filters):
     fs = filters.rate_hz
     amp = 0.01
-    f = rig.drive.reference_frequency_hz
-    report = signal_report(rig, _faded_sine(f, amp, 6.0, fs), fs)
+    f = TONE_HZ
+    # the hand value is the best-estimate model's: robust=False (the robust ceiling is checked in test_family.py)
+    report = signal_report(rig, _faded_sine(f, amp, 6.0, fs), fs, robust=False)
     hand, hole = _hand_ceiling_db(rig, f, amp)
     assert report.ceiling.limited_by == "pressure"
     assert report.ceiling_db == pytest.approx(hand, abs=0.1)
@@ -99,21 +103,21 @@ def test_sine_at_the_reference_frequency_against_the_hand_value(rig, filters):
 def test_abrupt_start_raises_the_transient(rig, filters):
     # an abrupt start rings the tube's other modes: the ceiling is lower than the faded tone's
     fs = filters.rate_hz
-    f = rig.drive.reference_frequency_hz
+    f = TONE_HZ
     t = np.arange(6 * fs) / fs
-    abrupt = signal_report(rig, 0.01 * np.sin(2 * np.pi * f * t), fs, flames=False)
+    abrupt = signal_report(rig, 0.01 * np.sin(2 * np.pi * f * t), fs, flames=False, robust=False)
     hand, _ = _hand_ceiling_db(rig, f, 0.01)
     assert abrupt.ceiling_db < hand - 0.1
 
 
 def test_the_loudest_moment_governs(rig, filters):
     fs = filters.rate_hz
-    f = rig.drive.reference_frequency_hz
+    f = TONE_HZ
     quiet = _faded_sine(f, 0.002, 12.0, fs)
     loud = _faded_sine(f, 0.02, 3.0, fs, fade_s=1.0)
     x = quiet.copy()
     x[int(5 * fs):int(8 * fs)] += loud
-    report = signal_report(rig, x, fs, flames=False)
+    report = signal_report(rig, x, fs, flames=False, robust=False)
     hand, _ = _hand_ceiling_db(rig, f, 0.022)
     assert report.ceiling_db == pytest.approx(hand, abs=0.15)
     assert 5.0 < report.worst_time_s < 8.0
@@ -149,14 +153,17 @@ def test_silence_gets_the_full_scale_cap(rig):
 
 def test_dc_offset_is_ignored_by_the_tube_but_not_by_full_scale(rig, filters):
     fs = filters.rate_hz
-    f = rig.drive.reference_frequency_hz
+    f = TONE_HZ
     x = _faded_sine(f, 0.01, 5.0, fs)
-    plain = signal_report(rig, x, fs, flames=False)
+    plain = signal_report(rig, x, fs, flames=False, robust=False)
     # a steady offset, faded in and out over 2 s (a step would be a real transient)
     dc = 0.3 * _ramp(x.size, 2 * fs)
-    offset = signal_report(rig, x + dc, fs, flames=False)
-    # the drive model is a band-pass: no DC response (physics.md section 5)
-    assert offset.ceiling.pressure_db == pytest.approx(plain.ceiling.pressure_db, abs=0.05)
+    offset = signal_report(rig, x + dc, fs, flames=False, robust=False)
+    # the drive model is a band-pass: no DC response (the README's drive model).  Issue 13: with the
+    # gas flowing the holes are resistive, so the tube no longer falls as f^2 below the modes and
+    # the 2 s fades themselves (content near 0.25 Hz, through the driver's f roll-off) move the
+    # pressure a little: measured 0.65 dB on the best estimate (0.01 dB with still gas)
+    assert abs(offset.ceiling.pressure_db - plain.ceiling.pressure_db) < 1.0
     assert offset.peak == pytest.approx(0.31, rel=1e-3)
     assert offset.ceiling.full_scale_db == pytest.approx(-20 * math.log10(offset.peak), abs=1e-9)
     # an offset that starts abruptly is a step: the model sees its transient
@@ -203,7 +210,7 @@ def test_at_the_ceiling_no_hole_dips_below_the_safe_line(rig, filters, case):
     else:  # a chord of random tones
         t = np.arange(n) / fs
         x = sum(amp / 3 * np.sin(2 * np.pi * rng.uniform(60, 1700) * t + rng.uniform(0, 6)) for _ in range(3))
-    report = signal_report(rig, x, fs, flames=False)
+    report = signal_report(rig, x, fs, flames=False, robust=False)  # the best estimate's filters below
     p = pressure_signal(filters, x).real
     safe = rig.reserve * rig.static_pa
     gain = 10 ** (report.ceiling_db / 20)

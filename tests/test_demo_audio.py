@@ -68,7 +68,9 @@ def test_demo_ranks_as_designed(ranked):
     assert order[0] == first and order[1] == second
     assert set(order[2:]) == set(rest)
     score = {Path(t["path"]).stem: t["score"] for t in ranked}
-    assert score[first] > score[second] + 10
+    # issue 13: on the flowing-gas best estimate the modes are broad and the gap narrowed
+    # (36.4 against 31.0; it was more than 10 points with still gas)
+    assert score[first] > score[second] + 4
     assert score[second] > max(score[r] for r in rest) + 20
 
 

@@ -143,7 +143,7 @@ def test_changing_the_bore_or_the_calibration_makes_every_cue_stale(show):
     checks = check_sheet(load_sheet(show / "show.toml"))
     assert {c.status for c in checks} == {"stale"}
     assert all(c.ceiling_db is None and "lock" in c.message for c in checks)
-    (show / "rig.toml").write_text(rig_text.replace('reference_pressure = "6 Pa"', 'reference_pressure = "7 Pa"'))
+    (show / "rig.toml").write_text(rig_text.replace('reference_pressure = "0.27 Pa"', 'reference_pressure = "0.3 Pa"'))
     checks = check_sheet(load_sheet(show / "show.toml"))
     assert {c.status for c in checks} == {"stale"}
     (show / "rig.toml").write_text(rig_text)

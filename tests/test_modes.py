@@ -35,9 +35,11 @@ def demo():
 
 
 def test_numbering_starts_at_breathing_mode_and_steps_by_one(example_modes, demo):
-    # issue 2: n = 0 is the breathing mode the holes create, n >= 1 has n pressure nodes
-    for _, modes in (example_modes, demo):
-        assert [m.n for m in modes] == list(range(len(modes)))
+    # issue 2: n = 0 is the breathing mode the holes create, n >= 1 has n pressure nodes.
+    # Issue 13: the demo rig's best estimate has the gas flowing out of the holes; their
+    # mass gives way to a resistance (Howe 1979) and the breathing mode is gone: it starts at 1
+    for (_, modes), first in ((example_modes, 0), (demo, 1)):
+        assert [m.n for m in modes] == list(range(first, first + len(modes)))
         assert all(m.nodes_m.size == m.n for m in modes)
         freqs = [m.frequency_hz for m in modes]
         assert freqs == sorted(freqs)

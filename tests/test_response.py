@@ -46,7 +46,7 @@ def test_filters_of_the_demo_rig(rig, filters):
     assert filters.delay == round(0.02 * filters.rate_hz)
     assert filters.rate_hz % 30 == 0 and filters.frame_samples * 30 == filters.rate_hz
     assert filters.band_hz < filters.rate_hz / 2  # the taper ends below Nyquist
-    assert "120 Hz" in filters.drive_text and "mass-controlled" in filters.drive_text
+    assert "1439.3 Hz" in filters.drive_text and "mass-controlled" in filters.drive_text
 
 
 def test_transfer_calibration_point_and_no_dc(rig):

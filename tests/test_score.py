@@ -52,7 +52,9 @@ def scores(rig, tmp_path_factory):
 
 def test_on_modes_beats_between_modes_noise_and_hits(scores):
     on = scores["on"]["score"]
-    assert on > 50
+    # issue 13: scores use the flowing-gas best estimate, whose modes ring less (Q of 8 to 55, not
+    # 30 to 330): the flames show less contrast and on-mode scores came down (47 here, from above 50)
+    assert on > 40
     for other in ("off", "noise", "hits"):
         assert on > scores[other]["score"] + 40, other  # "clearly above" (issue 4)
 

@@ -16,10 +16,14 @@ async def test_tube_view_modes_flames_and_conditions(ui_show):
     async with app.run_test(size=APP_SIZE) as pilot:
         await settle(pilot)
         table = app.query_one(ModeTable)
-        expected = find_modes(app.session.rig.model)
-        assert table.row_count == len(expected)
+        found = find_modes(app.session.rig.model)
+        assert table.row_count == len(found)
+        # issue 13: the demo's best estimate (gas flowing out of the holes) has no breathing mode:
+        # the rows start at mode 1
+        expected = {m.n: m for m in found}
+        assert found[0].n == 1
         assert str(table.get_row("3")[1]) == f"{expected[3].frequency_hz:.2f}"
-        await pilot.press("down", "down", "down")            # mode 3
+        await pilot.press("down", "down")            # mode 3
         await settle(pilot)
         drawing = app.query_one(TubeDrawing)
         assert drawing.caption.startswith("mode 3,")

@@ -22,10 +22,14 @@ def analyse_recording(rig, recording, rec_rate, sweep, sweep_rate, where="record
     if not found:
         raise MeasureError("no resonances found in the recording", where,
                            "record at the cap with the sweep loud enough to hear the tube ring")
-    fit = fit_tube(rig.model, [r.frequency_hz for r in found], [r.q for r in found])
+    from showkit.physics.biasflow import jet_velocity_m_s
+
+    jet = jet_velocity_m_s(rig.static_pa, rig.gas.density_kg_m3)
+    fit = fit_tube(rig.model, [r.frequency_hz for r in found], [r.q for r in found], jet_m_s=jet)
     warnings += fit.warnings
+    holes = bool(rig.geometry.hole_count)
     fitted = variant(rig.model, fit.speed_scale, fit.end_correction,
-                     fit.resistance_pa_s_m3 if rig.geometry.hole_count else None)
+                     fit.resistance_pa_s_m3 if holes else None, fit.flow_scale * jet if holes else None)
     d_f, d_db = drive_response_db(resp.freq_hz, resp.response, fitted, rig.drive,
                                   (resp.band_hz[0] * 1.1, resp.band_hz[1] / 1.1))
     return {
@@ -36,7 +40,10 @@ def analyse_recording(rig, recording, rec_rate, sweep, sweep_rate, where="record
                 "before_cents": fit.before_cents, "model_hz": fit.after_hz, "model_q": fit.after_q,
                 "rig_model_hz": fit.before_hz, "end_correction": fit.end_correction,
                 "resistance_pa_s_m3": fit.resistance_pa_s_m3, "undetermined": fit.undetermined,
-                "condition": fit.condition},
+                "condition": fit.condition, "hole_model": fit.hole_model, "flow": fit.flow_scale,
+                "flow_range": None if fit.flow_range is None else list(fit.flow_range),
+                "resistance_range": None if fit.resistance_range is None else list(fit.resistance_range),
+                "model_costs": fit.model_costs},
         "drive_response": {"frequency_hz": d_f, "db": d_db},
         "recording": {"delay_s": resp.delay_s, "snr_db": resp.snr_db, "band_hz": list(resp.band_hz)},
         "warnings": warnings,

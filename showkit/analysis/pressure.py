@@ -1,8 +1,14 @@
 """Ceilings and flame frames for tracks, passages and generated signals.
 
 Audio in (a file, a passage of it, or samples), pressure-model results out:
-the drive ceiling (physics.md section 7), where and when the tube comes
-closest to the safe line, and the flame row per frame at that level.
+the drive ceiling, where and when the tube comes closest to the safe line,
+and the flame row per frame at that level.
+
+A ceiling here is *robust*: the lowest over the members of the rig's loss
+family (:mod:`showkit.physics.family`), each calibrated with the same reading,
+so that it holds for every tube in the family.  The flame frames use the best
+estimate (the flowing-gas hole model, or the measured fit), at that ceiling.
+The scan (:mod:`showkit.analysis.scan`) uses the best estimate alone.
 """
 
 from __future__ import annotations
@@ -15,6 +21,7 @@ import numpy as np
 from showkit.analysis.audio import audio_info, read_blocks
 from showkit.errors import AudioError, RigError
 from showkit.physics import ceiling as ceil_rule
+from showkit.physics.family import LossPoint, members
 from showkit.physics.flames import row_contrast
 from showkit.physics.response import HoleFilters, PressureFrames, design_hole_filters, simulate
 from showkit.rigfile import Rig
@@ -47,6 +54,10 @@ class PassageReport:
     start_s, end_s : float
     drive_text : str
         Which calibration and drive model the ceiling rests on.
+    family_text : str
+        Which loss family the ceiling holds for (empty: the best estimate alone).
+    set_by : str
+        The member of the family that set the ceiling.
     """
 
     ceiling: ceil_rule.Ceiling
@@ -60,6 +71,8 @@ class PassageReport:
     start_s: float
     end_s: float
     drive_text: str
+    family_text: str = ""
+    set_by: str = ""
 
     @property
     def ceiling_db(self) -> float:
@@ -102,6 +115,8 @@ class PassageReport:
             "start_s": self.start_s,
             "end_s": self.end_s,
             "drive": self.drive_text,
+            "loss_family": self.family_text,
+            "ceiling_model": self.set_by,
         }
 
 
@@ -128,33 +143,84 @@ def hole_filters(rig: Rig) -> HoleFilters:
     return _FILTERS[key]
 
 
+_FAMILIES: dict[tuple[str, str], tuple] = {}
+
+
+def member_label(point: LossPoint) -> str:
+    """A member of the loss family in a few words."""
+    if point.flow_m_s <= 0 and point.resistance_pa_s_m3 <= 0:
+        return "still gas, inertive holes"
+    if point.flow_m_s <= 0:
+        return f"still gas, hole resistance {point.resistance_pa_s_m3:.3g} Pa s/m3"
+    return (f"gas jet {point.flow_m_s:.2f} m/s (bias flow)"
+            + (f", resistance {point.resistance_pa_s_m3:.3g} Pa s/m3" if point.resistance_pa_s_m3 > 0 else ""))
+
+
+def family_filters(rig: Rig) -> tuple:
+    """``(label, HoleFilters)`` for every member of the rig's loss family, best estimate first."""
+    key = (rig.acoustic_hash(), rig.calibration_hash())
+    if key not in _FAMILIES:
+        best = hole_filters(rig)
+        fam = rig.loss_family
+        chosen = members(fam, rig.drive.reference_frequency_hz)
+        out = [(member_label(fam.best) + " (best estimate)", best)]
+        for point in chosen:
+            if point == fam.best:
+                continue
+            out.append((member_label(point), design_hole_filters(fam.model(point), rig.drive,
+                                                                 rate_hz=best.rate_hz)))
+        if len(_FAMILIES) >= _FILTERS_KEPT:
+            _FAMILIES.pop(next(iter(_FAMILIES)))
+        _FAMILIES[key] = tuple(out)
+    return _FAMILIES[key]
+
+
+def _robust(rig: Rig, first: PressureFrames, run_member, robust: bool) -> tuple[PressureFrames, str, str]:
+    """The member pass with the largest swing (the best estimate's is ``first``)."""
+    if not robust:
+        return first, "best estimate", ""
+    members_ = family_filters(rig)
+    worst, label = first, members_[0][0]
+    for name, filters in members_[1:]:
+        got = run_member(filters)
+        if got.worst_pa > worst.worst_pa:
+            worst, label = got, name
+    return worst, label, rig.loss_family.describe()
+
+
 def _report(rig: Rig, filters: HoleFilters, first: PressureFrames, peak: float, rerun,
-            start_s: float, end_s: float, flames: bool) -> PassageReport:
+            start_s: float, end_s: float, flames: bool, run_member=None,
+            robust: bool = True) -> PassageReport:
     # fails closed: a NaN or infinite pressure, or a loud signal that moves no gas at
     # all, is an error, never the full-scale limit
     if not math.isfinite(first.worst_pa) or not math.isfinite(peak):
         raise RigError(f"the pressure model gave a non-finite pressure (largest swing {first.worst_pa!r} Pa)",
                        rig.name, "check the rig file's [tube], [holes] and [drive] values")
+    worst, set_by, family_text = _robust(rig, first, run_member, robust)
+    if not math.isfinite(worst.worst_pa):
+        raise RigError(f"a loss-family member gave a non-finite pressure ({set_by})",
+                       rig.name, "check the rig file's [tube], [holes] and [drive] values")
     try:
-        pressure_db = ceil_rule.pressure_ceiling_db(first.worst_pa, rig.static_pa, rig.reserve)
+        pressure_db = ceil_rule.pressure_ceiling_db(worst.worst_pa, rig.static_pa, rig.reserve)
         result = ceil_rule.combine(pressure_db, ceil_rule.full_scale_db(peak))
     except ValueError as exc:
         raise RigError(f"no ceiling can be computed ({exc})", rig.name,
                        "check the rig file and today's static pressure and reserve") from None
     frames = first
     if flames:
-        # a flames-only pass (real pressure, half the work) at the ceiling;
-        # the envelope at unit gain is the first pass's
+        # a flames-only pass (real pressure, half the work) at the ceiling, best
+        # estimate; the envelope at unit gain is the first pass's
         second = rerun(10.0 ** (result.ceiling_db / 20.0))
         frames = replace(first, height=second.height, air_in=second.air_in, gain=second.gain)
-    return PassageReport(ceiling=result, peak=peak, swing_pa=first.worst_pa,
-                         worst_hole=first.worst_hole, worst_time_s=start_s + first.worst_time_s,
+    return PassageReport(ceiling=result, peak=peak, swing_pa=worst.worst_pa,
+                         worst_hole=worst.worst_hole, worst_time_s=start_s + worst.worst_time_s,
                          frames=frames, static_pa=rig.static_pa, reserve=rig.reserve,
-                         start_s=start_s, end_s=end_s, drive_text=filters.drive_text)
+                         start_s=start_s, end_s=end_s, drive_text=filters.drive_text,
+                         family_text=family_text, set_by=set_by)
 
 
 def signal_report(rig: Rig, samples: np.ndarray, rate_hz: int, flames: bool = True,
-                  start_s: float = 0.0) -> PassageReport:
+                  start_s: float = 0.0, robust: bool = True) -> PassageReport:
     """Ceiling (and flames at it) of a signal given as samples.
 
     Parameters
@@ -168,6 +234,9 @@ def signal_report(rig: Rig, samples: np.ndarray, rate_hz: int, flames: bool = Tr
         Also compute the flame frames at the ceiling (a second pass).
     start_s : float
         Time of the first sample, for reporting, s.
+    robust : bool
+        The ceiling is the lowest over the rig's loss family (default); with
+        False, the best estimate's alone.
     """
     x = np.asarray(samples, dtype=float)
     if x.ndim == 2:
@@ -188,7 +257,8 @@ def signal_report(rig: Rig, samples: np.ndarray, rate_hz: int, flames: bool = Tr
     def rerun(gain):
         return simulate(filters, drive, static_pa=rig.static_pa, gain=gain, envelope=False)
 
-    return _report(rig, filters, first, peak, rerun, start_s, start_s + x.size / rate_hz, flames)
+    return _report(rig, filters, first, peak, rerun, start_s, start_s + x.size / rate_hz, flames,
+                   lambda member: simulate(member, drive), robust)
 
 
 def _prefetch(blocks, depth: int = 8):
@@ -239,8 +309,12 @@ def _prefetch(blocks, depth: int = 8):
 
 
 def passage_report(rig: Rig, path, start_s: float | None = None, end_s: float | None = None,
-                   flames: bool = True) -> PassageReport:
-    """Ceiling (and flames at it) of a file or a passage of it, streamed in blocks."""
+                   flames: bool = True, robust: bool = True) -> PassageReport:
+    """Ceiling (and flames at it) of a file or a passage of it, streamed in blocks.
+
+    The ceiling is robust over the loss family unless ``robust`` is False (see
+    :func:`signal_report`); a passage too long to keep is decoded once more per member.
+    """
     info = audio_info(path)
     filters = hole_filters(rig)
     peak = [0.0]
@@ -267,7 +341,11 @@ def passage_report(rig: Rig, path, start_s: float | None = None, end_s: float | 
         source = kept if kept is not None else _prefetch(read_blocks(path, filters.rate_hz, start_s, end_s))
         return simulate(filters, source, static_pa=rig.static_pa, gain=gain, envelope=False)
 
-    return _report(rig, filters, first, peak[0], rerun, start, end, flames)
+    def member(member_filters):
+        source = kept if kept is not None else _prefetch(read_blocks(path, filters.rate_hz, start_s, end_s))
+        return simulate(member_filters, source)
+
+    return _report(rig, filters, first, peak[0], rerun, start, end, flames, member, robust)
 
 
 def frame_lag(rig: Rig) -> int:

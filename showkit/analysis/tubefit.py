@@ -10,7 +10,21 @@ reflective with bounds) over three parameters of the transfer-matrix model
   and temperature both move it; the rig file takes it back as an air
   fraction or an effective temperature, see :mod:`showkit.rigwrite`);
 - ``end_correction``: the hole's total end correction in hole radii;
-- ``resistance``: the extra acoustic resistance per hole, Pa s/m^3.
+- the holes' losses, by one of two hole models:
+  ``"still"`` -- inertive holes in still gas with an extra acoustic resistance
+  per hole (``resistance``, Pa s/m^3); or ``"flowing"`` -- the bias-flow hole
+  (Howe 1979, :mod:`showkit.physics.biasflow`) with the jet velocity a free
+  multiple ``flow`` of the orifice law's at the rig's static pressure.
+
+With measured Q both models are fitted and the one with the smaller sum of
+squared residuals is chosen (they have the same number of parameters), so the
+measurement tells the models apart: still holes keep the low modes pushed up
+by the hole mass (Gardner, Gee & Dix, JASA 125, 2009), flowing holes lose that
+mass and damp the low modes hardest.  The chosen loss parameter's standard
+error comes from the Jacobian at the solution (``(J^T J)^-1``, scaled up by
+the reduced chi-square when it exceeds 1); the rig's loss family after a
+measurement spans it plus and minus two standard errors
+(:mod:`showkit.physics.family`).
 
 Residuals are the mode frequency errors in cents over ``cents_sigma`` and
 the log Q errors over ``q_sigma`` (Q only informs the resistance).  The
@@ -51,6 +65,15 @@ class TubeFit:
         Fitted total end correction, hole radii (None: no holes).
     resistance_pa_s_m3 : float
         Fitted extra resistance per hole, Pa s/m^3.
+    hole_model : str
+        ``"still"`` or ``"flowing"`` (see the module notes).
+    flow_scale : float
+        Jet velocity relative to the orifice law (0 for still holes).
+    flow_range, resistance_range : tuple of float or None
+        The loss parameter's fitted value minus and plus two standard errors
+        (None when it was not determined).
+    model_costs : dict
+        Sum of squared (weighted) residuals of each hole model fitted.
     measured_hz, measured_q : list of float
         The measured modes used.
     before_hz, after_hz, after_q : list of float
@@ -80,6 +103,12 @@ class TubeFit:
     undetermined: list = field(default_factory=list)
     condition: float = 1.0
     warnings: list = field(default_factory=list)
+    hole_model: str = "still"
+    flow_scale: float = 0.0
+    flow_range: tuple | None = None
+    resistance_range: tuple | None = None
+    model_costs: dict = field(default_factory=dict)
+    cost: float = 0.0
 
     @property
     def rms_cents(self) -> float:
@@ -87,7 +116,7 @@ class TubeFit:
 
 
 def variant(model: TubeModel, speed_scale: float = 1.0, end_correction: float | None = None,
-            resistance_pa_s_m3: float | None = None) -> TubeModel:
+            resistance_pa_s_m3: float | None = None, flow_m_s: float | None = None) -> TubeModel:
     """The model with the gas's sound speed scaled and the hole parameters replaced.
 
     Parameters
@@ -99,6 +128,8 @@ def variant(model: TubeModel, speed_scale: float = 1.0, end_correction: float | 
         Total end correction, hole radii.
     resistance_pa_s_m3 : float, optional
         Extra resistance per hole, Pa s/m^3.
+    flow_m_s : float, optional
+        Mean jet velocity out of the holes (bias flow), m/s; 0 for still gas.
     """
     gas = replace(model.gas, sound_speed_m_s=model.gas.sound_speed_m_s * speed_scale)
     geo = model.geometry
@@ -106,6 +137,8 @@ def variant(model: TubeModel, speed_scale: float = 1.0, end_correction: float | 
         geo = replace(geo, end_correction=float(end_correction))
     if resistance_pa_s_m3 is not None:
         geo = replace(geo, hole_resistance_pa_s_m3=float(resistance_pa_s_m3))
+    if flow_m_s is not None:
+        geo = replace(geo, hole_flow_m_s=float(flow_m_s))
     return TubeModel(geo, gas)
 
 
@@ -169,8 +202,44 @@ def match_modes(model: TubeModel, measured_hz: np.ndarray) -> tuple[np.ndarray, 
 
 def fit_tube(model: TubeModel, measured_hz, measured_q=None, cents_sigma: float = 2.0,
              q_sigma: float = 0.15, fit_end_correction: bool = True,
-             fit_resistance: bool = True, progress=None) -> TubeFit:
-    """Fit sound speed, end correction and hole resistance to measured modes.
+             fit_resistance: bool = True, progress=None, jet_m_s: float = 0.0,
+             hole_model: str | None = None) -> TubeFit:
+    """Fit sound speed, end correction and the holes' losses to measured modes.
+
+    With holes, measured Q and ``jet_m_s > 0`` both hole models are fitted and
+    the better one is returned (``hole_model`` forces one); otherwise the still
+    model with its resistance, as before.  ``jet_m_s`` is the orifice law's jet
+    velocity at the rig's static pressure, m/s.  Other parameters as
+    :func:`fit_one`.
+    """
+    report = progress or (lambda fraction, text: None)
+    has_q = measured_q is not None and np.all(np.isfinite(np.asarray(measured_q, dtype=float)))
+    candidates = ["still"]
+    if model.geometry.hole_count and has_q and jet_m_s > 0 and fit_resistance:
+        candidates = ["still", "flowing"] if hole_model is None else [hole_model]
+    elif hole_model is not None:
+        candidates = [hole_model]
+    fits = {}
+    for k, name in enumerate(candidates):
+        def part(fraction, text, k=k, name=name):
+            report((k + fraction) / len(candidates), f"{text} ({name} holes)")
+        fits[name] = fit_one(model, measured_hz, measured_q, cents_sigma, q_sigma, fit_end_correction,
+                             fit_resistance, part, loss=name, jet_m_s=jet_m_s)
+    best = min(fits.values(), key=lambda f: f.cost)
+    best.model_costs = {name: f.cost for name, f in fits.items()}
+    if len(fits) > 1:
+        other = [f for f in fits.values() if f is not best][0]
+        best.warnings.append(f"hole model: {best.hole_model} holes fit the modes better than "
+                             f"{other.hole_model} holes (sum of squared residuals {best.cost:.3g} "
+                             f"against {other.cost:.3g})")
+    return best
+
+
+def fit_one(model: TubeModel, measured_hz, measured_q=None, cents_sigma: float = 2.0,
+            q_sigma: float = 0.15, fit_end_correction: bool = True,
+            fit_resistance: bool = True, progress=None, loss: str = "still",
+            jet_m_s: float = 0.0) -> TubeFit:
+    """Fit sound speed, end correction and one hole model's loss parameter to measured modes.
 
     Parameters
     ----------
@@ -185,12 +254,22 @@ def fit_tube(model: TubeModel, measured_hz, measured_q=None, cents_sigma: float 
     q_sigma : float
         Standard error of ``ln Q``.
     fit_end_correction, fit_resistance : bool
-        Whether to try fitting these (they are held when the rig has no holes).
+        Whether to try fitting these (they are held when the rig has no holes);
+        ``fit_resistance`` stands for the loss parameter of either hole model.
     progress : callable(fraction, text), optional
+    loss : str
+        ``"still"`` (loss parameter: the extra resistance) or ``"flowing"`` (the
+        jet velocity as a multiple of ``jet_m_s``; no extra resistance).
+    jet_m_s : float
+        The orifice law's jet velocity at the rig's static pressure, m/s.
     """
     from scipy.optimize import least_squares
 
     report = progress or (lambda fraction, text: None)
+    flowing = loss == "flowing"
+    if model.geometry.hole_count:
+        model = variant(model, resistance_pa_s_m3=0.0 if flowing else None,
+                        flow_m_s=None if flowing else 0.0)
     f_meas = np.asarray(measured_hz, dtype=float)
     q_meas = None if measured_q is None else np.asarray(measured_q, dtype=float)
     geo, gas = model.geometry, model.gas
@@ -198,6 +277,9 @@ def fit_tube(model: TubeModel, measured_hz, measured_q=None, cents_sigma: float 
     ec0 = geo.end_correction_m / geo.hole_radius_m if has_holes else None
     r_scale = gas.density_kg_m3 * gas.sound_speed_m_s / geo.hole_area_m2 if has_holes else 1.0
     r0 = geo.hole_resistance_pa_s_m3
+    if flowing:  # the loss parameter is the jet velocity over the orifice law's
+        r_scale = 1.0
+        r0 = geo.hole_flow_m_s / jet_m_s if jet_m_s > 0 else 1.0
     report(0.05, "matching measured and modelled modes")
     guesses, scale0, warnings = match_modes(model, f_meas)
     before_f, before_q = track_modes(model, guesses)
@@ -219,6 +301,9 @@ def fit_tube(model: TubeModel, measured_hz, measured_q=None, cents_sigma: float 
         return vals
 
     def build(vals):
+        if flowing and has_holes:
+            return variant(model, vals["speed_scale"], vals["end_correction"],
+                           flow_m_s=vals["resistance"] * jet_m_s)
         return variant(model, vals["speed_scale"], vals["end_correction"],
                        vals["resistance"] * r_scale if has_holes else None)
 
@@ -231,7 +316,7 @@ def fit_tube(model: TubeModel, measured_hz, measured_q=None, cents_sigma: float 
         return r
 
     lower = {"speed_scale": 0.7, "end_correction": 0.0, "resistance": 0.0}
-    upper = {"speed_scale": 1.4, "end_correction": 5.0, "resistance": 1e3}
+    upper = {"speed_scale": 1.4, "end_correction": 5.0, "resistance": 3.0 if flowing else 1e3}
     step = {"speed_scale": 1e-4, "end_correction": 1e-3, "resistance": 1e-3}
     active = list(names)
     for attempt in range(3):
@@ -268,11 +353,30 @@ def fit_tube(model: TubeModel, measured_hz, measured_q=None, cents_sigma: float 
         warnings.append(f"the fitted model still misses a mode by {np.max(np.abs(resid)):.0f} cents: "
                         "check the rig's geometry (length, holes) or a spurious peak")
     report(1.0, "fit done")
+    # the loss parameter's standard error from the Jacobian (scaled by the reduced chi-square)
+    loss_range = None
+    if has_holes and "resistance" in active:
+        try:
+            cov = np.linalg.inv(sol.jac.T @ sol.jac)
+            dof = sol.fun.size - len(active)
+            chi2 = float(np.sum(sol.fun ** 2) / dof) if dof > 0 else 1.0
+            sigma = float(np.sqrt(cov[active.index("resistance")] [active.index("resistance")] * max(1.0, chi2)))
+            value = float(vals["resistance"])
+            if np.isfinite(sigma):
+                loss_range = (max(0.0, value - 2.0 * sigma) * r_scale, (value + 2.0 * sigma) * r_scale)
+        except np.linalg.LinAlgError:
+            loss_range = None
+    loss_value = float(vals["resistance"]) if has_holes else 0.0
     return TubeFit(
         sound_speed_m_s=float(gas.sound_speed_m_s * vals["speed_scale"]),
         speed_scale=float(vals["speed_scale"]),
         end_correction=None if not has_holes else float(vals["end_correction"]),
-        resistance_pa_s_m3=float(vals["resistance"] * r_scale) if has_holes else 0.0,
+        resistance_pa_s_m3=0.0 if (flowing or not has_holes) else loss_value * r_scale,
+        hole_model="flowing" if flowing else "still",
+        flow_scale=loss_value if flowing else 0.0,
+        flow_range=(loss_range if flowing else (0.0, 0.0)) if loss_range else None,
+        resistance_range=((0.0, 0.0) if flowing else loss_range) if loss_range else None,
+        cost=float(np.sum(sol.fun ** 2)),
         measured_hz=f_meas.tolist(), measured_q=[] if q_meas is None else q_meas.tolist(),
         before_hz=before_f.tolist(), after_hz=f_after.tolist(), after_q=q_after.tolist(),
         residual_cents=resid.tolist(), before_cents=_cents(before_f, f_meas).tolist(),

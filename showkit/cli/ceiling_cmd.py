@@ -69,4 +69,7 @@ def run(args) -> int:
     print(f"  flame contrast     {100 * r.contrast:.1f} % (median over the passage at the ceiling)")
     print(f"  static pressure    {rig.static_pa:.2f} Pa, reserve {rig.reserve:g}")
     print(f"  rests on           {r.drive_text}")
+    if r.family_text:
+        print(f"  safe for           {r.family_text}; lowest: {r.set_by}")
+        print("  flames             best estimate (" + rig.loss_family.describe_best() + ")")
     return 0

@@ -55,6 +55,7 @@ def run(args) -> int:
         print(f"{printable(sheet.title)}: {len(checks)} cues on {printable(rig.name)}, static {today.static_pa:.2f} Pa, "
               f"reserve {today.reserve:g}")
         print(f"ceilings rest on: {rig.drive.describe()}")
+        print(f"ceilings hold for: {rig.loss_family.describe()}")
         print(table(rows, ["cue", "gain dB", "ceiling dB", "headroom", "", "status", "note"], "<>>><<<"))
         bad = [c for c in checks if c.status != "ok"]
         if bad:

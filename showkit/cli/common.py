@@ -41,11 +41,14 @@ def conditions_from_args(args, base):
                            where={"static": "--static", "temperature": "--temperature", "reserve": "--reserve"})
 
 
-def load_rig_from_args(args):
-    """The rig named by ``--rig`` (or the demo) with ``--static``/``--temperature``/``--reserve`` applied."""
+def load_rig_from_args(args, check_calibration: bool = True):
+    """The rig named by ``--rig`` (or the demo) with ``--static``/``--temperature``/``--reserve`` applied.
+
+    ``check_calibration=False`` only for ``measure level``, which replaces a refused calibration.
+    """
     from showkit.rigfile import load_rig
 
-    rig = load_rig(getattr(args, "rig", None))
+    rig = load_rig(getattr(args, "rig", None), check_calibration)
     return rig.with_conditions(conditions=conditions_from_args(args, rig.conditions))
 
 

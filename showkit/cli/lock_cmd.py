@@ -54,4 +54,5 @@ def run(args) -> int:
     print(f"locked for {printable(rig.name)} at {rig.static_pa:.2f} Pa static, reserve {rig.reserve:g}; "
           f"saved {printable(sheet.path)}")
     print(f"ceilings rest on: {rig.drive.describe()}")
+    print(f"ceilings hold for: {rig.loss_family.describe()}")
     return 0

@@ -44,7 +44,9 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     _analyse_options(p)
     p = sub.add_parser("level", help="the absolute calibration point ([drive] reference_*)")
     add_rig_option(p)
-    p.add_argument("--frequency", type=float, metavar="HZ", help="reference sine frequency (default: the rig's)")
+    p.add_argument("--frequency", type=float, metavar="HZ",
+                   help="reference sine frequency (default: the rig's if the tube's losses cannot move the "
+                        "reading there, else one showkit picks between modes); a frequency where they can is refused")
     p.add_argument("--level", type=float, metavar="DBFS", help="reference sine peak level (default: the rig's)")
     p.add_argument("--out", metavar="SINE.wav", help="write the reference sine to play with any player")
     p.add_argument("--pressure", metavar="PRESSURE",
@@ -193,6 +195,24 @@ def _update(rig, report, args) -> None:
     backup = write_fit(args.rig, report, drive_response=not args.no_drive_response, prefer_gas=args.gas_as)
     if not args.json:
         print(f"updated {printable(args.rig)} (previous version kept as {printable(backup)})")
+    _calibration_still_good(args.rig)
+
+
+def _calibration_still_good(path) -> None:
+    """After a fit: say so at once if the calibration point is no longer one the tube's losses cannot move."""
+    import sys
+
+    from showkit.errors import RigError
+    from showkit.rigfile import load_rig
+
+    try:
+        load_rig(path)
+    except RigError as exc:
+        if "reference_frequency" in exc.where:
+            print(f"warning: calibrate again before using this rig: {exc.what} -- run showkit measure level "
+                  f"--rig {path}", file=sys.stderr)
+        else:
+            raise
 
 
 def _run_analyse(args) -> int:
@@ -229,6 +249,37 @@ def _run_live(args) -> int:
     return 0
 
 
+def _reference_frequency(rig, asked: float | None) -> float:
+    """The calibration frequency: ``asked`` if the tube's losses cannot move the cap reading there
+    (else a one-line refusal naming the nearest mode and a frequency that will do); without it,
+    the rig's own if accepted, else the one showkit picks (:func:`showkit.physics.family.suggest_reference`)."""
+    import sys
+
+    from showkit.errors import InputError, MeasureError
+    from showkit.physics.family import check_reference, suggest_reference
+
+    family = rig.loss_family
+    if asked is not None:
+        if not asked > 0:
+            raise InputError("--frequency must be above zero", "--frequency", "give e.g. --frequency 1400")
+        check = check_reference(family, asked)
+        if not check.ok:
+            fix = (f"use --frequency {check.suggestion_hz:g}, or leave --frequency out and showkit picks one"
+                   if check.suggestion_hz else "measure the tube first (showkit measure analyse)")
+            raise MeasureError(check.message(), "--frequency", fix)
+        return float(asked)
+    own = rig.drive.reference_frequency_hz
+    if check_reference(family, own).ok:
+        return own
+    picked = suggest_reference(family)
+    if picked is None:
+        raise MeasureError("no frequency below the plane-wave limit gives a cap reading the tube's losses "
+                           "cannot move", "measure level", "measure the tube first (showkit measure analyse)")
+    print(f"calibrating at {picked:g} Hz, between modes: the rig's {own:g} Hz is where the tube's losses "
+          "move the reading", file=sys.stderr)
+    return picked
+
+
 def _run_level(args) -> int:
     import numpy as np
 
@@ -237,11 +288,15 @@ def _run_level(args) -> int:
     from showkit.errors import InputError
     from showkit.rigwrite import update_rig
 
-    rig = load_rig_from_args(args)
+    # the rig's own calibration may be the one being replaced: load it unchecked, check the new frequency
+    rig = load_rig_from_args(args, check_calibration=False)
+    freq = _reference_frequency(rig, args.frequency)
     where = {"reference_frequency": "--frequency", "reference_level": "--level",
              "reference_pressure": "--pressure"}
     # the one door for a calibration: the sine's frequency and level are checked before it is made
-    drive = make_calibration(reference_frequency=args.frequency, reference_level=args.level,
+    # (the sine's own ceiling below rests on the rig's present calibration, robust over the loss
+    # family: every member calibrated with that reading, so it holds wherever the reading was taken)
+    drive = make_calibration(reference_frequency=freq, reference_level=args.level,
                              base=rig.drive, where=where, tube=rig.model)
     freq, level = drive.reference_frequency_hz, drive.reference_level_dbfs
     level_caution()

@@ -37,6 +37,7 @@ def modes_report(rig, f_max_hz=None) -> dict:
                 "density_kg_m3": rig.gas.density_kg_m3, "gamma": rig.gas.gamma},
         "plane_wave_limit_hz": model.plane_wave_limit_hz,
         "holes": rig.geometry.hole_count,
+        "hole_model": rig.loss_family.describe_best(),
         "modes": [{"n": m.n, "frequency_hz": m.frequency_hz, "q": m.q, "note": m.note,
                    "cents": m.cents, "flame_peaks": m.flame_peaks,
                    "peak_spacing_m": m.peak_spacing_m, "pattern": m.pattern,
@@ -72,6 +73,7 @@ def run(args) -> int:
     print(f"gas: {rig.fuel} with {rig.air_fraction * 100:g} % air at "
           f"{rig.temperature_k - 273.15:.1f} C; sound speed {gas.sound_speed_m_s:.2f} m/s, "
           f"density {gas.density_kg_m3:.3f} kg/m3")
+    print(f"holes: {report['hole_model']} (the best estimate)")
     print(f"plane-wave limit {report['plane_wave_limit_hz']:.0f} Hz (no modes listed above it)\n")
     rows = []
     for m in report["modes"]:

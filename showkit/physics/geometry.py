@@ -49,6 +49,9 @@ class TubeGeometry:
     hole_resistance_pa_s_m3 : float
         Extra acoustic resistance of each hole (flame, outflow), Pa s/m^3,
         in series with its mass.  Fitted by measurement.
+    hole_flow_m_s : float
+        Mean velocity of the gas jet out of each hole, m/s: the bias flow of
+        :mod:`showkit.physics.biasflow` (0: still gas, the inertive hole).
     """
 
     length_m: float
@@ -58,6 +61,7 @@ class TubeGeometry:
     hole_diameter_m: float = 0.0
     end_correction: float | None = None
     hole_resistance_pa_s_m3: float = 0.0
+    hole_flow_m_s: float = 0.0
 
     @property
     def radius_m(self) -> float:

@@ -16,9 +16,11 @@ frequencies at once.  This is the transfer-matrix method as in openwind
 
 A hole's impedance: the viscothermal series impedance of its own short
 bore (length = wall thickness), the mass of its end corrections
-(:class:`~showkit.physics.geometry.TubeGeometry`), the radiation resistance
-of an unflanged opening ``rho c (k b)^2 / (4 S_h)`` (Levine & Schwinger 1948)
-and an extra resistance for the flame and the outflow (a rig setting).
+(:class:`~showkit.physics.geometry.TubeGeometry`) -- with the gas flowing
+out of the hole, Howe's bias-flow conductivity in their place
+(:mod:`showkit.physics.biasflow`) -- the radiation resistance of an unflanged
+opening ``rho c (k b)^2 / (4 S_h)`` (Levine & Schwinger 1948) and an extra
+resistance (a rig setting, or fitted by measurement).
 """
 
 from __future__ import annotations
@@ -27,6 +29,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from showkit.physics.biasflow import hole_aperture_impedance
 from showkit.physics.gas import GasState
 from showkit.physics.geometry import TubeGeometry
 from showkit.physics.lines import line_constants, propagation
@@ -109,11 +112,12 @@ class TubeModel:
         k = omega / gas.sound_speed_m_s
         rho_c_s = gas.density_kg_m3 * gas.sound_speed_m_s / g.hole_area_m2
         return (z_bore * g.wall_m
-                + 1j * omega * gas.density_kg_m3 * g.end_correction_m / g.hole_area_m2
+                + hole_aperture_impedance(omega, gas.density_kg_m3, g.hole_radius_m,
+                                          g.end_correction_m, g.hole_flow_m_s)
                 + rho_c_s * (k * g.hole_radius_m) ** 2 / 4.0
                 + g.hole_resistance_pa_s_m3)
 
-    def response(self, freq_hz, points_m=None) -> TubeResponse:
+    def response(self, freq_hz, points_m=None, hole_impedance=None) -> TubeResponse:
         """Pressure at every hole (and at ``points_m``) per unit volume velocity.
 
         Parameters
@@ -122,6 +126,10 @@ class TubeModel:
             Frequencies, Hz, all > 0.
         points_m : array_like, optional
             Extra probe positions from the driven end, m, within ``[0, L]``.
+        hole_impedance : array_like of complex, shape (F,), optional
+            The holes' impedance for each entry of ``freq_hz`` instead of
+            :meth:`hole_impedance` (evaluates many hole models in one pass: repeat a
+            frequency and give one impedance per model).
         """
         g = self.geometry
         freq = np.atleast_1d(np.asarray(freq_hz, dtype=float))
@@ -130,7 +138,10 @@ class TubeModel:
         omega = 2.0 * np.pi * freq
         gamma, zc = propagation(omega, g.radius_m, self.gas)
         points = np.atleast_1d(np.asarray([] if points_m is None else points_m, dtype=float))
-        z_hole = self.hole_impedance(omega) if g.hole_count else None
+        z_hole = None
+        if g.hole_count:
+            z_hole = (self.hole_impedance(omega) if hole_impedance is None
+                      else np.broadcast_to(np.asarray(hole_impedance, dtype=complex), omega.shape))
 
         # stations from the cap towards the source: (position, kind, index)
         stations = [(float(x), 0, i) for i, x in enumerate(g.positions)]

@@ -8,7 +8,10 @@ valid only for what it was computed from; a changed source, rig or
 calibration (or a new analysis version) makes it *stale*.
 
 Today's static pressure and reserve re-derive a valid lock's ceiling by
-exact scaling (physics.md section 7), without re-analysis.
+exact scaling, without re-analysis, for a static pressure up to twice the one
+locked with (from half of it after a measurement): the range the rig's loss
+family covers, since the gas jets out of the holes faster at a higher pressure
+(:mod:`showkit.physics.family`).
 """
 
 from __future__ import annotations
@@ -20,6 +23,7 @@ from datetime import datetime, timezone
 from showkit import ANALYSIS_VERSION
 from showkit.errors import ShowkitError
 from showkit.physics import ceiling as rule
+from showkit.physics.family import STATIC_SPAN
 from showkit.rigfile import Rig, load_rig
 from showkit.show.sheet import Cue, Lock, Sheet
 from showkit.show.sources import TONE_RATE_HZ, CueSignal, cue_signal
@@ -224,6 +228,15 @@ def check_cue(sheet: Sheet, rig: Rig, cue: Cue, static_pa: float | None = None,
     if reason:
         return CueCheck(cue.id, cue.gain_db, None, None, "stale",
                         f"{reason}: run `showkit lock {sheet.path or 'SHEET'}` to re-lock")
+    # the loss family reaches down to still gas before a measurement; a measured one does not
+    top = STATIC_SPAN * cue.lock.static_pa
+    bottom = cue.lock.static_pa / STATIC_SPAN if rig.loss_family and rig.loss_family.measured else 0.0
+    if not bottom - 1e-9 <= static <= top + 1e-9:
+        return CueCheck(cue.id, cue.gain_db, None, None, "stale",
+                        f"today's static pressure {static:g} Pa is outside the {bottom:g} to {top:g} Pa "
+                        f"the lock's loss family covers (the gas jets out of the holes faster or slower): set "
+                        f"the rig's static_pressure to today's reading and run `showkit lock "
+                        f"{sheet.path or 'SHEET'}`")
     try:
         c = today_ceiling(cue.lock, static, res)
     except ValueError as exc:  # pragma: no cover - lock_problem refuses these first

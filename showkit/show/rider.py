@@ -59,6 +59,8 @@ def lift_curve(rig: Rig, samples: np.ndarray, rate_hz: int, max_lift_db: float =
     from showkit.analysis.pressure import hole_filters
     from showkit.physics.response import simulate
 
+    from showkit.analysis.pressure import family_filters
+
     filters = hole_filters(rig)
     drive = samples
     if rate_hz != filters.rate_hz:
@@ -68,9 +70,14 @@ def lift_curve(rig: Rig, samples: np.ndarray, rate_hz: int, max_lift_db: float =
     frames = simulate(filters, drive, ring_out=False)
     fps = frames.frame_rate_hz
     env = frames.envelope.max(axis=1).astype(float)
+    # the lift must hold for every member of the loss family, as the lock does
+    for _, member in family_filters(rig)[1:]:
+        other = simulate(member, drive, ring_out=False).envelope.max(axis=1).astype(float)
+        n = min(env.size, other.size)
+        env[:n] = np.maximum(env[:n], other[:n])
     n_frames = env.size
     behind = int(round(GUARD_S * fps))
-    ahead = int(round(ring_time_s(filters) * fps))
+    ahead = int(round(max(ring_time_s(f) for _, f in family_filters(rig)) * fps))
     guard = behind + ahead + 1
     env_window = np.maximum(_running(env, guard, "max", behind), 1e-12)
     allowed = (1.0 - rig.reserve) * rig.static_pa / env_window
@@ -102,10 +109,11 @@ def ride(rig: Rig, samples: np.ndarray, rate_hz: int, max_lift_db: float = MAX_L
     x = np.asarray(samples, dtype=float)
     if not x.any():
         return x
-    from showkit.analysis.pressure import hole_filters
 
     lift = lift_curve(rig, x, rate_hz, max_lift_db)
-    ring = ring_time_s(hole_filters(rig))
+    from showkit.analysis.pressure import family_filters
+
+    ring = max(ring_time_s(f) for _, f in family_filters(rig))
     line = rig.reserve * rig.static_pa
     for _ in range(MAX_ROUNDS):
         y = x * lift

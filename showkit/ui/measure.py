@@ -289,13 +289,19 @@ class MeasureView(Vertical):
             self.app.say(exc.line(), warn=True)
             return
         self.session.reload_rig()
-        self.app.start_background()
         from showkit.ui.run import RunView
 
         self.app.query_one(RunView).rig_changed()  # its cues were verified on the old rig
-        self.app.update_topbar()
         done = f"wrote the fit into {Path(path).name} (previous version kept as {Path(backup).name})"
         self.query_one("#measure-title", Static).update(f"[b]Measure the tube[/b]  {escape(printable(done))}")
+        refused = calibration_refused(Path(path))
+        if refused:
+            # the fit moved the modes next to the calibration frequency: no levels until calibrated again
+            self.app.say(f"{done}; calibrate again before using this rig: {refused} "
+                         f"(showkit measure level --rig {Path(path).name})", warn=True)
+            return
+        self.app.start_background()
+        self.app.update_topbar()
         self.app.say(f"{done}; modes and ceilings re-derived for the measured tube")
 
 
@@ -327,6 +333,20 @@ def measure_files(rig, rec_path: Path, sweep_path: Path, progress=None) -> Measu
     with np.errstate(divide="ignore"):
         level = 20 * np.log10(np.maximum(mag, 1e-30) / max(float(mag.max()), 1e-30))
     return Measurement(Path(rec_path), Path(sweep_path), np.asarray(resp.freq_hz), level, report, rig.name)
+
+
+def calibration_refused(path: Path) -> str | None:
+    """Why the rig file's calibration point is now refused (after a fit moved the modes), or None."""
+    from showkit.errors import RigError
+    from showkit.rigfile import load_rig
+
+    try:
+        load_rig(path)
+    except RigError as exc:
+        if "reference_frequency" in exc.where:
+            return exc.what
+        raise
+    return None
 
 
 def write_fit(path: Path, report: dict) -> Path:
