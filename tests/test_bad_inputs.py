@@ -51,6 +51,8 @@ diameter = "1.5 mm"
 [gas]
 fuel = "propane"
 static_pressure = "20 Pa"
+[drive]
+reference_frequency = "883.1 Hz"  # one the tube's losses cannot move (showkit's own suggestion)
 """
 
 SHEET = """title = "Bad input show"
