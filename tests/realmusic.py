@@ -607,6 +607,246 @@ def build(folder: str | Path) -> Corpus:
     return Corpus(folder, rig_path, tracks, tuning, keys, off_of)
 
 
+# ----------------------------------------------------------------------------- the scan under test
+
+#: Tracks whose score, map and pitches are evaluated (the medley is used for its joins only).
+def scored_tracks(corpus: Corpus) -> list[str]:
+    return [n for n in corpus.tracks if n != "medley"]
+
+
+def engine_map(rig, rig_path: Path, path: Path) -> dict:
+    """The scan's time x mode map of a track, in the ``scan --map`` JSON layout (issue 12).
+
+    ``{"hop_s", "times_s", "modes": [{"n", "frequency_hz", "note"}], "strength", "hit",
+    "notes_hz"}``, plus ``"dominant_hz"`` (per frame, 0 = none) when the engine gives it.
+    Looked for, in this order: a function ``track_map(rig, path)`` in
+    ``showkit.analysis.scan``; the command line ``showkit scan TRACK --map FILE``;
+    and, for the engine before issue 12, the map drawn from ``track_frames``
+    (a mode counts as hit where its energy is within the map's 27 dB of the
+    track's maximum, what the view drew) with the 4 peaks per frame as notes.
+    """
+    from showkit.analysis import scan as scan_mod
+
+    fn = getattr(scan_mod, "track_map", None)
+    if fn is not None:
+        return _as_map(fn(rig, path))
+    if _cli_has_map():
+        import os
+        import sys
+        import tempfile
+
+        with tempfile.TemporaryDirectory() as tmp:
+            out = Path(tmp) / "map.json"
+            subprocess.run([sys.executable, "-m", "showkit", "scan", str(path), "--rig", str(rig_path),
+                            "--map", str(out), "--no-cache"], check=True, capture_output=True,
+                           env=dict(os.environ), timeout=600)
+            return _as_map(json.loads(out.read_text()))
+    return _old_map(rig, path)
+
+
+_CLI_MAP: list = []
+
+
+def _cli_has_map() -> bool:
+    if not _CLI_MAP:
+        import sys
+
+        r = subprocess.run([sys.executable, "-m", "showkit", "scan", "--help"], check=False, capture_output=True,
+                           text=True, timeout=120)
+        _CLI_MAP.append("--map" in r.stdout)
+    return _CLI_MAP[0]
+
+
+def _as_map(d: dict) -> dict:
+    d = dict(d)
+    d["times_s"] = np.asarray(d["times_s"], float)
+    d["strength"] = np.asarray(d["strength"], float).reshape(len(d["modes"]), -1)
+    d["hit"] = np.asarray(d["hit"], bool).reshape(len(d["modes"]), -1)
+    d["notes_hz"] = [np.asarray(f, float).ravel() for f in d["notes_hz"]]
+    return d
+
+
+def _old_map(rig, path: Path) -> dict:
+    from showkit.analysis import scan as scan_mod
+    from showkit.analysis.pitches import dominant_pitch
+
+    fr = scan_mod.track_frames(rig, path, max_rows=64)
+    energy = np.asarray(fr["map_energy"], float)
+    top = float(energy.max()) if energy.size else 0.0
+    hit = energy >= top * 10 ** (-2.7) if top > 0 else np.zeros(energy.shape, bool)
+    table = scan_mod.mode_table(rig)
+    work = scan_mod._analyse(rig, path)
+    ok = np.isfinite(work.features.peak_hz) & (work.features.peak_energy > 0)
+    notes = [f[k] for f, k in zip(work.features.peak_hz, ok)]
+    dom = dominant_pitch(work.features.peak_hz, work.features.peak_energy)
+    times = np.asarray(fr["times_s"], float)
+    return {"hop_s": float(times[1] - times[0]) if times.size > 1 else 0.0, "times_s": times,
+            "modes": [{"n": int(n), "frequency_hz": float(table.freq_hz[table.index_of(n)]),
+                       "note": table.notes[table.index_of(n)]} for n in fr["map_modes"]],
+            "strength": energy / top if top > 0 else energy, "hit": hit, "notes_hz": notes,
+            "dominant_hz": np.where(np.isfinite(dom), dom, 0.0), "engine": "before issue 12"}
+
+
+def _prf(tp: int, fp: int, fn: int) -> dict:
+    p = tp / (tp + fp) if tp + fp else 0.0
+    r = tp / (tp + fn) if tp + fn else 0.0
+    return {"precision": p, "recall": r, "f1": 2 * p * r / (p + r) if p + r else 0.0,
+            "tp": int(tp), "fp": int(fp), "fn": int(fn)}
+
+
+def map_hits_on_table(m: dict, table) -> np.ndarray:
+    """The map's hits as (table modes, frames); rows the map leaves out are no hits."""
+    out = np.zeros((len(table.n), len(m["times_s"])), bool)
+    for row, mode in enumerate(m["modes"]):
+        where = np.nonzero(table.n == int(mode["n"]))[0]
+        if where.size:
+            out[where[0]] |= m["hit"][row]
+    return out
+
+
+def dominant_line(m: dict) -> np.ndarray:
+    """The map's dominant pitch per frame: ``dominant_hz`` if given, else the highest detected note."""
+    if "dominant_hz" in m:
+        return np.nan_to_num(np.asarray(m["dominant_hz"], float))
+    return np.array([float(f.max()) if f.size else 0.0 for f in m["notes_hz"]])
+
+
+def evaluate(corpus: Corpus, progress=None) -> dict:
+    """Scan every track of the set and measure it against the ground truth (issue 12's figures).
+
+    Sources of the measures: frame-level precision/recall/F1 of the mode hits
+    (counted here); mir_eval.multipitch (Bay, Ehmann & Downie, ISMIR 2009)
+    on ``notes_hz``; mir_eval.melody raw pitch/chroma accuracy (Poliner et al.,
+    IEEE TASLP 15(4), 2007) of the dominant pitch against the highest sounding
+    note; scipy's Spearman rank correlation of score against held-on-mode share.
+    """
+    import mir_eval
+    from scipy.stats import spearmanr
+
+    from showkit.analysis import scan as scan_mod
+
+    rig = corpus.rig()
+    table = scan_mod.mode_table(rig)
+    readable = np.asarray(table.readable, bool)
+    res: dict = {"tracks": {}}
+    maps: dict = {}
+    tot = np.zeros(3, int)
+    mp_ref_t, mp_ref_f, mp_est_f = [], [], []
+    for name in scored_tracks(corpus) + ["medley"]:
+        tr = corpus[name]
+        if progress:
+            progress(name)
+        scan = scan_mod.scan_track(rig, tr.path)
+        row = {"score": scan["score"], "transpose_cents": 100.0 * (scan["transpose_semitones"] or 0.0),
+               "transpose_score": scan["transpose_score"], "held_share": held_share(tr, table),
+               "passages": [(p["start_s"], p["end_s"], p["score"]) for p in scan["passages"]],
+               "contrast": [p.get("contrast") for p in scan["passages"]],
+               "shift_cents": tr.shift_cents, "kind": tr.kind}
+        res["tracks"][name] = row
+        if name == "medley":
+            continue
+        m = engine_map(rig, corpus.rig_path, tr.path)
+        maps[name] = m
+        times = m["times_s"]
+        truth = mode_hits(tr, table, times)[readable]
+        est = map_hits_on_table(m, table)[readable]
+        tp, fp, fn = int((truth & est).sum()), int((~truth & est).sum()), int((truth & ~est).sum())
+        tot += (tp, fp, fn)
+        row["hits"] = _prf(tp, fp, fn)
+        row["truth_hits_per_frame"] = float(truth.sum(axis=0).mean())
+        row["map_hits_per_frame"] = float(est.sum(axis=0).mean())
+        ref_t, ref_f = sounding_hz(tr, 0.0, times)
+        est_f = m["notes_hz"]
+        if tr.freq_hz.size:
+            mp = mir_eval.multipitch.evaluate(ref_t, ref_f, times, est_f)
+            row["multipitch"] = {k: float(mp[k]) for k in ("Precision", "Recall", "Accuracy",
+                                                          "Chroma Accuracy")}
+            mp_ref_t.append(times + (mp_ref_t[-1][-1] + 1.0 if mp_ref_t else 0.0))
+            mp_ref_f += ref_f
+            mp_est_f += list(est_f)
+            _, ref_mel = melody(tr, 0.0, times)
+            mel = mir_eval.melody.evaluate(times, ref_mel, times, dominant_line(m))
+            row["melody"] = {k: float(mel[k]) for k in ("Raw Pitch Accuracy", "Raw Chroma Accuracy",
+                                                       "Voicing Recall", "Voicing False Alarm")}
+    res["hits_pooled"] = _prf(*tot)
+    if mp_ref_t:
+        t = np.concatenate(mp_ref_t)
+        mp = mir_eval.multipitch.evaluate(t, mp_ref_f, t, mp_est_f)
+        res["multipitch_pooled"] = {k: float(mp[k]) for k in ("Precision", "Recall", "Accuracy",
+                                                             "Chroma Accuracy")}
+    # ranking: the on-mode pieces, their off-mode copies and the drums
+    ranked = [p.name for p in PIECES] + list(corpus.off_of) + ["drums"]
+    sc = [res["tracks"][n]["score"] for n in ranked]
+    hs = [res["tracks"][n]["held_share"] for n in ranked]
+    rho = spearmanr(hs, sc).statistic if np.ptp(sc) > 0 else float("nan")
+    res["spearman"] = float(rho)
+    res["off_ratio"] = {off: (res["tracks"][off]["score"] / res["tracks"][on]["score"]
+                              if res["tracks"][on]["score"] else float("inf"))
+                        for off, on in corpus.off_of.items()}
+    res["transposition"] = {off: {"applied_cents": corpus[off].shift_cents,
+                                  "suggested_cents": res["tracks"][off]["transpose_cents"],
+                                  "error_cents": res["tracks"][off]["transpose_cents"]
+                                  + corpus[off].shift_cents}
+                            for off in corpus.off_of}
+    res["transposition_ok"] = sum(abs(v["error_cents"]) <= 25.0 for v in res["transposition"].values())
+    med = res["tracks"]["medley"]
+    bounds = [p[0] for p in med["passages"][1:]]
+    joins = corpus["medley"].joins_s
+    res["joins"] = {"joins_s": joins, "boundaries_s": bounds,
+                    "error_s": [float(min((abs(b - j) for b in bounds), default=float("inf")))
+                                for j in joins]}
+    res["joins_found"] = sum(e <= 1.5 for e in res["joins"]["error_s"])
+    # the same music at another level: the same map?
+    lv = next(n for n in corpus.tracks if "_level" in n)
+    a = map_hits_on_table(maps["chorale_organ"], table)
+    b = map_hits_on_table(maps[lv], table)
+    k = min(a.shape[1], b.shape[1])
+    res["level_map_agreement"] = _prf(int((a[:, :k] & b[:, :k]).sum()), int((~a[:, :k] & b[:, :k]).sum()),
+                                      int((a[:, :k] & ~b[:, :k]).sum()))
+    res["engine"] = maps["chorale_organ"].get("engine", "current")
+    return res
+
+
+def report(res: dict) -> str:
+    """The figures of :func:`evaluate` as text."""
+    L = [f"engine: {res['engine']}"]
+    h = res["hits_pooled"]
+    L.append(f"mode hits, frame level, pooled: precision {h['precision']:.3f} recall {h['recall']:.3f} "
+             f"F1 {h['f1']:.3f}  (tp {h['tp']} fp {h['fp']} fn {h['fn']})")
+    if "multipitch_pooled" in res:
+        m = res["multipitch_pooled"]
+        L.append(f"mir_eval multipitch, pooled: precision {m['Precision']:.3f} recall {m['Recall']:.3f} "
+                 f"accuracy {m['Accuracy']:.3f} chroma accuracy {m['Chroma Accuracy']:.3f}")
+    L.append(f"{'track':28s} {'score':>6s} {'held':>5s} {'hitP':>5s} {'hitR':>5s} {'hitF1':>5s} "
+             f"{'gt/fr':>5s} {'map/fr':>6s} {'mpP':>5s} {'mpR':>5s} {'RPA':>5s} {'RCA':>5s} {'transp':>7s}")
+    for n, t in res["tracks"].items():
+        if "hits" not in t:
+            continue
+        mp, mel = t.get("multipitch", {}), t.get("melody", {})
+        L.append(f"{n:28s} {t['score']:6.1f} {t['held_share']:5.2f} {t['hits']['precision']:5.2f} "
+                 f"{t['hits']['recall']:5.2f} {t['hits']['f1']:5.2f} {t['truth_hits_per_frame']:5.2f} "
+                 f"{t['map_hits_per_frame']:6.2f} {mp.get('Precision', float('nan')):5.2f} "
+                 f"{mp.get('Recall', float('nan')):5.2f} "
+                 f"{mel.get('Raw Pitch Accuracy', float('nan')):5.2f} "
+                 f"{mel.get('Raw Chroma Accuracy', float('nan')):5.2f} {t['transpose_cents']:+7.0f}")
+    L.append(f"Spearman(score, held-on-mode share) over pieces, off-mode copies, drums: {res['spearman']:.2f}")
+    L.append("off-mode / on-mode score: " + ", ".join(f"{k} {v:.2f}" for k, v in res["off_ratio"].items()))
+    L.append(f"percussion score: {res['tracks']['drums']['score']:.1f}")
+    L.append(f"transposition within 25 cents: {res['transposition_ok']} of {len(res['transposition'])}: "
+             + ", ".join(f"{k} applied {v['applied_cents']:+.0f} suggested {v['suggested_cents']:+.0f}"
+                         for k, v in res["transposition"].items()))
+    j = res["joins"]
+    L.append(f"medley joins found within 1.5 s: {res['joins_found']} of {len(j['joins_s'])} "
+             f"(joins {', '.join(f'{x:.1f}' for x in j['joins_s'])}; boundaries "
+             f"{', '.join(f'{x:.1f}' for x in j['boundaries_s'])}; errors "
+             f"{', '.join(f'{x:.2f}' for x in j['error_s'])} s)")
+    a = res["level_map_agreement"]
+    lv = next(n for n in res["tracks"] if "_level" in n)
+    L.append(f"level change ({lv}): score {res['tracks'][lv]['score']:.1f} vs "
+             f"{res['tracks']['chorale_organ']['score']:.1f}; map agreement F1 {a['f1']:.2f}")
+    return "\n".join(L)
+
+
 def describe(corpus: Corpus) -> str:
     """A plain-text table of the set: tracks, notes, held-on-mode share, the rig's on-note modes."""
     table = corpus.table()
