@@ -7,4 +7,4 @@ __version__ = "0.1.0"
 
 #: Bumped whenever a change to the model or the analysis changes results:
 #: cached analyses and cue locks made with another version are stale.
-ANALYSIS_VERSION = 2
+ANALYSIS_VERSION = 3
