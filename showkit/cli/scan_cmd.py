@@ -34,6 +34,9 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         help="write a preview WAV of each track's best passage shifted by N "
                              "semitones (-3 to 3) into the current folder")
     parser.add_argument("--no-cache", action="store_true", help="analyse again, do not read or write the cache")
+    parser.add_argument("--map", metavar="FILE.json",
+                        help="write the time x mode map of the (one) track as JSON: per frame and mode "
+                             "the strength (0-1) and whether the mode is hit, and every note found")
 
 
 class _Bar:
@@ -145,10 +148,33 @@ def _previews(tracks: list[dict], semitones: float) -> None:
             print(f"showkit: preview of {t['path']} skipped: {exc.line()}", file=sys.stderr)
 
 
+def _write_map(rig, track: dict, target: str) -> None:
+    """Write the track's time x mode map (:func:`showkit.analysis.scan.map_data`) through the safe writer."""
+    import json
+    from pathlib import Path
+
+    from showkit.analysis.scan import track_frames
+    from showkit.errors import InputError
+    from showkit.safesave import write_text
+
+    data = track_frames(rig, track["path"])["map"]
+    data = {"track": track["path"], **data}
+    try:
+        write_text(Path(target), json.dumps(data, separators=(",", ":")) + "\n", backups=0)
+    except OSError as exc:
+        raise InputError(f"cannot write the map ({exc.strerror})", target,
+                         "check the folder and its permissions") from None
+    print(f"map: {target}", file=sys.stderr)
+
+
 def run(args) -> int:
-    from showkit.analysis.scan import scan_paths
+    from showkit.analysis.scan import expand_paths, scan_paths
     from showkit.cli.common import load_rig_from_args
     from showkit.errors import InputError
+
+    if args.map is not None and len(expand_paths(args.paths)) != 1:
+        raise InputError("--map writes the map of one track", " ".join(args.paths),
+                         "give one audio file with --map")
 
     if args.jobs is not None and args.jobs < 1:
         raise InputError(f"--jobs must be 1 or more (got {args.jobs})", "--jobs", "give a number of workers, e.g. --jobs 2")
@@ -178,4 +204,6 @@ def run(args) -> int:
         _write_csv(args.csv, tracks)
     if args.transpose is not None:
         _previews(tracks, args.transpose)
+    if args.map is not None and tracks[0]["error"] is None:
+        _write_map(rig, tracks[0], args.map)
     return 0 if any(t["error"] is None for t in tracks) else 2
