@@ -13,16 +13,19 @@ Sources (independent of showkit):
   and reverb off, mono, 22.05 kHz;
 * the ground truth: the MIDI notes (onset, offset, pitch) -- at the pitch the
   soundfont really plays them.  That pitch is MEASURED: every (instrument,
-  MIDI note) used is rendered held on its own and its f0 estimated with
-  librosa's pYIN (Mauch & Dixon, ICASSP 2014); the offset from 440-Hz 12-TET
-  is applied to the notes (see :func:`soundfont_tuning`).
+  MIDI note) used is rendered held on its own and the frequency of its
+  fundamental's spectral peak measured; the offset from 440-Hz 12-TET (up to
+  ~30 cents in some FluidR3 piano zones) is applied to the notes (see
+  :func:`soundfont_tuning`; cross-checked with librosa's pYIN).
 
 The rig is invented (written here as TOML like ``showkit/data/demo_rig.toml``):
-the demo tube's design with its length solved so that as many readable modes
-as possible sit on equal-tempered notes (:func:`solve_rig`).  Each piece is
-then put in the key (a whole-semitone transposition of the score) whose notes
-are held on readable modes the longest, so the on-mode versions are as "good"
-as that piece can be on this tube.  The set also holds copies moved off the
+the demo tube's design with its length solved so that readable modes sit on
+the notes the pieces hold, at the pitches the soundfont plays
+(:func:`solve_rig`).  Each piece is put in the key (a whole-semitone
+transposition of the score) whose notes are held on readable modes the
+longest, so the on-mode versions are as "good" as that piece can be on this
+tube; each off-mode copy's shift is one whose way back is the copy's best
+transposition (:func:`shift_profile`).  The set also holds copies moved off the
 modes by known amounts (whole semitones and fractions, by MIDI pitch bend), a
 level-changed copy, a drum kit and a concatenation of contrasting pieces
 with known join times.
@@ -54,7 +57,7 @@ RATE_HZ = 22050
 #: General MIDI soundfont of Debian's fluid-soundfont-gm package.
 SOUNDFONT = Path("/usr/share/sounds/sf2/FluidR3_GM.sf2")
 #: Bumped whenever the corpus changes (invalidates caches).
-VERSION = 3
+VERSION = 7
 #: Peak level of every rendered track, full scale.
 PEAK = 0.7
 #: Gain of the level-changed copy, dB.
@@ -98,14 +101,13 @@ PIECES = (
           "slow aria, flute melody over strings", (100, 60, 60)),
 )
 
-#: Shifts (cents) tried for the off-mode copies; per piece the one leaving least held on modes is used.
-OFF_SHIFTS_CENTS = {
-    "chorale_organ": (100.0, -100.0, 200.0, -200.0),
-    "quartet_strings": (-150.0, 150.0, -250.0, 250.0),
-    "sonata_piano": (300.0, -300.0, 200.0, -200.0),
-    "reel_violin": (-250.0, 250.0, -150.0, 150.0),
-    "aria_flute": (150.0, -150.0, 250.0, -250.0),
-}
+#: Off-mode copies: shifts tried per piece, cents (whole semitones by MIDI note, fractions by pitch
+#: bend).  Five pieces get a copy: those holding most time on modes that have a shift leaving at
+#: most OFF_MAX_SHARE of that time on modes and whose best transposition back (shift_profile) is
+#: the shift undone, within 25 cents; of those shifts the one leaving least on modes is used.
+OFF_CANDIDATES_CENTS = (100.0, -100.0, 150.0, -150.0, 200.0, -200.0, 250.0, -250.0, 300.0, -300.0)
+OFF_MAX_SHARE = 0.4
+OFF_COPIES = 5
 #: The contrasting pieces joined end to end (in this order).
 CONCAT = ("chorale_organ", "rag_piano", "aria_flute", "drums", "reel_violin")
 
@@ -276,31 +278,62 @@ def drum_notes(seconds: float = 20.0, bpm: float = 100.0) -> list:
 
 # ----------------------------------------------------------------------------- tuning
 
+#: Tuning measurement: each note held this long, s, one every TUNING_STEP_S.
+TUNING_HOLD_S, TUNING_STEP_S = 1.0, 1.1
+#: Window and zero-padded transform of the tuning measurement, samples.
+TUNING_WIN, TUNING_NFFT = 8192, 32768
+
+
+def _peak_cents(frames: np.ndarray, target_hz: float) -> np.ndarray:
+    """Per frame (rows: windowed samples): the strongest spectral peak within +-1 semitone of
+    ``target_hz``, placed by a parabola on the log magnitude (J. O. Smith, "Quadratic
+    interpolation of spectral peaks", Spectral Audio Signal Processing, CCRMA 2011); cents
+    from the target, and the peak's level relative to the frame's strongest bin (dB)."""
+    spec = np.abs(np.fft.rfft(frames, TUNING_NFFT, axis=1)) + 1e-12
+    df = RATE_HZ / TUNING_NFFT
+    lo = int(np.floor(target_hz * 2 ** (-1 / 12) / df))
+    hi = int(np.ceil(target_hz * 2 ** (1 / 12) / df))
+    k = lo + np.argmax(spec[:, lo:hi + 1], axis=1)
+    r = np.arange(frames.shape[0])
+    a, b, c = (np.log(spec[r, k - 1]), np.log(spec[r, k]), np.log(spec[r, k + 1]))
+    f = (k + 0.5 * (a - c) / (a - 2 * b + c)) * df
+    rel_db = 20.0 * np.log10(spec[r, k] / spec.max(axis=1))
+    return 1200.0 * np.log2(f / target_hz), rel_db
+
+
 def soundfont_tuning(pairs, folder: Path) -> dict:
     """Measured offset (cents from 440-Hz 12-TET) of each ``(program, midi)`` as the soundfont plays it.
 
-    Each note is rendered alone, held 0.6 s, and its f0 estimated with
-    ``librosa.pyin`` (Mauch & Dixon, ICASSP 2014) searched within +-1
-    semitone of the nominal pitch; the median over the held part is compared
-    with ``440 * 2^((midi - 69) / 12)``.  Where pYIN finds no voiced frame the
-    median offset of that program's other notes is used.
+    Each note is rendered alone, held 1 s; over its held part (0.15 s after
+    the start) the fundamental's spectral peak is found in 0.37-s Hann
+    frames (4x zero padding, parabolic interpolation) and the median of its
+    frame-wise frequency is compared with ``440 * 2^((midi - 69) / 12)``.
+    Where the fundamental is more than 30 dB under the frame's strongest
+    partial, the second partial (divided by 2) is used.  This is the
+    frequency of the partial that drives a mode at the note's pitch; the
+    median is the centre of any vibrato in the sample.  librosa's pYIN
+    (Mauch & Dixon, ICASSP 2014) agrees within a few cents on organ and
+    flute but reads piano notes up to ~20 cents sharp (the stretched upper
+    partials), so it is the cross-check, not the measure
+    (tests/test_scan_realmusic.py).
     """
-    import librosa
+    from numpy.lib.stride_tricks import sliding_window_view
 
     pairs = sorted({(int(p), int(m)) for p, m in pairs})
-    notes, step = [], 0.7
-    for i, (p, m) in enumerate(pairs):
-        notes.append((p, m, i * step, i * step + 0.6, 90))
-    x = _render(notes, len(pairs) * step + 0.5, folder / "tuning.wav")
+    notes = [(p, m, i * TUNING_STEP_S, i * TUNING_STEP_S + TUNING_HOLD_S, 90)
+             for i, (p, m) in enumerate(pairs)]
+    x = _render(notes, len(pairs) * TUNING_STEP_S + 0.5, folder / "tuning.wav")
+    win = np.hanning(TUNING_WIN)
     out: dict = {}
     for i, (p, m) in enumerate(pairs):
         nominal = 440.0 * 2.0 ** ((m - 69) / 12.0)
-        seg = x[int((i * step + 0.12) * RATE_HZ):int((i * step + 0.6) * RATE_HZ)]
-        f0, voiced, _ = librosa.pyin(seg, fmin=nominal * 2 ** (-1 / 12), fmax=nominal * 2 ** (1 / 12),
-                                     sr=RATE_HZ, frame_length=4096 if nominal < 120 else 2048,
-                                     resolution=0.01, center=False, max_transition_rate=1.0)
-        good = f0[voiced & np.isfinite(f0)]
-        out[f"{p}:{m}"] = float(1200.0 * np.log2(np.median(good) / nominal)) if good.size >= 3 else None
+        seg = x[int((i * TUNING_STEP_S + 0.15) * RATE_HZ):int((i * TUNING_STEP_S + TUNING_HOLD_S) * RATE_HZ)]
+        frames = sliding_window_view(seg, TUNING_WIN)[::1024] * win
+        cents, rel = _peak_cents(frames, nominal)
+        if np.median(rel) < -30.0:
+            cents, rel = _peak_cents(frames, 2.0 * nominal)
+        value = float(np.nanmedian(cents)) if np.any(np.isfinite(cents)) else float("nan")
+        out[f"{p}:{m}"] = value if np.median(rel) >= -30.0 and np.isfinite(value) else None
     for p in {p for p, _ in pairs}:
         vals = [v for k, v in out.items() if k.startswith(f"{p}:") and v is not None]
         fill = float(np.median(vals)) if vals else 0.0
@@ -312,7 +345,7 @@ def soundfont_tuning(pairs, folder: Path) -> dict:
 # ----------------------------------------------------------------------------- rig
 
 RIG_TEMPLATE = """# Real-music test rig (invented): the demo tube's design, its length solved so
-# that several readable modes sit on equal-tempered notes (tests/realmusic.py).
+# that readable modes sit on notes the test pieces hold (tests/realmusic.py).
 name = "Real-music test tube (invented)"
 
 [tube]
@@ -358,43 +391,58 @@ def _et_cents(f_hz: np.ndarray) -> np.ndarray:
     return c - 100.0 * np.round(c / 100.0)
 
 
-def solve_rig(folder: Path) -> Path:
-    """Write the test rig: the length (2.12-2.6 m) that puts the most readable modes on 12-TET notes.
+def _shares_for(notes, tuning: dict, mode_hz: np.ndarray, tol_cents: np.ndarray,
+                keys=range(-6, 6), hop_s: float = 0.1) -> np.ndarray:
+    """Held-on-mode share of a piece for many mode sets at once: (mode sets, keys).
 
-    The mode frequencies scale as ``1/length`` to a good approximation over
-    this range (checked against ``find_modes`` at the result); the count of
-    readable modes below 1.3 kHz within 4 cents of a note is maximised on a
-    0.5 mm grid with that scaling, and the length is then refined with the
-    real model so that the best-placed mode sits on its note (bisection).
+    ``mode_hz`` is (sets, modes) of readable modes; same measure as :func:`held_share`.
+    """
+    on = np.array([n[2] for n in notes])
+    off = np.array([n[3] for n in notes])
+    times = np.arange(0.0, float(off.max()), hop_s)
+    held = (off - on) >= HOLD_MIN_S
+    sound = ((times[:, None] >= on[None, :]) & (times[:, None] < off[None, :]) & held[None, :])
+    sound = sound.astype(np.float32)
+    out = np.zeros((mode_hz.shape[0], len(keys)))
+    for i, k in enumerate(keys):
+        moved = [(p, m + k, a, b, v) for p, m, a, b, v in notes]
+        f = _freqs(moved, tuning)
+        cents = 1200.0 * np.log2(f[None, :, None] / mode_hz[:, None, :])   # (sets, notes, modes)
+        on_mode = (np.abs(cents) <= tol_cents[None, None, :]).any(axis=2).astype(np.float32)
+        out[:, i] = ((sound @ on_mode.T) > 0).mean(axis=0)
+    return out
+
+
+def solve_rig(folder: Path, pieces: dict, tuning: dict) -> Path:
+    """Write the test rig: the tube length (2.12-2.6 m) at which the pieces hold notes on modes longest.
+
+    The objective is the mean over the pieces of the share of time their
+    held notes sit on readable modes (:func:`held_share`), each piece in its
+    best key (a whole-semitone move, -6..+5), at the soundfont's measured
+    pitches.  The mode frequencies scale as ``1/length`` to a good
+    approximation over this range, which gives the objective on a 0.5 mm
+    grid; the best few lengths are then scored again with the real model
+    (``find_modes``) and the best of those is written.
     """
     base_len = 2.3
-    modes = [m for m in _modes_for(base_len) if m.pattern == "readable" and m.frequency_hz < 1300.0]
+    modes = [m for m in _modes_for(base_len) if m.pattern == "readable"]
     f0 = np.array([m.frequency_hz for m in modes])
+    half = np.array([50.0 if m.q is None else 1200.0 * np.log2(1.0 + 0.5 / m.q) for m in modes])
+    tol = np.clip(half, MIN_HIT_CENTS, MAX_HIT_CENTS)
     lengths = np.arange(2.12, 2.6, 0.0005)
-    f = f0[None, :] * base_len / lengths[:, None]
-    count = (np.abs(_et_cents(f)) < 4.0).sum(axis=1) + 0.01 * (np.abs(_et_cents(f)) < 8.0).sum(axis=1)
-    best = float(lengths[int(np.argmax(count))])
-    # refine with the real model: put the readable mode nearest to its note exactly on it
-    ms = [m for m in _modes_for(best) if m.pattern == "readable" and m.frequency_hz < 1300.0]
-    k = int(np.argmin(np.abs(_et_cents(np.array([m.frequency_hz for m in ms])))))
-    n_anchor = ms[k].n
-    target = 440.0 * 2.0 ** (np.round(1200 * np.log2(ms[k].frequency_hz / 440.0) / 100.0) / 12.0)
-
-    def err(length):
-        f = next(m.frequency_hz for m in _modes_for(length) if m.n == n_anchor)
-        return f - target
-
-    lo, hi = best - 0.004, best + 0.004
-    e_lo = err(lo)
-    for _ in range(14):
-        mid = 0.5 * (lo + hi)
-        e = err(mid)
-        if (e > 0) == (e_lo > 0):
-            lo, e_lo = mid, e
-        else:
-            hi = mid
+    grid = f0[None, :] * base_len / lengths[:, None]
+    score = np.mean([_shares_for(n, tuning, grid, tol).max(axis=1) for n in pieces.values()], axis=0)
+    best_exact, best_len = -1.0, float(lengths[int(np.argmax(score))])
+    for i in np.argsort(-score)[:6]:
+        ms = [m for m in _modes_for(float(lengths[i])) if m.pattern == "readable"]
+        fm = np.array([[m.frequency_hz for m in ms]])
+        hm = np.array([50.0 if m.q is None else 1200.0 * np.log2(1.0 + 0.5 / m.q) for m in ms])
+        tm = np.clip(hm, MIN_HIT_CENTS, MAX_HIT_CENTS)
+        exact = float(np.mean([_shares_for(n, tuning, fm, tm).max() for n in pieces.values()]))
+        if exact > best_exact:
+            best_exact, best_len = exact, float(lengths[i])
     path = folder / "realmusic_rig.toml"
-    path.write_text(RIG_TEMPLATE.format(length_mm=0.5 * (lo + hi) * 1000.0), encoding="utf-8")
+    path.write_text(RIG_TEMPLATE.format(length_mm=best_len * 1000.0), encoding="utf-8")
     return path
 
 
@@ -447,6 +495,20 @@ def mode_hits(track: Track, table, times_s: np.ndarray, min_s: float = 0.0,
     return out
 
 
+#: Transpositions searched by :func:`shift_profile`, cents.
+SHIFT_GRID_CENTS = np.arange(-300.0, 301.0, 25.0)
+
+
+def shift_profile(track: Track, table, hop_s: float = 0.1) -> np.ndarray:
+    """Held-on-mode share of the track with its notes moved by each of SHIFT_GRID_CENTS."""
+    out = []
+    for c in SHIFT_GRID_CENTS:
+        moved = Track(track.name, track.path, track.duration_s, track.onset_s, track.offset_s,
+                      track.midi, track.freq_hz * 2.0 ** (c / 1200.0))
+        out.append(held_share(moved, table, hop_s))
+    return np.array(out)
+
+
 def held_share(track: Track, table, hop_s: float = 0.05, start_s: float = 0.0,
                end_s: float | None = None) -> float:
     """Share of the time in [start, end) at which a note of >= HOLD_MIN_S sits on a readable mode."""
@@ -489,6 +551,27 @@ def _key_shift(notes, table, tuning: dict) -> int:
     return best
 
 
+def _off_shifts(scored: dict, tuning: dict, table) -> dict:
+    """Piece -> shift of its off-mode copy (see OFF_CANDIDATES_CENTS)."""
+    found = {}
+    for name, notes in scored.items():
+        end = max(n[3] for n in notes)
+        base = held_share(_track("x", Path("."), end, notes, _freqs(notes, tuning), ""), table, 0.1)
+        ok = []
+        for c in OFF_CANDIDATES_CENTS:
+            semis, bend = _split(c)
+            moved = [(p, m + semis, a, b, v) for p, m, a, b, v in notes]
+            tr = _track("x", Path("."), end, moved, _freqs(moved, tuning, bend), "")
+            prof = shift_profile(tr, table)
+            share = prof[int(np.argmin(np.abs(SHIFT_GRID_CENTS)))]
+            if share <= OFF_MAX_SHARE * base and abs(SHIFT_GRID_CENTS[int(np.argmax(prof))] + c) <= 25.0:
+                ok.append((share, abs(c), c))
+        if ok and base > 0:
+            found[name] = (base, min(ok)[2])
+    best = sorted(found, key=lambda n: -found[n][0])[:OFF_COPIES]
+    return {n: found[n][1] for n in scored if n in best}
+
+
 def _freqs(notes, tuning: dict, bend_cents: float = 0.0) -> np.ndarray:
     return np.array([440.0 * 2.0 ** ((m - 69) / 12.0 + (tuning[f"{p}:{m}"] + bend_cents) / 1200.0)
                      for p, m, *_ in notes])
@@ -514,12 +597,10 @@ def build(folder: str | Path) -> Corpus:
     missing = have_tools()
     if missing:
         raise RuntimeError(missing)
-    rig_path = solve_rig(folder)
     from showkit.analysis.pitches import ModeTable
     from showkit.physics.modes import find_modes
     from showkit.rigfile import load_rig
 
-    table = ModeTable.from_modes(find_modes(load_rig(rig_path).model))
     raw = {piece.name: score_notes(piece) for piece in PIECES}
     # the soundfont's real tuning of every note the keys and off-mode moves may use
     pairs = set()
@@ -528,23 +609,14 @@ def build(folder: str | Path) -> Corpus:
             ms = [m for p, m, *_ in notes if p == prog]
             pairs |= {(prog, m) for m in range(min(ms) - 9, max(ms) + 10)}
     tuning = soundfont_tuning(pairs, folder)
+    rig_path = solve_rig(folder, raw, tuning)
+    table = ModeTable.from_modes(find_modes(load_rig(rig_path).model))
     # scores, moved to their best key on this tube (measured tuning)
     scored, keys = {}, {}
     for piece in PIECES:
         keys[piece.name] = _key_shift(raw[piece.name], table, tuning)
         scored[piece.name] = [(p, m + keys[piece.name], a, b, v) for p, m, a, b, v in raw[piece.name]]
-    # off-mode shift per piece: the candidate leaving least time held on modes
-    offs = {}
-    for name, cands in OFF_SHIFTS_CENTS.items():
-        notes = scored[name]
-
-        def share_at(c, notes=notes):
-            semis, bend = _split(c)
-            moved = [(p, m + semis, a, b, v) for p, m, a, b, v in notes]
-            f = _freqs(moved, tuning, bend)
-            return held_share(_track("x", Path("."), max(n[3] for n in notes), moved, f, ""), table, 0.1)
-
-        offs[name] = min(cands, key=share_at)
+    offs = _off_shifts(scored, tuning, table)
 
     tracks: dict = {}
     audio: dict = {}
@@ -620,16 +692,23 @@ def engine_map(rig, rig_path: Path, path: Path) -> dict:
     ``{"hop_s", "times_s", "modes": [{"n", "frequency_hz", "note"}], "strength", "hit",
     "notes_hz"}``, plus ``"dominant_hz"`` (per frame, 0 = none) when the engine gives it.
     Looked for, in this order: a function ``track_map(rig, path)`` in
-    ``showkit.analysis.scan``; the command line ``showkit scan TRACK --map FILE``;
+    ``showkit.analysis.scan``; the ``"map"`` entry of ``scan.track_frames(rig, path)``;
+    the command line ``showkit scan TRACK --map FILE``;
     and, for the engine before issue 12, the map drawn from ``track_frames``
     (a mode counts as hit where its energy is within the map's 27 dB of the
     track's maximum, what the view drew) with the 4 peaks per frame as notes.
     """
+    import inspect
+
     from showkit.analysis import scan as scan_mod
 
     fn = getattr(scan_mod, "track_map", None)
     if fn is not None:
         return _as_map(fn(rig, path))
+    if "max_rows" not in inspect.signature(scan_mod.track_frames).parameters:
+        frames = scan_mod.track_frames(rig, path)
+        if "map" in frames:
+            return _as_map(frames["map"])
     if _cli_has_map():
         import os
         import sys
@@ -704,6 +783,24 @@ def map_hits_on_table(m: dict, table) -> np.ndarray:
     return out
 
 
+def held_note_errors(tr: Track, m: dict, min_s: float = 0.5, margin_s: float = 0.1):
+    """|cents| from each held note (>= min_s long, frames margin_s inside it) to the nearest detected
+    note within 50 cents; returns (errors of the found ones, frames looked at)."""
+    t = m["times_s"]
+    inner = ((t[:, None] >= tr.onset_s[None, :] + margin_s) & (t[:, None] < tr.offset_s[None, :] - margin_s)
+             & ((tr.offset_s - tr.onset_s) >= min_s)[None, :])
+    errs = []
+    fr, nt = np.nonzero(inner)
+    for i, j in zip(fr, nt):
+        est = m["notes_hz"][i]
+        est = est[est > 0] if est.size else est
+        if est.size:
+            c = float(np.min(np.abs(1200.0 * np.log2(est / tr.freq_hz[j]))))
+            if c <= 50.0:
+                errs.append(c)
+    return errs, int(fr.size)
+
+
 def dominant_line(m: dict) -> np.ndarray:
     """The map's dominant pitch per frame: ``dominant_hz`` if given, else the highest detected note."""
     if "dominant_hz" in m:
@@ -732,6 +829,7 @@ def evaluate(corpus: Corpus, progress=None) -> dict:
     maps: dict = {}
     tot = np.zeros(3, int)
     mp_ref_t, mp_ref_f, mp_est_f = [], [], []
+    held_errs, held_n = [], 0
     for name in scored_tracks(corpus) + ["medley"]:
         tr = corpus[name]
         if progress:
@@ -764,11 +862,18 @@ def evaluate(corpus: Corpus, progress=None) -> dict:
             mp_ref_t.append(times + (mp_ref_t[-1][-1] + 1.0 if mp_ref_t else 0.0))
             mp_ref_f += ref_f
             mp_est_f += list(est_f)
+            if name in {pc.name for pc in PIECES}:
+                errs, n = held_note_errors(tr, m)
+                held_errs += errs
+                held_n += n
             _, ref_mel = melody(tr, 0.0, times)
             mel = mir_eval.melody.evaluate(times, ref_mel, times, dominant_line(m))
             row["melody"] = {k: float(mel[k]) for k in ("Raw Pitch Accuracy", "Raw Chroma Accuracy",
                                                        "Voicing Recall", "Voicing False Alarm")}
     res["hits_pooled"] = _prf(*tot)
+    res["held_notes"] = {"frames": held_n, "found": len(held_errs) / held_n if held_n else 0.0,
+                         "median_cents": float(np.median(held_errs)) if held_errs else float("nan"),
+                         "p90_cents": float(np.percentile(held_errs, 90)) if held_errs else float("nan")}
     if mp_ref_t:
         t = np.concatenate(mp_ref_t)
         mp = mir_eval.multipitch.evaluate(t, mp_ref_f, t, mp_est_f)
@@ -817,6 +922,9 @@ def report(res: dict) -> str:
         m = res["multipitch_pooled"]
         L.append(f"mir_eval multipitch, pooled: precision {m['Precision']:.3f} recall {m['Recall']:.3f} "
                  f"accuracy {m['Accuracy']:.3f} chroma accuracy {m['Chroma Accuracy']:.3f}")
+    hn = res["held_notes"]
+    L.append(f"held notes (>= 0.5 s): found within 50 c in {hn['found']:.2f} of {hn['frames']} frames; "
+             f"|error| median {hn['median_cents']:.1f} c, 90th percentile {hn['p90_cents']:.1f} c")
     L.append(f"{'track':28s} {'score':>6s} {'held':>5s} {'hitP':>5s} {'hitR':>5s} {'hitF1':>5s} "
              f"{'gt/fr':>5s} {'map/fr':>6s} {'mpP':>5s} {'mpR':>5s} {'RPA':>5s} {'RCA':>5s} {'transp':>7s}")
     for n, t in res["tracks"].items():
