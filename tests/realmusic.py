@@ -885,8 +885,10 @@ def evaluate(corpus: Corpus, progress=None) -> dict:
     hs = [res["tracks"][n]["held_share"] for n in ranked]
     rho = spearmanr(hs, sc).statistic if np.ptp(sc) > 0 else float("nan")
     res["spearman"] = float(rho)
-    res["off_ratio"] = {off: (res["tracks"][off]["score"] / res["tracks"][on]["score"]
-                              if res["tracks"][on]["score"] else float("inf"))
+    def ratio(a, b):
+        return a / b if b else (0.0 if a == 0 else float("inf"))
+
+    res["off_ratio"] = {off: ratio(res["tracks"][off]["score"], res["tracks"][on]["score"])
                         for off, on in corpus.off_of.items()}
     res["transposition"] = {off: {"applied_cents": corpus[off].shift_cents,
                                   "suggested_cents": res["tracks"][off]["transpose_cents"],
