@@ -24,6 +24,8 @@ from showkit.analysis import multipitch, spectral
 
 #: Log-spaced bands for the segmentation features.
 BAND_COUNT = 16
+#: Band energies for the segmentation are averaged over this many frames (about 0.4 s).
+BAND_SMOOTH_FRAMES = 13
 #: A frame whose band energy is below this (dB re a full-scale sine) is silent.
 SILENCE_DB = -60.0
 #: Spectral amplitudes below a sine at this level (dB re full scale) are ignored by the note search.
@@ -178,11 +180,15 @@ def track_features(samples: np.ndarray, rate_hz: int, hop: int, band_hz: float) 
         power = (spec.real ** 2 + spec.imag ** 2).T.astype(np.float32)   # (bins, frames)
         del spec, fr
         energy[first:last] = power.sum(axis=0, dtype=np.float64) / full_scale
-        bands[first:last] = np.log10(np.maximum((power.T @ bands_m) / np.float32(full_scale), 1e-9))
+        bands[first:last] = (power.T @ bands_m) / np.float32(full_scale)
         found, _ = est.estimate(est.whiten(np.sqrt(power), floor))
-        f, e = est.refine(power, found)
+        f, e = multipitch.drop_partials(*est.refine(power, found))
         notes_hz[first:last] = f
         notes_e[first:last] = e / peak_scale
+    # band energies over about 0.4 s (BAND_SMOOTH_FRAMES), as the segmentation reads them
+    from scipy.ndimage import uniform_filter1d
+
+    bands = np.log10(np.maximum(uniform_filter1d(bands, BAND_SMOOTH_FRAMES, axis=0, mode="nearest"), 1e-9))
     share, onset, harmonic_at = _split(x, rate_hz, hop, band_hz, frames)
     rows = np.broadcast_to(np.arange(frames)[:, None], notes_hz.shape)
     tonal = harmonic_at(notes_hz, rows)

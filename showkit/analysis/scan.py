@@ -22,7 +22,7 @@ import numpy as np
 from showkit.analysis import scancache
 from showkit.analysis.audio import audio_info, content_hash, read_blocks
 from showkit.analysis.features import track_features
-from showkit.analysis.pitches import ModeTable
+from showkit.analysis.pitches import ModeTable, dominant_pitch
 from showkit.analysis.pressure import hole_filters
 from showkit.analysis.score import (APPROXIMATION, frame_gate, mode_frames, mode_shares, passage_level,
                                     passage_score, track_score)
@@ -177,7 +177,9 @@ def map_data(work: _Work, shift_cents: float = 0.0, mf=None) -> dict:
 
     ``{"hop_s", "times_s", "modes": [{"n", "frequency_hz", "note"}], "strength": [[0-1 per frame]
     per mode], "hit": [[bool per frame] per mode], "notes_hz": [[every note found] per frame]}``,
-    plus ``"shift_cents"``.  Notes are given as heard after the shift.
+    plus ``"dominant_hz"`` (the dominant pitch per frame, 0 for none:
+    :func:`showkit.analysis.pitches.dominant_pitch`) and ``"shift_cents"``.
+    Notes are given as heard after the shift.
     """
     if mf is None:
         mf = mode_frames(work.features, work.table, work.gate, shift_cents)
@@ -192,7 +194,14 @@ def map_data(work: _Work, shift_cents: float = 0.0, mf=None) -> dict:
             "strength": np.round(mf.strength.astype(float), 3).tolist(),
             "hit": mf.hit.tolist(),
             "notes_hz": notes,
+            "dominant_hz": [round(float(f) * scale, 2) if np.isfinite(f) else 0.0
+                            for f in dominant_pitch(features.notes_hz, features.notes_energy)],
             "shift_cents": float(shift_cents)}
+
+
+def track_map(rig: Rig, path: str | Path, shift_cents: float = 0.0) -> dict:
+    """The time x mode map of a track as data (:func:`map_data`; what ``scan --map`` writes)."""
+    return track_frames(rig, path, shift_cents)["map"]
 
 
 def track_frames(rig: Rig, path: str | Path, shift_cents: float = 0.0) -> dict:

@@ -49,14 +49,16 @@ from showkit.physics.flames import row_contrast, sine_flame_height
 
 #: Shortest hold that counts, s (project's choice: about the eye's grasp of a pattern).
 MIN_HOLD_S = 0.2
-#: Narrowest and widest tolerance of a note on a mode, cents (project's choice, see the module text).
-MIN_TOLERANCE_CENTS = 10.0
-MAX_TOLERANCE_CENTS = 15.0
+#: Narrowest and widest tolerance of a note on a mode, cents: 10 and 15 cents (project's choice: the gas
+#: warms by a few kelvin during a show, about 3 cents per kelvin) plus 3 cents for the error of the
+#: pitch estimate (median 3.6 cents on held notes of the rendered scores of tests/realmusic.py).
+MIN_TOLERANCE_CENTS = 13.0
+MAX_TOLERANCE_CENTS = 18.0
 #: A note whose fundamental is less sustained than this (harmonic mask) is not drawn.
-MIN_TONAL = 0.6
+MIN_TONAL = 0.5
 #: Strength at which a hit starts, and below which it ends.
-HIT_ON = 0.03
-HIT_OFF = 0.015
+HIT_ON = 0.02
+HIT_OFF = 0.01
 #: Strength at which a held note counts fully in the score (a quarter of the band: one voice of four).
 FULL_STRENGTH = 0.25
 #: Frames fade out between the track's loud level minus GATE_RANGE_DB and GATE_FADE_DB above that, dB.
