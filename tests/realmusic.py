@@ -57,7 +57,7 @@ RATE_HZ = 22050
 #: General MIDI soundfont of Debian's fluid-soundfont-gm package.
 SOUNDFONT = Path("/usr/share/sounds/sf2/FluidR3_GM.sf2")
 #: Bumped whenever the corpus changes (invalidates caches).
-VERSION = 7
+VERSION = 11
 #: Peak level of every rendered track, full scale.
 PEAK = 0.7
 #: Gain of the level-changed copy, dB.
@@ -102,11 +102,10 @@ PIECES = (
 )
 
 #: Off-mode copies: shifts tried per piece, cents (whole semitones by MIDI note, fractions by pitch
-#: bend).  Five pieces get a copy: those holding most time on modes that have a shift leaving at
-#: most OFF_MAX_SHARE of that time on modes and whose best transposition back (shift_profile) is
-#: the shift undone, within 25 cents; of those shifts the one leaving least on modes is used.
-OFF_CANDIDATES_CENTS = (100.0, -100.0, 150.0, -150.0, 200.0, -200.0, 250.0, -250.0, 300.0, -300.0)
+#: bend); which are used: :func:`_off_shifts`.
+OFF_CANDIDATES_CENTS = tuple(float(s * c) for c in range(100, 301, 25) for s in (1, -1))
 OFF_MAX_SHARE = 0.4
+OFF_MARGIN = 1.15
 OFF_COPIES = 5
 #: The contrasting pieces joined end to end (in this order).
 CONCAT = ("chorale_organ", "rag_piano", "aria_flute", "drums", "reel_violin")
@@ -551,25 +550,41 @@ def _key_shift(notes, table, tuning: dict) -> int:
     return best
 
 
-def _off_shifts(scored: dict, tuning: dict, table) -> dict:
-    """Piece -> shift of its off-mode copy (see OFF_CANDIDATES_CENTS)."""
-    found = {}
+def _off_shifts(scored: dict, tuning: dict, table) -> list:
+    """``[(piece, shift_cents)]`` of the off-mode copies (see OFF_CANDIDATES_CENTS).
+
+    A (piece, shift) qualifies when the copy keeps at most OFF_MAX_SHARE of the
+    piece's on-mode time and its best transposition back is the shift undone
+    (within 25 cents) by a clear margin: at least OFF_MARGIN times the best
+    share of any transposition 75 cents or more away from it.  One copy per
+    piece first (pieces holding most on modes first), then second shifts of
+    the same pieces, up to OFF_COPIES; whole semitones before fractions, then
+    the shift leaving least on modes.
+    """
+    found: dict = {}
     for name, notes in scored.items():
         end = max(n[3] for n in notes)
         base = held_share(_track("x", Path("."), end, notes, _freqs(notes, tuning), ""), table, 0.1)
-        ok = []
         for c in OFF_CANDIDATES_CENTS:
             semis, bend = _split(c)
             moved = [(p, m + semis, a, b, v) for p, m, a, b, v in notes]
             tr = _track("x", Path("."), end, moved, _freqs(moved, tuning, bend), "")
             prof = shift_profile(tr, table)
             share = prof[int(np.argmin(np.abs(SHIFT_GRID_CENTS)))]
-            if share <= OFF_MAX_SHARE * base and abs(SHIFT_GRID_CENTS[int(np.argmax(prof))] + c) <= 25.0:
-                ok.append((share, abs(c), c))
-        if ok and base > 0:
-            found[name] = (base, min(ok)[2])
-    best = sorted(found, key=lambda n: -found[n][0])[:OFF_COPIES]
-    return {n: found[n][1] for n in scored if n in best}
+            back = np.abs(SHIFT_GRID_CENTS + c) <= 25.0
+            far = np.abs(SHIFT_GRID_CENTS + c) >= 75.0
+            if base > 0 and share <= OFF_MAX_SHARE * base and prof[back].max() >= OFF_MARGIN * prof[far].max():
+                found.setdefault(name, []).append((abs(c) % 100 != 0, share, abs(c), c))
+    order = sorted(found, key=lambda n: -held_share(
+        _track("x", Path("."), max(x[3] for x in scored[n]), scored[n], _freqs(scored[n], tuning), ""),
+        table, 0.1))
+    picks = []
+    for rank in range(len(OFF_CANDIDATES_CENTS)):
+        for n in order:
+            options = sorted(found[n])
+            if rank < len(options) and len(picks) < OFF_COPIES:
+                picks.append((n, options[rank][3]))
+    return picks
 
 
 def _freqs(notes, tuning: dict, bend_cents: float = 0.0) -> np.ndarray:
@@ -635,7 +650,7 @@ def build(folder: str | Path) -> Corpus:
     audio["drums"] = x
     tracks["drums"] = _track("drums", path, 20.0, [], np.zeros(0), "GM drum kit, no pitched notes")
     off_of = {}
-    for name, c in offs.items():
+    for name, c in offs:
         semis, bend = _split(c)
         notes = [(p, m + semis, a, b, v) for p, m, a, b, v in scored[name]]
         seconds = tracks[name].duration_s
