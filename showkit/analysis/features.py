@@ -185,6 +185,7 @@ def track_features(samples: np.ndarray, rate_hz: int, hop: int, band_hz: float) 
         f, e = multipitch.drop_partials(*est.refine(power, found))
         notes_hz[first:last] = f
         notes_e[first:last] = e / peak_scale
+    del padded
     # band energies over about 0.4 s (BAND_SMOOTH_FRAMES), as the segmentation reads them
     from scipy.ndimage import uniform_filter1d
 

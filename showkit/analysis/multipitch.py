@@ -72,6 +72,8 @@ MIN_RELATIVE_SALIENCE = 0.1
 #: A note this close (cents) to a partial (PARTIAL_RATIOS) of another note of the frame is dropped.
 PARTIAL_CENTS = 25.0
 PARTIAL_RATIOS = ()
+#: ... and only when its partials carry less than this times the lower note's.
+PARTIAL_ENERGY_RATIO = 1.0
 #: A partial's interpolated peak counts for the refined frequency when within this of the candidate, cents
 #: (wide: the maximum filter makes the salience of a low note flat over more than 100 cents).
 REFINE_CENTS = 90.0
@@ -216,12 +218,13 @@ class Estimator:
             near = np.clip(np.rint(pos).astype(int), 0, bins - 1)
             amp = rmax[near, fr[:, None]] * (self.g[cc] if CANCEL_WEIGHTED else 1.0)
             amp = np.where(ok, amp, 0.0)
+            frames_k = np.broadcast_to(fr[:, None], pos.shape)
             for o in self.lobe_offsets:
                 k = near + o
                 inside = ok & (k >= 0) & (k < bins)
-                kk = np.clip(k, 0, bins - 1)
-                add = np.where(inside, amp * hann_lobe((kk - pos) / PAD), 0.0).astype(np.float32)
-                np.add.at(detected, (kk.ravel(), np.repeat(fr, pos.shape[1])), add.ravel())
+                # partials lie more than a main lobe apart (f0 >= 50 Hz): no bin is written twice
+                ki, fi = k[inside], frames_k[inside]
+                detected[ki, fi] += (amp[inside] * hann_lobe((ki - pos[inside]) / PAD)).astype(np.float32)
             resid = np.maximum(0.0, y - CANCEL_D * detected)
         return found, sal
 
@@ -304,9 +307,11 @@ def drop_partials(freq_hz: np.ndarray, energy: np.ndarray, ratios=None) -> tuple
         return freq_hz, energy
     with np.errstate(invalid="ignore", divide="ignore"):
         cents = 1200.0 * np.log2(f[:, :, None] / f[:, None, :])   # (F, i, j): note i over note j
+    e = np.asarray(energy, dtype=float)
+    weaker = e[:, :, None] < PARTIAL_ENERGY_RATIO * e[:, None, :]
     drop = np.zeros(f.shape, dtype=bool)
     for h in ratios:
-        drop |= np.any(np.abs(cents - 1200.0 * np.log2(h)) < PARTIAL_CENTS, axis=2)
+        drop |= np.any((np.abs(cents - 1200.0 * np.log2(h)) < PARTIAL_CENTS) & weaker, axis=2)
     return (np.where(drop, np.nan, freq_hz).astype(np.asarray(freq_hz).dtype),
             np.where(drop, 0.0, energy).astype(np.asarray(energy).dtype))
 

@@ -73,6 +73,8 @@ MIN_HIT_FRAMES = 4
 VIBRATO_FRAMES = 7
 #: A re-played note: its energy on the mode rises by this within two frames, dB.
 ONSET_DB = 6.0
+#: Modes processed at once by :func:`mode_frames` (bounds its memory).
+MODE_GROUP = 6
 #: Modes holding less than this share of a passage's frames are not listed.
 MIN_MODE_SHARE = 0.05
 #: A track's score covers at least this fraction of its length.
@@ -236,20 +238,40 @@ def mode_frames(features: TrackFeatures, table: ModeTable, gate: np.ndarray,
     safe = np.where(features.energy > 0, features.energy, 1.0)
     share = np.where(near, features.notes_energy * features.notes_tonal / safe[:, None], 0.0)
     rows = np.broadcast_to(np.arange(frames)[:, None], j.shape)
+    need_all = hold_frames(table, features.frame_rate_hz)
+    out_strength = np.zeros((modes, frames), dtype=np.float32)
+    out_hit = np.zeros((modes, frames), dtype=bool)
+    out_held = np.zeros((modes, frames), dtype=bool)
+    # the modes are independent rows: a few at a time keeps memory bounded for long tracks
+    for g0 in range(0, modes, MODE_GROUP):
+        g1 = min(modes, g0 + MODE_GROUP)
+        sel = near & (jj >= g0) & (jj < g1)
+        if not sel.any():
+            continue
+        st, ht, hd = _mode_rows(jj[sel] - g0, rows[sel], cents[sel], absc[sel], share[sel], g1 - g0,
+                                frames, tol[g0:g1], need_all[g0:g1], safe, gate)
+        out_strength[g0:g1], out_hit[g0:g1], out_held[g0:g1] = st, ht, hd
+    return ModeFrames(out_strength, out_hit, out_held)
+
+
+def _mode_rows(jn, fn, cents, absc, share, modes, frames, tol, need, safe, gate):
+    """Strength, hit and held of ``modes`` rows from the notes near them (``jn`` row, ``fn`` frame)."""
     raw = np.zeros((modes, frames))
-    np.add.at(raw, (jj[near], rows[near]), share[near])
+    np.add.at(raw, (jn, fn), share)
     # the pitch of the note near each mode, averaged over a vibrato cycle (time inside the band)
-    offset = np.full((modes, frames), np.inf)
-    np.minimum.at(offset, (jj[near], rows[near]), absc[near])
-    signed = np.zeros((modes, frames))
-    signed[jj[near], rows[near]] = cents[near]
+    offset = np.full((modes, frames), np.inf, dtype=np.float32)
+    np.minimum.at(offset, (jn, fn), absc)
+    signed = np.zeros((modes, frames), dtype=np.float32)
+    signed[jn, fn] = cents
     close = np.isfinite(offset)
     from scipy.ndimage import uniform_filter1d
 
-    num = uniform_filter1d(np.where(close, signed, 0.0), VIBRATO_FRAMES, axis=1, mode="constant")
-    den = uniform_filter1d(close.astype(float), VIBRATO_FRAMES, axis=1, mode="constant")
+    num = uniform_filter1d(signed, VIBRATO_FRAMES, axis=1, mode="constant")
+    den = uniform_filter1d(close.astype(np.float32), VIBRATO_FRAMES, axis=1, mode="constant")
     mean_offset = np.abs(num / np.maximum(den, 1e-9))
+    del num, den, signed
     inside = close & ((offset <= tol[:, None]) | (mean_offset <= tol[:, None]))
+    del offset, mean_offset
     strength = np.where(inside, np.minimum(1.0, raw), 0.0) * gate[None, :]
     # hysteresis: start at HIT_ON, go on while above HIT_OFF
     above_on = strength >= HIT_ON
@@ -278,9 +300,8 @@ def mode_frames(features: TrackFeatures, table: ModeTable, gate: np.ndarray,
     seg = np.cumsum(mark.ravel()).reshape(modes, frames) * bridged
     # a segment is held, from its start, once its frames inside the band reach the ring-up time
     inband = np.bincount(seg.ravel(), weights=hit.ravel(), minlength=int(seg.max()) + 1)
-    need = hold_frames(table, features.frame_rate_hz)
     held = bridged & (seg > 0) & (inband[seg] >= need[:, None])
-    return ModeFrames(strength.astype(np.float32), bridged, held)
+    return strength.astype(np.float32), bridged, held
 
 
 def reference_contrast(reserve: float) -> float:
