@@ -97,7 +97,8 @@ def harmonic_sum_baseline(path, hop_s: float = 0.05, max_notes: int = 6):
                 lo, hi = int(f0 * 2 ** (-0.5 / 12) / df), int(np.ceil(f0 * 2 ** (0.5 / 12) / df))
                 k = lo + int(np.argmax(mag[t, lo:hi + 1]))
                 a, b, c = np.log(mag[t, k - 1:k + 2] + 1e-12)
-                f.append((k + 0.5 * (a - c) / (a - 2 * b + c)) * df)
+                fine = (k + 0.5 * (a - c) / (a - 2 * b + c)) * df if a - 2 * b + c < 0 else k * df
+                f.append(fine if abs(1200 * np.log2(max(fine, 1e-6) / f0)) <= 60.0 else f0)
         notes.append(np.unique(np.round(np.array(f), 2)))
     return starts / rate, notes
 
