@@ -180,52 +180,53 @@ class Estimator:
 
         y = np.asarray(whitened, dtype=np.float32)
         bins, frames = y.shape
-        cols = np.arange(frames)
         found = np.full((frames, max_notes), -1, dtype=int)
         sal = np.zeros((frames, max_notes), dtype=np.float32)
         detected = np.zeros_like(y)
-        resid = y
-        active = np.ones(frames, dtype=bool)
+        resid = y.copy()
         total = np.zeros(frames)
         first = np.zeros(frames)
         logf = np.log2(self.f0_hz)
         excluded = np.zeros((self.f0_hz.size, frames), dtype=bool)
         reach = 2 * PARTIAL_REACH_BINS + 1
+        act = np.arange(frames)  # the frames still taking notes (only those are searched again)
         for j in range(max_notes):
-            rmax = maximum_filter1d(resid, size=reach, axis=0, mode="constant")
+            if act.size == 0:
+                break
+            rmax = maximum_filter1d(resid[:, act], size=reach, axis=0, mode="constant")
             s = np.asarray(self.salience @ rmax)
-            s[excluded] = 0.0
+            s[excluded[:, act]] = 0.0
             c = np.argmax(s, axis=0)
-            best = s[c, cols]
+            best = s[c, np.arange(act.size)]
+            del s
             if j == 0:
                 keep = best > 0
-                first = best.astype(float)
+                first[act] = best
             else:
-                grown = (total + best) / (j + 1) ** GAMMA >= total / j ** GAMMA
-                keep = active & grown & (best > 0) & (best >= MIN_RELATIVE_SALIENCE * first)
-            active &= keep
-            if not active.any():
+                t = total[act]
+                grown = (t + best) / (j + 1) ** GAMMA >= t / j ** GAMMA
+                keep = grown & (best > 0) & (best >= MIN_RELATIVE_SALIENCE * first[act])
+            act, c, best, rmax = act[keep], c[keep], best[keep], rmax[:, keep]
+            if act.size == 0:
                 break
-            found[active, j] = c[active]
-            sal[active, j] = best[active]
-            total = total + np.where(active, best, 0.0)
-            excluded |= np.abs(logf[:, None] - logf[c][None, :]) * 1200.0 < EXCLUDE_CENTS
+            found[act, j] = c
+            sal[act, j] = best
+            total[act] += best
+            excluded[:, act] |= np.abs(logf[:, None] - logf[c][None, :]) * 1200.0 < EXCLUDE_CENTS
             # cancel the partials of the frames that took a note
-            fr = np.nonzero(active)[0]
-            cc = c[fr]
-            pos = self.pos[cc]                        # (n, M)
-            ok = self.ok[cc]
+            pos = self.pos[c]                        # (n, M)
+            ok = self.ok[c]
             near = np.clip(np.rint(pos).astype(int), 0, bins - 1)
-            amp = rmax[near, fr[:, None]] * (self.g[cc] if CANCEL_WEIGHTED else 1.0)
+            amp = rmax[near, np.arange(act.size)[:, None]] * (self.g[c] if CANCEL_WEIGHTED else 1.0)
             amp = np.where(ok, amp, 0.0)
-            frames_k = np.broadcast_to(fr[:, None], pos.shape)
+            frames_k = np.broadcast_to(act[:, None], pos.shape)
             for o in self.lobe_offsets:
                 k = near + o
                 inside = ok & (k >= 0) & (k < bins)
                 # partials lie more than a main lobe apart (f0 >= 50 Hz): no bin is written twice
                 ki, fi = k[inside], frames_k[inside]
                 detected[ki, fi] += (amp[inside] * hann_lobe((ki - pos[inside]) / PAD)).astype(np.float32)
-            resid = np.maximum(0.0, y - CANCEL_D * detected)
+            resid[:, act] = np.maximum(0.0, y[:, act] - CANCEL_D * detected[:, act])
         return found, sal
 
     def refine(self, power: np.ndarray, index: np.ndarray):
