@@ -68,7 +68,7 @@ GATE_FADE_DB = 10.0
 VIBRATO_GAP_FRAMES = 3
 VIBRATO_CENTS = 60.0
 #: Shortest hit drawn, frames.
-MIN_HIT_FRAMES = 4
+MIN_HIT_FRAMES = 6
 #: Frames over which a note's offset from a mode is averaged (about one vibrato cycle).
 VIBRATO_FRAMES = 7
 #: A re-played note: its energy on the mode rises by this within two frames, dB.
