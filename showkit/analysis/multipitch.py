@@ -186,8 +186,9 @@ class Estimator:
         resid = y.copy()
         total = np.zeros(frames)
         first = np.zeros(frames)
-        logf = np.log2(self.f0_hz)
-        excluded = np.zeros((self.f0_hz.size, frames), dtype=bool)
+        # candidates within EXCLUDE_CENTS of a note already taken: grid steps either side
+        near_steps = np.arange(-int(np.ceil(EXCLUDE_CENTS / GRID_CENTS)) + 1, int(np.ceil(EXCLUDE_CENTS / GRID_CENTS)))
+        top = self.f0_hz.size - 1
         reach = 2 * PARTIAL_REACH_BINS + 1
         act = np.arange(frames)  # the frames still taking notes (only those are searched again)
         for j in range(max_notes):
@@ -195,7 +196,11 @@ class Estimator:
                 break
             rmax = maximum_filter1d(resid[:, act], size=reach, axis=0, mode="constant")
             s = np.asarray(self.salience @ rmax)
-            s[excluded[:, act]] = 0.0
+            cols = np.arange(act.size)
+            for k in range(j):
+                taken = found[act, k]
+                for d in near_steps:
+                    s[np.clip(taken + d, 0, top), cols] = np.where(taken >= 0, 0.0, s[np.clip(taken + d, 0, top), cols])
             c = np.argmax(s, axis=0)
             best = s[c, np.arange(act.size)]
             del s
@@ -212,7 +217,6 @@ class Estimator:
             found[act, j] = c
             sal[act, j] = best
             total[act] += best
-            excluded[:, act] |= np.abs(logf[:, None] - logf[c][None, :]) * 1200.0 < EXCLUDE_CENTS
             # cancel the partials of the frames that took a note
             pos = self.pos[c]                        # (n, M)
             ok = self.ok[c]
