@@ -514,6 +514,8 @@ def shift_profile(track: Track, table, hop_s: float = 0.1) -> np.ndarray:
     return np.array(out)
 
 
+#: A passage's notes are "on" a mode when held on it for at least this share of the passage.
+PASSAGE_MODE_SHARE = 0.05
 #: How well the ground truth's own pitch is known, cents: the measured tuning of a note differs by up
 #: to ~3 cents between renders and hold lengths (tests/test_scan_realmusic.py, pitch-bend test).
 GT_UNCERTAINTY_CENTS = 3.0
@@ -884,6 +886,8 @@ def evaluate(corpus: Corpus, progress=None) -> dict:
         row = {"score": scan["score"], "transpose_cents": 100.0 * (scan["transpose_semitones"] or 0.0),
                "transpose_score": scan["transpose_score"], "held_share": held_share(tr, table),
                "passages": [(p["start_s"], p["end_s"], p["score"]) for p in scan["passages"]],
+               "passage_modes": [(p["start_s"], p["end_s"], [int(n) for n in p.get("modes", [])])
+                                 for p in scan["passages"]],
                "contrast": [p.get("contrast") for p in scan["passages"]],
                "shift_cents": tr.shift_cents, "kind": tr.kind}
         res["tracks"][name] = row
@@ -922,6 +926,20 @@ def evaluate(corpus: Corpus, progress=None) -> dict:
             row["melody"] = {k: float(mel[k]) for k in ("Raw Pitch Accuracy", "Raw Chroma Accuracy",
                                                        "Voicing Recall", "Voicing False Alarm")}
     res["hits_pooled"] = _prf(*tot)
+    # passage level: the modes a passage lists vs the readable modes its notes are held on for at least
+    # PASSAGE_MODE_SHARE of the passage (project's choice)
+    ptot = np.zeros(3, int)
+    for name in scored_tracks(corpus):
+        tr = corpus[name]
+        for start, end, listed in res["tracks"][name]["passage_modes"]:
+            times = np.arange(start, end, 0.05)
+            if times.size == 0:
+                continue
+            share = mode_hits(tr, table, times, HOLD_MIN_S).mean(axis=1)
+            truth = {int(n) for n in table.n[share >= PASSAGE_MODE_SHARE]}
+            got = set(listed)
+            ptot += (len(truth & got), len(got - truth), len(truth - got))
+    res["passage_modes"] = _prf(*ptot)
     res["hits_pooled_strict"] = _prf(*strict)
     res["held_notes"] = {"frames": held_n, "found": len(held_errs) / held_n if held_n else 0.0,
                          "median_cents": float(np.median(held_errs)) if held_errs else float("nan"),
@@ -995,6 +1013,9 @@ def report(res: dict) -> str:
                  f"{mp.get('Recall', float('nan')):5.2f} "
                  f"{mel.get('Raw Pitch Accuracy', float('nan')):5.2f} "
                  f"{mel.get('Raw Chroma Accuracy', float('nan')):5.2f} {t['transpose_cents']:+7.0f}")
+    pm = res["passage_modes"]
+    L.append(f"modes listed per passage vs modes held on >= {PASSAGE_MODE_SHARE:.0%} of it: precision "
+             f"{pm['precision']:.2f} recall {pm['recall']:.2f} (tp {pm['tp']} fp {pm['fp']} fn {pm['fn']})")
     L.append(f"Spearman(score, held-on-mode share) over pieces, off-mode copies, drums: {res['spearman']:.2f}")
     L.append("off-mode / on-mode score: " + ", ".join(f"{k} {v:.2f}" for k, v in res["off_ratio"].items()))
     L.append(f"percussion score: {res['tracks']['drums']['score']:.1f}")
