@@ -134,7 +134,7 @@ def test_map_file_is_the_map_as_data(folder, tmp_path, capsys):
     assert all(len(r) == frames for r in m["strength"]) and len(m["notes_hz"]) == frames
     s = np.array(m["strength"])
     assert s.min() >= 0 and s.max() <= 1
-    row = [k for k, md in enumerate(m["modes"]) if md["n"] == 3][0]
+    row = next(k for k, md in enumerate(m["modes"]) if md["n"] == 3)
     # the held tone on mode 3 (a single sine: all of the band's sound) is drawn, and only there
     assert np.mean(m["hit"][row][15:-15]) > 0.9 and s[row][15:-15].mean() > 0.8
     others = np.delete(np.array(m["hit"]), row, axis=0)

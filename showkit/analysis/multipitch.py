@@ -257,7 +257,6 @@ class Estimator:
         f0 = self.f0_hz[cidx]                                           # (F, N)
         fr = np.broadcast_to(np.arange(frames)[:, None], index.shape)
         # energy: strongest bin within the reach of each partial in the band
-        m = np.arange(1, MAX_HARMONICS + 1)
         pos = self.pos[cidx]                                            # (F, N, M)
         ok = self.ok[cidx] & valid[..., None]
         near = np.clip(np.rint(pos).astype(int), PARTIAL_REACH_BINS, bins - 1 - PARTIAL_REACH_BINS)

@@ -193,7 +193,7 @@ def _runs(on: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
 def _fill_gaps(on: np.ndarray, allowed: np.ndarray, longest: int) -> np.ndarray:
     """Fill gaps of up to ``longest`` frames between two on-frames where ``allowed`` holds all along."""
     out = on.copy()
-    m, f = on.shape
+    f = on.shape[1]
     if f < 3:
         return out
     # distance to the previous and next on-frame

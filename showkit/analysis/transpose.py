@@ -22,7 +22,7 @@ Laroche & Dolson, IEEE Trans. Speech Audio Proc. 7(3), 1999).
 from __future__ import annotations
 
 from pathlib import Path
-from typing import Callable
+from collections.abc import Callable
 
 import numpy as np
 
