@@ -32,7 +32,7 @@ from showkit.analysis.pitches import ModeTable
 #: Largest shift searched, cents.
 RANGE_CENTS = 300
 #: Shifts scored in full.
-CANDIDATES = 8
+CANDIDATES = 5
 #: Candidates at least this far apart, cents.
 SEPARATION_CENTS = 30
 #: Points a shift must gain over the track as it is to be suggested.

@@ -1,10 +1,11 @@
 """Rank tracks and their passages by how well they read in the flames of this tube.
 
 Each track is cut into passages where the music changes character; each
-passage gets a 0-100 readability score (sustained energy on modes whose
-pattern the holes resolve, held long enough, at the flame contrast the safe
-ceiling allows), the modes it hits (mode number, note, share of the time),
-its ceiling and the contrast at it.  A transposition within +-3 semitones that
+passage gets a 0-100 readability score (the share of its time during which a
+note is held on a mode whose pattern the holes resolve), the modes held
+(mode number, note, share of the time), its ceiling and the flame contrast at
+it, reported beside the score.  ``--map`` writes the time x mode map of one
+track as JSON.  A transposition within +-3 semitones that
 would lay the track better on the modes is suggested with the score it would
 reach.  Folders are searched recursively; results are cached; a file that
 cannot be read is reported in its row and the scan goes on.
@@ -104,7 +105,7 @@ def _print_table(tracks: list[dict]) -> None:
         print(f"{t['path']}  (score {t['score']:.0f}{', cached' if t.get('cached') else ''})")
         prow = [[f"{_fmt(p['start_s'])}-{_fmt(p['end_s'])}", f"{p['score']:.0f}", _modes_text(p),
                  f"{p['ceiling_db']:+.1f}", f"{100 * p['contrast']:.1f}"] for p in t["passages"]]
-        print(table(prow, ["passage", "score", "modes hit (time share)", "ceiling dB", "contrast %"],
+        print(table(prow, ["passage", "score", "modes held (time share)", "ceiling dB", "contrast %"],
                     "<><>>"))
 
 
@@ -197,8 +198,9 @@ def run(args) -> int:
     else:
         _print_table(tracks)
         print(f"\nOn {rig.name}, static {rig.static_pa:.2f} Pa, reserve {rig.reserve:g}; "
-              "ceilings in dB applied to the file as recorded; scores use the steady-sine flame "
-              "heights on the per-frame pressure envelope.")
+              "ceilings in dB applied to the file as recorded; a score is the share of time a note "
+              "is held on a readable mode; contrast uses the steady-sine flame heights on the "
+              "per-frame pressure envelope.")
         print(f"Ceilings rest on: {rig.drive.describe()}.")
     if args.csv:
         _write_csv(args.csv, tracks)
