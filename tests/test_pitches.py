@@ -125,3 +125,14 @@ def test_hpss_masks_match_librosa():
     ref_h, ref_p = librosa.decompose.hpss(s, kernel_size=(11, 7), mask=True)  # (harmonic: frames, percussive: bins)
     assert np.allclose(ours_h, ref_h, atol=1e-5) and np.allclose(ours_p, ref_p, atol=1e-5)
     assert ours_h[20, 10] > 0.9 and ours_p[30, 40] > 0.9
+
+
+@settings(max_examples=40, deadline=None)
+@given(st.integers(0, 40), st.integers(0, 60), st.integers(0, 60))
+def test_padded_slice_is_a_slice_of_the_padded_signal(left, start, length):
+    # the blocks of a long track read the zero-padded signal without a padded copy of it
+    from showkit.analysis.features import _padded_slice
+
+    x = np.arange(1, 31, dtype=np.float32)
+    padded = np.pad(x, (left, 200))
+    assert np.array_equal(_padded_slice(x, left, start, start + length), padded[start:start + length])

@@ -94,6 +94,18 @@ def _band_matrix(freqs_hz: np.ndarray, count: int) -> np.ndarray:
     return m
 
 
+def _padded_slice(x: np.ndarray, left: int, start: int, stop: int) -> np.ndarray:
+    """Samples ``start`` to ``stop - 1`` of ``x`` with ``left`` zeros before it and zeros after it.
+
+    The same as slicing the padded signal, without making a padded copy of the track.
+    """
+    out = np.zeros(stop - start, dtype=np.float32)
+    a, b = max(start - left, 0), min(stop - left, x.size)
+    if b > a:
+        out[a + left - start:b + left - start] = x[a:b]
+    return out
+
+
 def _split(x: np.ndarray, rate_hz: int, hop: int, band_hz: float, frames: int):
     """Harmonic/percussive facts per frame, computed in blocks with margins.
 
@@ -104,7 +116,6 @@ def _split(x: np.ndarray, rate_hz: int, hop: int, band_hz: float, frames: int):
     hop_c = hop * spectral.HPSS_HOP_FACTOR
     keep_c = spectral.band_slice(rate_hz, n_c, band_hz)
     frames_c = spectral.frame_count(x.size, hop_c)
-    padded = spectral.centre_pad(x, n_c)
     margin = max(spectral.HPSS_KERNEL) // 2 + 1
     share = np.ones(frames_c, dtype=np.float32)
     flux = np.zeros(frames_c, dtype=np.float32)
@@ -114,7 +125,8 @@ def _split(x: np.ndarray, rate_hz: int, hop: int, band_hz: float, frames: int):
     for first in range(0, frames_c, spectral.CHUNK_FRAMES):
         last = min(frames_c, first + spectral.CHUNK_FRAMES)
         a, b = max(0, first - margin), min(frames_c, last + margin)
-        power = spectral.stft_power(padded, n_c, hop_c, a, b, keep_c)
+        seg = _padded_slice(x, n_c // 2, a * hop_c, (b - 1) * hop_c + n_c)
+        power = spectral.stft_power(seg, n_c, hop_c, 0, b - a, keep_c)
         if np.any(power > 0):
             mask_h, mask_p = spectral.hpss_masks(np.sqrt(power))
         else:
@@ -162,7 +174,6 @@ def track_features(samples: np.ndarray, rate_hz: int, hop: int, band_hz: float) 
     full_scale = win ** 2 * 3.0 / 32.0 * multipitch.PAD  # band energy of a unit sine (Hann, padded)
     peak_scale = (win / 4.0) ** 2                        # power of a unit sine's peak bin (Hann)
     frames = spectral.frame_count(x.size, hop)
-    padded = np.pad(x, (win // 2, n_fft))
     est = multipitch.estimator(rate_hz, n_fft, keep.start, keep.stop - keep.start)
     window = spectral.hann(win)
     bands_m = _band_matrix(freqs, BAND_COUNT)
@@ -174,7 +185,7 @@ def track_features(samples: np.ndarray, rate_hz: int, hop: int, band_hz: float) 
     floor = np.float32(np.sqrt(peak_scale) * 10.0 ** (WHITEN_FLOOR_DB / 20.0))
     for first in range(0, frames, spectral.CHUNK_FRAMES):
         last = min(frames, first + spectral.CHUNK_FRAMES)
-        seg = padded[first * hop:(last - 1) * hop + win]
+        seg = _padded_slice(x, win // 2, first * hop, (last - 1) * hop + win)
         fr = np.lib.stride_tricks.sliding_window_view(seg, win)[::hop][:last - first]
         spec = np.fft.rfft(fr * window[None, :], n=n_fft, axis=1)[:, keep]
         power = (spec.real ** 2 + spec.imag ** 2).T.astype(np.float32)   # (bins, frames)
@@ -185,7 +196,6 @@ def track_features(samples: np.ndarray, rate_hz: int, hop: int, band_hz: float) 
         f, e = multipitch.drop_partials(*est.refine(power, found))
         notes_hz[first:last] = f
         notes_e[first:last] = e / peak_scale
-    del padded
     # band energies over about 0.4 s (BAND_SMOOTH_FRAMES), as the segmentation reads them
     from scipy.ndimage import uniform_filter1d
 
