@@ -59,3 +59,14 @@ def ui_show(tmp_path, monkeypatch, ui_cache, locked_demo_text):
     path = tmp_path / "show.toml"
     path.write_text(locked_demo_text, encoding="utf-8")
     return path
+
+
+@pytest.fixture(scope="session")
+def realmusic(tmp_path_factory):
+    """The real-music test set (tests/realmusic.py), rendered once per session into a tmp folder."""
+    import realmusic as rm
+
+    missing = rm.have_tools()
+    if missing:  # CI installs them (.ci/run); say what is missing rather than fail obscurely
+        pytest.fail(f"real-music corpus cannot be rendered: {missing}")
+    return rm.build(tmp_path_factory.mktemp("realmusic"))

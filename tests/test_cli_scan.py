@@ -120,3 +120,29 @@ def test_transpose_writes_a_preview(folder, tmp_path, capsys, monkeypatch):
     assert main(["scan", str(folder / "good.flac"), "--transpose", "-1"]) == 0
     made = list(tmp_path.glob("good_shift-1.00st_*.wav"))
     assert len(made) == 1 and sf.info(str(made[0])).duration > 4.0
+
+
+def test_map_file_is_the_map_as_data(folder, tmp_path, capsys):
+    # issue 12: {"hop_s", "times_s", "modes": [{"n", "frequency_hz", "note"}], "strength", "hit", "notes_hz"}
+    target = tmp_path / "map.json"
+    assert main(["scan", str(folder / "good.flac"), "--map", str(target)]) == 0
+    m = json.loads(target.read_text())
+    assert set(m) >= {"hop_s", "times_s", "modes", "strength", "hit", "notes_hz"}
+    frames = len(m["times_s"])
+    assert m["hop_s"] == pytest.approx(1 / 30) and frames == pytest.approx(5.0 * 30, abs=2)
+    assert len(m["strength"]) == len(m["hit"]) == len(m["modes"])
+    assert all(len(r) == frames for r in m["strength"]) and len(m["notes_hz"]) == frames
+    s = np.array(m["strength"])
+    assert s.min() >= 0 and s.max() <= 1
+    row = next(k for k, md in enumerate(m["modes"]) if md["n"] == 3)
+    # the held tone on mode 3 (a single sine: all of the band's sound) is drawn, and only there
+    assert np.mean(m["hit"][row][15:-15]) > 0.9 and s[row][15:-15].mean() > 0.8
+    others = np.delete(np.array(m["hit"]), row, axis=0)
+    assert others.sum(axis=0).mean() < 0.05
+    f = synth.DEMO_MODE_HZ[3]
+    assert all(any(abs(1200 * np.log2(x / f)) < 5 for x in fr) for fr in m["notes_hz"][15:-15])
+
+
+def test_map_takes_one_track(folder, tmp_path, capsys):
+    assert main(["scan", str(folder), "--map", str(tmp_path / "m.json")]) == 2
+    assert "one track" in capsys.readouterr().err and not (tmp_path / "m.json").exists()

@@ -5,6 +5,8 @@ from __future__ import annotations
 import numpy as np
 import pytest
 import soxr
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from showkit.analysis import segments as sg
 from showkit.analysis.features import track_features
@@ -70,3 +72,25 @@ def test_checkerboard_sees_a_block_change():
     # so the kernel gives 0.5 * 1 - 0.5 * 0, halved to the 0-1 scale
     assert curve[20] == pytest.approx(0.25, abs=0.01)
     assert curve[10] == pytest.approx(0.0, abs=1e-9)  # inside a uniform block: no change
+
+
+@settings(max_examples=40, deadline=None)
+@given(n=st.integers(1, 90), dims=st.integers(1, 6), half=st.integers(2, 14), seed=st.integers(0, 2**31),
+       empty=st.integers(0, 5))
+def test_banded_novelty_equals_the_full_matrix(n, dims, half, seed, empty):
+    """The banded computation reads the same similarities as the full n x n one (Foote 2000 novelty):
+    equal to 1e-12 for any short input, including tracks shorter than the kernel and empty blocks."""
+    rng = np.random.default_rng(seed)
+    blocks = rng.normal(size=(n, dims))
+    blocks[rng.integers(0, n, size=min(empty, n))] = 0.0
+    full = sg.novelty(sg.self_similarity(blocks), half)
+    np.testing.assert_allclose(sg.banded_novelty(blocks, half), full, rtol=0, atol=1e-12)
+
+
+def test_banded_novelty_on_real_features():
+    """Same curve from the features of a sectioned track, at the kernel size passages() uses."""
+    blocks, _ = sg.block_features(features_of(sectioned(("pad", "hits", "tune"))))
+    half = max(2, round(sg.KERNEL_HALF_S * sg.BLOCK_RATE_HZ))
+    full = sg.novelty(sg.self_similarity(blocks), half)
+    assert full.max() > sg.NOVELTY_FLOOR  # a curve with peaks, not zeros
+    np.testing.assert_allclose(sg.banded_novelty(blocks, half), full, rtol=0, atol=1e-12)

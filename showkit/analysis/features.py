@@ -1,12 +1,17 @@
-"""Per-frame facts of a track, the input of segmentation and scoring.
+"""Per-frame facts of a track, the input of segmentation, the mode map and scoring.
 
 One pass over the samples (at the hole filters' rate, one frame per flame
-frame) gives, per frame: the energy in the tube's band, how much of it is
-sustained (harmonic) rather than percussive, the strongest spectral peaks
-(frequency, energy, sustained share), log energies in a few bands and a
-percussive onset strength.  Methods: :mod:`showkit.analysis.spectral` and
-:mod:`showkit.analysis.pitches`.  The spectrogram is made and reduced in
-chunks, so memory stays bounded for long tracks.
+frame, 30 per second) gives, per frame: the energy in the tube's band, how
+much of it is sustained (harmonic) rather than percussive, every sounding
+note (fundamental frequency to a few cents, the energy of its partials, how
+sustained it is), log energies in a few bands and a percussive onset
+strength.  Methods: :mod:`showkit.analysis.multipitch` (the notes) and
+:mod:`showkit.analysis.spectral` (transform, harmonic/percussive split).
+
+The track is processed in blocks of :data:`spectral.CHUNK_FRAMES` frames;
+the harmonic/percussive split reads a margin of frames on each side of a
+block, so the result is the same as for the whole track at once, and memory
+stays bounded (float32) however long the track is.
 """
 
 from __future__ import annotations
@@ -15,19 +20,21 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from showkit.analysis import pitches, spectral
+from showkit.analysis import multipitch, spectral
 
 #: Log-spaced bands for the segmentation features.
 BAND_COUNT = 16
-#: The pitch spectrum is computed every this many frames (15 per second) and held between.
-PITCH_HOP_FACTOR = 2
+#: Band energies for the segmentation are averaged over this many frames (about 0.4 s).
+BAND_SMOOTH_FRAMES = 13
 #: A frame whose band energy is below this (dB re a full-scale sine) is silent.
 SILENCE_DB = -60.0
+#: Spectral amplitudes below a sine at this level (dB re full scale) are ignored by the note search.
+WHITEN_FLOOR_DB = -100.0
 
 
 @dataclass
 class TrackFeatures:
-    """What the analysis keeps of a track, frame by frame (``F`` frames).
+    """What the analysis keeps of a track, frame by frame (``F`` frames, ``N`` notes at most).
 
     Attributes
     ----------
@@ -36,9 +43,13 @@ class TrackFeatures:
         Energy in the band, relative to a full-scale sine's (1.0 = 0 dB).
     harmonic_share : ndarray (F,)
         Fraction of the energy that is sustained (0 to 1).
-    peak_hz, peak_energy, peak_harmonic : ndarray (F, K)
-        Strongest peaks: frequency (Hz, NaN for none), main-lobe energy
-        (same unit as ``energy``) and sustained share (0 to 1).
+    notes_hz : ndarray (F, N)
+        Fundamentals of the notes found, Hz, in the order found (most salient
+        first); NaN where there are fewer notes.
+    notes_energy : ndarray (F, N)
+        Energy of each note's partials in the band (same unit as ``energy``).
+    notes_tonal : ndarray (F, N)
+        Sustained share at each note's fundamental (0 to 1).
     bands : ndarray (F, BAND_COUNT)
         log10 band energies (same unit, floored at 1e-9).
     onset : ndarray (F,)
@@ -48,9 +59,9 @@ class TrackFeatures:
     frame_rate_hz: float
     energy: np.ndarray
     harmonic_share: np.ndarray
-    peak_hz: np.ndarray
-    peak_energy: np.ndarray
-    peak_harmonic: np.ndarray
+    notes_hz: np.ndarray
+    notes_energy: np.ndarray
+    notes_tonal: np.ndarray
     bands: np.ndarray
     onset: np.ndarray
 
@@ -71,7 +82,7 @@ class TrackFeatures:
         """The frames ``first`` to ``last - 1``."""
         s = slice(first, last)
         return TrackFeatures(self.frame_rate_hz, self.energy[s], self.harmonic_share[s],
-                             self.peak_hz[s], self.peak_energy[s], self.peak_harmonic[s],
+                             self.notes_hz[s], self.notes_energy[s], self.notes_tonal[s],
                              self.bands[s], self.onset[s])
 
 
@@ -81,6 +92,63 @@ def _band_matrix(freqs_hz: np.ndarray, count: int) -> np.ndarray:
     m = np.zeros((freqs_hz.size, count), dtype=np.float32)
     m[np.arange(freqs_hz.size), which] = 1.0
     return m
+
+
+def _padded_slice(x: np.ndarray, left: int, start: int, stop: int) -> np.ndarray:
+    """Samples ``start`` to ``stop - 1`` of ``x`` with ``left`` zeros before it and zeros after it.
+
+    The same as slicing the padded signal, without making a padded copy of the track.
+    """
+    out = np.zeros(stop - start, dtype=np.float32)
+    a, b = max(start - left, 0), min(stop - left, x.size)
+    if b > a:
+        out[a + left - start:b + left - start] = x[a:b]
+    return out
+
+
+def _split(x: np.ndarray, rate_hz: int, hop: int, band_hz: float, frames: int):
+    """Harmonic/percussive facts per frame, computed in blocks with margins.
+
+    Returns the sustained share per frame, the percussive flux per frame, and
+    a function giving the harmonic mask at (frequency, frame) pairs.
+    """
+    n_c = max(64, spectral.fft_size(rate_hz) // spectral.HPSS_WINDOW_DIVISOR)
+    hop_c = hop * spectral.HPSS_HOP_FACTOR
+    keep_c = spectral.band_slice(rate_hz, n_c, band_hz)
+    frames_c = spectral.frame_count(x.size, hop_c)
+    margin = max(spectral.HPSS_KERNEL) // 2 + 1
+    share = np.ones(frames_c, dtype=np.float32)
+    flux = np.zeros(frames_c, dtype=np.float32)
+    mask = np.ones((keep_c.stop - keep_c.start, frames_c), dtype=np.float16)
+    prev_mag = None
+    full_scale = n_c ** 2 * 3.0 / 32.0
+    for first in range(0, frames_c, spectral.CHUNK_FRAMES):
+        last = min(frames_c, first + spectral.CHUNK_FRAMES)
+        a, b = max(0, first - margin), min(frames_c, last + margin)
+        seg = _padded_slice(x, n_c // 2, a * hop_c, (b - 1) * hop_c + n_c)
+        power = spectral.stft_power(seg, n_c, hop_c, 0, b - a, keep_c)
+        if np.any(power > 0):
+            mask_h, mask_p = spectral.hpss_masks(np.sqrt(power))
+        else:
+            mask_h, mask_p = np.ones_like(power), np.zeros_like(power)
+        inner = slice(first - a, first - a + (last - first))
+        p_in, mh, mp = power[:, inner], mask_h[:, inner], mask_p[:, inner]
+        total = p_in.sum(axis=0, dtype=np.float64)
+        share[first:last] = np.where(total > 0, (mh * p_in).sum(axis=0) / np.where(total > 0, total, 1.0), 1.0)
+        perc = np.sqrt(mp * p_in)
+        before = perc[:, :1] if prev_mag is None else prev_mag
+        flux[first:last] = np.maximum(0.0, np.diff(np.concatenate([before, perc], axis=1), axis=1)).sum(axis=0)
+        prev_mag = perc[:, -1:]
+        mask[:, first:last] = mh
+    flux /= np.sqrt(full_scale)
+    to_c = np.clip(np.rint(np.arange(frames) / spectral.HPSS_HOP_FACTOR).astype(int), 0, frames_c - 1)
+
+    def harmonic_at(freq_hz: np.ndarray, frame: np.ndarray) -> np.ndarray:
+        k = np.rint(np.nan_to_num(freq_hz) / (rate_hz / n_c)).astype(int) - keep_c.start
+        k = np.clip(k, 0, mask.shape[0] - 1)
+        return np.where(np.isfinite(freq_hz), mask[k, to_c[frame]].astype(np.float32), 0.0)
+
+    return share[to_c], flux[to_c], harmonic_at
 
 
 def track_features(samples: np.ndarray, rate_hz: int, hop: int, band_hz: float) -> TrackFeatures:
@@ -98,51 +166,43 @@ def track_features(samples: np.ndarray, rate_hz: int, hop: int, band_hz: float) 
         Upper edge of the tube's band, Hz.
     """
     x = np.asarray(samples, dtype=np.float32)
-    n_fft = spectral.fft_size(rate_hz)
+    win = multipitch.window_samples(rate_hz)
+    n_fft = win * multipitch.PAD
     keep = spectral.band_slice(rate_hz, n_fft, band_hz)
     bin_hz = rate_hz / n_fft
     freqs = np.arange(keep.start, keep.stop) * bin_hz
-    full_scale = n_fft ** 2 * 3.0 / 32.0  # positive-bin energy of a unit sine, Hann window
+    full_scale = win ** 2 * 3.0 / 32.0 * multipitch.PAD  # band energy of a unit sine (Hann, padded)
+    peak_scale = (win / 4.0) ** 2                        # power of a unit sine's peak bin (Hann)
     frames = spectral.frame_count(x.size, hop)
-    # the pitch spectrum is taken every PITCH_HOP_FACTOR frames and held in between
-    step = PITCH_HOP_FACTOR
-    hop_p = hop * step
-    frames_p = spectral.frame_count(x.size, hop_p)
-    padded = spectral.centre_pad(x, n_fft)
+    est = multipitch.estimator(rate_hz, n_fft, keep.start, keep.stop - keep.start)
+    window = spectral.hann(win)
     bands_m = _band_matrix(freqs, BAND_COUNT)
-    energy = np.zeros(frames_p)
-    peak_hz = np.full((frames_p, pitches.PEAKS_PER_FRAME), np.nan)
-    peak_e = np.zeros((frames_p, pitches.PEAKS_PER_FRAME))
-    bands = np.zeros((frames_p, BAND_COUNT), dtype=np.float32)
-    for first in range(0, frames_p, spectral.CHUNK_FRAMES):
-        last = min(frames_p, first + spectral.CHUNK_FRAMES)
-        power = spectral.stft_power(padded, n_fft, hop_p, first, last, keep) / np.float32(full_scale)
-        energy[first:last] = power.sum(axis=0, dtype=np.float64)
-        f, e = pitches.spectral_peaks(power, freqs[0], bin_hz)
-        peak_hz[first:last], peak_e[first:last] = f, e
-        bands[first:last] = np.log10(np.maximum(power.T @ bands_m, 1e-9))
-    to_p = np.clip(np.rint(np.arange(frames) / step).astype(int), 0, frames_p - 1)
-    energy, peak_hz, peak_e, bands = energy[to_p], peak_hz[to_p], peak_e[to_p], bands[to_p]
+    n = multipitch.MAX_NOTES
+    energy = np.zeros(frames)
+    notes_hz = np.full((frames, n), np.nan, dtype=np.float32)
+    notes_e = np.zeros((frames, n), dtype=np.float32)
+    bands = np.zeros((frames, BAND_COUNT), dtype=np.float32)
+    floor = np.float32(np.sqrt(peak_scale) * 10.0 ** (WHITEN_FLOOR_DB / 20.0))
+    for first in range(0, frames, spectral.CHUNK_FRAMES):
+        last = min(frames, first + spectral.CHUNK_FRAMES)
+        seg = _padded_slice(x, win // 2, first * hop, (last - 1) * hop + win)
+        fr = np.lib.stride_tricks.sliding_window_view(seg, win)[::hop][:last - first]
+        spec = np.fft.rfft(fr * window[None, :], n=n_fft, axis=1)[:, keep]
+        power = (spec.real ** 2 + spec.imag ** 2).T.astype(np.float32)   # (bins, frames)
+        del spec, fr
+        energy[first:last] = power.sum(axis=0, dtype=np.float64) / full_scale
+        bands[first:last] = (power.T @ bands_m) / np.float32(full_scale)
+        found, _ = est.estimate(est.whiten(np.sqrt(power), floor))
+        f, e = multipitch.drop_partials(*est.refine(power, found))
+        notes_hz[first:last] = f
+        notes_e[first:last] = e / peak_scale
+    # band energies over about 0.4 s (BAND_SMOOTH_FRAMES), as the segmentation reads them
+    from scipy.ndimage import uniform_filter1d
 
-    # the sustained/percussive split on a shorter window, every second frame
-    n_c = max(64, n_fft // spectral.HPSS_WINDOW_DIVISOR)
-    hop_c = hop * spectral.HPSS_HOP_FACTOR
-    keep_c = spectral.band_slice(rate_hz, n_c, band_hz)
-    frames_c = spectral.frame_count(x.size, hop_c)
-    power_c = spectral.stft_power(spectral.centre_pad(x, n_c), n_c, hop_c, 0, frames_c, keep_c)
-    if np.any(power_c > 0):
-        mask_h, mask_p = spectral.hpss_masks(np.sqrt(power_c))
-    else:
-        mask_h, mask_p = np.ones_like(power_c), np.zeros_like(power_c)
-    total_c = power_c.sum(axis=0, dtype=np.float64)
-    share_c = np.where(total_c > 0, (mask_h * power_c).sum(axis=0) / np.where(total_c > 0, total_c, 1.0), 1.0)
-    perc_mag = np.sqrt(mask_p * power_c)
-    flux_c = np.concatenate([[0.0], np.maximum(0.0, np.diff(perc_mag, axis=1)).sum(axis=0)])
-    flux_c = flux_c / np.sqrt(full_scale / spectral.HPSS_WINDOW_DIVISOR ** 2)
-    to_c = np.clip(np.rint(np.arange(frames) / spectral.HPSS_HOP_FACTOR).astype(int), 0, frames_c - 1)
-    cbin = np.rint(np.nan_to_num(peak_hz) / (rate_hz / n_c)).astype(int) - keep_c.start
-    cbin = np.clip(cbin, 0, mask_h.shape[0] - 1)
-    peak_harm = np.where(np.isfinite(peak_hz), mask_h[cbin, to_c[:, None]], 0.0)
-    return TrackFeatures(frame_rate_hz=rate_hz / hop, energy=energy, harmonic_share=share_c[to_c],
-                         peak_hz=peak_hz, peak_energy=peak_e, peak_harmonic=peak_harm,
-                         bands=bands, onset=flux_c[to_c])
+    bands = np.log10(np.maximum(uniform_filter1d(bands, BAND_SMOOTH_FRAMES, axis=0, mode="nearest"), 1e-9))
+    share, onset, harmonic_at = _split(x, rate_hz, hop, band_hz, frames)
+    rows = np.broadcast_to(np.arange(frames)[:, None], notes_hz.shape)
+    tonal = harmonic_at(notes_hz, rows)
+    return TrackFeatures(frame_rate_hz=rate_hz / hop, energy=energy, harmonic_share=share,
+                         notes_hz=notes_hz, notes_energy=notes_e, notes_tonal=tonal.astype(np.float32),
+                         bands=bands, onset=onset)

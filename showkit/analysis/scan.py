@@ -22,12 +22,12 @@ import numpy as np
 from showkit.analysis import scancache
 from showkit.analysis.audio import audio_info, read_blocks
 from showkit.analysis.features import track_features
-from showkit.analysis.pitches import ModeTable
+from showkit.analysis.pitches import ModeTable, dominant_pitch
 from showkit.analysis.pressure import hole_filters
-from showkit.analysis.score import (APPROXIMATION, frame_scores, mode_shares, passage_level,
+from showkit.analysis.score import (APPROXIMATION, frame_gate, mode_frames, mode_shares, passage_level,
                                     passage_score, track_score)
 from showkit.analysis.segments import passages as find_passages
-from showkit.analysis.transpose import best_shift, shifted_scores
+from showkit.analysis import transpose
 from showkit.errors import AudioError, ShowkitError
 from showkit.physics.flames import FRAME_RATE_HZ
 from showkit.physics.response import simulate
@@ -86,10 +86,28 @@ class _Work:
     native_peaks: np.ndarray
     spans_s: list
     beats: np.ndarray
+    gate: np.ndarray = None
+
+    def spans(self) -> list[tuple[int, int]]:
+        """Each passage's frames ``(first, last)``."""
+        fr = self.features.frame_rate_hz
+        out = []
+        for start, end in self.spans_s:
+            first = int(round(start * fr))
+            out.append((first, min(self.features.frames, max(first + 1, int(round(end * fr))))))
+        return out
+
+    def score_at(self, shift_cents: float = 0.0):
+        """``(track score, passage scores, map)`` with every note moved by ``shift_cents``."""
+        mf = mode_frames(self.features, self.table, self.gate, shift_cents)
+        term = mf.term(self.table)
+        scores = [passage_score(term, a, b) for a, b in self.spans()]
+        lengths = [e - s for s, e in self.spans_s]
+        return track_score(scores, lengths), scores, mf
 
 
 def _analyse(rig: Rig, path: str | Path, threads: int | None = None) -> _Work:
-    """Decode once at the hole filters' rate; features, pressure envelope and passages.
+    """Decode once at the hole filters' rate; features, pressure envelope, passages and the gate.
 
     The BLAS/OpenMP pools are held to one thread here: showkit's own
     parallelism (the simulation's threads, the folder scan's processes) uses
@@ -115,83 +133,95 @@ def _analyse_now(rig: Rig, path: Path, threads: int | None) -> _Work:
     hop = filters.frame_samples
     features = track_features(x, filters.rate_hz, hop, filters.band_hz)
     envelope = simulate(filters, x, workers=threads).envelope
+    del x
     lag = int(round(filters.delay / hop))  # the responses are delayed by `delay` samples
+    envelope = envelope[lag:]
     spans_s, beats = find_passages(features, info.duration_s)
-    return _Work(path, info.duration_s, mode_table(rig), features, envelope[lag:], native_peaks,
-                 spans_s, beats)
+    pressure = envelope.max(axis=1) if envelope.size else np.zeros(0)
+    gate = frame_gate(features, pressure)
+    return _Work(path, info.duration_s, mode_table(rig), features, envelope, native_peaks,
+                 spans_s, beats, gate)
 
 
-def _score_spans(rig: Rig, work: _Work, fs):
-    """Frame spans, level factors, scores, lengths and levels of the passages."""
-    fr = work.features.frame_rate_hz
-    spans, factors, scores, lengths, levels = [], [], [], [], []
-    for start, end in work.spans_s:
-        first = int(round(start * fr))
-        last = min(work.features.frames, max(first + 1, int(round(end * fr))))
+def _levels(rig: Rig, work: _Work):
+    """Ceiling and flame contrast of each passage."""
+    levels = []
+    for first, last in work.spans():
         env = work.envelope[first:max(last, first + 1)]
         peaks = work.native_peaks[first:last]
-        level = passage_level(env, float(peaks.max()) if peaks.size else 0.0, rig.static_pa, rig.reserve)
-        spans.append((first, last))
-        factors.append(level.factor)
-        scores.append(passage_score(fs, level.factor, first, last))
-        lengths.append(end - start)
-        levels.append(level)
-    return spans, factors, scores, lengths, levels
+        levels.append(passage_level(env, float(peaks.max()) if peaks.size else 0.0, rig.static_pa,
+                                    rig.reserve))
+    return levels
 
 
-def track_frames(rig: Rig, path: str | Path, shift_cents: float = 0.0, max_rows: int = 10) -> dict:
-    """Per-frame mode hits of a track at a transposition: the time x mode map and the score.
-
-    Returns ``score`` (the track score with every pitch moved by
-    ``shift_cents``, on the scan's passages), ``map_modes`` (the mode numbers
-    of the map's rows, at most ``max_rows``: the driven ones), ``map_energy``
-    (rows x frames: the scored on-mode energy of each mode per frame),
-    ``times_s`` (frame times) and ``notes`` (per frame: the dominant notes with
-    their nearest modes, as text).
-    """
-    from showkit.analysis.pitches import map_to_modes
+def frame_notes_text(work: _Work, shift_cents: float = 0.0) -> list[str]:
+    """Per frame: the notes found, strongest two first, with the nearest mode and offset (text)."""
+    from showkit.analysis.score import nearest_modes
     from showkit.physics.pitch import nearest_note
 
-    work = _analyse(rig, path)
     features, table = work.features, work.table
-    hits = map_to_modes(features.peak_hz, table, shift_cents)
-    fs = frame_scores(features, table, shift_cents, hits)
-    _, _, scores, lengths, _ = _score_spans(rig, work, fs)
-    score = track_score(scores, lengths)
-    part = features.peak_energy * features.peak_harmonic * hits.weight        # (F, K)
-    idx = np.where(hits.index >= 0, hits.index, 0)
-    energy = np.zeros((table.n.size, features.frames))
-    frames_k = np.broadcast_to(np.arange(features.frames)[:, None], idx.shape)
-    np.add.at(energy, (idx.ravel(), frames_k.ravel()), np.where(hits.index >= 0, part, 0.0).ravel())
-    row_max = energy.max(axis=1)
-    # rows more than 30 dB under the strongest mode would draw blank: not drawn
-    driven = row_max.size and row_max.max() > 0
-    hit_rows = np.nonzero(row_max > 1e-3 * row_max.max())[0] if driven else np.zeros(0, int)
-    if hit_rows.size:
-        lo, hi = max(0, hit_rows.min() - 1), min(table.n.size - 1, hit_rows.max() + 1)
-    else:
-        lo, hi = 1, min(table.n.size - 1, max_rows)
-    if hi - lo + 1 > max_rows:  # keep the rows that are driven most
-        keep = np.sort(np.argsort(-row_max)[:max_rows])
-    else:
-        keep = np.arange(lo, hi + 1)
     scale = 2.0 ** (shift_cents / 1200.0)
-    notes = []
-    order = np.argsort(-features.peak_energy, axis=1)
+    idx, cents = nearest_modes(features.notes_hz, table, shift_cents)
+    order = np.argsort(-features.notes_energy, axis=1)
+    out = []
     for t in range(features.frames):
         items = []
         for k in order[t, :2]:
-            f = features.peak_hz[t, k]
-            if not np.isfinite(f) or features.peak_energy[t, k] <= 0:
+            f = float(features.notes_hz[t, k])
+            if not np.isfinite(f) or features.notes_energy[t, k] <= 0:
                 continue
-            name, _ = nearest_note(float(f) * scale)
-            j = int(hits.index[t, k])
-            items.append(f"{name} {f * scale:.0f} Hz → mode {int(table.n[j])} {hits.cents[t, k]:+.0f}c"
+            name, _ = nearest_note(f * scale)
+            j = int(idx[t, k])
+            items.append(f"{name} {f * scale:.0f} Hz → mode {int(table.n[j])} {cents[t, k]:+.0f}c"
                          if j >= 0 else name)
-        notes.append(", ".join(items))
-    return {"score": float(score), "map_modes": [int(n) for n in table.n[keep]],
-            "map_energy": energy[keep], "times_s": np.arange(features.frames) / features.frame_rate_hz,
-            "notes": notes}
+        out.append(", ".join(items))
+    return out
+
+
+def map_data(work: _Work, shift_cents: float = 0.0, mf=None) -> dict:
+    """The time x mode map as data (the ``--map`` file and what the Track view draws).
+
+    ``{"hop_s", "times_s", "modes": [{"n", "frequency_hz", "note"}], "strength": [[0-1 per frame]
+    per mode], "hit": [[bool per frame] per mode], "notes_hz": [[every note found] per frame]}``,
+    plus ``"dominant_hz"`` (the dominant pitch per frame, 0 for none:
+    :func:`showkit.analysis.pitches.dominant_pitch`) and ``"shift_cents"``.
+    Notes are given as heard after the shift.
+    """
+    if mf is None:
+        mf = mode_frames(work.features, work.table, work.gate, shift_cents)
+    features, table = work.features, work.table
+    hop_s = 1.0 / features.frame_rate_hz
+    scale = 2.0 ** (shift_cents / 1200.0)
+    notes = [[round(float(f) * scale, 2) for f in row if np.isfinite(f)] for row in features.notes_hz]
+    return {"hop_s": hop_s,
+            "times_s": [round(k * hop_s, 4) for k in range(features.frames)],
+            "modes": [{"n": int(n), "frequency_hz": round(float(f), 3), "note": note}
+                      for n, f, note in zip(table.n, table.freq_hz, table.notes)],
+            "strength": np.round(mf.strength.astype(float), 3).tolist(),
+            "hit": mf.hit.tolist(),
+            "notes_hz": notes,
+            "dominant_hz": [round(float(f) * scale, 2) if np.isfinite(f) else 0.0
+                            for f in dominant_pitch(features.notes_hz, features.notes_energy)],
+            "shift_cents": float(shift_cents)}
+
+
+def track_map(rig: Rig, path: str | Path, shift_cents: float = 0.0) -> dict:
+    """The time x mode map of a track as data (:func:`map_data`; what ``scan --map`` writes)."""
+    return track_frames(rig, path, shift_cents)["map"]
+
+
+def track_frames(rig: Rig, path: str | Path, shift_cents: float = 0.0) -> dict:
+    """The time x mode map and the score of a track at a transposition.
+
+    Returns ``score`` (the track score with every note moved by
+    ``shift_cents``, on the scan's passages), ``map`` (:func:`map_data`) and
+    ``notes`` (per frame: the strongest notes with their nearest modes, as
+    text).
+    """
+    work = _analyse(rig, path)
+    score, _, mf = work.score_at(shift_cents)
+    return {"score": float(score), "map": map_data(work, shift_cents, mf),
+            "notes": frame_notes_text(work, shift_cents)}
 
 
 def scan_track(rig: Rig, path: str | Path, threads: int | None = None) -> dict:
@@ -207,15 +237,15 @@ def scan_track(rig: Rig, path: str | Path, threads: int | None = None) -> dict:
         ``transpose_score``, ``error`` (None), ``passages`` (each with
         ``start_s``, ``end_s``, ``score``, ``modes``, ``mode_shares``,
         ``ceiling_db``, ``limited_by``, ``contrast``), ``beats`` (count) and
-        ``note`` (the scoring approximation).
+        ``note`` (how the score is made).
     """
     work = _analyse(rig, path, threads)
     table = work.table
-    fs = frame_scores(work.features, table)
-    spans, factors, scores, lengths, levels = _score_spans(rig, work, fs)
+    total, scores, mf = work.score_at(0.0)
+    levels = _levels(rig, work)
     out = []
-    for (first, last), (start, end), score, level in zip(spans, work.spans_s, scores, levels):
-        shares = mode_shares(fs, table, first, last)
+    for (first, last), (start, end), score, level in zip(work.spans(), work.spans_s, scores, levels):
+        shares = mode_shares(mf, table, first, last)
         out.append({"start_s": round(start, 3), "end_s": round(end, 3), "score": round(score, 1),
                     "modes": [n for n, _ in shares],
                     "mode_shares": [{"n": n, "note": _note(table, n), "share": round(s, 3)}
@@ -223,13 +253,17 @@ def scan_track(rig: Rig, path: str | Path, threads: int | None = None) -> dict:
                     "ceiling_db": round(level.ceiling.ceiling_db, 2),
                     "limited_by": level.ceiling.limited_by,
                     "contrast": round(level.median_contrast, 4)})
-    features, duration, beats, path = work.features, work.duration_s, work.beats, work.path
-    total = track_score(scores, lengths)
-    by_shift = shifted_scores(features, table, spans, factors, lengths)
-    shift, shifted = best_shift(by_shift)
-    return {"path": str(path), "duration_s": round(duration, 3), "score": round(total, 1),
+    cache = {0.0: total}
+
+    def score_at(shift):
+        if shift not in cache:
+            cache[shift] = work.score_at(shift)[0]
+        return cache[shift]
+
+    shift, shifted, _ = transpose.search(work.features, table, work.gate, score_at)
+    return {"path": str(work.path), "duration_s": round(work.duration_s, 3), "score": round(total, 1),
             "transpose_semitones": round(shift / 100.0, 2), "transpose_score": round(shifted, 1),
-            "error": None, "passages": out, "beats": int(beats.size), "note": APPROXIMATION}
+            "error": None, "passages": out, "beats": int(work.beats.size), "note": APPROXIMATION}
 
 
 def failed(path: str | Path, message: str) -> dict:

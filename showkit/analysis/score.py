@@ -1,35 +1,39 @@
-"""The 0-100 readability score of a passage and of a track.
+"""The time x mode map of a track, holds, and the 0-100 readability score.
 
-What a presenter sees is a standing pattern in the flames, so the score
-multiplies, frame by frame (30 per second), three things and averages them
-over the passage:
+**The map.**  For every flame frame (30 per second) and every mode of the
+tube, the *strength* (0 to 1) is the share of the music's energy in the
+tube's band carried by the notes sitting on that mode: a note is on a mode
+when its fundamental lies within the mode's half-power half-width
+``f_n / (2 Q)`` widened to :data:`MIN_TOLERANCE_CENTS` (the gas warms during a
+show and moves the modes by about 3 cents per kelvin; physics.md section 2)
+and at most :data:`MAX_TOLERANCE_CENTS`, and only its sustained part counts
+(the harmonic/percussive split).  The strength is then gated on an absolute
+scale: frames more than :data:`GATE_RANGE_DB` below the track's loud level
+(its 95th-percentile band energy), or whose predicted pressure at the holes
+is that far below the track's loud pressure, fade to nothing, and so does
+anything under :data:`features.SILENCE_DB`.  Everything is a ratio, so the
+same music at another level draws the same map; silence, drums and noise
+(no sustained note) draw nothing.
 
-- **on-mode share** ``a(t)``: the part of the frame's energy in the tube's
-  band that is a sustained spectral peak on a mode whose pattern the holes
-  resolve, each peak weighted by how close it lies to the mode
-  (:func:`showkit.analysis.pitches.map_to_modes`).  Energy between modes, on
-  the breathing or unresolved modes, percussive energy and noise all count
-  against it; a silent frame has ``a = 0``.
-- **held** ``b(t)``: 1 once the same mode has been hit for long enough for the
-  pattern to form -- two ring-up time constants ``2 tau = 2 Q / (pi f_n)`` of
-  the resonator and never less than :data:`MIN_HOLD_S` -- else 0.
-- **flame contrast at the ceiling** ``c(t)``: the passage is played at its
-  ceiling (the safe-level rule of physics.md section 7 over the whole
-  passage, from the pressure model's per-frame envelope at every hole, capped
-  at digital full scale), and the flame row's contrast in that frame is
-  divided by the contrast of a row whose worst hole sits at the safe line
-  (capped at 1).  A loud hit in the passage lowers the ceiling and with it
-  every other frame's contrast.
+**Hits and holds.**  A mode is *hit* in a frame when its strength reaches
+:data:`HIT_ON` and stays hit while it stays above :data:`HIT_OFF`
+(hysteresis); a gap of one frame, or of up to :data:`VIBRATO_GAP_FRAMES`
+frames while a note stays within :data:`VIBRATO_CENTS` of the mode (vibrato
+swinging out of the band), does not end the hit.  A note played again on
+the same mode (its energy rising by :data:`ONSET_DB` within two frames)
+starts a new hit.  A hit is *held*, all along, when it spends the ring-up
+time inside the band: two time constants ``2 tau = 2 Q / (pi f_n)`` of the
+resonator and never less than :data:`MIN_HOLD_S`.
 
-``score = 100 * mean_t(a b c)``.  A track's score is the duration-weighted
-mean of its best passages, taken best first until they cover half the track.
-
-Approximation (stated wherever the score is shown): the flame height of each
-hole and frame is the closed form for a steady sine,
-:func:`showkit.physics.flames.sine_flame_height`, with ``r`` = the gain times
-the frame's envelope at that hole over the static pressure (physics.md
-section 6); the full flame simulation of :mod:`showkit.analysis.pressure` is
-used where levels are locked.
+**The score.**  ``score = 100 * mean_t(h(t))`` over a passage's frames, with
+``h(t)`` the largest, over the modes whose pattern the holes resolve, of
+``held * min(1, strength / FULL_STRENGTH)``: in plain words, *the share of
+the passage's time during which a note is held on a readable mode*, a note
+counting fully once it carries a quarter of the sound in the band
+(one voice of four).  A track's score is the duration-weighted mean of its
+best passages, taken best first until they cover half the track.  The flame
+contrast at the passage's ceiling is reported beside the score
+(:func:`passage_level`), not multiplied into it.
 """
 
 from __future__ import annotations
@@ -39,46 +43,124 @@ from dataclasses import dataclass
 import numpy as np
 
 from showkit.analysis.features import TrackFeatures
-from showkit.analysis.pitches import ModeHits, ModeTable, map_to_modes
+from showkit.analysis.pitches import ModeTable
 from showkit.physics import ceiling as ceil_rule
 from showkit.physics.flames import row_contrast, sine_flame_height
 
 #: Shortest hold that counts, s (project's choice: about the eye's grasp of a pattern).
-MIN_HOLD_S = 0.3
-#: A peak counts as a hit on its mode when its weight is at least this.
-HIT_WEIGHT = 0.5
-#: ... and it holds at least this share of the frame's energy.
-HIT_SHARE = 0.1
+MIN_HOLD_S = 0.2
+#: Narrowest and widest tolerance of a note on a mode, cents: 10 and 15 cents (project's choice: the gas
+#: warms by a few kelvin during a show, about 3 cents per kelvin) plus 3 cents for the error of the
+#: pitch estimate (median 3.6 cents on held notes of the rendered scores of tests/realmusic.py).
+MIN_TOLERANCE_CENTS = 13.0
+MAX_TOLERANCE_CENTS = 18.0
+#: A note whose fundamental is less sustained than this (harmonic mask) is not drawn.
+MIN_TONAL = 0.5
+#: Strength at which a hit starts, and below which it ends.
+HIT_ON = 0.02
+HIT_OFF = 0.01
+#: Strength at which a held note counts fully in the score (a quarter of the band: one voice of four).
+FULL_STRENGTH = 0.25
+#: Frames fade out between the track's loud level minus GATE_RANGE_DB and GATE_FADE_DB above that, dB.
+GATE_RANGE_DB = 45.0
+GATE_FADE_DB = 10.0
+#: Gaps bridged while a note stays near the mode (vibrato), frames; and how near, cents.
+VIBRATO_GAP_FRAMES = 3
+VIBRATO_CENTS = 60.0
+#: Shortest hit drawn, frames.
+MIN_HIT_FRAMES = 6
+#: Frames over which a note's offset from a mode is averaged (about one vibrato cycle).
+VIBRATO_FRAMES = 7
+#: A re-played note: its energy on the mode rises by this within two frames, dB.
+ONSET_DB = 6.0
+#: Modes processed at once by :func:`mode_frames` (bounds its memory).
+MODE_GROUP = 6
 #: Modes holding less than this share of a passage's frames are not listed.
 MIN_MODE_SHARE = 0.05
 #: A track's score covers at least this fraction of its length.
 TRACK_COVER = 0.5
 
-APPROXIMATION = ("flame heights in the score use the steady-sine closed form on the "
-                 "per-frame pressure envelope")
+APPROXIMATION = ("the score is the share of time a note is held on a readable mode; "
+                 "flame contrast at the ceiling (steady-sine flame heights on the per-frame "
+                 "pressure envelope) is reported beside it")
+
+
+def tolerance_cents(table: ModeTable) -> np.ndarray:
+    """Per mode: how far a note may lie from it and count as on it, cents."""
+    return np.clip(np.asarray(table.half_width_cents, float), MIN_TOLERANCE_CENTS, MAX_TOLERANCE_CENTS)
+
+
+def loudness_gate(level_db: np.ndarray, sounding: np.ndarray | None = None) -> np.ndarray:
+    """0 to 1 per frame: the frame against the track's loud level (95th percentile of ``level_db``)."""
+    lv = np.asarray(level_db, dtype=float)
+    use = lv if sounding is None else lv[np.asarray(sounding, bool)]
+    if use.size == 0:
+        return np.zeros(lv.shape)
+    ref = float(np.percentile(use, 95))
+    return np.clip((lv - (ref - GATE_RANGE_DB)) / GATE_FADE_DB, 0.0, 1.0)
+
+
+def frame_gate(features: TrackFeatures, pressure_pa: np.ndarray | None = None) -> np.ndarray:
+    """The absolute-scale gate of every frame (0 to 1): band loudness and predicted hole pressure."""
+    sounding = features.sounding
+    gate = np.where(sounding, loudness_gate(features.level_db, sounding), 0.0)
+    if pressure_pa is not None and np.size(pressure_pa):
+        p = np.asarray(pressure_pa, dtype=float)
+        p = np.pad(p, (0, max(0, gate.size - p.size)))[:gate.size]
+        with np.errstate(divide="ignore"):
+            p_db = 20.0 * np.log10(np.maximum(p, 1e-12))
+        gate = gate * loudness_gate(p_db, sounding & (p > 0))
+    return gate
+
+
+def nearest_modes(freq_hz: np.ndarray, table: ModeTable, shift_cents: float = 0.0):
+    """Index of the nearest mode (-1 for none) and the offset from it in cents, after a shift."""
+    f = np.asarray(freq_hz, dtype=float)
+    ok = np.isfinite(f) & (f > 0)
+    if table.freq_hz.size == 0:
+        return np.full(f.shape, -1), np.full(f.shape, np.nan)
+    logf = np.where(ok, np.log2(np.where(ok, f, 1.0)) + shift_cents / 1200.0, 0.0)
+    logm = np.log2(table.freq_hz)
+    if logm.size == 1:
+        j = np.zeros(f.shape, dtype=int)
+    else:
+        j = np.clip(np.searchsorted(logm, logf), 1, logm.size - 1)
+        j = np.where(np.abs(logf - logm[j - 1]) < np.abs(logf - logm[j]), j - 1, j)
+    cents = 1200.0 * (logf - logm[j])
+    return np.where(ok, j, -1), np.where(ok, cents, np.nan)
 
 
 @dataclass
-class FrameScores:
-    """Per-frame terms of the score for a whole track (``F`` frames).
+class ModeFrames:
+    """The time x mode map of a track at one transposition (``M`` modes, ``F`` frames).
 
     Attributes
     ----------
-    on_share : ndarray (F,)
-        ``a(t)``, 0 to 1.
-    held : ndarray (F,) of bool
-        ``b(t)``.
-    mode : ndarray (F,) of int
-        Index in the :class:`ModeTable` of the mode hit in the frame (-1: none).
+    strength : ndarray (M, F), float32
+        Share of the band's sustained energy on each mode, gated (0 to 1).
+    hit : ndarray (M, F) of bool
+    held : ndarray (M, F) of bool
     """
 
-    on_share: np.ndarray
+    strength: np.ndarray
+    hit: np.ndarray
     held: np.ndarray
-    mode: np.ndarray
 
-    @property
-    def term(self) -> np.ndarray:
-        return self.on_share * self.held
+    def term(self, table: ModeTable) -> np.ndarray:
+        """``h(t)`` of the score, per frame (0 to 1)."""
+        if self.strength.shape[0] == 0:
+            return np.zeros(self.strength.shape[1])
+        w = np.where(self.held & np.asarray(table.readable)[:, None],
+                     np.minimum(1.0, self.strength / FULL_STRENGTH), 0.0)
+        return w.max(axis=0)
+
+    def mode_index(self, table: ModeTable) -> np.ndarray:
+        """Per frame, the readable mode held most strongly (-1: none)."""
+        if self.strength.shape[0] == 0:
+            return np.full(self.strength.shape[1], -1)
+        w = np.where(self.held & np.asarray(table.readable)[:, None], self.strength + 1e-6, 0.0)
+        k = np.argmax(w, axis=0)
+        return np.where(w.max(axis=0) > 0, k, -1)
 
 
 def hold_frames(table: ModeTable, frame_rate_hz: float) -> np.ndarray:
@@ -98,34 +180,128 @@ def run_position(labels: np.ndarray) -> np.ndarray:
     return np.arange(n) - starts
 
 
-def frame_scores(features: TrackFeatures, table: ModeTable, shift_cents: float = 0.0,
-                 hits: ModeHits | None = None) -> FrameScores:
-    """The on-mode share and the held flag of every frame.
+def _runs(on: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Per row of a boolean (M, F) array: run id (0 outside runs) and the start frame of each frame's run."""
+    m, f = on.shape
+    start = on & ~np.concatenate([np.zeros((m, 1), bool), on[:, :-1]], axis=1)
+    rid = np.cumsum(start.ravel()).reshape(m, f) * on
+    idx = np.where(start, np.arange(f)[None, :], 0)
+    first = np.maximum.accumulate(idx, axis=1)
+    return rid, first
+
+
+def _fill_gaps(on: np.ndarray, allowed: np.ndarray, longest: int) -> np.ndarray:
+    """Fill gaps of up to ``longest`` frames between two on-frames where ``allowed`` holds all along."""
+    out = on.copy()
+    f = on.shape[1]
+    if f < 3:
+        return out
+    # distance to the previous and next on-frame
+    idx = np.arange(f)[None, :]
+    last_on = np.maximum.accumulate(np.where(on, idx, -10 ** 9), axis=1)
+    next_on = np.flip(np.minimum.accumulate(np.flip(np.where(on, idx, 10 ** 9), axis=1), axis=1), axis=1)
+    gap = next_on - last_on - 1
+    inside = ~on & (last_on >= 0) & (next_on < f)
+    ok_gap = inside & (gap <= longest)
+    # the whole gap must be allowed: count not-allowed frames per gap via cumulative sums
+    bad = np.cumsum(~allowed, axis=1)
+    lo = np.clip(last_on, 0, f - 1)
+    hi = np.clip(next_on - 1, 0, f - 1)
+    bad_in = np.take_along_axis(bad, hi, axis=1) - np.take_along_axis(bad, lo, axis=1)
+    return out | (ok_gap & ((gap <= 1) | (bad_in == 0)))
+
+
+def mode_frames(features: TrackFeatures, table: ModeTable, gate: np.ndarray,
+                shift_cents: float = 0.0) -> ModeFrames:
+    """The map, hits and holds of every mode and frame, with every note moved by ``shift_cents``.
 
     Parameters
     ----------
     features : TrackFeatures
     table : ModeTable
+    gate : ndarray (F,)
+        :func:`frame_gate`.
     shift_cents : float
-        Transposition applied to the pitches, cents.
-    hits : ModeHits, optional
-        Precomputed :func:`map_to_modes` of ``features.peak_hz`` at ``shift_cents``.
+        Transposition applied to the notes, cents.
     """
-    hits = hits or map_to_modes(features.peak_hz, table, shift_cents)
-    energy = features.energy
-    sounding = features.sounding
-    part = features.peak_energy * features.peak_harmonic * hits.weight  # (F, K)
-    safe = np.where(energy > 0, energy, 1.0)
-    on = np.where(sounding, np.minimum(1.0, part.sum(axis=1) / safe), 0.0)
-    best = np.argmax(part, axis=1)
-    rows = np.arange(part.shape[0])
-    strongest = part[rows, best]
-    mode = hits.index[rows, best] if part.shape[0] else np.zeros(0, dtype=int)
-    is_hit = sounding & (hits.weight[rows, best] >= HIT_WEIGHT) & (strongest >= HIT_SHARE * safe)
-    mode = np.where(is_hit, mode, -1)
-    need = hold_frames(table, features.frame_rate_hz)
-    held = (mode >= 0) & (run_position(mode) >= need[np.maximum(mode, 0)])
-    return FrameScores(on_share=on, held=held, mode=mode)
+    frames = features.frames
+    modes = table.freq_hz.size
+    if modes == 0 or frames == 0:
+        z = np.zeros((modes, frames))
+        return ModeFrames(z.astype(np.float32), z.astype(bool), z.astype(bool))
+    j, cents = nearest_modes(features.notes_hz, table, shift_cents)
+    tol = tolerance_cents(table)
+    jj = np.maximum(j, 0)
+    sustained = (features.notes_tonal >= MIN_TONAL) & (features.notes_energy > 0)
+    absc = np.abs(np.nan_to_num(cents, nan=1e9))
+    near = (j >= 0) & sustained & (absc <= VIBRATO_CENTS)
+    safe = np.where(features.energy > 0, features.energy, 1.0)
+    share = np.where(near, features.notes_energy * features.notes_tonal / safe[:, None], 0.0)
+    rows = np.broadcast_to(np.arange(frames)[:, None], j.shape)
+    need_all = hold_frames(table, features.frame_rate_hz)
+    out_strength = np.zeros((modes, frames), dtype=np.float32)
+    out_hit = np.zeros((modes, frames), dtype=bool)
+    out_held = np.zeros((modes, frames), dtype=bool)
+    # the modes are independent rows: a few at a time keeps memory bounded for long tracks
+    for g0 in range(0, modes, MODE_GROUP):
+        g1 = min(modes, g0 + MODE_GROUP)
+        sel = near & (jj >= g0) & (jj < g1)
+        if not sel.any():
+            continue
+        st, ht, hd = _mode_rows(jj[sel] - g0, rows[sel], cents[sel], absc[sel], share[sel], g1 - g0,
+                                frames, tol[g0:g1], need_all[g0:g1], safe, gate)
+        out_strength[g0:g1], out_hit[g0:g1], out_held[g0:g1] = st, ht, hd
+    return ModeFrames(out_strength, out_hit, out_held)
+
+
+def _mode_rows(jn, fn, cents, absc, share, modes, frames, tol, need, safe, gate):
+    """Strength, hit and held of ``modes`` rows from the notes near them (``jn`` row, ``fn`` frame)."""
+    raw = np.zeros((modes, frames))
+    np.add.at(raw, (jn, fn), share)
+    # the pitch of the note near each mode, averaged over a vibrato cycle (time inside the band)
+    offset = np.full((modes, frames), np.inf, dtype=np.float32)
+    np.minimum.at(offset, (jn, fn), absc)
+    signed = np.zeros((modes, frames), dtype=np.float32)
+    signed[jn, fn] = cents
+    close = np.isfinite(offset)
+    from scipy.ndimage import uniform_filter1d
+
+    num = uniform_filter1d(signed, VIBRATO_FRAMES, axis=1, mode="constant")
+    den = uniform_filter1d(close.astype(np.float32), VIBRATO_FRAMES, axis=1, mode="constant")
+    mean_offset = np.abs(num / np.maximum(den, 1e-9))
+    del num, den, signed
+    inside = close & ((offset <= tol[:, None]) | (mean_offset <= tol[:, None]))
+    del offset, mean_offset
+    strength = np.where(inside, np.minimum(1.0, raw), 0.0) * gate[None, :]
+    # hysteresis: start at HIT_ON, go on while above HIT_OFF
+    above_on = strength >= HIT_ON
+    above_off = strength >= HIT_OFF
+    rid, _ = _runs(above_off)
+    has_on = np.zeros(rid.max() + 1, dtype=bool)
+    has_on[rid[above_on]] = True
+    has_on[0] = False
+    hit = has_on[rid]
+    bridged = _fill_gaps(hit, close, VIBRATO_GAP_FRAMES)
+    # runs shorter than MIN_HIT_FRAMES are not drawn (a note is steady; noise is not)
+    rid, _ = _runs(bridged)
+    length = np.bincount(rid.ravel(), minlength=int(rid.max()) + 1)
+    bridged &= length[rid] >= MIN_HIT_FRAMES
+    hit &= bridged
+    # a re-played note starts a new hit: its energy on the mode jumps within two frames
+    with np.errstate(divide="ignore"):
+        level = 10.0 * np.log10(np.maximum(raw * safe[None, :], 1e-12))
+    before = np.minimum(np.concatenate([np.full((modes, 1), -120.0), level[:, :-1]], axis=1),
+                        np.concatenate([np.full((modes, 2), -120.0), level[:, :-2]], axis=1))
+    onset = (level - before >= ONSET_DB) & hit
+    onset[:, 1:] &= ~onset[:, :-1]  # one onset per rise
+    # run position counted in hit frames since the run's start or the last onset inside it
+    _, first = _runs(bridged)
+    mark = bridged & (onset | (np.arange(frames)[None, :] == first))
+    seg = np.cumsum(mark.ravel()).reshape(modes, frames) * bridged
+    # a segment is held, from its start, once its frames inside the band reach the ring-up time
+    inband = np.bincount(seg.ravel(), weights=hit.ravel(), minlength=int(seg.max()) + 1)
+    held = bridged & (seg > 0) & (inband[seg] >= need[:, None])
+    return strength.astype(np.float32), bridged, held
 
 
 def reference_contrast(reserve: float) -> float:
@@ -143,7 +319,7 @@ class PassageLevel:
     contrast : ndarray (frames,)
         Row contrast per frame at the ceiling (0 to 1).
     factor : ndarray (frames,)
-        ``c(t)``: contrast over :func:`reference_contrast`, capped at 1.
+        Contrast over :func:`reference_contrast`, capped at 1.
     """
 
     ceiling: ceil_rule.Ceiling
@@ -185,27 +361,25 @@ def passage_level(envelope_pa: np.ndarray, peak: float, static_pa: float, reserv
     return PassageLevel(result, contrast, factor)
 
 
-def passage_score(scores: FrameScores, factor: np.ndarray, first: int, last: int) -> float:
-    """``100 * mean(a b c)`` over frames ``first`` to ``last - 1`` (0 for an empty passage)."""
+def passage_score(term: np.ndarray, first: int, last: int) -> float:
+    """``100 * mean(h)`` over frames ``first`` to ``last - 1`` (0 for an empty passage)."""
     if last <= first:
         return 0.0
-    term = scores.term[first:last]
-    c = factor[:term.size]
-    if c.size < term.size:
-        c = np.concatenate([c, np.zeros(term.size - c.size)])
-    return float(100.0 * np.mean(term * c))
+    return float(100.0 * np.mean(term[first:last]))
 
 
-def mode_shares(scores: FrameScores, table: ModeTable, first: int, last: int) -> list[tuple[int, float]]:
-    """Modes hit in frames ``first`` to ``last - 1``: ``[(n, time share), ...]``, most time first."""
-    m = scores.mode[first:last]
-    m = m[m >= 0]
-    if last <= first or m.size == 0:
+def mode_shares(mf: ModeFrames, table: ModeTable, first: int, last: int) -> list[tuple[int, float]]:
+    """Readable modes held in frames ``first`` to ``last - 1``: ``[(n, time share), ...]``, most first.
+
+    Every mode held in at least :data:`MIN_MODE_SHARE` of the frames is
+    listed (several modes may be held in the same frame).
+    """
+    if last <= first or mf.held.shape[0] == 0:
         return []
-    idx, counts = np.unique(m, return_counts=True)
-    share = counts / float(last - first)
-    order = np.argsort(-counts, kind="stable")
-    return [(int(table.n[idx[k]]), float(share[k])) for k in order if share[k] >= MIN_MODE_SHARE]
+    held = mf.held[:, first:last] & np.asarray(table.readable)[:, None]
+    share = held.mean(axis=1)
+    order = np.argsort(-share, kind="stable")
+    return [(int(table.n[k]), float(share[k])) for k in order if share[k] >= MIN_MODE_SHARE]
 
 
 def track_score(passage_scores: list[float], lengths_s: list[float]) -> float:

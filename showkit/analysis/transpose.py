@@ -1,12 +1,18 @@
-"""Which transposition would lay a track's pitches better on the tube's modes.
+"""Which transposition would lay a track's notes better on the tube's modes.
 
-Shifts from -3 to +3 semitones in 25-cent steps are tried on the analysed
-pitches (the peak frequencies are multiplied by ``2^(s/1200)`` and mapped to
-the modes again): nothing is re-synthesised to score them.  The flame-contrast
-term of each passage is kept from the unshifted track (a transposition
-hardly moves the drive ceiling of a passage whose level is set by its loudest
-frames; stated in the README).  The best shift is suggested only when it
-beats the track as it is by :data:`MIN_GAIN` points.
+The search runs on the detected notes, with cents resolution, without
+re-synthesising anything:
+
+1. every sustained note found in a sounding frame is weighted by how much of
+   the band it carries (as in the score: fully from a quarter) and placed on
+   a 1-cent grid; the histogram is correlated with the readable modes'
+   tolerance windows (:func:`showkit.analysis.score.tolerance_cents`) for
+   every shift from -300 to +300 cents, which says how much note-time each
+   shift would put on modes;
+2. the best few shifts of that curve (at least :data:`SEPARATION_CENTS` apart)
+   are scored in full -- map, hits, holds, passages, track score, exactly as
+   the scan scores the track as it is -- and the best is suggested when it
+   beats the track as it is by :data:`MIN_GAIN` points.
 
 A preview of the shifted best passage is rendered with librosa's pitch
 shifter (phase-vocoder time stretch and resampling, ``librosa.effects.pitch_shift``;
@@ -16,49 +22,88 @@ Laroche & Dolson, IEEE Trans. Speech Audio Proc. 7(3), 1999).
 from __future__ import annotations
 
 from pathlib import Path
+from collections.abc import Callable
 
 import numpy as np
 
 from showkit.analysis.features import TrackFeatures
 from showkit.analysis.pitches import ModeTable
-from showkit.analysis.score import frame_scores, passage_score, track_score
 
-#: Largest shift tried, semitones.
-RANGE_SEMITONES = 3.0
-#: Step between shifts tried, cents.
-STEP_CENTS = 25.0
+#: Largest shift searched, cents.
+RANGE_CENTS = 300
+#: Shifts scored in full.
+CANDIDATES = 5
+#: Candidates at least this far apart, cents.
+SEPARATION_CENTS = 30
 #: Points a shift must gain over the track as it is to be suggested.
 MIN_GAIN = 2.0
 
 
-def shift_grid() -> np.ndarray:
-    """Shifts tried, cents, smallest first (so that ties go to the smaller shift)."""
-    n = int(round(RANGE_SEMITONES * 100.0 / STEP_CENTS))
-    grid = np.arange(-n, n + 1) * STEP_CENTS
-    return grid[np.argsort(np.abs(grid), kind="stable")]
+def shift_curve(features: TrackFeatures, table: ModeTable, gate: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """``(shifts_cents, note_time_on_modes)`` for every whole-cent shift within +-RANGE_CENTS."""
+    from showkit.analysis import score as sc
+
+    shifts = np.arange(-RANGE_CENTS, RANGE_CENTS + 1)
+    readable = np.asarray(table.readable, bool)
+    if not readable.any() or features.frames == 0:
+        return shifts, np.zeros(shifts.size)
+    f = features.notes_hz.astype(float)
+    safe = np.where(features.energy > 0, features.energy, 1.0)
+    share = features.notes_energy * features.notes_tonal / safe[:, None]
+    ok = (np.isfinite(f) & (features.notes_tonal >= sc.MIN_TONAL) & (share >= sc.HIT_ON)
+          & (gate[:, None] > 0))
+    if not ok.any():
+        return shifts, np.zeros(shifts.size)
+    w = (np.minimum(1.0, share / sc.FULL_STRENGTH) * gate[:, None])[ok]
+    base = 1200.0 * np.log2(np.min(table.freq_hz)) - 2 * RANGE_CENTS - 100
+    pos = np.rint(1200.0 * np.log2(f[ok]) - base).astype(int)
+    size = int(np.ceil(1200.0 * np.log2(np.max(table.freq_hz)) - base)) + 2 * RANGE_CENTS + 200
+    keep = (pos >= 0) & (pos < size)
+    hist = np.bincount(pos[keep], weights=w[keep], minlength=size)
+    comb = np.zeros(size)
+    tol = sc.tolerance_cents(table)
+    for fm, t in zip(table.freq_hz[readable], tol[readable]):
+        c = 1200.0 * np.log2(fm) - base
+        comb[int(np.ceil(c - t)):int(np.floor(c + t)) + 1] = 1.0
+    # value(s) = sum_c hist[c] comb[c + s]
+    full = np.correlate(comb, hist, mode="full")  # index k <-> shift k - (size - 1)
+    value = full[(size - 1) - RANGE_CENTS:(size - 1) + RANGE_CENTS + 1]
+    return shifts, value
 
 
-def shifted_scores(features: TrackFeatures, table: ModeTable, spans: list[tuple[int, int]],
-                   factors: list[np.ndarray], lengths_s: list[float]) -> dict[float, float]:
-    """Track score at every shift of :func:`shift_grid` (cents -> score).
-
-    Parameters
-    ----------
-    features : TrackFeatures
-    table : ModeTable
-    spans : list of (int, int)
-        Each passage's frames ``first, last``.
-    factors : list of ndarray
-        Each passage's contrast term ``c(t)`` (from the unshifted track).
-    lengths_s : list of float
-        Passage lengths, s.
-    """
-    out = {}
-    for shift in shift_grid():
-        fs = frame_scores(features, table, float(shift))
-        scores = [passage_score(fs, c, a, b) for (a, b), c in zip(spans, factors)]
-        out[float(shift)] = track_score(scores, lengths_s)
+def candidates(shifts: np.ndarray, value: np.ndarray, count: int = CANDIDATES) -> list[float]:
+    """The best shifts of the curve, at least :data:`SEPARATION_CENTS` apart (smaller shift on ties)."""
+    order = np.lexsort((np.abs(shifts), -value))
+    out: list[float] = []
+    for k in order:
+        if value[k] <= 0 or len(out) >= count:
+            break
+        if all(abs(shifts[k] - s) >= SEPARATION_CENTS for s in out):
+            # the middle of the plateau around the peak: every shift there lays the notes as well
+            top = value >= value[k] * (1.0 - 1e-6)
+            lo = k
+            while lo > 0 and top[lo - 1]:
+                lo -= 1
+            hi = k
+            while hi < value.size - 1 and top[hi + 1]:
+                hi += 1
+            out.append(float(shifts[(lo + hi) // 2]))
     return out
+
+
+def search(features: TrackFeatures, table: ModeTable, gate: np.ndarray,
+           score_at: Callable[[float], float]) -> tuple[float, float, dict]:
+    """``(shift_cents, score, scored)``: the suggestion (0 unless it gains :data:`MIN_GAIN`).
+
+    ``score_at(shift_cents)`` is the track score with every note moved by that
+    shift; ``scored`` maps every shift scored to its score.
+    """
+    shifts, value = shift_curve(features, table, gate)
+    scored = {0.0: float(score_at(0.0))}
+    for s in candidates(shifts, value):
+        if s != 0.0:
+            scored[s] = float(score_at(s))
+    return (*best_shift(scored), scored)
 
 
 def best_shift(scores_by_shift: dict[float, float]) -> tuple[float, float]:

@@ -1,10 +1,11 @@
 """Rank tracks and their passages by how well they read in the flames of this tube.
 
 Each track is cut into passages where the music changes character; each
-passage gets a 0-100 readability score (sustained energy on modes whose
-pattern the holes resolve, held long enough, at the flame contrast the safe
-ceiling allows), the modes it hits (mode number, note, share of the time),
-its ceiling and the contrast at it.  A transposition within +-3 semitones that
+passage gets a 0-100 readability score (the share of its time during which a
+note is held on a mode whose pattern the holes resolve), the modes held
+(mode number, note, share of the time), its ceiling and the flame contrast at
+it, reported beside the score.  ``--map`` writes the time x mode map of one
+track as JSON.  A transposition within +-3 semitones that
 would lay the track better on the modes is suggested with the score it would
 reach.  Folders are searched recursively; results are cached; a file that
 cannot be read is reported in its row and the scan goes on.
@@ -19,6 +20,7 @@ import sys
 
 from showkit.cli.common import (add_conditions_options, add_json_option, add_rig_option,
                                 level_caution, print_json, table)
+from showkit.printable import printable
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -37,6 +39,9 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--plot", metavar="FILE.png",
                         help="also draw each track's time x mode map with its passages and scores "
                              "(PNG, 1000 px wide, 300 px tall per track, at least 600)")
+    parser.add_argument("--map", metavar="FILE.json",
+                        help="write the time x mode map of the (one) track as JSON: per frame and mode "
+                             "the strength (0-1) and whether the mode is hit, and every note found")
 
 
 class _Bar:
@@ -109,7 +114,7 @@ def _print_table(tracks: list[dict]) -> None:
         print(f"{printable(t['path'])}  (score {t['score']:.0f}{', cached' if t.get('cached') else ''})")
         prow = [[f"{_fmt(p['start_s'])}-{_fmt(p['end_s'])}", f"{p['score']:.0f}", _modes_text(p),
                  f"{p['ceiling_db']:+.1f}", f"{100 * p['contrast']:.1f}"] for p in t["passages"]]
-        print(table(prow, ["passage", "score", "modes hit (time share)", "ceiling dB", "contrast %"],
+        print(table(prow, ["passage", "score", "modes held (time share)", "ceiling dB", "contrast %"],
                     "<><>>"))
 
 
@@ -156,10 +161,29 @@ def _previews(tracks: list[dict], semitones: float, protect=()) -> None:
             print(f"showkit: preview of {t['path']} skipped: {exc.line()}", file=sys.stderr)
 
 
+def _write_map(rig, track: dict, target: str, protect=()) -> None:
+    """Write the track's time x mode map (:func:`showkit.analysis.scan.map_data`) through the safe writer."""
+    import json
+    from pathlib import Path
+
+    from showkit.analysis.scan import track_frames
+    from showkit.safesave import write_text
+
+    data = track_frames(rig, track["path"])["map"]
+    data = {"track": track["path"], **data}
+    write_text(Path(target), json.dumps(data, separators=(",", ":")) + "\n", backups=0, protect=protect,
+               what="scan map")
+    print(f"map: {printable(target)}", file=sys.stderr)
+
+
 def run(args) -> int:
-    from showkit.analysis.scan import scan_paths
+    from showkit.analysis.scan import expand_paths, scan_paths
     from showkit.cli.common import load_rig_from_args
     from showkit.errors import InputError
+
+    if args.map is not None and len(expand_paths(args.paths)) != 1:
+        raise InputError("--map writes the map of one track", " ".join(args.paths),
+                         "give one audio file with --map")
 
     if args.jobs is not None and args.jobs < 1:
         raise InputError(f"--jobs must be 1 or more (got {args.jobs})", "--jobs", "give a number of workers, e.g. --jobs 2")
@@ -189,8 +213,9 @@ def run(args) -> int:
     else:
         _print_table(tracks)
         print(f"\nOn {rig.name}, static {rig.static_pa:.2f} Pa, reserve {rig.reserve:g}; "
-              "ceilings in dB applied to the file as recorded; scores use the steady-sine flame "
-              "heights on the per-frame pressure envelope.")
+              "ceilings in dB applied to the file as recorded; a score is the share of time a note "
+              "is held on a readable mode; contrast uses the steady-sine flame heights on the "
+              "per-frame pressure envelope.")
         print(f"Ceilings rest on: {rig.drive.describe()}.")
     protect = [(t["path"], "a scanned track") for t in tracks] + [(p, "a scanned path") for p in args.paths]
     if args.csv:
@@ -201,4 +226,6 @@ def run(args) -> int:
         from showkit.export.figures import plot_scan
 
         print(f"wrote {plot_scan(rig, tracks, args.plot)}", file=sys.stderr)
+    if args.map is not None and tracks[0]["error"] is None:
+        _write_map(rig, tracks[0], args.map, protect)
     return 0 if any(t["error"] is None for t in tracks) else 2

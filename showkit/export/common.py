@@ -7,7 +7,6 @@ draws a map reads only that form.
 
 from __future__ import annotations
 
-import re
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -19,7 +18,6 @@ from showkit.errors import InputError
 PAPER_IN = {"a4": (210 / 25.4, 297 / 25.4), "letter": (8.5, 11.0)}
 
 #: A mode counts as hit in a map frame when its strength is at least this (0-1 of the strongest).
-HIT_STRENGTH = 0.05
 
 
 class _Plotting:
@@ -134,29 +132,24 @@ class ModeMap:
                        [x for x, k in zip(self.notes_hz, keep) if k], self.score)
 
 
-_HZ = re.compile(r"(\d+(?:\.\d+)?) Hz")
 
 
 def mode_map(rig, path, max_rows: int = 10) -> ModeMap:
     """The time x mode map of a track: THE adapter from the scan to :class:`ModeMap`.
 
-    Today it reads :func:`showkit.analysis.scan.track_frames` (rows of scored
-    on-mode energy, per-frame note text) and normalises the energy to the
-    strongest cell; when the scan gives the map in this form itself, only this
-    function changes.
+    Reads :func:`showkit.analysis.scan.track_frames` (the map that ``scan --map``
+    writes and the Track view draws) and keeps at most ``max_rows`` modes, those
+    held longest (all the modes hit, when fewer).
     """
-    from showkit.analysis.scan import mode_table, track_frames
+    from showkit.analysis.scan import track_frames
 
-    frames = track_frames(rig, path, 0.0, max_rows)
-    table = mode_table(rig)
-    energy = np.asarray(frames["map_energy"], dtype=float).reshape(len(frames["map_modes"]), -1)
-    top = float(energy.max()) if energy.size else 0.0
-    strength = energy / top if top > 0 else np.zeros_like(energy)
-    modes = []
-    for n in frames["map_modes"]:
-        i = int(np.nonzero(table.n == n)[0][0])
-        modes.append({"n": int(n), "frequency_hz": float(table.freq_hz[i]), "note": table.notes[i]})
-    times = np.asarray(frames["times_s"], dtype=float)
-    hop = float(times[1] - times[0]) if times.size > 1 else 0.0
-    notes_hz = [[float(v) for v in _HZ.findall(text)] for text in frames["notes"]]
-    return ModeMap(hop, times, modes, strength, strength >= HIT_STRENGTH, notes_hz, frames["score"])
+    frames = track_frames(rig, path)
+    data = frames["map"]
+    strength = np.asarray(data["strength"], dtype=float).reshape(len(data["modes"]), -1)
+    hit = np.asarray(data["hit"], dtype=bool).reshape(strength.shape)
+    keep = np.argsort(-hit.sum(axis=1), kind="stable")[:max_rows]
+    keep = np.sort(keep)
+    times = np.asarray(data["times_s"], dtype=float)
+    modes = [data["modes"][int(i)] for i in keep]
+    return ModeMap(float(data["hop_s"]), times, modes, strength[keep], hit[keep],
+                   [list(row) for row in data["notes_hz"]], frames["score"])

@@ -39,8 +39,11 @@ class TrackAnalysis:
 
     ``height``/``air_in`` are the flame frames (frames x holes) of the whole
     track at its ceiling (:func:`showkit.analysis.pressure.passage_report`);
-    ``map_energy`` (modes x map frames) says how strongly each mode in
-    ``map_modes`` is driven; ``passages`` are the scan's, best first.
+    ``map_energy`` (modes x map frames) is the scan's map for the modes in
+    ``map_modes``: each mode's strength (0 to 1, the share of the band's
+    sustained sound on it) where the mode is hit, 0 elsewhere
+    (:func:`showkit.analysis.scan.map_data`, the same data as ``scan --map``);
+    ``passages`` are the scan's, best first.
     """
 
     path: Path
@@ -194,10 +197,27 @@ MAP_ROWS = 10
 
 
 def _track_frames(rig, path, shift_cents: float) -> dict:
-    """The time x mode map and the score at a transposition (the scan's own analysis)."""
+    """The time x mode map and the score at a transposition (the scan's own analysis).
+
+    The rows drawn are the modes hit most (at most :data:`MAP_ROWS`), in
+    frequency order; each row is the map's strength where the mode is hit.
+    """
+    import numpy as np
+
     from showkit.analysis.scan import track_frames
 
-    return track_frames(rig, path, shift_cents, MAP_ROWS)
+    got = track_frames(rig, path, shift_cents)
+    m = got["map"]
+    strength = np.asarray(m["strength"], dtype=float).reshape(len(m["modes"]), -1)
+    hit = np.asarray(m["hit"], dtype=bool).reshape(strength.shape)
+    drawn = np.where(hit, strength, 0.0)
+    count = hit.sum(axis=1)
+    rows = np.nonzero(count > 0)[0]
+    if rows.size > MAP_ROWS:
+        rows = np.sort(rows[np.argsort(-count[rows], kind="stable")[:MAP_ROWS]])
+    return {"score": got["score"], "map_modes": [int(m["modes"][k]["n"]) for k in rows],
+            "map_energy": drawn[rows], "times_s": np.asarray(m["times_s"], dtype=float),
+            "notes": got["notes"]}
 
 
 def _scan(rig, path, transpose: int) -> dict:

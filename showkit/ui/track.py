@@ -65,7 +65,9 @@ class TrackMap(Widget, can_focus=True):
         out = Text()
         if a is None:  # the title above already says "No track open yet"
             return out
-        lines = mode_map(a.map_energy, a.map_times_s, a.duration_s, width, self.cursor_s) if a.map_modes else []
+        # the map's strength is absolute (0 to 1): drawn from 1 % to all of the band's sound
+        lines = (mode_map(a.map_energy, a.map_times_s, a.duration_s, width, self.cursor_s, lo=0.01, hi=1.0)
+                 if a.map_modes else [])
         shown = set(self.shown_modes()) if a.map_modes else set()
         count = len(a.map_modes)
         for i, (n, line) in enumerate(zip(reversed(a.map_modes), lines)):

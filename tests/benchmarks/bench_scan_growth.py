@@ -1,0 +1,132 @@
+"""How the scan grows with the track's length, and a folder scan with 1 and 2 workers.
+
+Run by hand: ``python tests/benchmarks/bench_scan_growth.py [--sizes 0.5 4 15 60] [--folder-only]``.
+
+Inputs are musical: the real-music set of ``tests/realmusic.py`` (public-domain
+scores from music21's corpus played by fluidsynth with the FluidR3 GM
+soundfont), its tracks concatenated in turn until the wanted length, written
+as 22.05-kHz mono FLAC.
+
+Per length, one fresh Python process scans the file (``scan_paths``, no cache,
+as ``showkit scan --jobs 1 --no-cache FILE`` does: one core) and reports its own wall time and peak resident
+memory (``resource.getrusage(RUSAGE_SELF).ru_maxrss``, which includes the
+interpreter and libraries: the baseline "0 min" row is an import-only process
+of the same kind).  Issue 12's targets: linear in the length; peak under
+500 MB for a 60-minute file; a folder scan with two workers >= 1.8x one on an
+idle machine.  The load average is printed beside the timings because other
+work on the machine slows the two-worker run most.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+HERE = Path(__file__).resolve()
+REPO = HERE.parents[2]
+
+CHILD = r"""
+import json, os, resource, sys, time
+t0 = time.perf_counter()
+from showkit.analysis import scan as scan_mod
+from showkit.rigfile import load_rig
+rig = load_rig()
+scan_mod.mode_table(rig)
+from showkit.analysis.pressure import hole_filters
+hole_filters(rig)
+ready = time.perf_counter()
+path = sys.argv[1]
+jobs = int(sys.argv[2])
+if path != "-":
+    out = scan_mod.scan_paths(rig, [path], jobs=jobs, use_cache=False)
+    assert out[0]["error"] is None, out[0]["error"]
+done = time.perf_counter()
+print(json.dumps({"scan_s": done - ready, "import_s": ready - t0,
+                  "peak_mb": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0}))
+"""
+
+
+def child(path: str, jobs: int = 1) -> dict:
+    env = dict(os.environ, PYTHONPATH=os.environ.get("PYTHONPATH") or str(REPO))
+    r = subprocess.run([sys.executable, "-c", CHILD, path, str(jobs)], capture_output=True, text=True,
+                       env=env, check=False)
+    if r.returncode:
+        raise SystemExit(f"scan of {path} failed:\n{r.stderr[-2000:]}")
+    return json.loads(r.stdout.strip().splitlines()[-1])
+
+
+def musical(corpus, minutes: float, path: Path) -> Path:
+    """The set's tracks (not the medley) played one after another until ``minutes`` are filled."""
+    import numpy as np
+    import realmusic as rm
+    import soundfile as sf
+
+    names = [n for n in corpus.tracks if n != "medley" and "_level" not in n]
+    need = int(minutes * 60 * rm.RATE_HZ)
+    parts, have, k = [], 0, 0
+    while have < need:
+        x, _ = sf.read(str(corpus[names[k % len(names)]].path), dtype="float32")
+        parts.append(x[:need - have])
+        have += parts[-1].size
+        k += 1
+    sf.write(str(path), np.concatenate(parts), rm.RATE_HZ, format="FLAC", subtype="PCM_16")
+    return path
+
+
+def main() -> int:
+    sys.path.insert(0, str(HERE.parents[1]))
+    ap = argparse.ArgumentParser()
+    ap.add_argument("--sizes", type=float, nargs="*", default=[0.5, 4.0, 15.0, 60.0])
+    ap.add_argument("--corpus", default=os.path.join(tempfile.gettempdir(), "showkit-realmusic"))
+    ap.add_argument("--folder-only", action="store_true")
+    args = ap.parse_args()
+    import realmusic as rm
+
+    tmp = Path(tempfile.mkdtemp(prefix="showkit-growth-"))
+    os.environ["SHOWKIT_CACHE_DIR"] = str(tmp / "cache")
+    corpus = rm.build(args.corpus)
+    if not args.folder_only:
+        base = child("-")
+        print(f"process with showkit imported, rig ready: {base['peak_mb']:.0f} MB peak, "
+              f"{base['import_s']:.1f} s")
+        print(f"{'minutes':>8s} {'scan s':>8s} {'s/min':>7s} {'peak MB':>8s}  (one process per size, "
+              f"scan_paths as 'showkit scan --jobs 1 --no-cache')   load avg")
+        for minutes in args.sizes:
+            path = musical(corpus, minutes, tmp / f"m{minutes:g}.flac")
+            r = child(str(path), jobs=1)
+            print(f"{minutes:8g} {r['scan_s']:8.1f} {r['scan_s'] / minutes:7.2f} {r['peak_mb']:8.0f}"
+                  f"   {os.getloadavg()[0]:.1f}", flush=True)
+            path.unlink()
+    # folder: the set's 13 short tracks four times over (52 files, 20-30 s each)
+    folder = tmp / "folder"
+    folder.mkdir()
+    names = [n for n in corpus.tracks if n != "medley"]
+    for rep in range(4):
+        for n in names:
+            os.symlink(corpus[n].path, folder / f"{rep}_{n}.wav")
+    times = {}
+    from showkit.analysis import scan as scan_mod
+    from showkit.rigfile import load_rig
+
+    rig = load_rig()
+    scan_mod.scan_track(rig, corpus["drums"].path)  # warm this process
+    for jobs in (1, 2):
+        load = os.getloadavg()[0]
+        t = time.perf_counter()
+        out = scan_mod.scan_paths(rig, [folder], jobs=jobs, use_cache=False)
+        times[jobs] = time.perf_counter() - t
+        assert len(out) == 4 * len(names) and all(o["error"] is None for o in out)
+        print(f"folder of {len(out)} tracks, {jobs} worker(s): {times[jobs]:.1f} s "
+              f"(load average before {load:.1f} on {os.cpu_count()} cores)", flush=True)
+    print(f"two workers vs one: {times[1] / times[2]:.2f}x (target >= 1.8x on an idle machine)")
+    return 0
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())
