@@ -70,8 +70,11 @@ def test_an_unsteady_sine_is_refused():
 
 
 def test_measure_level_from_files_reads_six_pascals_with_silence(tmp_path, capsys):
+    from showkit.rigfile import load_rig
+
     rec_path, cal_path = tmp_path / "rec.wav", tmp_path / "cal.wav"
-    sf.write(rec_path, _sine(120.0, 6.0 * SENSITIVITY, 10.0, silence_s=5.0).astype(np.float32), RATE,
+    freq_hz = load_rig().drive.reference_frequency_hz  # the demo rig's calibration sine
+    sf.write(rec_path, _sine(freq_hz, 6.0 * SENSITIVITY, 10.0, silence_s=5.0).astype(np.float32), RATE,
              subtype="FLOAT")
     sf.write(cal_path, CAL.astype(np.float32), RATE, subtype="FLOAT")
     assert main(["measure", "level", "--recording", str(rec_path), "--calibrator", str(cal_path),
