@@ -56,10 +56,8 @@ MIN_HOLD_S = 0.2
 #: margin lets notes just off the mode in (precision 0.68 at +1, 0.64 at +3; recall 0.68 at both).
 MIN_TOLERANCE_CENTS = 11.0
 MAX_TOLERANCE_CENTS = 16.0
-#: A note whose fundamental is less sustained than this (harmonic mask) is not drawn.  Measured on the
-#: rendered scores of tests/realmusic.py (pooled mode-hit F1; the drum kit's modes per frame):
-#: 0.5 -> 0.678, 0.03; 0.4 -> 0.683, 0.04; 0.3 -> 0.685, 0.05; 0.2 -> 0.689, 0.08 (the drums draw).
-MIN_TONAL = 0.4
+#: A note whose fundamental is less sustained than this (harmonic mask) is not drawn.
+MIN_TONAL = 0.5
 #: Strength at which a hit starts, and below which it ends.
 HIT_ON = 0.02
 HIT_OFF = 0.01
