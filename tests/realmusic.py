@@ -57,7 +57,7 @@ RATE_HZ = 22050
 #: General MIDI soundfont of Debian's fluid-soundfont-gm package.
 SOUNDFONT = Path("/usr/share/sounds/sf2/FluidR3_GM.sf2")
 #: Bumped whenever the corpus changes (invalidates caches).
-VERSION = 12
+VERSION = 13
 #: Peak level of every rendered track, full scale.
 PEAK = 0.7
 #: Gain of the level-changed copy, dB.
@@ -369,7 +369,7 @@ temperature = "20 C"
 static_pressure = "20 Pa"
 
 [drive]
-reference_frequency = "120 Hz"
+reference_frequency = "{reference_hz:.1f} Hz"
 reference_level = -20
 reference_pressure = "6 Pa"
 speaker_resonance = "55 Hz"
@@ -384,7 +384,9 @@ def _modes_for(length_m: float):
     from showkit.physics.modes import find_modes
     from showkit.rigfile import parse_rig
 
-    rig = parse_rig(RIG_TEMPLATE.format(length_mm=length_m * 1000.0))
+    # the calibration frequency is chosen once the length is (see solve_rig)
+    rig = parse_rig(RIG_TEMPLATE.format(length_mm=length_m * 1000.0, reference_hz=120.0),
+                    check_calibration=False)
     return find_modes(rig.model, 1400.0)
 
 
@@ -447,8 +449,20 @@ def solve_rig(folder: Path, pieces: dict, tuning: dict) -> Path:
         if exact > best_exact:
             best_exact, best_len = exact, float(lengths[i])
     path = folder / "realmusic_rig.toml"
-    path.write_text(RIG_TEMPLATE.format(length_mm=best_len * 1000.0), encoding="utf-8")
+    path.write_text(RIG_TEMPLATE.format(length_mm=best_len * 1000.0, reference_hz=_calibration_hz(best_len)),
+                    encoding="utf-8")
     return path
+
+
+def _calibration_hz(length_m: float) -> float:
+    """A calibration frequency the tube's possible losses cannot move (showkit's own choice)."""
+    from showkit.physics.family import suggest_reference
+    from showkit.rigfile import parse_rig
+
+    rig = parse_rig(RIG_TEMPLATE.format(length_mm=length_m * 1000.0, reference_hz=120.0),
+                    check_calibration=False)
+    # rounded as written in the file, to 0.1 Hz, inside the accepted window
+    return round(float(suggest_reference(rig.loss_family)), 1)
 
 
 # ----------------------------------------------------------------------------- ground truth
