@@ -11,10 +11,17 @@ an App-level priority binding, so it works in every view and every dialog; Esc
 panics in every view (in a dialog Esc closes the dialog).  Both call the live
 engine's ``panic()`` before anything else, and the panic is written to the show
 log.  No key that panics does anything else anywhere in the UI.
+
+Each view is imported, built and mounted when it is first shown (:meth:`ShowkitApp.view`
+returns None for a view not built yet), so the first screen costs one view's
+imports and styling, not five.  The app therefore tells only the views that exist
+about a change (conditions, checks, modes, a new rig), and each view, when it is
+built later, draws the session's state as it is then in its ``on_mount``.
 """
 
 from __future__ import annotations
 
+import importlib
 from pathlib import Path
 
 from rich.text import Text
@@ -25,14 +32,24 @@ from textual.widgets import ContentSwitcher, Footer, ProgressBar, Static
 
 from showkit.errors import ShowkitError
 from showkit.printable import printable
-from showkit.ui.measure import MeasureView
-from showkit.ui.run import RunView
 from showkit.ui.session import Session
-from showkit.ui.show import ShowView
-from showkit.ui.track import TrackView
-from showkit.ui.tube import TubeView
 
 VIEWS = ("show", "tube", "track", "run", "measure")
+
+#: Each view's module and class: imported and built when the view is first shown.
+VIEW_CLASSES = {"show": ("showkit.ui.show", "ShowView"), "tube": ("showkit.ui.tube", "TubeView"),
+                "track": ("showkit.ui.track", "TrackView"), "run": ("showkit.ui.run", "RunView"),
+                "measure": ("showkit.ui.measure", "MeasureView")}
+
+#: The widget of each view that has the focus when the view is shown.
+VIEW_FOCUS = {"show": "#cue-table", "tube": "#mode-table", "track": "#track-map",
+              "run": "#run-table", "measure": "#measure-table"}
+
+
+def view_class(name: str):
+    """The class of a view (its module is imported at the first call)."""
+    module, cls = VIEW_CLASSES[name]
+    return getattr(importlib.import_module(module), cls)
 
 
 class ShowkitApp(App):
@@ -94,16 +111,15 @@ class ShowkitApp(App):
         self._held: list[str] = []
         self._audition_timer = None
         self.background_started = False
+        self._views: dict = {}   # name -> the view's widget, for the views built so far
 
     # ------------------------------------------------------------ layout
     def compose(self) -> ComposeResult:
         yield Static("", id="topbar")
         with ContentSwitcher(initial=self.first_view, id="views"):
-            yield ShowView(id="show")
-            yield TubeView(id="tube")
-            yield TrackView(id="track")
-            yield RunView(id="run")
-            yield MeasureView(id="measure")
+            yield self._new_view(self.first_view)
+            if self.first_track is not None and self.first_view != "track":
+                yield self._new_view("track")  # the track opened at start is analysed in it
         with Horizontal(id="statusbar"):
             yield Static("", id="status")
             yield ProgressBar(id="progress", show_eta=False, show_percentage=False)
@@ -112,7 +128,7 @@ class ShowkitApp(App):
     def on_mount(self) -> None:
         self.query_one("#progress", ProgressBar).display = False
         self.update_topbar()
-        self.action_view(self.first_view)
+        self._show_view(self.first_view)
         self.say("opened " + str(self.session.sheet.path))
         # the slow work starts once the first screen is drawn (its imports would hold the GIL)
         self.set_timer(0.15, self.start_background)
@@ -121,7 +137,17 @@ class ShowkitApp(App):
 
             self.push_screen(CautionScreen(), self._cautions_closed)
         if self.first_track is not None:
-            self.set_timer(0.15, lambda: self.query_one(TrackView).open_track(self.first_track))
+            self.set_timer(0.15, lambda: self.view("track").open_track(self.first_track))
+
+    # ------------------------------------------------------------ views, built when first shown
+    def _new_view(self, name: str):
+        widget = view_class(name)(id=name)
+        self._views[name] = widget
+        return widget
+
+    def view(self, name: str):
+        """The view called ``name``, or None while it was never shown (nothing to tell it then)."""
+        return self._views.get(name)
 
     # ------------------------------------------------------------ status line and progress
     def say(self, text: str, warn: bool = False) -> None:
@@ -217,13 +243,10 @@ class ShowkitApp(App):
             rig, modes = result
             s.modes = modes
             self._flames_cache.clear()
-            tube = self.query_one(TubeView)
-            tube.refresh_facts()
-            tube.show_modes(modes)
             self.update_topbar()
-            mode = tube.selected_mode()
-            if mode is not None:
-                self.start_mode_flames(mode)
+            tube = self.view("tube")
+            if tube is not None:  # else it draws the modes when it is first shown
+                tube.show_rig()
             self.say(f"{len(modes)} modes below the plane-wave limit")
 
         self.run_job("modes", work, done, "finding the tube's modes")
@@ -241,7 +264,8 @@ class ShowkitApp(App):
             if sheet_to_text(s.sheet) != text:
                 checks = {k: v for k, v in checks.items() if k in {c.id for c in s.sheet.cues}}
             s.checks.update(checks)
-            self.query_one(ShowView).refresh_table()
+            if self.view("show") is not None:
+                self.view("show").refresh_table()
             unlocked = [c.id for c in s.sheet.cues if c.lock is None and c.id in checks
                         and checks[c.id].status == "stale" and c.id not in self._auto_locked]
             self._auto_locked.update(unlocked)
@@ -282,7 +306,9 @@ class ShowkitApp(App):
 
     def start_mode_flames(self, mode) -> None:
         s = self.session
-        tube = self.query_one(TubeView)
+        tube = self.view("tube")
+        if tube is None:
+            return
         drawing = tube.query_one("TubeDrawing")
         key = (mode.n, round(mode.frequency_hz, 4), s.rig.static_pa)
         if key in self._flames_cache:
@@ -304,8 +330,9 @@ class ShowkitApp(App):
 
     def cue_added(self, cue) -> None:
         """After a cue was added: show it, and lock it in the background."""
-        view = self.query_one(ShowView)
-        view.refresh_table(cue.id)
+        view = self.view("show")
+        if view is not None:
+            view.refresh_table(cue.id)
         self.say(f"added cue {cue.id} at {cue.gain_db:+.1f} dB (saved); locking its ceiling…")
         self.start_lock([cue.id])
 
@@ -327,17 +354,22 @@ class ShowkitApp(App):
         if not (static_changed or temperature_changed):
             return True
         self.update_topbar()
-        self.query_one(TubeView).refresh_facts()
+        tube = self.view("tube")
+        if tube is not None:
+            tube.refresh_facts()
         self._flames_cache.clear()
         if temperature_changed:
             self.start_modes()
-        else:
-            mode = self.query_one(TubeView).selected_mode()
+        elif tube is not None:
+            mode = tube.selected_mode()
             if mode is not None:
                 self.start_mode_flames(mode)
         self.start_checks()
-        self.query_one(TrackView).conditions_changed()
-        self.query_one(RunView).conditions_changed(static_changed, temperature_changed, recheck=recheck_run)
+        # the views not built yet read today's conditions from the session when first shown
+        if self.view("track") is not None:
+            self.view("track").conditions_changed()
+        if self.view("run") is not None:
+            self.view("run").conditions_changed(static_changed, temperature_changed, recheck=recheck_run)
         return True
 
     def update_topbar(self) -> None:
@@ -374,13 +406,19 @@ class ShowkitApp(App):
             return
 
     # ------------------------------------------------------------ actions
-    def action_view(self, name: str) -> None:
+    async def action_view(self, name: str) -> None:
+        """Show a view; the first time, build and mount it (awaited: it is drawn and ready after the key)."""
+        if name not in self._views:
+            widget = self._new_view(name)
+            widget.display = False  # until the switcher shows it
+            await self.query_one(ContentSwitcher).mount(widget)
+        self._show_view(name)
+
+    def _show_view(self, name: str) -> None:
         self.query_one(ContentSwitcher).current = name
-        target = {"show": "#cue-table", "tube": "#mode-table", "track": "#track-map",
-                  "run": "#run-table", "measure": "#measure-table"}[name]
         # focus at once (not on the next idle), so that a key typed right after the
         # view key already goes to the new view
-        self.screen.set_focus(self.query_one(target))
+        self.screen.set_focus(self.view(name).query_one(VIEW_FOCUS[name]))
         self.refresh_bindings()
 
     def action_manometer(self) -> None:
@@ -400,7 +438,8 @@ class ShowkitApp(App):
 
     def action_undo(self) -> None:
         if self.session.undo():
-            self.query_one(ShowView).refresh_table()
+            if self.view("show") is not None:
+                self.view("show").refresh_table()
             self.say("undone (saved)")
             self.start_checks()
         else:
@@ -417,12 +456,12 @@ class ShowkitApp(App):
     def action_help(self) -> None:
         from showkit.ui.help import HelpScreen
 
-        self.push_screen(HelpScreen([("Everywhere", self.BINDINGS), ("Show view (1)", ShowView.BINDINGS),
-                                     ("Tube view (2)", TubeView.BINDINGS),
-                                     ("Track view (3)", TrackView.BINDINGS),
+        self.push_screen(HelpScreen([("Everywhere", self.BINDINGS), ("Show view (1)", view_class("show").BINDINGS),
+                                     ("Tube view (2)", view_class("tube").BINDINGS),
+                                     ("Track view (3)", view_class("track").BINDINGS),
                                      ("Run view (4): the operator's keys, the same in `showkit run`",
                                       _operator_help()),
-                                     ("Measure view (5)", MeasureView.BINDINGS),
+                                     ("Measure view (5)", view_class("measure").BINDINGS),
                                      ("Lists", [("up,down", "", "move the selection")])]))
 
     def action_cautions(self) -> None:
@@ -447,9 +486,13 @@ class ShowkitApp(App):
     def action_audition(self) -> None:
         view = self.query_one(ContentSwitcher).current
         if view == "track":
-            self.query_one(TrackView).audition()
+            self.view("track").audition()
             return
-        cid = self.query_one(ShowView).selected_id()
+        show = self.view("show")
+        if show is not None:
+            cid = show.selected_id()
+        else:  # the Show view's cursor starts on the first cue
+            cid = self.session.sheet.cues[0].id if self.session.sheet.cues else None
         if cid is None:
             self.say("no cue to audition")
             return
@@ -493,8 +536,8 @@ class ShowkitApp(App):
 
         The engine's ``panic()`` is called first, before anything is drawn or logged here.
         """
-        run = self.query_one(RunView)
-        live = run.panic()
+        run = self.view("run")
+        live = run.panic() if run is not None else False  # no Run view: no engine was ever made
         heard = False
         if self.audition is not None and self.audition.playing:
             self.audition.stop()  # panic() then close()
@@ -540,8 +583,8 @@ class ShowkitApp(App):
 
     def action_quit_safely(self) -> None:
         """Panic if a show plays, save (safely) and quit, no dialog."""
-        run = self.query_one(RunView)
-        if run.engine is not None:
+        run = self.view("run")
+        if run is not None and run.engine is not None:
             try:
                 if run.engine.busy:
                     run.engine.panic()
@@ -596,7 +639,7 @@ def _operator_help() -> list[tuple[str, str, str]]:
     from showkit.show.operator_keys import OPERATOR_KEYS
 
     rows = [(",".join(k.keys), "", k.does) for k in OPERATOR_KEYS]
-    rows += [(b.key, "", b.description) for b in RunView.BINDINGS if not b.action.startswith("operator")]
+    rows += [(b.key, "", b.description) for b in view_class("run").BINDINGS if not b.action.startswith("operator")]
     return rows
 
 

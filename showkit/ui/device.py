@@ -17,12 +17,13 @@ from textual.screen import ModalScreen
 from textual.widgets import OptionList, Static
 from textual.widgets.option_list import Option
 
+from showkit.errors import DeviceError
+
 DEFAULT_ID = "default"
 
 
 def device_choices():
     """``(devices, problem)``: the output devices, or the one-line reason there are none."""
-    from showkit.errors import DeviceError
     from showkit.show import devices
 
     try:

@@ -289,9 +289,9 @@ class MeasureView(Vertical):
             self.app.say(exc.line(), warn=True)
             return
         self.session.reload_rig()
-        from showkit.ui.run import RunView
-
-        self.app.query_one(RunView).rig_changed()  # its cues were verified on the old rig
+        run = self.app.view("run")
+        if run is not None:  # its cues were verified on the old rig (a Run view built later checks anew)
+            run.rig_changed()
         done = f"wrote the fit into {Path(path).name} (previous version kept as {Path(backup).name})"
         self.query_one("#measure-title", Static).update(f"[b]Measure the tube[/b]  {escape(printable(done))}")
         refused = calibration_refused(Path(path))

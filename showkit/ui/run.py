@@ -36,10 +36,11 @@ from textual.containers import Vertical
 from textual.widget import Widget
 from textual.widgets import DataTable, Static
 
-from showkit.errors import ShowkitError
+from showkit.errors import DeviceError, ShowkitError
 from showkit.printable import printable
 from showkit.safety import LEVEL_CAUTION
 from showkit.show.operator_keys import shown
+from showkit.units import format_time
 
 #: The operator's keys as printed in this view's messages (from the one table).
 GO_KEY, PANIC_KEY, REARM_KEY, RECONNECT_KEY, FADE_KEY = (
@@ -57,8 +58,6 @@ STATE_WORDS = {"idle": "ready", "playing": "PLAYING", "fading": "FADING", "panic
 
 
 def fmt_time(seconds: float) -> str:
-    from showkit.units import format_time
-
     return format_time(seconds)
 
 
@@ -450,8 +449,6 @@ class RunView(Vertical):
             self._timer = self.set_interval(POLL_S, self.tick, name="run-poll")
 
     def _open_device(self) -> bool:
-        from showkit.errors import DeviceError
-
         engine = self.engine
         try:
             engine.open(self.session_device())
@@ -654,8 +651,6 @@ class RunView(Vertical):
         if self.engine is None or self.engine.device is None:
             self.open_engine()
             return
-        from showkit.errors import DeviceError
-
         try:
             self.engine.reopen(self.session_device())
         except DeviceError as exc:

@@ -18,7 +18,7 @@ import math
 from dataclasses import dataclass, replace
 from pathlib import Path
 
-from showkit.errors import SheetError, ShowkitError
+from showkit.errors import AudioError, InputError, SheetError, ShowkitError
 from showkit.show.sheet import (AudioSource, Cue, GlideSource, PauseSource, Sheet, ToneSource,
                                 load_sheet, parse_sheet, save_sheet, sheet_to_text)
 
@@ -101,7 +101,6 @@ class TrackWork:
     def resolve_track(self, text) -> Path:
         """The file a track name means: ``demo:NAME`` (made if need be: slow the first
         time, so call it in a worker), a path relative to the sheet, or a path."""
-        from showkit.errors import AudioError
         from showkit.show.sheet import DEMO_AUDIO_PREFIX
 
         t = str(text).strip()
@@ -142,8 +141,6 @@ class TrackWork:
         tick(0)
         scan = scan_paths(rig, [path], jobs=1, use_cache=True)[0]
         if scan.get("error"):
-            from showkit.errors import AudioError
-
             raise AudioError(scan["error"], str(path), "choose another file")
         tick(1)
         report = passage_report(rig, path)
@@ -218,17 +215,6 @@ def _track_frames(rig, path, shift_cents: float) -> dict:
     return {"score": got["score"], "map_modes": [int(m["modes"][k]["n"]) for k in rows],
             "map_energy": drawn[rows], "times_s": np.asarray(m["times_s"], dtype=float),
             "notes": got["notes"]}
-
-
-def _scan(rig, path, transpose: int) -> dict:
-    """Passages, score and the time x mode map from the scan (issue 4), when it is there."""
-    empty = {"score": 0.0, "suggestion": 0, "passages": [], "map_modes": [], "map_energy": None,
-             "map_times_s": None, "frame_notes": [], "note": "the track scan is not installed"}
-    try:
-        from showkit.analysis import scan as scan_module
-    except ImportError:
-        return empty
-    return scan_module.ui_summary(rig, path, transpose) if hasattr(scan_module, "ui_summary") else empty
 
 
 @dataclass(frozen=True)
@@ -329,16 +315,6 @@ class Session(TrackWork):
         changed = (static_pa != self.static_pa, temperature_k != self.temperature_k)
         self.static_pa, self.temperature_k = static_pa, temperature_k
         return changed
-
-    def set_static(self, value) -> float:
-        """Today's manometer reading (see :meth:`set_conditions`); returns Pa."""
-        self.set_conditions(static=value)
-        return self.rig.static_pa
-
-    def set_temperature(self, value) -> float:
-        """Today's gas temperature (see :meth:`set_conditions`); returns K."""
-        self.set_conditions(temperature=value)
-        return self.rig.temperature_k
 
     # ------------------------------------------------------------ slow work (worker threads)
     def compute_modes(self, rig=None) -> list:
@@ -550,8 +526,6 @@ class Session(TrackWork):
         return self._add(cue, after)
 
     def _check_mode(self, n: int) -> None:
-        from showkit.errors import InputError
-
         have = [m.n for m in self.modes]
         if have and int(n) not in have:
             raise InputError(f"the rig has no mode {n}", "mode",
@@ -595,10 +569,6 @@ class Session(TrackWork):
         self._undo.append(sheet_to_text(self.sheet))
         del self._undo[:-UNDO_DEPTH]
 
-    @property
-    def can_undo(self) -> bool:
-        return bool(self._undo)
-
     def undo(self) -> bool:
         if not self._undo:
             return False
@@ -620,10 +590,6 @@ class Session(TrackWork):
         """Save now (safe save); returns the path."""
         self._save()
         return self.sheet.path
-
-    @property
-    def dirty(self) -> bool:
-        return sheet_to_text(self.sheet) != self.saved_text
 
     # ------------------------------------------------------------ helpers
     def _copy(self, text: str | None = None) -> Sheet:

@@ -9,6 +9,7 @@ from textual.binding import Binding
 from textual.containers import Vertical
 from textual.widgets import DataTable, Static
 
+from showkit import units
 from showkit.errors import ShowkitError
 from showkit.printable import printable
 from showkit.safety import LEVEL_CAUTION
@@ -289,8 +290,6 @@ def _ui_message(text: str) -> str:
 
 
 def _seconds(text: str) -> float:
-    from showkit import units
-
     t = text.strip()
     try:
         return float(t)

@@ -64,6 +64,16 @@ class TubeView(Vertical):
         for label, key, width in (("mode", "n", 4), ("Hz", "hz", 8), ("note", "note", 9), ("Q", "q", 6),
                                   ("flames", "peaks", 6), ("spacing", "spacing", 8), ("pattern", "pattern", 11)):
             t.add_column(label, key=key, width=width)
+        if self.session.modes:  # built after the modes were found: today's rig and modes at once
+            self.show_rig()
+
+    def show_rig(self) -> None:
+        """The rig's facts and modes as the session has them now, and the selected mode's flame row."""
+        self.refresh_facts()
+        self.show_modes(self.session.modes)
+        mode = self.selected_mode()
+        if mode is not None:
+            self.app.start_mode_flames(mode)
 
     @property
     def session(self):
