@@ -452,7 +452,12 @@ DB_STEP = 0.01
 
 
 def floor_db(value_db: float) -> float:
-    """``value_db`` rounded down to :data:`DB_STEP` (a float that prints as e.g. ``-21.33``)."""
+    """``value_db`` rounded down to :data:`DB_STEP` (a float that prints as e.g. ``-21.33``).
+
+    A non-finite value is returned as it is (for the caller to refuse).
+    """
+    if not math.isfinite(value_db):
+        return value_db
     return math.floor(value_db * 100.0 + 1e-9) / 100.0
 
 
@@ -475,10 +480,13 @@ def rounded_lock(lock: Lock) -> Lock:
         return value if value == math.inf else floor_db(value)
 
     pressure, full_scale = db(lock.pressure_db), db(lock.full_scale_db)
-    try:  # the ceiling is again the lower of the rounded limits (a tie is "pressure", as combine says)
-        ceiling = combine(pressure, full_scale)
-    except ValueError:  # a NaN or -inf limit: left for lock_problem / the writer to refuse
-        return lock
+    if not math.isfinite(lock.ceiling_db) or not all(v == math.inf or math.isfinite(v)
+                                                     for v in (lock.pressure_db, lock.full_scale_db)):
+        return lock  # damaged: kept as it is, for the writer (or lock_problem) to refuse, never repaired
+    if abs(combine(lock.pressure_db, lock.full_scale_db).ceiling_db - lock.ceiling_db) > 1e-6:
+        return lock  # inconsistent: kept as it is (read back, lock_problem calls it stale)
+    # the ceiling is again the lower of the rounded limits (a tie is "pressure", as combine says)
+    ceiling = combine(pressure, full_scale)
     return replace(lock, ceiling_db=ceiling.ceiling_db, limited_by=ceiling.limited_by,
                    pressure_db=pressure, full_scale_db=full_scale,
                    static_pa=_clean(lock.static_pa), reserve=_clean(lock.reserve),
