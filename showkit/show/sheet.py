@@ -7,7 +7,9 @@ has an ``id``, a ``label``, exactly one source (``audio`` with ``start`` and
 ``fade_out``, ``then`` (``"wait"`` or ``"next"``), ``notes``, optional
 ``ride``, and the ``[cue.lock]`` table showkit writes.  See the README.
 
-Saving never loses data: the new text goes to a temporary file in the same
+Saving writes only what changed into the text the sheet was read from (tomlkit),
+so the presenter's comments and spelling stay, and writes only finite numbers
+(see "writing" below).  It never loses data: the new text goes to a temporary file in the same
 folder, is flushed and fsync'd, the previous version is kept as
 ``NAME.toml.bak``, and the temporary file is renamed over the sheet.
 A sheet that does not parse is never overwritten; unknown keys are refused
