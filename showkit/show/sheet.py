@@ -542,7 +542,10 @@ def _write_lock(table, lock: Lock | None, at: str) -> None:
     if not isinstance(old, dict):
         _set(table, "lock", None)
         old = tomlkit.table()
+        trailing = _trailing(table)  # the blank line / comments before the next cue go after the lock
         table.append("lock", old)
+        for item in trailing:
+            old.add(item)
     for key in [k for k in old if k not in values]:
         del old[key]
     for key, value in values.items():
@@ -570,6 +573,15 @@ def _source_items(source: Source, at: str) -> dict:
     return {source.kind: table}
 
 
+def _trailing(table) -> list:
+    """Take the comments and blank lines off the end of a table (tomlkit's ``Container.body``)."""
+    body = table.value.body if hasattr(table, "value") and hasattr(table.value, "body") else None
+    trailing = []
+    while body and body[-1][0] is None:
+        trailing.insert(0, body.pop()[1])
+    return trailing
+
+
 def _set(table, key: str, value) -> None:
     """Set, replace or (``None``) remove a key; a new key goes after the table's last key.
 
@@ -584,10 +596,7 @@ def _set(table, key: str, value) -> None:
     if key in table:
         table[key] = value
         return
-    body = table.value.body if hasattr(table, "value") and hasattr(table.value, "body") else None
-    trailing = []
-    while body and body[-1][0] is None:
-        trailing.insert(0, body.pop()[1])
+    trailing = _trailing(table)
     table[key] = value
     for item in trailing:
         table.add(item)
