@@ -472,8 +472,8 @@ def rounded_lock(lock: Lock) -> Lock:
     """The lock as it is written: levels down to 0.01 dB, the worst moment to 1 ms.
 
     The two limits are rounded down and the ceiling is again the lower of them
-    (:func:`showkit.physics.ceiling.combine`), so it stays consistent (:func:`showkit.show.lock.lock_problem`) and never rises.  ``static_pa``
-    and ``reserve`` are the conditions today's ceiling is rescaled from, so they keep 12
+    (:func:`showkit.physics.ceiling.combine`), so it stays consistent
+    (:func:`showkit.show.lock.lock_problem`) and never rises.  ``static_pa`` and ``reserve`` are the conditions today's ceiling is rescaled from, so they keep 12
     significant digits (a rig's 10 cm H2O is 980.665 Pa: at 0.01 Pa every check of that
     rig would see a ceiling 0.00004 dB off); frequencies likewise.  +inf limits stay
     +inf in memory and are left out of the file (an absent limit reads as no limit).
@@ -674,7 +674,7 @@ def sheet_to_text(sheet: Sheet) -> str:
         if sheet.header:
             doc.add(tomlkit.nl())
     for key in ("title", "rig"):
-        if origin.get(key) != getattr(sheet, key) or key not in doc:
+        if origin.get(key) != getattr(sheet, key):
             doc[key] = getattr(sheet, key)
     if doc.get("format") != FORMAT_VERSION:
         doc["format"] = FORMAT_VERSION
