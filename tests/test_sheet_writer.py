@@ -189,3 +189,14 @@ def test_any_sheet_is_saved_and_read_back_equal(title, notes, cues):
         again.replace_cue(again.cues[0].id, label=again.cues[0].label + "\f", gain_db=-1.25)
         third = parse_sheet(sheet_to_text(again))
         assert third.cues == again.cues
+
+
+def test_control_characters_are_escaped_and_read_back():
+    # TOML 1.0 (toml.io, "String"): control characters other than tab must be escaped in basic strings
+    text = "a\x00b\x7fc\rd\x1be\u2028f\"g\\h\f"
+    sheet = Sheet(title="t\x7f", rig="demo", notes=text,
+                  cues=[Cue(id="x\x00", source=PauseSource(1.0), label=text, notes=text)])
+    out = sheet_to_text(sheet)
+    assert "\x00" not in out and "\x7f" not in out and "\f" not in out
+    again = parse_sheet(out)
+    assert again.cues == sheet.cues and again.notes == text and again.title == "t\x7f"
