@@ -200,3 +200,25 @@ def test_control_characters_are_escaped_and_read_back():
     assert "\x00" not in out and "\x7f" not in out and "\f" not in out
     again = parse_sheet(out)
     assert again.cues == sheet.cues and again.notes == text and again.title == "t\x7f"
+
+
+def test_the_edited_document_is_kept_and_stays_right_across_edits_reverts_and_refusals(tmp_path):
+    path = tmp_path / "show.toml"
+    path.write_text(COMMENTED)
+    sheet = load_sheet(path)
+    first = sheet_to_text(sheet)
+    assert sheet_to_text(sheet) is first  # unchanged: the same text, no work
+    sheet.replace_cue("welcome", gain_db=-40.0)
+    assert "gain = -40.0\n" in sheet_to_text(sheet)
+    sheet.replace_cue("welcome", gain_db=-34.0)  # back: what is written says -34 again
+    assert parse_sheet(sheet_to_text(sheet)).cues == sheet.cues
+    sheet.replace_cue("welcome", gain_db=-20.0, lock=_lock(ceiling_db=math.nan))
+    with pytest.raises(SheetError):
+        sheet_to_text(sheet)  # refused half-way: the half-edited document is dropped
+    sheet.replace_cue("welcome", gain_db=-34.0, lock=None)
+    text = sheet_to_text(sheet)
+    assert parse_sheet(text).cues == sheet.cues and "# quiet: the audience is still coming in" in text
+    save_sheet(sheet)
+    sheet.replace_cue("talk", label="Talk")
+    again = parse_sheet(sheet_to_text(sheet))
+    assert again.cues == sheet.cues and again.cue("talk").label == "Talk"
