@@ -25,15 +25,15 @@ from showkit.errors import ShowkitError
 from showkit.physics import ceiling as rule
 from showkit.physics.family import STATIC_SPAN
 from showkit.rigfile import Rig, load_rig
-from showkit.show.sheet import Cue, Lock, Sheet
+from showkit.show.sheet import DB_STEP, Cue, Lock, Sheet, floor_db, rounded_lock
 from showkit.show.sources import TONE_RATE_HZ, CueSignal, cue_signal
 
 #: The rate a whole show is rendered and usually played at, Hz: a cue at another
 #: rate is locked at both (see :func:`compute_lock`).
 SHOW_RATE_HZ = TONE_RATE_HZ
 
-#: Gains are clamped to the ceiling rounded down to this step, dB.
-GAIN_STEP_DB = 0.01
+#: Gains are clamped to the ceiling rounded down to this step, dB (the step sheets are written in).
+GAIN_STEP_DB = DB_STEP
 
 
 def sheet_rig(sheet: Sheet) -> Rig:
@@ -51,7 +51,7 @@ def sheet_rig(sheet: Sheet) -> Rig:
 
 def safe_gain(ceiling_db: float) -> float:
     """The ceiling rounded down to :data:`GAIN_STEP_DB` (never above it)."""
-    return math.floor(ceiling_db / GAIN_STEP_DB + 1e-9) * GAIN_STEP_DB
+    return floor_db(ceiling_db)
 
 
 def compute_lock(rig: Rig, signal: CueSignal) -> Lock:
@@ -86,6 +86,7 @@ def compute_lock(rig: Rig, signal: CueSignal) -> Lock:
                 locked_at=datetime.now(timezone.utc).isoformat(timespec="seconds"),
                 worst_hole=worst_hole, worst_time_s=worst_t,
                 frequency_hz=signal.frequency_hz, to_frequency_hz=signal.to_frequency_hz)
+    lock = rounded_lock(lock)  # as the sheet writes it (levels down to 0.01 dB): memory = file
     problem = lock_problem(lock)
     if problem:  # never write a number into a lock that is not finite and consistent
         from showkit.errors import SheetError

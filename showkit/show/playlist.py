@@ -23,8 +23,8 @@ from typing import Callable
 import numpy as np
 
 from showkit.errors import InputError
+from showkit.show.sheet import THEN_VALUES  # one definition: the sheet's
 
-THEN_VALUES = ("wait", "next")
 STATUS_VALUES = ("ok", "stale", "over", "error")
 
 #: What to do about a cue that may not be played, by status.

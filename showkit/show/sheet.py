@@ -7,7 +7,9 @@ has an ``id``, a ``label``, exactly one source (``audio`` with ``start`` and
 ``fade_out``, ``then`` (``"wait"`` or ``"next"``), ``notes``, optional
 ``ride``, and the ``[cue.lock]`` table showkit writes.  See the README.
 
-Saving never loses data: the new text goes to a temporary file in the same
+Saving writes only what changed into the text the sheet was read from (tomlkit),
+so the presenter's comments and spelling stay, and writes only finite numbers
+(see "writing" below).  It never loses data: the new text goes to a temporary file in the same
 folder, is flushed and fsync'd, the previous version is kept as
 ``NAME.toml.bak``, and the temporary file is renamed over the sheet.
 A sheet that does not parse is never overwritten; unknown keys are refused
@@ -18,13 +20,13 @@ from __future__ import annotations
 
 import difflib
 import math
-import re
 from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 from showkit import units
 from showkit.errors import InputError, SheetError
 from showkit.limits import MAX_CUES, MAX_GENERATED_S
+from showkit.physics.ceiling import combine
 from showkit.safesave import write_text
 from showkit.tomlfile import parse_toml, read_text
 
@@ -146,7 +148,13 @@ class Sheet:
     format: int = FORMAT_VERSION
     notes: str = ""
     path: Path | None = None
-    header: str = ""  # the comment lines at the top of the file, kept when saving
+    header: str = ""  # the comment lines at the top of the file (written for a sheet made in memory)
+    #: The TOML text the sheet was read from: saving edits it in place (comments and spelling stay).
+    source_text: str = field(default="", repr=False, compare=False)
+    #: What was read (title, rig, notes and each cue by id): only what differs from it is written.
+    origin: dict = field(default_factory=dict, repr=False, compare=False)
+    #: The writer's edited tomlkit document and what it says (see :func:`sheet_to_text`).
+    _writer: dict = field(default_factory=dict, init=False, repr=False, compare=False)
 
     @property
     def folder(self) -> Path:
@@ -216,6 +224,9 @@ def parse_sheet(text: str, where: str = "sheet") -> Sheet:
     except InputError as exc:
         raise SheetError(exc.what, exc.where, exc.fix) from None
     sheet.header = _header_comments(text)
+    sheet.source_text = text
+    sheet.origin = {"title": sheet.title, "rig": sheet.rig, "notes": sheet.notes,
+                    "cues": {c.id: c for c in sheet.cues}}
     return sheet
 
 
@@ -431,75 +442,296 @@ def _lock_from_data(raw, at: str) -> Lock | None:
 
 
 # ---------------------------------------------------------------- writing
+#
+# One writer, on tomlkit (as :mod:`showkit.rigwrite`): the text the sheet was read from is
+# parsed again and edited in place, so the presenter's comments (at the top, between cues
+# and inside them) and their spelling of every value showkit did not change ("0:08",
+# "12 s", -34) stay.  Only the fields that differ from what was read are written; a cue
+# that is new is written whole.  Every number written is finite (a non-finite one is a
+# SheetError before anything is written): gains and lock levels rounded down to 0.01 dB,
+# lock times to 1 ms, everything else as the shortest text that reads back the same float.
 
-def _toml_value(value) -> str:
-    if isinstance(value, bool):
-        return "true" if value else "false"
+#: Levels are written to this step, dB (rounded down: never above what was computed or asked).
+DB_STEP = 0.01
+
+
+def floor_db(value_db: float) -> float:
+    """``value_db`` rounded down to :data:`DB_STEP` (a float that prints as e.g. ``-21.33``).
+
+    A non-finite value is returned as it is (for the caller to refuse).
+    """
+    if not math.isfinite(value_db):
+        return value_db
+    return math.floor(value_db * 100.0 + 1e-9) / 100.0
+
+
+def _clean(value: float, digits: int = 12) -> float:
+    """The float without binary noise (``1000.0000000000001`` -> ``1000.0``)."""
+    return float(f"{value:.{digits}g}")
+
+
+def rounded_lock(lock: Lock) -> Lock:
+    """The lock as it is written: levels down to 0.01 dB, the worst moment to 1 ms.
+
+    The two limits are rounded down and the ceiling is again the lower of them
+    (:func:`showkit.physics.ceiling.combine`), so it stays consistent
+    (:func:`showkit.show.lock.lock_problem`) and never rises.  ``static_pa`` and ``reserve`` are the conditions today's ceiling is rescaled from, so they keep 12
+    significant digits (a rig's 10 cm H2O is 980.665 Pa: at 0.01 Pa every check of that
+    rig would see a ceiling 0.00004 dB off); frequencies likewise.  +inf limits stay
+    +inf in memory and are left out of the file (an absent limit reads as no limit).
+    """
+    def db(value):
+        return value if value == math.inf else floor_db(value)
+
+    pressure, full_scale = db(lock.pressure_db), db(lock.full_scale_db)
+    if not math.isfinite(lock.ceiling_db) or not all(v == math.inf or math.isfinite(v)
+                                                     for v in (lock.pressure_db, lock.full_scale_db)):
+        return lock  # damaged: kept as it is, for the writer (or lock_problem) to refuse, never repaired
+    if abs(combine(lock.pressure_db, lock.full_scale_db).ceiling_db - lock.ceiling_db) > 1e-6:
+        return lock  # inconsistent: kept as it is (read back, lock_problem calls it stale)
+    # the ceiling is again the lower of the rounded limits (a tie is "pressure", as combine says)
+    ceiling = combine(pressure, full_scale)
+    return replace(lock, ceiling_db=ceiling.ceiling_db, limited_by=ceiling.limited_by,
+                   pressure_db=pressure, full_scale_db=full_scale,
+                   static_pa=_clean(lock.static_pa), reserve=_clean(lock.reserve),
+                   worst_time_s=round(lock.worst_time_s, 3)
+                   if math.isfinite(lock.worst_time_s) else lock.worst_time_s,
+                   frequency_hz=None if lock.frequency_hz is None else _clean(lock.frequency_hz),
+                   to_frequency_hz=None if lock.to_frequency_hz is None else _clean(lock.to_frequency_hz))
+
+
+def _number(value, at: str, inf_ok: bool = False):
+    """A finite int/float to write, or a SheetError (nothing is written)."""
+    if isinstance(value, bool) or not isinstance(value, (int, float)):
+        raise SheetError(f"{value!r} is not a number", at, "nothing was saved; report this")
     if isinstance(value, int):
-        return str(value)
-    if isinstance(value, float):
-        if math.isinf(value):
-            return '"inf"' if value > 0 else '"-inf"'
-        return repr(float(value))
-    if isinstance(value, str):
-        return '"' + _CONTROL.sub(_toml_escape, value.replace("\\", "\\\\").replace('"', '\\"')) + '"'
-    raise TypeError(value)
+        return value
+    if not math.isfinite(value) and not (inf_ok and value == math.inf):
+        raise SheetError(f"will not write a non-finite number ({value!r})", at,
+                         "nothing was saved; lock the cue again or set the value")
+    return float(value)
 
 
-# every control character TOML forbids raw in a basic string (all of C0 but tab, and DEL)
-_CONTROL = re.compile("[\x00-\x08\x0a-\x1f\x7f]")
-_SHORT_ESCAPES = {"\b": "\\b", "\n": "\\n", "\f": "\\f", "\r": "\\r"}
+def _gain(value: float, at: str) -> float:
+    return floor_db(_number(value, at))
 
 
-def _toml_escape(match: re.Match) -> str:
-    ch = match.group(0)
-    return _SHORT_ESCAPES.get(ch) or f"\\u{ord(ch):04X}"
+def _lock_values(lock: Lock, at: str) -> dict:
+    """The ``[cue.lock]`` keys and values written for a lock (finite numbers only)."""
+    out = {}
+    for key, value in rounded_lock(lock).__dict__.items():
+        if value is None:
+            continue
+        if isinstance(value, str):
+            out[key] = value
+        elif key in ("pressure_db", "full_scale_db"):
+            if _number(value, f"{at}: lock.{key}", inf_ok=True) != math.inf:  # absent: no limit
+                out[key] = value
+        else:
+            out[key] = _number(value, f"{at}: lock.{key}")
+    return out
 
 
-def _inline(table: dict) -> str:
-    return "{ " + ", ".join(f"{k} = {_toml_value(v)}" for k, v in table.items() if v is not None) + " }"
+def _write_lock(table, lock: Lock | None, at: str) -> None:
+    """Update ``[cue.lock]`` key by key (its comments, and those after it, stay)."""
+    import tomlkit
+
+    if lock is None:
+        _set(table, "lock", None)
+        return
+    values = _lock_values(lock, at)
+    old = table.get("lock")
+    if not isinstance(old, dict):
+        _set(table, "lock", None)
+        old = tomlkit.table()
+        trailing = _trailing(table)  # the blank line / comments before the next cue go after the lock
+        table.append("lock", old)
+        for item in trailing:
+            old.add(item)
+    for key in [k for k in old if k not in values]:
+        del old[key]
+    for key, value in values.items():
+        if key not in old or old[key] != value:
+            _set(old, key, value)
+
+
+def _source_items(source: Source, at: str) -> dict:
+    """The cue keys a source is written as (``None``: the key is left out)."""
+    import tomlkit
+
+    if isinstance(source, AudioSource):
+        return {"audio": source.path, "start": _number(float(source.start_s), f"{at}: start"),
+                "end": None if source.end_s is None else _number(float(source.end_s), f"{at}: end")}
+    fields = {"tone": (("mode", "mode"), ("frequency", "frequency_hz")),
+              "glide": (("from_mode", "from_mode"), ("from_frequency", "from_frequency_hz"),
+                        ("to_mode", "to_mode"), ("to_frequency", "to_frequency_hz")),
+              "pause": ()}[source.kind]
+    table = tomlkit.inline_table()
+    for key, attr in fields:
+        value = getattr(source, attr)
+        if value is not None:
+            table[key] = _number(value, f"{at}: {source.kind}.{key}")
+    _set(table, "duration", _number(float(source.duration_s), f"{at}: {source.kind}.duration"))
+    return {source.kind: table}
+
+
+def _trailing(table) -> list:
+    """Take the comments and blank lines off the end of a table (tomlkit's ``Container.body``)."""
+    body = table.value.body if hasattr(table, "value") and hasattr(table.value, "body") else None
+    trailing = []
+    while body and body[-1][0] is None:
+        trailing.insert(0, body.pop()[1])
+    return trailing
+
+
+def _set(table, key: str, value) -> None:
+    """Set, replace or (``None``) remove a key; a new key goes after the table's last key.
+
+    tomlkit appends a new key after the table's trailing comments and blank lines, which
+    belong to what follows (the next cue's comment): they are taken off and put back after
+    it.  (tomlkit keeps them as the tail of its ``Container.body``.)
+    """
+    if value is None:
+        if key in table:
+            del table[key]
+        return
+    if key in table:
+        table[key] = value
+        return
+    trailing = _trailing(table)
+    table[key] = value
+    for item in trailing:
+        table.add(item)
+
+
+def _write_source(table, old: Source | None, new: Source, at: str) -> None:
+    if old == new:
+        return
+    items = _source_items(new, at)
+    if old is not None and old.kind == new.kind == "audio":
+        for key, attr in (("audio", "path"), ("start", "start_s"), ("end", "end_s")):
+            if getattr(old, attr) != getattr(new, attr):
+                _set(table, key, items[key])
+        return
+    for key in (*SOURCE_KINDS, "start", "end"):
+        if key in table and key not in items:
+            del table[key]
+    for key, value in items.items():
+        _set(table, key, value)
+
+
+def _cue_table(cue: Cue, old: Cue | None, table, at: str):
+    """Write into ``table`` (the cue as read, or a new table) the fields that differ from ``old``."""
+    import tomlkit
+
+    if table is None:
+        table, old = tomlkit.table(), None
+    if old is None or old.id != cue.id:
+        _set(table, "id", cue.id)
+    if old is None or old.label != cue.label:
+        _set(table, "label", cue.label or None)
+    _write_source(table, old.source if old else None, cue.source, at)
+    if old is None or old.gain_db != cue.gain_db:
+        _set(table, "gain", _gain(cue.gain_db, f"{at}: gain"))
+    if old is None or old.fade_in_s != cue.fade_in_s:
+        _set(table, "fade_in", _number(float(cue.fade_in_s), f"{at}: fade_in"))
+    if old is None or old.fade_out_s != cue.fade_out_s:
+        _set(table, "fade_out", _number(float(cue.fade_out_s), f"{at}: fade_out"))
+    if old is None or old.then != cue.then:
+        _set(table, "then", cue.then)
+    if old is None or old.ride != cue.ride:
+        _set(table, "ride", True if cue.ride else None)
+    if old is None or old.notes != cue.notes:
+        _set(table, "notes", cue.notes or None)
+    if old is None or old.lock != cue.lock:
+        _write_lock(table, cue.lock, at)
+    return table
+
+
+def _blank_after(table) -> None:
+    """End a cue's table with a blank line (before the next ``[[cue]]``)."""
+    import tomlkit
+
+    if not table.as_string().endswith("\n\n"):
+        last = table.get("lock") if isinstance(table.get("lock"), dict) else table
+        last.add(tomlkit.nl())
 
 
 def sheet_to_text(sheet: Sheet) -> str:
-    """The sheet as TOML text (what :func:`save_sheet` writes)."""
-    lines = [sheet.header] if sheet.header else []
-    lines += [f"title = {_toml_value(sheet.title)}", f"rig = {_toml_value(sheet.rig)}",
-              f"format = {FORMAT_VERSION}"]
-    if sheet.notes:
-        lines.append(f"notes = {_toml_value(sheet.notes)}")
-    for cue in sheet.cues:
-        lines += ["", "[[cue]]", f"id = {_toml_value(cue.id)}"]
-        if cue.label:
-            lines.append(f"label = {_toml_value(cue.label)}")
-        s = cue.source
-        if isinstance(s, AudioSource):
-            lines.append(f"audio = {_toml_value(s.path)}")
-            lines.append(f"start = {_toml_value(float(s.start_s))}")
-            if s.end_s is not None:
-                lines.append(f"end = {_toml_value(float(s.end_s))}")
-        elif isinstance(s, ToneSource):
-            lines.append("tone = " + _inline({"mode": s.mode, "frequency": s.frequency_hz,
-                                                "duration": float(s.duration_s)}))
-        elif isinstance(s, GlideSource):
-            lines.append("glide = " + _inline({"from_mode": s.from_mode, "from_frequency": s.from_frequency_hz,
-                                                 "to_mode": s.to_mode, "to_frequency": s.to_frequency_hz,
-                                                 "duration": float(s.duration_s)}))
+    """The sheet as TOML text (what :func:`save_sheet` writes).
+
+    The text the sheet was read from is edited in place (see the notes above); a sheet
+    made in memory is written whole, with its ``header`` comment lines first.  The
+    edited document is kept with the sheet, so a later call only writes what changed
+    since (tomlkit parses a 400-cue sheet in about a second; editing it takes
+    milliseconds), and the text of an unchanged sheet is given again without work.
+    """
+    key = (sheet.source_text, sheet.title, sheet.rig, sheet.notes, sheet.header, tuple(sheet.cues))
+    cache = sheet._writer
+    if cache.get("key") == key:
+        return cache["text"]
+    try:
+        text = _edit_document(sheet, cache)
+    except BaseException:
+        cache.clear()  # a half-edited document is never used again
+        raise
+    cache["key"], cache["text"] = key, text
+    return text
+
+
+def _edit_document(sheet: Sheet, cache: dict) -> str:
+    import tomlkit
+
+    where = str(sheet.path or "sheet")
+    if cache.get("source") != sheet.source_text or "doc" not in cache:
+        if sheet.source_text:
+            doc = tomlkit.parse(sheet.source_text)
         else:
-            lines.append("pause = " + _inline({"duration": float(s.duration_s)}))
-        lines.append(f"gain = {_toml_value(float(cue.gain_db))}")
-        lines.append(f"fade_in = {_toml_value(float(cue.fade_in_s))}")
-        lines.append(f"fade_out = {_toml_value(float(cue.fade_out_s))}")
-        lines.append(f"then = {_toml_value(cue.then)}")
-        if cue.ride:
-            lines.append("ride = true")
-        if cue.notes:
-            lines.append(f"notes = {_toml_value(cue.notes)}")
-        if cue.lock is not None:
-            lines += ["", "[cue.lock]"]
-            for key, value in cue.lock.__dict__.items():
-                if value is not None:
-                    lines.append(f"{key} = {_toml_value(value)}")
-    return "\n".join(lines) + "\n"
+            doc = tomlkit.document()
+            for line in sheet.header.split("\n") if sheet.header else ():
+                doc.add(tomlkit.comment(line.lstrip("#").removeprefix(" ")) if line.strip() else tomlkit.nl())
+            if sheet.header:
+                doc.add(tomlkit.nl())
+        cache.clear()
+        cache.update(source=sheet.source_text, doc=doc, state=dict(sheet.origin))
+    doc, state = cache["doc"], cache["state"]
+    for key in ("title", "rig"):
+        if state.get(key) != getattr(sheet, key):
+            doc[key] = getattr(sheet, key)
+    if doc.get("format") != FORMAT_VERSION:
+        doc["format"] = FORMAT_VERSION
+    if state.get("notes", "") != sheet.notes:
+        _set(doc, "notes", sheet.notes or None)
+    aot = doc.get("cue")
+    if aot is None:
+        aot = tomlkit.aot()
+        if sheet.cues:
+            doc.add(tomlkit.nl())
+            doc.append("cue", aot)
+    tables = {}
+    for table in aot:
+        tables.setdefault(str(table.get("id")), table)
+    old_order = list(aot)
+    old_cues = state.get("cues", {})
+    order = []
+    for cue in sheet.cues:
+        table = tables.pop(cue.id, None)
+        old = old_cues.get(cue.id) if table is not None else None
+        order.append(_cue_table(cue, old, table, f"{where}: cue {cue.id}"))
+    if [id(t) for t in order] != [id(t) for t in old_order]:  # cues moved, added or removed
+        while len(aot):
+            del aot[0]
+        for k, table in enumerate(order):
+            if k < len(order) - 1:
+                _blank_after(table)
+            aot.append(table)
+        if not order and "cue" in doc:
+            del doc["cue"]
+    # what the document says now: the next call writes only what differs from it
+    cache["state"] = {"title": sheet.title, "rig": sheet.rig, "notes": sheet.notes,
+                      "cues": {c.id: c for c in sheet.cues}}
+    text = tomlkit.dumps(doc)
+    return text if text.endswith("\n") else text + "\n"
 
 
 def save_sheet(sheet: Sheet, path: str | Path | None = None, _before_rename=None) -> Path:
@@ -513,7 +745,7 @@ def save_sheet(sheet: Sheet, path: str | Path | None = None, _before_rename=None
     if target is None:
         raise SheetError("the sheet has no file name yet", None, "save it with a path")
     text = sheet_to_text(sheet)
-    parse_sheet(text, str(target))  # never write what we could not read back
+    again = parse_sheet(text, str(target))  # never write what we could not read back
     try:
         write_text(target, text, backups=1, _before_rename=_before_rename,
                    protect=sheet_inputs(sheet, include_sheet=False), what="cue sheet")
@@ -521,6 +753,11 @@ def save_sheet(sheet: Sheet, path: str | Path | None = None, _before_rename=None
         raise SheetError(f"cannot save ({exc.what})", exc.where,
                          "check the folder exists and is writable; the previous version is untouched") from None
     sheet.path = target
+    # later edits are measured from what is on disk; the edited document stays valid for it
+    sheet.source_text, sheet.origin = text, again.origin
+    if sheet._writer.get("text") == text:
+        sheet._writer["source"] = text
+        sheet._writer["key"] = (text, *sheet._writer["key"][1:])
     return target
 
 

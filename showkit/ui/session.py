@@ -21,6 +21,7 @@ from pathlib import Path
 from showkit.errors import AudioError, InputError, SheetError, ShowkitError
 from showkit.show.sheet import (AudioSource, Cue, GlideSource, PauseSource, Sheet, ToneSource,
                                 load_sheet, parse_sheet, save_sheet, sheet_to_text)
+from showkit.units import format_time as _clock  # the one m:ss.s formatter
 
 #: How many undo snapshots are kept.
 UNDO_DEPTH = 200
@@ -625,11 +626,6 @@ def _relative_to(path: Path, folder: Path) -> str:
 def _sound(cue: Cue):
     """What a lock depends on in a cue (the source and the fades)."""
     return (cue.source, cue.fade_in_s, cue.fade_out_s)
-
-
-def _clock(seconds: float) -> str:
-    m, s = divmod(max(0.0, float(seconds)), 60.0)
-    return f"{int(m)}:{s:04.1f}"
 
 
 def describe_source(cue: Cue) -> str:

@@ -15,6 +15,7 @@ from textual.widgets import DataTable, Static
 from showkit.errors import ShowkitError
 from showkit.printable import printable
 from showkit.ui.drawing import flame_rows, hole_columns, mode_map, span_strip
+from showkit.units import format_time as _clock  # the one m:ss.s formatter
 
 #: Cursor steps, s.
 STEP_S = 0.5
@@ -400,8 +401,3 @@ class TrackView(Vertical):
         path = self.path
         self.app.run_job("render", lambda progress: s.passage_audition_job(path, start, end),
                          self.app.play_rendered, "rendering the passage at a safe gain for the audition")
-
-
-def _clock(seconds: float) -> str:
-    m, s = divmod(max(0.0, float(seconds)), 60.0)
-    return f"{int(m)}:{s:04.1f}"
