@@ -11,7 +11,7 @@ check: by default the **air fraction** in the fuel (gas purity: a tube not
 fully purged holds air, which moves every mode), solved from the real-gas
 model at the rig's temperature; when no air fraction within 0 to 0.5 gives
 that sound speed, as an **effective gas temperature** instead
-(``c`` grows about 0.17 % per kelvin, physics.md section 2).
+(``c`` grows about 0.17 % per kelvin, DEVELOPERS.md Methods §2).
 """
 
 from __future__ import annotations

@@ -1,6 +1,6 @@
 """The safety cautions shown where showkit starts and where it sets levels.
 
-physics.md section 11: flame effects before an audience are regulated (in the
+DEVELOPERS.md Methods §11: flame effects before an audience are regulated (in the
 USA by NFPA 160 and NFPA 58, elsewhere by national and local fire codes, the
 local authority having jurisdiction deciding).  showkit is a planning aid, not
 a safety device.

@@ -1,4 +1,4 @@
-"""The safe-level rule and the drive ceiling (physics.md section 7)."""
+"""The safe-level rule and the drive ceiling (DEVELOPERS.md Methods §7)."""
 
 from __future__ import annotations
 
@@ -42,7 +42,7 @@ def _faded_sine(freq_hz, amplitude, seconds, rate, fade_s=0.5):
 
 def _hand_ceiling_db(rig, freq_hz, amplitude):
     """By hand from the calibration point: cap pressure scales with the digital amplitude,
-    the worst hole by |G_i| / |G_cap| at the tone's frequency (physics.md sections 5 and 7)."""
+    the worst hole by |G_i| / |G_cap| at the tone's frequency (DEVELOPERS.md Methods §5 and §7)."""
     d = rig.drive
     cap_pa = d.reference_pressure_pa * amplitude / 10 ** (d.reference_level_dbfs / 20)
     g, cap = transfer(rig.model, d, [freq_hz])
@@ -53,7 +53,7 @@ def _hand_ceiling_db(rig, freq_hz, amplitude):
 
 
 def test_pressure_ceiling_formula():
-    # g* = (1 - m) dP0 / P (physics.md section 7)
+    # g* = (1 - m) dP0 / P (DEVELOPERS.md Methods §7)
     assert rule.pressure_ceiling_db(15.0, 20.0, 0.25) == pytest.approx(0.0, abs=1e-12)
     assert rule.pressure_ceiling_db(0.0, 20.0, 0.25) == math.inf
     with pytest.raises(ValueError):
@@ -97,7 +97,7 @@ def test_sine_at_the_reference_frequency_against_the_hand_value(rig, filters):
     assert report.worst_hole == hole
     assert report.min_pressure_pa == pytest.approx(rig.reserve * rig.static_pa, rel=1e-9)
     assert report.output_peak_dbfs == pytest.approx(20 * math.log10(amp) + report.ceiling_db, abs=1e-6)
-    assert 0.0 < report.contrast < 0.11  # at the safe line, at most about 10 % (physics.md 6)
+    assert 0.0 < report.contrast < 0.11  # at the safe line, at most about 10 % (DEVELOPERS.md Methods §6)
 
 
 def test_abrupt_start_raises_the_transient(rig, filters):

@@ -69,7 +69,7 @@ def test_static_and_reserve_overrides_move_the_ceiling_exactly(capsys, track):
     reserve = _json(capsys, track, "--reserve", "0.3")
     assert reserve["ceiling_db"] - base["ceiling_db"] == pytest.approx(
         20 * math.log10((1 - 0.3) / (1 - base["reserve"])), abs=1e-9)
-    inches = _json(capsys, track, "--static", "0.1 inH2O")  # 24.9089 Pa (physics.md section 10)
+    inches = _json(capsys, track, "--static", "0.1 inH2O")  # 24.9089 Pa (DEVELOPERS.md Methods §10)
     assert inches["ceiling_db"] - base["ceiling_db"] == pytest.approx(
         20 * math.log10(24.9089 / 20), abs=1e-4)
 

@@ -81,10 +81,10 @@ def test_json_user_rig(capsys, write_rig):
     assert report["rig"] == "Garage tube"
     assert all(m["frequency_hz"] < 600 for m in report["modes"])
     # 5 ft = 1.524 m and 3 in = 76.2 mm bore (exact definitions): limit 1.841 c / (2 pi a)
-    # (physics.md s.3, Kinsler et al.; 1.8412 = first zero of J1', A&S table 9.5)
+    # (DEVELOPERS.md Methods §3, Kinsler et al.; 1.8412 = first zero of J1', A&S table 9.5)
     c = report["gas"]["sound_speed_m_s"]
     assert report["plane_wave_limit_hz"] == pytest.approx(1.8412 * c / (2 * np.pi * 0.0381), rel=1e-4)
-    # butane with 5 % air at 20 C: near CoolProp's n-butane 208.5 m/s (physics.md s.2), a little above
+    # butane with 5 % air at 20 C: near CoolProp's n-butane 208.5 m/s (DEVELOPERS.md Methods §2), a little above
     assert 208.5 < c < 215
 
 
@@ -93,7 +93,7 @@ def test_plain_pipe_json(capsys, write_rig):
     report = _json(capsys, ["modes", "--rig", str(write_rig(text)), "--json", "--max-frequency", "500"])
     _check_contract(report, 0)
     c, length = report["gas"]["sound_speed_m_s"], 1.524
-    # textbook f_n = n c / 2 L (physics.md s.3)
+    # textbook f_n = n c / 2 L (DEVELOPERS.md Methods §3)
     for m in report["modes"]:
         assert m["frequency_hz"] == pytest.approx(m["n"] * c / (2 * length), rel=5e-3)
 

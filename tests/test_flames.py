@@ -1,4 +1,4 @@
-"""Flame heights (physics.md section 6): closed form, frame averages, contrast."""
+"""Flame heights (DEVELOPERS.md Methods §6): closed form, frame averages, contrast."""
 
 from __future__ import annotations
 
@@ -30,7 +30,7 @@ def test_elliptic_e_known_values():
 
 @pytest.mark.parametrize("r", RATIOS)
 def test_sine_closed_form_matches_scipy_ellipe(r):
-    # physics.md section 6: (2/pi) sqrt(1+r) E(2r/(1+r)), E from scipy.special.ellipe
+    # DEVELOPERS.md Methods §6: (2/pi) sqrt(1+r) E(2r/(1+r)), E from scipy.special.ellipe
     expected = 2.0 / math.pi * math.sqrt(1.0 + r) * scipy.special.ellipe(2.0 * r / (1.0 + r))
     assert float(sine_flame_height(r)) == pytest.approx(expected, rel=1e-3)
     assert float(sine_flame_height(r)) == pytest.approx(expected, rel=1e-12)
@@ -38,7 +38,7 @@ def test_sine_closed_form_matches_scipy_ellipe(r):
 
 @pytest.mark.parametrize("r, value", [(0.0, 1.0), (0.5, 0.98334), (1.0, 2 * math.sqrt(2) / math.pi)])
 def test_sine_closed_form_check_values(r, value):
-    # check values quoted in physics.md section 6 (r = 1 -> 2 sqrt(2)/pi = 0.90032)
+    # check values quoted in DEVELOPERS.md Methods §6 (r = 1 -> 2 sqrt(2)/pi = 0.90032)
     assert float(sine_flame_height(r)) == pytest.approx(value, rel=1e-5)
 
 
@@ -57,7 +57,7 @@ def test_frame_flames_of_a_sampled_sine_match_the_closed_form(r):
     pressure = r * static * np.sin(2 * np.pi * t / 480 + 0.3)
     height, air_in = frame_flames(np.vstack([pressure, -pressure]), static, frame)
     assert height.shape == (3, 2)
-    # closed form, physics.md section 6 (Gradshteyn & Ryzhik 2.576), within 0.1 %
+    # closed form, DEVELOPERS.md Methods §6 (Gradshteyn & Ryzhik 2.576), within 0.1 %
     np.testing.assert_allclose(height, float(sine_flame_height(r)), rtol=1e-3)
     assert np.all(air_in == 0.0)
 
@@ -109,7 +109,7 @@ def test_row_contrast():
 
 
 def test_contrast_of_a_safe_standing_wave_is_at_most_about_ten_percent():
-    # physics.md section 6: at r <= 1 the contrast is at most 1 - 2 sqrt(2)/pi (about 10 %)
+    # DEVELOPERS.md Methods §6: at r <= 1 the contrast is at most 1 - 2 sqrt(2)/pi (about 10 %)
     heights = sine_flame_height(np.linspace(0, 1, 41))[None, :]
     c = float(row_contrast(heights)[0])
     assert c == pytest.approx(1 - 2 * math.sqrt(2) / math.pi, rel=1e-9)

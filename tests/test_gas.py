@@ -1,4 +1,4 @@
-"""Gas properties (showkit.physics.gas) against CoolProp and physics.md section 2."""
+"""Gas properties (showkit.physics.gas) against CoolProp and DEVELOPERS.md Methods §2."""
 
 from __future__ import annotations
 
@@ -61,7 +61,7 @@ def test_anywhere_in_the_range_within_half_percent_of_coolprop(fuel, temperature
 
 
 @pytest.mark.parametrize("fuel, temperature_k, c_m_s, rho_kg_m3", [
-    # physics.md s.2, CoolProp 8.0 check values at 101 325 Pa
+    # DEVELOPERS.md Methods §2, CoolProp 8.0 check values at 101 325 Pa
     ("propane", 293.15, 246.59, 1.865),
     ("propane", 303.15, 250.66, None),
     ("methane", 293.15, 445.01, None),
@@ -76,7 +76,7 @@ def test_physics_md_check_values(fuel, temperature_k, c_m_s, rho_kg_m3):
 
 
 def test_physics_md_mixture_check_value():
-    # physics.md s.2: HEOS::Propane[0.9]&Nitrogen[0.079]&Oxygen[0.021] -> 252.69 m/s (CoolProp 8.0).
+    # DEVELOPERS.md Methods §2: HEOS::Propane[0.9]&Nitrogen[0.079]&Oxygen[0.021] -> 252.69 m/s (CoolProp 8.0).
     # showkit's 10 % air is N2 0.0781, O2 0.0210, Ar 0.0009: a molar mass within 0.01 % of that mix.
     assert PropsSI("A", "T", 293.15, "P", P_AMBIENT_PA,
                    "HEOS::Propane[0.9]&Nitrogen[0.079]&Oxygen[0.021]") == pytest.approx(252.69, abs=0.01)
@@ -84,7 +84,7 @@ def test_physics_md_mixture_check_value():
 
 
 def _ideal_gas_sound_speed(fuel: str, temperature_k: float) -> float:
-    """sqrt(gamma0 R T / M) with CoolProp's ideal-gas molar cp (physics.md s.2 formula)."""
+    """sqrt(gamma0 R T / M) with CoolProp's ideal-gas molar cp (DEVELOPERS.md Methods §2 formula)."""
     fluid = coolprop_fluid(fuel, 0.0)
     cp0 = PropsSI("CP0MOLAR", "T", temperature_k, "P", P_AMBIENT_PA, fluid)
     molar_mass = PropsSI("MOLARMASS", "T", temperature_k, "P", P_AMBIENT_PA, fluid)
@@ -93,7 +93,7 @@ def _ideal_gas_sound_speed(fuel: str, temperature_k: float) -> float:
 
 
 def test_propane_real_gas_shortfall_of_about_1p2_percent():
-    # physics.md s.2: propane at 20 C, 1 atm is about 1.2 % below the ideal-gas value
+    # DEVELOPERS.md Methods §2: propane at 20 C, 1 atm is about 1.2 % below the ideal-gas value
     ideal = _ideal_gas_sound_speed("propane", 293.15)
     real = gas_state("propane", 0.0, 293.15).sound_speed_m_s
     shortfall = 1.0 - real / ideal
@@ -113,7 +113,7 @@ def test_methane_is_nearly_ideal():
 @pytest.mark.parametrize("fuel, sign", [("propane", +1), ("butane", +1), ("isobutane", +1),
                                         ("methane", -1), ("natural-gas", -1)])
 def test_air_moves_the_sound_speed_the_expected_way(fuel, sign):
-    # physics.md s.2: air raises c for propane and butane, lowers it for methane
+    # DEVELOPERS.md Methods §2: air raises c for propane and butane, lowers it for methane
     speeds = [gas_state(fuel, x, 293.15).sound_speed_m_s for x in (0.0, 0.05, 0.1, 0.2, 0.3, 0.5)]
     steps = [b - a for a, b in zip(speeds, speeds[1:])]
     assert all(sign * s > 0 for s in steps)
@@ -121,7 +121,7 @@ def test_air_moves_the_sound_speed_the_expected_way(fuel, sign):
 
 @pytest.mark.parametrize("fuel", ["propane", "butane", "methane", "air"])
 def test_sound_speed_follows_sqrt_temperature(fuel):
-    # physics.md s.2: c ~ sqrt(T), about +0.17 %/K near room temperature; slope checked against CoolProp
+    # DEVELOPERS.md Methods §2: c ~ sqrt(T), about +0.17 %/K near room temperature; slope checked against CoolProp
     c1 = gas_state(fuel, 0.0, 293.15).sound_speed_m_s
     c2 = gas_state(fuel, 0.0, 303.15).sound_speed_m_s
     per_kelvin = (c2 / c1 - 1.0) / 10.0

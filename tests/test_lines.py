@@ -64,13 +64,13 @@ def test_zk_function_small_argument_limit():
                                             ("methane", 0.025)])
 def test_wide_tube_attenuation_matches_boundary_layer_formula(fuel, radius_m):
     # Kinsler, Frey, Coppens & Sanders: alpha = (1/(a c)) sqrt(omega nu / 2)(1 + (gamma-1)/sqrt(Pr))
-    # (physics.md s.3); the Zwikker-Kosten line tends to it for wide tubes (Keefe 1984)
+    # (DEVELOPERS.md Methods §3); the Zwikker-Kosten line tends to it for wide tubes (Keefe 1984)
     gas = gas_state(fuel, 0.0, 293.15)
     omega = 2 * np.pi * np.array([50.0, 100.0, 300.0, 1000.0, 2000.0])
     gamma, _ = propagation(omega, radius_m, gas)
     alpha = boundary_layer_attenuation(omega, radius_m, gas)
     assert np.allclose(gamma.real / alpha, 1.0, atol=0.02)
-    # physics.md s.3: the phase speed is lowered by about the same relative amount alpha c / omega
+    # DEVELOPERS.md Methods §3: the phase speed is lowered by about the same relative amount alpha c / omega
     c = gas.sound_speed_m_s
     slowdown = 1.0 - omega / gamma.imag / c
     assert np.allclose(slowdown / (alpha * c / omega), 1.0, atol=0.03)

@@ -164,7 +164,7 @@ def test_todays_static_pressure_rescales_exactly_and_lists_what_must_come_down(s
     halved = {c.id: c for c in check_sheet(sheet, rig, static_pa=rig.static_pa / 2)}
     for cid in ("pa", "pb", "t3", "g"):
         # every one of these cues is pressure-limited with room below full scale, so
-        # doubling dP0 must raise its ceiling by exactly 6.02 dB (physics.md section 7)
+        # doubling dP0 must raise its ceiling by exactly 6.02 dB (DEVELOPERS.md Methods §7)
         assert sheet.cue(cid).lock.limited_by == "pressure"
         assert at_lock[cid].ceiling_db + 20 * math.log10(2) < sheet.cue(cid).lock.full_scale_db
         assert doubled[cid].ceiling_db - at_lock[cid].ceiling_db == pytest.approx(20 * math.log10(2), abs=1e-9)
@@ -236,7 +236,7 @@ def test_render_for_playback_reports_problems_and_shifts_tones_with_temperature(
     assert t3.status == "ok", t3.message  # the tone still fits in warmer gas
     f_cold = np.argmax(np.abs(np.fft.rfft(cold_t3.samples, n=1 << 20)))
     f_warm = np.argmax(np.abs(np.fft.rfft(t3.samples, n=1 << 20)))
-    # c ~ sqrt(T): +10 K near 293 K raises the modes by about 1.7 % (physics.md section 2)
+    # c ~ sqrt(T): +10 K near 293 K raises the modes by about 1.7 % (DEVELOPERS.md Methods §2)
     assert f_warm / f_cold == pytest.approx(math.sqrt((rig.temperature_k + 10) / rig.temperature_k), rel=3e-3)
     low, problems = render_for_playback(show / "show.toml", static_pa=rig.static_pa / 2)
     assert {c.id for c in low if c.status == "over"} >= {"pb"}

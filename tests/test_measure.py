@@ -231,7 +231,7 @@ from hypothesis import given, settings, strategies as st
 @settings(max_examples=15, deadline=None)
 @given(f0=st.floats(60.0, 900.0), q=st.floats(5.0, 200.0), phase=st.floats(-3.0, 3.0))
 def test_resonator_fit_recovers_single_resonance(f0, q, phase):
-    # invariant: a pure resonator 1/(1 + jQ(f/f0 - f0/f)) (physics.md section 8), with any
+    # invariant: a pure resonator 1/(1 + jQ(f/f0 - f0/f)) (DEVELOPERS.md Methods §8), with any
     # complex amplitude, is found at f0 with its Q
     f = np.arange(30.0, 1000.0, 0.05)
     # the formula written out here, independent of the code's own resonator()

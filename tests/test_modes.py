@@ -17,7 +17,7 @@ from showkit.rigfile import load_rig
 
 def uniform_tube(count: int = 79, hole_diameter_m: float = 0.0015, length_m: float = 2.0,
                  bore_m: float = 0.075) -> TubeGeometry:
-    """Holes evenly along the whole tube (physics.md s.4 example by default)."""
+    """Holes evenly along the whole tube (DEVELOPERS.md Methods §4 example by default)."""
     return TubeGeometry(length_m, bore_m, 0.002,
                         tuple(np.linspace(0.0, length_m, count + 2)[1:-1]), hole_diameter_m)
 
@@ -46,7 +46,7 @@ def test_numbering_starts_at_breathing_mode_and_steps_by_one(example_modes, demo
 
 
 def test_breathing_mode_facts(example_modes):
-    # physics.md s.4: uniform pressure, every flame pulses together, no pattern
+    # DEVELOPERS.md Methods §4: uniform pressure, every flame pulses together, no pattern
     _, modes = example_modes
     zero = modes[0]
     assert zero.n == 0 and zero.pattern == "breathing"
@@ -55,7 +55,7 @@ def test_breathing_mode_facts(example_modes):
 
 
 def test_breathing_mode_is_uniform_without_losses():
-    # physics.md s.4: omega^2 = omega_H^2 + c^2 k^2 with k = 0 for the breathing mode (uniform pressure)
+    # DEVELOPERS.md Methods §4: omega^2 = omega_H^2 + c^2 k^2 with k = 0 for the breathing mode (uniform pressure)
     gas = dataclasses.replace(gas_state("air", 0.0, 293.15), viscosity_pa_s=1e-12)
     zero = find_modes(TubeModel(uniform_tube(), gas), 200.0)[0]
     assert zero.n == 0
@@ -63,7 +63,7 @@ def test_breathing_mode_is_uniform_without_losses():
 
 
 def test_hole_shapes_follow_cosines(example_modes):
-    # physics.md s.4: with holes spread evenly the dispersion relation keeps k = n pi / L, so the
+    # DEVELOPERS.md Methods §4: with holes spread evenly the dispersion relation keeps k = n pi / L, so the
     # pressure along the row is still cos(n pi x / L) (n >= 2; n = 1 mixes with the breathing mode)
     geom, modes = example_modes
     x = geom.positions
@@ -76,7 +76,7 @@ def test_hole_shapes_follow_cosines(example_modes):
 
 
 def test_flame_peaks_and_spacing(example_modes):
-    # physics.md s.6: flames tallest at pressure nodes, half a wavelength apart (L / n here)
+    # DEVELOPERS.md Methods §6: flames tallest at pressure nodes, half a wavelength apart (L / n here)
     geom, modes = example_modes
     first, last = geom.positions[0], geom.positions[-1]
     for m in modes[1:]:
@@ -98,7 +98,7 @@ def test_flame_peaks_count_only_nodes_over_the_row(air_20c):
 
 
 def test_unresolved_when_fewer_than_four_holes_per_half_wave(air_20c):
-    # physics.md s.6: a readable pattern needs about 4 or more holes per half-wavelength
+    # DEVELOPERS.md Methods §6: a readable pattern needs about 4 or more holes per half-wavelength
     # (common practice, no source); 10 holes 0.2 m apart on a 2 m tube
     geom = TubeGeometry(2.0, 0.075, 0.002, tuple(0.1 + 0.2 * np.arange(10)), 0.003)
     modes = find_modes(TubeModel(geom, air_20c), 1200.0)
@@ -125,7 +125,7 @@ def test_plain_pipe_patterns(air_20c):
 
 
 def test_no_mode_above_the_plane_wave_limit():
-    # Kinsler et al. / Morse & Ingard (physics.md s.3): first cross mode f_c = 1.841 c / (2 pi a)
+    # Kinsler et al. / Morse & Ingard (DEVELOPERS.md Methods §3): first cross mode f_c = 1.841 c / (2 pi a)
     from CoolProp.CoolProp import PropsSI
 
     gas = gas_state("air", 0.0, 293.15)
@@ -152,7 +152,7 @@ def test_f_max_limits_the_search(demo):
 
 
 def test_hole_resistance_lowers_q(air_20c):
-    # physics.md s.3: holes and flames dissipate, so a hole resistance must lower every Q
+    # DEVELOPERS.md Methods §3: holes and flames dissipate, so a hole resistance must lower every Q
     geom = uniform_tube()
     lossy = dataclasses.replace(geom, hole_resistance_pa_s_m3=3e6)
     q0 = {m.n: m.q for m in find_modes(TubeModel(geom, air_20c), 600.0)}
@@ -163,7 +163,7 @@ def test_hole_resistance_lowers_q(air_20c):
 
 
 def test_q_is_half_power_bandwidth(demo):
-    # physics.md s.8-9: Q = f_n / half-power bandwidth of |Z_in|^2
+    # DEVELOPERS.md Methods §8-9: Q = f_n / half-power bandwidth of |Z_in|^2
     rig, modes = demo
     for m in modes[2:6]:
         f = m.frequency_hz

@@ -53,7 +53,7 @@ def test_nearest_note_against_librosa(freq_hz):
 
 
 @pytest.mark.parametrize("freq_hz, name", [
-    # equal-temperament values from f = 440 * 2^((m - 69)/12) (physics.md s.8), 2 decimals
+    # equal-temperament values from f = 440 * 2^((m - 69)/12) (DEVELOPERS.md Methods §8), 2 decimals
     (261.63, "C4"), (27.50, "A0"), (4186.01, "C8"), (466.16, "A#4"), (82.41, "E2"), (110.0, "A2"),
 ])
 def test_known_notes(freq_hz, name):
@@ -63,7 +63,7 @@ def test_known_notes(freq_hz, name):
 
 
 def test_cents():
-    # 1200 log2(f / f_ref) (physics.md s.8): an octave is 1200 cents, a semitone 100
+    # 1200 log2(f / f_ref) (DEVELOPERS.md Methods §8): an octave is 1200 cents, a semitone 100
     assert cents(880.0, 440.0) == pytest.approx(1200.0)
     assert cents(440.0 * 2 ** (1 / 12), 440.0) == pytest.approx(100.0)
     assert cents(440.0, 880.0) == pytest.approx(-1200.0)

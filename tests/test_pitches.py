@@ -29,7 +29,7 @@ def measured(x, rate=RATE):
 
 @pytest.mark.parametrize("midi", [43, 50, 57, 61.5, 69, 74, 79])
 def test_known_notes_within_5_cents(midi):
-    # tuning formula f = 440 * 2^((m - 69) / 12), ISO 16:1975 (physics.md section 8)
+    # tuning formula f = 440 * 2^((m - 69) / 12), ISO 16:1975 (DEVELOPERS.md Methods §8)
     f = 440.0 * 2 ** ((midi - 69) / 12)
     d = measured(tone(f))
     assert np.all(np.abs(1200 * np.log2(d / f)) < 5.0)
@@ -100,7 +100,7 @@ def test_mapping_offsets_and_band():
     j, cents = nearest_modes(f, TABLE)
     assert list(j[:5]) == [1, 1, 2, 3, 0] and j[5] == -1
     assert np.allclose(cents[:3], [0.0, 20.0, -5.0])
-    # half-power half-width f_n / (2 Q) (physics.md section 8): Q = 20 -> 43 cents, Q = 40 -> 21.6 cents
+    # half-power half-width f_n / (2 Q) (DEVELOPERS.md Methods §8): Q = 20 -> 43 cents, Q = 40 -> 21.6 cents
     assert TABLE.half_width_cents[1] == pytest.approx(1200 * np.log2(1 + 0.5 / 20))
 
 

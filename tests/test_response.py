@@ -1,4 +1,4 @@
-"""Pressure at every hole over time (physics.md sections 5 and 7): filters, simulate, pressure_signal."""
+"""Pressure at every hole over time (DEVELOPERS.md Methods §5 and §7): filters, simulate, pressure_signal."""
 
 from __future__ import annotations
 
@@ -52,7 +52,7 @@ def test_filters_of_the_demo_rig(rig, filters):
 def test_transfer_calibration_point_and_no_dc(rig):
     d = rig.drive
     g, cap = transfer(rig.model, d, [0.0, d.reference_frequency_hz])
-    # the calibration point (physics.md section 5): P_ref at the cap for 10^(L/20) full scale
+    # the calibration point (DEVELOPERS.md Methods §5): P_ref at the cap for 10^(L/20) full scale
     assert abs(cap[1]) * 10 ** (d.reference_level_dbfs / 20) == pytest.approx(d.reference_pressure_pa,
                                                                                rel=1e-12)
     # the drive model (band-pass) and the tube have no response at DC
@@ -165,7 +165,7 @@ def test_no_missed_crest_between_samples(rig, filters):
     """A tone at fs/4 whose crest at the worst hole falls half-way between samples.
 
     Reference: the pressure evaluated analytically from the transfer function on a
-    16x oversampled grid (physics.md section 7: a sampled sine misses its crest by
+    16x oversampled grid (DEVELOPERS.md Methods §7: a sampled sine misses its crest by
     1 - cos(pi f / fs)).
     """
     fs = filters.rate_hz

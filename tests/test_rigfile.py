@@ -60,7 +60,7 @@ def test_good_rig_in_si():
 
 
 def test_units_in_rig_files():
-    # exact definitions: 6 ft 6 in = 1.9812 m; inH2O 249.089 Pa (physics.md s.10); 68 F = 20 C
+    # exact definitions: 6 ft 6 in = 1.9812 m; inH2O 249.089 Pa (DEVELOPERS.md Methods §10); 68 F = 20 C
     text = _swap('length = "2 m"', 'length = "6 ft 6 in"')
     text = _swap('fuel = "propane"', 'fuel = "propane"\nstatic_pressure = "0.1 inH2O"\n'
                  'temperature = "68 F"\nambient = "1000 mbar"', text)

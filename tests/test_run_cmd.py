@@ -83,7 +83,7 @@ def test_auto_rehearsal_plays_every_playable_cue_in_order(sheet, tmp_path, patch
     assert "rehearsal NOT complete: 1 of 4 cue(s) skipped: old (stale" in out
     assert "every playable cue was played" not in out
     # the readings reached the pre-show render in SI (0.09 inH2O = 22.4 Pa): conventional
-    # 1 inH2O = 249.0889 Pa, 1000 kg/m3 x 9.80665 m/s2 x 0.0254 m (physics.md s.10; NIST SP 811's
+    # 1 inH2O = 249.0889 Pa, 1000 kg/m3 x 9.80665 m/s2 x 0.0254 m (DEVELOPERS.md Methods §10; NIST SP 811's
     # 4 C / 39.2 F value would be 249.082 Pa)
     assert patched_render[0][1] == pytest.approx(0.09 * 249.0889, rel=1e-3)
     assert patched_render[0][2] == pytest.approx(297.15)

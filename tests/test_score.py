@@ -124,14 +124,14 @@ def test_gaps_are_bridged_only_where_allowed():
 
 
 def test_reference_contrast_closed_form():
-    # physics.md section 6: <sqrt(1 + r sin t)> at r = 1 is 2 sqrt(2) / pi = 0.90032
+    # DEVELOPERS.md Methods §6: <sqrt(1 + r sin t)> at r = 1 is 2 sqrt(2) / pi = 0.90032
     assert sc.reference_contrast(0.0) == pytest.approx(1 - 0.90032, abs=1e-5)
     assert sc.reference_contrast(0.5) == pytest.approx(1 - 0.98334, abs=1e-5)  # r = 0.5 -> 0.98334
 
 
 def test_passage_level_puts_the_worst_hole_at_the_safe_line():
     # a uniform 2 Pa swing at half the holes, 0 at the others; static 20 Pa, reserve 0.25:
-    # ceiling = 20 log10(0.75 * 20 / 2) (physics.md section 7)
+    # ceiling = 20 log10(0.75 * 20 / 2) (DEVELOPERS.md Methods §7)
     env = np.zeros((10, 8))
     env[:, :4] = 2.0
     lvl = sc.passage_level(env, peak=0.01, static_pa=20.0, reserve=0.25)

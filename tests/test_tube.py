@@ -30,7 +30,7 @@ def coolprop_sound_speed(fluid: str, temperature_k: float = 293.15) -> float:
 
 
 def physics_md_geometry(hole_diameter_m: float = 0.0015) -> TubeGeometry:
-    """physics.md s.4 example: 2.0 m, 75 mm bore, 79 holes of 1.5 mm in a 2 mm wall, evenly spaced."""
+    """DEVELOPERS.md Methods §4 example: 2.0 m, 75 mm bore, 79 holes of 1.5 mm in a 2 mm wall, evenly spaced."""
     return TubeGeometry(2.0, 0.075, 0.002, tuple(np.linspace(0.0, 2.0, 79 + 2)[1:-1]), hole_diameter_m)
 
 
@@ -38,7 +38,7 @@ def physics_md_geometry(hole_diameter_m: float = 0.0015) -> TubeGeometry:
 
 PLAIN_PIPES = [
     # (fuel, CoolProp fluid, length m, bore m): propane and wide pipes keep the wall-loss
-    # dispersion (about alpha c / omega, physics.md s.3) well inside 0.5 %
+    # dispersion (about alpha c / omega, DEVELOPERS.md Methods §3) well inside 0.5 %
     ("propane", "Propane", 2.0, 0.075),
     ("air", "Air", 1.0, 0.10),
     ("butane", "n-Butane", 3.0, 0.12),
@@ -53,7 +53,7 @@ def plain_pipe(request):
 
 
 def test_plain_pipe_modes_are_n_c_over_2L(plain_pipe):
-    # textbook closed-closed pipe f_n = n c / (2 L) (Kinsler et al.; physics.md s.3), c from CoolProp
+    # textbook closed-closed pipe f_n = n c / (2 L) (Kinsler et al.; DEVELOPERS.md Methods §3), c from CoolProp
     model, modes, c = plain_pipe
     length = model.geometry.length_m
     assert [m.n for m in modes] == list(range(1, len(modes) + 1))
@@ -65,7 +65,7 @@ def test_plain_pipe_modes_are_n_c_over_2L(plain_pipe):
 
 
 def test_plain_pipe_mode_shapes_are_cosines(plain_pipe):
-    # physics.md s.3: pressure shape cos(n pi x / L), antinodes at both ends
+    # DEVELOPERS.md Methods §3: pressure shape cos(n pi x / L), antinodes at both ends
     model, modes, _ = plain_pipe
     length = model.geometry.length_m
     x = np.linspace(0.0, length, 201)
@@ -81,7 +81,7 @@ def test_plain_pipe_mode_shapes_are_cosines(plain_pipe):
 
 
 def test_plain_pipe_wall_loss_q_matches_boundary_layer_formula(plain_pipe):
-    # physics.md s.3 (Kinsler et al.): alpha from the boundary layers; a mode's Q = omega / (2 alpha c)
+    # DEVELOPERS.md Methods §3 (Kinsler et al.): alpha from the boundary layers; a mode's Q = omega / (2 alpha c)
     model, modes, _ = plain_pipe
     gas = model.gas
     for m in modes:
@@ -90,7 +90,7 @@ def test_plain_pipe_wall_loss_q_matches_boundary_layer_formula(plain_pipe):
         q_formula = omega / (2 * alpha * gas.sound_speed_m_s)
         assert m.q is not None
         assert m.q == pytest.approx(q_formula, rel=0.10)
-    # wall losses alone give Q in the hundreds (physics.md s.3)
+    # wall losses alone give Q in the hundreds (DEVELOPERS.md Methods §3)
     assert modes[0].q > 100
 
 
@@ -113,13 +113,13 @@ def test_response_at_points_agrees_with_holes_input_and_cap():
 
 
 def test_holes_raise_the_low_modes():
-    # physics.md s.4 (Gardner, Gee & Dix 2009): the holes shift the low modes up, the high ones little
+    # DEVELOPERS.md Methods §4 (Gardner, Gee & Dix 2009): the holes shift the low modes up, the high ones little
     gas = gas_state("air", 0.0, 293.15)
     with_holes = find_modes(TubeModel(physics_md_geometry(), gas), 900.0)
     plain = find_modes(TubeModel(TubeGeometry(2.0, 0.075, 0.002), gas), 900.0)
     plain_by_n = {m.n: m.frequency_hz for m in plain}
     shift = [m.frequency_hz / plain_by_n[m.n] - 1.0 for m in with_holes if m.n in plain_by_n]
-    assert shift[0] > 0.5          # n = 1: 141 Hz against 86 Hz (physics.md s.4, openwind 0.12.4 example)
+    assert shift[0] > 0.5          # n = 1: 141 Hz against 86 Hz (DEVELOPERS.md Methods §4, openwind 0.12.4 example)
     assert all(a > b > 0 for a, b in zip(shift, shift[1:]))
     assert shift[-1] < 0.02
 
@@ -146,7 +146,7 @@ def test_reference_file_describes_what_it_claims():
 
 
 def test_openwind_reference_reproduces_physics_md_example():
-    # physics.md s.4 (openwind 0.12.4, TMM, 20 C): 111, 141.5, 206.5, 282.5, 362.5, 445 Hz, read off
+    # DEVELOPERS.md Methods §4 (openwind 0.12.4, TMM, 20 C): 111, 141.5, 206.5, 282.5, 362.5, 445 Hz, read off
     # a 0.5 Hz grid; the cached peaks are refined, so they agree within that grid's half step
     peaks = _reference()["geometries"][0]["peaks_hz"][:6]
     assert np.allclose(peaks, [111, 141.5, 206.5, 282.5, 362.5, 445], atol=0.6)
@@ -172,7 +172,7 @@ def test_modes_match_openwind_peaks(index, air_20c):
 
 
 def test_physics_md_example_values(air_20c):
-    # physics.md s.4: openwind peaks 111, 141.5, 206.5, 282.5, 362.5, 445 Hz for this tube
+    # DEVELOPERS.md Methods §4: openwind peaks 111, 141.5, 206.5, 282.5, 362.5, 445 Hz for this tube
     modes = find_modes(TubeModel(physics_md_geometry(), air_20c), 460.0)
     published = [111, 141.5, 206.5, 282.5, 362.5, 445]
     assert [m.n for m in modes] == list(range(6))
@@ -180,18 +180,18 @@ def test_physics_md_example_values(air_20c):
         assert m.frequency_hz == pytest.approx(f, rel=0.04 if m.n <= 1 else 0.015)
 
 
-# --- long-wave formula (physics.md s.4), an independent check ----------------------------
+# --- long-wave formula (DEVELOPERS.md Methods §4), an independent check ----------------------------
 
 
 def _long_wave(geom: TubeGeometry, c: float, n: int) -> float:
-    """f_n = sqrt(f_H^2 + (n c / 2L)^2), omega_H^2 = c^2 N S_h / (V l_e) (physics.md s.4)."""
+    """f_n = sqrt(f_H^2 + (n c / 2L)^2), omega_H^2 = c^2 N S_h / (V l_e) (DEVELOPERS.md Methods §4)."""
     omega_h2 = c * c * geom.hole_count * geom.hole_area_m2 / (geom.volume_m3 * geom.effective_hole_length_m)
     return float(np.sqrt(omega_h2 / (2 * np.pi) ** 2 + (n * c / (2 * geom.length_m)) ** 2))
 
 
 @pytest.mark.parametrize("count, hole_diameter_m", [(79, 0.0015), (99, 0.004)])
 def test_long_wave_formula_without_wall_losses(count, hole_diameter_m):
-    # physics.md s.4: many holes act as a distributed shunt mass, f_n ~ sqrt(f_H^2 + (n c/2L)^2).
+    # DEVELOPERS.md Methods §4: many holes act as a distributed shunt mass, f_n ~ sqrt(f_H^2 + (n c/2L)^2).
     # With the gas's viscosity made negligible the formula's assumptions hold (lossless mass l_e),
     # so the transfer-matrix chain of discrete holes must reproduce it closely.
     gas = dataclasses.replace(gas_state("air", 0.0, 293.15), viscosity_pa_s=1e-12)
@@ -203,9 +203,9 @@ def test_long_wave_formula_without_wall_losses(count, hole_diameter_m):
 
 
 def test_long_wave_formula_with_real_losses(air_20c):
-    # physics.md s.4: with real air the formula stays close for n >= 3 (within 2 %); the low modes
+    # DEVELOPERS.md Methods §4: with real air the formula stays close for n >= 3 (within 2 %); the low modes
     # lie below it, because the boundary layer in the narrow hole bore adds acoustic mass
-    # (physics.md itself quotes 120 Hz from the formula against openwind's 111 Hz for n = 0)
+    # (the Methods notes quote 120 Hz from the formula against openwind's 111 Hz for n = 0)
     geom = physics_md_geometry()
     modes = find_modes(TubeModel(geom, air_20c), 900.0)
     c = air_20c.sound_speed_m_s

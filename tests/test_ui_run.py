@@ -60,7 +60,7 @@ async def test_low_manometer_reading_lists_the_cues_that_no_longer_fit(ui_show, 
         gains = {c.id: c.gain_db for c in app.session.sheet.cues}
         await _check(pilot, static="4 Pa")
         run = app.query_one(RunView)
-        # physics.md: a ceiling scales exactly with the static pressure, +20 log10(ratio) dB
+        # DEVELOPERS.md Methods: a ceiling scales exactly with the static pressure, +20 log10(ratio) dB
         today = {cid: c + 20 * math.log10(4.0 / rig_static) for cid, c in at_rig.items()}
         expected = {cid for cid, c in today.items() if gains[cid] > c + 1e-6}
         assert expected  # the reading is low enough that some cue no longer fits
@@ -247,7 +247,7 @@ async def test_manometer_change_after_the_check_blocks_the_cue_in_the_run_view(u
         rig_static = app.session.rig.static_pa
         at_rig = {c.id: c.ceiling_db for c in run.cues}
         gains = {c.id: c.gain_db for c in run.cues}
-        # physics.md s.7: a pressure-limited ceiling moves by exactly 20 log10(ratio) dB
+        # DEVELOPERS.md Methods §7: a pressure-limited ceiling moves by exactly 20 log10(ratio) dB
         today = {cid: c + 20 * math.log10(2.0 / rig_static) for cid, c in at_rig.items()}
         expected = {cid for cid, c in today.items() if gains[cid] > c + 1e-6}
         assert expected and len(expected) < len(gains)
@@ -305,7 +305,7 @@ async def test_a_cue_playing_when_the_ceiling_comes_down_is_brought_down_and_hel
         engine, stream = run.engine, fake_sd.streams[-1]
         first = run.cues[0]
         # a reading that takes the first cue's ceiling to 3 dB below its gain (exact scaling,
-        # physics.md s.7); within the plausible range of the one door
+        # DEVELOPERS.md Methods §7); within the plausible range of the one door
         static = app.session.rig.static_pa * 10 ** ((first.gain_db - 3.0 - first.ceiling_db) / 20)
         assert 1.0 <= static < app.session.rig.static_pa
         await pilot.press("enter")

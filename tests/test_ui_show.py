@@ -155,7 +155,7 @@ async def test_manometer_reading_rederives_ceilings(ui_show):
         after = app.session.checks["mode-4"].ceiling_db
         assert app.session.rig.static_pa == pytest.approx(10.0)
         # half the static pressure: the pressure ceiling comes down by 20 log10(2) = 6.02 dB
-        # (exact scaling, physics.md section 7) when the reserve fraction is unchanged
+        # (exact scaling, DEVELOPERS.md Methods §7) when the reserve fraction is unchanged
         assert after == pytest.approx(before - 6.0206, abs=0.01)
 
 

@@ -29,7 +29,7 @@ async def test_tube_view_modes_flames_and_conditions(ui_show):
         assert drawing.caption.startswith("mode 3,")
         assert drawing.height_row is not None and len(drawing.height_row) == app.session.rig.geometry.hole_count
         # the predicted row is the flame model's: mode 3 shows three tall-flame groups
-        # (flames stand tallest at the pressure nodes, physics.md section 6)
+        # (flames stand tallest at the pressure nodes, DEVELOPERS.md Methods §6)
         import numpy as np
 
         h = np.asarray(drawing.height_row)
@@ -47,7 +47,7 @@ async def test_tube_view_modes_flames_and_conditions(ui_show):
         await settle(pilot)
         after = app.session.modes[3].frequency_hz
         assert app.session.rig.temperature_k == pytest.approx(323.15)
-        # ideal-gas scaling sqrt(323.15 / 293.15) = 1.0499 (physics.md s.2: c ~ sqrt(T));
+        # ideal-gas scaling sqrt(323.15 / 293.15) = 1.0499 (DEVELOPERS.md Methods §2: c ~ sqrt(T));
         # the real-gas model and losses keep it within half a percent of that
         assert after / before == pytest.approx((323.15 / 293.15) ** 0.5, rel=5e-3)
         # c adds a tone cue on the selected mode to the show

@@ -1,4 +1,4 @@
-"""Unit conversions at the edges (showkit.units) against physics.md section 10."""
+"""Unit conversions at the edges (showkit.units) against DEVELOPERS.md Methods §10."""
 
 from __future__ import annotations
 
@@ -15,18 +15,18 @@ from showkit.errors import InputError
 
 
 @pytest.mark.parametrize("text, pa", [
-    # conventional inch of water: 1000 kg/m3 x 9.80665 m/s2 x 0.0254 m = 249.08891 Pa (physics.md s.10)
+    # conventional inch of water: 1000 kg/m3 x 9.80665 m/s2 x 0.0254 m = 249.08891 Pa (DEVELOPERS.md Methods §10)
     ("1 inH2O", 249.08891),
     ("0.1 inH2O", 24.908891),
     ("1 inWC", 249.08891),
-    # mm of water 9.80665 Pa (physics.md s.10)
+    # mm of water 9.80665 Pa (DEVELOPERS.md Methods §10)
     ("1 mmH2O", 9.80665),
     ("2 mmWC", 19.6133),
-    # 1 mbar = 100 Pa (SI definition of the bar, physics.md s.10)
+    # 1 mbar = 100 Pa (SI definition of the bar, DEVELOPERS.md Methods §10)
     ("0.25 mbar", 25.0),
     ("1 hPa", 100.0),
     ("1 kPa", 1000.0),
-    # 1 psi = 6894.757 Pa (NIST SP 811 appendix B, physics.md s.10)
+    # 1 psi = 6894.757 Pa (NIST SP 811 appendix B, DEVELOPERS.md Methods §10)
     ("1 psi", 6894.757),
     ("25 Pa", 25.0),
     ("25Pa", 25.0),
@@ -37,7 +37,7 @@ def test_pressure_units(text, pa):
 
 
 def test_inch_of_water_is_the_conventional_one():
-    # physics.md s.10: conventional 249.089 Pa, not the 39.2 F value 249.082 Pa of NIST SP 811
+    # DEVELOPERS.md Methods §10: conventional 249.089 Pa, not the 39.2 F value 249.082 Pa of NIST SP 811
     assert units.INCH_WATER_PA == pytest.approx(249.089, abs=5e-4)
     assert abs(units.INCH_WATER_PA - 249.082) > 5e-3
 

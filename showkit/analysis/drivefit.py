@@ -1,7 +1,7 @@
 """The drive side of a measurement: the measured drive response and a safe sweep level.
 
 - Drive response: the measured cap response is ``M(f) = k D(f) H_cap(f)``
-  (physics.md section 5: recorder sensitivity ``k``, drive ``D``, tube
+  (DEVELOPERS.md Methods §5: recorder sensitivity ``k``, drive ``D``, tube
   ``H_cap``).  Dividing by the fitted model's ``H_cap`` gives ``|D|`` up to
   a constant; it is averaged by energy in sixth-octave bands
   (``|D|^2 = sum |M|^2 / sum |H_cap|^2``), which keeps small mismatches of
@@ -11,7 +11,7 @@
   the pressure amplitude ``|G_i(f)| A`` with ``G_i = K D(f) H_i(f)`` and
   ``K`` fixed by the calibration point (a sine at ``reference_frequency``
   and ``reference_level`` dBFS peak gives ``reference_pressure`` zero-to-peak
-  at the cap).  The safe-level rule (physics.md section 7) then bounds the
+  at the cap).  The safe-level rule (DEVELOPERS.md Methods §7) then bounds the
   sweep amplitude by ``max_{i,f} |G_i(f)| A <= (1 - reserve) static_pa``.
   A sweep passes each resonance in finite time, so its response stays near
   or below the steady-state value; the bound is the steady state.

@@ -1,7 +1,7 @@
 """The tube's modes as a table, and the dominant pitch of each frame.
 
 :class:`ModeTable` holds the rig's modes as arrays: frequency, Q, the
-half-power half-width ``f_n / (2 Q)`` in cents (physics.md section 8) and
+half-power half-width ``f_n / (2 Q)`` in cents (DEVELOPERS.md Methods §8) and
 whether the holes resolve the mode's pattern.  The notes themselves are
 found by :mod:`showkit.analysis.multipitch`; :func:`dominant_pitch` picks the
 line a listener follows from them (checked against the melody of rendered

@@ -5,9 +5,9 @@ Method
 1. Peaks of ``|H|`` with at least ``min_prominence_db`` of prominence
    (scipy.signal.find_peaks) give candidates; the half-power bandwidth
    around each (the -3 dB points, not past a neighbouring peak) gives a first
-   Q (physics.md section 9).
+   Q (DEVELOPERS.md Methods §9).
 2. Each candidate is refined by a least-squares fit of the complex response
-   near it to the resonator of physics.md section 8,
+   near it to the resonator of DEVELOPERS.md Methods §8,
 
        H(f) = exp(-j 2 pi f d) [ sum_m A_m / (1 + j Q_m (f / f_m - f_m / f)) + B0 + B1 u ]
 
@@ -100,7 +100,7 @@ def half_power_q(freq_hz: np.ndarray, power: np.ndarray, k: int, lo: int, hi: in
 
 
 def resonator(freq_hz, f0_hz, q) -> np.ndarray:
-    """``1 / (1 + j Q (f/f0 - f0/f))`` (physics.md section 8)."""
+    """``1 / (1 + j Q (f/f0 - f0/f))`` (DEVELOPERS.md Methods §8)."""
     f = np.asarray(freq_hz, dtype=float)
     return 1.0 / (1.0 + 1j * q * (f / f0_hz - f0_hz / f))
 

@@ -5,7 +5,7 @@ tube, the *strength* (0 to 1) is the share of the music's energy in the
 tube's band carried by the notes sitting on that mode: a note is on a mode
 when its fundamental lies within the mode's half-power half-width
 ``f_n / (2 Q)`` widened to :data:`MIN_TOLERANCE_CENTS` (the gas warms during a
-show and moves the modes by about 3 cents per kelvin; physics.md section 2)
+show and moves the modes by about 3 cents per kelvin; DEVELOPERS.md Methods §2)
 and at most :data:`MAX_TOLERANCE_CENTS`, and only its sustained part counts
 (the harmonic/percussive split).  The strength is then gated on an absolute
 scale: frames more than :data:`GATE_RANGE_DB` below the track's loud level

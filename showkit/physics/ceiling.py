@@ -1,4 +1,4 @@
-"""The safe-level rule and the drive ceiling (physics.md section 7).
+"""The safe-level rule and the drive ceiling (DEVELOPERS.md Methods §7).
 
 The pressure at every hole must stay above ambient by a reserve at every
 moment: ``dP0 + g p_i(t) >= m dP0`` for all holes ``i`` and times ``t``.  The

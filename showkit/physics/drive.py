@@ -1,4 +1,4 @@
-"""From digital signal to volume velocity at the membrane (physics.md section 5).
+"""From digital signal to volume velocity at the membrane (DEVELOPERS.md Methods §5).
 
 The loudspeaker behind the membrane is a volume-velocity source ``U(omega)``.
 Until a measured response replaces it, the default drive model is a

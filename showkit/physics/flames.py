@@ -1,4 +1,4 @@
-"""Flame heights from the pressure at the holes (physics.md section 6).
+"""Flame heights from the pressure at the holes (DEVELOPERS.md Methods §6).
 
 Outflow through a hole follows the orifice law ``u = C_d sqrt(2 dp / rho)``
 for ``dp > 0`` and stops (air is drawn in) for ``dp <= 0``.  A laminar jet

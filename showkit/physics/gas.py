@@ -6,7 +6,7 @@ A truncated virial equation of state in the Leiden form, ``Z = 1 + B(T) rho``,
 with every thermodynamic derivative taken exactly from its residual Helmholtz
 energy ``a_r / RT = B rho``.  This captures the real-gas effect that matters
 here (propane's sound speed is about 1.2 % below the ideal-gas value at 20 C,
-1 atm; physics.md section 2).
+1 atm; DEVELOPERS.md Methods §2).
 
 - ``B(T)`` of each species: Tsonopoulos corresponding-states correlation
   (C. Tsonopoulos, AIChE J. 20(2), 263-272, 1974), with the critical constants

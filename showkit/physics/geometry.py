@@ -103,7 +103,7 @@ class TubeGeometry:
 
     @property
     def effective_hole_length_m(self) -> float:
-        """``l_e``: wall thickness plus both end corrections, m (physics.md section 4)."""
+        """``l_e``: wall thickness plus both end corrections, m (DEVELOPERS.md Methods §4)."""
         return self.wall_m + self.end_correction_m
 
     @property

@@ -12,7 +12,7 @@ JASA 75(1), 58-62, 1984, eqs. 1-4):
 
 with ``F(z) = 2 J1(z) / (z J0(z))``, ``k_v = sqrt(-j omega rho / mu)`` and
 ``k_t = k_v sqrt(Pr)``.  For wide tubes this reduces to the boundary-layer
-attenuation of Kinsler et al. (physics.md section 3).
+attenuation of Kinsler et al. (DEVELOPERS.md Methods §3).
 
 Only numpy: the Bessel functions of complex argument are a power series for
 small ``|z|`` and Hankel's asymptotic expansion for large (Abramowitz & Stegun

@@ -2,12 +2,11 @@
 
 Resonances are the peaks of the input impedance ``|p(0)/U(0)|`` of the
 transfer-matrix model below the plane-wave limit; Q is the half-power
-bandwidth of ``|Z_in|^2`` (physics.md section 9).  A mode is numbered by its
+bandwidth of ``|Z_in|^2`` (DEVELOPERS.md Methods §9).  A mode is numbered by its
 pressure nodes along the tube: ``n = 0`` is the breathing mode the holes
 create (uniform pressure), ``n >= 1`` has ``n`` nodes.
 
-At safe levels the flames stand tallest at the pressure nodes (physics.md
-section 6), so the number of flame peaks along the row is the number of
+At safe levels the flames stand tallest at the pressure nodes (DEVELOPERS.md Methods §6), so the number of flame peaks along the row is the number of
 nodes that fall within the row of holes, spaced half a wavelength apart.
 A pattern needs about 4 holes per half-wavelength to be read (common
 practice, no source).

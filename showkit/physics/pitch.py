@@ -1,4 +1,4 @@
-"""Twelve-tone equal temperament: note names and cents (physics.md section 8).
+"""Twelve-tone equal temperament: note names and cents (DEVELOPERS.md Methods §8).
 
 ``f = 440 * 2 ** ((m - 69) / 12)`` for MIDI note ``m`` with A4 = 440 Hz
 (ISO 16:1975); cents ``1200 log2(f / f_ref)``.

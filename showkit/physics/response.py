@@ -7,9 +7,9 @@ with that hole's impulse response ``g_i``, the inverse transform of
 
 - ``H_i``: pressure per unit volume velocity (:class:`~showkit.physics.tube.TubeModel`),
 - ``D``: the drive model (:func:`~showkit.physics.drive.driver_shape`),
-- ``K``: the scale fixed by the calibration point (physics.md section 5),
+- ``K``: the scale fixed by the calibration point (DEVELOPERS.md Methods §5),
 - ``W``: a raised-cosine taper from the plane-wave limit ``f_c`` to ``1.2 f_c``;
-  the plane-wave model says nothing above ``f_c`` (physics.md section 3).
+  the plane-wave model says nothing above ``f_c`` (DEVELOPERS.md Methods §3).
 
 The analysis rate is ``fs = 2.5 f_c`` rounded up to a multiple of 300 Hz,
 so that a 30 frame/s flame frame is a whole number of samples.  The impulse
@@ -20,7 +20,7 @@ Convolution is by FFT overlap-add in blocks (memory bounded for any length).
 Each block gives the *analytic* pressure ``p + j H{p}`` (H: Hilbert
 transform): its real part is the pressure, its magnitude an envelope that
 bounds ``|p(t)|`` at every instant, including between samples, so a crest
-that falls between samples is not missed (physics.md section 7).
+that falls between samples is not missed (DEVELOPERS.md Methods §7).
 """
 
 from __future__ import annotations

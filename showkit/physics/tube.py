@@ -3,7 +3,7 @@
 The tube is a chain of lossy plane-wave sections (:mod:`showkit.physics.lines`)
 with each hole a shunt impedance; the cap at ``x = L`` is rigid and the
 membrane at ``x = 0`` is driven as a volume-velocity source ``U``
-(physics.md sections 3-5).  Starting at the cap with ``p = 1, U = 0`` the
+(DEVELOPERS.md Methods §3-5).  Starting at the cap with ``p = 1, U = 0`` the
 state ``(p, U)`` is carried towards the source:
 
     [p, U](x - d) = [[cosh(G d), Zc sinh(G d)], [sinh(G d) / Zc, cosh(G d)]] [p, U](x)

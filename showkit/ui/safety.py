@@ -1,4 +1,4 @@
-"""The safety cautions (physics.md section 11): shown once at first start, and on request."""
+"""The safety cautions (DEVELOPERS.md Methods §11): shown once at first start, and on request."""
 
 from __future__ import annotations
 

@@ -32,7 +32,7 @@ TEMPERATURE_C = 20.0
 def geometries() -> list[dict]:
     """The air-filled test tubes (SI): positions from the driven end."""
     return [
-        {   # physics.md section 4 example
+        {   # DEVELOPERS.md Methods §4 example
             "name": "physics-md-2m",
             "length_m": 2.0, "bore_m": 0.075, "wall_m": 0.002, "hole_diameter_m": 0.0015,
             "hole_positions_m": np.linspace(0.0, 2.0, 79 + 2)[1:-1].tolist(),
