@@ -219,6 +219,26 @@ def _report(rig: Rig, filters: HoleFilters, first: PressureFrames, peak: float, 
                          family_text=family_text, set_by=set_by)
 
 
+def _mono(samples) -> np.ndarray:
+    """Samples as one float64 channel (channels averaged); NaN or infinite ones refused."""
+    x = np.asarray(samples, dtype=float)
+    if x.ndim == 2:
+        x = x.mean(axis=1)
+    if not np.all(np.isfinite(x)):
+        raise AudioError("the signal holds NaN or infinite samples", None, "repair the source")
+    return x
+
+
+def _at_model_rate(rig: Rig, x: np.ndarray, rate_hz: int) -> tuple[HoleFilters, np.ndarray]:
+    """The rig's hole filters and ``x`` resampled to their rate (soxr, HQ)."""
+    filters = hole_filters(rig)
+    if int(rate_hz) == filters.rate_hz:
+        return filters, x
+    import soxr
+
+    return filters, soxr.resample(x, int(rate_hz), filters.rate_hz, quality="HQ")
+
+
 def signal_report(rig: Rig, samples: np.ndarray, rate_hz: int, flames: bool = True,
                   start_s: float = 0.0, robust: bool = True) -> PassageReport:
     """Ceiling (and flames at it) of a signal given as samples.
@@ -238,19 +258,10 @@ def signal_report(rig: Rig, samples: np.ndarray, rate_hz: int, flames: bool = Tr
         The ceiling is the lowest over the rig's loss family (default); with
         False, the best estimate's alone.
     """
-    x = np.asarray(samples, dtype=float)
-    if x.ndim == 2:
-        x = x.mean(axis=1)
+    x = _mono(samples)
     if x.size == 0:
         raise AudioError("the signal holds no samples", None, "give a longer signal")
-    if not np.all(np.isfinite(x)):
-        raise AudioError("the signal holds NaN or infinite samples", None, "repair the source")
-    filters = hole_filters(rig)
-    drive = x
-    if int(rate_hz) != filters.rate_hz:
-        import soxr
-
-        drive = soxr.resample(x, int(rate_hz), filters.rate_hz, quality="HQ")
+    filters, drive = _at_model_rate(rig, x, rate_hz)
     peak = float(np.max(np.abs(x)))
     first = simulate(filters, drive)
 
@@ -373,19 +384,9 @@ def signal_flames(rig: Rig, samples: np.ndarray, rate_hz: int, gain_db: float = 
     gain_db : float
         Gain applied to the samples, dB (finite).
     """
-    x = np.asarray(samples, dtype=float)
-    if x.ndim == 2:
-        x = x.mean(axis=1)
     if not math.isfinite(gain_db):
         raise AudioError(f"the gain {gain_db!r} dB is not a finite number", None, "give a gain in dB")
-    if not np.all(np.isfinite(x)):
-        raise AudioError("the signal holds NaN or infinite samples", None, "repair the source")
-    filters = hole_filters(rig)
-    drive = x
-    if int(rate_hz) != filters.rate_hz:
-        import soxr
-
-        drive = soxr.resample(x, int(rate_hz), filters.rate_hz, quality="HQ")
+    filters, drive = _at_model_rate(rig, _mono(samples), rate_hz)
     return simulate(filters, drive, static_pa=rig.static_pa, gain=10.0 ** (gain_db / 20.0), envelope=False)
 
 

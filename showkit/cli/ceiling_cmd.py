@@ -26,18 +26,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     add_json_option(parser)
 
 
-def _time(text, where):
-    if text is None:
-        return None
-    from showkit import units
-
-    try:
-        return units.duration_s(float(text), where)
-    except ValueError:
-        return units.duration_s(text, where)
-
-
 def run(args) -> int:
+    from showkit.cli.common import time_option
     from showkit.analysis.pressure import passage_report
     from showkit.physics.ceiling import MAX_GAIN_DB
     from showkit.cli.common import load_rig_from_args
@@ -45,7 +35,7 @@ def run(args) -> int:
     from showkit.units import format_time
 
     rig = load_rig_from_args(args)
-    start, end = _time(args.start, "--start"), _time(args.end, "--end")
+    start, end = time_option(args.start, "--start"), time_option(args.end, "--end")
     report = passage_report(rig, args.track, start, end)
     level_caution()
     if args.json:

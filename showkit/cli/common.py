@@ -52,6 +52,18 @@ def load_rig_from_args(args, check_calibration: bool = True):
     return rig.with_conditions(conditions=conditions_from_args(args, rig.conditions))
 
 
+def time_option(text, where: str):
+    """A time option (``42``, ``"42.5 s"``, ``"0:42"``) in seconds, or None when not given."""
+    if text is None:
+        return None
+    from showkit import units
+
+    try:
+        return units.duration_s(float(text), where)
+    except ValueError:
+        return units.duration_s(text, where)
+
+
 def clean_json(value):
     """Make a result JSON-safe: numpy scalars and arrays to lists, non-finite floats to null."""
     import numpy as np

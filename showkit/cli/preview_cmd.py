@@ -40,18 +40,8 @@ def _size(text: str):
     return w, h
 
 
-def _time(text, where):
-    if text is None:
-        return None
-    from showkit import units
-
-    try:
-        return units.duration_s(float(text), where)
-    except ValueError:
-        return units.duration_s(text, where)
-
-
 def run(args) -> int:
+    from showkit.cli.common import time_option
     import sys
     from pathlib import Path
 
@@ -84,7 +74,7 @@ def run(args) -> int:
                 gain = float(str(args.gain).lower().removesuffix("db").strip())
             except ValueError:
                 raise InputError(f"cannot read --gain {args.gain!r}", "--gain", "give dB, e.g. --gain -12") from None
-        tl = track_timeline(rig, src, _time(args.start, "--start"), _time(args.end, "--end"), gain)
+        tl = track_timeline(rig, src, time_option(args.start, "--start"), time_option(args.end, "--end"), gain)
     level_caution()
     result = write_video(tl, args.out, size, args.magnify)
     for note in tl.notes:
