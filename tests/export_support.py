@@ -10,11 +10,15 @@ RATE = 48000
 
 
 def passage_wav(folder: Path) -> Path:
-    """3 s of two held notes on the demo rig's modes 3 and 4 (186.0 and 238.4 Hz, `showkit modes`)."""
+    """3 s of two held notes on the demo rig's modes 3 and 4, as the model computes them (`showkit modes`)."""
     import soundfile as sf
 
+    from showkit.physics.modes import find_modes
+    from showkit.rigfile import load_rig
+
+    f = {m.n: m.frequency_hz for m in find_modes(load_rig().model) if m.n in (3, 4)}
     t = np.arange(3 * RATE) / RATE
-    x = 0.3 * np.where(t < 1.5, np.sin(2 * np.pi * 186.0 * t), np.sin(2 * np.pi * 238.4 * t))
+    x = 0.3 * np.where(t < 1.5, np.sin(2 * np.pi * f[3] * t), np.sin(2 * np.pi * f[4] * t))
     path = Path(folder) / "notes.wav"
     sf.write(path, x, RATE, subtype="FLOAT")
     return path
