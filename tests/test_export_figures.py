@@ -8,7 +8,6 @@ picture, not a blank page.
 from __future__ import annotations
 
 import numpy as np
-import pytest
 
 from showkit.cli.main import main
 from showkit.export.common import png_size
