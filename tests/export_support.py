@@ -10,20 +10,45 @@ RATE = 48000
 
 
 def passage_wav(folder: Path) -> Path:
-    """3 s of two held notes on the demo rig's modes 3 and 4 (186.0 and 238.4 Hz, `showkit modes`)."""
+    """3 s of two held notes on the demo rig's modes 3 and 4, as the model computes them (`showkit modes`)."""
     import soundfile as sf
 
+    from showkit.physics.modes import find_modes
+    from showkit.rigfile import load_rig
+
+    f = {m.n: m.frequency_hz for m in find_modes(load_rig().model) if m.n in (3, 4)}
     t = np.arange(3 * RATE) / RATE
-    x = 0.3 * np.where(t < 1.5, np.sin(2 * np.pi * 186.0 * t), np.sin(2 * np.pi * 238.4 * t))
+    x = 0.3 * np.where(t < 1.5, np.sin(2 * np.pi * f[3] * t), np.sin(2 * np.pi * f[4] * t))
     path = Path(folder) / "notes.wav"
     sf.write(path, x, RATE, subtype="FLOAT")
     return path
 
 
-def short_sheet(folder: Path) -> Path:
-    """The sheet, locked; then ``loud`` raised over its ceiling and ``changed`` edited (stale)."""
+def over_gain_db(sheet, rig, cue, margin_db: float = 2.0) -> float:
+    """A gain over the cue's locked ceiling far enough that the flame model draws air in.
 
-    from showkit.show.lock import lock_sheet
+    The locked ceiling is the lowest over the loss family and keeps a reserve; the
+    flames are drawn from the best estimate. Air is drawn in where the best
+    estimate's swing exceeds the static pressure, i.e. above the gain
+    20 log10(static / swing at unit gain) dB; ``margin_db`` more than that (and
+    never less than 3 dB over the lock), computed from the cue's own sound.
+    """
+    import math
+
+    from showkit.analysis.pressure import signal_report
+    from showkit.show.sources import cue_signal
+
+    sig = cue_signal(sheet, rig, cue)
+    best = signal_report(rig, sig.samples, sig.rate_hz, flames=False, robust=False)
+    air_db = 20.0 * math.log10(rig.static_pa / best.swing_pa)
+    return max(air_db + margin_db, cue.lock.ceiling_db + 3.0)
+
+
+def short_sheet(folder: Path) -> Path:
+    """The sheet, locked; then ``loud`` raised over its ceiling (until the best estimate draws
+    air in, :func:`over_gain_db`) and ``changed`` edited (stale)."""
+
+    from showkit.show.lock import lock_sheet, sheet_rig
     from showkit.show.sheet import ToneSource, load_sheet, save_sheet
 
     folder = Path(folder)
@@ -70,9 +95,9 @@ fade_in = 0.2
 fade_out = 0.2
 ''', encoding="utf-8")
     sheet = load_sheet(path)
-    lock_sheet(sheet)
-    loud = sheet.cue("loud")
-    sheet.replace_cue("loud", gain_db=loud.lock.ceiling_db + 3.0)
+    rig = sheet_rig(sheet)
+    lock_sheet(sheet, rig)
+    sheet.replace_cue("loud", gain_db=over_gain_db(sheet, rig, sheet.cue("loud")))
     sheet.replace_cue("changed", source=ToneSource(1.2, mode=2))
     save_sheet(sheet)
     return path

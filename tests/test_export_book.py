@@ -60,7 +60,13 @@ def test_book_pages_and_text(book):
     assert "local authority having jurisdiction" in pages[0]
     assert "Demo bench tube" in pages[0] and "20.00 Pa" in pages[0]
     assert sheet.cue("hum").lock is not None
-    assert "calibration 6 Pa at the cap for 120 Hz" in _flat(pages[0])
+    # the cover names the rig's own calibration and drive model (DriveCalibration.describe)
+    from showkit.show.lock import sheet_rig
+
+    drive = sheet_rig(sheet).drive
+    assert f"calibration {drive.reference_pressure_pa:g} Pa at the cap for {drive.reference_frequency_hz:g} Hz" \
+        in _flat(pages[0])
+    assert _flat(drive.describe()) in _flat(pages[0])
     assert "The tube" in whole and "readable" in whole
 
 
@@ -139,4 +145,14 @@ def test_cue_page_flames_are_the_models_at_the_locked_worst_moment(book):
     # stale and over cues: no row for the stale one, the over one's row draws in air somewhere
     by_id = {e.cue.id: e for e in data.entries}
     assert by_id["changed"].height is None and "stale" in by_id["changed"].flames_note
+    # the over cue sits above the best estimate's air-drawing gain (export_support.over_gain_db):
+    # its row is the model's frame at the cue's gain at the locked moment, and it draws air in
+    from showkit.show.sources import cue_signal
+
+    loud = sheet.cue("loud")
+    sig = cue_signal(sheet, rig, loud)
+    over = signal_flames(rig, sig.samples, sig.rate_hz, loud.gain_db)
+    k = int(np.floor(loud.lock.worst_time_s * FRAME_RATE_HZ)) + frame_lag(rig)
+    np.testing.assert_array_equal(by_id["loud"].air_in, over.air_in[k])
+    np.testing.assert_array_equal(by_id["loud"].height, over.height[k])
     assert by_id["loud"].air_in is not None and by_id["loud"].air_in.max() > 0

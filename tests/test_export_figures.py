@@ -8,7 +8,6 @@ picture, not a blank page.
 from __future__ import annotations
 
 import numpy as np
-import pytest
 
 from showkit.cli.main import main
 from showkit.export.common import png_size
@@ -54,22 +53,41 @@ def test_scan_plot(tmp_path, monkeypatch, capsys):
 def test_mode_map_adapter_gives_the_map_form(tmp_path, monkeypatch):
     import soundfile as sf
 
+    from showkit.analysis.scan import track_frames
     from showkit.export.common import mode_map
+    from showkit.physics.modes import find_modes
     from showkit.rigfile import load_rig
 
     monkeypatch.setenv("SHOWKIT_CACHE_DIR", str(tmp_path / "cache"))
+    rig = load_rig()
+    # a steady tone on the demo rig's own mode 4, as the model computes it (`showkit modes`)
+    f4 = next(m.frequency_hz for m in find_modes(rig.model) if m.n == 4)
     rate = 22050
     t = np.arange(int(4 * rate)) / rate
-    sf.write(tmp_path / "tone.wav", 0.3 * np.sin(2 * np.pi * 238.4 * t), rate)
-    m = mode_map(load_rig(), tmp_path / "tone.wav")
+    sf.write(tmp_path / "tone.wav", 0.3 * np.sin(2 * np.pi * f4 * t), rate)
+    m = mode_map(rig, tmp_path / "tone.wav")
     data = m.to_json()
     assert set(data) == {"hop_s", "times_s", "modes", "strength", "hit", "notes_hz"}
     s = np.asarray(data["strength"])
-    assert s.shape == (len(data["modes"]), len(data["times_s"]))
-    assert 0.0 <= s.min() and s.max() == pytest.approx(1.0)
-    # the demo rig's mode 4 is at 238.4 Hz (showkit modes): a steady 238.4 Hz tone drives it most
+    hit = np.asarray(data["hit"])
+    assert s.shape == (len(data["modes"]), len(data["times_s"])) == hit.shape
+    assert hit.dtype == bool
+    assert len(data["notes_hz"]) == len(data["times_s"])
+    # the scan's map is on an absolute 0-1 scale (not normalised to its strongest cell)
+    assert np.all((0.0 <= s) & (s <= 1.0))
+    # the adapter is the scan's map, with at most 10 of its rows kept, unchanged
+    scan = track_frames(rig, tmp_path / "tone.wav")["map"]
+    assert 0 < len(data["modes"]) <= 10
+    rows = [scan["modes"].index(mode) for mode in data["modes"]]
+    assert rows == sorted(rows)
+    assert data["hop_s"] == scan["hop_s"] and data["times_s"] == scan["times_s"]
+    np.testing.assert_array_equal(s, np.asarray(scan["strength"], dtype=float)[rows])
+    np.testing.assert_array_equal(hit, np.asarray(scan["hit"], dtype=bool)[rows])
+    assert data["notes_hz"] == [list(r) for r in scan["notes_hz"]]
+    # the tone on mode 4 drives mode 4 most, and it is hit
     strongest = data["modes"][int(np.argmax(s.sum(axis=1)))]
     assert strongest["n"] == 4
+    assert s.max() > 0 and hit[[mode["n"] for mode in data["modes"]].index(4)].any()
     w = m.window(1.0, 2.0)
     assert w.times_s.min() >= 1.0 - 1e-9 and w.times_s.max() <= 2.0 + 1e-9
 

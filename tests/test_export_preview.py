@@ -102,11 +102,14 @@ def test_sheet_video_frames_rate_and_sound(sheet_video, tmp_path):
 def tone_track(tmp_path_factory):
     import soundfile as sf
 
+    from showkit.physics.modes import find_modes
+    from showkit.rigfile import load_rig
     from showkit.show.sources import fade, tone
 
     folder = tmp_path_factory.mktemp("tone")
-    # the demo rig's mode 4 (238.4 Hz, `showkit modes`), 2 s with 0.3 s fades
-    x = fade(tone(238.4, 2.0), 48000, 0.3, 0.3)
+    # the demo rig's mode 4 as the model computes it (`showkit modes`), 2 s with 0.3 s fades
+    f4 = next(m.frequency_hz for m in find_modes(load_rig().model) if m.n == 4)
+    x = fade(tone(f4, 2.0), 48000, 0.3, 0.3)
     path = folder / "mode4.wav"
     sf.write(path, 0.5 * x, 48000, subtype="FLOAT")
     return path
