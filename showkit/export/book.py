@@ -44,8 +44,11 @@ ASSUMPTIONS = (
     "calibration point and drive model named above hold (away from the reference frequency the speaker "
     "is modelled, not measured, unless a measured response is in the rig file); today's static "
     "pressure is the one given; the tube behaves linearly at these levels. The pressure envelope "
-    "errs on the safe side (up to about 2 dB cautious for sharp percussive hits), and the model's "
-    "Q is on the high side until the tube is measured, which also makes ceilings cautious. A "
+    "errs on the safe side (up to about 2 dB cautious for sharp percussive hits). The ceiling is the "
+    "lowest over the rig's loss family (the hole losses from still gas to the gas flowing out, or "
+    "the measured losses): it holds for a tube within that family. Losses spread along the tube "
+    "(flames, a leaky membrane) lie outside it: a tube ringing at Q 21-26 that way can get ceilings "
+    "up to 5.8 dB too high between modes, so measure your tube and start low. A "
     "ceiling is a model's estimate, not a safety device.")
 
 STATE_TEXT = {"ok": "ok", "over": "OVER - NOT PLAYABLE", "stale": "STALE - NOT PLAYABLE",
