@@ -57,6 +57,23 @@ def test_curve_finds_the_shift_and_choice():
     assert abs(best + 130) <= 2
     assert tr.best_shift({0.0: 10.0, 100.0: 11.0, -200.0: 30.0}) == (-200.0, 30.0)
     assert tr.best_shift({0.0: 10.0, 100.0: 11.0}) == (0.0, 10.0)  # a gain under MIN_GAIN is not suggested
+    # a shift that leaves the track unreadable is no suggestion, whatever it gains
+    assert tr.best_shift({0.0: 0.0, 226.0: tr.MIN_SHIFTED_SCORE - 4.0}) == (0.0, 0.0)
+
+
+def test_drums_get_no_transposition(rig, tmp_path):
+    """A drum kit (the synthesized demo hits, no held notes) gets no suggestion: before this rule
+    the demo's kettle_parade was offered +2 st +26 c for a score of 6."""
+    import soundfile as sf
+
+    from showkit.analysis.scan import scan_track
+    from showkit.demo import synth
+
+    path = tmp_path / "hits.wav"
+    sf.write(path, synth.drum_pattern(12.0, seed=2), synth.RATE_HZ)
+    track = scan_track(rig, path)
+    assert track["transpose_semitones"] == 0.0
+    assert track["score"] <= 5.0
 
 
 def test_preview_is_shifted(tmp_path):

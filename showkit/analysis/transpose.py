@@ -39,6 +39,9 @@ CANDIDATES = 5
 SEPARATION_CENTS = 30
 #: Points a shift must gain over the track as it is to be suggested.
 MIN_GAIN = 2.0
+#: The least score a suggested shift must reach: a shift that leaves the track unreadable
+#: (a drum kit whose pitched ringing lands on a mode now and then) is no suggestion.
+MIN_SHIFTED_SCORE = 10.0
 
 
 def shift_curve(features: TrackFeatures, table: ModeTable, gate: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -107,7 +110,8 @@ def candidates(shifts: np.ndarray, value: np.ndarray, count: int = CANDIDATES) -
 
 def search(features: TrackFeatures, table: ModeTable, gate: np.ndarray,
            score_at: Callable[[float], float]) -> tuple[float, float, dict]:
-    """``(shift_cents, score, scored)``: the suggestion (0 unless it gains :data:`MIN_GAIN`).
+    """``(shift_cents, score, scored)``: the suggestion (0 unless it gains :data:`MIN_GAIN` and
+    reaches :data:`MIN_SHIFTED_SCORE`).
 
     The curve's best shifts are verified in the curve's order by the full
     score: the first that beats the track as it is by :data:`MIN_GAIN`
@@ -128,7 +132,7 @@ def search(features: TrackFeatures, table: ModeTable, gate: np.ndarray,
         if abs(s) < SEPARATION_CENTS:
             break
         scored[s] = float(score_at(s))
-        if scored[s] >= base + MIN_GAIN:
+        if scored[s] >= max(base + MIN_GAIN, MIN_SHIFTED_SCORE):
             return s, scored[s], scored
     return 0.0, base, scored
 
@@ -137,7 +141,7 @@ def best_shift(scores_by_shift: dict[float, float]) -> tuple[float, float]:
     """``(shift_cents, score)`` of the suggestion: 0 unless a shift gains :data:`MIN_GAIN`."""
     base = scores_by_shift.get(0.0, 0.0)
     shift = max(scores_by_shift, key=lambda s: (scores_by_shift[s], -abs(s)))
-    if scores_by_shift[shift] < base + MIN_GAIN:
+    if scores_by_shift[shift] < max(base + MIN_GAIN, MIN_SHIFTED_SCORE):
         return 0.0, base
     return shift, scores_by_shift[shift]
 
