@@ -94,3 +94,48 @@ def test_banded_novelty_on_real_features():
     full = sg.novelty(sg.self_similarity(blocks), half)
     assert full.max() > sg.NOVELTY_FLOOR  # a curve with peaks, not zeros
     np.testing.assert_allclose(sg.banded_novelty(blocks, half), full, rtol=0, atol=1e-12)
+
+
+def test_chroma_folds_notes_onto_pitch_classes():
+    """12-TET with A4 = 440 Hz (closed form): A3, A4 -> class 0, middle C (261.63 Hz) -> 3 semitones above A,
+    E5 (659.26 Hz) -> 7; amplitude = sqrt(energy); NaN and silent notes count nothing."""
+    hz = np.array([[220.0, 440.0, np.nan], [261.63, 659.26, 300.0]])
+    energy = np.array([[4.0, 9.0, 1.0], [16.0, 1.0, 0.0]])
+    c = sg.chroma(hz, energy)
+    expected = np.zeros((2, 12))
+    expected[0, 0] = 2.0 + 3.0
+    expected[1, 3], expected[1, 7] = 4.0, 1.0
+    np.testing.assert_allclose(c, expected)
+
+
+def test_same_passages_at_another_level():
+    """The features leave the level out (cepstrum without c0, onsets relative to the track's own,
+    chroma and sustain shares), so the same music 20 dB softer gets the same boundaries."""
+    x = sectioned(("hits", "pad", "tune"))
+    loud, _ = sg.passages(features_of(x), x.size / synth.RATE_HZ)
+    soft, _ = sg.passages(features_of(0.1 * x), x.size / synth.RATE_HZ)
+    assert len(loud) == len(soft)
+    np.testing.assert_allclose([a for a, _ in soft], [a for a, _ in loud], atol=0.3)
+
+
+def test_adaptive_threshold():
+    """A peak counts when above the floor and ADAPT_RATIO times the running median: on a flat
+    curve at 0.2 a bump to 0.25 stays below 1.5 x 0.2, one to 0.4 passes; a flat curve at
+    0.01 is held at the floor."""
+    block_s = 1.0 / sg.BLOCK_RATE_HZ
+    curve = np.full(400, 0.2)
+    curve[100], curve[300] = 0.25, 0.4
+    thr = sg.threshold(curve, block_s)
+    assert curve[100] < thr[100] and curve[300] >= thr[300]
+    assert thr[200] == pytest.approx(sg.ADAPT_RATIO * 0.2)
+    assert np.all(sg.threshold(np.full(50, 0.01), block_s) == sg.NOVELTY_FLOOR)
+
+
+def test_refine_moves_a_boundary_to_the_sharp_change_nearby():
+    """Two uniform blocks of features changing at block 40: a coarse peak 1 block off moves to 40
+    (Foote 2000: the narrower kernel peaks at the change); one farther than REFINE_S stays near."""
+    blocks = np.vstack([np.tile([1.0, 0.0], (40, 1)), np.tile([0.0, 1.0], (40, 1))])
+    block_s = 1.0 / sg.BLOCK_RATE_HZ
+    moved = sg.refine(blocks, np.array([41, 39, 10]), block_s)
+    assert moved[0] == 40 and moved[1] == 40
+    assert abs(moved[2] - 10) <= round(sg.REFINE_S / block_s)
