@@ -199,9 +199,10 @@ def banded_novelty(blocks: np.ndarray, half: int) -> np.ndarray:
         diag[d] = v
     kernel = checkerboard(half)
     out = np.zeros(n)
-    for i in range(w):
-        for j in range(w):
-            out += kernel[i, j] * diag[j - i][i:i + n]
+    for d in range(-(w - 1), w):  # the kernel's diagonal d reads the similarities d blocks apart
+        i0, i1 = max(0, -d), min(w, w - d)
+        taps = kernel[np.arange(i0, i1), np.arange(i0, i1) + d]
+        out += np.correlate(diag[d][i0:i1 - 1 + n], taps, mode="valid")
     return np.maximum(out, 0.0) / 2.0
 
 
