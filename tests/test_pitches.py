@@ -136,3 +136,47 @@ def test_padded_slice_is_a_slice_of_the_padded_signal(left, start, length):
     x = np.arange(1, 31, dtype=np.float32)
     padded = np.pad(x, (left, 200))
     assert np.array_equal(_padded_slice(x, left, start, start + length), padded[start:start + length])
+
+
+def _path_score(f, e, path):
+    """Score of one path through the lattice, written out from the docstring's formula (DEVELOPERS.md
+    Methods §8b) -- the reference for the Viterbi search below."""
+    from showkit.analysis import pitches as P
+
+    total = 0.0
+    for t, k in enumerate(path):
+        total += (P.DOMINANT_ENERGY_WEIGHT * np.log(e[t, k] / e[t].max())
+                  + P.DOMINANT_HEIGHT_WEIGHT * np.log2(f[t, k] / P.DOMINANT_HEIGHT_REF_HZ))
+        if t:
+            jump = abs(12.0 * np.log2(f[t, k] / f[t - 1, path[t - 1]]))
+            total -= P.DOMINANT_JUMP_WEIGHT * min(jump, P.DOMINANT_JUMP_CAP_SEMITONES)
+    return total
+
+
+@settings(max_examples=25, deadline=None)
+@given(st.integers(0, 2 ** 31 - 1))
+def test_dominant_line_is_the_best_path(seed):
+    # the decoded line scores as high as the best of all 3^6 paths found by exhaustive enumeration
+    import itertools
+
+    rng = np.random.default_rng(seed)
+    f = 100.0 * 2.0 ** rng.uniform(0.0, 3.0, size=(6, 3))
+    e = rng.uniform(0.01, 1.0, size=(6, 3))
+    line = dominant_pitch(f, e)
+    got = [int(np.nonzero(f[t] == line[t])[0][0]) for t in range(6)]
+    best = max(_path_score(f, e, p) for p in itertools.product(range(3), repeat=6))
+    assert _path_score(f, e, got) == pytest.approx(best, abs=1e-9)
+
+
+def test_dominant_line_holds_through_a_flickering_partial_and_a_gap():
+    # a held melody note (440 Hz) under a louder bass; in every third frame an upper partial of the bass
+    # (2 x 330 Hz) is listed too: the line stays on the melody; frames without notes give NaN
+    f = np.full((30, 3), np.nan)
+    e = np.zeros((30, 3))
+    f[:, 0], e[:, 0] = 110.0, 1.0
+    f[:, 1], e[:, 1] = 440.0, 0.3
+    f[::3, 2], e[::3, 2] = 660.0, 0.05
+    f[12:15], e[12:15] = np.nan, 0.0
+    line = dominant_pitch(f, e)
+    assert np.all(np.isnan(line[12:15]))
+    assert np.all(line[np.r_[0:12, 15:30]] == 440.0)

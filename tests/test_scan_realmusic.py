@@ -171,8 +171,9 @@ def test_same_music_at_another_level_draws_the_same_map(evaluation):
     assert abs(a - b) <= max(2.0, 0.1 * a)
 
 
-@pytest.mark.xfail(strict=True, reason="issue 12 target not met: raw pitch accuracy 0.54 mean, 0.40 on the "
-                   "organ chorale (measured 2026-12-02); the pick is capped by the note detection")
+@pytest.mark.xfail(strict=True, reason="issue 12 target not met: raw pitch accuracy 0.59 mean, 0.44 on the "
+                   "organ chorale (Viterbi line, measured 2026-12-02); the melody often sits on a partial of a "
+                   "lower voice, and the best pick of the detected notes would reach only 0.77 mean, 0.75 chorale")
 def test_dominant_pitch_raw_pitch_accuracy(evaluation):
     """mir_eval.melody raw pitch accuracy >= 0.70, mean over the pieces and on the organ chorale."""
     rpa = {p.name: evaluation["tracks"][p.name]["melody"]["Raw Pitch Accuracy"] for p in rm.PIECES}
@@ -262,10 +263,11 @@ def test_second_medley_joins_are_passage_boundaries(realmusic):
 # ------------------------------------------------ floors: what the scan reaches today (no regression)
 
 def test_dominant_pitch_floor(evaluation):
-    """Until the issue-12 target (0.70) is met: the mean raw pitch accuracy stays at today's 0.54 or
-    better (mir_eval.melody; measured 2026-12-02 on this set), far above the 0.06 of the first engine."""
+    """Until the issue-12 target (0.70) is met: the mean raw pitch accuracy stays at today's 0.59 or
+    better (mir_eval.melody; measured 2026-12-02 on this set: 0.54 before the Viterbi line), far above
+    the 0.06 of the first engine."""
     rpa = [evaluation["tracks"][p.name]["melody"]["Raw Pitch Accuracy"] for p in rm.PIECES]
-    assert np.mean(rpa) >= 0.50, rpa
+    assert np.mean(rpa) >= 0.57, rpa
 
 
 def test_medley_joins_floor(evaluation):
