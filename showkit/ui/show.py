@@ -165,8 +165,8 @@ class ShowView(SessionView):
         from showkit.ui.dialogs import AskScreen
 
         self.ask(AskScreen(f"Gain of {printable(cid)} (ceiling today: {top})",
-                                       [("gain", "gain, dB", f"{cue.gain_db:g}")],
-                                       note=f"CAUTION: {LEVEL_CAUTION}"), done)
+                            [("gain", "gain, dB", f"{cue.gain_db:g}")],
+                            note=f"CAUTION: {LEVEL_CAUTION}"), done)
 
     def action_edit(self) -> None:
         cid = self._cue_or_say()
@@ -231,7 +231,7 @@ class ShowView(SessionView):
             self.post_message(CueAdded(cue))
 
         self.ask(AskScreen("New tone cue", [("mode", "mode number", "3" if mode is None else str(mode)),
-                                                        ("duration", "duration, s", "10")]), done)
+                                             ("duration", "duration, s", "10")]), done)
 
     def action_add_glide(self) -> None:
         from showkit.ui.dialogs import AskScreen
@@ -248,7 +248,7 @@ class ShowView(SessionView):
             self.post_message(CueAdded(cue))
 
         self.ask(AskScreen("New glide cue", [("from", "from mode", "2"), ("to", "to mode", "8"),
-                                                         ("duration", "duration, s", "15")]), done)
+                                              ("duration", "duration, s", "15")]), done)
 
     def action_add_pause(self) -> None:
         from showkit.ui.dialogs import AskScreen

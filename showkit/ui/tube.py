@@ -160,10 +160,10 @@ class TubeView(SessionView):
                 self.post_message(ConditionsEntered(temperature=values["temperature"]))
 
         self.ask(AskScreen("Gas temperature in the tube today",
-                                       [("temperature", "temperature (e.g. 18 C, 291 K, 64 F)",
-                                         f"{rig.temperature_k - 273.15:.1f} C")],
-                                       note="Modes, ceilings and the run view's check follow at once; tone "
-                                            "and glide cues move to today's modes; no lock goes stale."), done)
+                            [("temperature", "temperature (e.g. 18 C, 291 K, 64 F)",
+                              f"{rig.temperature_k - 273.15:.1f} C")],
+                            note="Modes, ceilings and the run view's check follow at once; tone "
+                                 "and glide cues move to today's modes; no lock goes stale."), done)
 
     def action_tone_cue(self) -> None:
         mode = self.selected_mode()
