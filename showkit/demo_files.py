@@ -76,3 +76,8 @@ def user_demo_show() -> Path:
         target.parent.mkdir(parents=True, exist_ok=True)
         write_bytes(target, bundled_demo_show().read_bytes(), backups=0, what="demo show")
     return target
+
+
+#: The demo tracks by file name, as a sheet names them after ``demo:`` (made by
+#: :mod:`showkit.demo.synth`, one per piece there).
+DEMO_TRACKS = ("ember_steps.flac", "lantern_drift.flac", "kettle_parade.flac", "three_rooms.flac")

@@ -121,3 +121,18 @@ def test_the_checker_catches_an_upward_import(tmp_path):
         assert upward == ["showkit.show.sheet"]
     finally:
         fake.unlink()
+
+
+#: The UI's domain modules: the only ui modules that call physics or analysis (no Textual in them).
+UI_DOMAIN = {"session.py", "tracks.py", "measuring.py"}
+
+
+@pytest.mark.parametrize("path", sorted((PACKAGE / "ui").glob("*.py")), ids=lambda p: p.name)
+def test_ui_views_call_physics_and_analysis_through_the_session(path):
+    """The views hold no physics: only the session and its two siblings import physics or analysis."""
+    if path.name in UI_DOMAIN:
+        assert not [n for _, n in imports_of(path) if n.split(".")[0] == "textual"], "domain module imports Textual"
+        return
+    bad = [f"line {line}: {name}" for line, name in imports_of(path)
+           if layer_of(name) in {"physics", "analysis"}]
+    assert not bad, "; ".join(bad)

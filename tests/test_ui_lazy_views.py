@@ -48,6 +48,6 @@ async def test_only_the_first_view_is_built_and_a_later_one_shows_todays_reading
         assert modes and table.row_count == len(modes)
         assert [str(c) for c in table.get_row_at(0)][1] == f"{modes[0].frequency_hz:.2f}"
         # the selected mode's flame row was predicted at today's reading (7 Pa)
-        assert any(key[2] == 7.0 for key in app._flames_cache), list(app._flames_cache)
+        assert any(key[2] == 7.0 for key in app.session._mode_flames), list(app.session._mode_flames)
         # the other views are still not built
         assert app.view("run") is None and app.view("measure") is None and app.view("track") is None

@@ -201,15 +201,17 @@ async def test_audition_plays_the_rendered_cue_and_stops(ui_show, monkeypatch):
         await settle(pilot)
         assert app.audition is not None and app.audition.playing
         engine = app.audition.engine
-        sheet = app.session.sheet
-        expected = render_cue(sheet, sheet_rig(sheet), sheet.cue("mode-4"))
-        # the engine plays exactly the verified render at the cue's gain
-        assert engine.cues[0].id == "mode-4"
-        assert np.array_equal(engine.cues[0].samples, expected.samples)
         assert "playing mode-4" in app._status_text
-        await pilot.press("escape")                 # Esc: the panic key, which silences auditions too
+        # Esc at once (the fake device takes no samples: after the engine's stall time, 2 s, the
+        # audition would end by itself): the panic key, which silences auditions too
+        await pilot.press("escape")
         assert not app.audition.playing
         assert "PANIC" in app._status_text and "audition was silenced" in app._status_text
+        sheet = app.session.sheet
+        expected = render_cue(sheet, sheet_rig(sheet), sheet.cue("mode-4"))
+        # the engine played exactly the verified render at the cue's gain
+        assert engine.cues[0].id == "mode-4"
+        assert np.array_equal(engine.cues[0].samples, expected.samples)
 
 
 @sync

@@ -119,8 +119,8 @@ def test_track_frames_score_matches_the_scan(ui_show):
     from showkit.analysis.scan import scan_track
     from showkit.demo_files import demo_audio_path
     from showkit.rigfile import load_rig
-    from showkit.ui.session import _track_frames
+    from showkit.ui.tracks import track_frames
 
     rig = load_rig(None)
     path = demo_audio_path("ember_steps.flac")
-    assert _track_frames(rig, path, 0.0)["score"] == pytest.approx(scan_track(rig, path)["score"], abs=0.05)
+    assert track_frames(rig, path, 0.0)["score"] == pytest.approx(scan_track(rig, path)["score"], abs=0.05)

@@ -7,15 +7,22 @@ the command line so the UI and scripts call the same functions.
 from __future__ import annotations
 
 
-def analyse_recording(rig, recording, rec_rate, sweep, sweep_rate, where="recording", progress=None) -> dict:
-    """The whole analysis: response, resonances, fit, drive response -> report dict."""
+def analyse_recording(rig, recording, rec_rate, sweep, sweep_rate, where="recording", progress=None,
+                      response=None) -> dict:
+    """The whole analysis: response, resonances, fit, drive response -> report dict.
+
+    ``response``: the recording's response already measured from these same signals
+    (:func:`showkit.analysis.sweep.measure_response`), so that a caller that draws it
+    too deconvolves the recording once; None measures it here.
+    """
     from showkit.analysis.drivefit import drive_response_db
     from showkit.analysis.resonances import find_resonances
     from showkit.analysis.sweep import measure_response
     from showkit.analysis.tubefit import fit_tube, variant
     from showkit.errors import MeasureError
 
-    resp = measure_response(recording, rec_rate, sweep, sweep_rate, where, progress=progress)
+    resp = response if response is not None else \
+        measure_response(recording, rec_rate, sweep, sweep_rate, where, progress=progress)
     f_hi = min(resp.band_hz[1] / 1.1, rig.model.plane_wave_limit_hz)
     found = find_resonances(resp.freq_hz, resp.response, resp.band_hz[0] * 1.1, f_hi, noise=resp.noise)
     warnings = list(resp.warnings)

@@ -2,9 +2,15 @@
 
 Start it with ``showkit`` (the user's copy of the demo show), ``showkit open
 SHEET.toml`` or ``showkit open TRACK.flac --rig RIG.toml``.  The domain work
-is in :mod:`showkit.ui.session`; slow work (modes, checks, locks, track
-analysis, rendering for the audition) runs in worker threads with a progress
-bar in the status line, so keys are answered at once.
+is in :mod:`showkit.ui.session` (with :mod:`showkit.ui.tracks` and
+:mod:`showkit.ui.measuring`; the editing model is :mod:`showkit.show.editing`);
+slow work (modes, checks, locks, track analysis, rendering for the audition) runs
+as Textual thread workers (:mod:`showkit.ui.jobs`) with a progress bar in the
+status line, so keys are answered at once.
+
+The views talk to the app through messages (:mod:`showkit.ui.messages`): they post
+them up and the app routes them in its ``on_…`` handlers (the status line, a cue
+added, a lock, today's conditions, a new rig file, an audition, job progress).
 
 Panic is the operator key map's (:mod:`showkit.show.operator_keys`): Ctrl+C is
 an App-level priority binding, so it works in every view and every dialog; Esc
@@ -32,6 +38,8 @@ from textual.widgets import ContentSwitcher, Footer, ProgressBar, Static
 
 from showkit.errors import ShowkitError
 from showkit.printable import printable
+from showkit.ui import messages as msg
+from showkit.ui.jobs import JobRunner
 from showkit.ui.session import Session
 
 VIEWS = ("show", "tube", "track", "run", "measure")
@@ -52,7 +60,7 @@ def view_class(name: str):
     return getattr(importlib.import_module(module), cls)
 
 
-class ShowkitApp(App):
+class ShowkitApp(JobRunner, App):
     """The terminal UI.
 
     Parameters
@@ -94,19 +102,16 @@ class ShowkitApp(App):
     def __init__(self, session: Session, track: Path | None = None, view: str = "show",
                  cautions: bool | None = None, log_path: Path | None = None):
         super().__init__()
-        self.log_path = log_path
-        self._show_log = None
         self.session = session
+        if log_path is not None:
+            session.log_path = log_path
         self.first_track = track
         self.first_view = view if view in VIEWS else "show"
         self.want_cautions = cautions
         self.audition = None
-        self._jobs: dict[str, tuple[int, int]] = {}
-        self._flames_cache: dict = {}
+        self._jobs: dict = {}   # worker -> (steps done, steps in all): the progress bar
         self._status_text = ""
         self._auto_locked: set[str] = set()
-        self._serial = 0
-        self._latest: dict[str, str] = {}
         self._last_warning = ""
         self._held: list[str] = []
         self._audition_timer = None
@@ -139,9 +144,66 @@ class ShowkitApp(App):
         if self.first_track is not None:
             self.set_timer(0.15, lambda: self.view("track").open_track(self.first_track))
 
+    # ------------------------------------------------------------ messages from the views
+    def on_say(self, message: msg.Say) -> None:
+        self.say(message.text, message.warn)
+
+    def on_job_progress(self, message: msg.JobProgress) -> None:
+        worker = message.worker
+        if not message.ended and (worker.is_cancelled or worker.is_finished):
+            return  # a step that came after the end
+        self._job(worker, message.done, message.total, message.ended)
+
+    def on_cue_added(self, message: msg.CueAdded) -> None:
+        self.cue_added(message.cue)
+
+    def on_lock_requested(self, message: msg.LockRequested) -> None:
+        self.start_lock(message.cue_ids, everything=message.everything)
+
+    def on_conditions_entered(self, message: msg.ConditionsEntered) -> None:
+        """Today's readings typed in a dialog: one door for all (:meth:`change_conditions`)."""
+        if message.for_check:  # the Run view's pre-show check: it runs the check itself
+            try:
+                self.session.base_rig()
+                self.session.show_log()
+            except ShowkitError as exc:
+                self.say(exc.line(), warn=True)
+                return
+            if not self.change_conditions(message.static, message.temperature, recheck_run=False):
+                return
+            try:
+                self.session.save()
+            except ShowkitError as exc:
+                self.say(exc.line(), warn=True)
+                return
+            run = self.view("run")
+            if run is not None:
+                run.check_again()
+            return
+        if self.change_conditions(message.static, message.temperature) and message.static is not None:
+            self.say(f"today's static pressure {self.session.rig.static_pa:.2f} Pa: "
+                     "every ceiling re-derived, in every view")
+
+    def on_rig_written(self, message: msg.RigWritten) -> None:
+        """The Measure view wrote a fit into the rig file: the Run view checks again, the rest follows."""
+        self.session.reload_rig()
+        run = self.view("run")
+        if run is not None:  # its cues were verified on the old rig (a Run view built later checks anew)
+            run.rig_changed()
+        if message.refused:
+            # the fit moved the modes next to the calibration frequency: no levels until calibrated again
+            self.say(f"{message.text}; calibrate again before using this rig: {message.refused}", warn=True)
+            return
+        self.start_background()
+        self.update_topbar()
+        self.say(f"{message.text}; modes and ceilings re-derived for the measured tube")
+
+    def on_audition_ready(self, message: msg.AuditionReady) -> None:
+        self.play_rendered(message.rendered)
+
     # ------------------------------------------------------------ views, built when first shown
     def _new_view(self, name: str):
-        widget = view_class(name)(id=name)
+        widget = view_class(name)(self.session, id=name)
         self._views[name] = widget
         return widget
 
@@ -164,12 +226,13 @@ class ShowkitApp(App):
             self.notify(text, severity="warning", timeout=6)
         self._last_warning = text if warn else ""
 
-    def _job(self, key: str, done: int | None = None, total: int | None = None, end: bool = False) -> None:
+    def _job(self, worker, done: int = 0, total: int = 0, end: bool = False) -> None:
+        """The progress bar: the sum of the steps of every job (worker) still running."""
         bar = self.query_one("#progress", ProgressBar)
         if end:
-            self._jobs.pop(key, None)
+            self._jobs.pop(worker, None)
         else:
-            self._jobs[key] = (done or 0, total or 0)
+            self._jobs[worker] = (done, total)
         if not self._jobs:
             bar.display = False
             return
@@ -178,52 +241,9 @@ class ShowkitApp(App):
         t = sum(v[1] for v in self._jobs.values())
         bar.update(total=t if t else None, progress=d)
 
-    def run_job(self, name: str, work, done, label: str, latest_only: bool = True):
-        """Run ``work(progress)`` in a thread, then ``done(result)`` on the UI thread.
-
-        With ``latest_only`` a result is dropped when a newer job of the same
-        name was started meanwhile (e.g. a check made before the last edit).
-        Errors go to the status line, never a traceback.
-        """
-        self._serial += 1
-        key = f"{name}#{self._serial}"
-        self._latest[name] = key
-        self._job(key, 0, 0)
-        self.say(label + "…")
-
-        def progress(k, total, what=None):
-            self.call_from_thread(self._job, key, k, total)
-
-        def thread():
-            try:
-                result = work(progress)
-            except ShowkitError as exc:
-                self.call_from_thread(self._job_failed, key, exc.line())
-                return
-            except Exception as exc:  # never a traceback in the UI
-                self.call_from_thread(self._job_failed, key, f"{label} failed: {exc.__class__.__name__}: {exc}")
-                return
-            self.call_from_thread(self._job_done, name, key, done, result, latest_only)
-
-        return self.run_worker(thread, name=key, group=name, thread=True, exclusive=False,
-                               exit_on_error=False)
-
     def busy(self, name: str) -> bool:
-        """True while a job of this name runs."""
-        return any(k.split("#")[0] == name for k in self._jobs)
-
-    def _job_done(self, name, key, done, result, latest_only) -> None:
-        self._job(key, end=True)
-        if latest_only and self._latest.get(name) != key:
-            return
-        try:
-            done(result)
-        except ShowkitError as exc:
-            self.say(exc.line(), warn=True)
-
-    def _job_failed(self, key, text) -> None:
-        self._job(key, end=True)
-        self.say(text, warn=True)
+        """True while a job of this name started by the app runs."""
+        return self.job_running(name)
 
     # ------------------------------------------------------------ background work
     def start_background(self) -> None:
@@ -242,7 +262,6 @@ class ShowkitApp(App):
         def done(result):
             rig, modes = result
             s.modes = modes
-            self._flames_cache.clear()
             self.update_topbar()
             tube = self.view("tube")
             if tube is not None:  # else it draws the modes when it is first shown
@@ -261,9 +280,7 @@ class ShowkitApp(App):
             return s.compute_checks(text, s.rig)
 
         def done(checks):
-            if sheet_to_text(s.sheet) != text:
-                checks = {k: v for k, v in checks.items() if k in {c.id for c in s.sheet.cues}}
-            s.checks.update(checks)
+            checks = s.accept_checks(checks, text)
             if self.view("show") is not None:
                 self.view("show").refresh_table()
             unlocked = [c.id for c in s.sheet.cues if c.lock is None and c.id in checks
@@ -275,7 +292,7 @@ class ShowkitApp(App):
                 return
             bad = [c for c in checks.values() if c.status != "ok"]
             if bad:
-                from showkit.ui.show import _ui_message
+                from showkit.ui.show import ui_message as _ui_message
 
                 self.say(f"{len(bad)} cue(s) need attention; {bad[0].id} is {bad[0].status}: "
                          f"{_ui_message(bad[0].message)}", warn=any(c.status != "stale" for c in bad))
@@ -303,30 +320,6 @@ class ShowkitApp(App):
                      warn=bool(notes))
 
         self.run_job("lock", work, done, "locking ceilings", latest_only=False)
-
-    def start_mode_flames(self, mode) -> None:
-        s = self.session
-        tube = self.view("tube")
-        if tube is None:
-            return
-        drawing = tube.query_one("TubeDrawing")
-        key = (mode.n, round(mode.frequency_hz, 4), s.rig.static_pa)
-        if key in self._flames_cache:
-            h, air, ceiling = self._flames_cache[key]
-            drawing.set_flames(h, air, _flames_caption(mode, h, ceiling))
-            return
-
-        def work(progress):
-            return s.mode_flames_job(mode)
-
-        def done(result):
-            self._flames_cache[key] = result
-            h, air, ceiling = result
-            if tube.selected_mode() is not None and tube.selected_mode().n == mode.n:
-                drawing.set_flames(h, air, _flames_caption(mode, h, ceiling))
-            self.say(f"mode {mode.n}: flame row predicted at its safe level {ceiling:+.1f} dB")
-
-        self.run_job("flames", work, done, f"predicting the flame row of mode {mode.n}")
 
     def cue_added(self, cue) -> None:
         """After a cue was added: show it, and lock it in the background."""
@@ -356,14 +349,9 @@ class ShowkitApp(App):
         self.update_topbar()
         tube = self.view("tube")
         if tube is not None:
-            tube.refresh_facts()
-        self._flames_cache.clear()
+            tube.conditions_changed(new_modes=temperature_changed)
         if temperature_changed:
             self.start_modes()
-        elif tube is not None:
-            mode = tube.selected_mode()
-            if mode is not None:
-                self.start_mode_flames(mode)
         self.start_checks()
         # the views not built yet read today's conditions from the session when first shown
         if self.view("track") is not None:
@@ -428,9 +416,8 @@ class ShowkitApp(App):
         rig = self.session.rig
 
         def done(values):
-            if values and self.change_conditions(static=values["static"]):
-                self.say(f"today's static pressure {self.session.rig.static_pa:.2f} Pa: "
-                         "every ceiling re-derived, in every view")
+            if values:
+                self.post_message(msg.ConditionsEntered(static=values["static"]))
 
         self.push_screen(AskScreen("Today's manometer reading (static overpressure)",
                                    [("static", 'reading (e.g. "18 Pa", "0.08 inH2O", "0.2 mbar")',
@@ -486,7 +473,7 @@ class ShowkitApp(App):
     def action_audition(self) -> None:
         view = self.query_one(ContentSwitcher).current
         if view == "track":
-            self.view("track").audition()
+            self.view("track").audition()  # the Track view's selection: it posts AuditionReady
             return
         show = self.view("show")
         if show is not None:
@@ -551,19 +538,12 @@ class ShowkitApp(App):
         elif heard:
             self.say("PANIC: the audition was silenced", warn=True)
             try:  # the show log records every panic that silenced something
-                self.show_log().write("panic", None, None, "panic key in the UI: the audition was silenced")
+                self.session.show_log().write("panic", None, None,
+                                              "panic key in the UI: the audition was silenced")
             except ShowkitError as exc:
                 self.say(f"PANIC: the audition was silenced; not logged: {exc.line()}", warn=True)
         else:
             self.say("PANIC: nothing was playing")
-
-    def show_log(self):
-        """The show log of the run view, opened at first use (raises LogError with what to do)."""
-        if self._show_log is None:
-            from showkit.show.showlog import ShowLog
-
-            self._show_log = ShowLog(self.log_path)
-        return self._show_log
 
     def action_device(self) -> None:
         from showkit.ui.device import DeviceScreen, describe
@@ -583,16 +563,14 @@ class ShowkitApp(App):
 
     def action_quit_safely(self) -> None:
         """Panic if a show plays, save (safely) and quit, no dialog."""
+        self.workers.cancel_all()
         run = self.view("run")
-        if run is not None and run.engine is not None:
+        if run is not None:
             try:
-                if run.engine.busy:
-                    run.engine.panic()
-                run.close()
+                run.close()  # panics first if a cue plays
             except Exception:
                 pass
-        if self._show_log is not None:
-            self._show_log.close()
+        self.session.close_log()
         if self.audition is not None:
             try:
                 self.audition.stop()
@@ -648,8 +626,3 @@ def _cautions_seen() -> bool:
 
     return cautions_seen()
 
-
-def _flames_caption(mode, height, ceiling_db: float) -> str:
-    lo, hi = float(min(height)), float(max(height))
-    return (f"mode {mode.n}, {mode.frequency_hz:.1f} Hz, at its safe level {ceiling_db:+.1f} dB: "
-            f"flames {lo:.3f} to {hi:.3f} of still height (! air drawn in)")

@@ -1,6 +1,6 @@
 """The exports offered in the UI: the show book, the flame preview video and the plots.
 
-Each runs as background work (:meth:`ShowkitApp.run_job`) and calls the same
+Each runs as background work of the view (a Textual worker, :meth:`showkit.ui.jobs.JobRunner.run_job`) and calls the same
 functions as `showkit book`, `showkit preview` and the commands' ``--plot``
 (:mod:`showkit.export`); the status line says where the file went.  Files are
 written beside the cue sheet, named after the sheet, the track or the recording.
@@ -18,7 +18,7 @@ def _beside(session, stem: str, suffix: str) -> Path:
 
 def book(view) -> None:
     """The show book of the open sheet, for today's manometer reading (Show view)."""
-    s, app = view.session, view.app
+    s = view.session
     out = _beside(s, s.sheet.path.stem, "-book.pdf")
     rig = s.rig
     static, reserve, sheet_path = rig.static_pa, rig.reserve, s.sheet.path
@@ -30,15 +30,15 @@ def book(view) -> None:
 
     def done(result):
         bad = [k for k, v in result["states"].items() if v != "ok"]
-        app.say(f"show book written: {result['pdf']} ({result['pages']} pages)"
+        view.say(f"show book written: {result['pdf']} ({result['pages']} pages)"
                 + (f"; marked not playable: {', '.join(bad)}" if bad else ""), warn=bool(bad))
 
-    app.run_job("export-book", work, done, f"writing the show book to {out.name}")
+    view.run_job("export-book", work, done, f"writing the show book to {out.name}")
 
 
 def sheet_preview(view) -> None:
     """The flame preview video of the whole show, true scale (Show view)."""
-    s, app = view.session, view.app
+    s = view.session
     out = _beside(s, s.sheet.path.stem, "-preview.mp4")
     rig = s.rig
     static, reserve, sheet_path = rig.static_pa, rig.reserve, s.sheet.path
@@ -50,18 +50,18 @@ def sheet_preview(view) -> None:
         return write_video(tl, out, progress=progress)
 
     def done(result):
-        app.say(f"preview video written: {result['path']} ({result['duration_s']:.1f} s, true scale)"
+        view.say(f"preview video written: {result['path']} ({result['duration_s']:.1f} s, true scale)"
                 + (f"; {len(result['notes'])} cue(s) not played" if result["notes"] else ""),
                 warn=bool(result["notes"]))
 
-    app.run_job("export-preview", work, done, f"writing the preview video to {out.name}")
+    view.run_job("export-preview", work, done, f"writing the preview video to {out.name}")
 
 
 def track_preview(view) -> None:
     """The selected passage (or the whole track) at its ceiling, as a preview video (Track view)."""
-    s, app = view.session, view.app
+    s = view.session
     if view.path is None:
-        app.say("open a track first (o)")
+        view.say("open a track first (o)")
         return
     path = Path(view.path)
     start = end = None
@@ -76,17 +76,17 @@ def track_preview(view) -> None:
         return write_video(track_timeline(rig, path, start, end), out, progress=progress)
 
     def done(result):
-        app.say(f"preview video written: {result['path']} ({result['duration_s']:.1f} s at the ceiling, true scale)")
+        view.say(f"preview video written: {result['path']} ({result['duration_s']:.1f} s at the ceiling, true scale)")
 
-    app.run_job("export-preview", work, done, f"writing the preview video to {out.name}")
+    view.run_job("export-preview", work, done, f"writing the preview video to {out.name}")
 
 
 def track_map(view) -> None:
     """The time x mode map with the passages and scores, as a PNG (Track view)."""
-    s, app = view.session, view.app
+    s = view.session
     a = view.analysis
     if a is None:
-        app.say("open a track first (o)")
+        view.say("open a track first (o)")
         return
     path = Path(a.path)
     out = _beside(s, path.stem, "-map.png")
@@ -98,15 +98,15 @@ def track_map(view) -> None:
 
         return plot_scan(rig, [track], out)
 
-    app.run_job("export-map", work, lambda p: app.say(f"map written: {p}"), f"drawing the map to {out.name}")
+    view.run_job("export-map", work, lambda p: view.say(f"map written: {p}"), f"drawing the map to {out.name}")
 
 
 def response_plot(view) -> None:
     """The measured response with the measured and fitted modes, as a PNG (Measure view)."""
-    s, app = view.session, view.app
+    s = view.session
     m = view.measurement
     if m is None:
-        app.say("nothing to draw yet: open a recording first (o)")
+        view.say("nothing to draw yet: open a recording first (o)")
         return
     out = _beside(s, Path(m.recording).stem, "-response.png")
 
@@ -115,5 +115,5 @@ def response_plot(view) -> None:
 
         return plot_response(m.freq_hz, m.level_db, m.report, out)
 
-    app.run_job("export-response", work, lambda p: app.say(f"response plot written: {p}"),
+    view.run_job("export-response", work, lambda p: view.say(f"response plot written: {p}"),
                 f"drawing the response to {out.name}")

@@ -1,8 +1,9 @@
 """The Measure view: a recording of the sweep analysed, its response drawn, the fit written.
 
 The analysis is :func:`showkit.analysis.measurement.analyse_recording` (the
-same as `showkit measure analyse`), run in a worker with a progress bar; the
-response curve drawn is :func:`showkit.analysis.sweep.measure_response`'s.
+same as `showkit measure analyse`), run through the session
+(:mod:`showkit.ui.measuring`) in a worker with a progress bar; the response curve
+drawn is the one the analysis fits (the recording is deconvolved once).
 The drawing places those numbers in terminal cells (log frequency across,
 level in dB up); measured modes are marked ``▲`` and the fitted model's
 modes ``◇`` on their own lines.  Writing the fit goes through
@@ -13,14 +14,12 @@ modes ``◇`` on their own lines.  Writing the fit goes through
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
 from pathlib import Path
 
 from rich.markup import escape
 from rich.text import Text
 from textual.app import ComposeResult
 from textual.binding import Binding
-from textual.containers import Vertical
 from textual.widget import Widget
 from textual.widgets import DataTable, Static
 
@@ -28,24 +27,15 @@ from showkit.errors import ShowkitError
 from showkit.printable import printable
 from showkit.safety import LEVEL_CAUTION
 from showkit.ui.drawing import BLOCKS
+from showkit.ui.measuring import Measurement, calibration_refused, is_demo_rig, write_fit
+from showkit.ui.messages import RigWritten
+from showkit.ui.viewbase import SessionView
 
 #: Levels more than this far below the response's peak are drawn empty, dB.
 PLOT_RANGE_DB = 40.0
 PLOT_ROWS = 7
 MEASURED_MARK = "▲"
 MODEL_MARK = "◇"
-
-
-@dataclass
-class Measurement:
-    """What the view shows: the files, the response curve and the analysis report."""
-
-    recording: Path
-    sweep: Path
-    freq_hz: object       # the response's frequencies, Hz
-    level_db: object      # the response magnitude, dB re its peak
-    report: dict
-    rig_name: str
 
 
 def log_columns(freq_hz, lo_hz: float, hi_hz: float, width: int):
@@ -164,7 +154,7 @@ class MeasureTable(DataTable):
     """Measured against modelled modes."""
 
 
-class MeasureView(Vertical):
+class MeasureView(SessionView):
     """Open a recording and its sweep, see the response and the fit, write it to the rig."""
 
     BINDINGS = [
@@ -173,8 +163,8 @@ class MeasureView(Vertical):
         Binding("P", "export('response_plot')", "response PNG", show=False),
     ]
 
-    def __init__(self, **kw):
-        super().__init__(**kw)
+    def __init__(self, session, **kw):
+        super().__init__(session, **kw)
         self.measurement: Measurement | None = None
         self.last_paths = ("recording.wav", "sweep.wav")
 
@@ -192,10 +182,6 @@ class MeasureView(Vertical):
                                   ("rig file Hz", "f0", 11), ("cents", "c0", 6), ("level dB", "lv", 8)):
             table.add_column(label, key=key, width=width)
 
-    @property
-    def session(self):
-        return self.app.session
-
     # ------------------------------------------------------------ opening
     def action_open(self) -> None:
         from showkit.ui.dialogs import AskScreen
@@ -205,7 +191,7 @@ class MeasureView(Vertical):
                 self.analyse(values["recording"], values["sweep"])
 
         rec, sweep = self.last_paths
-        self.app.push_screen(AskScreen("Analyse a recording of the sweep", [
+        self.ask(AskScreen("Analyse a recording of the sweep", [
             ("recording", "recording at the cap (WAV or FLAC)", rec),
             ("sweep", "the sweep that was played (from `showkit measure sweep`)", sweep)],
             note=f"CAUTION: {LEVEL_CAUTION}"), done)
@@ -223,9 +209,9 @@ class MeasureView(Vertical):
         s = self.session
 
         def work(progress):
-            return measure_files(s.base_rig(), rec_path, sweep_path, progress)
+            return s.measure_job(rec_path, sweep_path, progress)
 
-        self.app.run_job("measure", work, self.show_measurement, f"analysing {rec_path.name}")
+        self.run_job("measure", work, self.show_measurement, f"analysing {rec_path.name}")
 
     def show_measurement(self, m: Measurement) -> None:
         self.measurement = m
@@ -255,8 +241,8 @@ class MeasureView(Vertical):
             f"[b]Measure the tube[/b]  {escape(printable(m.recording.name))} with "
             f"{escape(printable(m.sweep.name))} on {escape(printable(m.rig_name))}: {len(report['modes'])} modes"
             "   W writes the fit into the rig file")
-        self.app.say(f"{len(report['modes'])} modes measured; the model was off by "
-                     f"{_rms(fit['before_cents']):.1f} cents rms before the fit, {fit['rms_cents']:.1f} after"
+        self.say(f"{len(report['modes'])} modes measured; the model was off by "
+                     f"{m.rms_before_cents():.1f} cents rms before the fit, {fit['rms_cents']:.1f} after"
                      + (f"; {len(warnings)} warning(s)" if warnings else ""), warn=bool(warnings))
 
     def action_export(self, what: str) -> None:
@@ -272,96 +258,24 @@ class MeasureView(Vertical):
             return None
 
     def action_write(self) -> None:
-        from showkit.rigfile import demo_rig_path
-
         m = self.measurement
         if m is None:
-            self.app.say("nothing to write yet: open a recording first (o)")
+            self.say("nothing to write yet: open a recording first (o)")
             return
         path = self.rig_file()
-        if path is None or Path(path).resolve() == demo_rig_path().resolve():
-            self.app.say("the bundled demo rig is never changed: copy it to your own rig file, name that "
-                         "file as the sheet's rig, then write the fit again (W)", warn=True)
+        if is_demo_rig(path):
+            self.say("the bundled demo rig is never changed: copy it to your own rig file, name that "
+                     "file as the sheet's rig, then write the fit again (W)", warn=True)
             return
         try:
             backup = write_fit(Path(path), m.report)
         except ShowkitError as exc:
-            self.app.say(exc.line(), warn=True)
+            self.say(exc.line(), warn=True)
             return
-        self.session.reload_rig()
-        run = self.app.view("run")
-        if run is not None:  # its cues were verified on the old rig (a Run view built later checks anew)
-            run.rig_changed()
         done = f"wrote the fit into {Path(path).name} (previous version kept as {Path(backup).name})"
         self.query_one("#measure-title", Static).update(f"[b]Measure the tube[/b]  {escape(printable(done))}")
         refused = calibration_refused(Path(path))
-        if refused:
-            # the fit moved the modes next to the calibration frequency: no levels until calibrated again
-            self.app.say(f"{done}; calibrate again before using this rig: {refused} "
-                         f"(showkit measure level --rig {Path(path).name})", warn=True)
-            return
-        self.app.start_background()
-        self.app.update_topbar()
-        self.app.say(f"{done}; modes and ceilings re-derived for the measured tube")
+        # the app reloads the rig and every view follows (the Run view checks again)
+        self.post_message(RigWritten(done, None if refused is None else
+                                     f"{refused} (showkit measure level --rig {Path(path).name})"))
 
-
-def measure_files(rig, rec_path: Path, sweep_path: Path, progress=None) -> Measurement:
-    """Read a recording and its sweep and analyse them (slow: run it in a worker).
-
-    ``progress(done, total, text)`` is called as the work goes on.  The response
-    drawn is :func:`~showkit.analysis.sweep.measure_response`'s magnitude in dB
-    re its peak; the report is :func:`~showkit.analysis.measurement.analyse_recording`'s.
-    """
-    import numpy as np
-
-    from showkit.analysis.measurement import analyse_recording
-    from showkit.analysis.sweep import measure_response
-
-    progress = progress or (lambda done, total, text=None: None)
-    rec, rec_rate = _read(rec_path, "recording")
-    sweep, sweep_rate = _read(sweep_path, "sweep")
-    progress(0, 300, "response")
-    resp = measure_response(rec, rec_rate, sweep, sweep_rate, str(rec_path))
-    progress(100, 300, "analysis")
-
-    def inner(fraction, text=""):  # analyse_recording reports (fraction 0..1, text)
-        progress(int(round(100 * (1 + float(fraction)))), 300, text)
-
-    report = analyse_recording(rig, rec, rec_rate, sweep, sweep_rate, str(rec_path), inner)
-    progress(300, 300, None)
-    mag = np.abs(resp.response)
-    with np.errstate(divide="ignore"):
-        level = 20 * np.log10(np.maximum(mag, 1e-30) / max(float(mag.max()), 1e-30))
-    return Measurement(Path(rec_path), Path(sweep_path), np.asarray(resp.freq_hz), level, report, rig.name)
-
-
-def calibration_refused(path: Path) -> str | None:
-    """Why the rig file's calibration point is now refused (after a fit moved the modes), or None."""
-    from showkit.errors import RigError
-    from showkit.rigfile import load_rig
-
-    try:
-        load_rig(path)
-    except RigError as exc:
-        if "reference_frequency" in exc.where:
-            return exc.what
-        raise
-    return None
-
-
-def write_fit(path: Path, report: dict) -> Path:
-    """The fit of a report into a rig file, as `showkit measure analyse --update-rig` writes it."""
-    from showkit.rigwrite import write_fit as write
-
-    return write(path, report)
-
-
-def _rms(values) -> float:
-    v = [float(x) for x in values]
-    return math.sqrt(sum(x * x for x in v) / len(v)) if v else 0.0
-
-
-def _read(path: Path, role: str):
-    from showkit.analysis.audio import read_whole
-
-    return read_whole(path, role)  # a regular file within the limits, or one line

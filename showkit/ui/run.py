@@ -6,7 +6,7 @@ same check as `showkit run`); cues that no longer fit are listed and cannot
 be started.  The show is played by :class:`showkit.show.engine.Engine`, which
 only ever scales the rendered cues down.  The flame row under the cue is the
 pressure model's prediction for each rendered cue
-(:func:`showkit.analysis.pressure.signal_report`), computed ahead of time in a
+(:meth:`showkit.ui.session.Session.cue_flames_job`), computed ahead of time in a
 worker and looked up by the engine's play position: this view holds no physics.
 
 The operator's keys are those of `showkit run`, read from the one table in
@@ -32,7 +32,6 @@ from rich.markup import escape
 from rich.text import Text
 from textual.app import ComposeResult
 from textual.binding import Binding
-from textual.containers import Vertical
 from textual.widget import Widget
 from textual.widgets import DataTable, Static
 
@@ -46,6 +45,8 @@ from showkit.units import format_time
 GO_KEY, PANIC_KEY, REARM_KEY, RECONNECT_KEY, FADE_KEY = (
     shown("go"), shown("panic"), shown("rearm"), shown("reconnect"), shown("fade"))
 from showkit.ui.drawing import flame_picture
+from showkit.ui.messages import ConditionsEntered
+from showkit.ui.viewbase import SessionView
 
 #: How often the view asks the engine what is happening, s.
 POLL_S = 0.05
@@ -117,14 +118,14 @@ class RunFlames(Widget):
                              max(10, self.size.width - 2), FLAME_LINES, lo=self.lo, hi=self.hi)
 
 
-class RunView(Vertical):
+class RunView(SessionView):
     """Pre-show check, the cue playing and the next, fader, flame row, faults, level caution."""
 
     BINDINGS = [Binding("c", "check", "check"), *_operator_bindings(),
                 Binding("s", "start_selected", "start selected", show=False)]
 
-    def __init__(self, **kw):
-        super().__init__(**kw)
+    def __init__(self, session, **kw):
+        super().__init__(session, **kw)
         self.cues: list = []          # RenderedCue, from the last pre-show check
         self.problems: list[str] = []
         self.engine = None
@@ -158,14 +159,10 @@ class RunView(Vertical):
             "and gas temperature")
         self.refresh_now()
 
-    @property
-    def session(self):
-        return self.app.session
-
     # ------------------------------------------------------------ pre-show check
     def action_check(self) -> None:
         if self.engine is not None and self.engine.busy:
-            self.app.say(f"a cue is playing: fade it out ({FADE_KEY}) or panic ({PANIC_KEY}) before a new check",
+            self.say(f"a cue is playing: fade it out ({FADE_KEY}) or panic ({PANIC_KEY}) before a new check",
                          warn=True)
             return
         from showkit.ui.dialogs import AskScreen
@@ -180,33 +177,24 @@ class RunView(Vertical):
             if values:
                 self.start_check(values["static"], values["temperature"])
 
-        self.app.push_screen(AskScreen("Pre-show check: today's readings", [
+        self.ask(AskScreen("Pre-show check: today's readings", [
             ("static", 'manometer reading (e.g. "18 Pa", "0.08 inH2O")', static),
             ("temperature", 'gas temperature (e.g. "19 C")', temp)],
             note=f"CAUTION: {LEVEL_CAUTION}"), done)
 
     def start_check(self, static_text: str, temperature_text: str) -> None:
-        """Today's readings through the session's one door (every view follows), then the check."""
-        app, s = self.app, self.session
-        try:
-            s.base_rig()
-            app.show_log()
-        except ShowkitError as exc:
-            app.say(exc.line(), warn=True)
-            return
-        if not app.change_conditions(static_text, temperature_text, recheck_run=False):
-            return
-        try:
-            s.save()
-        except ShowkitError as exc:
-            app.say(exc.line(), warn=True)
-            return
+        """Today's readings go up to the app (the session's one door: every view follows);
+        the app then calls :meth:`check_again`."""
+        self.post_message(ConditionsEntered(static_text, temperature_text, for_check=True))
+
+    def check_again(self) -> None:
+        """Today's readings were taken (and the sheet saved): a new engine after a new check."""
         self._close_engine()
         self.run_check()
 
     def run_check(self) -> None:
         """The pre-show check for the session's conditions, in a worker (also after a change elsewhere)."""
-        app, s = self.app, self.session
+        s = self.session
         c = s.conditions
         self.readings = f"static {c.static_pa:.2f} Pa, gas {c.temperature_k - 273.15:.1f} °C"
         path = s.sheet.path
@@ -215,18 +203,16 @@ class RunView(Vertical):
         self._checked_text = s.saved_text  # the sheet as saved: what the check reads
         self._deferred = None              # a result waiting for the cue to stop is out of date now
         try:
-            log = app.show_log()
+            log = s.show_log()
         except ShowkitError as exc:  # what was withdrawn stays withdrawn
-            app.say(f"the pre-show check cannot run: {exc.line()}", warn=True)
+            self.say(f"the pre-show check cannot run: {exc.line()}", warn=True)
             return
         self.checking = True
 
         def work(progress):
-            from showkit.show.preshow import pre_show_check
+            return s.preshow_job(path, log, check_static, check_temp)
 
-            return pre_show_check(path, log, check_static, check_temp)
-
-        app.run_job("preshow", work, self.check_done, "pre-show check: re-deriving every ceiling")
+        self.run_job("preshow", work, self.check_done, "pre-show check: re-deriving every ceiling")
 
     def sheet_changed(self) -> None:
         """The sheet was edited after the check (any view): follow it at once, then check again.
@@ -305,12 +291,12 @@ class RunView(Vertical):
                         engine.fade_out()
                     except ShowkitError:
                         pass
-                    self.app.say(f"{playing.id}: {why or 'the gas temperature changed'} while it played: "
+                    self.say(f"{playing.id}: {why or 'the gas temperature changed'} while it played: "
                                  "fading out until the check says it fits", warn=True)
                 else:
                     room = playing.ceiling_db + drop_db - playing.gain_db
                     fader = engine.cap_fader_db(room, f"static {c.static_pa:g} Pa lowered the ceiling")
-                    self.app.say(f"{playing.id}: today's ceiling came down while it played: fader held at "
+                    self.say(f"{playing.id}: today's ceiling came down while it played: fader held at "
                                  f"{fader:+.1f} dB", warn=True)
         self._mark_held(held, reason)
         if recheck:
@@ -330,7 +316,7 @@ class RunView(Vertical):
             except Exception:  # noqa: BLE001 - a row gone from the table: nothing to mark
                 pass
         if held:
-            self.app.say(f"{reason}: {len(held)} cue(s) held back until the "
+            self.say(f"{reason}: {len(held)} cue(s) held back until the "
                          f"pre-show check is back: {', '.join(held)}", warn=True)
 
     def check_done(self, result) -> None:
@@ -362,7 +348,7 @@ class RunView(Vertical):
             except ShowkitError:
                 self._close_engine()
                 self.open_engine()
-                self.app.say(f"the show's cues changed since the last check: {GO_KEY} starts again at "
+                self.say(f"the show's cues changed since the last check: {GO_KEY} starts again at "
                              "the first cue that fits", warn=True)
             self.start_flames()
             self.refresh_now()
@@ -385,10 +371,10 @@ class RunView(Vertical):
             title += f"all {len(cues)} cues fit"
         self.query_one("#run-title", Static).update(title)
         if bad:
-            self.app.say(f"pre-show check: {len(bad)} cue(s) no longer fit today: {bad[0].refusal()}",
+            self.say(f"pre-show check: {len(bad)} cue(s) no longer fit today: {bad[0].refusal()}",
                          warn=True)
         else:
-            self.app.say(f"pre-show check: all {len(cues)} cues fit today; {GO_KEY} starts the first")
+            self.say(f"pre-show check: all {len(cues)} cues fit today; {GO_KEY} starts the first")
 
     def fill_table(self, cues=None) -> None:
         table = self.query_one(RunTable)
@@ -411,34 +397,21 @@ class RunView(Vertical):
         flames_view.set_rig(g.hole_positions_m, g.length_m)
 
         def work(progress):
-            import numpy as np
-
-            from showkit.analysis.pressure import signal_report
-
-            out = {}
-            for k, cue in enumerate(cues):
-                progress(k, len(cues), cue.id)
-                frames = signal_report(rig, cue.samples, cue.rate_hz, flames=True).frames
-                h = np.asarray(frames.height)
-                out[cue.id] = (h, float(frames.frame_rate_hz),
-                               float(h.min()) if h.size else 0.0, float(h.max()) if h.size else 1.0)
-            progress(len(cues), len(cues), None)
-            return out
+            return s.cue_flames_job(cues, rig, progress)
 
         def done(result):
             self.flames = result
             self.refresh_now()
 
-        self.app.run_job("run-flames", work, done, "predicting the flame row of every cue")
+        self.run_job("run-flames", work, done, "predicting the flame row of every cue")
 
     # ------------------------------------------------------------ the engine
     def open_engine(self) -> None:
         """The engine on the chosen device; a device problem is shown with what to do."""
         from showkit.show.engine import Engine
 
-        app = self.app
         self._close_engine()
-        log = app.show_log()
+        log = self.session.show_log()
         try:
             self.engine = Engine(self.cues, log=log)
         except ShowkitError as exc:
@@ -500,7 +473,7 @@ class RunView(Vertical):
             if ev.kind == "device_error":
                 self.set_message(f"{ev.detail}; press {RECONNECT_KEY} to reconnect", warn=True)
             elif ev.kind in ("start", "stop") and ev.cue:
-                self.app.say(f"{ev.cue}: {ev.detail}")
+                self.say(f"{ev.cue}: {ev.detail}")
         self.refresh_now()
 
     def refresh_now(self) -> None:
@@ -557,7 +530,7 @@ class RunView(Vertical):
                             f"(scale: this cue's {lo:.2f} to {hi:.2f} of still height)")
                 return
         if st.cue_id is not None:
-            flames.show(None, 0, 1, "flame row: being predicted…" if self.app.busy("run-flames")
+            flames.show(None, 0, 1, "flame row: being predicted…" if self.job_running("run-flames")
                         else "flame row: not predicted for this cue")
         else:
             flames.show(None, 0, 1, "flame row: appears when a cue plays")
@@ -570,13 +543,13 @@ class RunView(Vertical):
         widget.update(Text(("⚠ " if warn else "") + text))
         widget.set_class(warn, "warn")
         if warn:
-            self.app.say(text, warn=True)
+            self.say(text, warn=True)
 
     # ------------------------------------------------------------ operator's keys
     def _engine_or_say(self, need_device: bool = True):
         engine = self.engine
         if engine is None or (need_device and engine.device is None):
-            self.app.say("run the pre-show check first (c)" if not self.cues else
+            self.say("run the pre-show check first (c)" if not self.cues else
                          self.message if self.message.startswith("no audio output") else
                          f"no audio output: connect the device (D chooses one), then press {RECONNECT_KEY}", warn=True)
             return None
@@ -592,7 +565,7 @@ class RunView(Vertical):
          "reconnect": self.action_reconnect}[action]()
 
     def _refused(self, exc: ShowkitError) -> None:
-        self.app.say(f"refused: {exc.line()}", warn=True)
+        self.say(f"refused: {exc.line()}", warn=True)
 
     def action_go(self, index: int | None = None) -> None:
         engine = self._engine_or_say()
@@ -603,13 +576,13 @@ class RunView(Vertical):
         except ShowkitError as exc:
             self._refused(exc)
             return
-        self.app.say(f"GO {k + 1} {engine.cues[k].id} at {engine.cues[k].gain_db:+.1f} dB")
+        self.say(f"GO {k + 1} {engine.cues[k].id} at {engine.cues[k].gain_db:+.1f} dB")
         self.refresh_now()
 
     def action_start_selected(self) -> None:
         table = self.query_one(RunTable)
         if not self.cues:
-            self.app.say("run the pre-show check first (c)")
+            self.say("run the pre-show check first (c)")
             return
         self.action_go(min(max(table.cursor_row, 0), len(self.cues) - 1))
 
@@ -622,7 +595,7 @@ class RunView(Vertical):
         except ShowkitError as exc:
             self._refused(exc)
             return
-        self.app.say(f"fading out over {engine.fade_s:g} s")
+        self.say(f"fading out over {engine.fade_s:g} s")
 
     def action_fader(self, direction: int) -> None:
         engine = self._engine_or_say()
@@ -633,7 +606,7 @@ class RunView(Vertical):
         except ShowkitError as exc:
             self._refused(exc)
             return
-        self.app.say("fader " + ("silent" if new == -math.inf else f"{new:+.1f} dB"))
+        self.say("fader " + ("silent" if new == -math.inf else f"{new:+.1f} dB"))
         self.refresh_now()
 
     def action_rearm(self) -> None:
@@ -641,12 +614,12 @@ class RunView(Vertical):
         if engine is None:
             return
         engine.rearm()
-        self.app.say(f"re-armed: {GO_KEY} starts the next cue")
+        self.say(f"re-armed: {GO_KEY} starts the next cue")
         self.refresh_now()
 
     def action_reconnect(self) -> None:
         if not self.cues:
-            self.app.say("run the pre-show check first (c)")
+            self.say("run the pre-show check first (c)")
             return
         if self.engine is None or self.engine.device is None:
             self.open_engine()
@@ -658,7 +631,7 @@ class RunView(Vertical):
             return
         dev = self.engine.device
         self.set_message(f"output: {dev.index} {dev.name} at {self.engine.rate_hz} Hz; {GO_KEY} resumes at the next cue")
-        self.app.say(f"device connected: {GO_KEY} resumes at the next cue")
+        self.say(f"device connected: {GO_KEY} resumes at the next cue")
 
     def panic(self) -> bool:
         """Panic now (the App's panic key calls this first); True when an engine was there."""

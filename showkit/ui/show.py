@@ -6,15 +6,16 @@ from rich.markup import escape
 from rich.text import Text
 from textual.app import ComposeResult
 from textual.binding import Binding
-from textual.containers import Vertical
 from textual.widgets import DataTable, Static
 
 from showkit import units
 from showkit.errors import ShowkitError
 from showkit.printable import printable
 from showkit.safety import LEVEL_CAUTION
+from showkit.show.editing import GAIN_STEP_DB, describe_source
 from showkit.ui.drawing import headroom_bar
-from showkit.ui.session import GAIN_STEP_DB, describe_source
+from showkit.ui.messages import CueAdded, LockRequested
+from showkit.ui.viewbase import SessionView
 
 STATUS_MARK = {"ok": "ok", "over": "OVER", "stale": "stale", "error": "error", None: "…"}
 
@@ -23,7 +24,7 @@ class CueTable(DataTable):
     """The cue list (keeps DataTable's cursor keys)."""
 
 
-class ShowView(Vertical):
+class ShowView(SessionView):
     """Cue list, details of the selected cue, and the level caution."""
 
     BINDINGS = [
@@ -67,10 +68,6 @@ class ShowView(Vertical):
         self.refresh_table()
 
     # ------------------------------------------------------------ drawing
-    @property
-    def session(self):
-        return self.app.session
-
     def selected_id(self) -> str | None:
         table = self.query_one(CueTable)
         cues = self.session.sheet.cues
@@ -115,7 +112,7 @@ class ShowView(Vertical):
             return
         cue = self.session.sheet.cue(cid)
         check = self.session.checks.get(cid)
-        msg = "checking…" if check is None else _ui_message(check.message)
+        msg = "checking…" if check is None else ui_message(check.message)
         ceiling = "" if check is None or check.ceiling_db is None else f", ceiling {check.ceiling_db:+.2f} dB"
         rests = ""
         if check is not None and check.ceiling_db is not None and self.session.rig_loaded:
@@ -131,7 +128,7 @@ class ShowView(Vertical):
     def _cue_or_say(self) -> str | None:
         cid = self.selected_id()
         if cid is None:
-            self.app.say("the show has no cues yet")
+            self.say("the show has no cues yet")
         return cid
 
     def action_gain(self, direction: int) -> None:
@@ -140,7 +137,7 @@ class ShowView(Vertical):
             return
         change = self.session.nudge_gain(cid, direction * GAIN_STEP_DB)
         self.refresh_table(cid)
-        self.app.say(change.note or f"{cid}: gain {change.gain_db:+.2f} dB (saved)",
+        self.say(change.note or f"{cid}: gain {change.gain_db:+.2f} dB (saved)",
                      warn=change.stopped)
 
     def action_type_gain(self) -> None:
@@ -155,19 +152,21 @@ class ShowView(Vertical):
             if not values:
                 return
             try:
-                gain = float(values["gain"].lower().removesuffix("db").strip())
+                change = self.session.set_gain(cid, float(values["gain"].lower().removesuffix("db").strip()))
             except ValueError:
-                self.app.say(f"cannot read {values['gain']!r} as a gain in dB", warn=True)
+                self.say(f"cannot read {values['gain']!r} as a gain in dB", warn=True)
                 return
-            change = self.session.set_gain(cid, gain)
+            except ShowkitError as exc:
+                self.say(exc.line(), warn=True)
+                return
             self.refresh_table(cid)
-            self.app.say(change.note or f"{cid}: gain {change.gain_db:+.2f} dB (saved)", warn=change.stopped)
+            self.say(change.note or f"{cid}: gain {change.gain_db:+.2f} dB (saved)", warn=change.stopped)
 
         from showkit.ui.dialogs import AskScreen
 
-        self.app.push_screen(AskScreen(f"Gain of {cid} (ceiling today: {top})",
-                                       [("gain", "gain, dB", f"{cue.gain_db:g}")],
-                                       note=f"CAUTION: {LEVEL_CAUTION}"), done)
+        self.ask(AskScreen(f"Gain of {printable(cid)} (ceiling today: {top})",
+                            [("gain", "gain, dB", f"{cue.gain_db:g}")],
+                            note=f"CAUTION: {LEVEL_CAUTION}"), done)
 
     def action_edit(self) -> None:
         cid = self._cue_or_say()
@@ -180,22 +179,25 @@ class ShowView(Vertical):
             if not values:
                 return
             try:
-                then = values["then"].strip().lower()
-                new = self.session.edit_cue(cid, label=values["label"], fade_in_s=_seconds(values["fade_in"]),
+                then = _typed(values["then"], cue.then).strip().lower()
+                new = self.session.edit_cue(cid, label=_typed(values["label"], cue.label),
+                                            fade_in_s=_seconds(values["fade_in"]),
                                             fade_out_s=_seconds(values["fade_out"]), then=then,
-                                            notes=values["notes"])
+                                            notes=_typed(values["notes"], cue.notes))
             except (ShowkitError, ValueError) as exc:
-                self.app.say(exc.line() if isinstance(exc, ShowkitError) else str(exc), warn=True)
+                self.say(exc.line() if isinstance(exc, ShowkitError) else str(exc), warn=True)
                 return
             self.refresh_table(cid)
-            self.app.say(f"{cid}: changed (saved)")
+            self.say(f"{cid}: changed (saved)")
             if self.session.checks.get(cid) is None:
-                self.app.start_lock([new.id])
+                self.post_message(LockRequested([new.id]))
 
-        self.app.push_screen(AskScreen(f"Cue {cid}", [
-            ("label", "label", cue.label), ("fade_in", "fade in, s", f"{cue.fade_in_s:g}"),
-            ("fade_out", "fade out, s", f"{cue.fade_out_s:g}"), ("then", "then (wait or next)", cue.then),
-            ("notes", "notes", cue.notes)]), done)
+        # the boxes show text from the file as printable (no control characters reach the terminal)
+        self.ask(AskScreen(f"Cue {printable(cid)}", [
+            ("label", "label", printable(cue.label)), ("fade_in", "fade in, s", f"{cue.fade_in_s:g}"),
+            ("fade_out", "fade out, s", f"{cue.fade_out_s:g}"),
+            ("then", "then (wait or next)", printable(cue.then)),
+            ("notes", "notes", printable(cue.notes))]), done)
 
     def action_toggle_then(self) -> None:
         cid = self._cue_or_say()
@@ -204,7 +206,7 @@ class ShowView(Vertical):
         cue = self.session.sheet.cue(cid)
         self.session.edit_cue(cid, then="next" if cue.then == "wait" else "wait")
         self.refresh_table(cid)
-        self.app.say(f"{cid}: then {self.session.sheet.cue(cid).then} (saved)")
+        self.say(f"{cid}: then {self.session.sheet.cue(cid).then} (saved)")
 
     def action_move(self, delta: int) -> None:
         cid = self._cue_or_say()
@@ -212,7 +214,7 @@ class ShowView(Vertical):
             return
         self.session.move(cid, delta)
         self.refresh_table(cid)
-        self.app.say(f"{cid}: now cue {self.session.sheet.index(cid) + 1} (saved)")
+        self.say(f"{cid}: now cue {self.session.sheet.index(cid) + 1} (saved)")
 
     def action_add_tone(self, mode: int | None = None) -> None:
         from showkit.ui.dialogs import AskScreen
@@ -224,12 +226,12 @@ class ShowView(Vertical):
                 cue = self.session.add_tone(int(values["mode"]), _seconds(values["duration"]),
                                             after=self.selected_id())
             except (ShowkitError, ValueError) as exc:
-                self.app.say(exc.line() if isinstance(exc, ShowkitError) else f"cannot read that: {exc}", warn=True)
+                self.say(exc.line() if isinstance(exc, ShowkitError) else f"cannot read that: {exc}", warn=True)
                 return
-            self.app.cue_added(cue)
+            self.post_message(CueAdded(cue))
 
-        self.app.push_screen(AskScreen("New tone cue", [("mode", "mode number", "3" if mode is None else str(mode)),
-                                                        ("duration", "duration, s", "10")]), done)
+        self.ask(AskScreen("New tone cue", [("mode", "mode number", "3" if mode is None else str(mode)),
+                                             ("duration", "duration, s", "10")]), done)
 
     def action_add_glide(self) -> None:
         from showkit.ui.dialogs import AskScreen
@@ -241,12 +243,12 @@ class ShowView(Vertical):
                 cue = self.session.add_glide(int(values["from"]), int(values["to"]), _seconds(values["duration"]),
                                              after=self.selected_id())
             except (ShowkitError, ValueError) as exc:
-                self.app.say(exc.line() if isinstance(exc, ShowkitError) else f"cannot read that: {exc}", warn=True)
+                self.say(exc.line() if isinstance(exc, ShowkitError) else f"cannot read that: {exc}", warn=True)
                 return
-            self.app.cue_added(cue)
+            self.post_message(CueAdded(cue))
 
-        self.app.push_screen(AskScreen("New glide cue", [("from", "from mode", "2"), ("to", "to mode", "8"),
-                                                         ("duration", "duration, s", "15")]), done)
+        self.ask(AskScreen("New glide cue", [("from", "from mode", "2"), ("to", "to mode", "8"),
+                                              ("duration", "duration, s", "15")]), done)
 
     def action_add_pause(self) -> None:
         from showkit.ui.dialogs import AskScreen
@@ -257,11 +259,11 @@ class ShowView(Vertical):
             try:
                 cue = self.session.add_pause(_seconds(values["duration"]), after=self.selected_id())
             except (ShowkitError, ValueError) as exc:
-                self.app.say(exc.line() if isinstance(exc, ShowkitError) else f"cannot read that: {exc}", warn=True)
+                self.say(exc.line() if isinstance(exc, ShowkitError) else f"cannot read that: {exc}", warn=True)
                 return
-            self.app.cue_added(cue)
+            self.post_message(CueAdded(cue))
 
-        self.app.push_screen(AskScreen("New pause (talk) cue", [("duration", "duration, s", "20")]), done)
+        self.ask(AskScreen("New pause (talk) cue", [("duration", "duration, s", "20")]), done)
 
     def action_delete(self) -> None:
         cid = self._cue_or_say()
@@ -270,11 +272,11 @@ class ShowView(Vertical):
         label = self.session.sheet.cue(cid).label
         self.session.delete(cid)
         self.refresh_table()
-        self.app.say(f"deleted cue {cid} ({label}) and saved -- press u (or ctrl+z) now to bring it back",
+        self.say(f"deleted cue {cid} ({label}) and saved -- press u (or ctrl+z) now to bring it back",
                      warn=True)
 
     def action_relock(self) -> None:
-        self.app.start_lock(None, everything=True)
+        self.post_message(LockRequested(None, everything=True))
 
     def action_export(self, what: str) -> None:
         from showkit.ui import exports
@@ -282,11 +284,16 @@ class ShowView(Vertical):
         getattr(exports, what)(self)
 
 
-def _ui_message(text: str) -> str:
+def ui_message(text: str) -> str:
     """The check's message with the UI's key instead of the command line."""
     import re
 
     return re.sub(r"run `showkit lock [^`]*` to re-lock", "press L to lock it", text)
+
+
+def _typed(value: str, before: str) -> str:
+    """What a text box gives back: the file's own text when the box still shows it as printed."""
+    return before if value == printable(before) else value
 
 
 def _seconds(text: str) -> float:

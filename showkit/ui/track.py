@@ -8,13 +8,14 @@ from rich.markup import escape
 from rich.text import Text
 from textual.app import ComposeResult
 from textual.binding import Binding
-from textual.containers import Vertical
 from textual.widget import Widget
 from textual.widgets import DataTable, Static
 
 from showkit.errors import ShowkitError
 from showkit.printable import printable
 from showkit.ui.drawing import flame_rows, hole_columns, mode_map, span_strip
+from showkit.ui.messages import AuditionReady, CueAdded
+from showkit.ui.viewbase import SessionView
 from showkit.units import format_time as _clock  # the one m:ss.s formatter
 
 #: Cursor steps, s.
@@ -52,7 +53,7 @@ class TrackMap(Widget, can_focus=True):
         a = self.analysis
         n = len(a.map_modes)
         # the rest of the screen: bars, title, cursor facts, flames, 5 rows of passages
-        room = max(2, self.app.size.height - MAP_OTHER_ROWS - 2)
+        room = max(2, self.screen.size.height - MAP_OTHER_ROWS - 2)
         if n <= room:
             return list(range(n))
         energy = np.asarray(a.map_energy, dtype=float).reshape(n, -1).sum(axis=1)
@@ -133,7 +134,7 @@ class PassageTable(DataTable):
     """The passages found by the scan, best first."""
 
 
-class TrackView(Vertical):
+class TrackView(SessionView):
     """Track analysis: map, passages, cursor flames; add passages to the show."""
 
     BINDINGS = [
@@ -155,8 +156,8 @@ class TrackView(Vertical):
         Binding("P", "export('track_map')", "map PNG", show=False),
     ]
 
-    def __init__(self, **kw):
-        super().__init__(**kw)
+    def __init__(self, session, **kw):
+        super().__init__(session, **kw)
         self.path: Path | None = None
         self.wanted = ""
         self.analysis = None
@@ -178,15 +179,11 @@ class TrackView(Vertical):
         self.query_one("#track-title", Static).update(
             "No track open yet: o opens a track (demo tracks are offered).")
 
-    @property
-    def session(self):
-        return self.app.session
-
     # ------------------------------------------------------------ opening and analysis
     def action_open(self) -> None:
         from showkit.ui.dialogs import AskScreen
 
-        choices = self.session.track_choices()
+        choices = self.session.tracks.choices()
         names = "  ".join(c.removeprefix("demo:") for c in choices[:6])
 
         def done(values):
@@ -194,9 +191,9 @@ class TrackView(Vertical):
                 self.open_track(values["path"].strip())
 
         first = str(self.path or (choices[0] if choices else ""))
-        self.app.push_screen(AskScreen("Open a track", [("path", "audio file (FLAC, WAV, OGG ...) or a demo name",
-                                                         first)],
-                                       note=f"demo tracks: {names}" if names else ""), done)
+        self.ask(AskScreen("Open a track", [("path", "audio file (FLAC, WAV, OGG ...) or a demo name",
+                                              first)],
+                            note=f"demo tracks: {names}" if names else ""), done)
 
     def open_track(self, path) -> None:
         """Open a track by name or path; it is found and analysed in the background."""
@@ -215,7 +212,7 @@ class TrackView(Vertical):
         wanted, shift = str(self.path or self.wanted), self.transpose
 
         def work(progress):
-            return s.track_job(wanted, shift, progress)
+            return s.tracks.analysis_job(wanted, shift, progress)
 
         def done(analysis):
             if wanted != str(self.path or self.wanted) or shift != self.transpose:
@@ -225,7 +222,7 @@ class TrackView(Vertical):
 
         name = Path(wanted.removeprefix("demo:")).name
         self.query_one("#track-title", Static).update(Text(f"{printable(name)}  analysing…"))
-        self.app.run_job("track", work, done, f"analysing {name}" + (f" transposed {shift:+d}" if shift else ""))
+        self.run_job("track", work, done, f"analysing {name}" + (f" transposed {shift:+d}" if shift else ""))
 
     def conditions_changed(self) -> None:
         if self.path is not None:
@@ -255,7 +252,7 @@ class TrackView(Vertical):
         if a.passages and m.selected is None:
             self.select_passage(0)
         self.update_cursor()
-        self.app.say(f"{a.path.name}: {len(a.passages)} passages; f/b move between them, c adds one")
+        self.say(f"{a.path.name}: {len(a.passages)} passages; f/b move between them, c adds one")
 
     # ------------------------------------------------------------ cursor
     def update_cursor(self) -> None:
@@ -316,7 +313,7 @@ class TrackView(Vertical):
     def action_passage(self, delta: int) -> None:
         m = self.query_one(TrackMap)
         if self.analysis is None or not self.analysis.passages:
-            self.app.say("no passages")
+            self.say("no passages")
             return
         k = 0 if m.selected is None else m.selected + delta
         self.select_passage(k % len(self.analysis.passages))
@@ -342,7 +339,7 @@ class TrackView(Vertical):
             self.measure_selection(m.mark_in, m.mark_out)
         else:
             self.selection = None
-            self.app.say(f"{which} set at {_clock(m.cursor_s)}; set the other end with "
+            self.say(f"{which} set at {_clock(m.cursor_s)}; set the other end with "
                          + ("')'" if which == "in" else "'('"))
         self.update_cursor()
 
@@ -352,37 +349,37 @@ class TrackView(Vertical):
         self.selection = (start_s, end_s, None, None)
 
         def work(progress):
-            return s.passage_job(path, start_s, end_s)
+            return s.tracks.passage_job(path, start_s, end_s)
 
         def done(report):
             if self.selection and self.selection[:2] == (start_s, end_s):
                 self.selection = (start_s, end_s, report.ceiling_db, report.contrast)
                 self.update_cursor()
-                self.app.say(f"selection {_clock(start_s)}-{_clock(end_s)}: ceiling {report.ceiling_db:+.1f} dB, "
+                self.say(f"selection {_clock(start_s)}-{_clock(end_s)}: ceiling {report.ceiling_db:+.1f} dB, "
                              f"contrast {report.contrast:.2f}; c adds it to the show")
 
-        self.app.run_job("passage", work, done, "measuring the selection's ceiling")
+        self.run_job("passage", work, done, "measuring the selection's ceiling")
 
     def action_add_cue(self) -> None:
         if self.analysis is None or self.selection is None:
-            self.app.say("select a passage first (f/b, or ( and ) at the cursor)")
+            self.say("select a passage first (f/b, or ( and ) at the cursor)")
             return
         start, end, ceiling, _ = self.selection
         if ceiling is None:
-            self.app.say("the selection's ceiling is still being measured; try again in a moment")
+            self.say("the selection's ceiling is still being measured; try again in a moment")
             return
         if self.transpose:
-            self.app.say("cues play the track as recorded: the transposition is not added to the cue", warn=True)
+            self.say("cues play the track as recorded: the transposition is not added to the cue", warn=True)
         try:
             cue = self.session.add_passage(self.path, start, end, ceiling)
         except ShowkitError as exc:
-            self.app.say(exc.line(), warn=True)
+            self.say(exc.line(), warn=True)
             return
-        self.app.cue_added(cue)
+        self.post_message(CueAdded(cue))
 
     def action_transpose(self, delta: int) -> None:
         if self.path is None and not self.wanted:
-            self.app.say("open a track first (o)")
+            self.say("open a track first (o)")
             return
         self.transpose = max(-12, min(12, self.transpose + delta))
         self.analyse()
@@ -394,10 +391,11 @@ class TrackView(Vertical):
 
     def audition(self) -> None:
         if self.selection is None or self.path is None:
-            self.app.say("select a passage to audition")
+            self.say("select a passage to audition")
             return
         start, end, ceiling, _ = self.selection
         s = self.session
         path = self.path
-        self.app.run_job("render", lambda progress: s.passage_audition_job(path, start, end),
-                         self.app.play_rendered, "rendering the passage at a safe gain for the audition")
+        self.run_job("render", lambda progress: s.tracks.audition_job(path, start, end),
+                     lambda rendered: self.post_message(AuditionReady(rendered)),
+                     "rendering the passage at a safe gain for the audition")

@@ -6,12 +6,13 @@ from rich.markup import escape
 from rich.text import Text
 from textual.app import ComposeResult
 from textual.binding import Binding
-from textual.containers import Vertical
 from textual.widget import Widget
 from textual.widgets import DataTable, Static
 
 from showkit.printable import printable
 from showkit.ui.drawing import flame_picture
+from showkit.ui.messages import ConditionsEntered, CueAdded
+from showkit.ui.viewbase import SessionView
 
 FLAME_LINES = 5
 
@@ -46,7 +47,7 @@ class ModeTable(DataTable):
     """The modes of the tube."""
 
 
-class TubeView(Vertical):
+class TubeView(SessionView):
     """Rig facts, the tube drawing and the modes table."""
 
     BINDINGS = [
@@ -73,11 +74,35 @@ class TubeView(Vertical):
         self.show_modes(self.session.modes)
         mode = self.selected_mode()
         if mode is not None:
-            self.app.start_mode_flames(mode)
+            self.show_mode_flames(mode)
 
-    @property
-    def session(self):
-        return self.app.session
+    def conditions_changed(self, new_modes: bool) -> None:
+        """Today's conditions changed: the facts at once; the flame row now, or with the new modes."""
+        self.refresh_facts()
+        mode = self.selected_mode()
+        if not new_modes and mode is not None:
+            self.show_mode_flames(mode)
+
+    def show_mode_flames(self, mode) -> None:
+        """The predicted flame row of ``mode`` at its safe level (a worker the first time)."""
+        s = self.session
+        drawing = self.query_one(TubeDrawing)
+        known = s.cached_mode_flames(mode)
+        if known is not None:
+            h, air, ceiling = known
+            drawing.set_flames(h, air, _flames_caption(mode, h, ceiling))
+            return
+
+        def work(progress):
+            return s.mode_flames_job(mode)
+
+        def done(result):
+            h, air, ceiling = result
+            if self.selected_mode() is not None and self.selected_mode().n == mode.n:
+                drawing.set_flames(h, air, _flames_caption(mode, h, ceiling))
+            self.say(f"mode {mode.n}: flame row predicted at its safe level {ceiling:+.1f} dB")
+
+        self.run_job("flames", work, done, f"predicting the flame row of mode {mode.n}")
 
     def refresh_facts(self) -> None:
         try:
@@ -123,7 +148,7 @@ class TubeView(Vertical):
     def on_data_table_row_highlighted(self, event: DataTable.RowHighlighted) -> None:
         mode = self.selected_mode()
         if mode is not None:
-            self.app.start_mode_flames(mode)
+            self.show_mode_flames(mode)
 
     def action_temperature(self) -> None:
         from showkit.ui.dialogs import AskScreen
@@ -132,18 +157,24 @@ class TubeView(Vertical):
 
         def done(values):
             if values:
-                self.app.change_conditions(temperature=values["temperature"])
+                self.post_message(ConditionsEntered(temperature=values["temperature"]))
 
-        self.app.push_screen(AskScreen("Gas temperature in the tube today",
-                                       [("temperature", "temperature (e.g. 18 C, 291 K, 64 F)",
-                                         f"{rig.temperature_k - 273.15:.1f} C")],
-                                       note="Modes, ceilings and the run view's check follow at once; tone "
-                                            "and glide cues move to today's modes; no lock goes stale."), done)
+        self.ask(AskScreen("Gas temperature in the tube today",
+                            [("temperature", "temperature (e.g. 18 C, 291 K, 64 F)",
+                              f"{rig.temperature_k - 273.15:.1f} C")],
+                            note="Modes, ceilings and the run view's check follow at once; tone "
+                                 "and glide cues move to today's modes; no lock goes stale."), done)
 
     def action_tone_cue(self) -> None:
         mode = self.selected_mode()
         if mode is None:
-            self.app.say("the modes are still being computed")
+            self.say("the modes are still being computed")
             return
         cue = self.session.add_tone(mode.n, 10.0, after=None)
-        self.app.cue_added(cue)
+        self.post_message(CueAdded(cue))
+
+
+def _flames_caption(mode, height, ceiling_db: float) -> str:
+    lo, hi = float(min(height)), float(max(height))
+    return (f"mode {mode.n}, {mode.frequency_hz:.1f} Hz, at its safe level {ceiling_db:+.1f} dB: "
+            f"flames {lo:.3f} to {hi:.3f} of still height (! air drawn in)")

@@ -1,0 +1,172 @@
+"""The editing model (showkit.show.editing): gains stop at the ceiling, undo, autosave.
+
+No terminal UI here: the model is the domain's, usable from any front end.  The
+ceilings are set by hand (a CueCheck per cue, as the pre-show rule gives them), so
+the tests need no rig and no sound; the reference is the rule itself: a gain is never
+above its ceiling rounded down to 0.01 dB (``floor_db``, checked against a closed form).
+"""
+
+from __future__ import annotations
+
+import math
+
+import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+
+from showkit.errors import InputError, SheetError
+from showkit.show.editing import SheetEditor
+from showkit.show.lock import CueCheck
+from showkit.show.sheet import Cue, Lock, PauseSource, Sheet, ToneSource, load_sheet
+
+CEILINGS = {"a": -20.0, "b": -31.337, "c": -8.004}
+
+
+def _lock(ceiling_db: float) -> Lock:
+    return Lock(ceiling_db=ceiling_db, pressure_db=ceiling_db, full_scale_db=ceiling_db + 10.0,
+                limited_by="pressure", source_hash="x" * 16, rig_hash="y" * 16, calibration_hash="z" * 16,
+                static_pa=18.0, reserve=0.25, analysis_version=1)
+
+
+def _check(cue_id: str, gain_db: float, ceiling_db: float | None, status: str = "ok") -> CueCheck:
+    head = None if ceiling_db is None else ceiling_db - gain_db
+    return CueCheck(cue_id, gain_db, ceiling_db, head, status, "test check", "pressure")
+
+
+def _editor(tmp_path, autosave=True) -> SheetEditor:
+    cues = [Cue(id=k, source=ToneSource(2.0, mode=n), label=f"cue {k}", gain_db=round(c - 6.0, 2),
+                fade_in_s=0.5, fade_out_s=0.5, lock=_lock(c))
+            for n, (k, c) in enumerate(CEILINGS.items(), 2)]
+    cues.append(Cue(id="talk", source=PauseSource(5.0), label="Talk"))
+    sheet = Sheet(title="Edit test", rig="demo", cues=cues, path=tmp_path / "edit.toml")
+    ed = SheetEditor(sheet, autosave=autosave)
+    _recheck(ed)
+    return ed
+
+
+def _recheck(ed: SheetEditor) -> None:
+    """What the pre-show check gives here: each locked cue's ceiling is its lock's."""
+    for cue in ed.sheet.cues:
+        if cue.lock is not None:
+            ed.checks[cue.id] = _check(cue.id, cue.gain_db, cue.lock.ceiling_db)
+
+
+def test_a_gain_stops_at_the_ceiling_and_says_why(tmp_path):
+    ed = _editor(tmp_path)
+    change = ed.set_gain("b", 0.0)
+    # closed form: the ceiling rounded down to the 0.01 dB step
+    assert change.gain_db == math.floor(-31.337 * 100) / 100 == -31.34
+    assert change.stopped and "stopped at the ceiling -31.34 dB" in change.note
+    assert load_sheet(tmp_path / "edit.toml").cue("b").gain_db == -31.34  # autosaved
+    assert ed.checks["b"].headroom_db == pytest.approx(-31.337 + 31.34)
+
+
+def test_an_unknown_ceiling_lets_the_gain_only_come_down(tmp_path):
+    ed = _editor(tmp_path)
+    del ed.checks["a"]
+    before = ed.sheet.cue("a").gain_db
+    change = ed.nudge_gain("a", 0.5)
+    assert change.stopped and change.gain_db == before and "only come down" in change.note
+    assert ed.nudge_gain("a", -0.5).gain_db == before - 0.5
+    ed.checks["a"] = _check("a", before, -20.0, status="stale")
+    assert ed.set_gain("a", -1.0).gain_db == before - 0.5
+
+
+@pytest.mark.parametrize("bad", [math.nan, math.inf, -math.inf])
+def test_a_non_finite_gain_is_refused(tmp_path, bad):
+    ed = _editor(tmp_path)
+    with pytest.raises(InputError):
+        ed.set_gain("a", bad)
+    assert ed.sheet.cue("a").gain_db == -26.0 and not ed.can_undo
+
+
+def test_delete_and_undo_bring_the_cue_back_saved(tmp_path):
+    ed = _editor(tmp_path)
+    ed.move("c", -5)
+    assert [c.id for c in ed.sheet.cues] == ["c", "a", "b", "talk"]
+    gone = ed.delete("a")
+    assert gone.id == "a" and "a" not in [c.id for c in load_sheet(tmp_path / "edit.toml").cues]
+    assert ed.undo()
+    saved = load_sheet(tmp_path / "edit.toml")
+    assert [c.id for c in saved.cues] == ["c", "a", "b", "talk"] and saved.cue("a") == ed.sheet.cue("a")
+    assert ed.undo() and [c.id for c in ed.sheet.cues] == ["a", "b", "c", "talk"]
+    assert not ed.undo()
+
+
+def test_an_edit_the_reader_would_refuse_is_undone(tmp_path):
+    ed = _editor(tmp_path)
+    with pytest.raises(SheetError):
+        ed.edit_cue("talk", then="later")
+    assert ed.sheet.cue("talk").then == "wait" and not ed.can_undo
+    with pytest.raises(InputError):
+        ed.edit_cue("a", gain_db=0.0)  # a gain goes through set_gain (it stops at the ceiling)
+
+
+def test_a_new_lock_forgets_the_old_ceiling_until_checked(tmp_path):
+    ed = _editor(tmp_path)
+    lower = [c for c in ed.sheet.cues if c.id == "c"][0]
+    from dataclasses import replace
+
+    notes = ed.apply_locks([replace(lower, lock=_lock(-30.0))])
+    assert ed.sheet.cue("c").gain_db == -30.0 and notes  # brought down to the new ceiling
+    assert ed.ceiling_of("c") is None                     # the old check's ceiling no longer counts
+    assert ed.set_gain("c", -10.0).gain_db == -30.0
+
+
+# ---------------------------------------------------------------- property
+EDITS = st.lists(st.one_of(
+    st.tuples(st.just("set"), st.sampled_from(["a", "b", "c", "talk"]),
+              st.floats(-90, 30, allow_nan=False)),
+    st.tuples(st.just("nudge"), st.sampled_from(["a", "b", "c"]), st.sampled_from([-1.0, -0.5, 0.5, 1.0, 7.3])),
+    st.tuples(st.just("undo"), st.none(), st.none()),
+    st.tuples(st.just("delete"), st.sampled_from(["a", "b", "c", "talk"]), st.none()),
+    st.tuples(st.just("move"), st.sampled_from(["a", "b", "c"]), st.integers(-3, 3)),
+    st.tuples(st.just("fade"), st.sampled_from(["a", "b", "c"]), st.floats(0.0, 1.0)),
+    st.tuples(st.just("relock"), st.sampled_from(["a", "b", "c"]), st.floats(-60, 0, allow_nan=False)),
+    st.tuples(st.just("recheck"), st.none(), st.none()),
+), max_size=25)
+
+
+@settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(edits=EDITS)
+def test_no_sequence_of_edits_yields_a_gain_above_the_ceiling(tmp_path, edits):
+    """Whatever is done (gains, undo, delete, moves, fades, new locks, checks), every locked
+    cue's gain stays at or below its locked ceiling."""
+    from dataclasses import replace
+
+    ed = _editor(tmp_path, autosave=False)
+    for op, cid, value in edits:
+        present = cid is not None and cid in [c.id for c in ed.sheet.cues]
+        if op == "set" and present:
+            ed.set_gain(cid, value)
+        elif op == "nudge" and present:
+            ed.nudge_gain(cid, value)
+        elif op == "undo":
+            ed.undo()
+        elif op == "delete" and present:
+            ed.delete(cid)
+        elif op == "move" and present:
+            ed.move(cid, value)
+        elif op == "fade" and present:
+            ed.edit_cue(cid, fade_in_s=round(value, 2))
+        elif op == "relock" and present:
+            ed.apply_locks([replace(ed.sheet.cue(cid), lock=_lock(value))])
+        elif op == "recheck":
+            _recheck(ed)
+        for cue in ed.sheet.cues:
+            if cue.lock is not None:
+                assert cue.gain_db <= cue.lock.ceiling_db, (op, cid, value, cue)
+
+
+def test_undo_of_a_new_lock_forgets_its_ceiling(tmp_path):
+    """A lock raised, checked, then undone: the raised ceiling no longer counts for the old lock."""
+    from dataclasses import replace
+
+    ed = _editor(tmp_path, autosave=False)
+    ed.apply_locks([replace(ed.sheet.cue("c"), lock=_lock(-1.0))])
+    _recheck(ed)
+    assert ed.ceiling_of("c") == -1.0
+    assert ed.undo() and ed.sheet.cue("c").lock.ceiling_db == pytest.approx(CEILINGS["c"], abs=0.01)
+    assert ed.ceiling_of("c") is None
+    ed.set_gain("c", 0.0)
+    assert ed.sheet.cue("c").gain_db <= ed.sheet.cue("c").lock.ceiling_db
