@@ -39,6 +39,7 @@ def run(args) -> int:
     from showkit.printable import printable
     from showkit.show.lock import check_sheet, sheet_rig
     from showkit.show.sheet import load_sheet
+    from showkit.show.status import CueStatus
 
     sheet = load_sheet(args.sheet)
     rig = sheet_rig(sheet)
@@ -57,8 +58,8 @@ def run(args) -> int:
         print(f"ceilings rest on: {rig.drive.describe()}")
         print(f"ceilings hold for: {rig.loss_family.describe()}")
         print(table(rows, ["cue", "gain dB", "ceiling dB", "headroom", "", "status", "note"], "<>>><<<"))
-        bad = [c for c in checks if c.status != "ok"]
+        bad = [c for c in checks if c.status is not CueStatus.OK]
         if bad:
             print(f"\n{len(bad)} cue(s) need attention: "
                   + ", ".join(f"{printable(c.id)} ({c.status})" for c in bad))
-    return 0 if all(c.status == "ok" for c in checks) else 2
+    return 0 if all(c.status is CueStatus.OK for c in checks) else 2

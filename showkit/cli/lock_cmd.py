@@ -26,6 +26,7 @@ def run(args) -> int:
     from showkit.printable import printable
     from showkit.show.lock import check_sheet, lock_sheet, sheet_rig
     from showkit.show.sheet import load_sheet, save_sheet
+    from showkit.show.sources import SignalMemo
 
     sheet = load_sheet(args.sheet)
     rig = sheet_rig(sheet)
@@ -37,7 +38,8 @@ def run(args) -> int:
         if cid is not None and sys.stderr.isatty():
             print(f"\rlocking {k + 1}/{n}: {printable(cid):<24}", end="", file=sys.stderr, flush=True)
 
-    messages = lock_sheet(sheet, rig, args.cue, progress)
+    signals = SignalMemo()  # each cue's sound built once, for its lock and the check below
+    messages = lock_sheet(sheet, rig, args.cue, progress, signals=signals)
     if sys.stderr.isatty():
         print("\r" + " " * 50 + "\r", end="", file=sys.stderr)
     save_sheet(sheet)
@@ -45,7 +47,7 @@ def run(args) -> int:
     for m in messages:
         print(f"clamped: {printable(m)}")
     rows = []
-    for c, state in zip(sheet.cues, check_sheet(sheet, rig)):
+    for c, state in zip(sheet.cues, check_sheet(sheet, rig, signals=signals)):
         lock = c.lock
         rows.append([c.id, c.kind, f"{c.gain_db:+.2f}",
                      "-" if lock is None else f"{lock.ceiling_db:+.2f}",

@@ -26,7 +26,8 @@ from showkit.physics import ceiling as rule
 from showkit.physics.family import STATIC_SPAN
 from showkit.rigfile import Rig, load_rig
 from showkit.show.sheet import DB_STEP, Cue, Lock, Sheet, floor_db, rounded_lock
-from showkit.show.sources import TONE_RATE_HZ, CueSignal, cue_signal
+from showkit.show.sources import TONE_RATE_HZ, CueSignal, SignalMemo, signal_for
+from showkit.show.status import CueStatus
 
 #: The rate a whole show is rendered and usually played at, Hz: a cue at another
 #: rate is locked at both (see :func:`compute_lock`).
@@ -96,9 +97,14 @@ def compute_lock(rig: Rig, signal: CueSignal) -> Lock:
     return lock
 
 
-def lock_cue(sheet: Sheet, rig: Rig, cue: Cue) -> tuple[Cue, str | None]:
-    """Lock one cue; a gain above the new ceiling is clamped (with a message)."""
-    lock = compute_lock(rig, cue_signal(sheet, rig, cue))
+def lock_cue(sheet: Sheet, rig: Rig, cue: Cue,
+             signals: SignalMemo | None = None) -> tuple[Cue, str | None]:
+    """Lock one cue; a gain above the new ceiling is clamped (with a message).
+
+    ``signals``: the pass's signals (:class:`~showkit.show.sources.SignalMemo`), so that
+    the check after the lock does not build the cue's sound again; None builds it here.
+    """
+    lock = compute_lock(rig, signal_for(sheet, rig, cue, signals))
     message = None
     gain = cue.gain_db
     if gain > lock.ceiling_db:
@@ -109,15 +115,19 @@ def lock_cue(sheet: Sheet, rig: Rig, cue: Cue) -> tuple[Cue, str | None]:
 
 
 def lock_sheet(sheet: Sheet, rig: Rig | None = None, only: list[str] | None = None,
-               progress=None) -> list[str]:
-    """Lock every cue (or the ids in ``only``) in place; returns the clamp messages."""
+               progress=None, signals: SignalMemo | None = None) -> list[str]:
+    """Lock every cue (or the ids in ``only``) in place; returns the clamp messages.
+
+    ``signals``: a :class:`~showkit.show.sources.SignalMemo` to keep the signals in for a
+    check that follows (:func:`check_sheet` with the same memo); None keeps none.
+    """
     rig = rig or sheet_rig(sheet)
     messages = []
     targets = [c for c in sheet.cues if only is None or c.id in only]
     for k, cue in enumerate(targets):
         if progress:
             progress(k, len(targets), cue.id)
-        new, message = lock_cue(sheet, rig, cue)
+        new, message = lock_cue(sheet, rig, cue, signals)
         sheet.replace_cue(cue.id, gain_db=new.gain_db, lock=new.lock)
         if message:
             messages.append(message)
@@ -128,15 +138,19 @@ def lock_sheet(sheet: Sheet, rig: Rig | None = None, only: list[str] | None = No
 
 @dataclass(frozen=True)
 class CueCheck:
-    """A cue's state today: ``status`` is ``"ok"``, ``"over"``, ``"stale"`` or ``"error"``."""
+    """A cue's state today: ``status`` is a :class:`~showkit.show.status.CueStatus`
+    (``ok``, ``over``, ``stale`` or ``error``; the text is accepted and made a member)."""
 
     id: str
     gain_db: float
     ceiling_db: float | None
     headroom_db: float | None
-    status: str
+    status: CueStatus
     message: str
     limited_by: str | None = None
+
+    def __post_init__(self):
+        object.__setattr__(self, "status", CueStatus.of(self.status, f"cue {self.id!r}"))
 
     def to_json(self) -> dict:
         return {"id": self.id, "gain_db": self.gain_db, "ceiling_db": self.ceiling_db,
@@ -213,27 +227,30 @@ def today_ceiling(lock: Lock, static_pa: float, reserve: float) -> rule.Ceiling:
 
 
 def check_cue(sheet: Sheet, rig: Rig, cue: Cue, static_pa: float | None = None,
-              reserve: float | None = None, signal: CueSignal | None = None) -> CueCheck:
+              reserve: float | None = None, signal: CueSignal | None = None,
+              signals: SignalMemo | None = None) -> CueCheck:
     """The cue's status, ceiling and headroom for today's conditions.
 
     ``static_pa`` and ``reserve`` (None: the rig's) go through
     :func:`showkit.conditions.make_conditions` via :meth:`Rig.with_conditions`.
+    ``signal``: the cue's signal when already made; else from ``signals`` (the pass's
+    :class:`~showkit.show.sources.SignalMemo`) or built here.
     """
     rig = rig.with_conditions(static_pa=static_pa, reserve=reserve)
     static, res = rig.static_pa, rig.reserve
     try:
-        signal = signal or cue_signal(sheet, rig, cue)
+        signal = signal or signal_for(sheet, rig, cue, signals)
     except ShowkitError as exc:
-        return CueCheck(cue.id, cue.gain_db, None, None, "error", exc.line())
+        return CueCheck(cue.id, cue.gain_db, None, None, CueStatus.ERROR, exc.line())
     reason = stale_reason(rig, cue.lock, signal)
     if reason:
-        return CueCheck(cue.id, cue.gain_db, None, None, "stale",
+        return CueCheck(cue.id, cue.gain_db, None, None, CueStatus.STALE,
                         f"{reason}: run `showkit lock {sheet.path or 'SHEET'}` to re-lock")
     # the loss family reaches down to still gas before a measurement; a measured one does not
     top = STATIC_SPAN * cue.lock.static_pa
     bottom = cue.lock.static_pa / STATIC_SPAN if rig.loss_family and rig.loss_family.measured else 0.0
     if not bottom - 1e-9 <= static <= top + 1e-9:
-        return CueCheck(cue.id, cue.gain_db, None, None, "stale",
+        return CueCheck(cue.id, cue.gain_db, None, None, CueStatus.STALE,
                         f"today's static pressure {static:g} Pa is outside the {bottom:g} to {top:g} Pa "
                         f"the lock's loss family covers (the gas jets out of the holes faster or slower): set "
                         f"the rig's static_pressure to today's reading and run `showkit lock "
@@ -241,20 +258,20 @@ def check_cue(sheet: Sheet, rig: Rig, cue: Cue, static_pa: float | None = None,
     try:
         c = today_ceiling(cue.lock, static, res)
     except ValueError as exc:  # pragma: no cover - lock_problem refuses these first
-        return CueCheck(cue.id, cue.gain_db, None, None, "stale", f"the lock is damaged ({exc})")
+        return CueCheck(cue.id, cue.gain_db, None, None, CueStatus.STALE, f"the lock is damaged ({exc})")
     headroom = c.ceiling_db - cue.gain_db
     if not math.isfinite(headroom):  # pragma: no cover - a finite lock gives a finite ceiling
-        return CueCheck(cue.id, cue.gain_db, None, None, "stale", "the lock gives no finite ceiling")
+        return CueCheck(cue.id, cue.gain_db, None, None, CueStatus.STALE, "the lock gives no finite ceiling")
     if headroom < -1e-9:
-        return CueCheck(cue.id, cue.gain_db, c.ceiling_db, headroom, "over",
+        return CueCheck(cue.id, cue.gain_db, c.ceiling_db, headroom, CueStatus.OVER,
                         f"gain is {-headroom:.2f} dB above today's ceiling: bring it down to "
                         f"{safe_gain(c.ceiling_db):+.2f} dB", c.limited_by)
-    return CueCheck(cue.id, cue.gain_db, c.ceiling_db, headroom, "ok",
+    return CueCheck(cue.id, cue.gain_db, c.ceiling_db, headroom, CueStatus.OK,
                     f"{headroom:.1f} dB below the ceiling ({c.limited_by.replace('_', ' ')})", c.limited_by)
 
 
 def check_sheet(sheet: Sheet, rig: Rig | None = None, static_pa: float | None = None,
-                reserve: float | None = None) -> list[CueCheck]:
-    """:func:`check_cue` for every cue in show order."""
+                reserve: float | None = None, signals: SignalMemo | None = None) -> list[CueCheck]:
+    """:func:`check_cue` for every cue in show order (``signals``: see :func:`check_cue`)."""
     rig = (rig or sheet_rig(sheet)).with_conditions(static_pa=static_pa, reserve=reserve)
-    return [check_cue(sheet, rig, c) for c in sheet.cues]
+    return [check_cue(sheet, rig, c, signals=signals) for c in sheet.cues]

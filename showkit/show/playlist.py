@@ -1,8 +1,13 @@
 """Rendered cues ready for playback, and their resampling to a device's rate.
 
-A :class:`RenderedCue` is what the playback engine (:mod:`showkit.show.engine`)
-plays: one cue's samples, already at its locked gain with its fades applied and
-verified against the pressure model by the cue-sheet render.  The engine only
+A :class:`RenderedCue` is the one type of a rendered cue: what the cue-sheet
+render (:func:`showkit.show.render.render_cue`) returns, what `showkit render`
+writes and what the playback engine (:mod:`showkit.show.engine`) plays.  It holds
+one cue's samples, already at its locked gain with its fades applied and verified
+against the pressure model, with what the verification found (``margin_pa``,
+``min_pressure_pa``) and how to verify the samples again at another rate
+(``verify_at``).  A cue that may not be played carries its status
+(:class:`showkit.show.status.CueStatus`) and why, and no samples.  The engine only
 ever scales these samples *down* (operator fader, fade-out, panic), so a
 rendered cue's samples are the upper bound of what reaches the speaker.
 
@@ -24,22 +29,24 @@ import numpy as np
 
 from showkit.errors import InputError
 from showkit.show.sheet import THEN_VALUES  # one definition: the sheet's
+from showkit.show.status import CueStatus
 
-STATUS_VALUES = ("ok", "stale", "over", "error")
+#: The statuses, as text (the members of :class:`CueStatus`; kept for older callers).
+STATUS_VALUES = tuple(CueStatus)
 
 #: What to do about a cue that may not be played, by status.
 _STATUS_FIX = {
-    "stale": "its lock no longer matches its audio, rig or calibration: re-lock the sheet "
+    CueStatus.STALE: "its lock no longer matches its audio, rig or calibration: re-lock the sheet "
              "with `showkit lock SHEET`",
-    "over": "its gain is above today's ceiling: lower the cue's gain (see `showkit check SHEET "
+    CueStatus.OVER: "its gain is above today's ceiling: lower the cue's gain (see `showkit check SHEET "
             "--static ...`)",
-    "error": "it could not be rendered: see `showkit check SHEET` for the reason",
+    CueStatus.ERROR: "it could not be rendered: see `showkit check SHEET` for the reason",
 }
 
 
 @dataclass(frozen=True)
 class RenderedCue:
-    """One cue, rendered and verified, ready to play.
+    """One cue, rendered and verified, ready to play (or refused, with its status and why).
 
     Parameters
     ----------
@@ -60,10 +67,20 @@ class RenderedCue:
         The cue's locked gain in dB (for the log and the screen).
     ceiling_db : float or None
         The cue's ceiling in dB today (None when unknown, e.g. stale).
-    status : str
-        ``"ok"``, ``"stale"``, ``"over"`` or ``"error"``; only ``"ok"`` cues can be started.
+    status : CueStatus
+        ``ok``, ``stale``, ``over`` or ``error`` (the text is accepted and made a member);
+        only ``ok`` cues can be started.
     message : str
         Why the cue is not ok (from the check), or empty.
+    verify_at : callable, optional
+        ``verify_at(samples, rate_hz) -> dB``, see below.
+    margin_pa : float, optional
+        From the render's verification: the lowest pressure above ambient at any hole
+        minus the reserve line (>= 0), Pa (None when not rendered here).
+    min_pressure_pa : float, optional
+        From the render's verification: the lowest pressure above ambient at any hole, Pa.
+    ride : bool
+        Whether the cue's level was ridden under its ceiling (:mod:`showkit.show.rider`).
     """
 
     id: str
@@ -73,22 +90,23 @@ class RenderedCue:
     then: str = "wait"
     gain_db: float = 0.0
     ceiling_db: float | None = None
-    status: str = "ok"
+    status: CueStatus = CueStatus.OK
     message: str = ""
     #: ``verify_at(samples, rate_hz) -> dB``: how much more gain these exact samples may
     #: take on the rig today (the pressure model's ceiling of them; <= 0 means too loud).
     #: Set by the renderer; :func:`resample_cue` calls it on the resampled samples, so a
     #: cue is verified at the rate that is played.
     verify_at: Callable | None = field(default=None, repr=False, compare=False)
+    margin_pa: float | None = None
+    min_pressure_pa: float | None = None
+    ride: bool = False
 
     def __post_init__(self):
         where = f"cue {self.id!r}"
         if self.then not in THEN_VALUES:
             raise InputError(f"'then' must be one of {', '.join(THEN_VALUES)} (got {self.then!r})",
                              where, 'use "wait" or "next"')
-        if self.status not in STATUS_VALUES:
-            raise InputError(f"status must be one of {', '.join(STATUS_VALUES)} (got {self.status!r})",
-                             where, "this is a bug in the renderer")
+        object.__setattr__(self, "status", CueStatus.of(self.status, where))
         rate = int(self.rate_hz)
         if rate <= 0 or rate != self.rate_hz:
             raise InputError(f"sample rate must be a positive whole number of Hz (got {self.rate_hz!r})",
@@ -118,8 +136,8 @@ class RenderedCue:
 
     @property
     def playable(self) -> bool:
-        """True when the cue may be started (status ``"ok"``)."""
-        return self.status == "ok"
+        """True when the cue may be started (status ``ok``)."""
+        return self.status is CueStatus.OK
 
     def refusal(self) -> str:
         """Why this cue cannot be started and what to do, as one sentence ('' when playable)."""
@@ -195,7 +213,7 @@ def _verified_at_rate(cue: RenderedCue, out: np.ndarray, rate_hz: int) -> Render
                        ceiling_db=None if cue.ceiling_db is None else cue.ceiling_db + step,
                        message=(cue.message + "; " if cue.message else "") + note)
     except ShowkitError as exc:
-        return replace(cue, samples=np.zeros(0, np.float32), rate_hz=rate_hz, status="error",
+        return replace(cue, samples=np.zeros(0, np.float32), rate_hz=rate_hz, status=CueStatus.ERROR,
                        message=f"not verified at {rate_hz} Hz: {exc.line()}")
 
 

@@ -17,7 +17,7 @@ from __future__ import annotations
 SAME_TEMPERATURE_K = 0.05
 
 
-def cue_for_today(sheet, file_rig, today_rig, cue, signal=None):
+def cue_for_today(sheet, file_rig, today_rig, cue, signal=None, signals=None):
     """The cue as it plays today, and its check.
 
     Whether a lock is valid (not stale) is judged against the rig file, with its
@@ -42,30 +42,38 @@ def cue_for_today(sheet, file_rig, today_rig, cue, signal=None):
     cue : Cue
     signal : CueSignal, optional
         The cue's source signal on the rig file's gas, when already made.
+    signals : SignalMemo, optional
+        The pass's signals (:class:`showkit.show.sources.SignalMemo`): the check, the
+        relock and a render that follows (with the same memo) build the sound once.
+        None: a memo for this call only.
 
     Returns
     -------
     cue : Cue
         The cue to render today (with today's lock when the temperature moved).
     check : CueCheck
-        ``ok``, ``over``, ``stale`` or ``error``, with today's ceiling.
+        ``ok``, ``over``, ``stale`` or ``error`` (:class:`showkit.show.status.CueStatus`),
+        with today's ceiling.
     """
     from dataclasses import replace
 
     from showkit.errors import ShowkitError
     from showkit.show.lock import CueCheck, check_cue, lock_cue
+    from showkit.show.sources import SignalMemo
+    from showkit.show.status import CueStatus
 
+    signals = SignalMemo() if signals is None else signals
     same_gas = abs(today_rig.temperature_k - file_rig.temperature_k) <= SAME_TEMPERATURE_K
     file_today = file_rig.with_conditions(static_pa=today_rig.static_pa, reserve=today_rig.reserve)
-    state = check_cue(sheet, file_today, cue, signal=signal)
-    if same_gas or state.status in ("stale", "error"):
+    state = check_cue(sheet, file_today, cue, signal=signal, signals=signals)
+    if same_gas or state.status in (CueStatus.STALE, CueStatus.ERROR):
         return cue, state
     try:
-        relocked, _ = lock_cue(sheet, today_rig, cue)
+        relocked, _ = lock_cue(sheet, today_rig, cue, signals)
     except ShowkitError as exc:
-        return cue, CueCheck(cue.id, cue.gain_db, None, None, "error", exc.line())
+        return cue, CueCheck(cue.id, cue.gain_db, None, None, CueStatus.ERROR, exc.line())
     relocked = replace(relocked, gain_db=cue.gain_db)  # a gain that no longer fits is not clamped silently
-    return relocked, check_cue(sheet, today_rig, relocked)
+    return relocked, check_cue(sheet, today_rig, relocked, signals=signals)
 
 
 

@@ -5,6 +5,10 @@ today's ceiling.  The rendered samples are then run through the tube model
 again (:func:`showkit.analysis.pressure.signal_report` at unit gain): the
 pressure at every hole must stay at or above the reserve line and the peak at
 or below full scale, or the cue is refused.  Nothing is assumed.
+
+A rendered cue is a :class:`showkit.show.playlist.RenderedCue`, the type the
+engine plays: it carries what the verification found and ``verify_at``, so that
+a cue played (or written) at another rate is verified again at that rate.
 """
 
 from __future__ import annotations
@@ -19,8 +23,10 @@ import numpy as np
 from showkit.errors import SheetError
 from showkit.rigfile import Rig
 from showkit.show.lock import check_cue, sheet_rig
+from showkit.show.playlist import RenderedCue
 from showkit.show.sheet import Cue, Sheet
-from showkit.show.sources import TONE_RATE_HZ, cue_signal
+from showkit.show.sources import TONE_RATE_HZ, SignalMemo, signal_for
+from showkit.show.status import CueStatus
 
 #: Relative slack allowed in verification for float32 rounding of the samples.
 VERIFY_TOLERANCE = 1e-5
@@ -28,24 +34,17 @@ VERIFY_TOLERANCE = 1e-5
 SHOW_RATE_HZ = TONE_RATE_HZ
 
 
-@dataclass(frozen=True)
-class VerifiedCue:
-    """A cue's samples at its gain and fades, verified.
+def VerifiedCue(id: str, label: str, samples: np.ndarray, rate_hz: int, gain_db: float,  # noqa: N802
+                ceiling_db: float, margin_pa: float, min_pressure_pa: float, then: str,
+                ride: bool = False) -> RenderedCue:
+    """The former name and argument order of a rendered cue: a :class:`RenderedCue` (status ok).
 
-    ``margin_pa``: the lowest pressure above ambient at any hole minus the
-    reserve line (>= 0), Pa; ``gain_db``/``ceiling_db`` for today's conditions.
+    Kept for older callers; ``margin_pa`` and ``min_pressure_pa`` in Pa, gains in dB,
+    ``rate_hz`` in Hz.  It carries no ``verify_at``: a cue made here is not verified again
+    at another rate, so it is for pictures and previews, not for the engine.
     """
-
-    id: str
-    label: str
-    samples: np.ndarray
-    rate_hz: int
-    gain_db: float
-    ceiling_db: float
-    margin_pa: float
-    min_pressure_pa: float
-    then: str
-    ride: bool = False
+    return RenderedCue(id, label, samples, rate_hz, then, gain_db, ceiling_db, CueStatus.OK, "",
+                       margin_pa=margin_pa, min_pressure_pa=min_pressure_pa, ride=ride)
 
 
 def verify(rig: Rig, samples: np.ndarray, rate_hz: int, where: str) -> tuple[float, float]:
@@ -73,16 +72,19 @@ def verify(rig: Rig, samples: np.ndarray, rate_hz: int, where: str) -> tuple[flo
     return max(lowest - line, 0.0), max(lowest, line)
 
 
-def render_cue(sheet: Sheet, rig: Rig, cue: Cue) -> VerifiedCue:
+def render_cue(sheet: Sheet, rig: Rig, cue: Cue, signals: SignalMemo | None = None) -> RenderedCue:
     """Render and verify one cue for the rig's (today's) static pressure and reserve.
 
     Raises a :class:`SheetError` naming the cue if it is stale, over its
-    ceiling, or fails verification.
+    ceiling, or fails verification.  The result's ``verify_at`` checks its samples
+    again on this rig at another rate (:func:`played_rate_check`).  ``signals``: the
+    pass's :class:`~showkit.show.sources.SignalMemo` (the cue's sound, if the pass's
+    check built it already); None builds it here.
     """
     where = f"{sheet.path or 'sheet'}: cue {cue.id}"
-    signal = cue_signal(sheet, rig, cue)
+    signal = signal_for(sheet, rig, cue, signals)
     state = check_cue(sheet, rig, cue, signal=signal)
-    if state.status != "ok":
+    if state.status is not CueStatus.OK:
         raise SheetError(f"cue is {state.status}: {state.message}", where,
                          "fix it before rendering (nothing was rendered for this cue)")
     samples = signal.samples * 10.0 ** (cue.gain_db / 20.0)
@@ -92,12 +94,13 @@ def render_cue(sheet: Sheet, rig: Rig, cue: Cue) -> VerifiedCue:
         samples = ride(rig, samples, signal.rate_hz)
     samples = samples.astype(np.float32)
     margin, lowest = verify(rig, samples.astype(float), signal.rate_hz, where)
-    return VerifiedCue(id=cue.id, label=cue.label, samples=samples, rate_hz=signal.rate_hz,
-                       gain_db=cue.gain_db, ceiling_db=state.ceiling_db, margin_pa=margin,
-                       min_pressure_pa=lowest, then=cue.then, ride=cue.ride)
+    return RenderedCue(id=cue.id, label=cue.label, samples=samples, rate_hz=signal.rate_hz, then=cue.then,
+                       gain_db=cue.gain_db, ceiling_db=state.ceiling_db, status=CueStatus.OK,
+                       verify_at=played_rate_check(rig), margin_pa=margin, min_pressure_pa=lowest,
+                       ride=cue.ride)
 
 
-def render_sheet(sheet: Sheet, rig: Rig | None = None, progress=None) -> list[VerifiedCue]:
+def render_sheet(sheet: Sheet, rig: Rig | None = None, progress=None) -> list[RenderedCue]:
     """Render and verify every cue in show order (stops at the first refusal)."""
     rig = rig or sheet_rig(sheet)
     out = []
@@ -110,7 +113,7 @@ def render_sheet(sheet: Sheet, rig: Rig | None = None, progress=None) -> list[Ve
     return out
 
 
-def _resampled(cue: VerifiedCue, rate_hz: int) -> np.ndarray:
+def _resampled(cue: RenderedCue, rate_hz: int) -> np.ndarray:
     """The playback resampler (:func:`showkit.show.playlist.resample_samples`): the same
     samples the live engine plays at that rate, and that the lock checked at the show rate."""
     from showkit.show.playlist import resample_samples
@@ -181,7 +184,7 @@ class RenderedSummary:
     duration_s: float
 
 
-def _summary(v: VerifiedCue) -> RenderedSummary:
+def _summary(v: RenderedCue) -> RenderedSummary:
     return RenderedSummary(v.id, v.gain_db, v.ceiling_db, v.min_pressure_pa, v.margin_pa,
                            v.samples.size / v.rate_hz)
 
@@ -190,7 +193,7 @@ def write_show(rig: Rig, cues, path: Path, subtype: str = "FLOAT", gap_s: float 
                protect=()) -> list[RenderedSummary]:
     """All cues, in order, in one WAV at :data:`SHOW_RATE_HZ`, written cue by cue.
 
-    ``cues`` is an iterable of :class:`VerifiedCue` (e.g. a generator rendering
+    ``cues`` is an iterable of rendered cues (:class:`RenderedCue`, e.g. a generator rendering
     them one at a time, so that only one cue is in memory).  Cues at another
     rate are resampled (and clipped to full scale), and the resampled samples
     are verified against the pressure model again.  The file appears only when
@@ -288,7 +291,6 @@ def render_for_playback(sheet_path, static_pa: float | None = None,
     """
     from showkit.errors import ShowkitError
     from showkit.limits import MAX_SHOW_SAMPLES
-    from showkit.show.playlist import RenderedCue
     from showkit.show.preshow import cue_for_today
     from showkit.show.sheet import load_sheet
 
@@ -306,23 +308,23 @@ def render_for_playback(sheet_path, static_pa: float | None = None,
                    "split the show into two sheets")
             problems.append(f"cue {cue.id}: error: {msg}")
             out.append(RenderedCue(cue.id, cue.label, np.zeros(0, np.float32), 48000, cue.then,
-                                   cue.gain_db, None, "error", msg))
+                                   cue.gain_db, None, CueStatus.ERROR, msg))
             continue
+        signals = SignalMemo()  # this cue's sound, built once for its check, relock and render
         try:
             # the one rule for today's conditions and a lock (also the UI's): stale is judged
             # against the rig file; a gas temperature of today re-locks valid cues in memory
-            cue, state = cue_for_today(sheet, rig, today, cue)
-            if state.status != "ok":
+            cue, state = cue_for_today(sheet, rig, today, cue, signals=signals)
+            if state.status is not CueStatus.OK:
                 problems.append(f"cue {cue.id}: {state.status}: {state.message}")
                 out.append(RenderedCue(cue.id, cue.label, np.zeros(0, np.float32), 48000, cue.then,
                                        cue.gain_db, state.ceiling_db, state.status, state.message))
                 continue
-            v = render_cue(sheet, today, cue)
+            v = render_cue(sheet, today, cue, signals)  # verify_at: on today's rig
             held += v.samples.size * max(1.0, v.rate_hz / 48000)
-            out.append(RenderedCue(v.id, v.label, v.samples, v.rate_hz, v.then, v.gain_db,
-                                   v.ceiling_db, "ok", "", verify_at=played_rate_check(today)))
+            out.append(v)
         except ShowkitError as exc:
             problems.append(f"cue {cue.id}: error: {exc.line()}")
             out.append(RenderedCue(cue.id, cue.label, np.zeros(0, np.float32), 48000, cue.then,
-                                   cue.gain_db, None, "error", exc.line()))
+                                   cue.gain_db, None, CueStatus.ERROR, exc.line()))
     return out, problems

@@ -8,11 +8,18 @@ sweeps exponentially in frequency, ``f(t) = f1 (f2 / f1)^(t / T)``, with the
 phase its integral, ``2 pi f1 T (exp(t ln(f2/f1) / T) - 1) / ln(f2/f1)``
 (the exponential sweep of Farina, AES preprint 5093, 2000).  Fades are
 raised-cosine (half-Hann) ramps.
+
+A check, render or run pass builds each cue's signal once: the pass holds a
+:class:`SignalMemo` and every step (check, relock, render) asks it for the
+signal.  Its key is everything :func:`cue_signal` reads (:func:`signal_key`), so
+a signal is never reused for another sound, passage, fade or rig.
 """
 
 from __future__ import annotations
 
 import hashlib
+import os
+from collections import OrderedDict
 from dataclasses import dataclass
 from functools import lru_cache
 
@@ -151,4 +158,84 @@ def cue_signal(sheet: Sheet, rig: Rig, cue: Cue) -> CueSignal:
     if samples.size == 0:
         raise SheetError("the cue holds no samples", where, "give it a longer duration or passage")
     samples = fade(samples, rate, cue.fade_in_s, cue.fade_out_s, where)
+    samples.setflags(write=False)  # shared by the steps of a pass (SignalMemo): nobody may change it
     return CueSignal(samples, int(rate), _hash(samples, rate), f1, f2)
+
+
+#: The most samples a :class:`SignalMemo` keeps, all signals together (float64: 128 MiB,
+#: 5.8 min of audio at 48 kHz); beyond it the least recently used signals are let go.
+MEMO_MAX_SAMPLES = 2 ** 24
+
+
+def signal_key(sheet: Sheet, rig: Rig, cue: Cue):
+    """Everything :func:`cue_signal` reads for this cue, as a hashable key (None: do not memoise).
+
+    An audio passage: its file (resolved path, size and modification time in ns), its
+    start and end and the fades; the rig plays no part.  A pause: its duration and the
+    fades.  A tone or glide: its source as written (mode or frequency, duration), the
+    fades and the whole rig (a mode's frequency and the plane-wave limit follow the tube
+    and its gas; the rig's conditions are in it too, more than the sound needs).  The cue's id is not in the
+    key: two cues of the same sound share it.  None when the file cannot be read (the
+    build then reports why).
+    """
+    s = cue.source
+    fades = (float(cue.fade_in_s), float(cue.fade_out_s))
+    if isinstance(s, AudioSource):
+        try:
+            path = sheet.audio_path(s).resolve()
+            st = os.stat(path)
+        except (OSError, RuntimeError, ValueError):
+            return None
+        return ("audio", str(path), st.st_size, st.st_mtime_ns, s.start_s, s.end_s, fades)
+    if isinstance(s, PauseSource):
+        return ("pause", s, fades)
+    return (type(s).__name__, s, fades, rig)
+
+
+class SignalMemo:
+    """The signals of one pass (check, render, run, lock), each built once.
+
+    :meth:`get` returns the signal :func:`cue_signal` would build, from memory when
+    a signal with the same :func:`signal_key` was built in this pass.  A failed build
+    is not kept (the next request tries again and reports the same error).  At most
+    ``max_samples`` samples are kept (least recently used let go first).  Make one per
+    pass and drop it after: a file changed on disk during the pass changes the key.
+
+    Parameters
+    ----------
+    max_samples : int
+        The most samples kept, all signals together (count, not bytes).
+    """
+
+    def __init__(self, max_samples: int = MEMO_MAX_SAMPLES):
+        self.max_samples = int(max_samples)
+        self._signals: OrderedDict = OrderedDict()
+        self._held = 0
+
+    def get(self, sheet: Sheet, rig: Rig, cue: Cue) -> CueSignal:
+        """The cue's signal at unit gain with its fades (:func:`cue_signal`), built at most once."""
+        key = signal_key(sheet, rig, cue)
+        if key is None:
+            return cue_signal(sheet, rig, cue)
+        found = self._signals.get(key)
+        if found is not None:
+            self._signals.move_to_end(key)
+            return found
+        signal = cue_signal(sheet, rig, cue)
+        if signal.samples.size <= self.max_samples:
+            self._signals[key] = signal
+            self._held += signal.samples.size
+            while self._held > self.max_samples:
+                _, old = self._signals.popitem(last=False)
+                self._held -= old.samples.size
+        return signal
+
+    def __len__(self) -> int:
+        return len(self._signals)
+
+
+def signal_for(sheet: Sheet, rig: Rig, cue: Cue, signals: SignalMemo | None = None) -> CueSignal:
+    """The cue's signal, from ``signals`` when given (see :class:`SignalMemo`), else built."""
+    if signals is None:
+        return cue_signal(sheet, rig, cue)
+    return signals.get(sheet, rig, cue)
