@@ -464,7 +464,9 @@ def test_no_output_sample_exceeds_the_rendered_cue_at_that_position(lengths, the
         assert np.all(np.isfinite(oa))
         assert np.all((gain >= 0.0) & (gain <= 1.0))
         playing = gain > 1e-20
-        assert np.all(oa[~playing] == 0.0)
+        # Silent (gain 0: exactly 0) or a fader so low (<= 1e-20) that the position cannot be read back
+        # from C / B in float32: still never more than the gain times a full-scale sample.
+        assert np.all(np.abs(oa[~playing]) <= gain[~playing])
         pos = np.rint(code[playing] / gain[playing]).astype(np.int64) - 1
         assert np.all((pos >= 0) & (pos < flat.size))
         ref = flat[pos]

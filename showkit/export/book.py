@@ -102,18 +102,20 @@ def source_text(cue) -> str:
     return s.kind
 
 
-def cue_flames(sheet, rig, cue, check):
+def cue_flames(sheet, rig, cue, check, signals=None):
     """The flame frames of a cue as it would play (ok: the rendered, verified samples;
-    over: its sound at its gain, to show what the excess does); None for stale or error."""
+    over: its sound at its gain, to show what the excess does); None for stale or error.
+
+    ``signals``: the pass's :class:`showkit.show.sources.SignalMemo` (the cue's sound built once)."""
     from showkit.analysis.pressure import signal_flames
     from showkit.show.render import render_cue
     from showkit.show.sources import cue_signal
 
     if check.status == "ok":
-        v = render_cue(sheet, rig, cue)
+        v = render_cue(sheet, rig, cue, signals)
         return signal_flames(rig, v.samples, v.rate_hz, 0.0)
     if check.status == "over":
-        sig = cue_signal(sheet, rig, cue)
+        sig = signals.get(sheet, rig, cue) if signals is not None else cue_signal(sheet, rig, cue)
         return signal_flames(rig, sig.samples, sig.rate_hz, cue.gain_db)
     return None
 
@@ -125,17 +127,19 @@ def collect(sheet, rig, progress=None, maps: bool = True) -> BookData:
     from showkit.physics.modes import find_modes
     from showkit.show.lock import check_cue
     from showkit.show.sheet import AudioSource
+    from showkit.show.sources import SignalMemo
 
     entries = []
+    signals = SignalMemo()  # each cue's sound built once for its check and its flames
     lag = frame_lag(rig) if rig.geometry.hole_count else 0
     maps_by_path = {}
     for k, cue in enumerate(sheet.cues):
         if progress:
             progress(k, len(sheet.cues), cue.id)
-        check = check_cue(sheet, rig, cue)
+        check = check_cue(sheet, rig, cue, signals=signals)
         e = CueEntry(cue, check, source_text(cue))
         try:
-            frames = cue_flames(sheet, rig, cue, check)
+            frames = cue_flames(sheet, rig, cue, check, signals)
         except ShowkitError as exc:
             frames = None
             e.flames_note = f"no flame row: {exc.line()}"

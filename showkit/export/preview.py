@@ -209,8 +209,10 @@ def sheet_timeline(sheet_path, static_pa: float | None = None, reserve: float | 
     """Every cue rendered and verified as `showkit render` does, with its flame frames at that level."""
     from showkit.analysis.pressure import frame_lag, signal_flames
     from showkit.show.lock import check_cue, sheet_rig
-    from showkit.show.render import SHOW_RATE_HZ, VerifiedCue, render_cue
+    from showkit.show.playlist import RenderedCue
+    from showkit.show.render import SHOW_RATE_HZ, render_cue
     from showkit.show.sheet import load_sheet
+    from showkit.show.sources import SignalMemo
 
     sheet = load_sheet(sheet_path)
     rig = sheet_rig(sheet).with_conditions(static_pa=static_pa, reserve=reserve)
@@ -223,17 +225,21 @@ def sheet_timeline(sheet_path, static_pa: float | None = None, reserve: float | 
     for k, cue in enumerate(sheet.cues):
         if progress:
             progress(k, len(sheet.cues), cue.id)
-        check = check_cue(sheet, rig, cue)
+        signals = SignalMemo()  # the cue's sound built once for its check and its render
+        check = check_cue(sheet, rig, cue, signals=signals)
         v = None
         if check.status == "ok":
             try:
-                v = render_cue(sheet, rig, cue)
+                v = render_cue(sheet, rig, cue, signals)
             except ShowkitError as exc:
                 check = type(check)(cue.id, cue.gain_db, check.ceiling_db, check.headroom_db, "error", exc.line())
         if v is None:
             notes.append(f"cue {cue.id}: {check.status}: {check.message}")
-            silent = VerifiedCue(cue.id, cue.label, np.zeros(int(round(CARD_S * SHOW_RATE_HZ)), np.float32),
-                                 SHOW_RATE_HZ, cue.gain_db, math.nan, 0.0, rig.static_pa, cue.then)
+            silent = RenderedCue(id=cue.id, label=cue.label,
+                                 samples=np.zeros(int(round(CARD_S * SHOW_RATE_HZ)), np.float32),
+                                 rate_hz=SHOW_RATE_HZ, then=cue.then, gain_db=cue.gain_db,
+                                 ceiling_db=math.nan, status="ok", margin_pa=0.0,
+                                 min_pressure_pa=rig.static_pa)
             segments.append(Segment(cue.id, cue.label, t, CARD_S, None, None, 0, cue.gain_db,
                                     check.ceiling_db, check.status, check.message))
             parts.append(silent)

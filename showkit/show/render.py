@@ -34,19 +34,6 @@ VERIFY_TOLERANCE = 1e-5
 SHOW_RATE_HZ = TONE_RATE_HZ
 
 
-def VerifiedCue(id: str, label: str, samples: np.ndarray, rate_hz: int, gain_db: float,  # noqa: N802
-                ceiling_db: float, margin_pa: float, min_pressure_pa: float, then: str,
-                ride: bool = False) -> RenderedCue:
-    """The former name and argument order of a rendered cue: a :class:`RenderedCue` (status ok).
-
-    Kept for older callers; ``margin_pa`` and ``min_pressure_pa`` in Pa, gains in dB,
-    ``rate_hz`` in Hz.  It carries no ``verify_at``: a cue made here is not verified again
-    at another rate, so it is for pictures and previews, not for the engine.
-    """
-    return RenderedCue(id, label, samples, rate_hz, then, gain_db, ceiling_db, CueStatus.OK, "",
-                       margin_pa=margin_pa, min_pressure_pa=min_pressure_pa, ride=ride)
-
-
 def verify(rig: Rig, samples: np.ndarray, rate_hz: int, where: str) -> tuple[float, float]:
     """Re-simulate rendered samples; refuse them if any hole dips below the reserve line.
 

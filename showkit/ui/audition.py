@@ -20,13 +20,13 @@ class Audition:
 
         ``device``: the output device (None: the system default; an index or part of a name).
         """
+        from dataclasses import replace
+
         from showkit.show.engine import Engine
-        from showkit.show.playlist import RenderedCue
 
         self.stop()
-        cue = RenderedCue(id=rendered.id, label=rendered.label, samples=rendered.samples,
-                          rate_hz=rendered.rate_hz, then="wait", gain_db=rendered.gain_db,
-                          ceiling_db=rendered.ceiling_db, status="ok")
+        # One cue, no follow-on; everything else (verify_at: checked again at the rate played) kept.
+        cue = replace(rendered, then="wait")
         engine = Engine([cue])
         engine.open(device=device)
         engine.go(0)

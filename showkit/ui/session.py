@@ -239,11 +239,13 @@ class Session(SheetEditor):
         """The cue rendered at its gain and verified (for the audition)."""
         from showkit.show.preshow import cue_for_today
         from showkit.show.render import render_cue
+        from showkit.show.sources import SignalMemo
 
         sheet = self.copy()
         rig = self.rig
-        cue, _ = cue_for_today(sheet, self.base_rig(), rig, sheet.cue(cue_id))
-        return render_cue(sheet, rig, cue)
+        signals = SignalMemo()  # the cue's sound built once for its check and its render
+        cue, _ = cue_for_today(sheet, self.base_rig(), rig, sheet.cue(cue_id), signals=signals)
+        return render_cue(sheet, rig, cue, signals)
 
     def measure_job(self, rec_path: Path, sweep_path: Path, progress=None):
         """A recording of the sweep analysed on the rig file's rig (:func:`showkit.ui.measuring.measure_files`)."""
