@@ -3,9 +3,9 @@
 The key is the SHA-256 of the file's content, the rig's acoustic and
 calibration hashes, the static pressure and reserve, and
 ``showkit.ANALYSIS_VERSION``: a changed file, rig or analysis is never served
-from the cache.  The files live in ``platformdirs.user_cache_dir("showkit")``
-under ``scan/``; the environment variable ``SHOWKIT_CACHE_DIR`` replaces that
-folder (the tests use it).  Writes go to a temporary file, fsync'd and renamed,
+from the cache.  The files live under ``scan/`` in the user's cache folder
+(:func:`showkit.folders.cache_dir`: ``SHOWKIT_CACHE_DIR`` replaces the platform's
+folder; the tests use it).  Writes go to a temporary file, fsync'd and renamed,
 so a broken write never leaves a half file (:mod:`showkit.safesave`); an
 unreadable, oversized or wrongly shaped cache file is treated as missing.
 """
@@ -18,18 +18,11 @@ import os
 from pathlib import Path
 
 import showkit
-
-ENV_VAR = "SHOWKIT_CACHE_DIR"
-
+from showkit import folders
 
 def cache_dir() -> Path:
-    """The folder of scan results (not created here)."""
-    override = os.environ.get(ENV_VAR)
-    if override:
-        return Path(override) / "scan"
-    import platformdirs
-
-    return Path(platformdirs.user_cache_dir("showkit")) / "scan"
+    """The folder of scan results, ``scan/`` in the user's cache folder (not created here)."""
+    return folders.cache_dir() / "scan"
 
 
 def content_key(path) -> str:

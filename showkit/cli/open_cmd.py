@@ -52,9 +52,9 @@ def build_app(args: argparse.Namespace):
     elif path.suffix.lower() in AUDIO_SUFFIXES:
         if not path.is_file():
             raise InputError("no such audio file", str(path), "check the path")
-        from showkit.demo_files import data_folder
+        from showkit.folders import data_dir
 
-        sheet = Path(args.sheet).expanduser() if args.sheet else data_folder() / "shows" / f"{path.stem}.toml"
+        sheet = Path(args.sheet).expanduser() if args.sheet else data_dir() / "shows" / f"{path.stem}.toml"
         session = Session.for_track(path, args.rig, sheet)
         track, view = path, view or "track"
     else:

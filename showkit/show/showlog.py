@@ -17,8 +17,9 @@ whole and readable (:func:`read_log` also skips a torn last line, should the
 operating system ever leave one).  The log is written from the operator's
 thread, never from the audio callback.
 
-The default file is ``<user data dir>/logs/show-<YYYY-MM-DD>.jsonl``, with the
-user data directory from platformdirs (``~/.local/share/showkit`` on Linux).
+The default file is ``<user data folder>/logs/show-<YYYY-MM-DD>.jsonl``, with the
+user data folder from :func:`showkit.folders.data_dir` (``SHOWKIT_DATA_DIR`` when set,
+else ``~/.local/share/showkit`` on Linux).
 """
 
 from __future__ import annotations
@@ -31,6 +32,7 @@ import stat
 from pathlib import Path
 
 from showkit.errors import InputError, ShowkitError
+from showkit.folders import log_dir
 
 EVENTS = ("check", "start", "stop", "fade", "fader", "panic", "device_error")
 
@@ -40,11 +42,9 @@ class LogError(ShowkitError):
 
 
 def default_log_path(date: _dt.date | None = None) -> Path:
-    """The default log file for ``date`` (today when None) in the user's data directory."""
-    from platformdirs import user_data_dir
-
+    """The default log file for ``date`` (today when None) in the logs folder of the user's data folder."""
     date = date or _dt.date.today()
-    return Path(user_data_dir("showkit")) / "logs" / f"show-{date.isoformat()}.jsonl"
+    return log_dir() / f"show-{date.isoformat()}.jsonl"
 
 
 def now_iso() -> str:
