@@ -34,10 +34,7 @@ def run(args) -> int:
 
     static_pa = None
     if args.static is not None:
-        try:
-            static_pa = units.pressure_pa(float(args.static), "--static")
-        except ValueError:
-            static_pa = units.pressure_pa(args.static, "--static")
+        static_pa = units.pressure_pa(units.number_or_text(args.static), "--static")
         if not static_pa > 0:
             raise InputError("the static pressure must be above zero", "--static",
                              'give the manometer reading, e.g. --static "18 Pa"')

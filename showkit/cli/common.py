@@ -58,10 +58,7 @@ def time_option(text, where: str):
         return None
     from showkit import units
 
-    try:
-        return units.duration_s(float(text), where)
-    except ValueError:
-        return units.duration_s(text, where)
+    return units.duration_s(units.number_or_text(text), where)
 
 
 def clean_json(value):

@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import argparse
 
+from showkit import units
 from showkit.cli.common import add_conditions_options, add_rig_option, level_caution
 
 
@@ -68,12 +69,7 @@ def run(args) -> int:
         static = rig.static_pa if args.static is not None else None
         tl = sheet_timeline(src, static, args.reserve)
     else:
-        gain = None
-        if args.gain is not None:
-            try:
-                gain = float(str(args.gain).lower().removesuffix("db").strip())
-            except ValueError:
-                raise InputError(f"cannot read --gain {args.gain!r}", "--gain", "give dB, e.g. --gain -12") from None
+        gain = None if args.gain is None else units.gain_db(args.gain, "--gain", "give dB, e.g. --gain -12")
         tl = track_timeline(rig, src, time_option(args.start, "--start"), time_option(args.end, "--end"), gain)
     level_caution()
     result = write_video(tl, args.out, size, args.magnify)

@@ -388,15 +388,7 @@ def _cue_from_data(raw, where: str, k: int) -> Cue:
                 ends[f"{side}_frequency_hz"] = (_freq(table[f"{side}_frequency"], f"{at}: glide.{side}_frequency")
                                                if has_freq else None)
             source = GlideSource(duration, **ends)
-    gain = raw.get("gain", 0.0)
-    if isinstance(gain, str):
-        text = gain.strip().lower().removesuffix("db").strip()
-        try:
-            gain = float(text)
-        except ValueError:
-            raise SheetError(f"cannot read gain {raw['gain']!r}", f"{at}: gain", "write gain = -12 (dB)") from None
-    if isinstance(gain, bool) or not isinstance(gain, (int, float)) or not math.isfinite(gain):
-        raise SheetError(f"gain must be a number of dB, got {gain!r}", f"{at}: gain", "write gain = -12")
+    gain = units.gain_db(raw.get("gain", 0.0), f"{at}: gain", "write gain = -12 (dB)", error=SheetError)
     then = raw.get("then", "wait")
     if then not in THEN_VALUES:
         raise SheetError(f"then must be \"wait\" or \"next\", got {then!r}", f"{at}: then",
