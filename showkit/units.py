@@ -230,12 +230,21 @@ def duration_s(value, where: str | None = None) -> float:
     return _with_table(value, TIME_UNITS_S, "duration", where)
 
 
-def format_time(seconds: float) -> str:
-    """``75.25`` -> ``"1:15.2"`` (minutes, seconds to a tenth)."""
+def format_time(seconds: float, round_down: bool = False) -> str:
+    """``75.25`` -> ``"1:15.2"`` (minutes, seconds to a tenth): the one m:ss.s formatter.
+
+    Parameters
+    ----------
+    seconds : float
+        The time, s (``"--:--"`` when not finite).
+    round_down : bool
+        Cut to the tenth below instead of the nearest one: a running clock (the preview
+        video's) never shows a tenth that has not yet begun.
+    """
     if not math.isfinite(seconds):
         return "--:--"
     sign = "-" if seconds < 0 else ""
-    tenths = int(round(abs(seconds) * 10))
+    tenths = int(math.floor(abs(seconds) * 10 + 1e-6)) if round_down else int(round(abs(seconds) * 10))
     minutes, rest = divmod(tenths, 600)
     return f"{sign}{minutes}:{rest // 10:02d}.{rest % 10}"
 

@@ -32,6 +32,7 @@ from showkit.export.figures import (
     readable,
 )
 from showkit.safety import CAUTION_TITLE, CAUTIONS
+from showkit.show.sheet import describe_source
 
 #: What the ceiling guarantees and what it assumes (the README's *Ceilings and flames*).
 GUARANTEE = (
@@ -82,24 +83,8 @@ class BookData:
 
 
 def source_text(cue) -> str:
-    """The cue's kind and source in words."""
-    from showkit.show.sheet import AudioSource, GlideSource, PauseSource, ToneSource
-    from showkit.units import format_time
-
-    s = cue.source
-    if isinstance(s, AudioSource):
-        end = "the end" if s.end_s is None else format_time(s.end_s)
-        return f"audio {s.path}, {format_time(s.start_s)} to {end}"
-    if isinstance(s, ToneSource):
-        what = f"mode {s.mode}" if s.mode is not None else f"{s.frequency_hz:g} Hz"
-        return f"tone on {what}, {s.duration_s:g} s"
-    if isinstance(s, GlideSource):
-        a = f"mode {s.from_mode}" if s.from_mode is not None else f"{s.from_frequency_hz:g} Hz"
-        b = f"mode {s.to_mode}" if s.to_mode is not None else f"{s.to_frequency_hz:g} Hz"
-        return f"glide {a} to {b}, {s.duration_s:g} s"
-    if isinstance(s, PauseSource):
-        return f"pause (talk), {s.duration_s:g} s"
-    return s.kind
+    """The cue's kind and source in words (:func:`showkit.show.sheet.describe_source`)."""
+    return describe_source(cue.source)
 
 
 def cue_flames(sheet, rig, cue, check):

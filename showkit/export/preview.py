@@ -34,6 +34,7 @@ import numpy as np
 
 from showkit.errors import InputError, ShowkitError
 from showkit.physics.flames import FRAME_RATE_HZ
+from showkit.units import format_time
 
 #: Video frames per second: one flame frame per video frame.
 FPS = int(FRAME_RATE_HZ)
@@ -414,9 +415,8 @@ class Painter:
 
 
 def _clock(seconds: float) -> str:
-    tenths = int(math.floor(max(0.0, seconds) * 10 + 1e-6))
-    m, rest = divmod(tenths, 600)
-    return f"{m}:{rest // 10:02d}.{rest % 10}"
+    """The video's running clock, m:ss.s cut to the tenth (never below zero)."""
+    return format_time(max(0.0, seconds), round_down=True)
 
 
 # ---------------------------------------------------------------- writing

@@ -92,6 +92,38 @@ class PauseSource:
 Source = AudioSource | ToneSource | GlideSource | PauseSource
 
 
+def describe_source(source: Source, short: bool = False) -> str:
+    """A cue's source in words: the show book's line, or with ``short`` the cue list's.
+
+    Parameters
+    ----------
+    source : Source
+        The cue's source (times in s, frequencies in Hz).
+    short : bool
+        The cue list's form: the file's name only, frequencies rounded, no "audio"/"on".
+    """
+    def end(which_mode, which_hz, digits):
+        return f"mode {which_mode}" if which_mode is not None else f"{which_hz:{digits}} Hz"
+
+    s = source
+    if isinstance(s, AudioSource):
+        if short:
+            stop = "end" if s.end_s is None else units.format_time(s.end_s)
+            return f"{Path(s.path.removeprefix('demo:')).name} {units.format_time(s.start_s)}-{stop}"
+        stop = "the end" if s.end_s is None else units.format_time(s.end_s)
+        return f"audio {s.path}, {units.format_time(s.start_s)} to {stop}"
+    if isinstance(s, ToneSource):
+        what = end(s.mode, s.frequency_hz, ".1f" if short else "g")
+        return f"tone {what}, {s.duration_s:g} s" if short else f"tone on {what}, {s.duration_s:g} s"
+    if isinstance(s, GlideSource):
+        digits = ".0f" if short else "g"
+        a, b = end(s.from_mode, s.from_frequency_hz, digits), end(s.to_mode, s.to_frequency_hz, digits)
+        return f"glide {a} to {b}, {s.duration_s:g} s"
+    if isinstance(s, PauseSource):
+        return f"pause {s.duration_s:g} s" if short else f"pause (talk), {s.duration_s:g} s"
+    return s.kind
+
+
 @dataclass(frozen=True)
 class Lock:
     """What ``showkit lock`` computed for a cue and what it was computed from.
