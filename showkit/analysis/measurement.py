@@ -173,3 +173,119 @@ def calibrated_pressure(recording, calibrator, rate: float, cal_rate: float, fre
     rec = rec[:, 0] if rec.ndim == 2 else rec
     a, b = steady_part(rec, rate, freq_hz, where)
     return sine_amplitude(rec[a:b], rate, freq_hz) * np.sqrt(2.0) / cal_amp
+
+
+# --------------------------------------------------------------- the level calibration
+# The steps of `showkit measure level`, here so the UI and scripts can call them too; the
+# command line only parses, plays and prints.
+
+REFERENCE_RATE_HZ = 48000
+REFERENCE_LENGTH_S = 10.0
+REFERENCE_RAMP_S = 0.05
+#: the part of a played 10 s reference sine read for the pressure, s (away from the fades)
+PLAYED_STEADY_S = (1.0, 9.0)
+SPL_REFERENCE_PA = 20e-6  # ISO 1683: sound pressure level re 20 uPa
+
+
+def reference_frequency(rig, asked_hz: float | None, where: str = "--frequency") -> tuple[float, str | None]:
+    """The calibration frequency, Hz, and a note when showkit picked it (else None).
+
+    ``asked_hz`` is taken if the tube's losses cannot move the cap reading there (else a
+    one-line refusal naming a frequency that will do); without it, the rig's own if
+    accepted, else the one :func:`showkit.physics.family.suggest_reference` picks.
+
+    Parameters
+    ----------
+    rig : Rig
+        The rig (its loss family and present calibration).
+    asked_hz : float or None
+        The frequency asked for, Hz.
+    where : str
+        Where it was asked (the option), for the error.
+    """
+    from showkit.errors import InputError, MeasureError
+    from showkit.physics.family import check_reference, suggest_reference
+
+    family = rig.loss_family
+    if asked_hz is not None:
+        if not asked_hz > 0:
+            raise InputError(f"{where} must be above zero", where, f"give e.g. {where} 1400")
+        check = check_reference(family, asked_hz)
+        if not check.ok:
+            fix = (f"use {where} {check.suggestion_hz:g}, or leave {where} out and showkit picks one"
+                   if check.suggestion_hz else "measure the tube first (showkit measure analyse)")
+            raise MeasureError(check.message(), where, fix)
+        return float(asked_hz), None
+    own = rig.drive.reference_frequency_hz
+    if check_reference(family, own).ok:
+        return own, None
+    picked = suggest_reference(family)
+    if picked is None:
+        raise MeasureError("no frequency below the plane-wave limit gives a cap reading the tube's losses "
+                           "cannot move", "measure level", "measure the tube first (showkit measure analyse)")
+    return picked, (f"calibrating at {picked:g} Hz, between modes: the rig's {own:g} Hz is where the tube's "
+                    "losses move the reading")
+
+
+def reference_sine(freq_hz: float, level_dbfs: float, rate_hz: int = REFERENCE_RATE_HZ,
+                   length_s: float = REFERENCE_LENGTH_S, ramp_s: float = REFERENCE_RAMP_S):
+    """The calibration sine: ``level_dbfs`` peak at ``freq_hz`` for ``length_s`` s, linear ramps of ``ramp_s`` s.
+
+    Parameters
+    ----------
+    freq_hz : float
+        Frequency, Hz.
+    level_dbfs : float
+        Peak level, dB re full scale.
+    rate_hz : int
+        Sample rate, Hz.
+    length_s, ramp_s : float
+        Length and fade-in/fade-out time, s.
+    """
+    import numpy as np
+
+    t = np.arange(int(length_s * rate_hz)) / rate_hz
+    sine = 10 ** (level_dbfs / 20) * np.sin(2 * np.pi * freq_hz * t)
+    ramp = int(ramp_s * rate_hz)
+    sine[:ramp] *= np.linspace(0, 1, ramp)
+    sine[-ramp:] *= np.linspace(1, 0, ramp)
+    return sine
+
+
+def check_reference_sine(rig, sine, rate_hz: int, level_dbfs: float, where: str = "--level") -> float:
+    """The sine's headroom below its ceiling, dB; a MeasureError when it would take a hole below the line.
+
+    The sine must keep every hole above the reserve line, as any cue must
+    (:func:`showkit.analysis.pressure.signal_report`, on the rig's present calibration).
+    """
+    from showkit.analysis.pressure import signal_report
+    from showkit.errors import MeasureError
+
+    headroom = signal_report(rig, sine, rate_hz, flames=False).ceiling_db
+    if headroom < 0:
+        raise MeasureError(f"the reference sine at {level_dbfs:g} dBFS would take a hole below the safe line "
+                           f"(it must come down {-headroom:.1f} dB)", where,
+                           f"give --level {level_dbfs + headroom - 1:.0f} or lower")
+    return headroom
+
+
+def played_pressure(played, calibrator, rate_hz: float, cal_rate_hz: float, freq_hz: float) -> float:
+    """Pressure amplitude (Pa, zero to peak) of a played reference sine recorded at the cap.
+
+    Only :data:`PLAYED_STEADY_S` of the recording is read (away from the fades), then
+    :func:`calibrated_pressure` with the calibrator recording.
+    """
+    a, b = (int(s * rate_hz) for s in PLAYED_STEADY_S)
+    return calibrated_pressure(played[a:b], calibrator, rate_hz, cal_rate_hz, freq_hz, "live recording")
+
+
+def calibration_values(drive) -> dict:
+    """The ``[drive]`` reference values of a calibration, and the reading as SPL.
+
+    ``spl_db`` is the zero-to-peak pressure as a sine's rms re 20 uPa (ISO 1683).
+    """
+    import numpy as np
+
+    p = drive.reference_pressure_pa
+    return {"reference_frequency": drive.reference_frequency_hz, "reference_level": drive.reference_level_dbfs,
+            "reference_pressure": p, "spl_db": 20 * np.log10(p / np.sqrt(2) / SPL_REFERENCE_PA)}
