@@ -6,15 +6,19 @@ the command line so the UI and scripts call the same functions.
 
 from __future__ import annotations
 
+import numpy as np
+
+from showkit.analysis.drivefit import drive_response_db
+from showkit.analysis.resonances import find_resonances
+from showkit.analysis.sweep import check_audio, measure_response
+from showkit.analysis.tubefit import fit_tube, variant
+from showkit.errors import InputError, MeasureError
+from showkit.physics.biasflow import jet_velocity_m_s
+from showkit.physics.family import check_reference, suggest_reference
+
 
 def analyse_recording(rig, recording, rec_rate, sweep, sweep_rate, where="recording", progress=None) -> dict:
     """The whole analysis: response, resonances, fit, drive response -> report dict."""
-    from showkit.analysis.drivefit import drive_response_db
-    from showkit.analysis.resonances import find_resonances
-    from showkit.analysis.sweep import measure_response
-    from showkit.analysis.tubefit import fit_tube, variant
-    from showkit.errors import MeasureError
-
     resp = measure_response(recording, rec_rate, sweep, sweep_rate, where, progress=progress)
     f_hi = min(resp.band_hz[1] / 1.1, rig.model.plane_wave_limit_hz)
     found = find_resonances(resp.freq_hz, resp.response, resp.band_hz[0] * 1.1, f_hi, noise=resp.noise)
@@ -22,8 +26,6 @@ def analyse_recording(rig, recording, rec_rate, sweep, sweep_rate, where="record
     if not found:
         raise MeasureError("no resonances found in the recording", where,
                            "record at the cap with the sweep loud enough to hear the tube ring")
-    from showkit.physics.biasflow import jet_velocity_m_s
-
     jet = jet_velocity_m_s(rig.static_pa, rig.gas.density_kg_m3)
     fit = fit_tube(rig.model, [r.frequency_hz for r in found], [r.q for r in found], jet_m_s=jet)
     warnings += fit.warnings
@@ -52,8 +54,6 @@ def analyse_recording(rig, recording, rec_rate, sweep, sweep_rate, where="record
 
 def sine_amplitude(signal, rate: float, freq_hz: float) -> float:
     """Amplitude (zero to peak) of the component at ``freq_hz``, by a least-squares sine fit."""
-    import numpy as np
-
     x = np.asarray(signal, dtype=float)
     if x.ndim == 2:
         x = x[:, 0]
@@ -77,8 +77,6 @@ def _frame_amplitudes(x, rate: float, freq_hz: float):
 
     Frames are a whole number of periods where the rate allows, at least 4 periods and 50 ms.
     """
-    import numpy as np
-
     periods = max(4, int(np.ceil(0.05 * freq_hz)))
     n = max(8, int(round(periods * rate / freq_hz)))
     count = x.size // n
@@ -109,10 +107,6 @@ def steady_part(signal, rate: float, freq_hz: float, where: str = "recording",
         The steady part is shorter than :data:`STEADY_MIN_S` (or 20 periods), or
         less than :data:`STEADY_MIN_SHARE` of the "on" part is steady (the level wanders).
     """
-    import numpy as np
-
-    from showkit.errors import MeasureError
-
     x = np.asarray(signal, dtype=float)
     x = x[:, 0] if x.ndim == 2 else x
     amp, n = _frame_amplitudes(x, rate, freq_hz)
@@ -153,11 +147,6 @@ def calibrated_pressure(recording, calibrator, rate: float, cal_rate: float, fre
     silence or fades around a sine would otherwise read low, and a low calibration
     raises every ceiling.
     """
-    import numpy as np
-
-    from showkit.analysis.sweep import check_audio
-    from showkit.errors import MeasureError
-
     check_audio(calibrator, "calibrator", "calibrator recording")
     check_audio(recording, where)
     cal = np.asarray(calibrator, dtype=float)
@@ -203,9 +192,6 @@ def reference_frequency(rig, asked_hz: float | None, where: str = "--frequency")
     where : str
         Where it was asked (the option), for the error.
     """
-    from showkit.errors import InputError, MeasureError
-    from showkit.physics.family import check_reference, suggest_reference
-
     family = rig.loss_family
     if asked_hz is not None:
         if not asked_hz > 0:
@@ -242,8 +228,6 @@ def reference_sine(freq_hz: float, level_dbfs: float, rate_hz: int = REFERENCE_R
     length_s, ramp_s : float
         Length and fade-in/fade-out time, s.
     """
-    import numpy as np
-
     t = np.arange(int(length_s * rate_hz)) / rate_hz
     sine = 10 ** (level_dbfs / 20) * np.sin(2 * np.pi * freq_hz * t)
     ramp = int(ramp_s * rate_hz)
@@ -259,7 +243,6 @@ def check_reference_sine(rig, sine, rate_hz: int, level_dbfs: float, where: str 
     (:func:`showkit.analysis.pressure.signal_report`, on the rig's present calibration).
     """
     from showkit.analysis.pressure import signal_report
-    from showkit.errors import MeasureError
 
     headroom = signal_report(rig, sine, rate_hz, flames=False).ceiling_db
     if headroom < 0:
@@ -284,8 +267,6 @@ def calibration_values(drive) -> dict:
 
     ``spl_db`` is the zero-to-peak pressure as a sine's rms re 20 uPa (ISO 1683).
     """
-    import numpy as np
-
     p = drive.reference_pressure_pa
     return {"reference_frequency": drive.reference_frequency_hz, "reference_level": drive.reference_level_dbfs,
             "reference_pressure": p, "spl_db": 20 * np.log10(p / np.sqrt(2) / SPL_REFERENCE_PA)}

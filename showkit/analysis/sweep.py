@@ -35,6 +35,7 @@ from typing import Callable
 import numpy as np
 
 from showkit.errors import MeasureError
+from showkit.limits import MAX_CUE_SAMPLES, MAX_RATE_HZ, MIN_SWEEP_RATE_HZ
 
 #: Samples at or above this fraction of full scale count as clipped.
 CLIP_LEVEL = 0.999
@@ -95,8 +96,6 @@ class SweepSpec:
 
 def check_spec(spec: SweepSpec) -> None:
     """Raise :class:`MeasureError` for a sweep that cannot be made."""
-    from showkit.limits import MAX_CUE_SAMPLES, MAX_RATE_HZ, MIN_SWEEP_RATE_HZ
-
     rate = spec.sample_rate_hz
     if not MIN_SWEEP_RATE_HZ <= rate <= MAX_RATE_HZ:
         raise MeasureError(f"sample rate {rate:g} Hz is outside {MIN_SWEEP_RATE_HZ} to {MAX_RATE_HZ} Hz",

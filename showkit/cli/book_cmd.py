@@ -12,8 +12,11 @@ States and ceilings are those of `showkit check`; the text can be selected.
 from __future__ import annotations
 
 import argparse
+import sys
 
+from showkit import units
 from showkit.cli.common import add_conditions_options, level_caution
+from showkit.errors import InputError
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -26,10 +29,6 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def run(args) -> int:
-    import sys
-
-    from showkit import units
-    from showkit.errors import InputError
     from showkit.export.book import make_book
 
     static_pa = None

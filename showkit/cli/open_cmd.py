@@ -14,6 +14,10 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
+from showkit.demo_files import user_demo_show
+from showkit.errors import InputError
+from showkit.folders import data_dir
+
 AUDIO_SUFFIXES = {".flac", ".wav", ".ogg", ".oga", ".aiff", ".aif", ".mp3"}
 
 
@@ -38,7 +42,6 @@ def default_args() -> argparse.Namespace:
 
 def build_app(args: argparse.Namespace):
     """The app for these arguments (raises ShowkitError for a bad path)."""
-    from showkit.errors import InputError
     from showkit.ui.app import ShowkitApp
     from showkit.ui.session import Session
 
@@ -46,14 +49,10 @@ def build_app(args: argparse.Namespace):
     view = args.view
     path = Path(args.path).expanduser() if args.path else None
     if path is None:
-        from showkit.demo_files import user_demo_show
-
         session = Session.open_sheet(user_demo_show())
     elif path.suffix.lower() in AUDIO_SUFFIXES:
         if not path.is_file():
             raise InputError("no such audio file", str(path), "check the path")
-        from showkit.folders import data_dir
-
         sheet = Path(args.sheet).expanduser() if args.sheet else data_dir() / "shows" / f"{path.stem}.toml"
         session = Session.for_track(path, args.rig, sheet)
         track, view = path, view or "track"

@@ -13,9 +13,18 @@ and says so on every frame.
 from __future__ import annotations
 
 import argparse
+import sys
+from pathlib import Path
 
 from showkit import units
-from showkit.cli.common import add_conditions_options, add_rig_option, level_caution
+from showkit.cli.common import (
+    add_conditions_options,
+    add_rig_option,
+    level_caution,
+    load_rig_from_args,
+    time_option,
+)
+from showkit.errors import InputError
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -32,8 +41,6 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def _size(text: str):
-    from showkit.errors import InputError
-
     try:
         w, h = (int(v) for v in str(text).lower().split("x"))
     except ValueError:
@@ -42,12 +49,6 @@ def _size(text: str):
 
 
 def run(args) -> int:
-    from showkit.cli.common import time_option
-    import sys
-    from pathlib import Path
-
-    from showkit.cli.common import load_rig_from_args
-    from showkit.errors import InputError
     from showkit.export.preview import (
         check_options,
         check_output,

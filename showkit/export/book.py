@@ -22,7 +22,7 @@ from pathlib import Path
 import numpy as np
 
 from showkit.errors import InputError, ShowkitError
-from showkit.export.common import mode_map, paper_size, plotting
+from showkit.export.common import mode_map, paper_size, plotting, save_figure
 from showkit.export.figures import (
     WORST,
     draw_deviation,
@@ -31,8 +31,12 @@ from showkit.export.figures import (
     draw_mode_shape,
     readable,
 )
+from showkit.physics.flames import FRAME_RATE_HZ
+from showkit.physics.modes import find_modes
+from showkit.safesave import replacing
 from showkit.safety import CAUTION_TITLE, CAUTIONS
-from showkit.show.sheet import describe_source
+from showkit.show.sheet import AudioSource, describe_source, load_sheet
+from showkit.units import format_time
 
 #: What the ceiling guarantees and what it assumes (the README's *Ceilings and flames*).
 GUARANTEE = (
@@ -106,10 +110,7 @@ def cue_flames(sheet, rig, cue, check):
 def collect(sheet, rig, progress=None, maps: bool = True) -> BookData:
     """Everything the book shows, from the domain functions (slow: seconds per music cue)."""
     from showkit.analysis.pressure import frame_lag
-    from showkit.physics.flames import FRAME_RATE_HZ
-    from showkit.physics.modes import find_modes
     from showkit.show.lock import check_cue
-    from showkit.show.sheet import AudioSource
 
     entries = []
     lag = frame_lag(rig) if rig.geometry.hole_count else 0
@@ -268,8 +269,6 @@ def running_order_pages(plt, data: BookData, size) -> list:
 
 
 def cue_page(plt, data: BookData, k: int, e: CueEntry, size):
-    from showkit.units import format_time
-
     fig = _page(plt, size)
     c, ch = e.cue, e.check
     title = f"Cue {k} of {len(data.entries)}: {c.id}" + (f" - {c.label}" if c.label else "")
@@ -366,8 +365,6 @@ def write_book(data: BookData, path, paper: str = "a4", png_dir=None) -> dict:
     """Write the book as one PDF (and every page as PNG into ``png_dir``); returns what was written."""
     from matplotlib.backends.backend_pdf import PdfPages
 
-    from showkit.safesave import replacing
-
     plt = plotting()
     size = paper_size(paper)
     path = Path(path)
@@ -390,8 +387,6 @@ def write_book(data: BookData, path, paper: str = "a4", png_dir=None) -> dict:
                 for fig in pages:
                     pdf.savefig(fig)
         if png_dir is not None:
-            from showkit.export.common import save_figure
-
             for k, (fig, name) in enumerate(zip(pages, names), 1):
                 pngs.append(save_figure(fig, png_dir / f"{k:02d}-{name}.png", dpi=110))
     except OSError as exc:
@@ -407,7 +402,6 @@ def make_book(sheet_path, out, paper: str = "a4", png_dir=None, static_pa: float
               reserve: float | None = None, progress=None) -> dict:
     """Read a sheet, check every cue for today's conditions, write its book."""
     from showkit.show.lock import sheet_rig
-    from showkit.show.sheet import load_sheet
 
     paper_size(paper)  # a bad paper name or folder fails before the slow work
     folder = Path(out).parent if str(Path(out).parent) else Path(".")

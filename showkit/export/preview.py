@@ -33,7 +33,10 @@ from pathlib import Path
 import numpy as np
 
 from showkit.errors import InputError, ShowkitError
+from showkit.export.common import plotting
 from showkit.physics.flames import FRAME_RATE_HZ
+from showkit.safesave import replacing
+from showkit.show.sheet import load_sheet
 from showkit.units import format_time
 
 #: Video frames per second: one flame frame per video frame.
@@ -69,8 +72,6 @@ class Glyphs:
 @lru_cache(maxsize=4)
 def glyphs(em_px: int) -> Glyphs:
     """Printable ASCII rendered once with matplotlib (DejaVu Sans Mono) at ``em_px`` pixels."""
-    from showkit.export.common import plotting
-
     plt = plotting()
     chars = [chr(c) for c in range(32, 127)]
     cell_h = int(math.ceil(1.25 * em_px))
@@ -211,7 +212,6 @@ def sheet_timeline(sheet_path, static_pa: float | None = None, reserve: float | 
     from showkit.analysis.pressure import frame_lag, signal_flames
     from showkit.show.lock import check_cue, sheet_rig
     from showkit.show.render import SHOW_RATE_HZ, VerifiedCue, render_cue
-    from showkit.show.sheet import load_sheet
 
     sheet = load_sheet(sheet_path)
     rig = sheet_rig(sheet).with_conditions(static_pa=static_pa, reserve=reserve)
@@ -448,7 +448,6 @@ def write_video(tl: Timeline, out, size=DEFAULT_SIZE, magnify: float = 1.0, prog
     """Draw every frame and encode them with the sound; returns facts about the file."""
     import imageio_ffmpeg
 
-    from showkit.safesave import replacing
     from showkit.show.render import write_wav
 
     w, h = check_options(size, magnify)

@@ -24,7 +24,8 @@ from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 from showkit import units
-from showkit.errors import InputError, SheetError
+from showkit.demo_files import demo_audio_path
+from showkit.errors import InputError, OutputError, SheetError
 from showkit.limits import MAX_CUES, MAX_GENERATED_S
 from showkit.physics.ceiling import combine
 from showkit.safesave import write_text
@@ -202,8 +203,6 @@ class Sheet:
     def audio_path(self, source: AudioSource) -> Path:
         """Where an audio source's file is (``demo:NAME`` is a bundled demo track)."""
         if source.path.startswith(DEMO_AUDIO_PREFIX):
-            from showkit.demo_files import demo_audio_path
-
             return demo_audio_path(source.path[len(DEMO_AUDIO_PREFIX):])
         p = Path(source.path).expanduser()
         return p if p.is_absolute() else self.folder / p
@@ -763,8 +762,6 @@ def save_sheet(sheet: Sheet, path: str | Path | None = None, _before_rename=None
 
     Never over one of the sheet's own audio files or its rig file.
     """
-    from showkit.errors import OutputError
-
     target = Path(path) if path is not None else sheet.path
     if target is None:
         raise SheetError("the sheet has no file name yet", None, "save it with a path")

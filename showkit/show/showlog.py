@@ -32,7 +32,9 @@ import stat
 from pathlib import Path
 
 from showkit.errors import InputError, ShowkitError
+from showkit.fileio import open_log
 from showkit.folders import log_dir
+from showkit.safesave import check_target
 
 EVENTS = ("check", "start", "stop", "fade", "fader", "panic", "device_error")
 
@@ -92,8 +94,6 @@ class ShowLog:
     """
 
     def __init__(self, path: str | Path | None = None, protect=()):
-        from showkit.safesave import check_target
-
         self._fd = None
         self.path = Path(path) if path is not None else default_log_path()
         try:
@@ -155,8 +155,6 @@ def read_log(path: str | Path) -> list[dict]:
     The log is read through :func:`showkit.fileio.open_log`: a regular file of at
     most :data:`showkit.limits.LOG_MAX_BYTES`, or one :class:`LogError` line.
     """
-    from showkit.fileio import open_log
-
     records = []
     with open_log(path, LogError) as fh:
         for raw in fh:
