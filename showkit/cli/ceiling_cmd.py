@@ -13,15 +13,8 @@ from __future__ import annotations
 import argparse
 import math
 
-from showkit.cli.common import (
-    add_conditions_options,
-    add_json_option,
-    add_rig_option,
-    level_caution,
-    load_rig_from_args,
-    print_json,
-    time_option,
-)
+from showkit.cli.common import (add_conditions_options, add_json_option, add_rig_option, level_caution,
+                                load_rig_from_args, print_json, time_option)
 from showkit.physics.ceiling import MAX_GAIN_DB
 from showkit.printable import printable
 from showkit.units import format_time

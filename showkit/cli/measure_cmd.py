@@ -22,26 +22,12 @@ import numpy as np
 # the work itself lives in the analysis and show layers; this module parses, plays and prints
 from showkit.analysis.audio import read_whole
 from showkit.analysis.drivefit import sweep_amplitude_bound
-from showkit.analysis.measurement import (
-    REFERENCE_RATE_HZ,
-    analyse_recording,
-    calibrated_pressure,
-    calibration_values,
-    check_reference_sine,
-    played_pressure,
-    reference_frequency,
-    reference_sine,
-)
+from showkit.analysis.measurement import (REFERENCE_RATE_HZ, analyse_recording, calibrated_pressure,
+                                          calibration_values, check_reference_sine, played_pressure,
+                                          reference_frequency, reference_sine)
 from showkit.analysis.sweep import SweepSpec, check_spec, exponential_sweep, measure_response
-from showkit.cli.common import (
-    add_conditions_options,
-    add_json_option,
-    add_rig_option,
-    level_caution,
-    load_rig_from_args,
-    print_json,
-    table,
-)
+from showkit.cli.common import (add_conditions_options, add_json_option, add_rig_option, level_caution,
+                                load_rig_from_args, print_json, table)
 from showkit.conditions import make_calibration
 from showkit.errors import InputError, MeasureError, RigError
 from showkit.printable import printable

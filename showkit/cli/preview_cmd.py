@@ -17,13 +17,8 @@ import sys
 from pathlib import Path
 
 from showkit import units
-from showkit.cli.common import (
-    add_conditions_options,
-    add_rig_option,
-    level_caution,
-    load_rig_from_args,
-    time_option,
-)
+from showkit.cli.common import (add_conditions_options, add_rig_option, level_caution, load_rig_from_args,
+                                time_option)
 from showkit.errors import InputError
 
 

@@ -22,15 +22,8 @@ import json
 import sys
 from pathlib import Path
 
-from showkit.cli.common import (
-    add_conditions_options,
-    add_json_option,
-    add_rig_option,
-    level_caution,
-    load_rig_from_args,
-    print_json,
-    table,
-)
+from showkit.cli.common import (add_conditions_options, add_json_option, add_rig_option, level_caution,
+                                load_rig_from_args, print_json, table)
 from showkit.errors import InputError, ShowkitError
 from showkit.printable import printable
 from showkit.safesave import check_target, write_text

@@ -23,14 +23,8 @@ import numpy as np
 
 from showkit.errors import InputError, ShowkitError
 from showkit.export.common import mode_map, paper_size, plotting, save_figure
-from showkit.export.figures import (
-    WORST,
-    draw_deviation,
-    draw_flame_row,
-    draw_mode_map,
-    draw_mode_shape,
-    readable,
-)
+from showkit.export.figures import (WORST, draw_deviation, draw_flame_row, draw_mode_map, draw_mode_shape,
+                                    readable)
 from showkit.physics.flames import FRAME_RATE_HZ
 from showkit.physics.modes import find_modes
 from showkit.safesave import replacing
