@@ -15,7 +15,6 @@ import math
 
 from showkit.cli.common import (add_conditions_options, add_json_option, add_rig_option, level_caution,
                                 load_rig_from_args, print_json, time_option)
-from showkit.physics.ceiling import MAX_GAIN_DB
 from showkit.printable import printable
 from showkit.units import format_time
 
@@ -31,6 +30,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 def run(args) -> int:
     from showkit.analysis.pressure import passage_report
+    from showkit.physics.ceiling import MAX_GAIN_DB
 
     rig = load_rig_from_args(args)
     start, end = time_option(args.start, "--start"), time_option(args.end, "--end")

@@ -17,23 +17,12 @@ import argparse
 import sys
 from pathlib import Path
 
-import numpy as np
-
-# the work itself lives in the analysis and show layers; this module parses, plays and prints
-from showkit.analysis.audio import read_whole
-from showkit.analysis.drivefit import sweep_amplitude_bound
-from showkit.analysis.measurement import (REFERENCE_RATE_HZ, analyse_recording, calibrated_pressure,
-                                          calibration_values, check_reference_sine, played_pressure,
-                                          reference_frequency, reference_sine)
-from showkit.analysis.sweep import SweepSpec, check_spec, exponential_sweep, measure_response
+# the work itself lives in the analysis and show layers (imported where used: they bring numpy,
+# and every command module is imported for `showkit --help`); this module parses, plays and prints
 from showkit.cli.common import (add_conditions_options, add_json_option, add_rig_option, level_caution,
                                 load_rig_from_args, print_json, table)
-from showkit.conditions import make_calibration
 from showkit.errors import InputError, MeasureError, RigError
 from showkit.printable import printable
-from showkit.rigfile import demo_rig_path, load_rig
-from showkit.rigwrite import update_rig, write_fit
-from showkit.safesave import check_target, write_audio
 from showkit.show.playrec import play_record
 
 #: where each [drive] reference value of `measure level` comes from, for the errors
@@ -109,6 +98,8 @@ def run(args) -> int:
 
 def _protect(args) -> list:
     """Files a measurement reads, which its outputs must never replace."""
+    from showkit.rigfile import demo_rig_path
+
     out = [(demo_rig_path(), "the bundled demo rig")]
     for name, role in (("rig", "the rig file"), ("sweep", "the sweep"), ("recording", "the recording"),
                        ("calibrator", "the calibrator recording")):
@@ -119,10 +110,18 @@ def _protect(args) -> list:
 
 
 def _out_path(path: str, args, what: str):
+    from showkit.safesave import check_target
+
     return check_target(Path(path), _protect(args), what)
 
 
 def _run_sweep(args) -> int:
+    import numpy as np
+
+    from showkit.analysis.drivefit import sweep_amplitude_bound
+    from showkit.analysis.sweep import SweepSpec, check_spec, exponential_sweep
+    from showkit.safesave import write_audio
+
     rig = load_rig_from_args(args)
     _out_path(args.out, args, "sweep")  # before any work: not a folder, not the rig
     check_spec(SweepSpec(args.start, args.stop, args.length, args.rate, 0.5))
@@ -173,6 +172,7 @@ def _plot(report, rec, rec_rate, sweep, sweep_rate, args) -> None:
     """``--plot``: the measured response (the analysis's own) with the modes marked."""
     if not getattr(args, "plot", None):
         return
+    from showkit.analysis.sweep import measure_response
     from showkit.export.figures import plot_response, response_level_db
 
     resp = measure_response(rec, rec_rate, sweep, sweep_rate, "recording")
@@ -181,6 +181,8 @@ def _plot(report, rec, rec_rate, sweep, sweep_rate, args) -> None:
 
 
 def _update(rig, report, args) -> None:
+    from showkit.rigwrite import write_fit
+
     if not getattr(args, "rig", None):
         raise RigError("--update-rig needs your own rig file", "--rig", "copy the demo rig and give --rig FILE")
     backup = write_fit(args.rig, report, drive_response=not args.no_drive_response, prefer_gas=args.gas_as)
@@ -191,6 +193,8 @@ def _update(rig, report, args) -> None:
 
 def _calibration_still_good(path) -> None:
     """After a fit: say so at once if the calibration point is no longer one the tube's losses cannot move."""
+    from showkit.rigfile import load_rig
+
     try:
         load_rig(path)
     except RigError as exc:
@@ -202,6 +206,9 @@ def _calibration_still_good(path) -> None:
 
 
 def _run_analyse(args) -> int:
+    from showkit.analysis.audio import read_whole
+    from showkit.analysis.measurement import analyse_recording
+
     rig = load_rig_from_args(args)
     rec, rec_rate = read_whole(args.recording, "recording")
     sweep, sweep_rate = read_whole(args.sweep, "sweep")
@@ -214,6 +221,10 @@ def _run_analyse(args) -> int:
 
 
 def _run_live(args) -> int:
+    from showkit.analysis.audio import read_whole
+    from showkit.analysis.measurement import analyse_recording
+    from showkit.safesave import write_audio
+
     rig = load_rig_from_args(args)
     if args.save:
         _out_path(args.save, args, "recording")
@@ -232,6 +243,9 @@ def _run_live(args) -> int:
 
 def _level_drive(rig, args):
     """The new calibration's frequency and level through the one door (the reading comes later)."""
+    from showkit.analysis.measurement import reference_frequency
+    from showkit.conditions import make_calibration
+
     freq, note = reference_frequency(rig, args.frequency)
     if note:
         print(note, file=sys.stderr)
@@ -244,6 +258,9 @@ def _level_drive(rig, args):
 
 def _write_sine(sine, drive, args) -> None:
     """``--out``: the reference sine as a WAV file to play with any player."""
+    import numpy as np
+
+    from showkit.analysis.measurement import REFERENCE_RATE_HZ
     from showkit.show.render import write_wav
 
     _out_path(args.out, args, "reference sine")
@@ -254,6 +271,8 @@ def _write_sine(sine, drive, args) -> None:
 
 def _play_sine(rig, sine, drive, args):
     """``--play``: the sine (refused above its ceiling) played while the cap microphone records."""
+    from showkit.analysis.measurement import REFERENCE_RATE_HZ, check_reference_sine
+
     freq, level = drive.reference_frequency_hz, drive.reference_level_dbfs
     headroom = check_reference_sine(rig, sine, REFERENCE_RATE_HZ, level)
     print(f"playing {freq:g} Hz at {level:g} dBFS for 10 s ({headroom:.1f} dB below its ceiling)...",
@@ -263,6 +282,9 @@ def _play_sine(rig, sine, drive, args):
 
 def _reading(args, played, freq_hz: float):
     """The cap pressure (Pa, zero to peak, or text with a unit) from the options, or None without one."""
+    from showkit.analysis.audio import read_whole
+    from showkit.analysis.measurement import REFERENCE_RATE_HZ, calibrated_pressure, played_pressure
+
     if args.pressure is not None:
         return args.pressure
     if played is not None and args.calibrator:
@@ -280,6 +302,9 @@ def _reading(args, played, freq_hz: float):
 
 
 def _run_level(args) -> int:
+    from showkit.analysis.measurement import calibration_values, reference_sine
+    from showkit.conditions import make_calibration
+
     # the rig's own calibration may be the one being replaced: load it unchecked, check the new frequency
     rig = load_rig_from_args(args, check_calibration=False)
     drive = _level_drive(rig, args)
@@ -312,6 +337,8 @@ def _print_calibration(result: dict, args) -> None:
 
 
 def _update_reference(result: dict, args) -> None:
+    from showkit.rigwrite import update_rig
+
     if not args.rig:
         raise RigError("--update-rig needs your own rig file", "--rig", "give --rig FILE")
     backup = update_rig(args.rig, reference=result)

@@ -15,7 +15,6 @@ import sys
 
 from showkit.cli.common import add_json_option, add_rig_option, load_rig_from_args, print_json, table
 from showkit.errors import InputError
-from showkit.physics.modes import find_modes
 from showkit.printable import printable
 
 
@@ -30,6 +29,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 def modes_report(rig, f_max_hz=None) -> dict:
     """The ``showkit modes --json`` object for a rig."""
+    from showkit.physics.modes import find_modes
+
     model = rig.model
     modes = find_modes(model, f_max_hz)
     return {

@@ -14,7 +14,6 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
-from showkit.demo_files import user_demo_show
 from showkit.errors import InputError
 from showkit.folders import data_dir
 
@@ -49,6 +48,8 @@ def build_app(args: argparse.Namespace):
     view = args.view
     path = Path(args.path).expanduser() if args.path else None
     if path is None:
+        from showkit.demo_files import user_demo_show
+
         session = Session.open_sheet(user_demo_show())
     elif path.suffix.lower() in AUDIO_SUFFIXES:
         if not path.is_file():

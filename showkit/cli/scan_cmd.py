@@ -16,7 +16,6 @@ Exit status 0 if any file was scanned, 2 if none could be.
 from __future__ import annotations
 
 import argparse
-import csv
 import io
 import json
 import sys
@@ -26,7 +25,6 @@ from showkit.cli.common import (add_conditions_options, add_json_option, add_rig
                                 load_rig_from_args, print_json, table)
 from showkit.errors import InputError, ShowkitError
 from showkit.printable import printable
-from showkit.safesave import check_target, write_text
 from showkit.units import format_time
 
 
@@ -120,6 +118,10 @@ def _print_table(tracks: list[dict]) -> None:
 
 
 def _write_csv(path: str, tracks: list[dict], protect=()) -> None:
+    import csv
+
+    from showkit.safesave import write_text
+
     if True:
         with io.StringIO(newline="") as f:
             w = csv.writer(f)
@@ -156,6 +158,7 @@ def _previews(tracks: list[dict], semitones: float, protect=()) -> None:
 def _write_map(rig, track: dict, target: str, protect=()) -> None:
     """Write the track's time x mode map (:func:`showkit.analysis.scan.map_data`) through the safe writer."""
     from showkit.analysis.scan import track_frames
+    from showkit.safesave import write_text
 
     data = track_frames(rig, track["path"])["map"]
     data = {"track": track["path"], **data}
@@ -179,6 +182,8 @@ def run(args) -> int:
     rig = load_rig_from_args(args)
     if args.csv:
         # before the work: a CSV over a track, a folder or a pipe is refused at once
+        from showkit.safesave import check_target
+
         check_target(Path(args.csv), [(p, "a file being scanned") for p in args.paths], "CSV file")
     bar = _Bar()
     try:
