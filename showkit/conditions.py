@@ -91,16 +91,6 @@ def _where(where: dict | None, key: str, default: str) -> str:
     return (where or {}).get(key, default)
 
 
-def _text_or_number(value):
-    """A command-line string that is a plain number becomes that number (SI)."""
-    if isinstance(value, str):
-        try:
-            return float(value)
-        except ValueError:
-            return value
-    return value
-
-
 def _finite_number(value, at: str, kind: str) -> float:
     if isinstance(value, bool) or not isinstance(value, (int, float)):
         if isinstance(value, str):
@@ -191,13 +181,13 @@ def static_reading(value, where: str = "static pressure") -> float:
     The part of :func:`make_conditions` for one reading on its own (e.g. a
     command-line option checked before the rig is read).
     """
-    return check_static_pa(units.pressure_pa(_text_or_number(value), where), where)
+    return check_static_pa(units.pressure_pa(units.number_or_text(value), where), where)
 
 
 def temperature_reading(value, where: str = "gas temperature") -> float:
     """A gas temperature (number in K, or text such as ``"24 C"``) parsed and checked, K."""
     try:
-        temperature_k = units.temperature_k(_text_or_number(value), where)
+        temperature_k = units.temperature_k(units.number_or_text(value), where)
     except InputError as exc:
         if "absolute zero" not in exc.what:
             raise
@@ -254,7 +244,7 @@ def make_calibration(reference_frequency=None, reference_level=None, reference_p
     def pick(key, default):
         return default if given[key] is None else given[key]
 
-    f_ref = _within(units.frequency_hz(_text_or_number(pick("reference_frequency", base.reference_frequency_hz)),
+    f_ref = _within(units.frequency_hz(units.number_or_text(pick("reference_frequency", base.reference_frequency_hz)),
                                        at["reference_frequency"]),
                     REFERENCE_FREQUENCY_MIN_HZ, REFERENCE_FREQUENCY_MAX_HZ, at["reference_frequency"],
                     "reference frequency", " Hz", 'give the calibration sine\'s frequency, e.g. "120 Hz"')
@@ -265,11 +255,11 @@ def make_calibration(reference_frequency=None, reference_level=None, reference_p
                          "give the sine's peak level in dBFS, e.g. -20")
     _within(level, REFERENCE_LEVEL_MIN_DBFS, REFERENCE_LEVEL_MAX_DBFS, at["reference_level"],
             "reference level", " dBFS", "give the sine's peak level in dBFS, e.g. -20")
-    p_ref = _within(units.pressure_pa(_text_or_number(pick("reference_pressure", base.reference_pressure_pa)),
+    p_ref = _within(units.pressure_pa(units.number_or_text(pick("reference_pressure", base.reference_pressure_pa)),
                                       at["reference_pressure"]),
                     REFERENCE_PRESSURE_MIN_PA, REFERENCE_PRESSURE_MAX_PA, at["reference_pressure"],
                     "reference pressure", " Pa", 'give the pressure amplitude read at the cap, e.g. "6 Pa"')
-    f_s = _within(units.frequency_hz(_text_or_number(pick("speaker_resonance", base.speaker_resonance_hz)),
+    f_s = _within(units.frequency_hz(units.number_or_text(pick("speaker_resonance", base.speaker_resonance_hz)),
                                      at["speaker_resonance"]),
                   SPEAKER_RESONANCE_MIN_HZ, SPEAKER_RESONANCE_MAX_HZ, at["speaker_resonance"],
                   "speaker resonance", " Hz", 'give the speaker\'s resonance, e.g. "55 Hz"')

@@ -9,37 +9,21 @@ installed package.
 
 from __future__ import annotations
 
-import os
 from importlib import resources
 from pathlib import Path
 
 from showkit import __version__
 from showkit.errors import ShowkitError
+from showkit.folders import cache_dir, data_dir
 from showkit.safesave import write_bytes, write_text
+
+# the names this module used before showkit.folders (ui/safety.py still imports data_folder)
+cache_folder = cache_dir
+data_folder = data_dir
 
 
 def _repo_demo_audio() -> Path:
     return Path(__file__).resolve().parent.parent / "demo_audio"
-
-
-def cache_folder() -> Path:
-    """The user's cache folder for showkit (``SHOWKIT_CACHE_DIR`` overrides)."""
-    env = os.environ.get("SHOWKIT_CACHE_DIR")
-    if env:
-        return Path(env)
-    from platformdirs import user_cache_dir
-
-    return Path(user_cache_dir("showkit"))
-
-
-def data_folder() -> Path:
-    """The user's data folder for showkit (``SHOWKIT_DATA_DIR`` overrides)."""
-    env = os.environ.get("SHOWKIT_DATA_DIR")
-    if env:
-        return Path(env)
-    from platformdirs import user_data_dir
-
-    return Path(user_data_dir("showkit"))
 
 
 def demo_audio_folder() -> Path:
@@ -47,7 +31,7 @@ def demo_audio_folder() -> Path:
     repo = _repo_demo_audio()
     if repo.is_dir() and any(repo.glob("*.flac")):
         return repo
-    folder = cache_folder() / f"demo_audio-{__version__}"
+    folder = cache_dir() / f"demo_audio-{__version__}"
     marker = folder / ".complete"
     if not marker.exists():
         try:
@@ -71,7 +55,7 @@ def bundled_demo_show() -> Path:
 
 def user_demo_show() -> Path:
     """The user's own copy of the demo show (made from the bundled one the first time)."""
-    target = data_folder() / "demo-show.toml"
+    target = data_dir() / "demo-show.toml"
     if not target.exists():
         target.parent.mkdir(parents=True, exist_ok=True)
         write_bytes(target, bundled_demo_show().read_bytes(), backups=0, what="demo show")

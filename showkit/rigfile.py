@@ -272,75 +272,19 @@ def _metres_text(metres: float) -> str:
 
 def _build(data: dict, where: str, path: Path | None, check_calibration: bool = True) -> Rig:
     _check_keys(data, where)
-    name = data.get("name", path.stem if path else "rig")
-    if not isinstance(name, str):
-        raise RigError(f"expected text, got {name!r}", f"{where}: name", 'write name = "My tube"')
-    tube, holes = data["tube"], data.get("holes", {})
-    gas, drive = data["gas"], data.get("drive", {})
-    safety = data.get("safety", {})
-
-    length = _length(tube["length"], _field(where, "tube", "length"), "length", LENGTH_LIMITS_M)
-    bore = _length(tube["bore"], _field(where, "tube", "bore"), "bore", BORE_LIMITS_M)
-    wall = _length(tube["wall"], _field(where, "tube", "wall"), "wall thickness", WALL_LIMITS_M)
-    if bore >= length:
-        raise RigError(f"bore ({bore:g} m) is not smaller than the length ({length:g} m)",
-                       _field(where, "tube", "bore"), "give the inner diameter and the length in the right units")
-
+    name = _name(data, where, path)
+    holes, drive = data.get("holes", {}), data.get("drive", {})
+    length, bore, wall = _tube(data["tube"], where)
     positions, diameter = _holes(holes, where, length, bore)
-    end_corr = None
-    if "end_correction" in holes:
-        end_corr = _number(holes["end_correction"], _field(where, "holes", "end_correction"))
-        if not 0.0 <= end_corr <= 5.0:
-            raise RigError(f"end_correction must be within 0 and 5 hole radii (got {end_corr:g})",
-                           _field(where, "holes", "end_correction"),
-                           "leave it out to use the textbook value")
-
-    fuel = gas["fuel"]
-    if not isinstance(fuel, str) or fuel.lower() not in FUELS or fuel.lower() == "n-butane":
-        names = [f for f in FUELS if f != "n-butane"]
-        near = difflib.get_close_matches(str(fuel).lower(), names, n=1)
-        raise RigError(f"unknown fuel {fuel!r}", _field(where, "gas", "fuel"),
-                       (f"did you mean {near[0]!r}? " if near else "") + f"use one of: {', '.join(names)}")
-    fuel = fuel.lower()
-    air = _number(gas.get("air_fraction", 0.0), _field(where, "gas", "air_fraction"))
-    if not 0.0 <= air <= 0.5:
-        raise RigError(f"air_fraction must be within 0 and 0.5 (got {air:g})",
-                       _field(where, "gas", "air_fraction"),
-                       "give the mole fraction of air mixed into the fuel, e.g. 0.05")
-    ambient = units.pressure_pa(gas.get("ambient", STANDARD_AMBIENT_PA), _field(where, "gas", "ambient"))
-    if not 50_000.0 <= ambient <= 120_000.0:
-        raise RigError(f"ambient pressure {ambient:g} Pa is not an absolute air pressure",
-                       _field(where, "gas", "ambient"), 'give the absolute ambient pressure, e.g. "1013 mbar"')
-    conditions = make_conditions(gas.get("static_pressure", "20 Pa"), gas.get("temperature", "20 C"),
-                                 safety.get("reserve", 0.25),
-                                 where={"static": _field(where, "gas", "static_pressure"),
-                                        "temperature": _field(where, "gas", "temperature"),
-                                        "reserve": _field(where, "safety", "reserve")})
-    temp = conditions.temperature_k
-
+    end_corr = _end_correction(holes, where)
+    fuel, air, ambient = _fuel_air_ambient(data["gas"], where)
+    conditions = _rig_conditions(data["gas"], data.get("safety", {}), where)
     calibration = _drive(drive, where)
-    gas_now = gas_state(fuel, air, temp, ambient)
+    gas_now = gas_state(fuel, air, conditions.temperature_k, ambient)
     geometry = TubeGeometry(length, bore, wall, positions, diameter, end_corr, 0.0)
-    resistance = holes.get("resistance", 0.0)
-    if resistance == "outflow":
-        r_value = (outflow_resistance(gas_now.density_kg_m3, NOMINAL_FLOW_PRESSURE_PA,
-                                      geometry.hole_area_m2) if positions else 0.0)
-    else:
-        r_value = units.resistance_pa_s_m3(resistance, _field(where, "holes", "resistance"))
-        if r_value < 0:
-            raise RigError("resistance must not be negative", _field(where, "holes", "resistance"),
-                           'leave it out, or write "outflow" or a value in Pa s/m3')
-        if r_value > MAX_HOLE_RESISTANCE_PA_S_M3:
-            raise RigError(f"resistance {r_value:g} Pa s/m3 is far above a flame hole's "
-                           f"(at most {MAX_HOLE_RESISTANCE_PA_S_M3:g})", _field(where, "holes", "resistance"),
-                           'leave it out, or write "outflow" or let showkit measure fit it')
-    measured = data.get("measured", {})
-    if not isinstance(measured, dict):
-        raise RigError("'measured' must be a section", f"{where}: measured", "let showkit measure write it")
-    flow = _number(holes.get("flow", 1.0), _field(where, "holes", "flow"))
-    if not 0.0 <= flow <= 3.0:
-        raise RigError(f"flow must be within 0 and 3 (got {flow:g})", _field(where, "holes", "flow"),
-                       "leave it out (1: the orifice law at the static pressure), or 0 for still gas")
+    r_value = _hole_resistance(holes, where, gas_now, geometry)
+    measured = _measured(data, where)
+    flow = _flow_scale(holes, where)
     family = loss_family(replace(geometry, hole_resistance_pa_s_m3=r_value), gas_now, conditions.static_pa,
                          flow, _ranges(measured, where), r_value)
     rig = Rig(name=name, geometry=family.best_model.geometry, fuel=fuel, air_fraction=air,
@@ -352,6 +296,98 @@ def _build(data: dict, where: str, path: Path | None, check_calibration: bool = 
     if check_calibration:
         check_calibration_point(rig, where)
     return rig
+
+
+def _name(data: dict, where: str, path: Path | None) -> str:
+    name = data.get("name", path.stem if path else "rig")
+    if not isinstance(name, str):
+        raise RigError(f"expected text, got {name!r}", f"{where}: name", 'write name = "My tube"')
+    return name
+
+
+def _tube(tube: dict, where: str) -> tuple[float, float, float]:
+    """``[tube]``: length, bore and wall thickness, m, each within its limits, the bore below the length."""
+    length = _length(tube["length"], _field(where, "tube", "length"), "length", LENGTH_LIMITS_M)
+    bore = _length(tube["bore"], _field(where, "tube", "bore"), "bore", BORE_LIMITS_M)
+    wall = _length(tube["wall"], _field(where, "tube", "wall"), "wall thickness", WALL_LIMITS_M)
+    if bore >= length:
+        raise RigError(f"bore ({bore:g} m) is not smaller than the length ({length:g} m)",
+                       _field(where, "tube", "bore"), "give the inner diameter and the length in the right units")
+    return length, bore, wall
+
+
+def _end_correction(holes: dict, where: str) -> float | None:
+    """``holes.end_correction`` in hole radii (0 to 5), or None for the textbook value."""
+    if "end_correction" not in holes:
+        return None
+    end_corr = _number(holes["end_correction"], _field(where, "holes", "end_correction"))
+    if not 0.0 <= end_corr <= 5.0:
+        raise RigError(f"end_correction must be within 0 and 5 hole radii (got {end_corr:g})",
+                       _field(where, "holes", "end_correction"),
+                       "leave it out to use the textbook value")
+    return end_corr
+
+
+def _fuel_air_ambient(gas: dict, where: str) -> tuple[str, float, float]:
+    """``[gas]``: the fuel's name, the mole fraction of air in it, the absolute ambient pressure (Pa)."""
+    fuel = gas["fuel"]
+    if not isinstance(fuel, str) or fuel.lower() not in FUELS or fuel.lower() == "n-butane":
+        names = [f for f in FUELS if f != "n-butane"]
+        near = difflib.get_close_matches(str(fuel).lower(), names, n=1)
+        raise RigError(f"unknown fuel {fuel!r}", _field(where, "gas", "fuel"),
+                       (f"did you mean {near[0]!r}? " if near else "") + f"use one of: {', '.join(names)}")
+    air = _number(gas.get("air_fraction", 0.0), _field(where, "gas", "air_fraction"))
+    if not 0.0 <= air <= 0.5:
+        raise RigError(f"air_fraction must be within 0 and 0.5 (got {air:g})",
+                       _field(where, "gas", "air_fraction"),
+                       "give the mole fraction of air mixed into the fuel, e.g. 0.05")
+    ambient = units.pressure_pa(gas.get("ambient", STANDARD_AMBIENT_PA), _field(where, "gas", "ambient"))
+    if not 50_000.0 <= ambient <= 120_000.0:
+        raise RigError(f"ambient pressure {ambient:g} Pa is not an absolute air pressure",
+                       _field(where, "gas", "ambient"), 'give the absolute ambient pressure, e.g. "1013 mbar"')
+    return fuel.lower(), air, ambient
+
+
+def _rig_conditions(gas: dict, safety: dict, where: str) -> Conditions:
+    """The rig's own conditions (static pressure, gas temperature, reserve) through the one door."""
+    return make_conditions(gas.get("static_pressure", "20 Pa"), gas.get("temperature", "20 C"),
+                           safety.get("reserve", 0.25),
+                           where={"static": _field(where, "gas", "static_pressure"),
+                                  "temperature": _field(where, "gas", "temperature"),
+                                  "reserve": _field(where, "safety", "reserve")})
+
+
+def _hole_resistance(holes: dict, where: str, gas: GasState, geometry: TubeGeometry) -> float:
+    """``holes.resistance``, Pa s/m^3: a value, or ``"outflow"`` (from the gas and the holes)."""
+    resistance = holes.get("resistance", 0.0)
+    if resistance == "outflow":
+        return (outflow_resistance(gas.density_kg_m3, NOMINAL_FLOW_PRESSURE_PA, geometry.hole_area_m2)
+                if geometry.hole_count else 0.0)
+    r_value = units.resistance_pa_s_m3(resistance, _field(where, "holes", "resistance"))
+    if r_value < 0:
+        raise RigError("resistance must not be negative", _field(where, "holes", "resistance"),
+                       'leave it out, or write "outflow" or a value in Pa s/m3')
+    if r_value > MAX_HOLE_RESISTANCE_PA_S_M3:
+        raise RigError(f"resistance {r_value:g} Pa s/m3 is far above a flame hole's "
+                       f"(at most {MAX_HOLE_RESISTANCE_PA_S_M3:g})", _field(where, "holes", "resistance"),
+                       'leave it out, or write "outflow" or let showkit measure fit it')
+    return r_value
+
+
+def _measured(data: dict, where: str) -> dict:
+    measured = data.get("measured", {})
+    if not isinstance(measured, dict):
+        raise RigError("'measured' must be a section", f"{where}: measured", "let showkit measure write it")
+    return measured
+
+
+def _flow_scale(holes: dict, where: str) -> float:
+    """``holes.flow``: the jet velocity relative to the orifice law (0 to 3)."""
+    flow = _number(holes.get("flow", 1.0), _field(where, "holes", "flow"))
+    if not 0.0 <= flow <= 3.0:
+        raise RigError(f"flow must be within 0 and 3 (got {flow:g})", _field(where, "holes", "flow"),
+                       "leave it out (1: the orifice law at the static pressure), or 0 for still gas")
+    return flow
 
 
 def loss_family(geometry: TubeGeometry, gas, static_pa: float, flow_scale: float,

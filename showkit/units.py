@@ -16,7 +16,7 @@ from __future__ import annotations
 import math
 import re
 
-from showkit.errors import InputError
+from showkit.errors import InputError, ShowkitError
 
 STANDARD_GRAVITY_M_S2 = 9.80665
 WATER_DENSITY_KG_M3 = 1000.0
@@ -117,6 +117,50 @@ def _example(kind: str) -> str:
     }.get(kind, "a number")
 
 
+def number_or_text(value):
+    """A string that is a plain number becomes that number; any other value is returned as given.
+
+    Command-line options and form fields arrive as text: ``"18"`` is then the SI number 18,
+    while ``"18 Pa"`` stays text for the unit parsers (:func:`pressure_pa`, :func:`duration_s`...).
+    """
+    if isinstance(value, str):
+        try:
+            return float(value)
+        except ValueError:
+            return value
+    return value
+
+
+def gain_db(value, where: str | None = None, fix: str = "write a gain in dB, e.g. -12",
+            error: type[ShowkitError] = InputError) -> float:
+    """A gain in decibels from a number or text such as ``"-12"`` or ``"-12 dB"``.
+
+    Parameters
+    ----------
+    value : float or str
+        The gain, dB; a trailing ``dB`` (any case) is allowed in text.
+    where : str, optional
+        Where it was given (``"--gain"``, ``"show.toml: cue intro: gain"``), for the error.
+    fix : str
+        How to write it, for the error.
+    error : type
+        The :class:`ShowkitError` kind raised (a sheet raises ``SheetError``).
+    """
+    if isinstance(value, str):
+        text = value.strip().lower().removesuffix("db").strip()
+        try:
+            number = float(text)
+        except ValueError:
+            raise error(f"cannot read {value!r} as a gain in dB", where, fix) from None
+    elif isinstance(value, bool) or not isinstance(value, (int, float)):
+        raise error(f"a gain is a number of dB, got {value!r}", where, fix)
+    else:
+        number = float(value)
+    if not math.isfinite(number):
+        raise error(f"a gain must be a finite number of dB, got {value!r}", where, fix)
+    return number
+
+
 def length_m(value, where: str | None = None) -> float:
     """A length in metres from a number (metres) or a string with units.
 
@@ -186,12 +230,21 @@ def duration_s(value, where: str | None = None) -> float:
     return _with_table(value, TIME_UNITS_S, "duration", where)
 
 
-def format_time(seconds: float) -> str:
-    """``75.25`` -> ``"1:15.2"`` (minutes, seconds to a tenth)."""
+def format_time(seconds: float, round_down: bool = False) -> str:
+    """``75.25`` -> ``"1:15.2"`` (minutes, seconds to a tenth): the one m:ss.s formatter.
+
+    Parameters
+    ----------
+    seconds : float
+        The time, s (``"--:--"`` when not finite).
+    round_down : bool
+        Cut to the tenth below instead of the nearest one: a running clock (the preview
+        video's) never shows a tenth that has not yet begun.
+    """
     if not math.isfinite(seconds):
         return "--:--"
     sign = "-" if seconds < 0 else ""
-    tenths = int(round(abs(seconds) * 10))
+    tenths = int(math.floor(abs(seconds) * 10 + 1e-6)) if round_down else int(round(abs(seconds) * 10))
     minutes, rest = divmod(tenths, 600)
     return f"{sign}{minutes}:{rest // 10:02d}.{rest % 10}"
 

@@ -101,3 +101,21 @@ fade_out = 0.2
     sheet.replace_cue("changed", source=ToneSource(1.2, mode=2))
     save_sheet(sheet)
     return path
+
+
+def exported_short_sheet(tmp_path_factory, command: str, out_name: str, *options: str):
+    """The short sheet made in a fresh folder and exported by ``showkit COMMAND SHEET -o OUT OPTIONS``.
+
+    ``{folder}`` in an option stands for the folder.  Returns (sheet path, output path, folder);
+    the cache goes into the folder unless one is set.
+    """
+    import os
+
+    from showkit.cli.main import main
+
+    folder = tmp_path_factory.mktemp(command)
+    os.environ.setdefault("SHOWKIT_CACHE_DIR", str(folder / "cache"))
+    sheet = short_sheet(folder)
+    out = folder / out_name
+    assert main([command, str(sheet), "-o", str(out), *(o.format(folder=folder) for o in options)]) == 0
+    return sheet, out, folder

@@ -13,6 +13,7 @@ from showkit.analysis.pressure import hole_filters, signal_report
 from showkit.physics import ceiling as rule
 from showkit.physics.response import pressure_signal, transfer
 from showkit.rigfile import load_rig
+from signal_support import faded_sine
 
 DB2 = 20 * math.log10(2.0)
 #: A tone near the demo rig's mode 2 for the hand checks.  The calibration used to sit here;
@@ -28,16 +29,6 @@ def rig():
 @pytest.fixture(scope="module")
 def filters(rig):
     return hole_filters(rig)
-
-
-def _faded_sine(freq_hz, amplitude, seconds, rate, fade_s=0.5):
-    t = np.arange(int(round(seconds * rate))) / rate
-    x = amplitude * np.sin(2 * np.pi * freq_hz * t)
-    n = int(fade_s * rate)
-    ramp = 0.5 * (1 - np.cos(np.pi * np.arange(n) / n))
-    x[:n] *= ramp
-    x[-n:] *= ramp[::-1]
-    return x
 
 
 def _hand_ceiling_db(rig, freq_hz, amplitude):
@@ -90,7 +81,7 @@ def test_sine_at_the_reference_frequency_against_the_hand_value(rig, filters):
     amp = 0.01
     f = TONE_HZ
     # the hand value is the best-estimate model's: robust=False (the robust ceiling is checked in test_family.py)
-    report = signal_report(rig, _faded_sine(f, amp, 6.0, fs), fs, robust=False)
+    report = signal_report(rig, faded_sine(f, amp, 6.0, fs), fs, robust=False)
     hand, hole = _hand_ceiling_db(rig, f, amp)
     assert report.ceiling.limited_by == "pressure"
     assert report.ceiling_db == pytest.approx(hand, abs=0.1)
@@ -113,8 +104,8 @@ def test_abrupt_start_raises_the_transient(rig, filters):
 def test_the_loudest_moment_governs(rig, filters):
     fs = filters.rate_hz
     f = TONE_HZ
-    quiet = _faded_sine(f, 0.002, 12.0, fs)
-    loud = _faded_sine(f, 0.02, 3.0, fs, fade_s=1.0)
+    quiet = faded_sine(f, 0.002, 12.0, fs)
+    loud = faded_sine(f, 0.02, 3.0, fs, fade_s=1.0)
     x = quiet.copy()
     x[int(5 * fs):int(8 * fs)] += loud
     report = signal_report(rig, x, fs, flames=False, robust=False)
@@ -154,7 +145,7 @@ def test_silence_gets_the_full_scale_cap(rig):
 def test_dc_offset_is_ignored_by_the_tube_but_not_by_full_scale(rig, filters):
     fs = filters.rate_hz
     f = TONE_HZ
-    x = _faded_sine(f, 0.01, 5.0, fs)
+    x = faded_sine(f, 0.01, 5.0, fs)
     plain = signal_report(rig, x, fs, flames=False, robust=False)
     # a steady offset, faded in and out over 2 s (a step would be a real transient)
     dc = 0.3 * _ramp(x.size, 2 * fs)
@@ -182,7 +173,7 @@ def _ramp(n, fade):
 
 def test_full_scale_limits_a_loud_track(rig, filters):
     fs = filters.rate_hz
-    x = _faded_sine(700.0, 0.9, 2.0, fs)  # far from the calibration: little pressure per dBFS?
+    x = faded_sine(700.0, 0.9, 2.0, fs)  # far from the calibration: little pressure per dBFS?
     report = signal_report(rig, 0.001 * x, fs, flames=False)
     # whichever limits, the output never exceeds 0 dBFS
     assert report.output_peak_dbfs <= 1e-9

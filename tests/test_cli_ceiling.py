@@ -12,18 +12,14 @@ import pytest
 import soundfile as sf
 
 from showkit.cli.main import main
+from signal_support import faded_sine
 
 KEYS = {"ceiling_db", "output_peak_dbfs", "limited_by", "min_pressure_pa", "worst_hole",
         "worst_time_s", "contrast"}
 
 
 def _sine(rate, seconds, freq=120.0, amp=0.01, fade_s=0.5, channels=1):
-    t = np.arange(int(round(seconds * rate))) / rate
-    x = amp * np.sin(2 * np.pi * freq * t)
-    n = int(fade_s * rate)
-    ramp = 0.5 * (1 - np.cos(np.pi * np.arange(n) / n))
-    x[:n] *= ramp
-    x[-n:] *= ramp[::-1]
+    x = faded_sine(freq, amp, seconds, rate, fade_s)
     return np.repeat(x[:, None], channels, axis=1) if channels > 1 else x
 
 

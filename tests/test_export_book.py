@@ -20,15 +20,9 @@ def _flat(text: str) -> str:
 
 @pytest.fixture(scope="module")
 def book(tmp_path_factory):
-    import os
+    from export_support import exported_short_sheet
 
-    from export_support import short_sheet
-
-    folder = tmp_path_factory.mktemp("book")
-    os.environ.setdefault("SHOWKIT_CACHE_DIR", str(folder / "cache"))
-    sheet = short_sheet(folder)
-    out = folder / "show.pdf"
-    assert main(["book", str(sheet), "-o", str(out), "--png", str(folder / "png")]) == 0
+    sheet, out, folder = exported_short_sheet(tmp_path_factory, "book", "show.pdf", "--png", "{folder}/png")
     return sheet, out, folder
 
 

@@ -66,15 +66,9 @@ def _frame_at(path, k: int, size) -> np.ndarray:
 
 @pytest.fixture(scope="module")
 def sheet_video(tmp_path_factory):
-    import os
+    from export_support import exported_short_sheet
 
-    from export_support import short_sheet
-
-    folder = tmp_path_factory.mktemp("preview")
-    os.environ.setdefault("SHOWKIT_CACHE_DIR", str(folder / "cache"))
-    sheet = short_sheet(folder)
-    out = folder / "show.mp4"
-    assert main(["preview", str(sheet), "-o", str(out), "--size", "480x270"]) == 0
+    sheet, out, _ = exported_short_sheet(tmp_path_factory, "preview", "show.mp4", "--size", "480x270")
     return sheet, out
 
 

@@ -2,7 +2,7 @@
 
 The order (DEVELOPERS.md, "Layers one way"):
 
-    base     errors, units, safety, tomlfile, safesave, fileio, limits, printable
+    base     errors, units, safety, tomlfile, safesave, fileio, limits, printable, folders
     physics  numpy only: no I/O, no other third-party package
     rig      rigfile, rigwrite, conditions, demo_files, demo (the rig door and demo data)
     analysis audio in, numbers out
@@ -26,7 +26,8 @@ import pytest
 PACKAGE = Path(__file__).resolve().parent.parent / "showkit"
 
 RANK = {"base": 0, "physics": 1, "rig": 2, "analysis": 3, "show": 4, "export": 5, "cli": 6, "ui": 6}
-BASE = {"errors", "units", "safety", "tomlfile", "safesave", "fileio", "limits", "printable", "__init__"}
+BASE = {"errors", "units", "safety", "tomlfile", "safesave", "fileio", "limits", "printable", "folders",
+        "__init__"}
 # Third-party packages the physics layer may use (numpy only: methods we need from scipy
 # are written in numpy and checked against scipy in the tests).
 PHYSICS_THIRD_PARTY = {"numpy"}

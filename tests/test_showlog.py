@@ -82,6 +82,7 @@ def test_each_write_is_synced(tmp_path, monkeypatch):
 
 
 def test_default_path_is_in_the_user_data_dir(monkeypatch, tmp_path):
+    monkeypatch.delenv("SHOWKIT_DATA_DIR", raising=False)  # the override wins (tests/test_folders.py)
     monkeypatch.setenv("XDG_DATA_HOME", str(tmp_path))  # platformdirs on Linux follows it
     path = default_log_path(dt.date(2026, 3, 4))
     assert path == tmp_path / "showkit" / "logs" / "show-2026-03-04.jsonl"

@@ -191,3 +191,34 @@ def test_unknown_unit_message_lists_known_units():
         units.pressure_pa("3 atm", "--static")
     assert "atm" in info.value.what
     assert "inh2o" in info.value.fix and "mbar" in info.value.fix
+
+
+# --- the one number-or-text step and the one gain reader ---------------------------
+
+
+@given(st.floats(allow_nan=False, allow_infinity=False))
+def test_number_or_text_reads_plain_numbers(x):
+    # reference: Python's own float(repr(x)) round trip
+    assert units.number_or_text(repr(x)) == x
+    assert units.number_or_text(x) is x
+
+
+@pytest.mark.parametrize("text", ["18 Pa", "0:42", "", "twelve"])
+def test_number_or_text_leaves_text_with_units(text):
+    assert units.number_or_text(text) == text
+
+
+@pytest.mark.parametrize("value, gain", [(-12, -12.0), ("-12", -12.0), ("-12 dB", -12.0), (" +3.5db ", 3.5),
+                                         ("-6.02 DB", -6.02)])
+def test_gain_db_reads_numbers_and_db_text(value, gain):
+    assert units.gain_db(value, "--gain") == gain
+
+
+@pytest.mark.parametrize("value", ["loud", "inf", "nan dB", True, None, [1]])
+def test_gain_db_refuses_with_where_and_fix(value):
+    from showkit.errors import SheetError
+
+    with pytest.raises(SheetError) as info:
+        units.gain_db(value, "show.toml: cue a: gain", "write gain = -12 (dB)", error=SheetError)
+    line = info.value.line()
+    assert line.startswith("show.toml: cue a: gain: ") and line.endswith("write gain = -12 (dB)")

@@ -6,6 +6,16 @@ the command line so the UI and scripts call the same functions.
 
 from __future__ import annotations
 
+import numpy as np
+
+from showkit.analysis.drivefit import drive_response_db
+from showkit.analysis.resonances import find_resonances
+from showkit.analysis.sweep import check_audio, measure_response
+from showkit.analysis.tubefit import fit_tube, variant
+from showkit.errors import InputError, MeasureError
+from showkit.physics.biasflow import jet_velocity_m_s
+from showkit.physics.family import check_reference, suggest_reference
+
 
 def analyse_recording(rig, recording, rec_rate, sweep, sweep_rate, where="recording", progress=None,
                       response=None) -> dict:
@@ -15,12 +25,6 @@ def analyse_recording(rig, recording, rec_rate, sweep, sweep_rate, where="record
     (:func:`showkit.analysis.sweep.measure_response`), so that a caller that draws it
     too deconvolves the recording once; None measures it here.
     """
-    from showkit.analysis.drivefit import drive_response_db
-    from showkit.analysis.resonances import find_resonances
-    from showkit.analysis.sweep import measure_response
-    from showkit.analysis.tubefit import fit_tube, variant
-    from showkit.errors import MeasureError
-
     resp = response if response is not None else \
         measure_response(recording, rec_rate, sweep, sweep_rate, where, progress=progress)
     f_hi = min(resp.band_hz[1] / 1.1, rig.model.plane_wave_limit_hz)
@@ -29,8 +33,6 @@ def analyse_recording(rig, recording, rec_rate, sweep, sweep_rate, where="record
     if not found:
         raise MeasureError("no resonances found in the recording", where,
                            "record at the cap with the sweep loud enough to hear the tube ring")
-    from showkit.physics.biasflow import jet_velocity_m_s
-
     jet = jet_velocity_m_s(rig.static_pa, rig.gas.density_kg_m3)
     fit = fit_tube(rig.model, [r.frequency_hz for r in found], [r.q for r in found], jet_m_s=jet)
     warnings += fit.warnings
@@ -59,8 +61,6 @@ def analyse_recording(rig, recording, rec_rate, sweep, sweep_rate, where="record
 
 def sine_amplitude(signal, rate: float, freq_hz: float) -> float:
     """Amplitude (zero to peak) of the component at ``freq_hz``, by a least-squares sine fit."""
-    import numpy as np
-
     x = np.asarray(signal, dtype=float)
     if x.ndim == 2:
         x = x[:, 0]
@@ -84,8 +84,6 @@ def _frame_amplitudes(x, rate: float, freq_hz: float):
 
     Frames are a whole number of periods where the rate allows, at least 4 periods and 50 ms.
     """
-    import numpy as np
-
     periods = max(4, int(np.ceil(0.05 * freq_hz)))
     n = max(8, int(round(periods * rate / freq_hz)))
     count = x.size // n
@@ -116,10 +114,6 @@ def steady_part(signal, rate: float, freq_hz: float, where: str = "recording",
         The steady part is shorter than :data:`STEADY_MIN_S` (or 20 periods), or
         less than :data:`STEADY_MIN_SHARE` of the "on" part is steady (the level wanders).
     """
-    import numpy as np
-
-    from showkit.errors import MeasureError
-
     x = np.asarray(signal, dtype=float)
     x = x[:, 0] if x.ndim == 2 else x
     amp, n = _frame_amplitudes(x, rate, freq_hz)
@@ -160,11 +154,6 @@ def calibrated_pressure(recording, calibrator, rate: float, cal_rate: float, fre
     silence or fades around a sine would otherwise read low, and a low calibration
     raises every ceiling.
     """
-    import numpy as np
-
-    from showkit.analysis.sweep import check_audio
-    from showkit.errors import MeasureError
-
     check_audio(calibrator, "calibrator", "calibrator recording")
     check_audio(recording, where)
     cal = np.asarray(calibrator, dtype=float)
@@ -180,3 +169,111 @@ def calibrated_pressure(recording, calibrator, rate: float, cal_rate: float, fre
     rec = rec[:, 0] if rec.ndim == 2 else rec
     a, b = steady_part(rec, rate, freq_hz, where)
     return sine_amplitude(rec[a:b], rate, freq_hz) * np.sqrt(2.0) / cal_amp
+
+
+# --------------------------------------------------------------- the level calibration
+# The steps of `showkit measure level`, here so the UI and scripts can call them too; the
+# command line only parses, plays and prints.
+
+REFERENCE_RATE_HZ = 48000
+REFERENCE_LENGTH_S = 10.0
+REFERENCE_RAMP_S = 0.05
+#: the part of a played 10 s reference sine read for the pressure, s (away from the fades)
+PLAYED_STEADY_S = (1.0, 9.0)
+SPL_REFERENCE_PA = 20e-6  # ISO 1683: sound pressure level re 20 uPa
+
+
+def reference_frequency(rig, asked_hz: float | None, where: str = "--frequency") -> tuple[float, str | None]:
+    """The calibration frequency, Hz, and a note when showkit picked it (else None).
+
+    ``asked_hz`` is taken if the tube's losses cannot move the cap reading there (else a
+    one-line refusal naming a frequency that will do); without it, the rig's own if
+    accepted, else the one :func:`showkit.physics.family.suggest_reference` picks.
+
+    Parameters
+    ----------
+    rig : Rig
+        The rig (its loss family and present calibration).
+    asked_hz : float or None
+        The frequency asked for, Hz.
+    where : str
+        Where it was asked (the option), for the error.
+    """
+    family = rig.loss_family
+    if asked_hz is not None:
+        if not asked_hz > 0:
+            raise InputError(f"{where} must be above zero", where, f"give e.g. {where} 1400")
+        check = check_reference(family, asked_hz)
+        if not check.ok:
+            fix = (f"use {where} {check.suggestion_hz:g}, or leave {where} out and showkit picks one"
+                   if check.suggestion_hz else "measure the tube first (showkit measure analyse)")
+            raise MeasureError(check.message(), where, fix)
+        return float(asked_hz), None
+    own = rig.drive.reference_frequency_hz
+    if check_reference(family, own).ok:
+        return own, None
+    picked = suggest_reference(family)
+    if picked is None:
+        raise MeasureError("no frequency below the plane-wave limit gives a cap reading the tube's losses "
+                           "cannot move", "measure level", "measure the tube first (showkit measure analyse)")
+    return picked, (f"calibrating at {picked:g} Hz, between modes: the rig's {own:g} Hz is where the tube's "
+                    "losses move the reading")
+
+
+def reference_sine(freq_hz: float, level_dbfs: float, rate_hz: int = REFERENCE_RATE_HZ,
+                   length_s: float = REFERENCE_LENGTH_S, ramp_s: float = REFERENCE_RAMP_S):
+    """The calibration sine: ``level_dbfs`` peak at ``freq_hz`` for ``length_s`` s, linear ramps of ``ramp_s`` s.
+
+    Parameters
+    ----------
+    freq_hz : float
+        Frequency, Hz.
+    level_dbfs : float
+        Peak level, dB re full scale.
+    rate_hz : int
+        Sample rate, Hz.
+    length_s, ramp_s : float
+        Length and fade-in/fade-out time, s.
+    """
+    t = np.arange(int(length_s * rate_hz)) / rate_hz
+    sine = 10 ** (level_dbfs / 20) * np.sin(2 * np.pi * freq_hz * t)
+    ramp = int(ramp_s * rate_hz)
+    sine[:ramp] *= np.linspace(0, 1, ramp)
+    sine[-ramp:] *= np.linspace(1, 0, ramp)
+    return sine
+
+
+def check_reference_sine(rig, sine, rate_hz: int, level_dbfs: float, where: str = "--level") -> float:
+    """The sine's headroom below its ceiling, dB; a MeasureError when it would take a hole below the line.
+
+    The sine must keep every hole above the reserve line, as any cue must
+    (:func:`showkit.analysis.pressure.signal_report`, on the rig's present calibration).
+    """
+    from showkit.analysis.pressure import signal_report
+
+    headroom = signal_report(rig, sine, rate_hz, flames=False).ceiling_db
+    if headroom < 0:
+        raise MeasureError(f"the reference sine at {level_dbfs:g} dBFS would take a hole below the safe line "
+                           f"(it must come down {-headroom:.1f} dB)", where,
+                           f"give --level {level_dbfs + headroom - 1:.0f} or lower")
+    return headroom
+
+
+def played_pressure(played, calibrator, rate_hz: float, cal_rate_hz: float, freq_hz: float) -> float:
+    """Pressure amplitude (Pa, zero to peak) of a played reference sine recorded at the cap.
+
+    Only :data:`PLAYED_STEADY_S` of the recording is read (away from the fades), then
+    :func:`calibrated_pressure` with the calibrator recording.
+    """
+    a, b = (int(s * rate_hz) for s in PLAYED_STEADY_S)
+    return calibrated_pressure(played[a:b], calibrator, rate_hz, cal_rate_hz, freq_hz, "live recording")
+
+
+def calibration_values(drive) -> dict:
+    """The ``[drive]`` reference values of a calibration, and the reading as SPL.
+
+    ``spl_db`` is the zero-to-peak pressure as a sine's rms re 20 uPa (ISO 1683).
+    """
+    p = drive.reference_pressure_pa
+    return {"reference_frequency": drive.reference_frequency_hz, "reference_level": drive.reference_level_dbfs,
+            "reference_pressure": p, "spl_db": 20 * np.log10(p / np.sqrt(2) / SPL_REFERENCE_PA)}

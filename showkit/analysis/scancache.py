@@ -3,9 +3,9 @@
 The key is the SHA-256 of the file's content, the rig's acoustic and
 calibration hashes, the static pressure and reserve, and
 ``showkit.ANALYSIS_VERSION``: a changed file, rig or analysis is never served
-from the cache.  The files live in ``platformdirs.user_cache_dir("showkit")``
-under ``scan/``; the environment variable ``SHOWKIT_CACHE_DIR`` replaces that
-folder (the tests use it).  Writes go to a temporary file, fsync'd and renamed,
+from the cache.  The files live under ``scan/`` in the user's cache folder
+(:func:`showkit.folders.cache_dir`: ``SHOWKIT_CACHE_DIR`` replaces the platform's
+folder; the tests use it).  Writes go to a temporary file, fsync'd and renamed,
 so a broken write never leaves a half file (:mod:`showkit.safesave`); an
 unreadable, oversized or wrongly shaped cache file is treated as missing.
 """
@@ -18,18 +18,16 @@ import os
 from pathlib import Path
 
 import showkit
-
-ENV_VAR = "SHOWKIT_CACHE_DIR"
+from showkit import folders
+from showkit.analysis import audio
+from showkit.errors import ShowkitError
+from showkit.fileio import read_json
+from showkit.safesave import write_bytes
 
 
 def cache_dir() -> Path:
-    """The folder of scan results (not created here)."""
-    override = os.environ.get(ENV_VAR)
-    if override:
-        return Path(override) / "scan"
-    import platformdirs
-
-    return Path(platformdirs.user_cache_dir("showkit")) / "scan"
+    """The folder of scan results, ``scan/`` in the user's cache folder (not created here)."""
+    return folders.cache_dir() / "scan"
 
 
 def content_key(path) -> str:
@@ -41,29 +39,23 @@ def content_key(path) -> str:
     hashed by :func:`showkit.analysis.audio.content_hash`, which accepts only a
     regular file within the audio size limit.
     """
-    from showkit.analysis.audio import content_hash
-    from showkit.fileio import read_json
-
     path = Path(path)
     try:
         st = os.stat(path)
         ident = json.dumps([str(path.resolve()), st.st_dev, st.st_ino, st.st_size, st.st_mtime_ns])
     except (OSError, RuntimeError):
-        return content_hash(path)  # says what is wrong in one line
+        return audio.content_hash(path)  # says what is wrong in one line
     memo = cache_dir() / "hashes" / (hashlib.sha256(ident.encode()).hexdigest()[:32] + ".json")
     known = read_json(memo)
     if isinstance(known, dict) and known.get("stat") == ident and isinstance(known.get("sha256"), str) \
             and len(known["sha256"]) == 64:
         return known["sha256"]
-    sha = content_hash(path)
+    sha = audio.content_hash(path)
     _store(memo, {"stat": ident, "sha256": sha})
     return sha
 
 
 def _store(path: Path, data: dict) -> None:
-    from showkit.errors import ShowkitError
-    from showkit.safesave import write_bytes
-
     try:
         path.parent.mkdir(parents=True, exist_ok=True)
         write_bytes(path, json.dumps(data).encode("utf-8"), backups=0, what="cache entry")
@@ -114,8 +106,6 @@ def load(key: str) -> dict | None:
     """The cached result, or ``None`` when there is none, or it cannot be read or is not
     the shape a scan writes (a damaged or foreign entry is ignored and the track analysed again).
     """
-    from showkit.fileio import read_json
-
     data = read_json(cache_dir() / f"{key}.json")
     if not isinstance(data, dict) or data.get("version") != showkit.ANALYSIS_VERSION:
         return None

@@ -35,6 +35,7 @@ from typing import Callable
 import numpy as np
 
 from showkit.errors import MeasureError
+from showkit.limits import MAX_CUE_SAMPLES, MAX_RATE_HZ, MIN_SWEEP_RATE_HZ
 
 #: Samples at or above this fraction of full scale count as clipped.
 CLIP_LEVEL = 0.999
@@ -95,8 +96,6 @@ class SweepSpec:
 
 def check_spec(spec: SweepSpec) -> None:
     """Raise :class:`MeasureError` for a sweep that cannot be made."""
-    from showkit.limits import MAX_CUE_SAMPLES, MAX_RATE_HZ, MIN_SWEEP_RATE_HZ
-
     rate = spec.sample_rate_hz
     if not MIN_SWEEP_RATE_HZ <= rate <= MAX_RATE_HZ:
         raise MeasureError(f"sample rate {rate:g} Hz is outside {MIN_SWEEP_RATE_HZ} to {MAX_RATE_HZ} Hz",
@@ -432,12 +431,39 @@ def measure_response(recording: np.ndarray, recording_rate_hz: float, sweep: np.
         Silence, clipping, another sample rate, too short, or not this sweep.
     """
     report = progress or (lambda fraction, text: None)
-    y = np.asarray(recording, dtype=float)
-    if y.ndim == 2:
-        y = y[:, 0]
-    x = np.asarray(sweep, dtype=float)
-    if x.ndim == 2:
-        x = x[:, 0]
+    y, x, fs = _checked_pair(recording, recording_rate_hz, sweep, sweep_rate_hz, where)
+    report(0.1, "finding the sweep in the recording")
+    band = sweep_band(x, fs)
+    pre = int(round(PRE_WINDOW_S * fs))
+    tail = int(round(max_ir_s * fs))
+    seg, start = _sweep_segment(y, x, fs, pre, tail, where)
+    report(0.3, "deconvolving")
+    ir_full = deconvolve(seg, x, fs, band)
+    peak = int(np.argmax(np.abs(ir_full[: pre + int(0.5 * fs)])))
+    avail_tail, noise, p_head, snr_db = _noise_and_snr(ir_full, x.size, fs, band, peak, pre, tail)
+    warnings = _check_match(ir_full, fs, band, peak, snr_db, where)
+    report(0.6, "windowing the impulse response")
+    ir, warning = _windowed_ir(ir_full, peak, pre, avail_tail, tail, p_head, snr_db)
+    warnings += warning
+    f, spec = _response_spectrum(ir, pre, fs)
+    keep = (f >= band[0]) & (f <= band[1])
+    noise_mag = noise_spectrum(noise, ir.size, fs, f[keep])
+    report(1.0, "response ready")
+    return MeasuredResponse(freq_hz=f[keep], response=spec[keep], impulse_response=ir,
+                            pre_samples=pre, sample_rate_hz=fs, delay_s=(start + peak) / fs,
+                            band_hz=band, snr_db=float(snr_db), noise=noise_mag, warnings=warnings)
+
+
+def _mono(signal) -> np.ndarray:
+    """Channel 0 of a recording, as float."""
+    x = np.asarray(signal, dtype=float)
+    return x[:, 0] if x.ndim == 2 else x
+
+
+def _checked_pair(recording, recording_rate_hz: float, sweep, sweep_rate_hz: float,
+                  where: str) -> tuple[np.ndarray, np.ndarray, float]:
+    """The recording and the sweep (mono), checked: same rate (Hz), usable audio, long enough."""
+    y, x = _mono(recording), _mono(sweep)
     if int(round(recording_rate_hz)) != int(round(sweep_rate_hz)):
         raise MeasureError(f"recorded at {recording_rate_hz:g} Hz but the sweep is at {sweep_rate_hz:g} Hz",
                            where, f"record at {sweep_rate_hz:g} Hz, or make the sweep at "
@@ -449,12 +475,18 @@ def measure_response(recording: np.ndarray, recording_rate_hz: float, sweep: np.
         raise MeasureError(f"the recording ({y.size / fs:.1f} s) is shorter than the sweep "
                            f"({x.size / fs:.1f} s)", where,
                            "record the whole sweep and a second or two of silence after it")
-    report(0.1, "finding the sweep in the recording")
-    band = sweep_band(x, fs)
+    return y, x, fs
+
+
+def _sweep_segment(y: np.ndarray, x: np.ndarray, fs: float, pre: int, tail: int,
+                   where: str) -> tuple[np.ndarray, int]:
+    """The part of the recording holding the sweep (``pre`` samples before, ``tail`` after), and its start.
+
+    The start may be negative (the recording began less than ``pre`` samples before the
+    sweep): the segment is then padded with zeros in front.
+    """
     lag = align(y, x)
-    pre = int(round(PRE_WINDOW_S * fs))
     start = lag - pre
-    tail = int(round(max_ir_s * fs))
     if start < -pre // 2:
         raise MeasureError("the sweep is not found whole in the recording: it starts after "
                            "the sweep had begun, or it was made with another sweep", where,
@@ -468,17 +500,21 @@ def measure_response(recording: np.ndarray, recording_rate_hz: float, sweep: np.
     seg = y[max(start, 0): min(y.size, lag + x.size + tail)]
     if start < 0:
         seg = np.concatenate([np.zeros(-start), seg])
-    report(0.3, "deconvolving")
-    ir_full = deconvolve(seg, x, fs, band)
+    return seg, start
+
+
+def _noise_and_snr(ir_full: np.ndarray, sweep_samples: int, fs: float, band: tuple[float, float],
+                   peak: int, pre: int, tail: int) -> tuple[int, np.ndarray, float, float]:
+    """The tail the window can keep (samples), a stretch of noise, the peak power and the impulse-to-noise ratio (dB).
+
+    Harmonic products of order k sit L ln k before the linear part (Farina 2000).
+    Noise is estimated just before the linear part, clear of the 2nd harmonic and
+    its ring-out: there the deconvolution has the recording's full overlap.
+    """
     n = ir_full.size
-    peak = int(np.argmax(np.abs(ir_full[: pre + int(0.5 * fs)])))
-    # harmonic products of order k sit L ln k before the linear part (Farina 2000).
-    # Noise is estimated just before the linear part, clear of the 2nd harmonic and
-    # its ring-out: there the deconvolution has the recording's full overlap.
-    big_l = (x.size / fs) / np.log(band[1] / band[0])
+    big_l = (sweep_samples / fs) / np.log(band[1] / band[0])
     second = int(round(big_l * np.log(2.0) * fs))
     avail_tail = min(tail, n - second - peak - pre)
-    warnings: list[str] = []
     noise_far = second - min(int(0.5 * fs), int(0.4 * second))
     noise_near = pre + int(0.05 * fs)
     if noise_far - noise_near >= int(0.05 * fs):
@@ -490,6 +526,12 @@ def measure_response(recording: np.ndarray, recording_rate_hz: float, sweep: np.
     p_head = float(np.max(head ** 2))
     p_noise = float(np.mean(noise ** 2)) if noise.size else 0.0
     snr_db = 10.0 * np.log10(p_head / p_noise) if p_noise > 0 else 200.0
+    return avail_tail, noise, p_head, snr_db
+
+
+def _check_match(ir_full: np.ndarray, fs: float, band: tuple[float, float], peak: int, snr_db: float,
+                 where: str) -> list[str]:
+    """Refuse a response drowned in noise or not made by this sweep; the warning for a noisy one."""
     if snr_db < MIN_SNR_DB:
         raise MeasureError(f"no clear response found (impulse-to-noise ratio {snr_db:.0f} dB): the "
                            "recording does not match this sweep, or the noise drowns it", where,
@@ -501,9 +543,16 @@ def measure_response(recording: np.ndarray, recording_rate_hz: float, sweep: np.
                            f"{spread:.2f} s off the sweep's timing)", where,
                            "give the sweep file that was played (--sweep): same range, length and rate")
     if snr_db < NOISY_SNR_DB:
-        warnings.append(f"noisy recording: impulse-to-noise ratio {snr_db:.0f} dB (aim for 40 dB or more); "
-                        "Q values may be off")
-    report(0.6, "windowing the impulse response")
+        return [f"noisy recording: impulse-to-noise ratio {snr_db:.0f} dB (aim for 40 dB or more); "
+                "Q values may be off"]
+    return []
+
+
+def _windowed_ir(ir_full: np.ndarray, peak: int, pre: int, avail_tail: int, tail: int, p_head: float,
+                 snr_db: float) -> tuple[np.ndarray, list[str]]:
+    """The linear impulse response from ``pre`` samples before its peak, faded in and out; a warning
+    when it had not died away within the window."""
+    n = ir_full.size
     ir = ir_full[peak - pre: peak + avail_tail].copy() if peak >= pre else np.concatenate(
         [ir_full[n - (pre - peak):], ir_full[: peak + avail_tail]])
     fade_in = np.sin(np.linspace(0.0, np.pi / 2.0, pre)) ** 2
@@ -513,20 +562,18 @@ def measure_response(recording: np.ndarray, recording_rate_hz: float, sweep: np.
     # how far the tail had decayed at the window's end
     end_rms = np.sqrt(np.mean(ir[-n_fade:] ** 2)) if n_fade > 1 else 0.0
     if end_rms > np.sqrt(p_head) * 10 ** (-40 / 20) and avail_tail < tail and snr_db > 45:
-        warnings.append("the response had not died away within the window: the sharpest "
-                        "resonances' Q may read low; use a longer sweep")
+        return ir, ["the response had not died away within the window: the sharpest "
+                    "resonances' Q may read low; use a longer sweep"]
+    return ir, []
+
+
+def _response_spectrum(ir: np.ndarray, pre: int, fs: float) -> tuple[np.ndarray, np.ndarray]:
+    """Frequencies (Hz) and complex response of the windowed impulse response, time zero at its peak."""
     n_resp = _next_fast(max(int(fs / RESPONSE_RESOLUTION_HZ), ir.size))
     buf = np.zeros(n_resp)
     buf[: ir.size - pre] = ir[pre:]
     buf[n_resp - pre:] = ir[:pre]
-    spec = np.fft.rfft(buf)
-    f = np.fft.rfftfreq(n_resp, 1.0 / fs)
-    keep = (f >= band[0]) & (f <= band[1])
-    noise_mag = noise_spectrum(noise, ir.size, fs, f[keep])
-    report(1.0, "response ready")
-    return MeasuredResponse(freq_hz=f[keep], response=spec[keep], impulse_response=ir,
-                            pre_samples=pre, sample_rate_hz=fs, delay_s=(start + peak) / fs,
-                            band_hz=band, snr_db=float(snr_db), noise=noise_mag, warnings=warnings)
+    return np.fft.rfftfreq(n_resp, 1.0 / fs), np.fft.rfft(buf)
 
 
 def noise_spectrum(noise: np.ndarray, window_samples: int, sample_rate_hz: float,

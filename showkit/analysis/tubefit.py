@@ -263,8 +263,6 @@ def fit_one(model: TubeModel, measured_hz, measured_q=None, cents_sigma: float =
     jet_m_s : float
         The orifice law's jet velocity at the rig's static pressure, m/s.
     """
-    from scipy.optimize import least_squares
-
     report = progress or (lambda fraction, text: None)
     flowing = loss == "flowing"
     if model.geometry.hole_count:
@@ -272,103 +270,25 @@ def fit_one(model: TubeModel, measured_hz, measured_q=None, cents_sigma: float =
                         flow_m_s=None if flowing else 0.0)
     f_meas = np.asarray(measured_hz, dtype=float)
     q_meas = None if measured_q is None else np.asarray(measured_q, dtype=float)
-    geo, gas = model.geometry, model.gas
-    has_holes = geo.hole_count > 0
-    ec0 = geo.end_correction_m / geo.hole_radius_m if has_holes else None
-    r_scale = gas.density_kg_m3 * gas.sound_speed_m_s / geo.hole_area_m2 if has_holes else 1.0
-    r0 = geo.hole_resistance_pa_s_m3
-    if flowing:  # the loss parameter is the jet velocity over the orifice law's
-        r_scale = 1.0
-        r0 = geo.hole_flow_m_s / jet_m_s if jet_m_s > 0 else 1.0
     report(0.05, "matching measured and modelled modes")
     guesses, scale0, warnings = match_modes(model, f_meas)
-    before_f, before_q = track_modes(model, guesses)
-    names = ["speed_scale"]
-    undetermined = []
-    if has_holes and fit_end_correction:
-        names.append("end_correction")
-    elif has_holes or fit_end_correction:
-        undetermined.append("end_correction")
+    before_f, _ = track_modes(model, guesses)
+    problem = _FitProblem.of(model, f_meas, q_meas, guesses, scale0, flowing, jet_m_s, cents_sigma, q_sigma)
     use_q = q_meas is not None and np.all(np.isfinite(q_meas))
-    if has_holes and fit_resistance and use_q:
-        names.append("resistance")
-    elif fit_resistance:
-        undetermined.append("resistance")
-
-    def unpack(p, active):
-        vals = {"speed_scale": scale0, "end_correction": ec0, "resistance": r0 / r_scale}
-        vals.update(dict(zip(active, p)))
-        return vals
-
-    def build(vals):
-        if flowing and has_holes:
-            return variant(model, vals["speed_scale"], vals["end_correction"],
-                           flow_m_s=vals["resistance"] * jet_m_s)
-        return variant(model, vals["speed_scale"], vals["end_correction"],
-                       vals["resistance"] * r_scale if has_holes else None)
-
-    def residuals(p, active):
-        vals = unpack(p, active)
-        f_mod, q_mod = track_modes(build(vals), guesses * vals["speed_scale"])
-        r = _cents(f_mod, f_meas) / cents_sigma
-        if "resistance" in active:
-            r = np.concatenate([r, np.log(q_mod / q_meas) / q_sigma])
-        return r
-
-    lower = {"speed_scale": 0.7, "end_correction": 0.0, "resistance": 0.0}
-    upper = {"speed_scale": 1.4, "end_correction": 5.0, "resistance": 3.0 if flowing else 1e3}
-    step = {"speed_scale": 1e-4, "end_correction": 1e-3, "resistance": 1e-3}
-    active = list(names)
-    for attempt in range(3):
-        report(0.2 + 0.25 * attempt, "fitting")
-        x0 = [unpack([], [])[n] for n in active]
-        x0 = [np.clip(v, lower[n] + 1e-9, upper[n] - 1e-9) for v, n in zip(x0, active)]
-        sol = least_squares(residuals, x0, args=(active,),
-                            bounds=([lower[n] for n in active], [upper[n] for n in active]),
-                            diff_step=[step[n] / max(abs(v), 1e-3) for n, v in zip(active, x0)],
-                            method="trf", x_scale=[SPANS[n] for n in active], max_nfev=60)
-        jac = sol.jac * np.array([SPANS[n] for n in active])[None, :]
-        sens = np.linalg.norm(jac, axis=0)
-        weak = [n for n, s in zip(active, sens) if s < 1.0 and n != "speed_scale"]
-        if not weak:
-            break
-        for n in weak:
-            active.remove(n)
-            undetermined.append(n)
+    names, undetermined = _free_parameters(problem.has_holes, fit_end_correction, fit_resistance, use_q)
+    sol, jac, active = _solve(problem, names, undetermined, report)
     sv = np.linalg.svd(jac, compute_uv=False) if jac.size else np.array([1.0])
     condition = float(sv[0] / sv[-1]) if sv[-1] > 0 else float("inf")
-    vals = unpack(sol.x, active)
-    fitted = build(vals)
-    f_after, q_after = track_modes(fitted, guesses * vals["speed_scale"])
-    for n in undetermined:
-        warnings.append({"end_correction": "the data cannot determine the hole end correction "
-                                           "(no holes, or no modes low enough to feel them): kept the rig's value",
-                         "resistance": "the data cannot determine the hole resistance (no holes, or "
-                                       "no measured Q that depends on it): kept the rig's value"}[n])
-    if condition > 1e4:
-        warnings.append(f"the fit is badly conditioned (condition number {condition:.0f}): the "
-                        "parameters trade off against each other; treat them with care")
+    vals = problem.unpack(sol.x, active)
+    f_after, q_after = track_modes(problem.build(vals), guesses * vals["speed_scale"])
     resid = _cents(f_after, f_meas)
-    if np.max(np.abs(resid)) > 20:
-        warnings.append(f"the fitted model still misses a mode by {np.max(np.abs(resid)):.0f} cents: "
-                        "check the rig's geometry (length, holes) or a spurious peak")
+    warnings += _fit_warnings(undetermined, condition, resid)
     report(1.0, "fit done")
-    # the loss parameter's standard error from the Jacobian (scaled by the reduced chi-square)
-    loss_range = None
-    if has_holes and "resistance" in active:
-        try:
-            cov = np.linalg.inv(sol.jac.T @ sol.jac)
-            dof = sol.fun.size - len(active)
-            chi2 = float(np.sum(sol.fun ** 2) / dof) if dof > 0 else 1.0
-            sigma = float(np.sqrt(cov[active.index("resistance")] [active.index("resistance")] * max(1.0, chi2)))
-            value = float(vals["resistance"])
-            if np.isfinite(sigma):
-                loss_range = (max(0.0, value - 2.0 * sigma) * r_scale, (value + 2.0 * sigma) * r_scale)
-        except np.linalg.LinAlgError:
-            loss_range = None
+    loss_range = _loss_range(sol, active, vals, problem.r_scale) if problem.has_holes else None
+    has_holes, r_scale = problem.has_holes, problem.r_scale
     loss_value = float(vals["resistance"]) if has_holes else 0.0
     return TubeFit(
-        sound_speed_m_s=float(gas.sound_speed_m_s * vals["speed_scale"]),
+        sound_speed_m_s=float(model.gas.sound_speed_m_s * vals["speed_scale"]),
         speed_scale=float(vals["speed_scale"]),
         end_correction=None if not has_holes else float(vals["end_correction"]),
         resistance_pa_s_m3=0.0 if (flowing or not has_holes) else loss_value * r_scale,
@@ -381,3 +301,142 @@ def fit_one(model: TubeModel, measured_hz, measured_q=None, cents_sigma: float =
         before_hz=before_f.tolist(), after_hz=f_after.tolist(), after_q=q_after.tolist(),
         residual_cents=resid.tolist(), before_cents=_cents(before_f, f_meas).tolist(),
         undetermined=sorted(set(undetermined)), condition=condition, warnings=warnings)
+
+
+#: the bounds and finite-difference steps of the fitted parameters (resistance: in units of
+#: rho c / hole area for the still holes; the jet velocity over the orifice law's when flowing)
+LOWER = {"speed_scale": 0.7, "end_correction": 0.0, "resistance": 0.0}
+UPPER = {"speed_scale": 1.4, "end_correction": 5.0}
+STEP = {"speed_scale": 1e-4, "end_correction": 1e-3, "resistance": 1e-3}
+
+
+@dataclass
+class _FitProblem:
+    """One hole model's least-squares problem: the start values, the model per parameter set, the residuals."""
+
+    model: TubeModel
+    f_meas: np.ndarray
+    q_meas: np.ndarray | None
+    guesses: np.ndarray
+    scale0: float
+    ec0: float | None
+    r0: float
+    r_scale: float
+    flowing: bool
+    jet_m_s: float
+    cents_sigma: float
+    q_sigma: float
+
+    @property
+    def has_holes(self) -> bool:
+        return self.model.geometry.hole_count > 0
+
+    @classmethod
+    def of(cls, model, f_meas, q_meas, guesses, scale0, flowing, jet_m_s, cents_sigma, q_sigma) -> _FitProblem:
+        geo, gas = model.geometry, model.gas
+        has_holes = geo.hole_count > 0
+        ec0 = geo.end_correction_m / geo.hole_radius_m if has_holes else None
+        r_scale = gas.density_kg_m3 * gas.sound_speed_m_s / geo.hole_area_m2 if has_holes else 1.0
+        r0 = geo.hole_resistance_pa_s_m3
+        if flowing:  # the loss parameter is the jet velocity over the orifice law's
+            r_scale = 1.0
+            r0 = geo.hole_flow_m_s / jet_m_s if jet_m_s > 0 else 1.0
+        return cls(model, f_meas, q_meas, guesses, scale0, ec0, r0, r_scale, flowing, jet_m_s,
+                   cents_sigma, q_sigma)
+
+    def unpack(self, p, active) -> dict:
+        vals = {"speed_scale": self.scale0, "end_correction": self.ec0, "resistance": self.r0 / self.r_scale}
+        vals.update(dict(zip(active, p)))
+        return vals
+
+    def build(self, vals) -> TubeModel:
+        if self.flowing and self.has_holes:
+            return variant(self.model, vals["speed_scale"], vals["end_correction"],
+                           flow_m_s=vals["resistance"] * self.jet_m_s)
+        return variant(self.model, vals["speed_scale"], vals["end_correction"],
+                       vals["resistance"] * self.r_scale if self.has_holes else None)
+
+    def residuals(self, p, active) -> np.ndarray:
+        vals = self.unpack(p, active)
+        f_mod, q_mod = track_modes(self.build(vals), self.guesses * vals["speed_scale"])
+        r = _cents(f_mod, self.f_meas) / self.cents_sigma
+        if "resistance" in active:
+            r = np.concatenate([r, np.log(q_mod / self.q_meas) / self.q_sigma])
+        return r
+
+
+def _free_parameters(has_holes: bool, fit_end_correction: bool, fit_resistance: bool,
+                     use_q: bool) -> tuple[list[str], list[str]]:
+    """The parameters to fit, and those asked for that the data cannot carry."""
+    names, undetermined = ["speed_scale"], []
+    if has_holes and fit_end_correction:
+        names.append("end_correction")
+    elif has_holes or fit_end_correction:
+        undetermined.append("end_correction")
+    if has_holes and fit_resistance and use_q:
+        names.append("resistance")
+    elif fit_resistance:
+        undetermined.append("resistance")
+    return names, undetermined
+
+
+def _solve(problem: _FitProblem, names: list[str], undetermined: list[str], report):
+    """Bounded least squares (trust-region reflective); a parameter the residuals hardly feel is
+    dropped (added to ``undetermined``) and the fit run again, three times at most."""
+    from scipy.optimize import least_squares
+
+    upper = dict(UPPER, resistance=3.0 if problem.flowing else 1e3)
+    active = list(names)
+    for attempt in range(3):
+        report(0.2 + 0.25 * attempt, "fitting")
+        x0 = [problem.unpack([], [])[n] for n in active]
+        x0 = [np.clip(v, LOWER[n] + 1e-9, upper[n] - 1e-9) for v, n in zip(x0, active)]
+        sol = least_squares(problem.residuals, x0, args=(active,),
+                            bounds=([LOWER[n] for n in active], [upper[n] for n in active]),
+                            diff_step=[STEP[n] / max(abs(v), 1e-3) for n, v in zip(active, x0)],
+                            method="trf", x_scale=[SPANS[n] for n in active], max_nfev=60)
+        jac = sol.jac * np.array([SPANS[n] for n in active])[None, :]
+        sens = np.linalg.norm(jac, axis=0)
+        weak = [n for n, s in zip(active, sens) if s < 1.0 and n != "speed_scale"]
+        if not weak:
+            break
+        for n in weak:
+            active.remove(n)
+            undetermined.append(n)
+    return sol, jac, active
+
+
+def _fit_warnings(undetermined: list[str], condition: float, resid_cents: np.ndarray) -> list[str]:
+    """What the fit could not determine, a bad conditioning, a mode still missed by over 20 cents."""
+    warnings = []
+    for n in undetermined:
+        warnings.append({"end_correction": "the data cannot determine the hole end correction "
+                                           "(no holes, or no modes low enough to feel them): kept the rig's value",
+                         "resistance": "the data cannot determine the hole resistance (no holes, or "
+                                       "no measured Q that depends on it): kept the rig's value"}[n])
+    if condition > 1e4:
+        warnings.append(f"the fit is badly conditioned (condition number {condition:.0f}): the "
+                        "parameters trade off against each other; treat them with care")
+    if np.max(np.abs(resid_cents)) > 20:
+        warnings.append(f"the fitted model still misses a mode by {np.max(np.abs(resid_cents)):.0f} cents: "
+                        "check the rig's geometry (length, holes) or a spurious peak")
+    return warnings
+
+
+def _loss_range(sol, active: list[str], vals: dict, r_scale: float) -> tuple[float, float] | None:
+    """The loss parameter +- 2 standard errors (from the Jacobian, scaled by the reduced chi-square),
+    in the parameter's own unit; None when it was not fitted."""
+    if "resistance" not in active:
+        return None
+    try:
+        cov = np.linalg.inv(sol.jac.T @ sol.jac)
+    except np.linalg.LinAlgError:
+        return None
+    dof = sol.fun.size - len(active)
+    chi2 = float(np.sum(sol.fun ** 2) / dof) if dof > 0 else 1.0
+    k = active.index("resistance")
+    sigma = float(np.sqrt(cov[k][k] * max(1.0, chi2)))
+    value = float(vals["resistance"])
+    if not np.isfinite(sigma):
+        return None
+    return max(0.0, value - 2.0 * sigma) * r_scale, (value + 2.0 * sigma) * r_scale

@@ -12,8 +12,11 @@ States and ceilings are those of `showkit check`; the text can be selected.
 from __future__ import annotations
 
 import argparse
+import sys
 
+from showkit import units
 from showkit.cli.common import add_conditions_options, level_caution
+from showkit.errors import InputError
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -26,18 +29,11 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def run(args) -> int:
-    import sys
-
-    from showkit import units
-    from showkit.errors import InputError
     from showkit.export.book import make_book
 
     static_pa = None
     if args.static is not None:
-        try:
-            static_pa = units.pressure_pa(float(args.static), "--static")
-        except ValueError:
-            static_pa = units.pressure_pa(args.static, "--static")
+        static_pa = units.pressure_pa(units.number_or_text(args.static), "--static")
         if not static_pa > 0:
             raise InputError("the static pressure must be above zero", "--static",
                              'give the manometer reading, e.g. --static "18 Pa"')

@@ -13,8 +13,10 @@ from __future__ import annotations
 import argparse
 import math
 
-from showkit.cli.common import (add_conditions_options, add_json_option, add_rig_option,
-                                level_caution, print_json)
+from showkit.cli.common import (add_conditions_options, add_json_option, add_rig_option, level_caution,
+                                load_rig_from_args, print_json, time_option)
+from showkit.printable import printable
+from showkit.units import format_time
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -27,12 +29,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def run(args) -> int:
-    from showkit.cli.common import time_option
     from showkit.analysis.pressure import passage_report
     from showkit.physics.ceiling import MAX_GAIN_DB
-    from showkit.cli.common import load_rig_from_args
-    from showkit.printable import printable
-    from showkit.units import format_time
 
     rig = load_rig_from_args(args)
     start, end = time_option(args.start, "--start"), time_option(args.end, "--end")

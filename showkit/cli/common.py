@@ -7,6 +7,8 @@ import json
 import math
 import sys
 
+from showkit import units
+from showkit.printable import printable
 from showkit.safety import LEVEL_CAUTION
 
 
@@ -56,12 +58,7 @@ def time_option(text, where: str):
     """A time option (``42``, ``"42.5 s"``, ``"0:42"``) in seconds, or None when not given."""
     if text is None:
         return None
-    from showkit import units
-
-    try:
-        return units.duration_s(float(text), where)
-    except ValueError:
-        return units.duration_s(text, where)
+    return units.duration_s(units.number_or_text(text), where)
 
 
 def clean_json(value):
@@ -93,8 +90,6 @@ def level_caution() -> None:
 
 def table(rows: list[list[str]], header: list[str], align: str | None = None) -> str:
     """A plain text table; ``align`` has one of ``<``/``>`` per column."""
-    from showkit.printable import printable
-
     rows = [[printable(c) for c in r] for r in rows]  # cells may quote a file: ids, labels, paths
     cols = len(header)
     align = align or "<" * cols

@@ -10,7 +10,8 @@ from __future__ import annotations
 
 import argparse
 
-from showkit.cli.common import add_json_option
+from showkit.cli.common import add_json_option, print_json, table
+from showkit.errors import DeviceError
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -18,8 +19,6 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def run(args) -> int:
-    from showkit.cli.common import print_json, table
-    from showkit.errors import DeviceError
     from showkit.show.devices import list_output_devices
 
     devices = list_output_devices()

@@ -14,14 +14,20 @@ calibration and model.  Levels are model estimates: start low.
 from __future__ import annotations
 
 import argparse
+import sys
+from pathlib import Path
 
-from showkit.cli.common import (add_conditions_options, add_json_option, add_rig_option,
-                                level_caution, print_json, table)
+# the work itself lives in the analysis and show layers (imported where used: they bring numpy,
+# and every command module is imported for `showkit --help`); this module parses, plays and prints
+from showkit.cli.common import (add_conditions_options, add_json_option, add_rig_option, level_caution,
+                                load_rig_from_args, print_json, table)
+from showkit.errors import InputError, MeasureError, RigError
 from showkit.printable import printable
+from showkit.show.playrec import play_record
 
-# the work itself lives in the analysis and show layers
-from showkit.analysis.measurement import analyse_recording, calibrated_pressure, sine_amplitude  # noqa: F401,E402
-from showkit.show.playrec import play_record  # noqa: F401,E402
+#: where each [drive] reference value of `measure level` comes from, for the errors
+LEVEL_WHERE = {"reference_frequency": "--frequency", "reference_level": "--level",
+               "reference_pressure": "--pressure"}
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -90,12 +96,6 @@ def run(args) -> int:
     return {"sweep": _run_sweep, "analyse": _run_analyse, "live": _run_live, "level": _run_level}[step](args)
 
 
-def _read(path: str, role: str):
-    from showkit.analysis.audio import read_whole
-
-    return read_whole(path, role)  # a regular file, size, rate and length checked
-
-
 def _protect(args) -> list:
     """Files a measurement reads, which its outputs must never replace."""
     from showkit.rigfile import demo_rig_path
@@ -110,8 +110,6 @@ def _protect(args) -> list:
 
 
 def _out_path(path: str, args, what: str):
-    from pathlib import Path
-
     from showkit.safesave import check_target
 
     return check_target(Path(path), _protect(args), what)
@@ -122,8 +120,6 @@ def _run_sweep(args) -> int:
 
     from showkit.analysis.drivefit import sweep_amplitude_bound
     from showkit.analysis.sweep import SweepSpec, check_spec, exponential_sweep
-    from showkit.cli.common import load_rig_from_args
-    from showkit.errors import MeasureError
     from showkit.safesave import write_audio
 
     rig = load_rig_from_args(args)
@@ -176,8 +172,6 @@ def _plot(report, rec, rec_rate, sweep, sweep_rate, args) -> None:
     """``--plot``: the measured response (the analysis's own) with the modes marked."""
     if not getattr(args, "plot", None):
         return
-    import sys
-
     from showkit.analysis.sweep import measure_response
     from showkit.export.figures import plot_response, response_level_db
 
@@ -187,7 +181,6 @@ def _plot(report, rec, rec_rate, sweep, sweep_rate, args) -> None:
 
 
 def _update(rig, report, args) -> None:
-    from showkit.errors import RigError
     from showkit.rigwrite import write_fit
 
     if not getattr(args, "rig", None):
@@ -200,9 +193,6 @@ def _update(rig, report, args) -> None:
 
 def _calibration_still_good(path) -> None:
     """After a fit: say so at once if the calibration point is no longer one the tube's losses cannot move."""
-    import sys
-
-    from showkit.errors import RigError
     from showkit.rigfile import load_rig
 
     try:
@@ -216,11 +206,12 @@ def _calibration_still_good(path) -> None:
 
 
 def _run_analyse(args) -> int:
-    from showkit.cli.common import load_rig_from_args
+    from showkit.analysis.audio import read_whole
+    from showkit.analysis.measurement import analyse_recording
 
     rig = load_rig_from_args(args)
-    rec, rec_rate = _read(args.recording, "recording")
-    sweep, sweep_rate = _read(args.sweep, "sweep")
+    rec, rec_rate = read_whole(args.recording, "recording")
+    sweep, sweep_rate = read_whole(args.sweep, "sweep")
     report = analyse_recording(rig, rec, rec_rate, sweep, sweep_rate, args.recording)
     _report(rig, report, args)
     _plot(report, rec, rec_rate, sweep, sweep_rate, args)
@@ -230,13 +221,14 @@ def _run_analyse(args) -> int:
 
 
 def _run_live(args) -> int:
-    from showkit.cli.common import load_rig_from_args
+    from showkit.analysis.audio import read_whole
+    from showkit.analysis.measurement import analyse_recording
     from showkit.safesave import write_audio
 
     rig = load_rig_from_args(args)
     if args.save:
         _out_path(args.save, args, "recording")
-    sweep, rate = _read(args.sweep, "sweep")
+    sweep, rate = read_whole(args.sweep, "sweep")
     level_caution()
     rec = play_record(sweep, int(rate), device=args.device)
     if args.save:
@@ -249,120 +241,106 @@ def _run_live(args) -> int:
     return 0
 
 
-def _reference_frequency(rig, asked: float | None) -> float:
-    """The calibration frequency: ``asked`` if the tube's losses cannot move the cap reading there
-    (else a one-line refusal naming the nearest mode and a frequency that will do); without it,
-    the rig's own if accepted, else the one showkit picks (:func:`showkit.physics.family.suggest_reference`)."""
-    import sys
+def _level_drive(rig, args):
+    """The new calibration's frequency and level through the one door (the reading comes later)."""
+    from showkit.analysis.measurement import reference_frequency
+    from showkit.conditions import make_calibration
 
-    from showkit.errors import InputError, MeasureError
-    from showkit.physics.family import check_reference, suggest_reference
+    freq, note = reference_frequency(rig, args.frequency)
+    if note:
+        print(note, file=sys.stderr)
+    # the sine's frequency and level are checked before it is made (the sine's own ceiling rests
+    # on the rig's present calibration, robust over the loss family: every member calibrated with
+    # that reading, so it holds wherever the reading was taken)
+    return make_calibration(reference_frequency=freq, reference_level=args.level,
+                            base=rig.drive, where=dict(LEVEL_WHERE), tube=rig.model)
 
-    family = rig.loss_family
-    if asked is not None:
-        if not asked > 0:
-            raise InputError("--frequency must be above zero", "--frequency", "give e.g. --frequency 1400")
-        check = check_reference(family, asked)
-        if not check.ok:
-            fix = (f"use --frequency {check.suggestion_hz:g}, or leave --frequency out and showkit picks one"
-                   if check.suggestion_hz else "measure the tube first (showkit measure analyse)")
-            raise MeasureError(check.message(), "--frequency", fix)
-        return float(asked)
-    own = rig.drive.reference_frequency_hz
-    if check_reference(family, own).ok:
-        return own
-    picked = suggest_reference(family)
-    if picked is None:
-        raise MeasureError("no frequency below the plane-wave limit gives a cap reading the tube's losses "
-                           "cannot move", "measure level", "measure the tube first (showkit measure analyse)")
-    print(f"calibrating at {picked:g} Hz, between modes: the rig's {own:g} Hz is where the tube's losses "
-          "move the reading", file=sys.stderr)
-    return picked
+
+def _write_sine(sine, drive, args) -> None:
+    """``--out``: the reference sine as a WAV file to play with any player."""
+    import numpy as np
+
+    from showkit.analysis.measurement import REFERENCE_RATE_HZ
+    from showkit.show.render import write_wav
+
+    _out_path(args.out, args, "reference sine")
+    write_wav(args.out, sine.astype(np.float32), REFERENCE_RATE_HZ, protect=_protect(args))
+    print(f"wrote {printable(args.out)}: {drive.reference_frequency_hz:g} Hz at {drive.reference_level_dbfs:g} "
+          "dBFS peak, 10 s; play it and read the cap pressure")
+
+
+def _play_sine(rig, sine, drive, args):
+    """``--play``: the sine (refused above its ceiling) played while the cap microphone records."""
+    from showkit.analysis.measurement import REFERENCE_RATE_HZ, check_reference_sine
+
+    freq, level = drive.reference_frequency_hz, drive.reference_level_dbfs
+    headroom = check_reference_sine(rig, sine, REFERENCE_RATE_HZ, level)
+    print(f"playing {freq:g} Hz at {level:g} dBFS for 10 s ({headroom:.1f} dB below its ceiling)...",
+          file=sys.stderr)
+    return play_record(sine, REFERENCE_RATE_HZ, tail_s=0.5, device=args.device)
+
+
+def _reading(args, played, freq_hz: float):
+    """The cap pressure (Pa, zero to peak, or text with a unit) from the options, or None without one."""
+    from showkit.analysis.audio import read_whole
+    from showkit.analysis.measurement import REFERENCE_RATE_HZ, calibrated_pressure, played_pressure
+
+    if args.pressure is not None:
+        return args.pressure
+    if played is not None and args.calibrator:
+        cal, cal_rate = read_whole(args.calibrator, "calibrator recording")
+        return played_pressure(played, cal, REFERENCE_RATE_HZ, cal_rate, freq_hz)
+    if args.recording and args.calibrator:
+        rec, rate = read_whole(args.recording, "recording")
+        cal, cal_rate = read_whole(args.calibrator, "calibrator recording")
+        return calibrated_pressure(rec, cal, rate, cal_rate, freq_hz, args.recording)
+    if not (args.out or args.play):
+        raise InputError("no reading given", "measure level",
+                         'give --pressure "5.8 Pa", or --recording and --calibrator, or --out to write '
+                         'the sine, or --play to play it')
+    return None
 
 
 def _run_level(args) -> int:
-    import numpy as np
-
-    from showkit.cli.common import load_rig_from_args
+    from showkit.analysis.measurement import calibration_values, reference_sine
     from showkit.conditions import make_calibration
-    from showkit.errors import InputError
-    from showkit.rigwrite import update_rig
 
     # the rig's own calibration may be the one being replaced: load it unchecked, check the new frequency
     rig = load_rig_from_args(args, check_calibration=False)
-    freq = _reference_frequency(rig, args.frequency)
-    where = {"reference_frequency": "--frequency", "reference_level": "--level",
-             "reference_pressure": "--pressure"}
-    # the one door for a calibration: the sine's frequency and level are checked before it is made
-    # (the sine's own ceiling below rests on the rig's present calibration, robust over the loss
-    # family: every member calibrated with that reading, so it holds wherever the reading was taken)
-    drive = make_calibration(reference_frequency=freq, reference_level=args.level,
-                             base=rig.drive, where=where, tube=rig.model)
-    freq, level = drive.reference_frequency_hz, drive.reference_level_dbfs
+    drive = _level_drive(rig, args)
     level_caution()
-    rate = 48000
-    t = np.arange(int(10 * rate)) / rate
-    sine = 10 ** (level / 20) * np.sin(2 * np.pi * freq * t)
-    ramp = int(0.05 * rate)
-    sine[:ramp] *= np.linspace(0, 1, ramp)
-    sine[-ramp:] *= np.linspace(1, 0, ramp)
+    sine = reference_sine(drive.reference_frequency_hz, drive.reference_level_dbfs)
     if args.out:
-        from showkit.show.render import write_wav
-
-        _out_path(args.out, args, "reference sine")
-        write_wav(args.out, sine.astype(np.float32), rate, protect=_protect(args))
-        print(f"wrote {printable(args.out)}: {freq:g} Hz at {level:g} dBFS peak, 10 s; play it and read the cap pressure")
-    played = None
-    if args.play:
-        from showkit.analysis.pressure import signal_report
-        from showkit.errors import MeasureError
-        from showkit.show.playrec import play_record
-
-        # the sine itself must keep every hole above the reserve line, as any cue must
-        headroom = signal_report(rig, sine, rate, flames=False).ceiling_db
-        if headroom < 0:
-            raise MeasureError(f"the reference sine at {level:g} dBFS would take a hole below the safe line "
-                               f"(it must come down {-headroom:.1f} dB)", "--level",
-                               f"give --level {level + headroom - 1:.0f} or lower")
-        import sys
-
-        print(f"playing {freq:g} Hz at {level:g} dBFS for 10 s ({headroom:.1f} dB below its ceiling)...",
-              file=sys.stderr)
-        played = play_record(sine, rate, tail_s=0.5, device=args.device)
-    if args.pressure is not None:
-        p = args.pressure
-    elif played is not None and args.calibrator:
-        cal, cal_rate = _read(args.calibrator, "calibrator recording")
-        steady = played[int(1.0 * rate):int(9.0 * rate)]  # away from the fades
-        p = calibrated_pressure(steady, cal, rate, cal_rate, freq, "live recording")
-    elif args.recording and args.calibrator:
-        rec, rate = _read(args.recording, "recording")
-        cal, cal_rate = _read(args.calibrator, "calibrator recording")
-        p = calibrated_pressure(rec, cal, rate, cal_rate, freq, args.recording)
-    else:
-        if not (args.out or args.play):
-            raise InputError("no reading given", "measure level",
-                             'give --pressure "5.8 Pa", or --recording and --calibrator, or --out to write '
-                             'the sine, or --play to play it')
+        _write_sine(sine, drive, args)
+    played = _play_sine(rig, sine, drive, args) if args.play else None
+    reading = _reading(args, played, drive.reference_frequency_hz)
+    if reading is None:
         return 0
     # the reading through the same door: finite and within the calibration limits
+    where = dict(LEVEL_WHERE)
     if args.pressure is None:
         where["reference_pressure"] = f"{args.recording or 'live recording'}: measured pressure"
-    drive = make_calibration(reference_pressure=p, base=drive, where=where, tube=rig.model)
-    p = drive.reference_pressure_pa
-    spl = 20 * np.log10(p / np.sqrt(2) / 20e-6)
-    result = {"reference_frequency": freq, "reference_level": level, "reference_pressure": p,
-              "spl_db": spl}
+    result = calibration_values(make_calibration(reference_pressure=reading, base=drive, where=where,
+                                                 tube=rig.model))
+    _print_calibration(result, args)
+    if args.update_rig:
+        _update_reference(result, args)
+    return 0
+
+
+def _print_calibration(result: dict, args) -> None:
     if args.json:
         print_json(result)
-    else:
-        print(f"calibration: {p:.3g} Pa at the cap (zero to peak; {spl:.1f} dB SPL) for {freq:g} Hz at "
-              f"{level:g} dBFS")
-    if args.update_rig:
-        from showkit.errors import RigError
-        if not args.rig:
-            raise RigError("--update-rig needs your own rig file", "--rig", "give --rig FILE")
-        backup = update_rig(args.rig, reference=result)
-        if not args.json:
-            print(f"updated {printable(args.rig)} (previous version kept as {printable(backup)})")
-    return 0
+        return
+    print(f"calibration: {result['reference_pressure']:.3g} Pa at the cap (zero to peak; {result['spl_db']:.1f} "
+          f"dB SPL) for {result['reference_frequency']:g} Hz at {result['reference_level']:g} dBFS")
+
+
+def _update_reference(result: dict, args) -> None:
+    from showkit.rigwrite import update_rig
+
+    if not args.rig:
+        raise RigError("--update-rig needs your own rig file", "--rig", "give --rig FILE")
+    backup = update_rig(args.rig, reference=result)
+    if not args.json:
+        print(f"updated {printable(args.rig)} (previous version kept as {printable(backup)})")

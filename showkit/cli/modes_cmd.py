@@ -10,8 +10,12 @@ levels.  A pattern needs about 4 holes per half-wavelength to be read.
 from __future__ import annotations
 
 import argparse
+import math
+import sys
 
-from showkit.cli.common import add_json_option, add_rig_option, print_json, table
+from showkit.cli.common import add_json_option, add_rig_option, load_rig_from_args, print_json, table
+from showkit.errors import InputError
+from showkit.printable import printable
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -46,12 +50,6 @@ def modes_report(rig, f_max_hz=None) -> dict:
 
 
 def run(args) -> int:
-    import math
-
-    from showkit.cli.common import load_rig_from_args
-    from showkit.errors import InputError
-    from showkit.printable import printable
-
     f_max = args.max_frequency
     if f_max is not None and not (math.isfinite(f_max) and f_max > 0):
         raise InputError(f"--max-frequency must be a frequency above 0 Hz (got {f_max})", "--max-frequency",
@@ -59,8 +57,6 @@ def run(args) -> int:
     rig = load_rig_from_args(args)
     report = modes_report(rig, f_max)
     if getattr(args, "plot", None):
-        import sys
-
         from showkit.export.figures import plot_modes
 
         print(f"wrote {plot_modes(rig, args.plot, f_max)}", file=sys.stderr)

@@ -14,6 +14,9 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
+from showkit.errors import InputError
+from showkit.folders import data_dir
+
 AUDIO_SUFFIXES = {".flac", ".wav", ".ogg", ".oga", ".aiff", ".aif", ".mp3"}
 
 
@@ -38,7 +41,6 @@ def default_args() -> argparse.Namespace:
 
 def build_app(args: argparse.Namespace):
     """The app for these arguments (raises ShowkitError for a bad path)."""
-    from showkit.errors import InputError
     from showkit.ui.app import ShowkitApp
     from showkit.ui.session import Session
 
@@ -52,9 +54,7 @@ def build_app(args: argparse.Namespace):
     elif path.suffix.lower() in AUDIO_SUFFIXES:
         if not path.is_file():
             raise InputError("no such audio file", str(path), "check the path")
-        from showkit.demo_files import data_folder
-
-        sheet = Path(args.sheet).expanduser() if args.sheet else data_folder() / "shows" / f"{path.stem}.toml"
+        sheet = Path(args.sheet).expanduser() if args.sheet else data_dir() / "shows" / f"{path.stem}.toml"
         session = Session.for_track(path, args.rig, sheet)
         track, view = path, view or "track"
     else:

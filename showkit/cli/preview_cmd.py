@@ -13,8 +13,13 @@ and says so on every frame.
 from __future__ import annotations
 
 import argparse
+import sys
+from pathlib import Path
 
-from showkit.cli.common import add_conditions_options, add_rig_option, level_caution
+from showkit import units
+from showkit.cli.common import (add_conditions_options, add_rig_option, level_caution, load_rig_from_args,
+                                time_option)
+from showkit.errors import InputError
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -31,8 +36,6 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def _size(text: str):
-    from showkit.errors import InputError
-
     try:
         w, h = (int(v) for v in str(text).lower().split("x"))
     except ValueError:
@@ -41,12 +44,6 @@ def _size(text: str):
 
 
 def run(args) -> int:
-    from showkit.cli.common import time_option
-    import sys
-    from pathlib import Path
-
-    from showkit.cli.common import load_rig_from_args
-    from showkit.errors import InputError
     from showkit.export.preview import (
         check_options,
         check_output,
@@ -68,12 +65,7 @@ def run(args) -> int:
         static = rig.static_pa if args.static is not None else None
         tl = sheet_timeline(src, static, args.reserve)
     else:
-        gain = None
-        if args.gain is not None:
-            try:
-                gain = float(str(args.gain).lower().removesuffix("db").strip())
-            except ValueError:
-                raise InputError(f"cannot read --gain {args.gain!r}", "--gain", "give dB, e.g. --gain -12") from None
+        gain = None if args.gain is None else units.gain_db(args.gain, "--gain", "give dB, e.g. --gain -12")
         tl = track_timeline(rig, src, time_option(args.start, "--start"), time_option(args.end, "--end"), gain)
     level_caution()
     result = write_video(tl, args.out, size, args.magnify)

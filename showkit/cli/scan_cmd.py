@@ -16,11 +16,16 @@ Exit status 0 if any file was scanned, 2 if none could be.
 from __future__ import annotations
 
 import argparse
+import io
+import json
 import sys
+from pathlib import Path
 
-from showkit.cli.common import (add_conditions_options, add_json_option, add_rig_option,
-                                level_caution, print_json, table)
+from showkit.cli.common import (add_conditions_options, add_json_option, add_rig_option, level_caution,
+                                load_rig_from_args, print_json, table)
+from showkit.errors import InputError, ShowkitError
 from showkit.printable import printable
+from showkit.units import format_time
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -56,8 +61,6 @@ class _Bar:
         if total <= 1:
             return
         fill = int(round(self.width * done / total))
-        from showkit.printable import printable
-
         path = printable(path)
         name = path if len(path) <= 40 else "..." + path[-37:]
         self.stream.write(f"\rscanning [{'#' * fill}{'.' * (self.width - fill)}] {done}/{total} {name:<40}")
@@ -84,8 +87,6 @@ def _shift_text(semitones) -> str:
 
 
 def _fmt(x: float) -> str:
-    from showkit.units import format_time
-
     return format_time(x)
 
 
@@ -95,8 +96,6 @@ def _modes_text(p: dict) -> str:
 
 
 def _print_table(tracks: list[dict]) -> None:
-    from showkit.printable import printable
-
     rows = []
     for rank, t in enumerate(tracks, 1):
         if t["error"]:
@@ -120,7 +119,6 @@ def _print_table(tracks: list[dict]) -> None:
 
 def _write_csv(path: str, tracks: list[dict], protect=()) -> None:
     import csv
-    import io
 
     from showkit.safesave import write_text
 
@@ -142,12 +140,8 @@ def _write_csv(path: str, tracks: list[dict], protect=()) -> None:
 
 
 def _previews(tracks: list[dict], semitones: float, protect=()) -> None:
-    from pathlib import Path
-
     from showkit.analysis.scan import best_passage
     from showkit.analysis.transpose import render_preview
-    from showkit.errors import ShowkitError
-    from showkit.printable import printable
 
     for t in tracks:
         p = best_passage(t) if not t["error"] else None
@@ -163,9 +157,6 @@ def _previews(tracks: list[dict], semitones: float, protect=()) -> None:
 
 def _write_map(rig, track: dict, target: str, protect=()) -> None:
     """Write the track's time x mode map (:func:`showkit.analysis.scan.map_data`) through the safe writer."""
-    import json
-    from pathlib import Path
-
     from showkit.analysis.scan import track_frames
     from showkit.safesave import write_text
 
@@ -178,8 +169,6 @@ def _write_map(rig, track: dict, target: str, protect=()) -> None:
 
 def run(args) -> int:
     from showkit.analysis.scan import expand_paths, scan_paths
-    from showkit.cli.common import load_rig_from_args
-    from showkit.errors import InputError
 
     if args.map is not None and len(expand_paths(args.paths)) != 1:
         raise InputError("--map writes the map of one track", " ".join(args.paths),
@@ -192,11 +181,9 @@ def run(args) -> int:
                          "--transpose", "give a shift such as --transpose -2 or --transpose 0.5")
     rig = load_rig_from_args(args)
     if args.csv:
-        from pathlib import Path
-
+        # before the work: a CSV over a track, a folder or a pipe is refused at once
         from showkit.safesave import check_target
 
-        # before the work: a CSV over a track, a folder or a pipe is refused at once
         check_target(Path(args.csv), [(p, "a file being scanned") for p in args.paths], "CSV file")
     bar = _Bar()
     try:

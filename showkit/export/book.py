@@ -22,16 +22,15 @@ from pathlib import Path
 import numpy as np
 
 from showkit.errors import InputError, ShowkitError
-from showkit.export.common import mode_map, paper_size, plotting
-from showkit.export.figures import (
-    WORST,
-    draw_deviation,
-    draw_flame_row,
-    draw_mode_map,
-    draw_mode_shape,
-    readable,
-)
+from showkit.export.common import mode_map, paper_size, plotting, save_figure
+from showkit.export.figures import (WORST, draw_deviation, draw_flame_row, draw_mode_map, draw_mode_shape,
+                                    readable)
+from showkit.physics.flames import FRAME_RATE_HZ
+from showkit.physics.modes import find_modes
+from showkit.safesave import replacing
 from showkit.safety import CAUTION_TITLE, CAUTIONS
+from showkit.show.sheet import AudioSource, describe_source, load_sheet
+from showkit.units import format_time
 
 #: What the ceiling guarantees and what it assumes (the README's *Ceilings and flames*).
 GUARANTEE = (
@@ -82,24 +81,8 @@ class BookData:
 
 
 def source_text(cue) -> str:
-    """The cue's kind and source in words."""
-    from showkit.show.sheet import AudioSource, GlideSource, PauseSource, ToneSource
-    from showkit.units import format_time
-
-    s = cue.source
-    if isinstance(s, AudioSource):
-        end = "the end" if s.end_s is None else format_time(s.end_s)
-        return f"audio {s.path}, {format_time(s.start_s)} to {end}"
-    if isinstance(s, ToneSource):
-        what = f"mode {s.mode}" if s.mode is not None else f"{s.frequency_hz:g} Hz"
-        return f"tone on {what}, {s.duration_s:g} s"
-    if isinstance(s, GlideSource):
-        a = f"mode {s.from_mode}" if s.from_mode is not None else f"{s.from_frequency_hz:g} Hz"
-        b = f"mode {s.to_mode}" if s.to_mode is not None else f"{s.to_frequency_hz:g} Hz"
-        return f"glide {a} to {b}, {s.duration_s:g} s"
-    if isinstance(s, PauseSource):
-        return f"pause (talk), {s.duration_s:g} s"
-    return s.kind
+    """The cue's kind and source in words (:func:`showkit.show.sheet.describe_source`)."""
+    return describe_source(cue.source)
 
 
 def cue_flames(sheet, rig, cue, check, signals=None):
@@ -123,10 +106,7 @@ def cue_flames(sheet, rig, cue, check, signals=None):
 def collect(sheet, rig, progress=None, maps: bool = True) -> BookData:
     """Everything the book shows, from the domain functions (slow: seconds per music cue)."""
     from showkit.analysis.pressure import frame_lag
-    from showkit.physics.flames import FRAME_RATE_HZ
-    from showkit.physics.modes import find_modes
     from showkit.show.lock import check_cue
-    from showkit.show.sheet import AudioSource
     from showkit.show.sources import SignalMemo
 
     entries = []
@@ -287,8 +267,6 @@ def running_order_pages(plt, data: BookData, size) -> list:
 
 
 def cue_page(plt, data: BookData, k: int, e: CueEntry, size):
-    from showkit.units import format_time
-
     fig = _page(plt, size)
     c, ch = e.cue, e.check
     title = f"Cue {k} of {len(data.entries)}: {c.id}" + (f" - {c.label}" if c.label else "")
@@ -385,8 +363,6 @@ def write_book(data: BookData, path, paper: str = "a4", png_dir=None) -> dict:
     """Write the book as one PDF (and every page as PNG into ``png_dir``); returns what was written."""
     from matplotlib.backends.backend_pdf import PdfPages
 
-    from showkit.safesave import replacing
-
     plt = plotting()
     size = paper_size(paper)
     path = Path(path)
@@ -409,8 +385,6 @@ def write_book(data: BookData, path, paper: str = "a4", png_dir=None) -> dict:
                 for fig in pages:
                     pdf.savefig(fig)
         if png_dir is not None:
-            from showkit.export.common import save_figure
-
             for k, (fig, name) in enumerate(zip(pages, names), 1):
                 pngs.append(save_figure(fig, png_dir / f"{k:02d}-{name}.png", dpi=110))
     except OSError as exc:
@@ -426,7 +400,6 @@ def make_book(sheet_path, out, paper: str = "a4", png_dir=None, static_pa: float
               reserve: float | None = None, progress=None) -> dict:
     """Read a sheet, check every cue for today's conditions, write its book."""
     from showkit.show.lock import sheet_rig
-    from showkit.show.sheet import load_sheet
 
     paper_size(paper)  # a bad paper name or folder fails before the slow work
     folder = Path(out).parent if str(Path(out).parent) else Path(".")

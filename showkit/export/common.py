@@ -13,6 +13,7 @@ from pathlib import Path
 import numpy as np
 
 from showkit.errors import InputError
+from showkit.safesave import replacing
 
 #: Paper sizes, inches (A4: ISO 216, 210 x 297 mm; US Letter: ANSI/ASME Y14.1, 8.5 x 11 in).
 PAPER_IN = {"a4": (210 / 25.4, 297 / 25.4), "letter": (8.5, 11.0)}
@@ -70,8 +71,6 @@ def paper_size(name: str) -> tuple[float, float]:
 
 def save_figure(fig, path, dpi: int = 100) -> Path:
     """Write a figure (PNG, PDF or SVG by the name's ending) via a temporary file and rename."""
-    from showkit.safesave import replacing
-
     path = Path(path)
     suffix = path.suffix.lower() or ".png"
     if suffix not in (".png", ".pdf", ".svg"):

@@ -13,7 +13,8 @@ from pathlib import Path
 
 import numpy as np
 
-from showkit.export.common import ModeMap, plotting, save_figure
+from showkit.export.common import ModeMap, mode_map, plotting, save_figure
+from showkit.physics.modes import find_modes
 
 #: Colours (named once, used everywhere): flames, air drawn in, the worst hole, passages.
 FLAME = "#e8871e"
@@ -217,15 +218,11 @@ def write_plot(fig, path, size_px: tuple[int, int] | None = None) -> Path:
 
 def plot_modes(rig, path, f_max_hz=None) -> Path:
     """``showkit modes --plot``: the figure of :func:`modes_figure` for the rig's modes."""
-    from showkit.physics.modes import find_modes
-
     return write_plot(modes_figure(rig, find_modes(rig.model, f_max_hz)), path)
 
 
 def plot_scan(rig, tracks: list, path, max_tracks: int = 6) -> Path:
     """``showkit scan --plot``: the map of each scanned track (the best ``max_tracks``)."""
-    from showkit.export.common import mode_map
-
     entries = [(t, mode_map(rig, t["path"])) for t in tracks if t.get("error") is None][:max_tracks]
     size = (PLOT_SIZE_IN[0], max(PLOT_SIZE_IN[1], 3.0 * len(entries)))
     return write_plot(scan_figure(entries, size), path)

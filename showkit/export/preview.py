@@ -33,7 +33,11 @@ from pathlib import Path
 import numpy as np
 
 from showkit.errors import InputError, ShowkitError
+from showkit.export.common import plotting
 from showkit.physics.flames import FRAME_RATE_HZ
+from showkit.safesave import replacing
+from showkit.show.sheet import load_sheet
+from showkit.units import format_time
 
 #: Video frames per second: one flame frame per video frame.
 FPS = int(FRAME_RATE_HZ)
@@ -68,8 +72,6 @@ class Glyphs:
 @lru_cache(maxsize=4)
 def glyphs(em_px: int) -> Glyphs:
     """Printable ASCII rendered once with matplotlib (DejaVu Sans Mono) at ``em_px`` pixels."""
-    from showkit.export.common import plotting
-
     plt = plotting()
     chars = [chr(c) for c in range(32, 127)]
     cell_h = int(math.ceil(1.25 * em_px))
@@ -211,7 +213,6 @@ def sheet_timeline(sheet_path, static_pa: float | None = None, reserve: float | 
     from showkit.show.lock import check_cue, sheet_rig
     from showkit.show.playlist import RenderedCue
     from showkit.show.render import SHOW_RATE_HZ, render_cue
-    from showkit.show.sheet import load_sheet
     from showkit.show.sources import SignalMemo
 
     sheet = load_sheet(sheet_path)
@@ -420,9 +421,8 @@ class Painter:
 
 
 def _clock(seconds: float) -> str:
-    tenths = int(math.floor(max(0.0, seconds) * 10 + 1e-6))
-    m, rest = divmod(tenths, 600)
-    return f"{m}:{rest // 10:02d}.{rest % 10}"
+    """The video's running clock, m:ss.s cut to the tenth (never below zero)."""
+    return format_time(max(0.0, seconds), round_down=True)
 
 
 # ---------------------------------------------------------------- writing
@@ -454,7 +454,6 @@ def write_video(tl: Timeline, out, size=DEFAULT_SIZE, magnify: float = 1.0, prog
     """Draw every frame and encode them with the sound; returns facts about the file."""
     import imageio_ffmpeg
 
-    from showkit.safesave import replacing
     from showkit.show.render import write_wav
 
     w, h = check_options(size, magnify)

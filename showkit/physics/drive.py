@@ -19,6 +19,7 @@ pressure amplitude ``reference_pressure_pa`` (zero to peak) at the rigid cap.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import lru_cache
 
 import numpy as np
 
@@ -106,11 +107,17 @@ def _minimum_phase(drive: DriveCalibration) -> tuple[np.ndarray, np.ndarray]:
     *Discrete-Time Signal Processing*, 3rd ed., section 13.8).  A measured
     magnitude paired with the model's phase is not a causal response, and its
     impulse response would never ring down; the minimum-phase one is causal.
+    Kept for the last few responses: it depends on the measured response and the
+    speaker model only, not on the calibration point.
     """
-    key = (drive.response_freq_hz, drive.response_db, drive.speaker_resonance_hz, drive.speaker_q)
-    hit = _PHASE_CACHE.get(key)
-    if hit is not None:
-        return hit
+    return _minimum_phase_of(DriveCalibration(speaker_resonance_hz=drive.speaker_resonance_hz,
+                                              speaker_q=drive.speaker_q,
+                                              response_freq_hz=drive.response_freq_hz,
+                                              response_db=drive.response_db))
+
+
+@lru_cache(maxsize=8)
+def _minimum_phase_of(drive: DriveCalibration) -> tuple[np.ndarray, np.ndarray]:
     n = 2 * (_MIN_PHASE_POINTS - 1)
     grid = np.linspace(0.0, _MIN_PHASE_TOP_HZ, _MIN_PHASE_POINTS)
     log_mag = _measured_db(np.maximum(grid, grid[1] / 4.0), drive) * (np.log(10.0) / 20.0)
@@ -120,12 +127,7 @@ def _minimum_phase(drive: DriveCalibration) -> tuple[np.ndarray, np.ndarray]:
     fold[1:n // 2] = 2.0 * cep[1:n // 2]
     fold[n // 2] = cep[n // 2]
     phase = np.unwrap(np.imag(np.fft.rfft(fold, n=n)))
-    _PHASE_CACHE.clear() if len(_PHASE_CACHE) > 8 else None
-    _PHASE_CACHE[key] = (grid, phase)
     return grid, phase
-
-
-_PHASE_CACHE: dict = {}
 
 
 def driver_shape(freq_hz, drive: DriveCalibration) -> np.ndarray:

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from showkit.errors import DeviceError
+
 
 def play_record(signal, rate: int, tail_s: float = 2.0, device=None, sd=None):
     """Play ``signal`` and record one channel at once (sounddevice ``playrec``).
@@ -25,7 +27,6 @@ def play_record(signal, rate: int, tail_s: float = 2.0, device=None, sd=None):
     """
     import numpy as np
 
-    from showkit.errors import DeviceError
     if sd is None:
         try:
             import sounddevice as sd

@@ -24,7 +24,8 @@ from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 from showkit import units
-from showkit.errors import InputError, SheetError
+from showkit.demo_files import demo_audio_path
+from showkit.errors import InputError, OutputError, SheetError
 from showkit.limits import MAX_CUES, MAX_GENERATED_S
 from showkit.physics.ceiling import combine
 from showkit.safesave import write_text
@@ -90,6 +91,38 @@ class PauseSource:
 
 
 Source = AudioSource | ToneSource | GlideSource | PauseSource
+
+
+def describe_source(source: Source, short: bool = False) -> str:
+    """A cue's source in words: the show book's line, or with ``short`` the cue list's.
+
+    Parameters
+    ----------
+    source : Source
+        The cue's source (times in s, frequencies in Hz).
+    short : bool
+        The cue list's form: the file's name only, frequencies rounded, no "audio"/"on".
+    """
+    def end(which_mode, which_hz, digits):
+        return f"mode {which_mode}" if which_mode is not None else f"{which_hz:{digits}} Hz"
+
+    s = source
+    if isinstance(s, AudioSource):
+        if short:
+            stop = "end" if s.end_s is None else units.format_time(s.end_s)
+            return f"{Path(s.path.removeprefix('demo:')).name} {units.format_time(s.start_s)}-{stop}"
+        stop = "the end" if s.end_s is None else units.format_time(s.end_s)
+        return f"audio {s.path}, {units.format_time(s.start_s)} to {stop}"
+    if isinstance(s, ToneSource):
+        what = end(s.mode, s.frequency_hz, ".1f" if short else "g")
+        return f"tone {what}, {s.duration_s:g} s" if short else f"tone on {what}, {s.duration_s:g} s"
+    if isinstance(s, GlideSource):
+        digits = ".0f" if short else "g"
+        a, b = end(s.from_mode, s.from_frequency_hz, digits), end(s.to_mode, s.to_frequency_hz, digits)
+        return f"glide {a} to {b}, {s.duration_s:g} s"
+    if isinstance(s, PauseSource):
+        return f"pause {s.duration_s:g} s" if short else f"pause (talk), {s.duration_s:g} s"
+    return s.kind
 
 
 @dataclass(frozen=True)
@@ -170,8 +203,6 @@ class Sheet:
     def audio_path(self, source: AudioSource) -> Path:
         """Where an audio source's file is (``demo:NAME`` is a bundled demo track)."""
         if source.path.startswith(DEMO_AUDIO_PREFIX):
-            from showkit.demo_files import demo_audio_path
-
             return demo_audio_path(source.path[len(DEMO_AUDIO_PREFIX):])
         p = Path(source.path).expanduser()
         return p if p.is_absolute() else self.folder / p
@@ -388,15 +419,7 @@ def _cue_from_data(raw, where: str, k: int) -> Cue:
                 ends[f"{side}_frequency_hz"] = (_freq(table[f"{side}_frequency"], f"{at}: glide.{side}_frequency")
                                                if has_freq else None)
             source = GlideSource(duration, **ends)
-    gain = raw.get("gain", 0.0)
-    if isinstance(gain, str):
-        text = gain.strip().lower().removesuffix("db").strip()
-        try:
-            gain = float(text)
-        except ValueError:
-            raise SheetError(f"cannot read gain {raw['gain']!r}", f"{at}: gain", "write gain = -12 (dB)") from None
-    if isinstance(gain, bool) or not isinstance(gain, (int, float)) or not math.isfinite(gain):
-        raise SheetError(f"gain must be a number of dB, got {gain!r}", f"{at}: gain", "write gain = -12")
+    gain = units.gain_db(raw.get("gain", 0.0), f"{at}: gain", "write gain = -12 (dB)", error=SheetError)
     then = raw.get("then", "wait")
     if then not in THEN_VALUES:
         raise SheetError(f"then must be \"wait\" or \"next\", got {then!r}", f"{at}: then",
@@ -739,8 +762,6 @@ def save_sheet(sheet: Sheet, path: str | Path | None = None, _before_rename=None
 
     Never over one of the sheet's own audio files or its rig file.
     """
-    from showkit.errors import OutputError
-
     target = Path(path) if path is not None else sheet.path
     if target is None:
         raise SheetError("the sheet has no file name yet", None, "save it with a path")

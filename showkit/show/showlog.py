@@ -17,8 +17,9 @@ whole and readable (:func:`read_log` also skips a torn last line, should the
 operating system ever leave one).  The log is written from the operator's
 thread, never from the audio callback.
 
-The default file is ``<user data dir>/logs/show-<YYYY-MM-DD>.jsonl``, with the
-user data directory from platformdirs (``~/.local/share/showkit`` on Linux).
+The default file is ``<user data folder>/logs/show-<YYYY-MM-DD>.jsonl``, with the
+user data folder from :func:`showkit.folders.data_dir` (``SHOWKIT_DATA_DIR`` when set,
+else ``~/.local/share/showkit`` on Linux).
 """
 
 from __future__ import annotations
@@ -31,6 +32,9 @@ import stat
 from pathlib import Path
 
 from showkit.errors import InputError, ShowkitError
+from showkit.fileio import open_log
+from showkit.folders import log_dir
+from showkit.safesave import check_target
 
 EVENTS = ("check", "start", "stop", "fade", "fader", "panic", "device_error")
 
@@ -40,11 +44,9 @@ class LogError(ShowkitError):
 
 
 def default_log_path(date: _dt.date | None = None) -> Path:
-    """The default log file for ``date`` (today when None) in the user's data directory."""
-    from platformdirs import user_data_dir
-
+    """The default log file for ``date`` (today when None) in the logs folder of the user's data folder."""
     date = date or _dt.date.today()
-    return Path(user_data_dir("showkit")) / "logs" / f"show-{date.isoformat()}.jsonl"
+    return log_dir() / f"show-{date.isoformat()}.jsonl"
 
 
 def now_iso() -> str:
@@ -92,8 +94,6 @@ class ShowLog:
     """
 
     def __init__(self, path: str | Path | None = None, protect=()):
-        from showkit.safesave import check_target
-
         self._fd = None
         self.path = Path(path) if path is not None else default_log_path()
         try:
@@ -155,8 +155,6 @@ def read_log(path: str | Path) -> list[dict]:
     The log is read through :func:`showkit.fileio.open_log`: a regular file of at
     most :data:`showkit.limits.LOG_MAX_BYTES`, or one :class:`LogError` line.
     """
-    from showkit.fileio import open_log
-
     records = []
     with open_log(path, LogError) as fh:
         for raw in fh:
