@@ -17,9 +17,6 @@ from showkit.errors import ShowkitError
 from showkit.folders import cache_dir, data_dir
 from showkit.safesave import write_bytes, write_text
 
-# the names this module used before showkit.folders (ui/safety.py still imports data_folder)
-cache_folder = cache_dir
-data_folder = data_dir
 
 
 def _repo_demo_audio() -> Path:

@@ -26,6 +26,7 @@ import sys
 import time
 
 from showkit.printable import printable
+from showkit.units import format_time
 
 POLL_S = 0.05
 
@@ -97,13 +98,6 @@ def _show_files(sheet_path) -> list:
         return [(sheet_path, "the cue sheet")]
 
 
-def _maybe_number(text: str):
-    try:
-        return float(text)
-    except ValueError:
-        return text
-
-
 def _is_tty(stream) -> bool:
     try:
         return stream.isatty()
@@ -121,7 +115,7 @@ def pre_show(args, log, static_pa, temperature_k, out):
     for line in problems:
         if not line.startswith("cue "):
             print(printable(line), file=out)
-    rows = [[str(k + 1), c.id, c.label[:32], _fmt_time(c.duration_s) if c.playable else "-",
+    rows = [[str(k + 1), c.id, c.label[:32], format_time(c.duration_s) if c.playable else "-",
              f"{c.gain_db:+.1f}", "-" if c.ceiling_db is None else f"{c.ceiling_db:+.1f}",
              c.then, c.status] for k, c in enumerate(cues)]
     print(table(rows, ["#", "cue", "label", "length", "gain dB", "ceiling dB", "then", "status"],
@@ -220,15 +214,9 @@ def _skip(engine, index: int, out) -> None:
                          + (f": {cue.message}" if cue.message else ""))
 
 
-def _fmt_time(seconds: float) -> str:
-    from showkit.units import format_time
-
-    return format_time(seconds)
-
-
 def _print_events(events, out) -> None:
     for ev in events:
-        when = "" if ev.show_time_s is None else f"[{_fmt_time(ev.show_time_s)}] "
+        when = "" if ev.show_time_s is None else f"[{format_time(ev.show_time_s)}] "
         cue = f" {printable(ev.cue)}" if ev.cue else ""
         detail = printable(ev.detail)
         print(f"\r\x1b[K{when}{ev.kind}{cue}: {detail}" if _is_tty(out)
@@ -240,8 +228,8 @@ def status_line(engine) -> str:
     st = engine.status()
     if st.cue_id is not None:
         cue = engine.cues[st.cue_index]
-        now = (f"NOW {st.cue_index + 1} {st.cue_id} '{cue.label[:24]}' {_fmt_time(st.elapsed_s)}"
-               f" (left {_fmt_time(st.left_s)})")
+        now = (f"NOW {st.cue_index + 1} {st.cue_id} '{cue.label[:24]}' {format_time(st.elapsed_s)}"
+               f" (left {format_time(st.left_s)})")
     else:
         now = "NOW -"
     nxt = f"NEXT {st.next_index + 1} {st.next_id}" if st.next_id is not None else "NEXT (end of show)"

@@ -366,20 +366,3 @@ def relative_to(path: Path, folder: Path) -> str:
 def _sound(cue: Cue):
     """What a lock depends on in a cue (the source and the fades)."""
     return (cue.source, cue.fade_in_s, cue.fade_out_s)
-
-
-def describe_source(cue: Cue) -> str:
-    """A short text for a cue's source (for a cue list)."""
-    s = cue.source
-    if isinstance(s, AudioSource):
-        name = s.path.removeprefix("demo:")
-        end = "end" if s.end_s is None else _clock(s.end_s)
-        return f"{Path(name).name} {_clock(s.start_s)}-{end}"
-    if isinstance(s, ToneSource):
-        what = f"mode {s.mode}" if s.mode is not None else f"{s.frequency_hz:.1f} Hz"
-        return f"tone {what}, {s.duration_s:g} s"
-    if isinstance(s, GlideSource):
-        a = f"mode {s.from_mode}" if s.from_mode is not None else f"{s.from_frequency_hz:.0f} Hz"
-        b = f"mode {s.to_mode}" if s.to_mode is not None else f"{s.to_frequency_hz:.0f} Hz"
-        return f"glide {a} to {b}, {s.duration_s:g} s"
-    return f"pause {s.duration_s:g} s"

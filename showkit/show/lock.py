@@ -21,7 +21,7 @@ from dataclasses import dataclass, replace
 from datetime import datetime, timezone
 
 from showkit import ANALYSIS_VERSION
-from showkit.errors import ShowkitError
+from showkit.errors import InputError, RigError, SheetError, ShowkitError
 from showkit.physics import ceiling as rule
 from showkit.physics.family import STATIC_SPAN
 from showkit.rigfile import Rig, load_rig
@@ -39,8 +39,6 @@ GAIN_STEP_DB = DB_STEP
 
 def sheet_rig(sheet: Sheet) -> Rig:
     """The rig a sheet names (relative to the sheet, or the demo rig)."""
-    from showkit.errors import RigError, SheetError
-
     try:
         return load_rig(sheet.rig_path())
     except RigError as exc:
@@ -90,8 +88,6 @@ def compute_lock(rig: Rig, signal: CueSignal) -> Lock:
     lock = rounded_lock(lock)  # as the sheet writes it (levels down to 0.01 dB): memory = file
     problem = lock_problem(lock)
     if problem:  # never write a number into a lock that is not finite and consistent
-        from showkit.errors import SheetError
-
         raise SheetError(f"the computed lock is not usable: {problem}", rig.name,
                          "check the rig file; nothing was locked")
     return lock
@@ -166,7 +162,6 @@ def lock_problem(lock: Lock) -> str | None:
     lower of its two limits, as :func:`showkit.physics.ceiling.combine` gives it.
     """
     from showkit.conditions import check_reserve, check_static_pa
-    from showkit.errors import InputError
 
     def bad(value, inf_ok=False):
         return (not isinstance(value, (int, float)) or isinstance(value, bool) or math.isnan(value)

@@ -27,7 +27,7 @@ from typing import Callable
 
 import numpy as np
 
-from showkit.errors import InputError
+from showkit.errors import InputError, ShowkitError
 from showkit.show.sheet import THEN_VALUES  # one definition: the sheet's
 from showkit.show.status import CueStatus
 
@@ -192,8 +192,6 @@ def _verified_at_rate(cue: RenderedCue, out: np.ndarray, rate_hz: int) -> Render
     the ceiling, they are brought down to it (never up) and the cue says so; a
     cue that cannot be verified cannot be started.
     """
-    from showkit.errors import ShowkitError
-
     try:
         room_db = float(cue.verify_at(out, rate_hz))
         if not math.isfinite(room_db):

@@ -12,6 +12,8 @@ and by every view of the terminal UI.
 
 from __future__ import annotations
 
+from showkit.errors import ShowkitError
+
 #: A gas temperature within this of the rig file's is the rig file's, K (the
 #: dialogs and the screen show temperatures to 0.1 C).
 SAME_TEMPERATURE_K = 0.05
@@ -57,7 +59,6 @@ def cue_for_today(sheet, file_rig, today_rig, cue, signal=None, signals=None):
     """
     from dataclasses import replace
 
-    from showkit.errors import ShowkitError
     from showkit.show.lock import CueCheck, check_cue, lock_cue
     from showkit.show.sources import SignalMemo
     from showkit.show.status import CueStatus

@@ -20,7 +20,7 @@ from pathlib import Path
 
 import numpy as np
 
-from showkit.errors import SheetError
+from showkit.errors import OutputError, SheetError, ShowkitError
 from showkit.rigfile import Rig
 from showkit.show.lock import check_cue, sheet_rig
 from showkit.show.playlist import RenderedCue
@@ -216,7 +216,6 @@ def write_per_cue(cues, folder: Path, subtype: str = "FLOAT", protect=()) -> tup
     file is written to a temporary file first; they are all renamed into place
     only once every cue has been rendered and verified.
     """
-    from showkit.errors import OutputError
     from showkit.safesave import audio_writer
 
     folder = Path(folder)
@@ -276,7 +275,6 @@ def render_for_playback(sheet_path, static_pa: float | None = None,
         One line per cue that does not fit or could not be rendered, and what
         the pre-show check used.
     """
-    from showkit.errors import ShowkitError
     from showkit.limits import MAX_SHOW_SAMPLES
     from showkit.show.preshow import cue_for_today
     from showkit.show.sheet import load_sheet

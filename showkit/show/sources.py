@@ -25,7 +25,7 @@ from functools import lru_cache
 
 import numpy as np
 
-from showkit.errors import SheetError
+from showkit.errors import AudioError, SheetError
 from showkit.limits import MAX_GENERATED_S
 from showkit.rigfile import Rig
 from showkit.show.sheet import AudioSource, Cue, GlideSource, PauseSource, Sheet, ToneSource
@@ -123,8 +123,6 @@ def _hash(samples: np.ndarray, rate_hz: int) -> str:
 def cue_signal(sheet: Sheet, rig: Rig, cue: Cue) -> CueSignal:
     """The cue's sound at unit gain, with its fades, ready to lock or render."""
     from showkit.analysis.audio import load_audio
-    from showkit.errors import AudioError
-
     where = f"{sheet.path or 'sheet'}: cue {cue.id}"
     s = cue.source
     f1 = f2 = None

@@ -12,15 +12,14 @@ from textual.widgets import Static
 
 from showkit.errors import ShowkitError
 from showkit.safesave import write_text
+from showkit.folders import data_dir
 from showkit.safety import CAUTION_TITLE, CAUTIONS, LEVEL_CAUTION
 
 MARKER = "cautions-read"
 
 
 def marker_path() -> Path:
-    from showkit.demo_files import data_folder
-
-    return data_folder() / MARKER
+    return data_dir() / MARKER
 
 
 def cautions_seen() -> bool:

@@ -12,7 +12,8 @@ from showkit import units
 from showkit.errors import ShowkitError
 from showkit.printable import printable
 from showkit.safety import LEVEL_CAUTION
-from showkit.show.editing import GAIN_STEP_DB, describe_source
+from showkit.show.editing import GAIN_STEP_DB
+from showkit.show.sheet import describe_source
 from showkit.ui.drawing import headroom_bar
 from showkit.ui.messages import CueAdded, LockRequested
 from showkit.ui.viewbase import SessionView
@@ -89,7 +90,7 @@ class ShowView(SessionView):
             state = Text(STATUS_MARK[status], style="bold reverse" if status in ("over", "error") else
                          ("italic" if status == "stale" else ""))
             table.add_row(str(k), Text(printable(cue.id)), f"{cue.gain_db:+.1f}", ceiling, headroom_bar(head),
-                          state, cue.then, Text(printable(cue.label)), Text(printable(describe_source(cue))),
+                          state, cue.then, Text(printable(cue.label)), Text(printable(describe_source(cue.source, short=True))),
                           key=cue.id)
         if keep is not None and keep in [c.id for c in sheet.cues]:
             table.move_cursor(row=sheet.index(keep))
@@ -152,10 +153,7 @@ class ShowView(SessionView):
             if not values:
                 return
             try:
-                change = self.session.set_gain(cid, float(values["gain"].lower().removesuffix("db").strip()))
-            except ValueError:
-                self.say(f"cannot read {values['gain']!r} as a gain in dB", warn=True)
-                return
+                change = self.session.set_gain(cid, units.gain_db(values["gain"], "gain"))
             except ShowkitError as exc:
                 self.say(exc.line(), warn=True)
                 return
@@ -297,8 +295,4 @@ def _typed(value: str, before: str) -> str:
 
 
 def _seconds(text: str) -> float:
-    t = text.strip()
-    try:
-        return float(t)
-    except ValueError:
-        return units.duration_s(t, "duration")
+    return units.duration_s(units.number_or_text(text.strip()), "duration")
