@@ -453,14 +453,17 @@ def envelope_range(filters: HoleFilters, signal: np.ndarray, ring_out: bool = Tr
     ceilings** (those use :func:`simulate`).  The same filters and frames as
     ``simulate(filters, signal, ring_out=ring_out).envelope`` reduced to
     ``[min over holes, max over holes]``, at half the cost: the analytic
-    pressure holds no negative frequencies, so its even samples are the
-    inverse FFT of half the size of the spectrum's first half (the Nyquist bin
-    folded onto DC), exactly (Lyons, *Understanding Digital Signal
-    Processing*, 3rd ed., section 8.3, complex down-sampling); the frame
-    maximum is then taken over every second sample, so a crest that falls
-    between them can read slightly low (measured on music: within a few
-    tenths of a dB).  Only the two reduced columns are kept, so the memory is
-    that of two numbers per frame whatever the number of holes.
+    pressure holds no negative frequencies (its spectrum fills at most half
+    the circle), so down-sampling it by two aliases nothing and its even
+    samples are exactly the inverse FFT, half as long, of the first half of
+    its spectrum with the Nyquist bin folded onto DC (Oppenheim & Schafer,
+    *Discrete-Time Signal Processing*, ch. 4, down-sampling).  The frame
+    maximum is then taken over every second sample only, so it can read low
+    where the envelope peaks between them: on the real-music test set the
+    passages' largest swing read up to 0.3 dB low (so the scan's ceiling up
+    to 0.3 dB high), single frames up to a few dB (median 0.003 dB for the
+    largest hole, 0.13 dB for the least).  Only the two reduced columns are
+    kept: two numbers per frame whatever the number of holes.
 
     Parameters
     ----------

@@ -1,4 +1,4 @@
-"""Speed of the track scan (run by hand: python tests/benchmarks/bench_scan.py [--real-only]).
+"""Speed of the track scan (run by hand: python tests/benchmarks/bench_scan.py [--real-only] [--corpus DIR]).
 
 Targets (issue 4): a 4-minute track scanned in a warm process in under 4 s, and
 its ratio to decoding plus resampling alone (aim: under 5x); a cached re-scan
@@ -52,7 +52,9 @@ def real_music_comparison() -> None:
 
     tmp = Path(tempfile.mkdtemp(prefix="showkit-bench-real-"))
     os.environ["SHOWKIT_CACHE_DIR"] = str(tmp / "cache")
-    corpus = rm.build(os.path.join(tempfile.gettempdir(), "showkit-realmusic"))
+    where = sys.argv[sys.argv.index("--corpus") + 1] if "--corpus" in sys.argv else \
+        os.path.join(tempfile.gettempdir(), "showkit-realmusic")
+    corpus = rm.build(where)  # rendered once (or read from --corpus DIR)
     names = [n for n in corpus.tracks if n != "medley" and "_level" not in n]
     need, parts, have, k = 240 * rm.RATE_HZ, [], 0, 0
     while have < need:
