@@ -30,7 +30,7 @@ from showkit.analysis.segments import passages as find_passages
 from showkit.analysis import transpose
 from showkit.errors import AudioError, ShowkitError
 from showkit.physics.flames import FRAME_RATE_HZ
-from showkit.physics.response import simulate
+from showkit.physics.response import envelope_range
 from showkit.rigfile import Rig
 
 #: File name endings a folder scan picks up (what libsndfile reads, and common others).
@@ -50,8 +50,14 @@ def mode_table(rig: Rig) -> ModeTable:
     return _table(rig.acoustic_hash(), rig)
 
 
-def _decode(path: Path, rate_hz: int, native_rate_hz: int) -> tuple[np.ndarray, np.ndarray]:
-    """Mono samples at ``rate_hz`` and the digital peak of every flame frame at the file's rate."""
+def _decode(path: Path, rate_hz: int, native_rate_hz: int, native_frames: int = 0
+            ) -> tuple[np.ndarray, np.ndarray]:
+    """Mono samples at ``rate_hz`` (float32) and the digital peak of every flame frame at the file's rate.
+
+    The samples are written into one array sized from ``native_frames`` (the
+    file's length at its own rate), grown if the resampler gives more, so the
+    track is never held twice.
+    """
     frame = max(1, int(round(native_rate_hz / FRAME_RATE_HZ)))
     peaks: list[np.ndarray] = []
     carry = [np.zeros(0)]
@@ -63,11 +69,16 @@ def _decode(path: Path, rate_hz: int, native_rate_hz: int) -> tuple[np.ndarray, 
             peaks.append(data[:whole * frame].reshape(whole, frame).max(axis=1))
         carry[0] = data[whole * frame:]
 
-    blocks = [b.astype(np.float32) for b in read_blocks(path, rate_hz, on_native=on_native)]
+    x = np.empty(int(native_frames * rate_hz / max(native_rate_hz, 1)) + 64, dtype=np.float32)
+    n = 0
+    for b in read_blocks(path, rate_hz, on_native=on_native):
+        if n + b.size > x.size:
+            x = np.concatenate([x[:n], np.empty(max(b.size, x.size // 8), dtype=np.float32)])
+        x[n:n + b.size] = b
+        n += b.size
     if carry[0].size:
         peaks.append(np.array([carry[0].max()]))
-    x = np.concatenate(blocks) if blocks else np.zeros(0, np.float32)
-    return x, (np.concatenate(peaks) if peaks else np.zeros(0))
+    return x[:n].copy() if n < x.size // 2 else x[:n], (np.concatenate(peaks) if peaks else np.zeros(0))
 
 
 def _note(table: ModeTable, n: int) -> str:
@@ -82,7 +93,7 @@ class _Work:
     duration_s: float
     table: ModeTable
     features: object
-    envelope: np.ndarray
+    envelope: np.ndarray  # (frames, 2): least and largest envelope over the holes, Pa (envelope_range)
     native_peaks: np.ndarray
     spans_s: list
     beats: np.ndarray
@@ -129,15 +140,17 @@ def _analyse_now(rig: Rig, path: Path, threads: int | None) -> _Work:
                          f"piece ({MAX_SCAN_S / 60:.0f} min, about 1.5 GB of analysis)", str(path),
                          "`showkit ceiling` streams any length; to scan it, cut it into parts")
     filters = hole_filters(rig)
-    x, native_peaks = _decode(path, filters.rate_hz, info.rate_hz)
+    x, native_peaks = _decode(path, filters.rate_hz, info.rate_hz, info.frames)
     hop = filters.frame_samples
     features = track_features(x, filters.rate_hz, hop, filters.band_hz)
-    envelope = simulate(filters, x, workers=threads).envelope
+    # the scan's display and score read the least and largest envelope over the holes per frame
+    # (envelope_range: half the work of simulate(), an approximation never used for ceilings)
+    envelope = envelope_range(filters, x, workers=threads)
     del x
     lag = int(round(filters.delay / hop))  # the responses are delayed by `delay` samples
     envelope = envelope[lag:]
     spans_s, beats = find_passages(features, info.duration_s)
-    pressure = envelope.max(axis=1) if envelope.size else np.zeros(0)
+    pressure = envelope[:, 1] if envelope.size else np.zeros(0)
     gate = frame_gate(features, pressure)
     return _Work(path, info.duration_s, mode_table(rig), features, envelope, native_peaks,
                  spans_s, beats, gate)
