@@ -338,8 +338,11 @@ def passage_level(envelope_pa: np.ndarray, peak: float, static_pa: float, reserv
 
     Parameters
     ----------
-    envelope_pa : ndarray, shape (frames, holes)
-        Largest analytic-envelope pressure per frame and hole at unit gain, Pa.
+    envelope_pa : ndarray, shape (frames, k)
+        Analytic-envelope pressure per frame at unit gain, Pa: one column per hole, or
+        the scan's two columns (least and largest over the holes,
+        :func:`showkit.physics.response.envelope_range`); only each frame's least and
+        largest value are read, so both give the same result.
     peak : float
         Digital peak of the passage as recorded (1.0 = full scale).
     static_pa : float
