@@ -150,3 +150,41 @@ def test_cue_page_flames_are_the_models_at_the_locked_worst_moment(book):
     np.testing.assert_array_equal(by_id["loud"].air_in, over.air_in[k])
     np.testing.assert_array_equal(by_id["loud"].height, over.height[k])
     assert by_id["loud"].air_in is not None and by_id["loud"].air_in.max() > 0
+
+
+@pytest.mark.parametrize("static, reserve, expect", [
+    (None, "0.3", (None, 0.3)),            # text from the command line reaches the book as a number
+    ("0.08 inH2O", None, (19.927, None)),  # 0.08 x 249.089 Pa (conventional inch of water, NIST SP 811)
+])
+def test_book_reads_static_and_reserve_through_the_conditions_door(book, monkeypatch, tmp_path, static,
+                                                                   reserve, expect):
+    """--static/--reserve are parsed and checked as check and run read them (before: --reserve 0.3
+    raised a TypeError traceback)."""
+    import showkit.export.book as book_mod
+
+    seen = {}
+
+    def fake_make_book(sheet, out, paper, png, static_pa, reserve_):
+        seen["args"] = (static_pa, reserve_)
+        return {"pdf": str(out), "pages": 1, "png": [], "states": {}}
+
+    monkeypatch.setattr(book_mod, "make_book", fake_make_book)
+    sheet = book[0]
+    argv = ["book", str(sheet), "-o", str(tmp_path / "b.pdf")]
+    argv += ["--static", static] if static else []
+    argv += ["--reserve", reserve] if reserve else []
+    assert main(argv) == 0
+    got = seen["args"]
+    assert (got[0] is None) == (expect[0] is None) and (got[1] is None) == (expect[1] is None)
+    if expect[0] is not None:
+        assert got[0] == pytest.approx(expect[0], abs=0.001)
+    if expect[1] is not None:
+        assert isinstance(got[1], float) and got[1] == pytest.approx(expect[1])
+
+
+@pytest.mark.parametrize("option, value", [("--reserve", "2"), ("--reserve", "nan"), ("--static", "9000 Pa")])
+def test_book_refuses_conditions_outside_the_limits(book, tmp_path, capsys, option, value):
+    assert main(["book", str(book[0]), "-o", str(tmp_path / "b.pdf"), option, value]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and option in err[0]
+    assert not (tmp_path / "b.pdf").exists()

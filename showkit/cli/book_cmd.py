@@ -14,9 +14,7 @@ from __future__ import annotations
 import argparse
 import sys
 
-from showkit import units
-from showkit.cli.common import add_conditions_options, level_caution
-from showkit.errors import InputError
+from showkit.cli.common import add_conditions_options, conditions_from_args, level_caution
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -30,17 +28,14 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 def run(args) -> int:
     from showkit.export.book import make_book
+    from showkit.show.lock import sheet_rig
+    from showkit.show.sheet import load_sheet
 
-    static_pa = None
-    if args.static is not None:
-        static_pa = units.pressure_pa(units.number_or_text(args.static), "--static")
-        if not static_pa > 0:
-            raise InputError("the static pressure must be above zero", "--static",
-                             'give the manometer reading, e.g. --static "18 Pa"')
-    if args.reserve is not None and not 0.0 <= args.reserve <= 0.9:
-        raise InputError(f"reserve must be within 0 and 0.9 (got {args.reserve:g})", "--reserve",
-                         "give a fraction such as 0.25")
-    result = make_book(args.sheet, args.out, args.paper, args.png, static_pa, args.reserve)
+    # --static/--reserve through the one door, over the sheet's rig (as check and run read them)
+    today = conditions_from_args(args, sheet_rig(load_sheet(args.sheet)).conditions)
+    static_pa = today.static_pa if args.static is not None else None
+    reserve = today.reserve if args.reserve is not None else None
+    result = make_book(args.sheet, args.out, args.paper, args.png, static_pa, reserve)
     level_caution()
     bad = {k: v for k, v in result["states"].items() if v != "ok"}
     print(f"wrote {result['pdf']}: {result['pages']} pages ({args.paper})")

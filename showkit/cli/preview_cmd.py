@@ -63,7 +63,8 @@ def run(args) -> int:
                 raise InputError(f"--{opt} is for a track preview", f"--{opt}",
                                  "a sheet plays every cue at its own locked gain; leave it out")
         static = rig.static_pa if args.static is not None else None
-        tl = sheet_timeline(src, static, args.reserve)
+        reserve = rig.reserve if args.reserve is not None else None  # checked, as a number
+        tl = sheet_timeline(src, static, reserve)
     else:
         gain = None if args.gain is None else units.gain_db(args.gain, "--gain", "give dB, e.g. --gain -12")
         tl = track_timeline(rig, src, time_option(args.start, "--start"), time_option(args.end, "--end"), gain)
