@@ -170,3 +170,31 @@ def test_undo_of_a_new_lock_forgets_its_ceiling(tmp_path):
     assert ed.ceiling_of("c") is None
     ed.set_gain("c", 0.0)
     assert ed.sheet.cue("c").gain_db <= ed.sheet.cue("c").lock.ceiling_db
+
+
+def test_undo_past_the_first_lock_keeps_it(tmp_path):
+    """A fresh-user report: undoing more times than there were edits unlocked every cue (the first
+    lock is an undo step).  Undo never takes a lock away: the cue keeps today's lock, its gain at most
+    that ceiling."""
+    from dataclasses import replace
+
+    ed = _editor(tmp_path, autosave=False)
+    ed.sheet.replace_cue("a", lock=None, gain_db=5.0)          # an unlocked cue, loud
+    ed._undo.clear()
+    ed.apply_locks([replace(ed.sheet.cue("a"), lock=_lock(-10.0))])
+    assert ed.sheet.cue("a").gain_db == -10.0
+    while ed.undo():
+        pass
+    a = ed.sheet.cue("a")
+    assert a.lock is not None and a.lock.ceiling_db == -10.0 and a.gain_db <= -10.0
+
+
+def test_a_passage_never_ends_past_its_track(tmp_path):
+    """A fresh-user report: the last passage of a track (end 27.2254 s) was saved as 27.23 s, past the
+    end, so the cue could never play.  The end is rounded down to 0.01 s."""
+    ed = _editor(tmp_path, autosave=False)
+    track = tmp_path / "piece.wav"
+    track.write_bytes(b"")  # only its name and folder matter here
+    for end in (27.2254, 27.2299, 27.0, 9.999999):
+        cue = ed.add_passage(track, 6.1, end, -12.0)
+        assert cue.source.end_s <= end and end - cue.source.end_s < 0.01 + 1e-9

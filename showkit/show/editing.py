@@ -253,7 +253,7 @@ class SheetEditor:
         stem = Path(track).stem.replace("_", "-")
         fade = min(1.0, 0.1 * (end_s - start_s))
         cue = Cue(id=self.sheet.new_id(stem), source=AudioSource(self.audio_reference(track),
-                                                                 round(start_s, 2), round(end_s, 2)),
+                                                                 round(start_s, 2), _floor_2(end_s)),
                   label=label or f"{Path(track).stem.replace('_', ' ').title()} "
                                  f"{_clock(start_s)}-{_clock(end_s)}",
                   gain_db=gain, fade_in_s=round(fade, 2), fade_out_s=round(fade, 2))
@@ -283,7 +283,12 @@ class SheetEditor:
         return bool(self._undo)
 
     def undo(self) -> bool:
-        """Bring back the sheet as it was before the last edit (saved); False when there is none."""
+        """Bring back the sheet as it was before the last edit (saved); False when there is none.
+
+        Undo never takes a lock away: a cue that had no lock then, but has one now for the
+        same sound, keeps today's lock (its gain brought down to that ceiling if need be),
+        so undoing past the first lock of a sheet does not leave every cue unplayable.
+        """
         if not self._undo:
             return False
         before = {c.id: c for c in self.sheet.cues}
@@ -291,6 +296,11 @@ class SheetEditor:
         path = self.sheet.path
         self.sheet = parse_sheet(text, str(path))
         self.sheet.path = path
+        for cue in list(self.sheet.cues):
+            now = before.get(cue.id)
+            if cue.lock is None and now is not None and now.lock is not None and _sound(now) == _sound(cue):
+                self.sheet.replace_cue(cue.id, lock=now.lock,
+                                       gain_db=min(cue.gain_db, floor_db(now.lock.ceiling_db)))
         kept = {}
         for cue in self.sheet.cues:
             old = before.get(cue.id)
@@ -351,6 +361,11 @@ class SheetEditor:
                                       message=check.message if status in UNKNOWN_CEILING
                                       else f"{head:.1f} dB below the ceiling" if status == "ok"
                                       else f"gain is {-head:.2f} dB above today's ceiling")
+
+
+def _floor_2(seconds: float) -> float:
+    """A passage's end to 0.01 s, rounded down: never past the end of the track it was measured on."""
+    return math.floor(seconds * 100.0 + 1e-9) / 100.0
 
 
 def relative_to(path: Path, folder: Path) -> str:
