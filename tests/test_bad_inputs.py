@@ -364,6 +364,7 @@ CASES = [
          "newer than"),
     # ---- audio (ceiling, scan)
     Case("audio-fifo", lambda e: ["ceiling", e.fifo("x.wav")], "named pipe"),
+    Case("open-audio-fifo", lambda e: ["open", e.fifo("o.wav")], "named pipe"),  # said "no such audio file"
     Case("audio-dev-zero", lambda e: ["ceiling", "/dev/zero"], "character device"),
     Case("audio-folder", lambda e: ["ceiling", e.dir], "folder"),
     Case("audio-cut-short", lambda e: ["ceiling", _wav_cut_short(e)], "header says 96000 frames"),

@@ -52,8 +52,9 @@ def build_app(args: argparse.Namespace):
 
         session = Session.open_sheet(user_demo_show())
     elif path.suffix.lower() in AUDIO_SUFFIXES:
-        if not path.is_file():
-            raise InputError("no such audio file", str(path), "check the path")
+        from showkit.fileio import check_audio_file
+
+        check_audio_file(path, InputError)  # one line: missing, a folder, a pipe or a device, too big
         sheet = Path(args.sheet).expanduser() if args.sheet else data_dir() / "shows" / f"{path.stem}.toml"
         session = Session.for_track(path, args.rig, sheet)
         track, view = path, view or "track"

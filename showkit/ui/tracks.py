@@ -14,6 +14,7 @@ from pathlib import Path
 
 from showkit.demo_files import DEMO_TRACKS
 from showkit.errors import AudioError
+from showkit.fileio import check_audio_file
 from showkit.show.editing import PASSAGE_MARGIN_DB
 from showkit.show.sheet import DEMO_AUDIO_PREFIX, AudioSource, Cue, Sheet, floor_db
 
@@ -107,8 +108,7 @@ class TrackWork:
             p = Path(t).expanduser()
             if not p.is_absolute() and not p.exists():
                 p = sheet.folder / p
-        if not p.is_file():
-            raise AudioError("no such audio file", str(p), "give the path of a FLAC, WAV or OGG file")
+        check_audio_file(p, AudioError)  # missing, a folder, a pipe or a device: one line
         return p.resolve()
 
     def analysis_job(self, path, transpose: int = 0, progress=None) -> TrackAnalysis:

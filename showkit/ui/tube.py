@@ -90,7 +90,7 @@ class TubeView(SessionView):
         known = s.cached_mode_flames(mode)
         if known is not None:
             h, air, ceiling = known
-            drawing.set_flames(h, air, _flames_caption(mode, h, ceiling))
+            drawing.set_flames(h, air, _flames_caption(mode, h, air, ceiling))
             return
 
         def work(progress):
@@ -99,7 +99,7 @@ class TubeView(SessionView):
         def done(result):
             h, air, ceiling = result
             if self.selected_mode() is not None and self.selected_mode().n == mode.n:
-                drawing.set_flames(h, air, _flames_caption(mode, h, ceiling))
+                drawing.set_flames(h, air, _flames_caption(mode, h, air, ceiling))
             self.say(f"mode {mode.n}: flame row predicted at its safe level {ceiling:+.1f} dB")
 
         self.run_job("flames", work, done, f"predicting the flame row of mode {mode.n}")
@@ -174,7 +174,11 @@ class TubeView(SessionView):
         self.post_message(CueAdded(cue))
 
 
-def _flames_caption(mode, height, ceiling_db: float) -> str:
+def _flames_caption(mode, height, air, ceiling_db: float) -> str:
+    """The caption under a mode's flame row; ``!`` is explained only where a hole draws air in."""
     lo, hi = float(min(height)), float(max(height))
+    drawing_air = sum(1 for a in air if a > 0)
+    tail = (f"; ! marks the {drawing_air} holes that draw air in" if drawing_air
+            else "; no hole draws air in")
     return (f"mode {mode.n}, {mode.frequency_hz:.1f} Hz, at its safe level {ceiling_db:+.1f} dB: "
-            f"flames {lo:.3f} to {hi:.3f} of still height (! air drawn in)")
+            f"flames {lo:.3f} to {hi:.3f} of still height{tail}")
