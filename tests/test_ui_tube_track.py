@@ -87,6 +87,7 @@ async def test_track_view_cursor_passage_cue_transpose(ui_show):
         # jump to the next passage, then add it to the show
         await pilot.press("f")
         chosen = a.passages[tmap.selected]
+        await settle(pilot)  # the passage's ceiling over the loss family is measured in the background
         await pilot.press("c")
         await settle(pilot)
         new = [c for c in app.session.sheet.cues if isinstance(c.source, AudioSource)

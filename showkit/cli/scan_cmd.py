@@ -113,7 +113,7 @@ def _print_table(tracks: list[dict]) -> None:
         print(f"{printable(t['path'])}  (score {t['score']:.0f}{', cached' if t.get('cached') else ''})")
         prow = [[f"{_fmt(p['start_s'])}-{_fmt(p['end_s'])}", f"{p['score']:.0f}", _modes_text(p),
                  f"{p['ceiling_db']:+.1f}", f"{100 * p['contrast']:.1f}"] for p in t["passages"]]
-        print(table(prow, ["passage", "score", "modes held (time share)", "ceiling dB", "contrast %"],
+        print(table(prow, ["passage", "score", "modes held (time share)", "~ceiling dB", "contrast %"],
                     "<><>>"))
 
 
@@ -200,7 +200,9 @@ def run(args) -> int:
     else:
         _print_table(tracks)
         print(f"\nOn {rig.name}, static {rig.static_pa:.2f} Pa, reserve {rig.reserve:g}; "
-              "ceilings in dB applied to the file as recorded; a score is the share of time a note "
+              "~ceiling: the best estimate's ceiling in dB applied to the file as recorded, to rank "
+              "passages -- not a level to play: `showkit ceiling` and `lock` give the ceiling over "
+              "the loss family, often lower; a score is the share of time a note "
               "is held on a readable mode; contrast uses the steady-sine flame heights on the "
               "per-frame pressure envelope.")
         print(f"Ceilings rest on: {rig.drive.describe()}.")

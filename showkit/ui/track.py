@@ -174,7 +174,7 @@ class TrackView(SessionView):
     def on_mount(self) -> None:
         t = self.query_one(PassageTable)
         for label, key, width in (("#", "n", 2), ("from", "a", 7), ("to", "b", 7), ("score", "score", 5),
-                                  ("modes", "modes", 12), ("ceiling", "ceiling", 7), ("contrast", "contrast", 8)):
+                                  ("modes", "modes", 12), ("~ceiling", "ceiling", 8), ("contrast", "contrast", 8)):
             t.add_column(label, key=key, width=width)
         self.query_one("#track-title", Static).update(
             "No track open yet: o opens a track (demo tracks are offered).")
@@ -304,10 +304,12 @@ class TrackView(SessionView):
         m.selected = k
         m.cursor_s = p["start_s"]
         m.mark_in, m.mark_out = p["start_s"], p["end_s"]
-        self.selection = (p["start_s"], p["end_s"], p.get("ceiling_db"), p.get("contrast"))
         t = self.query_one(PassageTable)
         if t.row_count > k:
             t.move_cursor(row=k)
+        # the table's ~ceiling is the scan's best estimate (it ranks passages); a cue is made
+        # from the ceiling over the loss family, measured now as for a hand-set selection
+        self.measure_selection(p["start_s"], p["end_s"])
         self.update_cursor()
 
     def action_passage(self, delta: int) -> None:
