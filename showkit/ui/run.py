@@ -58,6 +58,13 @@ STATE_WORDS = {"idle": "ready", "playing": "PLAYING", "fading": "FADING", "panic
                "fault": "DEVICE FAULT", "closed": "closed"}
 
 
+def _no_output(exc) -> str:
+    """The status line for a device that would not open, starting "no audio output" once."""
+    if exc.what.startswith("no audio output"):
+        return exc.what + (f" -- {exc.fix}" if exc.fix else "")
+    return f"no audio output: {exc.line()}"
+
+
 def fmt_time(seconds: float) -> str:
     return format_time(seconds)
 
@@ -428,7 +435,7 @@ class RunView(SessionView):
         except DeviceError as exc:
             if not engine.fault:  # open() logs stream failures itself
                 engine.log.write("device_error", None, None, exc.line())
-            self.set_message(f"no audio output: {exc.line()}; then press {RECONNECT_KEY} to connect again", warn=True)
+            self.set_message(f"{_no_output(exc)}; then press {RECONNECT_KEY} to connect again", warn=True)
             return False
         dev = engine.device
         self.set_message(f"output: {dev.index} {dev.name} ({dev.hostapi}) at {engine.rate_hz} Hz")
@@ -627,7 +634,7 @@ class RunView(SessionView):
         try:
             self.engine.reopen(self.session_device())
         except DeviceError as exc:
-            self.set_message(f"no audio output: {exc.line()}; then press {RECONNECT_KEY} to connect again", warn=True)
+            self.set_message(f"{_no_output(exc)}; then press {RECONNECT_KEY} to connect again", warn=True)
             return
         dev = self.engine.device
         self.set_message(f"output: {dev.index} {dev.name} at {self.engine.rate_hz} Hz; {GO_KEY} resumes at the next cue")
