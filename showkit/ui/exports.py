@@ -10,6 +10,8 @@ from __future__ import annotations
 
 from pathlib import Path
 
+from showkit.show.status import CueStatus
+
 
 def _beside(session, stem: str, suffix: str) -> Path:
     safe = "".join(ch if ch.isalnum() or ch in "-_." else "_" for ch in stem)
@@ -29,7 +31,7 @@ def book(view) -> None:
         return make_book(sheet_path, out, "a4", None, static, reserve, progress)
 
     def done(result):
-        bad = [k for k, v in result["states"].items() if v != "ok"]
+        bad = [k for k, v in result["states"].items() if v != CueStatus.OK]
         view.say(f"show book written: {result['pdf']} ({result['pages']} pages)"
                 + (f"; marked not playable: {', '.join(bad)}" if bad else ""), warn=bool(bad))
 

@@ -20,6 +20,7 @@ from showkit.errors import ShowkitError
 from showkit.show.editing import (GAIN_STEP_DB, GainChange, SheetEditor,  # noqa: F401
                                   relative_to)
 from showkit.show.sheet import Cue, Sheet, load_sheet, save_sheet
+from showkit.show.status import CueStatus
 
 #: Length of the steady tone used to predict a mode's flame row, s.
 PREVIEW_TONE_S = 1.2
@@ -167,7 +168,7 @@ class Session(SheetEditor):
         rig = self.base_rig().with_conditions(static_pa=rig.static_pa, reserve=rig.reserve)
         if ids is None:
             ids = [c.id for c in sheet.cues
-                   if self.checks.get(c.id) is None or self.checks[c.id].status in ("stale", "error")]
+                   if self.checks.get(c.id) is None or self.checks[c.id].status in (CueStatus.STALE, CueStatus.ERROR)]
         targets = [c for c in sheet.cues if c.id in ids]
         out = []
         for k, cue in enumerate(targets):
