@@ -1,4 +1,5 @@
-"""A cue's status today, the one vocabulary of the lock, the check, the render and the run.
+"""A cue's status today, the one vocabulary of the lock, the check, the render and the run;
+and the show's state, the one state enum of the mixer, the engine and the screens.
 
 :class:`CueStatus` is a :class:`enum.StrEnum`: each member *is* its text (``CueStatus.OK ==
 "ok"``, ``f"{CueStatus.STALE}" == "stale"``, ``json.dumps`` writes ``"over"``), so the show
@@ -34,3 +35,18 @@ class CueStatus(StrEnum):
 
             raise InputError(f"status must be one of {', '.join(cls)} (got {value!r})", where,
                              "this is a bug in the renderer") from None
+
+
+class State(StrEnum):
+    """The show's state: the audio callback's state machine (:mod:`showkit.show.mixer`) moves
+    between IDLE, PLAYING, FADING and PANIC; FAULT (the device failed) and CLOSED (the stream is
+    closed) are the engine's.  Each member *is* its status word (``State.IDLE == "idle"``), the
+    word :meth:`showkit.show.engine.Engine.status` reports and ``showkit run`` prints.
+    """
+
+    IDLE = "idle"
+    PLAYING = "playing"
+    FADING = "fading"
+    PANIC = "panic"
+    FAULT = "fault"
+    CLOSED = "closed"
