@@ -43,8 +43,8 @@ from showkit.show.status import State
 from showkit.units import format_time
 
 #: The operator's keys as printed in this view's messages (from the one table).
-GO_KEY, PANIC_KEY, REARM_KEY, RECONNECT_KEY, FADE_KEY = (
-    shown("go"), shown("panic"), shown("rearm"), shown("reconnect"), shown("fade"))
+GO_KEY, PANIC_KEY, RECONNECT_KEY, FADE_KEY = (
+    shown("go"), shown("panic"), shown("reconnect"), shown("fade"))
 from showkit.ui.drawing import flame_picture
 from showkit.ui.messages import ConditionsEntered
 from showkit.ui.viewbase import SessionView

@@ -44,7 +44,6 @@ class Session(SheetEditor):
         self._base_rig = rig
         self.static_pa: float | None = None      # today's manometer reading (None: the rig file's)
         self.temperature_k: float | None = None  # today's gas temperature (None: the rig file's)
-        self.last_message = ""
         self.device = None                       # audio output: None (system default), index or name
         self.log_path = log_path
         self._show_log = None
@@ -176,8 +175,7 @@ class Session(SheetEditor):
                 progress(k, len(targets), cue.id)
             try:
                 new, _ = lock_cue(sheet, rig, cue)
-            except ShowkitError as exc:
-                self.last_message = exc.line()
+            except ShowkitError:
                 continue
             out.append(new)
         if progress:
