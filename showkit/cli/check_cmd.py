@@ -12,6 +12,7 @@ from __future__ import annotations
 import argparse
 
 from showkit.cli.common import add_json_option
+from showkit.printable import printable
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -36,7 +37,6 @@ def headroom_bar(headroom_db: float | None, width: int = 12, span_db: float = 12
 
 def run(args) -> int:
     from showkit.cli.common import conditions_from_args, level_caution, print_json, table
-    from showkit.printable import printable
     from showkit.show.lock import check_sheet, sheet_rig
     from showkit.show.sheet import load_sheet
     from showkit.show.status import CueStatus

@@ -11,6 +11,8 @@ from __future__ import annotations
 
 import argparse
 
+from showkit.printable import printable
+
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("sheet", help="cue sheet (TOML)")
@@ -29,7 +31,6 @@ def run(args) -> int:
     from pathlib import Path
 
     from showkit.cli.common import conditions_from_args, level_caution, table
-    from showkit.printable import printable
     from showkit.safesave import check_target
     from showkit.show.lock import sheet_rig
     from showkit.show.render import render_iter, write_per_cue, write_show

@@ -10,6 +10,8 @@ from __future__ import annotations
 
 from enum import StrEnum
 
+from showkit.errors import InputError
+
 
 class CueStatus(StrEnum):
     """Whether a cue may be played today.
@@ -31,8 +33,6 @@ class CueStatus(StrEnum):
         try:
             return cls(value)
         except ValueError:
-            from showkit.errors import InputError
-
             raise InputError(f"status must be one of {', '.join(cls)} (got {value!r})", where,
                              "this is a bug in the renderer") from None
 
