@@ -24,6 +24,8 @@ from showkit.show.status import CueStatus
 
 #: Length of the steady tone used to predict a mode's flame row, s.
 PREVIEW_TONE_S = 1.2
+#: Flame rows of the Tube view's modes kept (oldest dropped first): a few rigs' worth of modes.
+MODE_FLAMES_KEPT = 64
 
 
 class Session(SheetEditor):
@@ -211,6 +213,8 @@ class Session(SheetEditor):
         a = int(round(PREVIEW_TONE_S / 3 * fr))
         b = max(a + 1, int(round(2 * PREVIEW_TONE_S / 3 * fr)))
         result = (frames.height[a:b].mean(axis=0), frames.air_in[a:b].max(axis=0), report.ceiling_db)
+        if len(self._mode_flames) >= MODE_FLAMES_KEPT:
+            self._mode_flames.pop(next(iter(self._mode_flames), None), None)  # tolerates a clear() meanwhile
         self._mode_flames[key] = result
         return result
 
