@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import argparse
 
+from showkit.cli.common import add_conditions_options
 from showkit.printable import printable
 
 
@@ -21,10 +22,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     out.add_argument("--per-cue", metavar="DIR", help="one WAV per cue, NN-id.wav, at the source rate")
     parser.add_argument("--bits", choices=("float", "24"), default="float",
                         help="sample format: 32-bit float (default) or 24-bit integer")
-    parser.add_argument("--static", metavar="PRESSURE",
-                        help='today\'s static overpressure, e.g. "22 Pa" (default: the rig file\'s)')
-    parser.add_argument("--reserve", metavar="FRACTION",
-                        help="fraction of the static pressure kept in reserve, 0 to 0.9 (default: the rig's)")
+    add_conditions_options(parser)
 
 
 def run(args) -> int:

@@ -18,12 +18,17 @@ def _beside(session, stem: str, suffix: str) -> Path:
     return session.sheet.folder / f"{safe}{suffix}"
 
 
+def _sheet_export(view, suffix: str) -> tuple:
+    """``(output path beside the sheet, today's static Pa, reserve fraction, sheet path)``."""
+    s = view.session
+    out = _beside(s, s.sheet.path.stem, suffix)
+    rig = s.rig
+    return out, rig.static_pa, rig.reserve, s.sheet.path
+
+
 def book(view) -> None:
     """The show book of the open sheet, for today's manometer reading (Show view)."""
-    s = view.session
-    out = _beside(s, s.sheet.path.stem, "-book.pdf")
-    rig = s.rig
-    static, reserve, sheet_path = rig.static_pa, rig.reserve, s.sheet.path
+    out, static, reserve, sheet_path = _sheet_export(view, "-book.pdf")
 
     def work(progress):
         from showkit.export.book import make_book
@@ -40,10 +45,7 @@ def book(view) -> None:
 
 def sheet_preview(view) -> None:
     """The flame preview video of the whole show, true scale (Show view)."""
-    s = view.session
-    out = _beside(s, s.sheet.path.stem, "-preview.mp4")
-    rig = s.rig
-    static, reserve, sheet_path = rig.static_pa, rig.reserve, s.sheet.path
+    out, static, reserve, sheet_path = _sheet_export(view, "-preview.mp4")
 
     def work(progress):
         from showkit.export.preview import sheet_timeline, write_video
