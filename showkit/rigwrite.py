@@ -179,7 +179,8 @@ def _write_drive(doc, response_freq_hz, response_db, reference) -> None:
 
 
 def _write_measured(doc, modes, measured_extra, notes: list, today: str | None) -> None:
-    """``[measured]`` replaced: date, how the sound speed was written, the fit summary, the modes (Hz, Q, dB)."""
+    """``[measured]`` replaced: date, how the sound speed was written, the fit summary, the modes
+    (Hz, Q, dB)."""
     import tomlkit
 
     measured = tomlkit.table()

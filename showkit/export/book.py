@@ -51,8 +51,8 @@ ASSUMPTIONS = (
     "up to 5.8 dB too high between modes, so measure your tube and start low. A "
     "ceiling is a model's estimate, not a safety device.")
 
-STATE_TEXT = {CueStatus.OK: "ok", CueStatus.OVER: "OVER - NOT PLAYABLE", CueStatus.STALE: "STALE - NOT PLAYABLE",
-              CueStatus.ERROR: "ERROR - NOT PLAYABLE"}
+STATE_TEXT = {CueStatus.OK: "ok", CueStatus.OVER: "OVER - NOT PLAYABLE",
+              CueStatus.STALE: "STALE - NOT PLAYABLE", CueStatus.ERROR: "ERROR - NOT PLAYABLE"}
 
 
 @dataclass

@@ -169,7 +169,8 @@ class Session(SheetEditor):
         rig = self.base_rig().with_conditions(static_pa=rig.static_pa, reserve=rig.reserve)
         if ids is None:
             ids = [c.id for c in sheet.cues
-                   if self.checks.get(c.id) is None or self.checks[c.id].status in (CueStatus.STALE, CueStatus.ERROR)]
+                   if self.checks.get(c.id) is None
+                   or self.checks[c.id].status in (CueStatus.STALE, CueStatus.ERROR)]
         targets = [c for c in sheet.cues if c.id in ids]
         out = []
         for k, cue in enumerate(targets):

@@ -89,7 +89,8 @@ class ShowView(SessionView):
             status = None if check is None else check.status
             ceiling = "" if check is None or check.ceiling_db is None else f"{check.ceiling_db:+.1f}"
             head = None if check is None else check.headroom_db
-            state = Text(STATUS_MARK[status], style="bold reverse" if status in (CueStatus.OVER, CueStatus.ERROR) else
+            state = Text(STATUS_MARK[status],
+                         style="bold reverse" if status in (CueStatus.OVER, CueStatus.ERROR) else
                          ("italic" if status == CueStatus.STALE else ""))
             table.add_row(str(k), Text(printable(cue.id)), f"{cue.gain_db:+.1f}", ceiling, headroom_bar(head),
                           state, cue.then, Text(printable(cue.label)), Text(printable(describe_source(cue.source, short=True))),
