@@ -244,6 +244,17 @@ def make_calibration(reference_frequency=None, reference_level=None, reference_p
     def pick(key, default):
         return default if given[key] is None else given[key]
 
+    f_ref, level, p_ref = _calibration_point(pick, base, at)
+    f_s, q_s = _speaker_model(pick, base, at)
+    rf_hz, rd_db = _drive_response(pick("response_frequencies", list(base.response_freq_hz)),
+                                   pick("response_db", list(base.response_db)), at)
+    if tube is not None:
+        _below_plane_wave_limit(f_ref, tube, at)
+    return DriveCalibration(f_ref, level, p_ref, f_s, q_s, rf_hz, rd_db)
+
+
+def _calibration_point(pick, base, at: dict) -> tuple:
+    """``(reference frequency Hz, reference level dBFS, reference pressure Pa)``, parsed and within limits."""
     f_ref = _within(units.frequency_hz(units.number_or_text(pick("reference_frequency", base.reference_frequency_hz)),
                                        at["reference_frequency"]),
                     REFERENCE_FREQUENCY_MIN_HZ, REFERENCE_FREQUENCY_MAX_HZ, at["reference_frequency"],
@@ -259,6 +270,11 @@ def make_calibration(reference_frequency=None, reference_level=None, reference_p
                                       at["reference_pressure"]),
                     REFERENCE_PRESSURE_MIN_PA, REFERENCE_PRESSURE_MAX_PA, at["reference_pressure"],
                     "reference pressure", " Pa", 'give the pressure amplitude read at the cap, e.g. "6 Pa"')
+    return f_ref, level, p_ref
+
+
+def _speaker_model(pick, base, at: dict) -> tuple:
+    """``(speaker resonance Hz, speaker Q)``, parsed and within limits."""
     f_s = _within(units.frequency_hz(units.number_or_text(pick("speaker_resonance", base.speaker_resonance_hz)),
                                      at["speaker_resonance"]),
                   SPEAKER_RESONANCE_MIN_HZ, SPEAKER_RESONANCE_MAX_HZ, at["speaker_resonance"],
@@ -266,8 +282,12 @@ def make_calibration(reference_frequency=None, reference_level=None, reference_p
     q_s = _within(_finite_number(pick("speaker_q", base.speaker_q), at["speaker_q"], "number"),
                   SPEAKER_Q_MIN, SPEAKER_Q_MAX, at["speaker_q"], "speaker Q", "",
                   "give the speaker's total Q, e.g. 0.7")
-    rf = pick("response_frequencies", list(base.response_freq_hz))
-    rd = pick("response_db", list(base.response_db))
+    return f_s, q_s
+
+
+def _drive_response(rf, rd, at: dict) -> tuple:
+    """A measured relative drive response ``(frequencies Hz, levels dB)``: lists of one length,
+    ascending, within limits."""
     if not isinstance(rf, (list, tuple)) or not isinstance(rd, (list, tuple)) or len(rf) != len(rd):
         raise InputError("response_frequencies and response_db must be lists of the same length",
                          at["response_db"], "let showkit measure write them")
@@ -283,10 +303,13 @@ def make_calibration(reference_frequency=None, reference_level=None, reference_p
     if any(b <= a for a, b in zip(rf_hz, rf_hz[1:])):
         raise InputError("response_frequencies must ascend", at["response_frequencies"],
                          "let showkit measure write them")
-    if tube is not None:
-        limit = tube.plane_wave_limit_hz
-        if f_ref >= limit:
-            raise InputError(f"reference frequency {f_ref:g} Hz is above the tube's plane-wave limit "
-                             f"({limit:.0f} Hz)", at["reference_frequency"],
-                             "calibrate with a lower sine, between the tube's modes")
-    return DriveCalibration(f_ref, level, p_ref, f_s, q_s, rf_hz, rd_db)
+    return rf_hz, rd_db
+
+
+def _below_plane_wave_limit(f_ref: float, tube, at: dict) -> None:
+    """Refuse a reference frequency (Hz) at or above the tube's plane-wave limit."""
+    limit = tube.plane_wave_limit_hz
+    if f_ref >= limit:
+        raise InputError(f"reference frequency {f_ref:g} Hz is above the tube's plane-wave limit "
+                         f"({limit:.0f} Hz)", at["reference_frequency"],
+                         "calibrate with a lower sine, between the tube's modes")

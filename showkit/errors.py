@@ -8,6 +8,8 @@ it never shows a traceback for these.
 
 from __future__ import annotations
 
+from showkit.printable import printable
+
 
 class ShowkitError(Exception):
     """A user-facing error: one line saying where, what and how to fix it.
@@ -35,7 +37,6 @@ class ShowkitError(Exception):
         text = f"{self.where}: {self.what}" if self.where else self.what
         if self.fix:
             text = f"{text} -- {self.fix}"
-        from showkit.printable import printable
 
         # a path or cue id quoted from a file may hold control characters: shown as escapes
         text = text.replace("\r\n", " ").replace("\n", " ").replace("\t", " ")

@@ -5,8 +5,8 @@ otherwise wait forever for a writer), and accepts only a regular file
 within the size limit of its kind (:mod:`showkit.limits`); a named pipe, a
 device, a socket or a folder gets one line saying so.  The readers per kind:
 
-* :func:`read_rig_text` and :func:`read_sheet_text` -- TOML text, parsed by
-  :func:`parse_toml`, which bounds nesting;
+* :func:`read_rig_text` and :func:`read_text` (cue sheets) -- TOML text, parsed
+  by :func:`parse_toml`, which bounds nesting;
 * :func:`check_audio_file` -- the checks before libsndfile opens an audio file
   (the decoding itself streams, in :mod:`showkit.analysis.audio`);
 * :func:`open_log` -- the show log, read back line by line;
@@ -53,11 +53,6 @@ def _human(n: int) -> str:
 
 def _a(kind: str) -> str:
     return ("an " if kind[:1] in "aeiou" else "a ") + kind
-
-
-def size_limit(kind: str) -> int:
-    """The largest file of ``kind`` showkit reads, bytes."""
-    return _KIND_LIMIT[kind]
 
 
 def check_kind(st: os.stat_result, path, kind: str, error: type[ShowkitError]) -> None:
@@ -132,11 +127,6 @@ def read_text(path, kind: str, error: type[ShowkitError], missing_fix: str = "ch
 def read_rig_text(path, error, missing_fix: str) -> str:
     """The text of a rig file (regular file, at most :data:`showkit.limits.RIG_MAX_BYTES`)."""
     return read_text(path, "rig file", error, missing_fix)
-
-
-def read_sheet_text(path, error, missing_fix: str = "check the path") -> str:
-    """The text of a cue sheet (regular file, at most :data:`showkit.limits.SHEET_MAX_BYTES`)."""
-    return read_text(path, "cue sheet", error, missing_fix)
 
 
 def check_audio_file(path, error) -> os.stat_result:

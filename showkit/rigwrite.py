@@ -129,6 +129,16 @@ def update_rig(path, *, sound_speed_m_s: float | None = None, end_correction: fl
     text = read_rig_text(path, RigError, "give the rig file to update with --rig")
     rig = parse_rig(text, str(path), path)
     doc = tomlkit.parse(text)
+    notes = _write_gas(doc, rig, sound_speed_m_s, prefer_gas)
+    _write_holes(doc, rig, end_correction, resistance_pa_s_m3, flow)
+    _write_drive(doc, response_freq_hz, response_db, reference)
+    if modes is not None or measured_extra:
+        _write_measured(doc, modes, measured_extra, notes, today)
+    return save_text(path, tomlkit.dumps(doc))
+
+
+def _write_gas(doc, rig, sound_speed_m_s, prefer_gas: str) -> list:
+    """The fitted sound speed (m/s) as ``gas.air_fraction`` or ``gas.temperature``; the key written."""
     notes = []
     if sound_speed_m_s is not None:
         key, value = gas_for_sound_speed(rig.fuel, rig.air_fraction, rig.temperature_k,
@@ -139,6 +149,11 @@ def update_rig(path, *, sound_speed_m_s: float | None = None, end_correction: fl
         else:
             gas["temperature"] = f"{value - 273.15:.2f} C"
         notes.append(key)
+    return notes
+
+
+def _write_holes(doc, rig, end_correction, resistance_pa_s_m3, flow) -> None:
+    """``[holes]``: end correction (hole radii), resistance (Pa s/m^3), flow (relative to the orifice law)."""
     if rig.geometry.hole_count and "holes" in doc:
         if end_correction is not None:
             doc["holes"]["end_correction"] = round(float(end_correction), 4)
@@ -146,6 +161,12 @@ def update_rig(path, *, sound_speed_m_s: float | None = None, end_correction: fl
             doc["holes"]["resistance"] = float(f"{resistance_pa_s_m3:.4g}")
         if flow is not None:
             doc["holes"]["flow"] = float(f"{flow:.4g}")
+
+
+def _write_drive(doc, response_freq_hz, response_db, reference) -> None:
+    """``[drive]``: the measured response (Hz, dB) and the calibration point (Hz, dBFS, Pa)."""
+    import tomlkit
+
     if response_freq_hz is not None:
         drive = doc.setdefault("drive", tomlkit.table())
         drive["response_frequencies"] = [round(float(v), 3) for v in response_freq_hz]
@@ -155,27 +176,32 @@ def update_rig(path, *, sound_speed_m_s: float | None = None, end_correction: fl
         drive["reference_frequency"] = f"{reference['reference_frequency']:g} Hz"
         drive["reference_level"] = round(float(reference["reference_level"]), 2)
         drive["reference_pressure"] = f"{reference['reference_pressure']:.4g} Pa"
-    if modes is not None or measured_extra:
-        measured = tomlkit.table()
-        measured.add(tomlkit.comment("written by showkit measure; the previous file is kept as .bak"))
-        measured["date"] = today or _dt.date.today().isoformat()
-        if notes:
-            measured["sound_speed_written_as"] = notes[0]
-        for k, v in (measured_extra or {}).items():
-            measured[k] = v
-        if modes is not None:
-            arr = tomlkit.array()
-            for m in modes:
-                item = tomlkit.inline_table()
-                item.update({"frequency_hz": round(float(m["frequency_hz"]), 3),
-                             "q": round(float(m["q"]), 2), "level_db": round(float(m["level_db"]), 2)})
-                arr.append(item)
-            arr.multiline(True)
-            measured["modes"] = arr
-        if "measured" in doc:
-            del doc["measured"]
-        doc["measured"] = measured
-    return save_text(path, tomlkit.dumps(doc))
+
+
+def _write_measured(doc, modes, measured_extra, notes: list, today: str | None) -> None:
+    """``[measured]`` replaced: date, how the sound speed was written, the fit summary, the modes
+    (Hz, Q, dB)."""
+    import tomlkit
+
+    measured = tomlkit.table()
+    measured.add(tomlkit.comment("written by showkit measure; the previous file is kept as .bak"))
+    measured["date"] = today or _dt.date.today().isoformat()
+    if notes:
+        measured["sound_speed_written_as"] = notes[0]
+    for k, v in (measured_extra or {}).items():
+        measured[k] = v
+    if modes is not None:
+        arr = tomlkit.array()
+        for m in modes:
+            item = tomlkit.inline_table()
+            item.update({"frequency_hz": round(float(m["frequency_hz"]), 3),
+                         "q": round(float(m["q"]), 2), "level_db": round(float(m["level_db"]), 2)})
+            arr.append(item)
+        arr.multiline(True)
+        measured["modes"] = arr
+    if "measured" in doc:
+        del doc["measured"]
+    doc["measured"] = measured
 
 
 def _all_finite(values: dict, where: str = "measurement") -> None:

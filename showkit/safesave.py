@@ -106,7 +106,7 @@ def _protected(protect):
             yield Path(item), "a file the show reads"
 
 
-def check_target(path, protect=(), what: str = "file", folder_ok: bool = False) -> Path:
+def check_target(path, protect=(), what: str = "file") -> Path:
     """Check that ``path`` may be written; returns it as a Path.
 
     Refuses (one :class:`OutputError` line) a folder, a pipe, a device, a

@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, replace
+from functools import lru_cache
 
 import numpy as np
 
@@ -120,10 +121,25 @@ class PassageReport:
         }
 
 
-#: Designed filters by (acoustic hash, calibration hash): static pressure and
-#: reserve do not shape the response, so today's manometer reading reuses them.
-_FILTERS: dict[tuple[str, str], HoleFilters] = {}
+#: Rigs whose designed filters (and loss family) are kept per process.
 _FILTERS_KEPT = 8
+
+
+class _ResponseKey:
+    """A rig, compared and hashed by what shapes its response: (acoustic hash, calibration
+    hash).  Static pressure and reserve do not, so today's manometer reading reuses the filters."""
+
+    __slots__ = ("rig", "key")
+
+    def __init__(self, rig: Rig):
+        self.rig = rig
+        self.key = (rig.acoustic_hash(), rig.calibration_hash())
+
+    def __hash__(self) -> int:
+        return hash(self.key)
+
+    def __eq__(self, other) -> bool:
+        return isinstance(other, _ResponseKey) and self.key == other.key
 
 
 def hole_filters(rig: Rig) -> HoleFilters:
@@ -131,19 +147,17 @@ def hole_filters(rig: Rig) -> HoleFilters:
     if rig.geometry.hole_count == 0:
         raise AudioError("this rig has no holes: there are no flames to keep alight",
                          rig.name, "add [holes] to the rig file")
-    key = (rig.acoustic_hash(), rig.calibration_hash())
-    if key not in _FILTERS:
-        if len(_FILTERS) >= _FILTERS_KEPT:
-            _FILTERS.pop(next(iter(_FILTERS)))
-        try:
-            _FILTERS[key] = design_hole_filters(rig.model, rig.drive)
-        except ValueError as exc:
-            raise RigError(f"the pressure model cannot be built from this rig ({exc})", rig.name,
-                           "check the rig file's [tube], [holes] and [drive] values") from None
-    return _FILTERS[key]
+    return _designed_filters(_ResponseKey(rig))
 
 
-_FAMILIES: dict[tuple[str, str], tuple] = {}
+@lru_cache(maxsize=_FILTERS_KEPT)
+def _designed_filters(key: _ResponseKey) -> HoleFilters:
+    rig = key.rig
+    try:
+        return design_hole_filters(rig.model, rig.drive)
+    except ValueError as exc:
+        raise RigError(f"the pressure model cannot be built from this rig ({exc})", rig.name,
+                       "check the rig file's [tube], [holes] and [drive] values") from None
 
 
 def member_label(point: LossPoint) -> str:
@@ -158,21 +172,22 @@ def member_label(point: LossPoint) -> str:
 
 def family_filters(rig: Rig) -> tuple:
     """``(label, HoleFilters)`` for every member of the rig's loss family, best estimate first."""
-    key = (rig.acoustic_hash(), rig.calibration_hash())
-    if key not in _FAMILIES:
-        best = hole_filters(rig)
-        fam = rig.loss_family
-        chosen = members(fam, rig.drive.reference_frequency_hz)
-        out = [(member_label(fam.best) + " (best estimate)", best)]
-        for point in chosen:
-            if point == fam.best:
-                continue
-            out.append((member_label(point), design_hole_filters(fam.model(point), rig.drive,
-                                                                 rate_hz=best.rate_hz)))
-        if len(_FAMILIES) >= _FILTERS_KEPT:
-            _FAMILIES.pop(next(iter(_FAMILIES)))
-        _FAMILIES[key] = tuple(out)
-    return _FAMILIES[key]
+    return _family_filters(_ResponseKey(rig))
+
+
+@lru_cache(maxsize=_FILTERS_KEPT)
+def _family_filters(key: _ResponseKey) -> tuple:
+    rig = key.rig
+    best = hole_filters(rig)
+    fam = rig.loss_family
+    chosen = members(fam, rig.drive.reference_frequency_hz)
+    out = [(member_label(fam.best) + " (best estimate)", best)]
+    for point in chosen:
+        if point == fam.best:
+            continue
+        out.append((member_label(point), design_hole_filters(fam.model(point), rig.drive,
+                                                             rate_hz=best.rate_hz)))
+    return tuple(out)
 
 
 def _robust(rig: Rig, first: PressureFrames, run_member, robust: bool) -> tuple[PressureFrames, str, str]:

@@ -99,12 +99,6 @@ def half_power_q(freq_hz: np.ndarray, power: np.ndarray, k: int, lo: int, hi: in
     return float(freq_hz[k] / width) if width > 0 else None
 
 
-def resonator(freq_hz, f0_hz, q) -> np.ndarray:
-    """``1 / (1 + j Q (f/f0 - f0/f))`` (DEVELOPERS.md Methods §8)."""
-    f = np.asarray(freq_hz, dtype=float)
-    return 1.0 / (1.0 + 1j * q * (f / f0_hz - f0_hz / f))
-
-
 def _fit_local(f: np.ndarray, h: np.ndarray, centres: np.ndarray, qs: np.ndarray, main: int,
                f_ref: float):
     """Least-squares fit of a few resonators + line + delay; returns (f, Q, A) of ``main``."""

@@ -29,6 +29,7 @@ from showkit.analysis.score import (APPROXIMATION, frame_gate, mode_frames, mode
 from showkit.analysis.segments import passages as find_passages
 from showkit.analysis import transpose
 from showkit.errors import AudioError, ShowkitError
+from showkit.limits import MAX_SCAN_S
 from showkit.physics.flames import FRAME_RATE_HZ
 from showkit.physics.response import envelope_range
 from showkit.rigfile import Rig
@@ -132,8 +133,6 @@ def _analyse(rig: Rig, path: str | Path, threads: int | None = None) -> _Work:
 
 
 def _analyse_now(rig: Rig, path: Path, threads: int | None) -> _Work:
-    from showkit.limits import MAX_SCAN_S
-
     info = audio_info(path)
     if info.duration_s > MAX_SCAN_S:
         raise AudioError(f"the track is {info.duration_s / 60:.0f} min long, more than a scan analyses in one "

@@ -156,14 +156,6 @@ class ModeFrames:
                      np.minimum(1.0, self.strength / FULL_STRENGTH), 0.0)
         return w.max(axis=0)
 
-    def mode_index(self, table: ModeTable) -> np.ndarray:
-        """Per frame, the readable mode held most strongly (-1: none)."""
-        if self.strength.shape[0] == 0:
-            return np.full(self.strength.shape[1], -1)
-        w = np.where(self.held & np.asarray(table.readable)[:, None], self.strength + 1e-6, 0.0)
-        k = np.argmax(w, axis=0)
-        return np.where(w.max(axis=0) > 0, k, -1)
-
 
 def hold_frames(table: ModeTable, frame_rate_hz: float) -> np.ndarray:
     """Frames each mode must be held: ``max(MIN_HOLD_S, 2 Q / (pi f_n))`` (per mode)."""

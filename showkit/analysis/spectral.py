@@ -53,11 +53,6 @@ def frame_count(samples: int, hop: int) -> int:
     return 1 + int(samples) // int(hop)
 
 
-def centre_pad(x: np.ndarray, n_fft: int) -> np.ndarray:
-    """Zero-pad ``n_fft // 2`` before and ``n_fft`` after, so frame ``k`` starts at ``k * hop``."""
-    return np.pad(np.asarray(x, dtype=np.float32), (n_fft // 2, n_fft))
-
-
 def stft_power(padded: np.ndarray, n_fft: int, hop: int, first: int, last: int,
                keep: slice) -> np.ndarray:
     """``|STFT|^2`` of frames ``first`` to ``last - 1`` for the bins in ``keep``.
@@ -65,7 +60,8 @@ def stft_power(padded: np.ndarray, n_fft: int, hop: int, first: int, last: int,
     Parameters
     ----------
     padded : ndarray
-        Mono signal (float32, digital full scale) after :func:`centre_pad`.
+        Mono signal (float32, digital full scale), zero-padded ``n_fft // 2`` before so frame
+        ``k`` starts at ``k * hop``.
     n_fft : int
         Window and transform length, samples.
     hop : int

@@ -7,8 +7,6 @@ Method
   AES 108th Convention, Paris, preprint 5093, 2000):
   ``x(t) = A sin(2 pi f1 L (exp(t / L) - 1))`` with ``L = T / ln(f2 / f1)``,
   faded in with a squared sine and out with a squared cosine.
-- Its inverse filter (same paper) is the time-reversed sweep with an
-  envelope falling 6 dB per octave, ``exp(-t / L)``; :func:`inverse_sweep`.
 - Deconvolution is regularised spectral division (O. Kirkeby & P. A. Nelson,
   "Digital filter design for inversion problems in sound reproduction",
   J. Audio Eng. Soc. 47(7/8), 583-595, 1999):
@@ -149,26 +147,6 @@ def exponential_sweep(spec: SweepSpec) -> np.ndarray:
     if n_out > 0:
         x[-n_out:] *= np.cos(np.linspace(0.0, np.pi / 2.0, n_out)) ** 2
     return x
-
-
-def inverse_sweep(spec: SweepSpec) -> np.ndarray:
-    """Farina's inverse filter: the reversed sweep with a -6 dB/octave envelope.
-
-    Scaled so that the sweep convolved with it has unit gain at the band's
-    geometric centre.
-
-    Parameters
-    ----------
-    spec : SweepSpec
-    """
-    x = exponential_sweep(spec)
-    t = np.arange(x.size) / spec.sample_rate_hz
-    inv = x[::-1] * np.exp(-t / spec.rate_l_s)
-    n_fft = _next_fast(2 * x.size)
-    f_mid = np.sqrt(spec.f_start_hz * spec.f_stop_hz)
-    k = int(round(f_mid * n_fft / spec.sample_rate_hz))
-    gain = np.abs(np.fft.rfft(x, n_fft)[k] * np.fft.rfft(inv, n_fft)[k])
-    return inv / gain
 
 
 def _next_fast(n: int) -> int:

@@ -15,6 +15,7 @@ import argparse
 import sys
 
 from showkit.cli.common import add_conditions_options, conditions_from_args, level_caution
+from showkit.show.status import CueStatus
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -37,7 +38,7 @@ def run(args) -> int:
     reserve = today.reserve if args.reserve is not None else None
     result = make_book(args.sheet, args.out, args.paper, args.png, static_pa, reserve)
     level_caution()
-    bad = {k: v for k, v in result["states"].items() if v != "ok"}
+    bad = {k: v for k, v in result["states"].items() if v != CueStatus.OK}
     print(f"wrote {result['pdf']}: {result['pages']} pages ({args.paper})")
     if result["png"]:
         print(f"wrote {len(result['png'])} PNG pages into {args.png}")

@@ -11,16 +11,13 @@ from __future__ import annotations
 
 import argparse
 
-from showkit.cli.common import add_json_option
+from showkit.cli.common import add_conditions_options, add_json_option
+from showkit.printable import printable
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("sheet", help="cue sheet (TOML)")
-    parser.add_argument("--static", metavar="PRESSURE",
-                        help='today\'s static overpressure from the manometer, e.g. "22 Pa", '
-                             '"0.09 inH2O", "0.22 mbar" (default: the rig file\'s)')
-    parser.add_argument("--reserve", metavar="FRACTION",
-                        help="fraction of the static pressure kept in reserve, 0 to 0.9 (default: the rig's)")
+    add_conditions_options(parser)
     add_json_option(parser)
 
 
@@ -36,7 +33,6 @@ def headroom_bar(headroom_db: float | None, width: int = 12, span_db: float = 12
 
 def run(args) -> int:
     from showkit.cli.common import conditions_from_args, level_caution, print_json, table
-    from showkit.printable import printable
     from showkit.show.lock import check_sheet, sheet_rig
     from showkit.show.sheet import load_sheet
     from showkit.show.status import CueStatus

@@ -14,6 +14,8 @@ from __future__ import annotations
 import argparse
 import sys
 
+from showkit.printable import printable
+
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("sheet", help="cue sheet (TOML)")
@@ -23,7 +25,6 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 def run(args) -> int:
     from showkit.cli.common import level_caution, table
-    from showkit.printable import printable
     from showkit.show.lock import check_sheet, lock_sheet, sheet_rig
     from showkit.show.sheet import load_sheet, save_sheet
     from showkit.show.sources import SignalMemo

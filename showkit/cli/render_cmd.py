@@ -11,6 +11,9 @@ from __future__ import annotations
 
 import argparse
 
+from showkit.cli.common import add_conditions_options
+from showkit.printable import printable
+
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("sheet", help="cue sheet (TOML)")
@@ -19,17 +22,13 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     out.add_argument("--per-cue", metavar="DIR", help="one WAV per cue, NN-id.wav, at the source rate")
     parser.add_argument("--bits", choices=("float", "24"), default="float",
                         help="sample format: 32-bit float (default) or 24-bit integer")
-    parser.add_argument("--static", metavar="PRESSURE",
-                        help='today\'s static overpressure, e.g. "22 Pa" (default: the rig file\'s)')
-    parser.add_argument("--reserve", metavar="FRACTION",
-                        help="fraction of the static pressure kept in reserve, 0 to 0.9 (default: the rig's)")
+    add_conditions_options(parser)
 
 
 def run(args) -> int:
     from pathlib import Path
 
     from showkit.cli.common import conditions_from_args, level_caution, table
-    from showkit.printable import printable
     from showkit.safesave import check_target
     from showkit.show.lock import sheet_rig
     from showkit.show.render import render_iter, write_per_cue, write_show

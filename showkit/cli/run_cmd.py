@@ -25,6 +25,7 @@ import shutil
 import sys
 import time
 
+from showkit.errors import DeviceError, InputError, SheetError, ShowkitError
 from showkit.printable import printable
 from showkit.units import format_time
 
@@ -60,7 +61,6 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 def run(args) -> int:
     from showkit.cli.common import level_caution
-    from showkit.errors import InputError
     from showkit.safety import caution_text
     from showkit.show.showlog import ShowLog
 
@@ -89,7 +89,6 @@ def run(args) -> int:
 
 def _show_files(sheet_path) -> list:
     """The files the show reads (the log must never be written into one of them)."""
-    from showkit.errors import ShowkitError
     from showkit.show.sheet import load_sheet, sheet_inputs
 
     try:
@@ -108,7 +107,6 @@ def _is_tty(stream) -> bool:
 def pre_show(args, log, static_pa, temperature_k, out):
     """The pre-show check: render for playback, log and print the summary; returns the cues."""
     from showkit.cli.common import table
-    from showkit.errors import SheetError
     from showkit.show.preshow import pre_show_check
 
     cues, problems = pre_show_check(args.sheet, log, static_pa, temperature_k)
@@ -136,7 +134,6 @@ def pre_show(args, log, static_pa, temperature_k, out):
 
 
 def _run(args, log, static_pa, temperature_k, out) -> int:
-    from showkit.errors import DeviceError
     from showkit.show.engine import Engine
 
     cues = pre_show(args, log, static_pa, temperature_k, out)
@@ -260,7 +257,6 @@ class KeyRunner:
 
         The keys are :data:`showkit.show.operator_keys.OPERATOR_KEYS`; ``q`` quits.
         """
-        from showkit.errors import ShowkitError
         from showkit.show.operator_keys import shown, terminal_actions
 
         engine = self.engine

@@ -122,19 +122,18 @@ def _write_csv(path: str, tracks: list[dict], protect=()) -> None:
 
     from showkit.safesave import write_text
 
-    if True:
-        with io.StringIO(newline="") as f:
-            w = csv.writer(f)
-            w.writerow(["path", "track_score", "transpose_semitones", "transpose_score", "error",
-                        "start_s", "end_s", "passage_score", "modes", "ceiling_db", "contrast"])
-            for t in tracks:
-                base = [t["path"], t["score"], t["transpose_semitones"], t["transpose_score"], t["error"] or ""]
-                if not t["passages"]:
-                    w.writerow(base + [""] * 6)
-                for p in t["passages"]:
-                    w.writerow(base + [p["start_s"], p["end_s"], p["score"],
-                                       " ".join(str(n) for n in p["modes"]), p["ceiling_db"], p["contrast"]])
-            text = f.getvalue()
+    with io.StringIO(newline="") as f:
+        w = csv.writer(f)
+        w.writerow(["path", "track_score", "transpose_semitones", "transpose_score", "error",
+                    "start_s", "end_s", "passage_score", "modes", "ceiling_db", "contrast"])
+        for t in tracks:
+            base = [t["path"], t["score"], t["transpose_semitones"], t["transpose_score"], t["error"] or ""]
+            if not t["passages"]:
+                w.writerow(base + [""] * 6)
+            for p in t["passages"]:
+                w.writerow(base + [p["start_s"], p["end_s"], p["score"],
+                                   " ".join(str(n) for n in p["modes"]), p["ceiling_db"], p["contrast"]])
+        text = f.getvalue()
     # the safe writer: a full disk or a bad path leaves any earlier CSV whole
     write_text(path, text, backups=0, protect=protect, what="CSV file")
 
@@ -157,10 +156,10 @@ def _previews(tracks: list[dict], semitones: float, protect=()) -> None:
 
 def _write_map(rig, track: dict, target: str, protect=()) -> None:
     """Write the track's time x mode map (:func:`showkit.analysis.scan.map_data`) through the safe writer."""
-    from showkit.analysis.scan import track_frames
+    from showkit.analysis.scan import track_map
     from showkit.safesave import write_text
 
-    data = track_frames(rig, track["path"])["map"]
+    data = track_map(rig, track["path"])
     data = {"track": track["path"], **data}
     write_text(Path(target), json.dumps(data, separators=(",", ":")) + "\n", backups=0, protect=protect,
                what="scan map")

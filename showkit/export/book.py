@@ -30,6 +30,7 @@ from showkit.physics.modes import find_modes
 from showkit.safesave import replacing
 from showkit.safety import CAUTION_TITLE, CAUTIONS
 from showkit.show.sheet import AudioSource, describe_source, load_sheet
+from showkit.show.status import CueStatus
 from showkit.units import format_time
 
 #: What the ceiling guarantees and what it assumes (the README's *Ceilings and flames*).
@@ -50,8 +51,8 @@ ASSUMPTIONS = (
     "up to 5.8 dB too high between modes, so measure your tube and start low. A "
     "ceiling is a model's estimate, not a safety device.")
 
-STATE_TEXT = {"ok": "ok", "over": "OVER - NOT PLAYABLE", "stale": "STALE - NOT PLAYABLE",
-              "error": "ERROR - NOT PLAYABLE"}
+STATE_TEXT = {CueStatus.OK: "ok", CueStatus.OVER: "OVER - NOT PLAYABLE",
+              CueStatus.STALE: "STALE - NOT PLAYABLE", CueStatus.ERROR: "ERROR - NOT PLAYABLE"}
 
 
 @dataclass
@@ -94,10 +95,10 @@ def cue_flames(sheet, rig, cue, check, signals=None):
     from showkit.show.render import render_cue
     from showkit.show.sources import cue_signal
 
-    if check.status == "ok":
+    if check.status == CueStatus.OK:
         v = render_cue(sheet, rig, cue, signals)
         return signal_flames(rig, v.samples, v.rate_hz, 0.0)
-    if check.status == "over":
+    if check.status == CueStatus.OVER:
         sig = signals.get(sheet, rig, cue) if signals is not None else cue_signal(sheet, rig, cue)
         return signal_flames(rig, sig.samples, sig.rate_hz, cue.gain_db)
     return None
@@ -177,8 +178,8 @@ def cover_page(plt, data: BookData, size):
     y = _lines(fig, 0.08, 0.95, [sheet.title], size=18, weight="bold")
     y = _lines(fig, 0.08, y - 0.005, [f"Show book made {data.made_at} from {sheet.path.name if sheet.path else 'the sheet'}"],
                size=8)
-    counts = {s: sum(1 for e in data.entries if e.check.status == s) for s in ("ok", "over", "stale", "error")}
-    bad = [e for e in data.entries if e.check.status != "ok"]
+    counts = {s: sum(1 for e in data.entries if e.check.status == s) for s in CueStatus}
+    bad = [e for e in data.entries if e.check.status != CueStatus.OK]
     summary = f"{len(data.entries)} cues: " + ", ".join(f"{v} {k}" for k, v in counts.items() if v)
     y = _lines(fig, 0.08, y - 0.01, [summary], size=10)
     if bad:
@@ -227,7 +228,7 @@ def _row_cells(k, e) -> list[list[str]]:
     head = "-" if ch.headroom_db is None else f"{ch.headroom_db:+.2f}"
     state = STATE_TEXT.get(ch.status, ch.status)
     notes = c.notes
-    if ch.status != "ok":
+    if ch.status != CueStatus.OK:
         notes = (notes + " / " if notes else "") + ch.message
     cells = [str(k), c.id, c.label, e.kind_text, f"{c.gain_db:+.2f}", ceiling, head, state, c.then,
              f"{c.fade_in_s:g} / {c.fade_out_s:g}", notes]
@@ -254,12 +255,12 @@ def running_order_pages(plt, data: BookData, size) -> list:
             for title, _, x in COLUMNS:
                 fig.text(x, y, title, fontsize=7, weight="bold", va="top")
             y -= line + 0.008
-        if e.check.status != "ok":
+        if e.check.status != CueStatus.OK:
             fig.patches.append(plt.Rectangle((0.025, y - height + 0.006), 0.95, height - 0.002,
                                              transform=fig.transFigure, facecolor="#ffd6d6",
                                              edgecolor=WORST, linewidth=1.5))
         for i, (lines, (_, _, x)) in enumerate(zip(cells, COLUMNS)):
-            bad = i == 7 and e.check.status != "ok"
+            bad = i == 7 and e.check.status != CueStatus.OK
             _lines(fig, x, y, lines, size=7, step=line, weight="bold" if bad or i == 1 else "normal",
                    color=WORST if bad else "black")
         y -= height
@@ -272,7 +273,7 @@ def cue_page(plt, data: BookData, k: int, e: CueEntry, size):
     title = f"Cue {k} of {len(data.entries)}: {c.id}" + (f" - {c.label}" if c.label else "")
     y = _lines(fig, 0.08, 0.96, _wrap(title, 60), size=13, weight="bold")
     state = STATE_TEXT.get(ch.status, ch.status)
-    if ch.status != "ok":
+    if ch.status != CueStatus.OK:
         fig.text(0.08, y, f"{state}: {ch.message}"[:120], fontsize=10, weight="bold", color="white", va="top",
                  bbox={"facecolor": WORST, "edgecolor": WORST, "pad": 2})
         y -= 0.03
@@ -297,13 +298,13 @@ def cue_page(plt, data: BookData, k: int, e: CueEntry, size):
             moment = "(silent cue)"
         draw_flame_row(ax, g.hole_positions_m, g.length_m, e.height, e.air_in, e.worst_hole,
                        title=f"Predicted flame row at the cue's gain {moment}")
-        if ch.status == "over":
+        if ch.status == CueStatus.OVER:
             ax.text(0.5, 0.5, "OVER: this is what the excess would do", transform=ax.transAxes, ha="center",
                     color=WORST, fontsize=12, weight="bold", alpha=0.8)
     else:
         ax.axis("off")
         ax.text(0.5, 0.5, "\n".join(_wrap(e.flames_note, 80)), transform=ax.transAxes, ha="center",
-                va="center", fontsize=10, color=WORST if ch.status != "ok" else "black")
+                va="center", fontsize=10, color=WORST if ch.status != CueStatus.OK else "black")
     if e.map is not None:
         mx = fig.add_axes((0.22, 0.08, 0.72, 0.3))
         s = c.source

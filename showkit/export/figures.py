@@ -207,7 +207,7 @@ def response_figure(freq_hz, level_db, report: dict, size_in=PLOT_SIZE_IN):
     return fig
 
 
-def write_plot(fig, path, size_px: tuple[int, int] | None = None) -> Path:
+def write_plot(fig, path) -> Path:
     """Save a command-line plot at :data:`PLOT_DPI` and close it."""
     plt = plotting()
     try:

@@ -37,6 +37,7 @@ from showkit.export.common import plotting
 from showkit.physics.flames import FRAME_RATE_HZ
 from showkit.safesave import replacing
 from showkit.show.sheet import load_sheet
+from showkit.show.status import CueStatus
 from showkit.units import format_time
 
 #: Video frames per second: one flame frame per video frame.
@@ -168,7 +169,7 @@ class Segment:
     lag: int = 0
     gain_db: float | None = None
     ceiling_db: float | None = None
-    status: str = "ok"
+    status: str = CueStatus.OK
     message: str = ""
 
     def frame(self, t_s: float, holes: int):
@@ -229,17 +230,18 @@ def sheet_timeline(sheet_path, static_pa: float | None = None, reserve: float | 
         signals = SignalMemo()  # the cue's sound built once for its check and its render
         check = check_cue(sheet, rig, cue, signals=signals)
         v = None
-        if check.status == "ok":
+        if check.status == CueStatus.OK:
             try:
                 v = render_cue(sheet, rig, cue, signals)
             except ShowkitError as exc:
-                check = type(check)(cue.id, cue.gain_db, check.ceiling_db, check.headroom_db, "error", exc.line())
+                check = type(check)(cue.id, cue.gain_db, check.ceiling_db, check.headroom_db, CueStatus.ERROR,
+                                    exc.line())
         if v is None:
             notes.append(f"cue {cue.id}: {check.status}: {check.message}")
             silent = RenderedCue(id=cue.id, label=cue.label,
                                  samples=np.zeros(int(round(CARD_S * SHOW_RATE_HZ)), np.float32),
                                  rate_hz=SHOW_RATE_HZ, then=cue.then, gain_db=cue.gain_db,
-                                 ceiling_db=math.nan, status="ok", margin_pa=0.0,
+                                 ceiling_db=math.nan, status=CueStatus.OK, margin_pa=0.0,
                                  min_pressure_pa=rig.static_pa)
             segments.append(Segment(cue.id, cue.label, t, CARD_S, None, None, 0, cue.gain_db,
                                     check.ceiling_db, check.status, check.message))
@@ -249,7 +251,7 @@ def sheet_timeline(sheet_path, static_pa: float | None = None, reserve: float | 
         frames = signal_flames(rig, v.samples, v.rate_hz, 0.0)
         d = v.samples.size / v.rate_hz
         segments.append(Segment(cue.id, cue.label, t, d, frames.height, frames.air_in, lag, v.gain_db,
-                                v.ceiling_db, "ok", ""))
+                                v.ceiling_db, CueStatus.OK, ""))
         parts.append(v)
         t += d
     if progress:
@@ -304,7 +306,7 @@ def track_timeline(rig, path, start_s: float | None = None, end_s: float | None 
     g = rig.geometry
     name = Path(path).name
     seg = Segment(name, "track preview", 0.0, samples.size / audio.rate_hz, frames.height, frames.air_in,
-                  frame_lag(rig), gain, ceiling, "ok", "")
+                  frame_lag(rig), gain, ceiling, CueStatus.OK, "")
     offset = audio.start_s
     tl = Timeline(f"{name} from {offset:.1f} s", rig.name, g.hole_positions_m, g.length_m, rig.static_pa,
                   [seg], samples, int(audio.rate_hz))
@@ -375,7 +377,7 @@ class Painter:
             head = seg.name + (f"  {seg.label}" if seg.label else "")
             room = (L.width - 2 * L.tube_x0 - self.clock_cells * self.gs.cell_w) // self.gb.cell_w - 1
             put_text(img, L.tube_x0, 4, head[:max(room, 8)], self.gb, TEXT)
-            if seg.status == "ok":
+            if seg.status == CueStatus.OK:
                 words = (f"gain {seg.gain_db:+.2f} dB, ceiling {seg.ceiling_db:+.2f} dB"
                          if seg.gain_db is not None and seg.ceiling_db is not None else "")
                 put_text(img, L.tube_x0, 4 + self.gb.cell_h, words, self.gs, DIM)

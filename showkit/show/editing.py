@@ -34,6 +34,7 @@ from pathlib import Path
 from showkit.errors import InputError, SheetError, ShowkitError
 from showkit.show.sheet import (AudioSource, Cue, GlideSource, PauseSource, Sheet, ToneSource,
                                 floor_db, parse_sheet, save_sheet, sheet_to_text)
+from showkit.show.status import CueStatus
 from showkit.units import format_time as _clock  # the one m:ss.s formatter
 
 #: How many undo snapshots are kept.
@@ -43,7 +44,7 @@ GAIN_STEP_DB = 0.5
 #: A passage added from a track is set this far below its ceiling, dB.
 PASSAGE_MARGIN_DB = 3.0
 #: Check statuses under which a cue's ceiling is not known (its gain may only come down).
-UNKNOWN_CEILING = ("stale", "error")
+UNKNOWN_CEILING = (CueStatus.STALE, CueStatus.ERROR)
 
 
 @dataclass(frozen=True)
@@ -354,12 +355,12 @@ class SheetEditor:
         if gain == check.gain_db:
             return
         head = check.ceiling_db - gain
-        status = "over" if head < -1e-9 else "ok"
+        status = CueStatus.OVER if head < -1e-9 else CueStatus.OK
         if check.status in UNKNOWN_CEILING:
             status = check.status
         self.checks[cue_id] = replace(check, gain_db=gain, headroom_db=head, status=status,
                                       message=check.message if status in UNKNOWN_CEILING
-                                      else f"{head:.1f} dB below the ceiling" if status == "ok"
+                                      else f"{head:.1f} dB below the ceiling" if status == CueStatus.OK
                                       else f"gain is {-head:.2f} dB above today's ceiling")
 
 

@@ -83,7 +83,8 @@ from collections import Counter
 from dataclasses import dataclass
 
 from showkit.errors import DeviceError, InputError, SheetError
-from showkit.show.mixer import Event, Mixer, Reason, State
+from showkit.show.mixer import Event, Mixer, Reason
+from showkit.show.status import State
 from showkit.show.playlist import RenderedCue, resample_cues
 from showkit.units import db, undb
 
@@ -110,11 +111,6 @@ _REASON_TEXT = {
 }
 
 
-def state_text(state: State) -> str:
-    """The status word for a state ("idle", "playing", "fading", "panic", "fault", "closed")."""
-    return state.name.lower()
-
-
 @dataclass(frozen=True)
 class EngineEvent:
     """One thing that happened, for the screen (already written to the log).
@@ -139,9 +135,9 @@ class EngineEvent:
 class EngineStatus:
     """A snapshot for the screen.
 
-    state : str
-        "idle", "playing", "fading", "panic" (silent, waiting for re-arm),
-        "fault" (device problem) or "closed".
+    state : State
+        ``State.IDLE``, ``PLAYING``, ``FADING``, ``PANIC`` (silent, waiting for re-arm),
+        ``FAULT`` (device problem) or ``CLOSED``; each member is its word ("idle", ...).
     cue_index, cue_id, cue_label : the cue playing (None when idle).
     next_index, next_id : the cue ``go()`` would start (None past the end).
     skipped_ids : the cues that may not be played, passed over to reach the next one.
@@ -150,7 +146,7 @@ class EngineStatus:
     message : a line for the status bar (the last fault and what to do, or "").
     """
 
-    state: str
+    state: State
     cue_index: int | None
     cue_id: str | None
     cue_label: str | None
@@ -563,7 +559,7 @@ class Engine:
         cue = self.cues[cur] if cur >= 0 else None
         elapsed = min(pos, cue.frames) / self.rate_hz if cue else 0.0
         left = max(0, cue.frames - pos) / self.rate_hz if cue else 0.0
-        return EngineStatus(state=state_text(state), cue_index=cur if cue else None,
+        return EngineStatus(state=state, cue_index=cur if cue else None,
                             cue_id=cue.id if cue else None, cue_label=cue.label if cue else None,
                             next_index=nxt, next_id=self.cues[nxt].id if nxt is not None else None,
                             skipped_ids=tuple(self.cues[k].id for k in self.skipped),

@@ -45,19 +45,10 @@ from enum import IntEnum
 
 import numpy as np
 
+from showkit.show.status import State  # the one state enum, shared with the engine and the screens
+
 #: Events the ring holds before the oldest are overwritten.
 RING = 256
-
-
-class State(IntEnum):
-    """The show's state; the engine derives its status text from the member name."""
-
-    IDLE = 0
-    PLAYING = 1
-    FADING = 2
-    PANIC = 3
-    FAULT = 4   # the engine's: the device failed
-    CLOSED = 5  # the engine's: the stream is closed
 
 
 class Event(IntEnum):

@@ -31,9 +31,6 @@ from showkit.errors import InputError, ShowkitError
 from showkit.show.sheet import THEN_VALUES  # one definition: the sheet's
 from showkit.show.status import CueStatus
 
-#: The statuses, as text (the members of :class:`CueStatus`; kept for older callers).
-STATUS_VALUES = tuple(CueStatus)
-
 #: What to do about a cue that may not be played, by status.
 _STATUS_FIX = {
     CueStatus.STALE: "its lock no longer matches its audio, rig or calibration: re-lock the sheet "

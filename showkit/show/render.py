@@ -21,6 +21,7 @@ from pathlib import Path
 import numpy as np
 
 from showkit.errors import OutputError, SheetError, ShowkitError
+from showkit.limits import MAX_RATE_HZ, MAX_SHOW_SAMPLES
 from showkit.rigfile import Rig
 from showkit.show.lock import check_cue, sheet_rig
 from showkit.show.playlist import RenderedCue
@@ -152,8 +153,6 @@ def write_wav(path: Path, samples: np.ndarray, rate_hz: int, subtype: str = "FLO
 
 
 def _check_rate(rate_hz: int, where: str) -> None:
-    from showkit.limits import MAX_RATE_HZ
-
     if not 0 < rate_hz <= MAX_RATE_HZ:
         raise SheetError(f"a render at {rate_hz} Hz is above showkit's limit ({MAX_RATE_HZ} Hz)", where,
                          "resample the source audio to 48 or 96 kHz")
@@ -275,7 +274,6 @@ def render_for_playback(sheet_path, static_pa: float | None = None,
         One line per cue that does not fit or could not be rendered, and what
         the pre-show check used.
     """
-    from showkit.limits import MAX_SHOW_SAMPLES
     from showkit.show.preshow import cue_for_today
     from showkit.show.sheet import load_sheet
 

@@ -1,4 +1,5 @@
-"""A cue's status today, the one vocabulary of the lock, the check, the render and the run.
+"""A cue's status today, the one vocabulary of the lock, the check, the render and the run;
+and the show's state, the one state enum of the mixer, the engine and the screens.
 
 :class:`CueStatus` is a :class:`enum.StrEnum`: each member *is* its text (``CueStatus.OK ==
 "ok"``, ``f"{CueStatus.STALE}" == "stale"``, ``json.dumps`` writes ``"over"``), so the show
@@ -8,6 +9,8 @@ log, ``--json``, the screen and any code that compares with the plain words read
 from __future__ import annotations
 
 from enum import StrEnum
+
+from showkit.errors import InputError
 
 
 class CueStatus(StrEnum):
@@ -30,7 +33,20 @@ class CueStatus(StrEnum):
         try:
             return cls(value)
         except ValueError:
-            from showkit.errors import InputError
-
             raise InputError(f"status must be one of {', '.join(cls)} (got {value!r})", where,
                              "this is a bug in the renderer") from None
+
+
+class State(StrEnum):
+    """The show's state: the audio callback's state machine (:mod:`showkit.show.mixer`) moves
+    between IDLE, PLAYING, FADING and PANIC; FAULT (the device failed) and CLOSED (the stream is
+    closed) are the engine's.  Each member *is* its status word (``State.IDLE == "idle"``), the
+    word :meth:`showkit.show.engine.Engine.status` reports and ``showkit run`` prints.
+    """
+
+    IDLE = "idle"
+    PLAYING = "playing"
+    FADING = "fading"
+    PANIC = "panic"
+    FAULT = "fault"
+    CLOSED = "closed"

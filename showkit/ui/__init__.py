@@ -1,1 +1,1 @@
-"""The terminal UI (Textual): Show, Tube and Track views over :mod:`showkit.ui.session`."""
+"""The terminal UI (Textual): the Show, Tube, Track, Run and Measure views over :mod:`showkit.ui.session`."""

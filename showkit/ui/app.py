@@ -38,6 +38,7 @@ from textual.widgets import ContentSwitcher, Footer, ProgressBar, Static
 
 from showkit.errors import ShowkitError
 from showkit.printable import printable
+from showkit.show.status import CueStatus
 from showkit.ui import messages as msg
 from showkit.ui.jobs import JobRunner
 from showkit.ui.session import Session
@@ -284,18 +285,18 @@ class ShowkitApp(JobRunner, App):
             if self.view("show") is not None:
                 self.view("show").refresh_table()
             unlocked = [c.id for c in s.sheet.cues if c.lock is None and c.id in checks
-                        and checks[c.id].status == "stale" and c.id not in self._auto_locked]
+                        and checks[c.id].status == CueStatus.STALE and c.id not in self._auto_locked]
             self._auto_locked.update(unlocked)
             if unlocked and not self.busy("lock"):
                 self.say(f"locking {len(unlocked)} cue(s) that were never locked…")
                 self.start_lock(unlocked)
                 return
-            bad = [c for c in checks.values() if c.status != "ok"]
+            bad = [c for c in checks.values() if c.status != CueStatus.OK]
             if bad:
                 from showkit.ui.show import ui_message as _ui_message
 
                 self.say(f"{len(bad)} cue(s) need attention; {bad[0].id} is {bad[0].status}: "
-                         f"{_ui_message(bad[0].message)}", warn=any(c.status != "stale" for c in bad))
+                         f"{_ui_message(bad[0].message)}", warn=any(c.status != CueStatus.STALE for c in bad))
             else:
                 self.say(f"all {len(checks)} cues ok for today's conditions")
 
@@ -485,7 +486,7 @@ class ShowkitApp(JobRunner, App):
             return
         s = self.session
         check = s.checks.get(cid)
-        if check is None or check.status != "ok":
+        if check is None or check.status != CueStatus.OK:
             self.say(f"{cid} cannot be auditioned: " + ("it is being checked" if check is None else check.message),
                      warn=True)
             return

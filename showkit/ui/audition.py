@@ -7,6 +7,8 @@ raises the engine's DeviceError, whose one line the UI shows.
 
 from __future__ import annotations
 
+from showkit.show.status import State
+
 
 class Audition:
     """At most one cue playing at a time."""
@@ -39,11 +41,11 @@ class Audition:
         events = self.engine.poll()
         st = self.engine.status()
         ended = [e for e in events if e.kind in ("stop", "device_error", "panic")]
-        if ended or st.state in ("fault", "panic", "closed"):
+        if ended or st.state in (State.FAULT, State.PANIC, State.CLOSED):
             text = st.message or (ended[-1].detail if ended else st.state)
             self.stop()
             return f"audition: {text}"
-        if st.state == "playing":
+        if st.state == State.PLAYING:
             return f"playing {st.cue_id}: {st.elapsed_s:.1f} s, {st.left_s:.1f} s left -- esc stops it (panic)"
         return None
 

@@ -10,18 +10,25 @@ from __future__ import annotations
 
 from pathlib import Path
 
+from showkit.show.status import CueStatus
+
 
 def _beside(session, stem: str, suffix: str) -> Path:
     safe = "".join(ch if ch.isalnum() or ch in "-_." else "_" for ch in stem)
     return session.sheet.folder / f"{safe}{suffix}"
 
 
+def _sheet_export(view, suffix: str) -> tuple:
+    """``(output path beside the sheet, today's static Pa, reserve fraction, sheet path)``."""
+    s = view.session
+    out = _beside(s, s.sheet.path.stem, suffix)
+    rig = s.rig
+    return out, rig.static_pa, rig.reserve, s.sheet.path
+
+
 def book(view) -> None:
     """The show book of the open sheet, for today's manometer reading (Show view)."""
-    s = view.session
-    out = _beside(s, s.sheet.path.stem, "-book.pdf")
-    rig = s.rig
-    static, reserve, sheet_path = rig.static_pa, rig.reserve, s.sheet.path
+    out, static, reserve, sheet_path = _sheet_export(view, "-book.pdf")
 
     def work(progress):
         from showkit.export.book import make_book
@@ -29,7 +36,7 @@ def book(view) -> None:
         return make_book(sheet_path, out, "a4", None, static, reserve, progress)
 
     def done(result):
-        bad = [k for k, v in result["states"].items() if v != "ok"]
+        bad = [k for k, v in result["states"].items() if v != CueStatus.OK]
         view.say(f"show book written: {result['pdf']} ({result['pages']} pages)"
                 + (f"; marked not playable: {', '.join(bad)}" if bad else ""), warn=bool(bad))
 
@@ -38,10 +45,7 @@ def book(view) -> None:
 
 def sheet_preview(view) -> None:
     """The flame preview video of the whole show, true scale (Show view)."""
-    s = view.session
-    out = _beside(s, s.sheet.path.stem, "-preview.mp4")
-    rig = s.rig
-    static, reserve, sheet_path = rig.static_pa, rig.reserve, s.sheet.path
+    out, static, reserve, sheet_path = _sheet_export(view, "-preview.mp4")
 
     def work(progress):
         from showkit.export.preview import sheet_timeline, write_video

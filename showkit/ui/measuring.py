@@ -13,6 +13,8 @@ import math
 from dataclasses import dataclass
 from pathlib import Path
 
+from showkit.errors import RigError
+
 
 @dataclass
 class Measurement:
@@ -72,7 +74,6 @@ def is_demo_rig(path) -> bool:
 
 def calibration_refused(path: Path) -> str | None:
     """Why the rig file's calibration point is now refused (after a fit moved the modes), or None."""
-    from showkit.errors import RigError
     from showkit.rigfile import load_rig
 
     try:

@@ -5,6 +5,10 @@ app (:class:`showkit.ui.app.ShowkitApp`) routes it in an ``on_…`` handler: the
 status line, a cue added, a lock asked for, today's conditions typed in, the rig
 file written, a rendered cue to audition, and the progress of background jobs
 (:mod:`showkit.ui.jobs`).  Messages bubble from the view up to the app.
+
+The one deliberate exception is panic: the Run view's panic key calls
+:meth:`showkit.ui.app.ShowkitApp.action_panic` directly, because silencing the
+output must not wait in a message queue behind other work.
 """
 
 from __future__ import annotations

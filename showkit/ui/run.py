@@ -39,11 +39,12 @@ from showkit.errors import DeviceError, ShowkitError
 from showkit.printable import printable
 from showkit.safety import LEVEL_CAUTION
 from showkit.show.operator_keys import shown
+from showkit.show.status import State
 from showkit.units import format_time
 
 #: The operator's keys as printed in this view's messages (from the one table).
-GO_KEY, PANIC_KEY, REARM_KEY, RECONNECT_KEY, FADE_KEY = (
-    shown("go"), shown("panic"), shown("rearm"), shown("reconnect"), shown("fade"))
+GO_KEY, PANIC_KEY, RECONNECT_KEY, FADE_KEY = (
+    shown("go"), shown("panic"), shown("reconnect"), shown("fade"))
 from showkit.ui.drawing import flame_picture
 from showkit.ui.messages import ConditionsEntered
 from showkit.ui.viewbase import SessionView
@@ -54,8 +55,8 @@ POLL_S = 0.05
 FADER_STEP_DB = 1.0
 FLAME_LINES = 4
 
-STATE_WORDS = {"idle": "ready", "playing": "PLAYING", "fading": "FADING", "panic": "PANIC (silent)",
-               "fault": "DEVICE FAULT", "closed": "closed"}
+STATE_WORDS = {State.IDLE: "ready", State.PLAYING: "PLAYING", State.FADING: "FADING",
+               State.PANIC: "PANIC (silent)", State.FAULT: "DEVICE FAULT", State.CLOSED: "closed"}
 
 
 def _no_output(exc) -> str:
@@ -525,7 +526,7 @@ class RunView(SessionView):
         if text != getattr(self, "_now_text", None):
             self._now_text = text
             now.update(Text(text))
-        if st.state == "fault" and st.message:
+        if st.state == State.FAULT and st.message:
             self.set_message(f"{st.message}; press {RECONNECT_KEY} to reconnect", warn=True)
         # the flame row at the play position
         flames = self.query_one(RunFlames)

@@ -20,9 +20,12 @@ from showkit.errors import ShowkitError
 from showkit.show.editing import (GAIN_STEP_DB, GainChange, SheetEditor,  # noqa: F401
                                   relative_to)
 from showkit.show.sheet import Cue, Sheet, load_sheet, save_sheet
+from showkit.show.status import CueStatus
 
 #: Length of the steady tone used to predict a mode's flame row, s.
 PREVIEW_TONE_S = 1.2
+#: Flame rows of the Tube view's modes kept (oldest dropped first): a few rigs' worth of modes.
+MODE_FLAMES_KEPT = 64
 
 
 class Session(SheetEditor):
@@ -43,7 +46,6 @@ class Session(SheetEditor):
         self._base_rig = rig
         self.static_pa: float | None = None      # today's manometer reading (None: the rig file's)
         self.temperature_k: float | None = None  # today's gas temperature (None: the rig file's)
-        self.last_message = ""
         self.device = None                       # audio output: None (system default), index or name
         self.log_path = log_path
         self._show_log = None
@@ -167,7 +169,8 @@ class Session(SheetEditor):
         rig = self.base_rig().with_conditions(static_pa=rig.static_pa, reserve=rig.reserve)
         if ids is None:
             ids = [c.id for c in sheet.cues
-                   if self.checks.get(c.id) is None or self.checks[c.id].status in ("stale", "error")]
+                   if self.checks.get(c.id) is None
+                   or self.checks[c.id].status in (CueStatus.STALE, CueStatus.ERROR)]
         targets = [c for c in sheet.cues if c.id in ids]
         out = []
         for k, cue in enumerate(targets):
@@ -175,8 +178,7 @@ class Session(SheetEditor):
                 progress(k, len(targets), cue.id)
             try:
                 new, _ = lock_cue(sheet, rig, cue)
-            except ShowkitError as exc:
-                self.last_message = exc.line()
+            except ShowkitError:
                 continue
             out.append(new)
         if progress:
@@ -212,6 +214,8 @@ class Session(SheetEditor):
         a = int(round(PREVIEW_TONE_S / 3 * fr))
         b = max(a + 1, int(round(2 * PREVIEW_TONE_S / 3 * fr)))
         result = (frames.height[a:b].mean(axis=0), frames.air_in[a:b].max(axis=0), report.ceiling_db)
+        if len(self._mode_flames) >= MODE_FLAMES_KEPT:
+            self._mode_flames.pop(next(iter(self._mode_flames), None), None)  # tolerates a clear() meanwhile
         self._mode_flames[key] = result
         return result
 

@@ -14,11 +14,13 @@ from showkit.printable import printable
 from showkit.safety import LEVEL_CAUTION
 from showkit.show.editing import GAIN_STEP_DB
 from showkit.show.sheet import describe_source
+from showkit.show.status import CueStatus
 from showkit.ui.drawing import headroom_bar
 from showkit.ui.messages import CueAdded, LockRequested
 from showkit.ui.viewbase import SessionView
 
-STATUS_MARK = {"ok": "ok", "over": "OVER", "stale": "stale", "error": "error", None: "…"}
+STATUS_MARK = {CueStatus.OK: "ok", CueStatus.OVER: "OVER", CueStatus.STALE: "stale", CueStatus.ERROR: "error",
+               None: "…"}
 
 
 class CueTable(DataTable):
@@ -87,8 +89,9 @@ class ShowView(SessionView):
             status = None if check is None else check.status
             ceiling = "" if check is None or check.ceiling_db is None else f"{check.ceiling_db:+.1f}"
             head = None if check is None else check.headroom_db
-            state = Text(STATUS_MARK[status], style="bold reverse" if status in ("over", "error") else
-                         ("italic" if status == "stale" else ""))
+            state = Text(STATUS_MARK[status],
+                         style="bold reverse" if status in (CueStatus.OVER, CueStatus.ERROR) else
+                         ("italic" if status == CueStatus.STALE else ""))
             table.add_row(str(k), Text(printable(cue.id)), f"{cue.gain_db:+.1f}", ceiling, headroom_bar(head),
                           state, cue.then, Text(printable(cue.label)), Text(printable(describe_source(cue.source, short=True))),
                           key=cue.id)
@@ -100,7 +103,7 @@ class ShowView(SessionView):
     def _title(self) -> str:
         s = self.session
         checks = list(s.checks.values())
-        counts = {k: sum(1 for c in checks if c.status == k) for k in ("ok", "over", "stale", "error")}
+        counts = {k: sum(1 for c in checks if c.status == k) for k in CueStatus}
         state = "  ".join(f"{v} {k}" for k, v in counts.items() if v) or "checking…"
         return (f"[b]{escape(printable(s.sheet.title))}[/b]  ({len(s.sheet.cues)} cues: {state})  "
                 f"{escape(printable(s.sheet.path.name))}")

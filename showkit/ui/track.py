@@ -20,7 +20,6 @@ from showkit.units import format_time as _clock  # the one m:ss.s formatter
 
 #: Cursor steps, s.
 STEP_S = 0.5
-BIG_STEP_S = 5.0
 FLAME_LINES = 4
 #: Screen rows the Track view leaves for everything but the map: top bar, status line,
 #: footer (3), title (2), cursor facts (2), flames (5) and the passage table (header + 4).

@@ -36,9 +36,8 @@ def main() -> None:
         best_w = best_c = float("inf")
         for _ in range(3):
             if clear:
-                pressure._FILTERS.clear()
-                for name in ("_FAMILIES",):
-                    getattr(pressure, name, {}).clear()
+                pressure._designed_filters.cache_clear()
+                pressure._family_filters.cache_clear()
             sheet = load_sheet(target)
             w, c = time.perf_counter(), time.process_time()
             lock_sheet(sheet)
