@@ -310,6 +310,10 @@ def test_level_refuses_to_play_a_sine_above_its_ceiling(tmp_path, monkeypatch):
     rig = tmp_path / "loud.toml"
     rig.write_text(demo_rig_path().read_text().replace('"0.27 Pa"', '"11 Pa"'))
     assert main(["measure", "level", "--rig", str(rig), "--play", "--level", "0"]) == 2
+    # nor to write it to a file (--out was not checked before: a review found it)
+    out = tmp_path / "sine.wav"
+    assert main(["measure", "level", "--rig", str(rig), "--out", str(out), "--level", "0"]) == 2
+    assert not out.exists()
 
 
 @pytest.mark.parametrize("flow", [0.0, 1.0])

@@ -269,12 +269,12 @@ def _write_sine(sine, drive, args) -> None:
           "dBFS peak, 10 s; play it and read the cap pressure")
 
 
-def _play_sine(rig, sine, drive, args):
-    """``--play``: the sine (refused above its ceiling) played while the cap microphone records."""
-    from showkit.analysis.measurement import REFERENCE_RATE_HZ, check_reference_sine
+def _play_sine(sine, drive, headroom, args):
+    """``--play``: the sine (already checked below its ceiling: ``headroom`` dB) played while the
+    cap microphone records."""
+    from showkit.analysis.measurement import REFERENCE_RATE_HZ
 
     freq, level = drive.reference_frequency_hz, drive.reference_level_dbfs
-    headroom = check_reference_sine(rig, sine, REFERENCE_RATE_HZ, level)
     print(f"playing {freq:g} Hz at {level:g} dBFS for 10 s ({headroom:.1f} dB below its ceiling)...",
           file=sys.stderr)
     return play_record(sine, REFERENCE_RATE_HZ, tail_s=0.5, device=args.device)
@@ -302,7 +302,8 @@ def _reading(args, played, freq_hz: float):
 
 
 def _run_level(args) -> int:
-    from showkit.analysis.measurement import calibration_values, reference_sine
+    from showkit.analysis.measurement import (REFERENCE_RATE_HZ, calibration_values, check_reference_sine,
+                                              reference_sine)
     from showkit.conditions import make_calibration
 
     # the rig's own calibration may be the one being replaced: load it unchecked, check the new frequency
@@ -310,9 +311,12 @@ def _run_level(args) -> int:
     drive = _level_drive(rig, args)
     level_caution()
     sine = reference_sine(drive.reference_frequency_hz, drive.reference_level_dbfs)
+    headroom = None
+    if args.out or args.play:  # refused above its ceiling, whether it is written or played
+        headroom = check_reference_sine(rig, sine, REFERENCE_RATE_HZ, drive.reference_level_dbfs)
     if args.out:
         _write_sine(sine, drive, args)
-    played = _play_sine(rig, sine, drive, args) if args.play else None
+    played = _play_sine(sine, drive, headroom, args) if args.play else None
     reading = _reading(args, played, drive.reference_frequency_hz)
     if reading is None:
         return 0
