@@ -254,7 +254,7 @@ class SheetEditor:
         stem = Path(track).stem.replace("_", "-")
         fade = min(1.0, 0.1 * (end_s - start_s))
         cue = Cue(id=self.sheet.new_id(stem), source=AudioSource(self.audio_reference(track),
-                                                                 round(start_s, 2), _floor_2(end_s)),
+                                                                 round(start_s, 2), floor_db(end_s)),  # end rounded down to 0.01 s: never past the track
                   label=label or f"{Path(track).stem.replace('_', ' ').title()} "
                                  f"{_clock(start_s)}-{_clock(end_s)}",
                   gain_db=gain, fade_in_s=round(fade, 2), fade_out_s=round(fade, 2))
@@ -362,11 +362,6 @@ class SheetEditor:
                                       message=check.message if status in UNKNOWN_CEILING
                                       else f"{head:.1f} dB below the ceiling" if status == CueStatus.OK
                                       else f"gain is {-head:.2f} dB above today's ceiling")
-
-
-def _floor_2(seconds: float) -> float:
-    """A passage's end to 0.01 s, rounded down: never past the end of the track it was measured on."""
-    return math.floor(seconds * 100.0 + 1e-9) / 100.0
 
 
 def relative_to(path: Path, folder: Path) -> str:

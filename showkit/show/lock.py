@@ -25,16 +25,13 @@ from showkit.errors import InputError, RigError, SheetError, ShowkitError
 from showkit.physics import ceiling as rule
 from showkit.physics.family import STATIC_SPAN
 from showkit.rigfile import Rig, load_rig
-from showkit.show.sheet import DB_STEP, Cue, Lock, Sheet, floor_db, rounded_lock
+from showkit.show.sheet import Cue, Lock, Sheet, floor_db, rounded_lock
 from showkit.show.sources import TONE_RATE_HZ, CueSignal, SignalMemo, signal_for
 from showkit.show.status import CueStatus
 
 #: The rate a whole show is rendered and usually played at, Hz: a cue at another
 #: rate is locked at both (see :func:`compute_lock`).
 SHOW_RATE_HZ = TONE_RATE_HZ
-
-#: Gains are clamped to the ceiling rounded down to this step, dB (the step sheets are written in).
-GAIN_STEP_DB = DB_STEP
 
 
 def sheet_rig(sheet: Sheet) -> Rig:
@@ -49,7 +46,7 @@ def sheet_rig(sheet: Sheet) -> Rig:
 
 
 def safe_gain(ceiling_db: float) -> float:
-    """The ceiling rounded down to :data:`GAIN_STEP_DB` (never above it)."""
+    """The ceiling rounded down to :data:`~showkit.show.sheet.DB_STEP` (never above it)."""
     return floor_db(ceiling_db)
 
 

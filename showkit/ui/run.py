@@ -66,10 +66,6 @@ def _no_output(exc) -> str:
     return f"no audio output: {exc.line()}"
 
 
-def fmt_time(seconds: float) -> str:
-    return format_time(seconds)
-
-
 class RunTable(DataTable, inherit_bindings=False):
     """The cues as the pre-show check found them.
 
@@ -391,7 +387,7 @@ class RunView(SessionView):
             state = Text(c.status if c.playable else c.status.upper(),
                          style="" if c.playable else "bold reverse")
             why = Text(printable(c.label if c.playable else c.message))
-            table.add_row(str(k), Text(printable(c.id)), fmt_time(c.duration_s) if c.playable else "-", f"{c.gain_db:+.1f}",
+            table.add_row(str(k), Text(printable(c.id)), format_time(c.duration_s) if c.playable else "-", f"{c.gain_db:+.1f}",
                           "-" if c.ceiling_db is None else f"{c.ceiling_db:+.1f}", state, c.then, why,
                           key=c.id)
 
@@ -506,14 +502,14 @@ class RunView(SessionView):
             total = max(cue.duration_s, 1e-9)
             done = int(round(12 * min(1.0, st.elapsed_s / total)))
             lines.append(f"NOW  {st.cue_index + 1} {printable(st.cue_id)}  '{printable(cue.label[:26])}'  "
-                         f"{fmt_time(st.elapsed_s)} elapsed, {fmt_time(st.left_s)} left "
+                         f"{format_time(st.elapsed_s)} elapsed, {format_time(st.left_s)} left "
                          + "█" * done + "·" * (12 - done))
         else:
             lines.append("NOW  -")
         if st.next_id is not None:
             nxt = engine.cues[st.next_index]
             line = (f"NEXT {st.next_index + 1} {printable(st.next_id)}  '{printable(nxt.label[:26])}'  "
-                    f"({fmt_time(nxt.duration_s)})")
+                    f"({format_time(nxt.duration_s)})")
             if st.skipped_ids:
                 line += f"  passing over {printable(', '.join(st.skipped_ids))}: they do not fit today"
             lines.append(line)
@@ -534,7 +530,7 @@ class RunView(SessionView):
             h, rate, lo, hi = self.flames[st.cue_id]
             if h.shape[0]:
                 k = int(min(h.shape[0] - 1, max(0, round(st.elapsed_s * rate))))
-                flames.show(h[k], lo, hi, f"predicted flames of {st.cue_id} at {fmt_time(st.elapsed_s)} "
+                flames.show(h[k], lo, hi, f"predicted flames of {st.cue_id} at {format_time(st.elapsed_s)} "
                             f"(scale: this cue's {lo:.2f} to {hi:.2f} of still height)")
                 return
         if st.cue_id is not None:

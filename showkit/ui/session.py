@@ -17,8 +17,7 @@ from __future__ import annotations
 from pathlib import Path
 
 from showkit.errors import ShowkitError
-from showkit.show.editing import (GAIN_STEP_DB, GainChange, SheetEditor,  # noqa: F401
-                                  relative_to)
+from showkit.show.editing import SheetEditor, relative_to
 from showkit.show.sheet import Cue, Sheet, load_sheet, save_sheet
 from showkit.show.status import CueStatus
 

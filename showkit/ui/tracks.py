@@ -168,15 +168,17 @@ class TrackWork:
         """The passage as a locked cue at its safe gain, rendered and verified."""
         from showkit.show.lock import lock_cue
         from showkit.show.render import render_cue
+        from showkit.show.sources import SignalMemo
 
         sheet = Sheet(title="audition", rig=self.session.sheet.rig, path=self.session.sheet.path)
         cue = Cue(id="audition", source=AudioSource(str(path), start_s, end_s), gain_db=-60.0,
                   fade_in_s=min(0.5, 0.1 * (end_s - start_s)), fade_out_s=min(0.5, 0.1 * (end_s - start_s)))
         rig = self.session.rig
-        locked, _ = lock_cue(sheet, rig, cue)
+        signals = SignalMemo()  # the passage decoded once for its lock and its render
+        locked, _ = lock_cue(sheet, rig, cue, signals)
         locked = replace(locked, gain_db=floor_db(locked.lock.ceiling_db - PASSAGE_MARGIN_DB))
         sheet.cues.append(locked)
-        return render_cue(sheet, rig, locked)
+        return render_cue(sheet, rig, locked, signals)
 
 
 def track_frames(rig, path, shift_cents: float) -> dict:
