@@ -16,7 +16,11 @@ Sources (independent of showkit):
   MIDI note) used is rendered held on its own and the frequency of its
   fundamental's spectral peak measured; the offset from 440-Hz 12-TET (up to
   ~30 cents in some FluidR3 piano zones) is applied to the notes (see
-  :func:`soundfont_tuning`; cross-checked with librosa's pYIN).
+  :func:`soundfont_tuning`; cross-checked with librosa's pYIN) and at the time
+  it really sounds: the same held notes give each (instrument, MIDI note) its
+  latency, the time its level takes to come within 10 dB of its held level
+  (organ ~25 ms, bowed strings and flute 20-110 ms, piano under 5 ms), and each
+  note's onset and offset are moved by it (:func:`soundfont_latency`).
 
 The rig is invented (written here as TOML like ``showkit/data/demo_rig.toml``):
 the demo tube's design with its length solved so that readable modes sit on
@@ -57,7 +61,7 @@ RATE_HZ = 22050
 #: General MIDI soundfont of Debian's fluid-soundfont-gm package.
 SOUNDFONT = Path("/usr/share/sounds/sf2/FluidR3_GM.sf2")
 #: Bumped whenever the corpus changes (invalidates caches).
-VERSION = 13
+VERSION = 14
 #: Peak level of every rendered track, full scale.
 PEAK = 0.7
 #: Gain of the level-changed copy, dB.
@@ -155,6 +159,7 @@ class Corpus:
     tuning: dict  # "program:midi" -> cents off 440-Hz 12-TET, as measured
     keys: dict    # piece -> semitones the score was moved to sit on the modes
     off_of: dict  # off-mode track -> on-mode piece
+    latency: dict = field(default_factory=dict)  # "program:midi" -> s from MIDI onset to sounding, measured
 
     def __getitem__(self, name: str) -> Track:
         return self.tracks[name]
@@ -304,10 +309,18 @@ def _peak_cents(frames: np.ndarray, target_hz: float) -> np.ndarray:
     return 1200.0 * np.log2(f / target_hz), rel_db
 
 
-def soundfont_tuning(pairs, folder: Path) -> dict:
+def _held_notes(pairs, folder: Path, step_s: float = TUNING_STEP_S) -> np.ndarray:
+    """Every ``(program, midi)`` of ``pairs`` (sorted) rendered alone, held TUNING_HOLD_S, one every
+    ``step_s``, at velocity 90: the material of :func:`soundfont_tuning` and :func:`soundfont_latency`."""
+    pairs = sorted({(int(p), int(m)) for p, m in pairs})
+    notes = [(p, m, i * step_s, i * step_s + TUNING_HOLD_S, 90) for i, (p, m) in enumerate(pairs)]
+    return _render(notes, len(pairs) * step_s + 0.5, folder / "held_notes.wav")
+
+
+def soundfont_tuning(pairs, x: np.ndarray) -> dict:
     """Measured offset (cents from 440-Hz 12-TET) of each ``(program, midi)`` as the soundfont plays it.
 
-    Each note is rendered alone, held 1 s; over its held part (0.15 s after
+    ``x`` is :func:`_held_notes` rendered for ``pairs``: each note alone, held 1 s.  Over its held part (0.15 s after
     the start) the fundamental's spectral peak is found in 0.37-s Hann
     frames (4x zero padding, parabolic interpolation) and the median of its
     frame-wise frequency is compared with ``440 * 2^((midi - 69) / 12)``.
@@ -323,9 +336,6 @@ def soundfont_tuning(pairs, folder: Path) -> dict:
     from numpy.lib.stride_tricks import sliding_window_view
 
     pairs = sorted({(int(p), int(m)) for p, m in pairs})
-    notes = [(p, m, i * TUNING_STEP_S, i * TUNING_STEP_S + TUNING_HOLD_S, 90)
-             for i, (p, m) in enumerate(pairs)]
-    x = _render(notes, len(pairs) * TUNING_STEP_S + 0.5, folder / "tuning.wav")
     win = np.hanning(TUNING_WIN)
     out: dict = {}
     for i, (p, m) in enumerate(pairs):
@@ -342,6 +352,40 @@ def soundfont_tuning(pairs, folder: Path) -> dict:
         fill = float(np.median(vals)) if vals else 0.0
         for k in [k for k, v in out.items() if k.startswith(f"{p}:") and v is None]:
             out[k] = fill
+    return out
+
+
+#: A note sounds once its level comes within this of its held level, dB (project's choice: the
+#: partials are then well above the other voices' leakage; the figures it gives are in the module doc).
+LATENCY_DB = -10.0
+#: Level envelope of the latency measurement: RMS over this window, s.
+LATENCY_WINDOW_S = 0.01
+#: The latency measurement's notes are this far apart, s: the release of the note before (up to 0.4 s
+#: to fall 20 dB, organ and strings, measured) has died away by the next onset.
+LATENCY_STEP_S = 1.6
+
+
+def soundfont_latency(pairs, x: np.ndarray) -> dict:
+    """Measured delay, s, from a ``(program, midi)`` note's MIDI onset to when it sounds.
+
+    ``x`` is :func:`_held_notes` for ``pairs``, ``step_s`` = :data:`LATENCY_STEP_S`.  The level envelope is the RMS
+    over :data:`LATENCY_WINDOW_S` (centred); the held level is its median over
+    0.3-1.0 s after the onset; the latency is the first time the envelope
+    reaches ``LATENCY_DB`` under the held level.  Slow attacks (bowed strings,
+    flute, the organ's wind) take tens of ms, the piano almost none; a note is
+    moved later by its latency, onset and offset alike (its release lasts
+    longer than the attack, measured: 40-250 ms to fall 10 dB after note-off).
+    """
+    pairs = sorted({(int(p), int(m)) for p, m in pairs})
+    n = max(1, round(LATENCY_WINDOW_S * RATE_HZ))
+    env = np.sqrt(np.convolve(np.asarray(x, float) ** 2, np.ones(n) / n, mode="same"))
+    out: dict = {}
+    for i, (p, m) in enumerate(pairs):
+        a = round(i * LATENCY_STEP_S * RATE_HZ)
+        seg = env[a:a + round(TUNING_HOLD_S * RATE_HZ)]
+        held = float(np.median(seg[round(0.3 * RATE_HZ):]))
+        reach = seg >= held * 10.0 ** (LATENCY_DB / 20.0)
+        out[f"{p}:{m}"] = float(np.argmax(reach)) / RATE_HZ if held > 0 and reach.any() else 0.0
     return out
 
 
@@ -638,6 +682,14 @@ def _freqs(notes, tuning: dict, bend_cents: float = 0.0) -> np.ndarray:
                      for p, m, *_ in notes])
 
 
+def _late(notes, latency: dict) -> list:
+    """The notes as they sound: onset and offset moved by each note's measured latency (:func:`soundfont_latency`).
+
+    Only the ground truth of rendered tracks is moved; the set's design (keys, off-mode shifts) reads the
+    score's own times."""
+    return [(p, m, a + latency[f"{p}:{m}"], b + latency[f"{p}:{m}"], v) for p, m, a, b, v in notes]
+
+
 def _track(name, path, seconds, notes, freq, kind, shift=0.0, gain=0.0) -> Track:
     return Track(name, path, float(seconds), np.array([n[2] for n in notes], float),
                  np.array([n[3] for n in notes], float), np.array([n[1] for n in notes], float),
@@ -654,7 +706,7 @@ def build(folder: str | Path) -> Corpus:
         if d.get("version") == VERSION and all((folder / t["path"]).exists() for t in d["tracks"]):
             return Corpus(folder, folder / d["rig"], {t["name"]: Track.from_json(t, folder)
                                                       for t in d["tracks"]},
-                          d["tuning"], d["keys"], d["off_of"])
+                          d["tuning"], d["keys"], d["off_of"], d["latency"])
     missing = have_tools()
     if missing:
         raise RuntimeError(missing)
@@ -669,7 +721,8 @@ def build(folder: str | Path) -> Corpus:
         for prog in {p for p, *_ in notes}:
             ms = [m for p, m, *_ in notes if p == prog]
             pairs |= {(prog, m) for m in range(min(ms) - 9, max(ms) + 10)}
-    tuning = soundfont_tuning(pairs, folder)
+    tuning = soundfont_tuning(pairs, _held_notes(pairs, folder))
+    latency = soundfont_latency(pairs, _held_notes(pairs, folder, LATENCY_STEP_S))
     rig_path = solve_rig(folder, raw, tuning)
     table = ModeTable.from_modes(find_modes(load_rig(rig_path).model))
     # scores, moved to their best key on this tube (measured tuning)
@@ -687,8 +740,8 @@ def build(folder: str | Path) -> Corpus:
         x = _render(notes, piece.seconds, path)
         _write(path, x)
         audio[piece.name] = x
-        tracks[piece.name] = _track(piece.name, path, piece.seconds, notes, _freqs(notes, tuning),
-                                    piece.kind)
+        tracks[piece.name] = _track(piece.name, path, piece.seconds, _late(notes, latency),
+                                    _freqs(notes, tuning), piece.kind)
     drums = drum_notes(20.0)
     path = folder / "drums.wav"
     x = _render([], 20.0, path, drums=drums)
@@ -703,7 +756,7 @@ def build(folder: str | Path) -> Corpus:
         tag = f"{name}_off{int(c):+d}c"
         path = folder / f"{tag}.wav"
         _write(path, _render(notes, seconds, path, bend_cents=bend))
-        tracks[tag] = _track(tag, path, seconds, notes, _freqs(notes, tuning, bend),
+        tracks[tag] = _track(tag, path, seconds, _late(notes, latency), _freqs(notes, tuning, bend),
                              f"{tracks[name].kind}, moved {c:+.0f} cents off the modes", c)
         off_of[tag] = name
     # level-changed copy
@@ -735,9 +788,9 @@ def build(folder: str | Path) -> Corpus:
     for p in folder.glob("*.mid"):
         p.unlink()
     manifest.write_text(json.dumps({"version": VERSION, "rig": rig_path.name, "tuning": tuning,
-                                    "keys": keys, "off_of": off_of,
+                                    "latency": latency, "keys": keys, "off_of": off_of,
                                     "tracks": [t.to_json() for t in tracks.values()]}, indent=1))
-    return Corpus(folder, rig_path, tracks, tuning, keys, off_of)
+    return Corpus(folder, rig_path, tracks, tuning, keys, off_of, latency)
 
 
 # ----------------------------------------------------------------------------- the scan under test
