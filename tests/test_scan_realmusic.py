@@ -194,7 +194,9 @@ def test_same_music_at_another_level_draws_the_same_map(evaluation):
 
 @pytest.mark.xfail(strict=True, reason="issue 12 target not met: raw pitch accuracy 0.59 mean, 0.44 on the "
                    "organ chorale (Viterbi line, measured 2026-12-02); the melody often sits on a partial of a "
-                   "lower voice, and the best pick of the detected notes would reach only 0.77 mean, 0.75 chorale")
+                   "lower voice, and the best pick of the detected notes would reach only 0.77 mean, 0.75 chorale; "
+                   "a harmonic-salience and contour front end of its own (Salamon & Gomez 2012) reached at "
+                   "most 0.58 mean (measured 2026-12-02, DEVELOPERS.md Methods §8b)")
 def test_dominant_pitch_raw_pitch_accuracy(evaluation):
     """mir_eval.melody raw pitch accuracy >= 0.70, mean over the pieces and on the organ chorale."""
     rpa = {p.name: evaluation["tracks"][p.name]["melody"]["Raw Pitch Accuracy"] for p in rm.PIECES}
