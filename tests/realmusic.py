@@ -922,6 +922,42 @@ def dominant_line(m: dict) -> np.ndarray:
     return np.array([float(f.max()) if f.size else 0.0 for f in m["notes_hz"]])
 
 
+def map_figures(tr: Track, table, m: dict) -> dict:
+    """One track's map against its ground truth: the per-track figures of :func:`evaluate`.
+
+    ``hits_strict`` (every readable mode x frame cell) and ``hits`` (the cells
+    :func:`scored_cells` keeps): frame-level precision/recall/F1 of the map's
+    mode hits against :func:`mode_hits`, counted here; the mean number of
+    true and drawn hits per frame; for a track with notes, mir_eval.multipitch
+    (Bay, Ehmann & Downie, ISMIR 2009) on ``notes_hz`` and mir_eval.melody raw
+    pitch/chroma accuracy (Poliner et al., IEEE TASLP 15(4), 2007) of the
+    dominant pitch against the highest sounding note (:func:`melody`).
+    """
+    import mir_eval
+
+    readable = np.asarray(table.readable, bool)
+    row: dict = {}
+    times = m["times_s"]
+    truth = mode_hits(tr, table, times)[readable]
+    est = map_hits_on_table(m, table)[readable]
+    care = scored_cells(tr, table, times)[readable]
+    row["hits_strict"] = _prf(int((truth & est).sum()), int((~truth & est).sum()), int((truth & ~est).sum()))
+    row["hits"] = _prf(int((truth & est & care).sum()), int((~truth & est & care).sum()),
+                       int((truth & ~est & care).sum()))
+    row["truth_hits_per_frame"] = float(truth.sum(axis=0).mean())
+    row["map_hits_per_frame"] = float(est.sum(axis=0).mean())
+    if tr.freq_hz.size:
+        ref_t, ref_f = sounding_hz(tr, 0.0, times)
+        mp = mir_eval.multipitch.evaluate(ref_t, ref_f, times, m["notes_hz"])
+        row["multipitch"] = {k: float(mp[k]) for k in ("Precision", "Recall", "Accuracy",
+                                                      "Chroma Accuracy")}
+        _, ref_mel = melody(tr, 0.0, times)
+        mel = mir_eval.melody.evaluate(times, ref_mel, times, dominant_line(m))
+        row["melody"] = {k: float(mel[k]) for k in ("Raw Pitch Accuracy", "Raw Chroma Accuracy",
+                                                   "Voicing Recall", "Voicing False Alarm")}
+    return row
+
+
 def evaluate(corpus: Corpus, progress=None) -> dict:
     """Scan every track of the set and measure it against the ground truth (issue 12's figures).
 
@@ -938,7 +974,6 @@ def evaluate(corpus: Corpus, progress=None) -> dict:
 
     rig = corpus.rig()
     table = scan_mod.mode_table(rig)
-    readable = np.asarray(table.readable, bool)
     res: dict = {"tracks": {}}
     maps: dict = {}
     tot = np.zeros(3, int)
@@ -962,36 +997,18 @@ def evaluate(corpus: Corpus, progress=None) -> dict:
             continue
         m = engine_map(rig, corpus.rig_path, tr.path)
         maps[name] = m
-        times = m["times_s"]
-        truth = mode_hits(tr, table, times)[readable]
-        est = map_hits_on_table(m, table)[readable]
-        care = scored_cells(tr, table, times)[readable]
-        tp, fp, fn = int((truth & est).sum()), int((~truth & est).sum()), int((truth & ~est).sum())
-        strict += (tp, fp, fn)
-        row["hits_strict"] = _prf(tp, fp, fn)
-        tp, fp, fn = (int((truth & est & care).sum()), int((~truth & est & care).sum()),
-                      int((truth & ~est & care).sum()))
-        tot += (tp, fp, fn)
-        row["hits"] = _prf(tp, fp, fn)
-        row["truth_hits_per_frame"] = float(truth.sum(axis=0).mean())
-        row["map_hits_per_frame"] = float(est.sum(axis=0).mean())
-        ref_t, ref_f = sounding_hz(tr, 0.0, times)
-        est_f = m["notes_hz"]
+        row.update(map_figures(tr, table, m))
+        strict += [row["hits_strict"][k] for k in ("tp", "fp", "fn")]
+        tot += [row["hits"][k] for k in ("tp", "fp", "fn")]
         if tr.freq_hz.size:
-            mp = mir_eval.multipitch.evaluate(ref_t, ref_f, times, est_f)
-            row["multipitch"] = {k: float(mp[k]) for k in ("Precision", "Recall", "Accuracy",
-                                                          "Chroma Accuracy")}
+            times = m["times_s"]
             mp_ref_t.append(times + (mp_ref_t[-1][-1] + 1.0 if mp_ref_t else 0.0))
-            mp_ref_f += ref_f
-            mp_est_f += list(est_f)
+            mp_ref_f += sounding_hz(tr, 0.0, times)[1]
+            mp_est_f += list(m["notes_hz"])
             if name in {pc.name for pc in PIECES}:
                 errs, n = held_note_errors(tr, m)
                 held_errs += errs
                 held_n += n
-            _, ref_mel = melody(tr, 0.0, times)
-            mel = mir_eval.melody.evaluate(times, ref_mel, times, dominant_line(m))
-            row["melody"] = {k: float(mel[k]) for k in ("Raw Pitch Accuracy", "Raw Chroma Accuracy",
-                                                       "Voicing Recall", "Voicing False Alarm")}
     res["hits_pooled"] = _prf(*tot)
     # passage level: the modes a passage lists vs the readable modes its notes are held on for at least
     # PASSAGE_MODE_SHARE of the passage (project's choice)
