@@ -104,14 +104,41 @@ def hpss_masks(magnitude: np.ndarray, kernel=HPSS_KERNEL, power: float = 2.0):
     power : float
         Mask exponent.
     """
-    from scipy.ndimage import median_filter
-
     s = np.asarray(magnitude, dtype=np.float32)
-    harm = median_filter(s, size=(1, kernel[1]), mode="reflect")
-    perc = median_filter(s, size=(kernel[0], 1), mode="reflect")
+    harm = _median_filter(s, kernel[1], axis=1)
+    perc = _median_filter(s, kernel[0], axis=0)
     h = harm.astype(np.float64) ** power
     p = perc.astype(np.float64) ** power
     total = h + p
     tiny = np.finfo(np.float32).tiny
     mask_h = np.where(total > tiny, h / np.where(total > tiny, total, 1.0), 0.5)
     return mask_h.astype(np.float32), (1.0 - mask_h).astype(np.float32)
+
+
+#: Paeth's exchange network for the median of 9 (A. W. Paeth, "Median finding on a 3x3 grid",
+#: Graphics Gems, 1990, in N. Devillard's "opt_med9" order): 19 compare-exchanges, the median ends in p[4].
+_MEDIAN9 = ((1, 2), (4, 5), (7, 8), (0, 1), (3, 4), (6, 7), (1, 2), (4, 5), (7, 8), (0, 3), (5, 8), (4, 7),
+            (3, 6), (1, 4), (2, 5), (4, 7), (4, 2), (6, 4), (4, 2))
+
+
+def _median_filter(s: np.ndarray, size: int, axis: int) -> np.ndarray:
+    """Running median of ``size`` values along ``axis``, edges mirrored
+    (``scipy.ndimage.median_filter(mode="reflect")`` along one axis, to the bit).
+
+    For 9 values (the separation's kernel), an exchange network of elementwise
+    minima and maxima over shifted views (:data:`_MEDIAN9`); other sizes use scipy.
+    """
+    if size != 9:
+        from scipy.ndimage import median_filter
+
+        shape = [1, 1]
+        shape[axis] = size
+        return median_filter(s, size=tuple(shape), mode="reflect")
+    n = s.shape[axis]
+    widths = [(0, 0), (0, 0)]
+    widths[axis] = (4, 4)
+    padded = np.pad(s, widths, mode="symmetric")   # scipy's "reflect": d c b a | a b c d | d c b a
+    p = [padded[k:k + n] if axis == 0 else padded[:, k:k + n] for k in range(9)]
+    for a, b in _MEDIAN9:
+        p[a], p[b] = np.minimum(p[a], p[b]), np.maximum(p[a], p[b])
+    return p[4]
