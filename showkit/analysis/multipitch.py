@@ -266,22 +266,23 @@ class Estimator:
         bins, frames = p.shape
         valid = index >= 0
         cidx = np.where(valid, index, 0)
-        f0 = self.f0_hz[cidx]                                           # (F, N)
-        fr = np.broadcast_to(np.arange(frames)[:, None], index.shape)
+        # every figure below is computed for the notes found only (``_v``: one entry per found note)
+        fr, cv = np.nonzero(valid)[0], index[valid]
+        f0 = self.f0_hz[cv]                                             # (V,)
         # energy: strongest bin within the reach of each partial in the band
-        pos = self.pos[cidx]                                            # (F, N, M)
-        ok = self.ok[cidx] & valid[..., None]
+        pos = self.pos[cv]                                              # (V, M)
+        ok = self.ok[cv]
         near = np.clip(np.rint(pos).astype(int), PARTIAL_REACH_BINS, bins - 1 - PARTIAL_REACH_BINS)
         peak = np.zeros(pos.shape, dtype=np.float32)
         for o in range(-PARTIAL_REACH_BINS, PARTIAL_REACH_BINS + 1):
-            peak = np.maximum(peak, p[near + o, fr[..., None]])
-        energy = np.where(ok, peak, 0.0).sum(axis=2)
+            peak = np.maximum(peak, p[near + o, fr[:, None]])
+        energy_v = np.where(ok, peak, 0.0).sum(axis=1)
         # frequency: interpolated peaks of partials 1-3
-        num = np.zeros(index.shape)
-        den = np.zeros(index.shape)
+        num = np.zeros(cv.shape)
+        den = np.zeros(cv.shape)
         with np.errstate(divide="ignore", invalid="ignore"):
             for h in range(3):
-                ph = pos[..., h]
+                ph = pos[:, h]
                 k0 = np.clip(np.rint(ph).astype(int), PARTIAL_REACH_BINS + 1, bins - 2 - PARTIAL_REACH_BINS)
                 win = np.stack([p[k0 + o, fr] for o in range(-PARTIAL_REACH_BINS, PARTIAL_REACH_BINS + 1)], axis=-1)
                 k = k0 + np.argmax(win, axis=-1) - PARTIAL_REACH_BINS
@@ -293,10 +294,13 @@ class Estimator:
                 delta = np.clip(np.where(is_peak, 0.5 * (a - c) / np.where(den_ < 0, den_, -1.0), 0.0), -0.5, 0.5)
                 fh = (self.first_bin + k + delta) * self.bin_hz / (h + 1)
                 close = np.abs(1200.0 * np.log2(fh / f0)) < REFINE_CENTS
-                w = np.where(valid & self.ok[cidx][..., h] & is_peak & close, p[k, fr], 0.0) / (h + 1)
+                w = np.where(ok[:, h] & is_peak & close, p[k, fr], 0.0) / (h + 1)
                 num += w * fh
                 den += w
-        freq = np.where(den > 0, num / np.where(den > 0, den, 1.0), f0)
+        freq = self.f0_hz[cidx]
+        freq[valid] = np.where(den > 0, num / np.where(den > 0, den, 1.0), f0)
+        energy = np.zeros(index.shape, dtype=energy_v.dtype)
+        energy[valid] = energy_v
         # two candidates refined onto the same partials are one note: the later one is dropped
         with np.errstate(invalid="ignore", divide="ignore"):
             gap = np.abs(1200.0 * np.log2(freq[:, :, None] / freq[:, None, :]))
