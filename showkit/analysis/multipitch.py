@@ -159,7 +159,7 @@ class Estimator:
         self.band_interp = interp
         self.lobe_offsets = np.arange(-2 * PAD, 2 * PAD + 1)
         # cancellation, per candidate: the bin nearest each partial, the bins of its main lobe (partials
-        # outside the band and lobe bins off its edges go to a spare column, `bins`) and the lobe's shape
+        # outside the band and lobe bins off its edges go to a spare row, `bins`) and the lobe's shape
         self.near_bin = np.clip(np.rint(pos).astype(int), 0, bins - 1)                 # (C, M)
         lobe = self.near_bin[:, :, None] + self.lobe_offsets                            # (C, M, offsets)
         self.lobe_bin = np.where(ok[:, :, None] & (lobe >= 0) & (lobe < bins), lobe, bins)
@@ -192,12 +192,12 @@ class Estimator:
         near_steps = np.arange(-int(np.ceil(EXCLUDE_CENTS / GRID_CENTS)) + 1, int(np.ceil(EXCLUDE_CENTS / GRID_CENTS)))
         top = self.f0_hz.size - 1
         reach = PARTIAL_REACH_BINS
-        # Only the frames still taking notes are searched again: the arrays below hold just their rows
-        # (frames, bins), compacted as frames drop out, so every step reads contiguous memory.
+        # Only the frames still taking notes are searched again: the arrays below hold just their columns,
+        # compacted as frames drop out.
         act = np.arange(frames)
-        resid = np.ascontiguousarray(y.T)          # residual max(0, Y - d Y_D) of the active frames
-        ya = resid                                  # their whitened spectrum (resid is never written in place)
-        detected = np.zeros((frames, bins + 1), dtype=np.float32)  # their detected sounds Y_D (+ spare column)
+        resid = y                                   # residual max(0, Y - d Y_D) of the active frames
+        ya = y                                      # their whitened spectrum (resid is never written in place)
+        detected = np.zeros((bins + 1, frames), dtype=np.float32)  # their detected sounds Y_D (+ a spare row)
         for j in range(max_notes):
             if act.size == 0:
                 break
@@ -206,9 +206,9 @@ class Estimator:
             # band change nothing)
             rmax = resid.copy()
             for o in range(1, reach + 1):
-                np.maximum(rmax[:, o:], resid[:, :-o], out=rmax[:, o:])
-                np.maximum(rmax[:, :-o], resid[:, o:], out=rmax[:, :-o])
-            s = self.salience @ np.ascontiguousarray(rmax.T)   # (candidates, frames)
+                np.maximum(rmax[o:], resid[:-o], out=rmax[o:])
+                np.maximum(rmax[:-o], resid[o:], out=rmax[:-o])
+            s = self.salience @ rmax             # (candidates, frames)
             cols = np.arange(n)
             if j:
                 # every active frame took a note at each earlier step: zero the grid steps around them
@@ -224,9 +224,11 @@ class Estimator:
                 t = total[act]
                 grown = (t + best) / (j + 1) ** GAMMA >= t / j ** GAMMA
                 keep = grown & (best > 0) & (best >= MIN_RELATIVE_SALIENCE * first[act])
+            kept = cols
             if not keep.all():
-                act, c, best, rmax = act[keep], c[keep], best[keep], rmax[keep]
-                ya, detected = ya[keep], detected[keep]
+                kept = np.nonzero(keep)[0]
+                act, c, best = act[kept], c[kept], best[kept]
+                ya, detected = np.take(ya, kept, axis=1), np.take(detected, kept, axis=1)
             if act.size == 0:
                 break
             found[act, j] = c
@@ -235,12 +237,12 @@ class Estimator:
             if j == max_notes - 1:
                 break
             # cancel the partials of the frames that took a note, every lobe offset at once (partials lie
-            # more than a main lobe apart, f0 >= 50 Hz: no bin but the spare column is written twice)
-            rows = np.arange(act.size)[:, None]
-            amp = rmax[rows, self.near_bin[c]] * (self.g[c] if CANCEL_WEIGHTED else 1.0)
-            flat = self.lobe_bin[c] + (rows * (bins + 1))[:, :, None]
+            # more than a main lobe apart, f0 >= 50 Hz: no bin but the spare row is written twice)
+            n = act.size
+            amp = rmax[self.near_bin[c], kept[:, None]] * (self.g[c] if CANCEL_WEIGHTED else 1.0)
+            flat = self.lobe_bin[c] * n + np.arange(n)[:, None, None]
             detected.reshape(-1)[flat] += (amp[:, :, None] * self.lobe_shape[c]).astype(np.float32)
-            resid = np.multiply(detected[:, :bins], CANCEL_D)
+            resid = np.multiply(detected[:bins], CANCEL_D)
             np.subtract(ya, resid, out=resid)
             np.maximum(0.0, resid, out=resid)
         return found, sal
