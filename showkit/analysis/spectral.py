@@ -116,9 +116,12 @@ def hpss_masks(magnitude: np.ndarray, kernel=HPSS_KERNEL, power: float = 2.0):
 
 
 #: Paeth's exchange network for the median of 9 (A. W. Paeth, "Median finding on a 3x3 grid",
-#: Graphics Gems, 1990, in N. Devillard's "opt_med9" order): 19 compare-exchanges, the median ends in p[4].
-_MEDIAN9 = ((1, 2), (4, 5), (7, 8), (0, 1), (3, 4), (6, 7), (1, 2), (4, 5), (7, 8), (0, 3), (5, 8), (4, 7),
-            (3, 6), (1, 4), (2, 5), (4, 7), (4, 2), (6, 4), (4, 2))
+#: Graphics Gems, 1990, in N. Devillard's "opt_med9" order): 19 compare-exchanges ``(a, b)`` putting the
+#: smaller in ``p[a]``, the larger in ``p[b]``; the median ends in ``p[4]``.  The third entry says which
+#: of the two results is read again (1 smaller, 2 larger, 3 both): the others are not computed.
+_MEDIAN9 = ((1, 2, 3), (4, 5, 3), (7, 8, 3), (0, 1, 3), (3, 4, 3), (6, 7, 3), (1, 2, 3), (4, 5, 3), (7, 8, 3),
+            (0, 3, 2), (5, 8, 1), (4, 7, 3), (3, 6, 2), (1, 4, 2), (2, 5, 1), (4, 7, 1), (4, 2, 3), (6, 4, 2),
+            (4, 2, 1))
 
 
 def _median_filter(s: np.ndarray, size: int, axis: int) -> np.ndarray:
@@ -139,6 +142,6 @@ def _median_filter(s: np.ndarray, size: int, axis: int) -> np.ndarray:
     widths[axis] = (4, 4)
     padded = np.pad(s, widths, mode="symmetric")   # scipy's "reflect": d c b a | a b c d | d c b a
     p = [padded[k:k + n] if axis == 0 else padded[:, k:k + n] for k in range(9)]
-    for a, b in _MEDIAN9:
-        p[a], p[b] = np.minimum(p[a], p[b]), np.maximum(p[a], p[b])
+    for a, b, need in _MEDIAN9:
+        p[a], p[b] = (np.minimum(p[a], p[b]) if need & 1 else None), (np.maximum(p[a], p[b]) if need & 2 else None)
     return p[4]
