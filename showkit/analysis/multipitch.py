@@ -171,7 +171,7 @@ class Estimator:
         sigma = np.sqrt(self.band_tri.T @ power)  # (bands, frames)
         gain = np.maximum(sigma, floor) ** (WHITEN_NU - 1.0)
         y = (self.band_interp @ gain) * magnitude
-        return np.where(magnitude > floor, y, 0.0).astype(np.float32)
+        return np.where(magnitude > floor, y, 0.0).astype(np.float32, copy=False)
 
     def estimate(self, whitened: np.ndarray, max_notes: int = MAX_NOTES):
         """Iterative estimation on a block of whitened frames.
