@@ -104,7 +104,9 @@ def hpss_masks(magnitude: np.ndarray, kernel=HPSS_KERNEL, power: float = 2.0):
     power : float
         Mask exponent.
     """
-    s = np.asarray(magnitude, dtype=np.float32)
+    # C order, as scipy's median_filter returns: the masks' layout sets the summation order of what
+    # is summed from them (the sustained share, the flux)
+    s = np.ascontiguousarray(magnitude, dtype=np.float32)
     harm = _median_filter(s, kernel[1], axis=1)
     perc = _median_filter(s, kernel[0], axis=0)
     h = harm.astype(np.float64) ** power
