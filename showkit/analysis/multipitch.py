@@ -158,6 +158,12 @@ class Estimator:
         interp[np.arange(bins), j + 1] += w
         self.band_interp = interp
         self.lobe_offsets = np.arange(-2 * PAD, 2 * PAD + 1)
+        # cancellation, per candidate: the bin nearest each partial, the bins of its main lobe (partials
+        # outside the band and lobe bins off its edges go to a spare row, `bins`) and the lobe's shape
+        self.near_bin = np.clip(np.rint(pos).astype(int), 0, bins - 1)                 # (C, M)
+        lobe = self.near_bin[:, :, None] + self.lobe_offsets                            # (C, M, offsets)
+        self.lobe_bin = np.where(ok[:, :, None] & (lobe >= 0) & (lobe < bins), lobe, bins)
+        self.lobe_shape = hann_lobe((lobe - pos[:, :, None]) / PAD)
 
     def whiten(self, magnitude: np.ndarray, floor: float) -> np.ndarray:
         """Whitened magnitude (bins, frames); ``floor`` is an amplitude below which nothing counts."""
@@ -165,7 +171,7 @@ class Estimator:
         sigma = np.sqrt(self.band_tri.T @ power)  # (bands, frames)
         gain = np.maximum(sigma, floor) ** (WHITEN_NU - 1.0)
         y = (self.band_interp @ gain) * magnitude
-        return np.where(magnitude > floor, y, 0.0).astype(np.float32)
+        return np.where(magnitude > floor, y, 0.0).astype(np.float32, copy=False)
 
     def estimate(self, whitened: np.ndarray, max_notes: int = MAX_NOTES):
         """Iterative estimation on a block of whitened frames.
@@ -176,33 +182,40 @@ class Estimator:
             Candidate index of each note (-1: none), in the order found.
         salience : ndarray (frames, max_notes)
         """
-        from scipy.ndimage import maximum_filter1d
-
         y = np.asarray(whitened, dtype=np.float32)
         bins, frames = y.shape
         found = np.full((frames, max_notes), -1, dtype=int)
         sal = np.zeros((frames, max_notes), dtype=np.float32)
-        detected = np.zeros_like(y)
-        resid = y.copy()
         total = np.zeros(frames)
         first = np.zeros(frames)
         # candidates within EXCLUDE_CENTS of a note already taken: grid steps either side
         near_steps = np.arange(-int(np.ceil(EXCLUDE_CENTS / GRID_CENTS)) + 1, int(np.ceil(EXCLUDE_CENTS / GRID_CENTS)))
         top = self.f0_hz.size - 1
-        reach = 2 * PARTIAL_REACH_BINS + 1
-        act = np.arange(frames)  # the frames still taking notes (only those are searched again)
+        reach = PARTIAL_REACH_BINS
+        # Only the frames still taking notes are searched again: the arrays below hold just their columns,
+        # compacted as frames drop out.
+        act = np.arange(frames)
+        resid = y                                   # residual max(0, Y - d Y_D) of the active frames
+        ya = y                                      # their whitened spectrum (resid is never written in place)
+        detected = np.zeros((bins + 1, frames), dtype=np.float32)  # their detected sounds Y_D (+ a spare row)
         for j in range(max_notes):
             if act.size == 0:
                 break
-            rmax = maximum_filter1d(resid[:, act], size=reach, axis=0, mode="constant")
-            s = np.asarray(self.salience @ rmax)
-            cols = np.arange(act.size)
-            for k in range(j):
-                taken = found[act, k]
-                for d in near_steps:
-                    s[np.clip(taken + d, 0, top), cols] = np.where(taken >= 0, 0.0, s[np.clip(taken + d, 0, top), cols])
-            c = np.argmax(s, axis=0)
-            best = s[c, np.arange(act.size)]
+            n = act.size
+            # the strongest bin within +-reach (a maximum filter; resid >= 0, so the zeros outside the
+            # band change nothing)
+            rmax = resid.copy()
+            for o in range(1, reach + 1):
+                np.maximum(rmax[o:], resid[:-o], out=rmax[o:])
+                np.maximum(rmax[:-o], resid[o:], out=rmax[:-o])
+            s = self.salience @ rmax             # (candidates, frames)
+            cols = np.arange(n)
+            if j:
+                # every active frame took a note at each earlier step: zero the grid steps around them
+                taken = np.clip(found[act, :j][:, :, None] + near_steps, 0, top).reshape(n, -1)
+                s[taken.T, cols[None, :]] = 0.0
+            best = s.max(axis=0)
+            c = (s == best).argmax(axis=0)   # the first largest, as argmax(s, axis=0), without its transpose
             del s
             if j == 0:
                 keep = best > 0
@@ -211,26 +224,27 @@ class Estimator:
                 t = total[act]
                 grown = (t + best) / (j + 1) ** GAMMA >= t / j ** GAMMA
                 keep = grown & (best > 0) & (best >= MIN_RELATIVE_SALIENCE * first[act])
-            act, c, best, rmax = act[keep], c[keep], best[keep], rmax[:, keep]
+            kept = cols
+            if not keep.all():
+                kept = np.nonzero(keep)[0]
+                act, c, best = act[kept], c[kept], best[kept]
+                ya, detected = np.take(ya, kept, axis=1), np.take(detected, kept, axis=1)
             if act.size == 0:
                 break
             found[act, j] = c
             sal[act, j] = best
             total[act] += best
-            # cancel the partials of the frames that took a note
-            pos = self.pos[c]                        # (n, M)
-            ok = self.ok[c]
-            near = np.clip(np.rint(pos).astype(int), 0, bins - 1)
-            amp = rmax[near, np.arange(act.size)[:, None]] * (self.g[c] if CANCEL_WEIGHTED else 1.0)
-            amp = np.where(ok, amp, 0.0)
-            frames_k = np.broadcast_to(act[:, None], pos.shape)
-            for o in self.lobe_offsets:
-                k = near + o
-                inside = ok & (k >= 0) & (k < bins)
-                # partials lie more than a main lobe apart (f0 >= 50 Hz): no bin is written twice
-                ki, fi = k[inside], frames_k[inside]
-                detected[ki, fi] += (amp[inside] * hann_lobe((ki - pos[inside]) / PAD)).astype(np.float32)
-            resid[:, act] = np.maximum(0.0, y[:, act] - CANCEL_D * detected[:, act])
+            if j == max_notes - 1:
+                break
+            # cancel the partials of the frames that took a note, every lobe offset at once (partials lie
+            # more than a main lobe apart, f0 >= 50 Hz: no bin but the spare row is written twice)
+            n = act.size
+            amp = rmax[self.near_bin[c], kept[:, None]] * (self.g[c] if CANCEL_WEIGHTED else 1.0)
+            flat = self.lobe_bin[c] * n + np.arange(n)[:, None, None]
+            detected.reshape(-1)[flat] += (amp[:, :, None] * self.lobe_shape[c]).astype(np.float32)
+            resid = np.multiply(detected[:bins], CANCEL_D)
+            np.subtract(ya, resid, out=resid)
+            np.maximum(0.0, resid, out=resid)
         return found, sal
 
     def refine(self, power: np.ndarray, index: np.ndarray):
@@ -254,22 +268,23 @@ class Estimator:
         bins, frames = p.shape
         valid = index >= 0
         cidx = np.where(valid, index, 0)
-        f0 = self.f0_hz[cidx]                                           # (F, N)
-        fr = np.broadcast_to(np.arange(frames)[:, None], index.shape)
+        # every figure below is computed for the notes found only (``_v``: one entry per found note)
+        fr, cv = np.nonzero(valid)[0], index[valid]
+        f0 = self.f0_hz[cv]                                             # (V,)
         # energy: strongest bin within the reach of each partial in the band
-        pos = self.pos[cidx]                                            # (F, N, M)
-        ok = self.ok[cidx] & valid[..., None]
+        pos = self.pos[cv]                                              # (V, M)
+        ok = self.ok[cv]
         near = np.clip(np.rint(pos).astype(int), PARTIAL_REACH_BINS, bins - 1 - PARTIAL_REACH_BINS)
         peak = np.zeros(pos.shape, dtype=np.float32)
         for o in range(-PARTIAL_REACH_BINS, PARTIAL_REACH_BINS + 1):
-            peak = np.maximum(peak, p[near + o, fr[..., None]])
-        energy = np.where(ok, peak, 0.0).sum(axis=2)
+            peak = np.maximum(peak, p[near + o, fr[:, None]])
+        energy_v = np.where(ok, peak, 0.0).sum(axis=1)
         # frequency: interpolated peaks of partials 1-3
-        num = np.zeros(index.shape)
-        den = np.zeros(index.shape)
+        num = np.zeros(cv.shape)
+        den = np.zeros(cv.shape)
         with np.errstate(divide="ignore", invalid="ignore"):
             for h in range(3):
-                ph = pos[..., h]
+                ph = pos[:, h]
                 k0 = np.clip(np.rint(ph).astype(int), PARTIAL_REACH_BINS + 1, bins - 2 - PARTIAL_REACH_BINS)
                 win = np.stack([p[k0 + o, fr] for o in range(-PARTIAL_REACH_BINS, PARTIAL_REACH_BINS + 1)], axis=-1)
                 k = k0 + np.argmax(win, axis=-1) - PARTIAL_REACH_BINS
@@ -281,10 +296,13 @@ class Estimator:
                 delta = np.clip(np.where(is_peak, 0.5 * (a - c) / np.where(den_ < 0, den_, -1.0), 0.0), -0.5, 0.5)
                 fh = (self.first_bin + k + delta) * self.bin_hz / (h + 1)
                 close = np.abs(1200.0 * np.log2(fh / f0)) < REFINE_CENTS
-                w = np.where(valid & self.ok[cidx][..., h] & is_peak & close, p[k, fr], 0.0) / (h + 1)
+                w = np.where(ok[:, h] & is_peak & close, p[k, fr], 0.0) / (h + 1)
                 num += w * fh
                 den += w
-        freq = np.where(den > 0, num / np.where(den > 0, den, 1.0), f0)
+        freq = self.f0_hz[cidx]
+        freq[valid] = np.where(den > 0, num / np.where(den > 0, den, 1.0), f0)
+        energy = np.zeros(index.shape, dtype=energy_v.dtype)
+        energy[valid] = energy_v
         # two candidates refined onto the same partials are one note: the later one is dropped
         with np.errstate(invalid="ignore", divide="ignore"):
             gap = np.abs(1200.0 * np.log2(freq[:, :, None] / freq[:, None, :]))

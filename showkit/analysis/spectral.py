@@ -104,14 +104,46 @@ def hpss_masks(magnitude: np.ndarray, kernel=HPSS_KERNEL, power: float = 2.0):
     power : float
         Mask exponent.
     """
-    from scipy.ndimage import median_filter
-
-    s = np.asarray(magnitude, dtype=np.float32)
-    harm = median_filter(s, size=(1, kernel[1]), mode="reflect")
-    perc = median_filter(s, size=(kernel[0], 1), mode="reflect")
+    # C order, as scipy's median_filter returns: the masks' layout sets the summation order of what
+    # is summed from them (the sustained share, the flux)
+    s = np.ascontiguousarray(magnitude, dtype=np.float32)
+    harm = _median_filter(s, kernel[1], axis=1)
+    perc = _median_filter(s, kernel[0], axis=0)
     h = harm.astype(np.float64) ** power
     p = perc.astype(np.float64) ** power
     total = h + p
     tiny = np.finfo(np.float32).tiny
     mask_h = np.where(total > tiny, h / np.where(total > tiny, total, 1.0), 0.5)
     return mask_h.astype(np.float32), (1.0 - mask_h).astype(np.float32)
+
+
+#: Paeth's exchange network for the median of 9 (A. W. Paeth, "Median finding on a 3x3 grid",
+#: Graphics Gems, 1990, in N. Devillard's "opt_med9" order): 19 compare-exchanges ``(a, b)`` putting the
+#: smaller in ``p[a]``, the larger in ``p[b]``; the median ends in ``p[4]``.  The third entry says which
+#: of the two results is read again (1 smaller, 2 larger, 3 both): the others are not computed.
+_MEDIAN9 = ((1, 2, 3), (4, 5, 3), (7, 8, 3), (0, 1, 3), (3, 4, 3), (6, 7, 3), (1, 2, 3), (4, 5, 3), (7, 8, 3),
+            (0, 3, 2), (5, 8, 1), (4, 7, 3), (3, 6, 2), (1, 4, 2), (2, 5, 1), (4, 7, 1), (4, 2, 3), (6, 4, 2),
+            (4, 2, 1))
+
+
+def _median_filter(s: np.ndarray, size: int, axis: int) -> np.ndarray:
+    """Running median of ``size`` values along ``axis``, edges mirrored
+    (``scipy.ndimage.median_filter(mode="reflect")`` along one axis, to the bit).
+
+    For 9 values (the separation's kernel), an exchange network of elementwise
+    minima and maxima over shifted views (:data:`_MEDIAN9`); other sizes use scipy.
+    """
+    if size != 9:
+        from scipy.ndimage import median_filter
+
+        shape = [1, 1]
+        shape[axis] = size
+        return median_filter(s, size=tuple(shape), mode="reflect")
+    n = s.shape[axis]
+    widths = [(0, 0), (0, 0)]
+    widths[axis] = (4, 4)
+    padded = np.pad(s, widths, mode="symmetric")   # scipy's "reflect": d c b a | a b c d | d c b a
+    p = [padded[k:k + n] if axis == 0 else padded[:, k:k + n] for k in range(9)]
+    for a, b, need in _MEDIAN9:
+        p[a], p[b] = (np.minimum(p[a], p[b]) if need & 1 else None), (np.maximum(p[a], p[b]) if need & 2 else None)
+    return p[4]

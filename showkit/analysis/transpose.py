@@ -79,11 +79,16 @@ def shift_curve(features: TrackFeatures, table: ModeTable, gate: np.ndarray) -> 
         comb[int(np.ceil(c - t)):int(np.floor(c + t)) + 1] = True
     pos = np.rint(1200.0 * np.log2(np.where(ok, f, np.min(table.freq_hz))) - base).astype(int)
     weight = np.where(ok, np.minimum(1.0, share) ** 2, 0.0).astype(np.float32)
+    # comb[clip(pos + s, 0, size - 1)] for every shift s is one row of a sliding window over the comb
+    # padded with its edge values (pos held within RANGE_CENTS of the comb reads the same entries)
+    pos = np.clip(pos, -RANGE_CENTS, size - 1 + RANGE_CENTS) + RANGE_CENTS
+    windows = np.lib.stride_tricks.sliding_window_view(np.pad(comb, 2 * RANGE_CENTS, mode="edge"), shifts.size)
     value = np.zeros(shifts.size)
     for a in range(0, rows.size, CURVE_BLOCK_FRAMES):  # bounded memory on long tracks
         r = rows[a:a + CURVE_BLOCK_FRAMES]
-        idx = np.clip(pos[r][:, :, None] + shifts[None, None, :], 0, size - 1)
-        on = np.where(comb[idx], weight[r][:, :, None], np.float32(0.0)).max(axis=1)
+        on = np.zeros((r.size, shifts.size), dtype=np.float32)
+        for k in range(pos.shape[1]):
+            np.maximum(on, windows[pos[r, k]] * weight[r, k, None], out=on)
         value += gate[r].astype(np.float32) @ on
     return shifts, value
 

@@ -332,7 +332,10 @@ class _OverlapAdd:
 
 def _frame_max(values: np.ndarray, frames: int, frame: int) -> np.ndarray:
     """Largest of each run of ``frame`` values along axis 1: (rows, frames)."""
-    return values[:, :frames * frame].reshape(values.shape[0], frames, frame).max(axis=2)
+    if frames <= 0:
+        return np.zeros((values.shape[0], 0), dtype=values.dtype)
+    # reduceat: the same maxima as reshape(rows, frames, frame).max(axis=2), about twice as fast
+    return np.maximum.reduceat(values[:, :frames * frame], np.arange(0, frames * frame, frame), axis=1)
 
 
 def _worst_in_block(envf: np.ndarray, env: np.ndarray, frame: int, start: int, worst: tuple) -> tuple:

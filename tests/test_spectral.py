@@ -1,0 +1,33 @@
+"""The harmonic/percussive split's running medians (analysis/spectral.py)."""
+
+import numpy as np
+import pytest
+
+from showkit.analysis import spectral
+
+
+@pytest.mark.parametrize("shape", [(60, 80), (9, 5), (3, 4), (1, 12), (12, 1)])
+@pytest.mark.parametrize("axis", [0, 1])
+def test_median_network_equals_scipy_median_filter(shape, axis):
+    # reference: scipy.ndimage.median_filter (mode "reflect") along one axis, to the bit; ties included
+    from scipy.ndimage import median_filter
+
+    rng = np.random.default_rng(sum(shape) + axis)
+    for s in (rng.random(shape).astype(np.float32), np.round(4 * rng.random(shape)).astype(np.float32)):
+        size = [1, 1]
+        size[axis] = 9
+        assert np.array_equal(spectral._median_filter(s, 9, axis), median_filter(s, size=tuple(size), mode="reflect"))
+
+
+def test_hpss_masks_with_the_default_kernel_match_librosa():
+    # Fitzgerald (DAFx 2010) as implemented by librosa.decompose.hpss(mask=True), with the scan's 9 x 9 kernel
+    import librosa
+
+    rng = np.random.default_rng(1)
+    s = np.abs(rng.standard_normal((50, 70))).astype(np.float32)
+    s[10, :] += 8.0  # a held tone
+    s[:, 30] += 8.0  # a hit
+    ours_h, ours_p = spectral.hpss_masks(s)
+    ref_h, ref_p = librosa.decompose.hpss(s, kernel_size=spectral.HPSS_KERNEL[::-1], mask=True)
+    assert np.allclose(ours_h, ref_h, atol=1e-5) and np.allclose(ours_p, ref_p, atol=1e-5)
+    assert ours_h[10, 5] > 0.9 and ours_p[20, 30] > 0.9
