@@ -35,7 +35,7 @@ def run(args) -> int:
     from showkit.cli.common import conditions_from_args, level_caution, print_json, table
     from showkit.show.lock import check_sheet, sheet_rig
     from showkit.show.sheet import load_sheet
-    from showkit.show.status import CueStatus
+    from showkit.show.status import CueStatus, ceiling_text, headroom_text
 
     sheet = load_sheet(args.sheet)
     rig = sheet_rig(sheet)
@@ -46,8 +46,8 @@ def run(args) -> int:
         print_json({"sheet": str(sheet.path), "static_pressure_pa": today.static_pa,
                     "reserve": today.reserve, "cues": [c.to_json() for c in checks]})
     else:
-        rows = [[c.id, f"{c.gain_db:+.2f}", "-" if c.ceiling_db is None else f"{c.ceiling_db:+.2f}",
-                 "-" if c.headroom_db is None else f"{c.headroom_db:+.2f}", headroom_bar(c.headroom_db),
+        rows = [[c.id, f"{c.gain_db:+.2f}", ceiling_text(c.ceiling_db, c.silent),
+                 headroom_text(c.headroom_db, c.silent), "" if c.silent else headroom_bar(c.headroom_db),
                  c.status, c.message] for c in checks]
         print(f"{printable(sheet.title)}: {len(checks)} cues on {printable(rig.name)}, static {today.static_pa:.2f} Pa, "
               f"reserve {today.reserve:g}")

@@ -33,6 +33,7 @@ def run(args) -> int:
     from showkit.show.lock import sheet_rig
     from showkit.show.render import render_iter, write_per_cue, write_show
     from showkit.show.sheet import load_sheet, sheet_inputs
+    from showkit.show.status import ceiling_text
 
     sheet = load_sheet(args.sheet)
     protect = sheet_inputs(sheet)  # never write over the sheet, its rig or a cue's audio
@@ -48,7 +49,7 @@ def run(args) -> int:
     else:
         written, summaries = write_per_cue(cues, Path(args.per_cue), subtype, protect=protect)
     level_caution()
-    rows = [[printable(c.id), f"{c.gain_db:+.2f}", f"{c.ceiling_db:+.2f}", f"{c.min_pressure_pa:.2f}",
+    rows = [[printable(c.id), f"{c.gain_db:+.2f}", ceiling_text(c.ceiling_db, c.silent), f"{c.min_pressure_pa:.2f}",
              f"{c.margin_pa:+.2f}", f"{c.duration_s:.1f}"] for c in summaries]
     print(table(rows, ["cue", "gain dB", "ceiling dB", "lowest Pa", "margin Pa", "seconds"], "<>>>>>"))
     print(f"every cue verified against the pressure model at {today.static_pa:.2f} Pa static, "

@@ -108,13 +108,14 @@ def pre_show(args, log, static_pa, temperature_k, out):
     """The pre-show check: render for playback, log and print the summary; returns the cues."""
     from showkit.cli.common import table
     from showkit.show.preshow import pre_show_check
+    from showkit.show.status import ceiling_text
 
     cues, problems = pre_show_check(args.sheet, log, static_pa, temperature_k)
     for line in problems:
         if not line.startswith("cue "):
             print(printable(line), file=out)
     rows = [[str(k + 1), c.id, c.label[:32], format_time(c.duration_s) if c.playable else "-",
-             f"{c.gain_db:+.1f}", "-" if c.ceiling_db is None else f"{c.ceiling_db:+.1f}",
+             f"{c.gain_db:+.1f}", ceiling_text(c.ceiling_db, c.silent, 1),
              c.then, c.status] for k, c in enumerate(cues)]
     print(table(rows, ["#", "cue", "label", "length", "gain dB", "ceiling dB", "then", "status"],
                 "><<>>><<"), file=out)

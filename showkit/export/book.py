@@ -30,7 +30,7 @@ from showkit.physics.modes import find_modes
 from showkit.safesave import replacing
 from showkit.safety import CAUTION_TITLE, CAUTIONS
 from showkit.show.sheet import AudioSource, describe_source, load_sheet
-from showkit.show.status import CueStatus
+from showkit.show.status import CueStatus, ceiling_text, headroom_text
 from showkit.units import format_time
 
 #: What the ceiling guarantees and what it assumes (the README's *Ceilings and flames*).
@@ -224,8 +224,8 @@ COLUMNS = [("#", 3, 0.03), ("cue", 14, 0.055), ("label", 27, 0.15), ("kind and s
 
 def _row_cells(k, e) -> list[list[str]]:
     c, ch = e.cue, e.check
-    ceiling = "-" if ch.ceiling_db is None else f"{ch.ceiling_db:+.2f}"
-    head = "-" if ch.headroom_db is None else f"{ch.headroom_db:+.2f}"
+    ceiling = ceiling_text(ch.ceiling_db, ch.silent)
+    head = headroom_text(ch.headroom_db, ch.silent)
     state = STATE_TEXT.get(ch.status, ch.status)
     notes = c.notes
     if ch.status != CueStatus.OK:
@@ -277,8 +277,8 @@ def cue_page(plt, data: BookData, k: int, e: CueEntry, size):
         fig.text(0.08, y, f"{state}: {ch.message}"[:120], fontsize=10, weight="bold", color="white", va="top",
                  bbox={"facecolor": WORST, "edgecolor": WORST, "pad": 2})
         y -= 0.03
-    ceiling = "-" if ch.ceiling_db is None else f"{ch.ceiling_db:+.2f} dB"
-    head = "-" if ch.headroom_db is None else f"{ch.headroom_db:+.2f} dB"
+    ceiling = ceiling_text(ch.ceiling_db, ch.silent, unit=" dB")
+    head = headroom_text(ch.headroom_db, ch.silent, unit=" dB")
     facts = [f"{e.kind_text}",
              f"gain {c.gain_db:+.2f} dB, ceiling {ceiling}, headroom {head}, state {state}",
              f"fade in {c.fade_in_s:g} s, fade out {c.fade_out_s:g} s; then {c.then}" + ("; gain rider on" if c.ride else "")]

@@ -37,7 +37,7 @@ from showkit.export.common import plotting
 from showkit.physics.flames import FRAME_RATE_HZ
 from showkit.safesave import replacing
 from showkit.show.sheet import load_sheet
-from showkit.show.status import CueStatus
+from showkit.show.status import SILENT_MESSAGE, CueStatus
 from showkit.units import format_time
 
 #: Video frames per second: one flame frame per video frame.
@@ -171,6 +171,7 @@ class Segment:
     ceiling_db: float | None = None
     status: str = CueStatus.OK
     message: str = ""
+    silent: bool = False  # an ok cue that plays nothing (a pause): no ceiling to show
 
     def frame(self, t_s: float, holes: int):
         """Heights and air per hole at ``t_s`` into the segment (still flames when silent)."""
@@ -251,7 +252,7 @@ def sheet_timeline(sheet_path, static_pa: float | None = None, reserve: float | 
         frames = signal_flames(rig, v.samples, v.rate_hz, 0.0)
         d = v.samples.size / v.rate_hz
         segments.append(Segment(cue.id, cue.label, t, d, frames.height, frames.air_in, lag, v.gain_db,
-                                v.ceiling_db, CueStatus.OK, ""))
+                                v.ceiling_db, CueStatus.OK, "", v.silent))
         parts.append(v)
         t += d
     if progress:
@@ -378,7 +379,8 @@ class Painter:
             room = (L.width - 2 * L.tube_x0 - self.clock_cells * self.gs.cell_w) // self.gb.cell_w - 1
             put_text(img, L.tube_x0, 4, head[:max(room, 8)], self.gb, TEXT)
             if seg.status == CueStatus.OK:
-                words = (f"gain {seg.gain_db:+.2f} dB, ceiling {seg.ceiling_db:+.2f} dB"
+                words = (SILENT_MESSAGE if seg.silent else
+                         f"gain {seg.gain_db:+.2f} dB, ceiling {seg.ceiling_db:+.2f} dB"
                          if seg.gain_db is not None and seg.ceiling_db is not None else "")
                 put_text(img, L.tube_x0, 4 + self.gb.cell_h, words, self.gs, DIM)
             else:

@@ -53,6 +53,11 @@ class CueSignal:
     def duration_s(self) -> float:
         return self.samples.size / self.rate_hz
 
+    @property
+    def silent(self) -> bool:
+        """True when every sample is zero (a pause): the cue plays nothing at any gain."""
+        return not np.any(self.samples)
+
 
 @lru_cache(maxsize=16)
 def _modes(rig: Rig):
