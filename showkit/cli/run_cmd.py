@@ -61,16 +61,13 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 def run(args) -> int:
     from showkit.cli.common import level_caution
+    from showkit.conditions import static_reading, temperature_reading
     from showkit.safety import caution_text
+    from showkit.show.sheet import load_sheet, sheet_inputs
     from showkit.show.showlog import ShowLog
 
-    out = sys.stdout
-    print(caution_text(), file=out)
-    print(file=out)
-    level_caution()
-    # today's readings through the one door (the rig file's limits), before anything plays
-    from showkit.conditions import static_reading, temperature_reading
-
+    # everything that can be refused is refused before anything is printed: the one line is
+    # then the only output.  Today's readings go through the one door (the rig file's limits).
     static_pa = None if args.static is None else static_reading(args.static, "--static")
     temperature_k = None if args.temperature is None else temperature_reading(args.temperature, "--temperature")
     if not (args.fade > 0 and math.isfinite(args.fade)):
@@ -79,22 +76,18 @@ def run(args) -> int:
     if not args.auto and not _is_tty(sys.stdin):
         raise InputError("no keyboard: standard input is not a terminal", "showkit run",
                          "run it in a terminal, or use --auto for a rehearsal with no keyboard")
-    log = ShowLog(args.log, protect=_show_files(args.sheet))
+    show_files = sheet_inputs(load_sheet(args.sheet))  # the log is never written into one of them
+
+    out = sys.stdout
+    print(caution_text(), file=out)
+    print(file=out)
+    level_caution()
+    log = ShowLog(args.log, protect=show_files)
     print(f"show log: {printable(log.path)}", file=out)
     try:
         return _run(args, log, static_pa, temperature_k, out)
     finally:
         log.close()
-
-
-def _show_files(sheet_path) -> list:
-    """The files the show reads (the log must never be written into one of them)."""
-    from showkit.show.sheet import load_sheet, sheet_inputs
-
-    try:
-        return sheet_inputs(load_sheet(sheet_path))
-    except ShowkitError:
-        return [(sheet_path, "the cue sheet")]
 
 
 def _is_tty(stream) -> bool:
