@@ -28,9 +28,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 def run(args) -> int:
     from pathlib import Path
 
-    from showkit.cli.common import conditions_from_args, level_caution, table
+    from showkit.cli.common import level_caution, sheet_rig_today, table
     from showkit.safesave import check_target
-    from showkit.show.lock import sheet_rig
     from showkit.show.render import render_iter, write_per_cue, write_show
     from showkit.show.sheet import load_sheet, sheet_inputs
     from showkit.show.status import ceiling_text
@@ -39,8 +38,7 @@ def run(args) -> int:
     protect = sheet_inputs(sheet)  # never write over the sheet, its rig or a cue's audio
     if args.output:
         check_target(Path(args.output), protect, "rendered show")  # before any work
-    rig = sheet_rig(sheet)
-    today = rig.with_conditions(conditions=conditions_from_args(args, rig.conditions))
+    today = sheet_rig_today(sheet, args)
     subtype = "FLOAT" if args.bits == "float" else "PCM_24"
     cues = render_iter(sheet, today)
     if args.output:

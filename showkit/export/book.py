@@ -29,7 +29,7 @@ from showkit.physics.flames import FRAME_RATE_HZ
 from showkit.physics.modes import find_modes
 from showkit.safesave import replacing
 from showkit.safety import CAUTION_TITLE, CAUTIONS
-from showkit.show.sheet import AudioSource, describe_source, load_sheet
+from showkit.show.sheet import AudioSource, describe_source
 from showkit.show.status import CueStatus, ceiling_text, headroom_text
 from showkit.units import format_time
 
@@ -397,17 +397,21 @@ def write_book(data: BookData, path, paper: str = "a4", png_dir=None) -> dict:
     return {"pdf": path, "pages": len(pages), "png": pngs}
 
 
-def make_book(sheet_path, out, paper: str = "a4", png_dir=None, static_pa: float | None = None,
-              reserve: float | None = None, progress=None) -> dict:
-    """Read a sheet, check every cue for today's conditions, write its book."""
-    from showkit.show.lock import sheet_rig
+def make_book(sheet, out, paper: str = "a4", png_dir=None, static_pa: float | None = None,
+              reserve: float | None = None, progress=None, rig=None) -> dict:
+    """Check every cue of a sheet for today's conditions and write its book.
+
+    ``sheet``: a path or a sheet already read; ``rig``: its rig when already read (None:
+    read here); today's ``static_pa`` (Pa) and ``reserve`` over it as
+    :func:`showkit.show.lock.sheet_for_today` applies them (None keeps the rig's).
+    """
+    from showkit.show.lock import sheet_for_today
 
     paper_size(paper)  # a bad paper name or folder fails before the slow work
     folder = Path(out).parent if str(Path(out).parent) else Path(".")
     if not folder.is_dir():
         raise InputError("no such folder", str(folder), "create the folder first or give another path")
-    sheet = load_sheet(sheet_path)
-    rig = sheet_rig(sheet).with_conditions(static_pa=static_pa, reserve=reserve)
+    sheet, rig = sheet_for_today(sheet, rig, static_pa, reserve)
     data = collect(sheet, rig, progress)
     result = write_book(data, out, paper, png_dir)
     result["states"] = {e.cue.id: e.check.status for e in data.entries}

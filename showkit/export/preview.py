@@ -36,7 +36,6 @@ from showkit.errors import InputError, ShowkitError
 from showkit.export.common import plotting
 from showkit.physics.flames import FRAME_RATE_HZ
 from showkit.safesave import replacing
-from showkit.show.sheet import load_sheet
 from showkit.show.status import SILENT_MESSAGE, CueStatus
 from showkit.units import format_time
 
@@ -208,17 +207,22 @@ class Timeline:
         return self.segments[max(0, min(k, len(self.segments) - 1))]
 
 
-def sheet_timeline(sheet_path, static_pa: float | None = None, reserve: float | None = None,
-                   progress=None) -> Timeline:
-    """Every cue rendered and verified as `showkit render` does, with its flame frames at that level."""
+def sheet_timeline(sheet, static_pa: float | None = None, reserve: float | None = None,
+                   progress=None, rig=None) -> Timeline:
+    """Every cue rendered and verified as `showkit render` does, with its flame frames at that level.
+
+    ``sheet``: a path or a sheet already read; ``rig``: its rig when already read (None: read
+    here); today's ``static_pa`` (Pa) and ``reserve`` over it as
+    :func:`showkit.show.lock.sheet_for_today` applies them (None keeps the rig's).
+    """
     from showkit.analysis.pressure import frame_lag, signal_flames
-    from showkit.show.lock import check_cue, sheet_rig
+    from showkit.show.lock import check_cue, sheet_for_today
     from showkit.show.playlist import RenderedCue
     from showkit.show.render import SHOW_RATE_HZ, render_cue
     from showkit.show.sources import SignalMemo
 
-    sheet = load_sheet(sheet_path)
-    rig = sheet_rig(sheet).with_conditions(static_pa=static_pa, reserve=reserve)
+    sheet, rig = sheet_for_today(sheet, rig, static_pa, reserve)
+    sheet_path = sheet.path or sheet.title
     if rig.geometry.hole_count == 0:
         raise InputError("the rig has no holes: there is no flame row to preview", str(sheet_path),
                          "add [holes] to the rig file")

@@ -25,7 +25,7 @@ from showkit.errors import InputError, RigError, SheetError, ShowkitError
 from showkit.physics import ceiling as rule
 from showkit.physics.family import STATIC_SPAN
 from showkit.rigfile import Rig, load_rig
-from showkit.show.sheet import Cue, Lock, Sheet, floor_db, rounded_lock
+from showkit.show.sheet import Cue, Lock, Sheet, floor_db, load_sheet, rounded_lock
 from showkit.show.sources import TONE_RATE_HZ, CueSignal, SignalMemo, signal_for
 from showkit.show.status import SILENT_MESSAGE, CueStatus
 
@@ -43,6 +43,19 @@ def sheet_rig(sheet: Sheet) -> Rig:
         if exc.what == "no such rig file":
             fix = 'fix the sheet\'s rig = "..." (a path relative to the sheet, or "demo")'
         raise SheetError(exc.what, f"{sheet.path or 'sheet'}: rig ({exc.where})", fix) from None
+
+
+def sheet_for_today(sheet, rig: Rig | None = None, static_pa: float | None = None,
+                    reserve: float | None = None) -> tuple[Sheet, Rig]:
+    """``(sheet, rig)``: the sheet (a path, or a :class:`Sheet` already read) and its rig
+    (``rig`` when the caller read it already, else the one it names, read here) with today's
+    ``static_pa`` (Pa) and ``reserve`` (fraction) over it; None keeps the rig's.  Each is read
+    once, and today's numbers go through :meth:`Rig.with_conditions` (the conditions door).
+    """
+    if not isinstance(sheet, Sheet):
+        sheet = load_sheet(sheet)
+    rig = rig if rig is not None else sheet_rig(sheet)
+    return sheet, rig.with_conditions(static_pa=static_pa, reserve=reserve)
 
 
 def safe_gain(ceiling_db: float) -> float:
