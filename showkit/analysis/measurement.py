@@ -222,7 +222,9 @@ def reference_frequency(rig, asked_hz: float | None, where: str = "--frequency")
 
 def reference_sine(freq_hz: float, level_dbfs: float, rate_hz: int = REFERENCE_RATE_HZ,
                    length_s: float = REFERENCE_LENGTH_S, ramp_s: float = REFERENCE_RAMP_S):
-    """The calibration sine: ``level_dbfs`` peak at ``freq_hz`` for ``length_s`` s, linear ramps of ``ramp_s`` s.
+    """The calibration sine: ``level_dbfs`` peak at ``freq_hz`` for ``length_s`` s, ramps of ``ramp_s`` s.
+
+    A cue's tone and fades (:mod:`showkit.analysis.signals`: raised-cosine ramps).
 
     Parameters
     ----------
@@ -235,12 +237,10 @@ def reference_sine(freq_hz: float, level_dbfs: float, rate_hz: int = REFERENCE_R
     length_s, ramp_s : float
         Length and fade-in/fade-out time, s.
     """
-    t = np.arange(int(length_s * rate_hz)) / rate_hz
-    sine = 10 ** (level_dbfs / 20) * np.sin(2 * np.pi * freq_hz * t)
-    ramp = int(ramp_s * rate_hz)
-    sine[:ramp] *= np.linspace(0, 1, ramp)
-    sine[-ramp:] *= np.linspace(1, 0, ramp)
-    return sine
+    from showkit.analysis.signals import fade, tone
+
+    return fade(10 ** (level_dbfs / 20) * tone(freq_hz, length_s, rate_hz), rate_hz, ramp_s, ramp_s,
+                "reference sine")
 
 
 def check_reference_sine(rig, sine, rate_hz: int, level_dbfs: float, where: str = "--level") -> float:
