@@ -42,6 +42,7 @@ from __future__ import annotations
 import numpy as np
 
 from showkit.analysis.features import TrackFeatures
+from showkit.physics.pitch import A4_HZ, A4_MIDI, hz_to_midi
 
 #: Shortest passage, s (project's choice: long enough for a pattern to be seen).
 MIN_PASSAGE_S = 6.0
@@ -101,7 +102,7 @@ def chroma(notes_hz: np.ndarray, notes_energy: np.ndarray) -> np.ndarray:
     hz = np.asarray(notes_hz, dtype=float)
     amp = np.sqrt(np.maximum(np.nan_to_num(np.asarray(notes_energy, dtype=float)), 0.0))
     ok = np.isfinite(hz) & (hz > 0) & (amp > 0)
-    pc = np.mod(np.rint(12.0 * np.log2(np.where(ok, hz, 440.0) / 440.0)), 12).astype(int)
+    pc = np.mod(np.rint(hz_to_midi(np.where(ok, hz, A4_HZ)) - A4_MIDI), 12).astype(int)  # A = 0
     out = np.zeros((hz.shape[0], 12))
     rows = np.broadcast_to(np.arange(hz.shape[0])[:, None], hz.shape)
     np.add.at(out, (rows[ok], pc[ok]), amp[ok])
