@@ -190,23 +190,6 @@ def test_book_refuses_conditions_outside_the_limits(book, tmp_path, capsys, opti
     assert not (tmp_path / "b.pdf").exists()
 
 
-def _count_rig_reads(monkeypatch) -> list:
-    """Every read of a rig file from here on, counted (showkit.rigfile.load_rig, as the
-    sheet's rig and --rig reach it)."""
-    import showkit.rigfile
-    import showkit.show.lock
-
-    reads, real = [], showkit.rigfile.load_rig
-
-    def counted(*a, **k):
-        reads.append(a[:1])
-        return real(*a, **k)
-
-    monkeypatch.setattr(showkit.rigfile, "load_rig", counted)
-    monkeypatch.setattr(showkit.show.lock, "load_rig", counted)
-    return reads
-
-
 def test_book_reads_the_sheets_rig_once_and_makes_the_book_on_it(book, monkeypatch, tmp_path):
     """`book` read the sheet's rig twice (once for --static, once for the book): now once, and
     the book is made on that rig with today's static pressure (0.08 inH2O = 19.927 Pa,
@@ -224,7 +207,9 @@ def test_book_reads_the_sheets_rig_once_and_makes_the_book_on_it(book, monkeypat
     monkeypatch.setattr(book_mod, "collect", fake_collect)
     monkeypatch.setattr(book_mod, "write_book", lambda data, out, paper, png: {"pdf": str(out), "pages": 1,
                                                                                "png": []})
-    reads = _count_rig_reads(monkeypatch)
+    from export_support import count_rig_reads
+
+    reads = count_rig_reads(monkeypatch)
     assert main(["book", str(book[0]), "-o", str(tmp_path / "b.pdf"), "--static", "0.08 inH2O"]) == 0
     assert len(reads) == 1
     assert used["rig"].static_pa == pytest.approx(19.927, abs=0.001)

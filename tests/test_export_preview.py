@@ -221,19 +221,11 @@ def test_sheet_preview_reads_its_own_rig_once(tmp_path, monkeypatch, capsys):
     own): now only the sheet's, once, and --rig (which a sheet preview never drew on) is
     refused in one line.  The sheet here has no cues, so the preview stops at once after
     reading the rig."""
-    import showkit.rigfile
-    import showkit.show.lock
+    from export_support import count_rig_reads
 
     sheet = tmp_path / "empty.toml"
     sheet.write_text('title = "empty"\nrig = "demo"\nformat = 1\n')
-    reads, real = [], showkit.rigfile.load_rig
-
-    def counted(*a, **k):
-        reads.append(a[:1])
-        return real(*a, **k)
-
-    monkeypatch.setattr(showkit.rigfile, "load_rig", counted)
-    monkeypatch.setattr(showkit.show.lock, "load_rig", counted)
+    reads = count_rig_reads(monkeypatch)
     out = tmp_path / "show.mp4"
     assert main(["preview", str(sheet), "-o", str(out), "--static", "18 Pa"]) == 2
     err = capsys.readouterr().err.strip().splitlines()
