@@ -249,6 +249,22 @@ def format_time(seconds: float, round_down: bool = False) -> str:
     return f"{sign}{minutes}:{rest // 10:02d}.{rest % 10}"
 
 
+def format_semitones(semitones: float) -> str:
+    """``1.58`` -> ``"+1.58 st"``: a transposition, signed, in semitones to the cent.
+
+    The one way a shift is shown (the scan's table, the Track view), so ``+0.50 st``
+    and ``+1.58 st`` read alike and either can be typed back as ``scan --transpose``.
+
+    Parameters
+    ----------
+    semitones : float
+        The shift, semitones (100 cents each); ``"-"`` when not finite.
+    """
+    if not math.isfinite(semitones):
+        return "-"
+    return f"{round(semitones, 2) + 0.0:+.2f} st"  # + 0.0: a shift that rounds to nothing is not "-0.00"
+
+
 def db(ratio: float) -> float:
     """Amplitude ratio to decibels, ``20 log10(ratio)``; ``-inf`` for zero."""
     return 20.0 * math.log10(ratio) if ratio > 0 else -math.inf

@@ -119,3 +119,20 @@ def exported_short_sheet(tmp_path_factory, command: str, out_name: str, *options
     out = folder / out_name
     assert main([command, str(sheet), "-o", str(out), *(o.format(folder=folder) for o in options)]) == 0
     return sheet, out, folder
+
+
+def count_rig_reads(monkeypatch) -> list:
+    """Every read of a rig file from here on, counted (showkit.rigfile.load_rig, as the
+    sheet's rig and --rig reach it)."""
+    import showkit.rigfile
+    import showkit.show.lock
+
+    reads, real = [], showkit.rigfile.load_rig
+
+    def counted(*a, **k):
+        reads.append(a[:1])
+        return real(*a, **k)
+
+    monkeypatch.setattr(showkit.rigfile, "load_rig", counted)
+    monkeypatch.setattr(showkit.show.lock, "load_rig", counted)
+    return reads

@@ -167,3 +167,23 @@ def test_hashes(tmp_path):
     assert len(samples_hash(x, 8000)) == 16
     with pytest.raises(AudioError):
         content_hash(tmp_path / "gone.wav")
+
+
+def test_mono_and_first_channel_say_what_they_take():
+    """Two ways to one channel, one helper each: a signal to play is the mean of its channels
+    (a loud right channel counts towards a ceiling), a measurement recording is its first
+    channel, the microphone (a silent second input does not halve the level read).
+    Reference: numpy mean and indexing on a hand-made two-channel array."""
+    from showkit.analysis.audio import first_channel, mono
+    from showkit.analysis.measurement import sine_amplitude
+
+    t = np.arange(4800) / 48000
+    mic = 0.5 * np.sin(2 * np.pi * 1000 * t)
+    two = np.stack([mic, np.zeros_like(mic)], axis=1)
+    np.testing.assert_array_equal(mono(two), two.mean(axis=1))
+    np.testing.assert_array_equal(first_channel(two), mic)
+    assert sine_amplitude(two, 48000, 1000.0) == pytest.approx(0.5, rel=1e-9)
+    bad = two.copy()
+    bad[3, 1] = np.nan
+    with pytest.raises(AudioError):
+        mono(bad)

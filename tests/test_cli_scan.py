@@ -146,3 +146,23 @@ def test_map_file_is_the_map_as_data(folder, tmp_path, capsys):
 def test_map_takes_one_track(folder, tmp_path, capsys):
     assert main(["scan", str(folder), "--map", str(tmp_path / "m.json")]) == 2
     assert "one track" in capsys.readouterr().err and not (tmp_path / "m.json").exists()
+
+
+def test_transpose_column_is_one_format(capsys):
+    """Half a semitone and one and a half read the same way in the table (an earlier table
+    wrote "+50 c" beside "+1 st +58 c").  Reference: the shift in semitones, rounded to
+    the cent (closed form)."""
+    from showkit.cli.scan_cmd import _print_table
+
+    def track(name, shift):
+        return {"path": name, "duration_s": 10.0, "score": 40.0, "transpose_semitones": shift,
+                "transpose_score": 55.0, "error": None, "passages": []}
+
+    _print_table([track("a.wav", 0.5), track("b.wav", 1.58), track("c.wav", -2.0), track("d.wav", 0.0)])
+    rows = {line.split()[1]: line for line in capsys.readouterr().out.splitlines()
+            if line.split() and line.split()[1].endswith(".wav")}
+    assert "+0.50 st -> 55" in rows["a.wav"]
+    assert "+1.58 st -> 55" in rows["b.wav"]
+    assert "-2.00 st -> 55" in rows["c.wav"]
+    assert rows["d.wav"].rstrip().endswith("none")
+    assert not any(" c " in r or r.rstrip().endswith(" c") for r in rows.values())

@@ -141,3 +141,61 @@ def test_example_sheets_lock_check_and_render(tmp_path, capsys):
         assert main(["check", str(copy)]) == 0, example
         assert main(["render", str(copy), "-o", str(tmp_path / f"{example.stem}.wav")]) == 0, example
         capsys.readouterr()
+
+
+PAUSE_SHEET = '''title = "pause"
+rig = "demo"
+format = 1
+
+[[cue]]
+id = "m2"
+tone = { mode = 2, duration = 1 }
+gain = -40
+
+[[cue]]
+id = "talk"
+pause = { duration = 1 }
+gain = GAIN
+'''
+
+
+def _row(text, cue_id):
+    return next(line.split() for line in text.splitlines() if line.split()[:1] == [cue_id])
+
+
+def test_a_pause_shows_silence_not_a_ceiling(tmp_path, capsys):
+    """A pause plays nothing: lock, check and render call its ceiling "silence" (an earlier
+    table gave it "+60.00", the cap on the gain of silence) and give it no headroom, while
+    the tone beside it keeps its figures.  Reference: zero samples stay zero at any gain
+    (closed form), so no level exists to cap."""
+    path = tmp_path / "show.toml"
+    path.write_text(PAUSE_SHEET.replace("GAIN", "0"))
+    assert main(["lock", str(path)]) == 0
+    lock = capsys.readouterr().out
+    assert _row(lock, "talk")[3:5] == ["silence", "-"]  # ceiling dB, limited by
+    assert float(_row(lock, "m2")[3]) < 0
+    assert main(["check", str(path)]) == 0
+    check = capsys.readouterr().out
+    talk = _row(check, "talk")
+    assert talk[2:4] == ["silence", "-"] and talk[4] == "ok" and "plays nothing" in " ".join(talk)
+    assert "+60" not in check
+    assert main(["render", str(path), "-o", str(tmp_path / "show.wav")]) == 0
+    render = capsys.readouterr().out
+    assert _row(render, "talk")[2] == "silence" and "+60" not in render
+    # the data keeps the rule's numbers: the ceiling is the cap on silence
+    assert main(["check", str(path), "--json"]) == 0
+    cue = json.loads(capsys.readouterr().out)["cues"][1]
+    assert cue["silent"] is True and cue["ceiling_db"] == 60.0 and cue["status"] == "ok"
+
+
+def test_a_pause_above_the_cap_is_still_over(tmp_path, capsys):
+    """The rule is the same for a pause: a gain above its locked ceiling (the cap on silence)
+    is refused, and then the ceiling is given as a figure to come down to."""
+    path = tmp_path / "show.toml"
+    path.write_text(PAUSE_SHEET.replace("GAIN", "0"))
+    assert main(["lock", str(path)]) == 0
+    path.write_text(path.read_text().replace("gain = 0.0", "gain = 70.0").replace("gain = 0\n", "gain = 70\n"))
+    capsys.readouterr()
+    assert main(["check", str(path)]) == 2
+    talk = _row(capsys.readouterr().out, "talk")
+    assert talk[2] == "+60.00" and "over" in talk

@@ -198,3 +198,18 @@ def test_a_passage_never_ends_past_its_track(tmp_path):
     for end in (27.2254, 27.2299, 27.0, 9.999999):
         cue = ed.add_passage(track, 6.1, end, -12.0)
         assert cue.source.end_s <= end and end - cue.source.end_s < 0.01 + 1e-9
+
+
+def test_a_silent_cue_keeps_saying_silence_after_a_gain_change(tmp_path):
+    """A pause's check (ok, plays nothing) stays "silence" when its gain moves under the cap;
+    an over check of the same cue gives its ceiling as a figure (the rule of any cue)."""
+    from showkit.show.status import SILENCE, SILENT_MESSAGE, ceiling_text
+
+    ed = _editor(tmp_path)
+    ed.checks["talk"] = CueCheck("talk", 0.0, 60.0, 60.0, "ok", SILENT_MESSAGE, "full_scale", plays_nothing=True)
+    assert ed.checks["talk"].silent and ceiling_text(60.0, ed.checks["talk"].silent) == SILENCE
+    assert ed.set_gain("talk", -3.0).gain_db == -3.0
+    check = ed.checks["talk"]
+    assert check.silent and check.message == SILENT_MESSAGE and check.headroom_db == 63.0
+    over = CueCheck("talk", 61.0, 60.0, -1.0, "over", "gain is 1.00 dB above", "full_scale", plays_nothing=True)
+    assert not over.silent and ceiling_text(over.ceiling_db, over.silent) == "+60.00"

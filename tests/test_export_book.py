@@ -164,7 +164,7 @@ def test_book_reads_static_and_reserve_through_the_conditions_door(book, monkeyp
 
     seen = {}
 
-    def fake_make_book(sheet, out, paper, png, static_pa, reserve_):
+    def fake_make_book(sheet, out, paper, png, static_pa, reserve_, **_):
         seen["args"] = (static_pa, reserve_)
         return {"pdf": str(out), "pages": 1, "png": [], "states": {}}
 
@@ -188,3 +188,28 @@ def test_book_refuses_conditions_outside_the_limits(book, tmp_path, capsys, opti
     err = capsys.readouterr().err.strip().splitlines()
     assert len(err) == 1 and option in err[0]
     assert not (tmp_path / "b.pdf").exists()
+
+
+def test_book_reads_the_sheets_rig_once_and_makes_the_book_on_it(book, monkeypatch, tmp_path):
+    """`book` read the sheet's rig twice (once for --static, once for the book): now once, and
+    the book is made on that rig with today's static pressure (0.08 inH2O = 19.927 Pa,
+    conventional inch of water, NIST SP 811)."""
+    import showkit.export.book as book_mod
+
+    from types import SimpleNamespace
+
+    used = {}
+
+    def fake_collect(sheet, rig, progress=None):  # the slow work left out: which rig it is given
+        used["rig"] = rig
+        return SimpleNamespace(entries=[])
+
+    monkeypatch.setattr(book_mod, "collect", fake_collect)
+    monkeypatch.setattr(book_mod, "write_book", lambda data, out, paper, png: {"pdf": str(out), "pages": 1,
+                                                                               "png": []})
+    from export_support import count_rig_reads
+
+    reads = count_rig_reads(monkeypatch)
+    assert main(["book", str(book[0]), "-o", str(tmp_path / "b.pdf"), "--static", "0.08 inH2O"]) == 0
+    assert len(reads) == 1
+    assert used["rig"].static_pa == pytest.approx(19.927, abs=0.001)

@@ -92,11 +92,16 @@ def test_mode_map_adapter_gives_the_map_form(tmp_path, monkeypatch):
     assert w.times_s.min() >= 1.0 - 1e-9 and w.times_s.max() <= 2.0 + 1e-9
 
 
-def test_measure_plot(tmp_path, capsys):
+def test_measure_plot(tmp_path, capsys, monkeypatch):
     import soundfile as sf
     from measure_support import FS, tube_recording
 
+    from showkit.analysis import sweep
     from showkit.rigfile import load_rig
+
+    deconvolved = []  # the sweep is deconvolved once for the analysis and its plot (was twice)
+    real = sweep.deconvolve
+    monkeypatch.setattr(sweep, "deconvolve", lambda *a, **k: deconvolved.append(1) or real(*a, **k))
 
     rec, x, _ = tube_recording(load_rig(), 1.01, 600.0, 3.0)
     sf.write(tmp_path / "rec.wav", rec, FS, subtype="FLOAT")
@@ -106,3 +111,4 @@ def test_measure_plot(tmp_path, capsys):
                  "--plot", str(out)]) == 0
     assert png_size(out) == (1000, 600)
     assert _ink(out) > 0.03
+    assert len(deconvolved) == 1

@@ -214,3 +214,24 @@ def test_drawing_reads_back_for_any_heights():
         assert np.array_equal(blue[shown], (air[1] > 0)[shown])
 
     check()
+
+
+def test_sheet_preview_reads_its_own_rig_once(tmp_path, monkeypatch, capsys):
+    """A sheet's preview read a rig twice (--rig or the demo to check --static, then the sheet's
+    own): now only the sheet's, once, and --rig (which a sheet preview never drew on) is
+    refused in one line.  The sheet here has no cues, so the preview stops at once after
+    reading the rig."""
+    from export_support import count_rig_reads
+
+    sheet = tmp_path / "empty.toml"
+    sheet.write_text('title = "empty"\nrig = "demo"\nformat = 1\n')
+    reads = count_rig_reads(monkeypatch)
+    out = tmp_path / "show.mp4"
+    assert main(["preview", str(sheet), "-o", str(out), "--static", "18 Pa"]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "no cues" in err[0]
+    assert len(reads) == 1
+    assert main(["preview", str(sheet), "-o", str(out), "--rig", str(sheet)]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "--rig" in err[0] and "track preview" in err[0]
+    assert not out.exists()

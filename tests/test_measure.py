@@ -336,3 +336,25 @@ def test_measured_sweep_fit_chooses_the_hole_model(flow):
         # with a small resistance, so either model may win; a flowing fit must find little flow
         assert fit["hole_model"] == "still" or fit["flow"] < 0.3, fit
     assert fit["rms_cents"] < 5
+
+
+def test_reference_sine_is_a_cue_tone_with_cue_fades():
+    """The calibration sine is made as a cue's tone is (one generator, showkit.analysis.signals):
+    peak 10^(dB/20) (closed form), 10 s at 48 kHz, and raised-cosine ramps, the half-Hann
+    window 0.5 (1 - cos(pi (k + 0.5) / a)) (closed form; an earlier copy ramped linearly)."""
+    from showkit.analysis.measurement import REFERENCE_RAMP_S, reference_sine
+
+    rate, f, level = 48000, 1000.0, -20.0
+    x = reference_sine(f, level, rate)
+    amp = 10 ** (level / 20)
+    assert x.size == 10 * rate and np.max(np.abs(x)) == pytest.approx(amp, rel=1e-9)
+    a = int(round(REFERENCE_RAMP_S * rate))
+    k = np.arange(a)
+    carrier = amp * np.sin(2 * np.pi * f * k / rate)
+    ok = np.abs(carrier) > 0.5 * amp
+    hann = 0.5 * (1 - np.cos(np.pi * (k + 0.5) / a))
+    np.testing.assert_allclose(x[:a][ok] / carrier[ok], hann[ok], atol=1e-9)
+    kt = np.arange(x.size - a, x.size)
+    tail = amp * np.sin(2 * np.pi * f * kt / rate)
+    ok = np.abs(tail) > 0.5 * amp
+    np.testing.assert_allclose(x[-a:][ok] / tail[ok], (0.5 * (1 + np.cos(np.pi * (k + 0.5) / a)))[ok], atol=1e-9)

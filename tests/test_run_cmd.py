@@ -53,7 +53,7 @@ synth_cues = namespace["synth_cues"]
 @pytest.fixture
 def sheet(tmp_path):
     path = tmp_path / "show.toml"
-    path.write_text('title = "test"\n')
+    path.write_text('title = "test"\nrig = "demo"\nformat = 1\n')  # a sheet run can read (the cues are patched in)
     return path
 
 
@@ -137,6 +137,28 @@ def test_portaudio_hidden_is_a_clear_message(sheet, tmp_path, patched_render, mo
     assert "libportaudio2" in err and "Traceback" not in err
     last = read_log(log_path)[-1]
     assert last["event"] == "device_error" and "PortAudio" in last["detail"]
+
+
+def test_a_sheet_it_cannot_read_is_the_only_output(tmp_path, capsys):
+    """A sheet with a NaN gain is refused before the cautions and the log path are printed
+    and before a log is made: the one-line error is all there is (an earlier run printed
+    the cautions, the log path and the level caution first).  Reference: the sheet reader's
+    own refusal (showkit.show.sheet.load_sheet raises a SheetError)."""
+    from showkit.errors import SheetError
+    from showkit.show.sheet import load_sheet
+
+    path = tmp_path / "nan.toml"
+    path.write_text('title = "t"\nrig = "demo"\nformat = 1\n\n[[cue]]\nid = "a"\n'
+                    'tone = { mode = 2, duration = 1 }\ngain = nan\n')
+    with pytest.raises(SheetError):
+        load_sheet(path)
+    log_path = tmp_path / "log.jsonl"
+    assert main(["run", str(path), "--auto", "--log", str(log_path)]) == 2
+    out = capsys.readouterr()
+    assert out.out == ""
+    lines = out.err.strip().splitlines()
+    assert len(lines) == 1 and "finite" in lines[0] and "cue a" in lines[0]
+    assert not log_path.exists()
 
 
 def test_bad_static_pressure_is_refused(sheet, tmp_path, capsys):

@@ -139,3 +139,22 @@ def test_refine_moves_a_boundary_to_the_sharp_change_nearby():
     moved = sg.refine(blocks, np.array([41, 39, 10]), block_s)
     assert moved[0] == 40 and moved[1] == 40
     assert abs(moved[2] - 10) <= round(sg.REFINE_S / block_s)
+
+
+def test_a_slope_across_a_rising_threshold_is_no_peak():
+    """Peaks are true local maxima of the novelty, judged against the threshold where they stand
+    (scipy.signal.find_peaks with height and distance).  Zeroing the values under the threshold
+    first invented a peak on a slope: here the curve rises all the way (closed form: a strictly
+    increasing curve has no interior maximum) while the threshold overtakes it at the end."""
+    curve = np.linspace(0.2, 0.5, 40)
+    thr = np.where(np.arange(40) < 30, 0.1, 0.9)
+    assert sg.pick_peaks(curve, 4, thr).size == 0
+    zeroed = np.where(curve >= thr, curve, 0.0)  # what the old selection looked at
+    assert zeroed[29] > zeroed[28] and zeroed[29] > zeroed[30]  # ... a "maximum" at 29
+    # two true maxima 10 blocks apart, the lower one under its threshold: only the higher one;
+    # and of two within the spacing, the higher one (brute force over the closed-form bumps)
+    k = np.arange(60)
+    bumps = 0.5 * np.exp(-0.5 * ((k - 20) / 2.0) ** 2) + 0.3 * np.exp(-0.5 * ((k - 30) / 2.0) ** 2)
+    assert list(sg.pick_peaks(bumps, 4, 0.35)) == [20]
+    assert list(sg.pick_peaks(bumps, 4, 0.1)) == [20, 30]
+    assert list(sg.pick_peaks(bumps, 12, 0.1)) == [20]

@@ -33,6 +33,25 @@ async def test_demo_opens_with_every_cue_checked(ui_show):
 
 
 @sync
+async def test_the_pause_shows_silence_not_a_ceiling(ui_show):
+    """The demo's pause plays nothing: its row, its detail and the gain dialog say so, and
+    none gives "+60.0" (the cap on silence) as a ceiling."""
+    from textual.widgets import Static
+
+    app = make_app(ui_show)
+    async with app.run_test(size=APP_SIZE) as pilot:
+        await settle(pilot)
+        talk = _row(app, "talk")
+        assert talk[3] == "silence" and talk[4] == "" and talk[5] == "ok"
+        await pilot.press("down")  # the pause is the second cue
+        detail = str(app.query_one("#cue-detail", Static).render())
+        assert "plays nothing" in detail and "+60" not in detail
+        await pilot.press("G")
+        await pilot.pause()
+        assert "silence, it plays nothing" in str(app.screen.query_one("#ask-title", Static).render())
+
+
+@sync
 async def test_gain_stops_at_the_ceiling_and_says_why(ui_show):
     from showkit.show.lock import safe_gain
     from showkit.show.sheet import load_sheet

@@ -125,3 +125,23 @@ def test_track_frames_score_matches_the_scan(ui_show):
     rig = load_rig(None)
     path = demo_audio_path("ember_steps.flac")
     assert track_frames(rig, path, 0.0)["score"] == pytest.approx(scan_track(rig, path)["score"], abs=0.05)
+
+
+def test_track_title_writes_shifts_as_the_scan_does():
+    """The Track view's title gives the scan's suggestion to the cent, as `showkit scan` writes
+    it (an earlier title rounded +0.50 to "+0 st" and hid it).  Reference: the shift in
+    semitones rounded to 0.01 (closed form) and the scan table's own formatter."""
+    from pathlib import Path
+    from types import SimpleNamespace
+
+    from showkit.cli.scan_cmd import _shift_text
+    from showkit.ui.track import title_text
+
+    a = SimpleNamespace(path=Path("t.wav"), duration_s=12.0, transpose=-1, score=50.0,
+                        suggestion_semitones=0.5, ceiling_db=-12.0, map_modes=[1], note="")
+    text = title_text(a)
+    assert "scan suggests +0.50 st" in text and _shift_text(0.5) in text
+    assert "transposed -1.00 st" in text
+    old = SimpleNamespace(**{**vars(a), "transpose": 0, "score": 40.0})
+    assert "(was 40.0 at +0.00 st)" in title_text(a, old)
+    assert "suggests" not in title_text(SimpleNamespace(**{**vars(a), "suggestion_semitones": 0.0}))

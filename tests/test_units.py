@@ -222,3 +222,22 @@ def test_gain_db_refuses_with_where_and_fix(value):
         units.gain_db(value, "show.toml: cue a: gain", "write gain = -12 (dB)", error=SheetError)
     line = info.value.line()
     assert line.startswith("show.toml: cue a: gain: ") and line.endswith("write gain = -12 (dB)")
+
+
+@pytest.mark.parametrize("semitones", [0.5, 1.58, -0.5, -2.0, -1.4999, 3.0])
+def test_format_semitones_is_one_signed_figure(semitones):
+    """Every shift reads as signed semitones to the cent, never a mix of "st" and "c" parts.
+
+    Reference: the figure read back equals the shift rounded to 0.01 semitone (1 cent,
+    100 cents to the equal-tempered semitone, closed form).
+    """
+    text = units.format_semitones(semitones)
+    number, unit = text.split(" ")
+    assert unit == "st" and number[0] in "+-" and " c" not in text
+    assert float(number) == pytest.approx(round(semitones, 2), abs=1e-9)
+    assert len(number.split(".")[1]) == 2
+
+
+def test_format_semitones_never_shows_minus_zero():
+    assert units.format_semitones(-0.001) == "+0.00 st"
+    assert units.format_semitones(math.nan) == "-"

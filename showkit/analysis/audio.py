@@ -245,6 +245,26 @@ def load_audio(path: str | Path, rate_hz: int | None = None, start_s: float | No
                  start_s=first / info.rate_hz, info=info)
 
 
+def mono(samples) -> np.ndarray:
+    """A signal to play or model (1-D, or frames x channels) as one float64 channel, the
+    channels averaged as every file is read here (the tube has one speaker); an AudioError
+    for NaN or infinite samples."""
+    x = np.asarray(samples, dtype=float)
+    if x.ndim == 2:
+        x = x.mean(axis=1)
+    if not np.all(np.isfinite(x)):
+        raise AudioError("the signal holds NaN or infinite samples", None, "repair the source")
+    return x
+
+
+def first_channel(recording) -> np.ndarray:
+    """A measurement recording (1-D, or frames x channels) as float64: its first channel, the
+    microphone.  Not averaged: another channel (silent, or another input) would change the
+    level read, and so a calibration.  Finite values are checked where a recording is read."""
+    x = np.asarray(recording, dtype=float)
+    return x[:, 0] if x.ndim == 2 else x
+
+
 def content_hash(path: str | Path) -> str:
     """SHA-256 of the file's bytes (hex): the key for caches.
 

@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from showkit.analysis.audio import first_channel
 from showkit.analysis.drivefit import drive_response_db
 from showkit.analysis.resonances import find_resonances
 from showkit.analysis.sweep import check_audio, measure_response
@@ -61,9 +62,7 @@ def analyse_recording(rig, recording, rec_rate, sweep, sweep_rate, where="record
 
 def sine_amplitude(signal, rate: float, freq_hz: float) -> float:
     """Amplitude (zero to peak) of the component at ``freq_hz``, by a least-squares sine fit."""
-    x = np.asarray(signal, dtype=float)
-    if x.ndim == 2:
-        x = x[:, 0]
+    x = first_channel(signal)
     t = np.arange(x.size) / rate
     basis = np.stack([np.cos(2 * np.pi * freq_hz * t), np.sin(2 * np.pi * freq_hz * t), np.ones_like(t)], 1)
     coef, *_ = np.linalg.lstsq(basis, x, rcond=None)
@@ -114,8 +113,7 @@ def steady_part(signal, rate: float, freq_hz: float, where: str = "recording",
         The steady part is shorter than :data:`STEADY_MIN_S` (or 20 periods), or
         less than :data:`STEADY_MIN_SHARE` of the "on" part is steady (the level wanders).
     """
-    x = np.asarray(signal, dtype=float)
-    x = x[:, 0] if x.ndim == 2 else x
+    x = first_channel(signal)
     amp, n = _frame_amplitudes(x, rate, freq_hz)
     need = max(STEADY_MIN_S, STEADY_MIN_PERIODS / freq_hz)
     if amp.size == 0 or not np.any(amp > 0):
@@ -156,8 +154,7 @@ def calibrated_pressure(recording, calibrator, rate: float, cal_rate: float, fre
     """
     check_audio(calibrator, "calibrator", "calibrator recording")
     check_audio(recording, where)
-    cal = np.asarray(calibrator, dtype=float)
-    cal = cal[:, 0] if cal.ndim == 2 else cal
+    cal = first_channel(calibrator)
     spec = np.abs(np.fft.rfft(cal * np.hanning(cal.size)))
     f_peak = np.fft.rfftfreq(cal.size, 1 / cal_rate)[int(np.argmax(spec))]
     if abs(f_peak - 1000.0) > 50.0:
@@ -165,8 +162,7 @@ def calibrated_pressure(recording, calibrator, rate: float, cal_rate: float, fre
                            "record the 94 dB SPL, 1 kHz calibrator on the microphone")
     a, b = steady_part(cal, cal_rate, f_peak, "--calibrator", "calibrator recording")
     cal_amp = sine_amplitude(cal[a:b], cal_rate, f_peak)
-    rec = np.asarray(recording, dtype=float)
-    rec = rec[:, 0] if rec.ndim == 2 else rec
+    rec = first_channel(recording)
     a, b = steady_part(rec, rate, freq_hz, where)
     return sine_amplitude(rec[a:b], rate, freq_hz) * np.sqrt(2.0) / cal_amp
 
@@ -222,7 +218,9 @@ def reference_frequency(rig, asked_hz: float | None, where: str = "--frequency")
 
 def reference_sine(freq_hz: float, level_dbfs: float, rate_hz: int = REFERENCE_RATE_HZ,
                    length_s: float = REFERENCE_LENGTH_S, ramp_s: float = REFERENCE_RAMP_S):
-    """The calibration sine: ``level_dbfs`` peak at ``freq_hz`` for ``length_s`` s, linear ramps of ``ramp_s`` s.
+    """The calibration sine: ``level_dbfs`` peak at ``freq_hz`` for ``length_s`` s, ramps of ``ramp_s`` s.
+
+    A cue's tone and fades (:mod:`showkit.analysis.signals`: raised-cosine ramps).
 
     Parameters
     ----------
@@ -235,12 +233,10 @@ def reference_sine(freq_hz: float, level_dbfs: float, rate_hz: int = REFERENCE_R
     length_s, ramp_s : float
         Length and fade-in/fade-out time, s.
     """
-    t = np.arange(int(length_s * rate_hz)) / rate_hz
-    sine = 10 ** (level_dbfs / 20) * np.sin(2 * np.pi * freq_hz * t)
-    ramp = int(ramp_s * rate_hz)
-    sine[:ramp] *= np.linspace(0, 1, ramp)
-    sine[-ramp:] *= np.linspace(1, 0, ramp)
-    return sine
+    from showkit.analysis.signals import fade, tone
+
+    return fade(10 ** (level_dbfs / 20) * tone(freq_hz, length_s, rate_hz), rate_hz, ramp_s, ramp_s,
+                "reference sine")
 
 
 def check_reference_sine(rig, sine, rate_hz: int, level_dbfs: float, where: str = "--level") -> float:

@@ -19,7 +19,7 @@ from functools import lru_cache
 
 import numpy as np
 
-from showkit.analysis.audio import audio_info, read_blocks
+from showkit.analysis.audio import audio_info, mono, read_blocks
 from showkit.errors import AudioError, RigError
 from showkit.physics import ceiling as ceil_rule
 from showkit.physics.family import LossPoint, members
@@ -234,16 +234,6 @@ def _report(rig: Rig, filters: HoleFilters, first: PressureFrames, peak: float, 
                          family_text=family_text, set_by=set_by)
 
 
-def _mono(samples) -> np.ndarray:
-    """Samples as one float64 channel (channels averaged); NaN or infinite ones refused."""
-    x = np.asarray(samples, dtype=float)
-    if x.ndim == 2:
-        x = x.mean(axis=1)
-    if not np.all(np.isfinite(x)):
-        raise AudioError("the signal holds NaN or infinite samples", None, "repair the source")
-    return x
-
-
 def _at_model_rate(rig: Rig, x: np.ndarray, rate_hz: int) -> tuple[HoleFilters, np.ndarray]:
     """The rig's hole filters and ``x`` resampled to their rate (soxr, HQ)."""
     filters = hole_filters(rig)
@@ -273,7 +263,7 @@ def signal_report(rig: Rig, samples: np.ndarray, rate_hz: int, flames: bool = Tr
         The ceiling is the lowest over the rig's loss family (default); with
         False, the best estimate's alone.
     """
-    x = _mono(samples)
+    x = mono(samples)
     if x.size == 0:
         raise AudioError("the signal holds no samples", None, "give a longer signal")
     filters, drive = _at_model_rate(rig, x, rate_hz)
@@ -401,7 +391,7 @@ def signal_flames(rig: Rig, samples: np.ndarray, rate_hz: int, gain_db: float = 
     """
     if not math.isfinite(gain_db):
         raise AudioError(f"the gain {gain_db!r} dB is not a finite number", None, "give a gain in dB")
-    filters, drive = _at_model_rate(rig, _mono(samples), rate_hz)
+    filters, drive = _at_model_rate(rig, mono(samples), rate_hz)
     return simulate(filters, drive, static_pa=rig.static_pa, gain=10.0 ** (gain_db / 20.0), envelope=False)
 
 

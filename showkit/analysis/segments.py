@@ -42,6 +42,7 @@ from __future__ import annotations
 import numpy as np
 
 from showkit.analysis.features import TrackFeatures
+from showkit.physics.pitch import A4_HZ, A4_MIDI, hz_to_midi
 
 #: Shortest passage, s (project's choice: long enough for a pattern to be seen).
 MIN_PASSAGE_S = 6.0
@@ -101,7 +102,7 @@ def chroma(notes_hz: np.ndarray, notes_energy: np.ndarray) -> np.ndarray:
     hz = np.asarray(notes_hz, dtype=float)
     amp = np.sqrt(np.maximum(np.nan_to_num(np.asarray(notes_energy, dtype=float)), 0.0))
     ok = np.isfinite(hz) & (hz > 0) & (amp > 0)
-    pc = np.mod(np.rint(12.0 * np.log2(np.where(ok, hz, 440.0) / 440.0)), 12).astype(int)
+    pc = np.mod(np.rint(hz_to_midi(np.where(ok, hz, A4_HZ)) - A4_MIDI), 12).astype(int)  # A = 0
     out = np.zeros((hz.shape[0], 12))
     rows = np.broadcast_to(np.arange(hz.shape[0])[:, None], hz.shape)
     np.add.at(out, (rows[ok], pc[ok]), amp[ok])
@@ -206,16 +207,32 @@ def banded_novelty(blocks: np.ndarray, half: int) -> np.ndarray:
     return np.maximum(out, 0.0) / 2.0
 
 
-def pick_peaks(curve: np.ndarray, spacing: int, floor: float) -> np.ndarray:
-    """Local maxima of ``curve`` above ``floor``, at least ``spacing`` apart (highest first kept)."""
+def pick_peaks(curve: np.ndarray, spacing: int, height) -> np.ndarray:
+    """The local maxima of ``curve`` (block indices, ascending) that reach ``height`` there, at
+    least ``spacing`` blocks apart, the higher kept first.
+
+    ``scipy.signal.find_peaks`` with ``height`` and ``distance`` (P. Virtanen et al., "SciPy
+    1.0", Nature Methods 17, 261-272, 2020): a peak is a maximum of the curve itself, judged
+    against the threshold only where it stands, so a slope that crosses a rising threshold is
+    no peak (the curve's values below the threshold are not set to zero first, which made
+    the last value above it look like one).
+
+    Parameters
+    ----------
+    curve : ndarray
+        The novelty per block (0 to 1).
+    spacing : int
+        Fewest blocks between two peaks (>= 1).
+    height : float or ndarray
+        The value a peak must reach, one for all blocks or one per block.
+    """
+    from scipy.signal import find_peaks
+
+    curve = np.asarray(curve, dtype=float)
     if curve.size < 3:
         return np.zeros(0, dtype=int)
-    cand = np.nonzero((curve[1:-1] >= curve[:-2]) & (curve[1:-1] > curve[2:]) & (curve[1:-1] > floor))[0] + 1
-    chosen: list[int] = []
-    for i in cand[np.argsort(-curve[cand])]:
-        if all(abs(i - j) >= spacing for j in chosen):
-            chosen.append(int(i))
-    return np.array(sorted(chosen), dtype=int)
+    peaks, _ = find_peaks(curve, height=height, distance=max(1, int(spacing)))
+    return peaks.astype(int)
 
 
 def threshold(curve: np.ndarray, block_s: float) -> np.ndarray:
@@ -311,8 +328,7 @@ def passages(features: TrackFeatures, duration_s: float) -> tuple[list[tuple[flo
     block_s = per / features.frame_rate_hz
     half = max(2, int(round(KERNEL_HALF_S / block_s)))
     curve = banded_novelty(blocks, half) if blocks.shape[0] else np.zeros(0)
-    peaks = pick_peaks(np.where(curve >= threshold(curve, block_s), curve, 0.0),
-                       max(1, int(round(MIN_PASSAGE_S / block_s))), 0.0)
+    peaks = pick_peaks(curve, max(1, int(round(MIN_PASSAGE_S / block_s))), threshold(curve, block_s))
     peaks = refine(blocks, peaks, block_s)
     times = _snap(peaks * block_s, beats)
     inner = [float(t) for t in times if MIN_PASSAGE_S * 0.5 <= t <= duration_s - MIN_PASSAGE_S * 0.5]

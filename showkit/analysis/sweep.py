@@ -32,6 +32,7 @@ from typing import Callable
 
 import numpy as np
 
+from showkit.analysis.audio import first_channel
 from showkit.errors import MeasureError
 from showkit.limits import MAX_CUE_SAMPLES, MAX_RATE_HZ, MIN_SWEEP_RATE_HZ
 
@@ -432,16 +433,10 @@ def measure_response(recording: np.ndarray, recording_rate_hz: float, sweep: np.
                             band_hz=band, snr_db=float(snr_db), noise=noise_mag, warnings=warnings)
 
 
-def _mono(signal) -> np.ndarray:
-    """Channel 0 of a recording, as float."""
-    x = np.asarray(signal, dtype=float)
-    return x[:, 0] if x.ndim == 2 else x
-
-
 def _checked_pair(recording, recording_rate_hz: float, sweep, sweep_rate_hz: float,
                   where: str) -> tuple[np.ndarray, np.ndarray, float]:
     """The recording and the sweep (mono), checked: same rate (Hz), usable audio, long enough."""
-    y, x = _mono(recording), _mono(sweep)
+    y, x = first_channel(recording), first_channel(sweep)
     if int(round(recording_rate_hz)) != int(round(sweep_rate_hz)):
         raise MeasureError(f"recorded at {recording_rate_hz:g} Hz but the sweep is at {sweep_rate_hz:g} Hz",
                            where, f"record at {sweep_rate_hz:g} Hz, or make the sweep at "

@@ -45,6 +45,7 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 
 from showkit.physics.modes import find_modes
+from showkit.physics.pitch import cents
 from showkit.physics.tube import TubeModel
 
 #: Plausible span of each parameter (for the determinability test).
@@ -177,10 +178,6 @@ def track_modes(model: TubeModel, guess_hz: np.ndarray, span: float = 0.03) -> t
     return f, q
 
 
-def _cents(a, b) -> np.ndarray:
-    return 1200.0 * np.log2(np.asarray(a) / np.asarray(b))
-
-
 def match_modes(model: TubeModel, measured_hz: np.ndarray) -> tuple[np.ndarray, float, list]:
     """Model mode nearest each measured one (after a common scale), the scale, warnings."""
     f_top = float(np.max(measured_hz)) * 1.3
@@ -281,7 +278,7 @@ def fit_one(model: TubeModel, measured_hz, measured_q=None, cents_sigma: float =
     condition = float(sv[0] / sv[-1]) if sv[-1] > 0 else float("inf")
     vals = problem.unpack(sol.x, active)
     f_after, q_after = track_modes(problem.build(vals), guesses * vals["speed_scale"])
-    resid = _cents(f_after, f_meas)
+    resid = cents(f_after, f_meas)
     warnings += _fit_warnings(undetermined, condition, resid)
     report(1.0, "fit done")
     loss_range = _loss_range(sol, active, vals, problem.r_scale) if problem.has_holes else None
@@ -299,7 +296,7 @@ def fit_one(model: TubeModel, measured_hz, measured_q=None, cents_sigma: float =
         cost=float(np.sum(sol.fun ** 2)),
         measured_hz=f_meas.tolist(), measured_q=[] if q_meas is None else q_meas.tolist(),
         before_hz=before_f.tolist(), after_hz=f_after.tolist(), after_q=q_after.tolist(),
-        residual_cents=resid.tolist(), before_cents=_cents(before_f, f_meas).tolist(),
+        residual_cents=resid.tolist(), before_cents=cents(before_f, f_meas).tolist(),
         undetermined=sorted(set(undetermined)), condition=condition, warnings=warnings)
 
 
@@ -359,7 +356,7 @@ class _FitProblem:
     def residuals(self, p, active) -> np.ndarray:
         vals = self.unpack(p, active)
         f_mod, q_mod = track_modes(self.build(vals), self.guesses * vals["speed_scale"])
-        r = _cents(f_mod, self.f_meas) / self.cents_sigma
+        r = cents(f_mod, self.f_meas) / self.cents_sigma
         if "resistance" in active:
             r = np.concatenate([r, np.log(q_mod / self.q_meas) / self.q_sigma])
         return r

@@ -14,7 +14,7 @@ from __future__ import annotations
 import argparse
 import sys
 
-from showkit.cli.common import add_conditions_options, conditions_from_args, level_caution
+from showkit.cli.common import add_conditions_options, level_caution, sheet_rig_today
 from showkit.show.status import CueStatus
 
 
@@ -29,14 +29,15 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 def run(args) -> int:
     from showkit.export.book import make_book
-    from showkit.show.lock import sheet_rig
     from showkit.show.sheet import load_sheet
 
-    # --static/--reserve through the one door, over the sheet's rig (as check and run read them)
-    today = conditions_from_args(args, sheet_rig(load_sheet(args.sheet)).conditions)
+    # the sheet and its rig read once; --static/--reserve through the one door, over that rig
+    # (as check and run read them), and the book made on it
+    sheet = load_sheet(args.sheet)
+    today = sheet_rig_today(sheet, args)
     static_pa = today.static_pa if args.static is not None else None
     reserve = today.reserve if args.reserve is not None else None
-    result = make_book(args.sheet, args.out, args.paper, args.png, static_pa, reserve)
+    result = make_book(sheet, args.out, args.paper, args.png, static_pa, reserve, rig=today)
     level_caution()
     bad = {k: v for k, v in result["states"].items() if v != CueStatus.OK}
     print(f"wrote {result['pdf']}: {result['pages']} pages ({args.paper})")

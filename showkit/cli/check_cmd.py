@@ -32,27 +32,26 @@ def headroom_bar(headroom_db: float | None, width: int = 12, span_db: float = 12
 
 
 def run(args) -> int:
-    from showkit.cli.common import conditions_from_args, level_caution, print_json, table
-    from showkit.show.lock import check_sheet, sheet_rig
+    from showkit.cli.common import level_caution, print_json, sheet_rig_today, table
+    from showkit.show.lock import check_sheet
     from showkit.show.sheet import load_sheet
-    from showkit.show.status import CueStatus
+    from showkit.show.status import CueStatus, ceiling_text, headroom_text
 
     sheet = load_sheet(args.sheet)
-    rig = sheet_rig(sheet)
-    today = rig.with_conditions(conditions=conditions_from_args(args, rig.conditions))
+    today = sheet_rig_today(sheet, args)
     checks = check_sheet(sheet, today)
     level_caution()
     if args.json:
         print_json({"sheet": str(sheet.path), "static_pressure_pa": today.static_pa,
                     "reserve": today.reserve, "cues": [c.to_json() for c in checks]})
     else:
-        rows = [[c.id, f"{c.gain_db:+.2f}", "-" if c.ceiling_db is None else f"{c.ceiling_db:+.2f}",
-                 "-" if c.headroom_db is None else f"{c.headroom_db:+.2f}", headroom_bar(c.headroom_db),
+        rows = [[c.id, f"{c.gain_db:+.2f}", ceiling_text(c.ceiling_db, c.silent),
+                 headroom_text(c.headroom_db, c.silent), "" if c.silent else headroom_bar(c.headroom_db),
                  c.status, c.message] for c in checks]
-        print(f"{printable(sheet.title)}: {len(checks)} cues on {printable(rig.name)}, static {today.static_pa:.2f} Pa, "
+        print(f"{printable(sheet.title)}: {len(checks)} cues on {printable(today.name)}, static {today.static_pa:.2f} Pa, "
               f"reserve {today.reserve:g}")
-        print(f"ceilings rest on: {rig.drive.describe()}")
-        print(f"ceilings hold for: {rig.loss_family.describe()}")
+        print(f"ceilings rest on: {today.drive.describe()}")
+        print(f"ceilings hold for: {today.loss_family.describe()}")
         print(table(rows, ["cue", "gain dB", "ceiling dB", "headroom", "", "status", "note"], "<>>><<<"))
         bad = [c for c in checks if c.status is not CueStatus.OK]
         if bad:

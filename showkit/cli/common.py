@@ -54,6 +54,16 @@ def load_rig_from_args(args, check_calibration: bool = True):
     return rig.with_conditions(conditions=conditions_from_args(args, rig.conditions))
 
 
+def sheet_rig_today(sheet, args):
+    """The rig ``sheet`` names (read once) with ``--static``/``--reserve`` applied over its own
+    conditions, through the one door (:func:`conditions_from_args`): the rig the cues are
+    checked, rendered and drawn on, the options checked against it."""
+    from showkit.show.lock import sheet_rig
+
+    rig = sheet_rig(sheet)
+    return rig.with_conditions(conditions=conditions_from_args(args, rig.conditions))
+
+
 def time_option(text, where: str):
     """A time option (``42``, ``"42.5 s"``, ``"0:42"``) in seconds, or None when not given."""
     if text is None:

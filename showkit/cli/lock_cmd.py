@@ -28,6 +28,7 @@ def run(args) -> int:
     from showkit.show.lock import check_sheet, lock_sheet, sheet_rig
     from showkit.show.sheet import load_sheet, save_sheet
     from showkit.show.sources import SignalMemo
+    from showkit.show.status import ceiling_text
 
     sheet = load_sheet(args.sheet)
     rig = sheet_rig(sheet)
@@ -51,8 +52,8 @@ def run(args) -> int:
     for c, state in zip(sheet.cues, check_sheet(sheet, rig, signals=signals)):
         lock = c.lock
         rows.append([c.id, c.kind, f"{c.gain_db:+.2f}",
-                     "-" if lock is None else f"{lock.ceiling_db:+.2f}",
-                     "-" if lock is None else lock.limited_by.replace("_", " "), state.status])
+                     ceiling_text(None if lock is None else lock.ceiling_db, state.silent),
+                     "-" if lock is None or state.silent else lock.limited_by.replace("_", " "), state.status])
     print(table(rows, ["cue", "kind", "gain dB", "ceiling dB", "limited by", "status"], "<<>><<"))
     print(f"locked for {printable(rig.name)} at {rig.static_pa:.2f} Pa static, reserve {rig.reserve:g}; "
           f"saved {printable(sheet.path)}")

@@ -168,16 +168,21 @@ def _report(rig, report, args) -> None:
         print(f"warning: {w}")
 
 
-def _plot(report, rec, rec_rate, sweep, sweep_rate, args) -> None:
-    """``--plot``: the measured response (the analysis's own) with the modes marked."""
-    if not getattr(args, "plot", None):
-        return
+def _analyse(rig, rec, rec_rate, sweep, sweep_rate, where: str, args) -> dict:
+    """The analysis, its report printed, and ``--plot``: the response is measured (the sweep
+    deconvolved) once, for the analysis and the plot of it with the modes marked."""
+    from showkit.analysis.measurement import analyse_recording
     from showkit.analysis.sweep import measure_response
-    from showkit.export.figures import plot_response, response_level_db
 
-    resp = measure_response(rec, rec_rate, sweep, sweep_rate, "recording")
-    path = plot_response(resp.freq_hz, response_level_db(resp.response), report, args.plot)
-    print(f"wrote {path}", file=sys.stderr)
+    resp = measure_response(rec, rec_rate, sweep, sweep_rate, where)
+    report = analyse_recording(rig, rec, rec_rate, sweep, sweep_rate, where, response=resp)
+    _report(rig, report, args)
+    if getattr(args, "plot", None):
+        from showkit.export.figures import plot_response, response_level_db
+
+        path = plot_response(resp.freq_hz, response_level_db(resp.response), report, args.plot)
+        print(f"wrote {path}", file=sys.stderr)
+    return report
 
 
 def _update(rig, report, args) -> None:
@@ -207,14 +212,11 @@ def _calibration_still_good(path) -> None:
 
 def _run_analyse(args) -> int:
     from showkit.analysis.audio import read_whole
-    from showkit.analysis.measurement import analyse_recording
 
     rig = load_rig_from_args(args)
     rec, rec_rate = read_whole(args.recording, "recording")
     sweep, sweep_rate = read_whole(args.sweep, "sweep")
-    report = analyse_recording(rig, rec, rec_rate, sweep, sweep_rate, args.recording)
-    _report(rig, report, args)
-    _plot(report, rec, rec_rate, sweep, sweep_rate, args)
+    report = _analyse(rig, rec, rec_rate, sweep, sweep_rate, args.recording, args)
     if args.update_rig:
         _update(rig, report, args)
     return 0
@@ -222,7 +224,6 @@ def _run_analyse(args) -> int:
 
 def _run_live(args) -> int:
     from showkit.analysis.audio import read_whole
-    from showkit.analysis.measurement import analyse_recording
     from showkit.safesave import write_audio
 
     rig = load_rig_from_args(args)
@@ -233,9 +234,7 @@ def _run_live(args) -> int:
     rec = play_record(sweep, int(rate), device=args.device)
     if args.save:
         write_audio(args.save, rec, int(rate), "FLOAT", protect=_protect(args), what="recording")
-    report = analyse_recording(rig, rec, rate, sweep, rate, "live recording")
-    _report(rig, report, args)
-    _plot(report, rec, rate, sweep, rate, args)
+    report = _analyse(rig, rec, rate, sweep, rate, "live recording", args)
     if args.update_rig:
         _update(rig, report, args)
     return 0

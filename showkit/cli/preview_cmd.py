@@ -18,7 +18,7 @@ from pathlib import Path
 
 from showkit import units
 from showkit.cli.common import (add_conditions_options, add_rig_option, level_caution, load_rig_from_args,
-                                time_option)
+                                sheet_rig_today, time_option)
 from showkit.errors import InputError
 
 
@@ -55,17 +55,25 @@ def run(args) -> int:
     size = _size(args.size)
     check_options(size, args.magnify)
     check_output(args.out)  # before the slow work
-    rig = load_rig_from_args(args)  # checks --static/--reserve
     src = Path(args.source)
     if src.suffix.lower() == ".toml":
+        from showkit.show.sheet import load_sheet
+
         for opt in ("gain", "start", "end"):
             if getattr(args, opt) is not None:
                 raise InputError(f"--{opt} is for a track preview", f"--{opt}",
                                  "a sheet plays every cue at its own locked gain; leave it out")
+        if args.rig is not None:
+            raise InputError("--rig is for a track preview", "--rig",
+                             "a sheet plays on the rig it names (its rig = ...); leave it out")
+        # the sheet and its rig read once; --static/--reserve checked over that rig, the one drawn
+        sheet = load_sheet(src)
+        rig = sheet_rig_today(sheet, args)
         static = rig.static_pa if args.static is not None else None
         reserve = rig.reserve if args.reserve is not None else None  # checked, as a number
-        tl = sheet_timeline(src, static, reserve)
+        tl = sheet_timeline(sheet, static, reserve, rig=rig)
     else:
+        rig = load_rig_from_args(args)  # checks --static/--reserve
         gain = None if args.gain is None else units.gain_db(args.gain, "--gain", "give dB, e.g. --gain -12")
         tl = track_timeline(rig, src, time_option(args.start, "--start"), time_option(args.end, "--end"), gain)
     level_caution()

@@ -28,18 +28,17 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 def run(args) -> int:
     from pathlib import Path
 
-    from showkit.cli.common import conditions_from_args, level_caution, table
+    from showkit.cli.common import level_caution, sheet_rig_today, table
     from showkit.safesave import check_target
-    from showkit.show.lock import sheet_rig
     from showkit.show.render import render_iter, write_per_cue, write_show
     from showkit.show.sheet import load_sheet, sheet_inputs
+    from showkit.show.status import ceiling_text
 
     sheet = load_sheet(args.sheet)
     protect = sheet_inputs(sheet)  # never write over the sheet, its rig or a cue's audio
     if args.output:
         check_target(Path(args.output), protect, "rendered show")  # before any work
-    rig = sheet_rig(sheet)
-    today = rig.with_conditions(conditions=conditions_from_args(args, rig.conditions))
+    today = sheet_rig_today(sheet, args)
     subtype = "FLOAT" if args.bits == "float" else "PCM_24"
     cues = render_iter(sheet, today)
     if args.output:
@@ -48,7 +47,7 @@ def run(args) -> int:
     else:
         written, summaries = write_per_cue(cues, Path(args.per_cue), subtype, protect=protect)
     level_caution()
-    rows = [[printable(c.id), f"{c.gain_db:+.2f}", f"{c.ceiling_db:+.2f}", f"{c.min_pressure_pa:.2f}",
+    rows = [[printable(c.id), f"{c.gain_db:+.2f}", ceiling_text(c.ceiling_db, c.silent), f"{c.min_pressure_pa:.2f}",
              f"{c.margin_pa:+.2f}", f"{c.duration_s:.1f}"] for c in summaries]
     print(table(rows, ["cue", "gain dB", "ceiling dB", "lowest Pa", "margin Pa", "seconds"], "<>>>>>"))
     print(f"every cue verified against the pressure model at {today.static_pa:.2f} Pa static, "

@@ -61,16 +61,13 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 def run(args) -> int:
     from showkit.cli.common import level_caution
+    from showkit.conditions import static_reading, temperature_reading
     from showkit.safety import caution_text
+    from showkit.show.sheet import load_sheet, sheet_inputs
     from showkit.show.showlog import ShowLog
 
-    out = sys.stdout
-    print(caution_text(), file=out)
-    print(file=out)
-    level_caution()
-    # today's readings through the one door (the rig file's limits), before anything plays
-    from showkit.conditions import static_reading, temperature_reading
-
+    # everything that can be refused is refused before anything is printed: the one line is
+    # then the only output.  Today's readings go through the one door (the rig file's limits).
     static_pa = None if args.static is None else static_reading(args.static, "--static")
     temperature_k = None if args.temperature is None else temperature_reading(args.temperature, "--temperature")
     if not (args.fade > 0 and math.isfinite(args.fade)):
@@ -79,22 +76,18 @@ def run(args) -> int:
     if not args.auto and not _is_tty(sys.stdin):
         raise InputError("no keyboard: standard input is not a terminal", "showkit run",
                          "run it in a terminal, or use --auto for a rehearsal with no keyboard")
-    log = ShowLog(args.log, protect=_show_files(args.sheet))
+    show_files = sheet_inputs(load_sheet(args.sheet))  # the log is never written into one of them
+
+    out = sys.stdout
+    print(caution_text(), file=out)
+    print(file=out)
+    level_caution()
+    log = ShowLog(args.log, protect=show_files)
     print(f"show log: {printable(log.path)}", file=out)
     try:
         return _run(args, log, static_pa, temperature_k, out)
     finally:
         log.close()
-
-
-def _show_files(sheet_path) -> list:
-    """The files the show reads (the log must never be written into one of them)."""
-    from showkit.show.sheet import load_sheet, sheet_inputs
-
-    try:
-        return sheet_inputs(load_sheet(sheet_path))
-    except ShowkitError:
-        return [(sheet_path, "the cue sheet")]
 
 
 def _is_tty(stream) -> bool:
@@ -108,13 +101,14 @@ def pre_show(args, log, static_pa, temperature_k, out):
     """The pre-show check: render for playback, log and print the summary; returns the cues."""
     from showkit.cli.common import table
     from showkit.show.preshow import pre_show_check
+    from showkit.show.status import ceiling_text
 
     cues, problems = pre_show_check(args.sheet, log, static_pa, temperature_k)
     for line in problems:
         if not line.startswith("cue "):
             print(printable(line), file=out)
     rows = [[str(k + 1), c.id, c.label[:32], format_time(c.duration_s) if c.playable else "-",
-             f"{c.gain_db:+.1f}", "-" if c.ceiling_db is None else f"{c.ceiling_db:+.1f}",
+             f"{c.gain_db:+.1f}", ceiling_text(c.ceiling_db, c.silent, 1),
              c.then, c.status] for k, c in enumerate(cues)]
     print(table(rows, ["#", "cue", "label", "length", "gain dB", "ceiling dB", "then", "status"],
                 "><<>>><<"), file=out)

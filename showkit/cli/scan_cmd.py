@@ -25,7 +25,7 @@ from showkit.cli.common import (add_conditions_options, add_json_option, add_rig
                                 load_rig_from_args, print_json, table)
 from showkit.errors import InputError, ShowkitError
 from showkit.printable import printable
-from showkit.units import format_time
+from showkit.units import format_semitones, format_time
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -78,12 +78,7 @@ def _shift_text(semitones) -> str:
         return "-"
     if semitones == 0:
         return "none"
-    whole = int(semitones)
-    cents = round((semitones - whole) * 100)
-    parts = [f"{whole:+d} st"] if whole else []
-    if cents:
-        parts.append(f"{cents:+d} c")
-    return " ".join(parts)
+    return format_semitones(semitones)
 
 
 def _fmt(x: float) -> str:

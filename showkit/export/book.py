@@ -29,8 +29,8 @@ from showkit.physics.flames import FRAME_RATE_HZ
 from showkit.physics.modes import find_modes
 from showkit.safesave import replacing
 from showkit.safety import CAUTION_TITLE, CAUTIONS
-from showkit.show.sheet import AudioSource, describe_source, load_sheet
-from showkit.show.status import CueStatus
+from showkit.show.sheet import AudioSource, describe_source
+from showkit.show.status import CueStatus, ceiling_text, headroom_text
 from showkit.units import format_time
 
 #: What the ceiling guarantees and what it assumes (the README's *Ceilings and flames*).
@@ -224,8 +224,8 @@ COLUMNS = [("#", 3, 0.03), ("cue", 14, 0.055), ("label", 27, 0.15), ("kind and s
 
 def _row_cells(k, e) -> list[list[str]]:
     c, ch = e.cue, e.check
-    ceiling = "-" if ch.ceiling_db is None else f"{ch.ceiling_db:+.2f}"
-    head = "-" if ch.headroom_db is None else f"{ch.headroom_db:+.2f}"
+    ceiling = ceiling_text(ch.ceiling_db, ch.silent)
+    head = headroom_text(ch.headroom_db, ch.silent)
     state = STATE_TEXT.get(ch.status, ch.status)
     notes = c.notes
     if ch.status != CueStatus.OK:
@@ -277,8 +277,8 @@ def cue_page(plt, data: BookData, k: int, e: CueEntry, size):
         fig.text(0.08, y, f"{state}: {ch.message}"[:120], fontsize=10, weight="bold", color="white", va="top",
                  bbox={"facecolor": WORST, "edgecolor": WORST, "pad": 2})
         y -= 0.03
-    ceiling = "-" if ch.ceiling_db is None else f"{ch.ceiling_db:+.2f} dB"
-    head = "-" if ch.headroom_db is None else f"{ch.headroom_db:+.2f} dB"
+    ceiling = ceiling_text(ch.ceiling_db, ch.silent, unit=" dB")
+    head = headroom_text(ch.headroom_db, ch.silent, unit=" dB")
     facts = [f"{e.kind_text}",
              f"gain {c.gain_db:+.2f} dB, ceiling {ceiling}, headroom {head}, state {state}",
              f"fade in {c.fade_in_s:g} s, fade out {c.fade_out_s:g} s; then {c.then}" + ("; gain rider on" if c.ride else "")]
@@ -397,17 +397,21 @@ def write_book(data: BookData, path, paper: str = "a4", png_dir=None) -> dict:
     return {"pdf": path, "pages": len(pages), "png": pngs}
 
 
-def make_book(sheet_path, out, paper: str = "a4", png_dir=None, static_pa: float | None = None,
-              reserve: float | None = None, progress=None) -> dict:
-    """Read a sheet, check every cue for today's conditions, write its book."""
-    from showkit.show.lock import sheet_rig
+def make_book(sheet, out, paper: str = "a4", png_dir=None, static_pa: float | None = None,
+              reserve: float | None = None, progress=None, rig=None) -> dict:
+    """Check every cue of a sheet for today's conditions and write its book.
+
+    ``sheet``: a path or a sheet already read; ``rig``: its rig when already read (None:
+    read here); today's ``static_pa`` (Pa) and ``reserve`` over it as
+    :func:`showkit.show.lock.sheet_for_today` applies them (None keeps the rig's).
+    """
+    from showkit.show.lock import sheet_for_today
 
     paper_size(paper)  # a bad paper name or folder fails before the slow work
     folder = Path(out).parent if str(Path(out).parent) else Path(".")
     if not folder.is_dir():
         raise InputError("no such folder", str(folder), "create the folder first or give another path")
-    sheet = load_sheet(sheet_path)
-    rig = sheet_rig(sheet).with_conditions(static_pa=static_pa, reserve=reserve)
+    sheet, rig = sheet_for_today(sheet, rig, static_pa, reserve)
     data = collect(sheet, rig, progress)
     result = write_book(data, out, paper, png_dir)
     result["states"] = {e.cue.id: e.check.status for e in data.entries}

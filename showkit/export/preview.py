@@ -36,8 +36,7 @@ from showkit.errors import InputError, ShowkitError
 from showkit.export.common import plotting
 from showkit.physics.flames import FRAME_RATE_HZ
 from showkit.safesave import replacing
-from showkit.show.sheet import load_sheet
-from showkit.show.status import CueStatus
+from showkit.show.status import SILENT_MESSAGE, CueStatus
 from showkit.units import format_time
 
 #: Video frames per second: one flame frame per video frame.
@@ -171,6 +170,7 @@ class Segment:
     ceiling_db: float | None = None
     status: str = CueStatus.OK
     message: str = ""
+    silent: bool = False  # an ok cue that plays nothing (a pause): no ceiling to show
 
     def frame(self, t_s: float, holes: int):
         """Heights and air per hole at ``t_s`` into the segment (still flames when silent)."""
@@ -207,17 +207,22 @@ class Timeline:
         return self.segments[max(0, min(k, len(self.segments) - 1))]
 
 
-def sheet_timeline(sheet_path, static_pa: float | None = None, reserve: float | None = None,
-                   progress=None) -> Timeline:
-    """Every cue rendered and verified as `showkit render` does, with its flame frames at that level."""
+def sheet_timeline(sheet, static_pa: float | None = None, reserve: float | None = None,
+                   progress=None, rig=None) -> Timeline:
+    """Every cue rendered and verified as `showkit render` does, with its flame frames at that level.
+
+    ``sheet``: a path or a sheet already read; ``rig``: its rig when already read (None: read
+    here); today's ``static_pa`` (Pa) and ``reserve`` over it as
+    :func:`showkit.show.lock.sheet_for_today` applies them (None keeps the rig's).
+    """
     from showkit.analysis.pressure import frame_lag, signal_flames
-    from showkit.show.lock import check_cue, sheet_rig
+    from showkit.show.lock import check_cue, sheet_for_today
     from showkit.show.playlist import RenderedCue
     from showkit.show.render import SHOW_RATE_HZ, render_cue
     from showkit.show.sources import SignalMemo
 
-    sheet = load_sheet(sheet_path)
-    rig = sheet_rig(sheet).with_conditions(static_pa=static_pa, reserve=reserve)
+    sheet, rig = sheet_for_today(sheet, rig, static_pa, reserve)
+    sheet_path = sheet.path or sheet.title
     if rig.geometry.hole_count == 0:
         raise InputError("the rig has no holes: there is no flame row to preview", str(sheet_path),
                          "add [holes] to the rig file")
@@ -251,7 +256,7 @@ def sheet_timeline(sheet_path, static_pa: float | None = None, reserve: float | 
         frames = signal_flames(rig, v.samples, v.rate_hz, 0.0)
         d = v.samples.size / v.rate_hz
         segments.append(Segment(cue.id, cue.label, t, d, frames.height, frames.air_in, lag, v.gain_db,
-                                v.ceiling_db, CueStatus.OK, ""))
+                                v.ceiling_db, CueStatus.OK, "", v.silent))
         parts.append(v)
         t += d
     if progress:
@@ -378,7 +383,8 @@ class Painter:
             room = (L.width - 2 * L.tube_x0 - self.clock_cells * self.gs.cell_w) // self.gb.cell_w - 1
             put_text(img, L.tube_x0, 4, head[:max(room, 8)], self.gb, TEXT)
             if seg.status == CueStatus.OK:
-                words = (f"gain {seg.gain_db:+.2f} dB, ceiling {seg.ceiling_db:+.2f} dB"
+                words = (SILENT_MESSAGE if seg.silent else
+                         f"gain {seg.gain_db:+.2f} dB, ceiling {seg.ceiling_db:+.2f} dB"
                          if seg.gain_db is not None and seg.ceiling_db is not None else "")
                 put_text(img, L.tube_x0, 4 + self.gb.cell_h, words, self.gs, DIM)
             else:

@@ -34,7 +34,7 @@ from pathlib import Path
 from showkit.errors import InputError, SheetError, ShowkitError
 from showkit.show.sheet import (AudioSource, Cue, GlideSource, PauseSource, Sheet, ToneSource,
                                 floor_db, parse_sheet, save_sheet, sheet_to_text)
-from showkit.show.status import CueStatus
+from showkit.show.status import SILENT_MESSAGE, CueStatus
 from showkit.units import format_time as _clock  # the one m:ss.s formatter
 
 #: How many undo snapshots are kept.
@@ -360,6 +360,7 @@ class SheetEditor:
             status = check.status
         self.checks[cue_id] = replace(check, gain_db=gain, headroom_db=head, status=status,
                                       message=check.message if status in UNKNOWN_CEILING
+                                      else SILENT_MESSAGE if status == CueStatus.OK and check.plays_nothing
                                       else f"{head:.1f} dB below the ceiling" if status == CueStatus.OK
                                       else f"gain is {-head:.2f} dB above today's ceiling")
 

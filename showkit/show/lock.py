@@ -25,9 +25,9 @@ from showkit.errors import InputError, RigError, SheetError, ShowkitError
 from showkit.physics import ceiling as rule
 from showkit.physics.family import STATIC_SPAN
 from showkit.rigfile import Rig, load_rig
-from showkit.show.sheet import Cue, Lock, Sheet, floor_db, rounded_lock
+from showkit.show.sheet import Cue, Lock, Sheet, floor_db, load_sheet, rounded_lock
 from showkit.show.sources import TONE_RATE_HZ, CueSignal, SignalMemo, signal_for
-from showkit.show.status import CueStatus
+from showkit.show.status import SILENT_MESSAGE, CueStatus
 
 #: The rate a whole show is rendered and usually played at, Hz: a cue at another
 #: rate is locked at both (see :func:`compute_lock`).
@@ -43,6 +43,19 @@ def sheet_rig(sheet: Sheet) -> Rig:
         if exc.what == "no such rig file":
             fix = 'fix the sheet\'s rig = "..." (a path relative to the sheet, or "demo")'
         raise SheetError(exc.what, f"{sheet.path or 'sheet'}: rig ({exc.where})", fix) from None
+
+
+def sheet_for_today(sheet, rig: Rig | None = None, static_pa: float | None = None,
+                    reserve: float | None = None) -> tuple[Sheet, Rig]:
+    """``(sheet, rig)``: the sheet (a path, or a :class:`Sheet` already read) and its rig
+    (``rig`` when the caller read it already, else the one it names, read here) with today's
+    ``static_pa`` (Pa) and ``reserve`` (fraction) over it; None keeps the rig's.  Each is read
+    once, and today's numbers go through :meth:`Rig.with_conditions` (the conditions door).
+    """
+    if not isinstance(sheet, Sheet):
+        sheet = load_sheet(sheet)
+    rig = rig if rig is not None else sheet_rig(sheet)
+    return sheet, rig.with_conditions(static_pa=static_pa, reserve=reserve)
 
 
 def safe_gain(ceiling_db: float) -> float:
@@ -132,7 +145,13 @@ def lock_sheet(sheet: Sheet, rig: Rig | None = None, only: list[str] | None = No
 @dataclass(frozen=True)
 class CueCheck:
     """A cue's state today: ``status`` is a :class:`~showkit.show.status.CueStatus`
-    (``ok``, ``over``, ``stale`` or ``error``; the text is accepted and made a member)."""
+    (``ok``, ``over``, ``stale`` or ``error``; the text is accepted and made a member).
+
+    ``plays_nothing``: every sample of the cue is zero (a pause).  Such a cue is
+    :attr:`silent` while it is ok: its ceiling is then only the cap on the gain of
+    silence, shown as ``silence`` (:func:`showkit.show.status.ceiling_text`); the rules
+    (the gain at or below the ceiling) are those of any cue.
+    """
 
     id: str
     gain_db: float
@@ -141,14 +160,20 @@ class CueCheck:
     status: CueStatus
     message: str
     limited_by: str | None = None
+    plays_nothing: bool = False
 
     def __post_init__(self):
         object.__setattr__(self, "status", CueStatus.of(self.status, f"cue {self.id!r}"))
 
+    @property
+    def silent(self) -> bool:
+        """True when the cue is ok and plays nothing: its ceiling reads ``silence``."""
+        return self.plays_nothing and self.status is CueStatus.OK
+
     def to_json(self) -> dict:
         return {"id": self.id, "gain_db": self.gain_db, "ceiling_db": self.ceiling_db,
                 "headroom_db": self.headroom_db, "status": self.status, "message": self.message,
-                "limited_by": self.limited_by}
+                "limited_by": self.limited_by, "silent": self.silent}
 
 
 def lock_problem(lock: Lock) -> str | None:
@@ -257,7 +282,10 @@ def check_cue(sheet: Sheet, rig: Rig, cue: Cue, static_pa: float | None = None,
     if headroom < -1e-9:
         return CueCheck(cue.id, cue.gain_db, c.ceiling_db, headroom, CueStatus.OVER,
                         f"gain is {-headroom:.2f} dB above today's ceiling: bring it down to "
-                        f"{safe_gain(c.ceiling_db):+.2f} dB", c.limited_by)
+                        f"{safe_gain(c.ceiling_db):+.2f} dB", c.limited_by, signal.silent)
+    if signal.silent:  # the same rule as any cue above; only what it says differs
+        return CueCheck(cue.id, cue.gain_db, c.ceiling_db, headroom, CueStatus.OK, SILENT_MESSAGE,
+                        c.limited_by, plays_nothing=True)
     return CueCheck(cue.id, cue.gain_db, c.ceiling_db, headroom, CueStatus.OK,
                     f"{headroom:.1f} dB below the ceiling ({c.limited_by.replace('_', ' ')})", c.limited_by)
 

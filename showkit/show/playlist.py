@@ -78,6 +78,9 @@ class RenderedCue:
         From the render's verification: the lowest pressure above ambient at any hole, Pa.
     ride : bool
         Whether the cue's level was ridden under its ceiling (:mod:`showkit.show.rider`).
+    plays_nothing : bool
+        Every sample is zero (a pause, :attr:`showkit.show.lock.CueCheck.plays_nothing`);
+        while the cue is also playable it is :attr:`silent` and its ceiling reads ``silence``.
     """
 
     id: str
@@ -97,6 +100,7 @@ class RenderedCue:
     margin_pa: float | None = None
     min_pressure_pa: float | None = None
     ride: bool = False
+    plays_nothing: bool = False
 
     def __post_init__(self):
         where = f"cue {self.id!r}"
@@ -135,6 +139,11 @@ class RenderedCue:
     def playable(self) -> bool:
         """True when the cue may be started (status ``ok``)."""
         return self.status is CueStatus.OK
+
+    @property
+    def silent(self) -> bool:
+        """True when the cue is playable and plays nothing: its ceiling reads ``silence``."""
+        return self.plays_nothing and self.playable
 
     def refusal(self) -> str:
         """Why this cue cannot be started and what to do, as one sentence ('' when playable)."""

@@ -85,7 +85,7 @@ def render_cue(sheet: Sheet, rig: Rig, cue: Cue, signals: SignalMemo | None = No
     return RenderedCue(id=cue.id, label=cue.label, samples=samples, rate_hz=signal.rate_hz, then=cue.then,
                        gain_db=cue.gain_db, ceiling_db=state.ceiling_db, status=CueStatus.OK,
                        verify_at=played_rate_check(rig), margin_pa=margin, min_pressure_pa=lowest,
-                       ride=cue.ride)
+                       ride=cue.ride, plays_nothing=state.plays_nothing)
 
 
 def render_sheet(sheet: Sheet, rig: Rig | None = None, progress=None) -> list[RenderedCue]:
@@ -168,11 +168,12 @@ class RenderedSummary:
     min_pressure_pa: float
     margin_pa: float
     duration_s: float
+    silent: bool = False
 
 
 def _summary(v: RenderedCue) -> RenderedSummary:
     return RenderedSummary(v.id, v.gain_db, v.ceiling_db, v.min_pressure_pa, v.margin_pa,
-                           v.samples.size / v.rate_hz)
+                           v.samples.size / v.rate_hz, v.silent)
 
 
 def write_show(rig: Rig, cues, path: Path, subtype: str = "FLOAT", gap_s: float = 0.0,

@@ -3,11 +3,8 @@
 A generated cue (tone, glide, pause) is at most
 :data:`showkit.limits.MAX_GENERATED_S` long: it is held whole in memory for
 locking and rendering.  Tones and glides are made at 48 kHz with a peak of 1.0 (0 dBFS) before the
-cue's gain; a tone on a mode lands on the rig's mode frequency; a glide
-sweeps exponentially in frequency, ``f(t) = f1 (f2 / f1)^(t / T)``, with the
-phase its integral, ``2 pi f1 T (exp(t ln(f2/f1) / T) - 1) / ln(f2/f1)``
-(the exponential sweep of Farina, AES preprint 5093, 2000).  Fades are
-raised-cosine (half-Hann) ramps.
+cue's gain (:mod:`showkit.analysis.signals`: an exponential glide, raised-cosine fades); a tone
+on a mode lands on the rig's mode frequency.
 
 A check, render or run pass builds each cue's signal once: the pass holds a
 :class:`SignalMemo` and every step (check, relock, render) asks it for the
@@ -25,13 +22,12 @@ from functools import lru_cache
 
 import numpy as np
 
+from showkit.analysis.signals import TONE_RATE_HZ, fade, glide, tone
 from showkit.errors import AudioError, SheetError
 from showkit.limits import MAX_GENERATED_S
 from showkit.rigfile import Rig
 from showkit.show.sheet import AudioSource, Cue, GlideSource, PauseSource, Sheet, ToneSource
 
-#: Rate of generated cues (tones, glides, pauses), Hz.
-TONE_RATE_HZ = 48000
 
 
 @dataclass(frozen=True)
@@ -52,6 +48,11 @@ class CueSignal:
     @property
     def duration_s(self) -> float:
         return self.samples.size / self.rate_hz
+
+    @property
+    def silent(self) -> bool:
+        """True when every sample is zero (a pause): the cue plays nothing at any gain."""
+        return not np.any(self.samples)
 
 
 @lru_cache(maxsize=16)
@@ -76,42 +77,6 @@ def _check_frequency(rig: Rig, f: float, where: str) -> float:
         raise SheetError(f"{f:.0f} Hz is above the tube's plane-wave limit ({limit:.0f} Hz)", where,
                          "choose a lower frequency: the model says nothing above the limit")
     return f
-
-
-def fade(samples: np.ndarray, rate_hz: int, fade_in_s: float, fade_out_s: float,
-         where: str = "cue") -> np.ndarray:
-    """Apply raised-cosine fade-in and fade-out ramps (returns a new array)."""
-    n = samples.size
-    if not (fade_in_s + fade_out_s <= (n + 1) / rate_hz):  # in seconds first: a huge fade is no int
-        raise SheetError(f"fades ({fade_in_s:g} s + {fade_out_s:g} s) are longer than the cue "
-                         f"({n / rate_hz:.2f} s)", where, "shorten the fades or lengthen the cue")
-    a, b = int(round(fade_in_s * rate_hz)), int(round(fade_out_s * rate_hz))
-    if a + b > n:
-        raise SheetError(f"fades ({fade_in_s:g} s + {fade_out_s:g} s) are longer than the cue "
-                         f"({n / rate_hz:.2f} s)", where, "shorten the fades or lengthen the cue")
-    out = np.array(samples, dtype=float, copy=True)
-    if a:
-        out[:a] *= 0.5 * (1.0 - np.cos(np.pi * (np.arange(a) + 0.5) / a))
-    if b:
-        out[n - b:] *= 0.5 * (1.0 + np.cos(np.pi * (np.arange(b) + 0.5) / b))
-    return out
-
-
-def tone(freq_hz: float, duration_s: float, rate_hz: int = TONE_RATE_HZ) -> np.ndarray:
-    """A sine of peak 1.0 at ``freq_hz`` for ``duration_s``."""
-    t = np.arange(int(round(duration_s * rate_hz))) / rate_hz
-    return np.sin(2.0 * np.pi * freq_hz * t)
-
-
-def glide(f1_hz: float, f2_hz: float, duration_s: float, rate_hz: int = TONE_RATE_HZ) -> np.ndarray:
-    """A sine whose frequency moves exponentially from ``f1_hz`` to ``f2_hz``."""
-    n = int(round(duration_s * rate_hz))
-    t = np.arange(n) / rate_hz
-    if abs(f2_hz - f1_hz) < 1e-9 * f1_hz:
-        return np.sin(2.0 * np.pi * f1_hz * t)
-    ratio = np.log(f2_hz / f1_hz)
-    phase = 2.0 * np.pi * f1_hz * duration_s * (np.exp(t * ratio / duration_s) - 1.0) / ratio
-    return np.sin(phase)
 
 
 def _hash(samples: np.ndarray, rate_hz: int) -> str:

@@ -37,6 +37,39 @@ class CueStatus(StrEnum):
                              "this is a bug in the renderer") from None
 
 
+#: How the ceiling of a cue that plays nothing (a pause) reads: its locked ceiling is only
+#: the cap on the gain of silence (:data:`showkit.physics.ceiling.MAX_GAIN_DB`), no level.
+SILENCE = "silence"
+#: The note of an ok cue that plays nothing.
+SILENT_MESSAGE = "plays nothing (silence): no level to cap"
+
+
+def ceiling_text(ceiling_db: float | None, silent: bool = False, digits: int = 2, unit: str = "") -> str:
+    """A ceiling as the tables and screens show it: signed dB, ``-`` while it is not known,
+    :data:`SILENCE` for a cue that plays nothing.
+
+    Parameters
+    ----------
+    ceiling_db : float or None
+        Today's ceiling, dB.
+    silent : bool
+        The cue plays nothing and is ok (:attr:`showkit.show.lock.CueCheck.silent`).
+    digits : int
+        Decimal places of the dB figure.
+    unit : str
+        Written after the figure (e.g. ``" dB"``), not after ``-`` or :data:`SILENCE`.
+    """
+    if silent:
+        return SILENCE
+    return "-" if ceiling_db is None else f"{ceiling_db:+.{digits}f}{unit}"
+
+
+def headroom_text(headroom_db: float | None, silent: bool = False, digits: int = 2, unit: str = "") -> str:
+    """Headroom (ceiling - gain, dB) as the tables show it: ``-`` while it is not known and
+    for a cue that plays nothing (no level, so nothing to be below); see :func:`ceiling_text`."""
+    return "-" if silent or headroom_db is None else f"{headroom_db:+.{digits}f}{unit}"
+
+
 class State(StrEnum):
     """The show's state: the audio callback's state machine (:mod:`showkit.show.mixer`) moves
     between IDLE, PLAYING, FADING and PANIC; FAULT (the device failed) and CLOSED (the stream is

@@ -39,7 +39,7 @@ from showkit.errors import DeviceError, ShowkitError
 from showkit.printable import printable
 from showkit.safety import LEVEL_CAUTION
 from showkit.show.operator_keys import shown
-from showkit.show.status import State
+from showkit.show.status import State, ceiling_text
 from showkit.units import format_time
 
 #: The operator's keys as printed in this view's messages (from the one table).
@@ -388,7 +388,7 @@ class RunView(SessionView):
                          style="" if c.playable else "bold reverse")
             why = Text(printable(c.label if c.playable else c.message))
             table.add_row(str(k), Text(printable(c.id)), format_time(c.duration_s) if c.playable else "-", f"{c.gain_db:+.1f}",
-                          "-" if c.ceiling_db is None else f"{c.ceiling_db:+.1f}", state, c.then, why,
+                          ceiling_text(c.ceiling_db, c.silent, 1), state, c.then, why,
                           key=c.id)
 
     def start_flames(self) -> None:

@@ -200,7 +200,7 @@ class Session(SheetEditor):
         ceiling: ``(height per hole, air drawn in per hole, ceiling_db)``.
         """
         from showkit.analysis.pressure import signal_report
-        from showkit.show.sources import TONE_RATE_HZ, fade, tone
+        from showkit.analysis.signals import TONE_RATE_HZ, fade, tone
 
         key = self._flames_key(mode)
         rig = rig or self.rig

@@ -14,7 +14,7 @@ from showkit.printable import printable
 from showkit.safety import LEVEL_CAUTION
 from showkit.show.editing import GAIN_STEP_DB
 from showkit.show.sheet import describe_source
-from showkit.show.status import CueStatus
+from showkit.show.status import SILENCE, CueStatus, ceiling_text
 from showkit.ui.drawing import headroom_bar
 from showkit.ui.messages import CueAdded, LockRequested
 from showkit.ui.viewbase import SessionView
@@ -87,12 +87,14 @@ class ShowView(SessionView):
         for k, cue in enumerate(sheet.cues, 1):
             check = self.session.checks.get(cue.id)
             status = None if check is None else check.status
-            ceiling = "" if check is None or check.ceiling_db is None else f"{check.ceiling_db:+.1f}"
+            ceiling = "" if check is None or check.ceiling_db is None else ceiling_text(check.ceiling_db,
+                                                                                         check.silent, 1)
             head = None if check is None else check.headroom_db
+            bar = Text("") if check is not None and check.silent else headroom_bar(head)  # no level: no bar
             state = Text(STATUS_MARK[status],
                          style="bold reverse" if status in (CueStatus.OVER, CueStatus.ERROR) else
                          ("italic" if status == CueStatus.STALE else ""))
-            table.add_row(str(k), Text(printable(cue.id)), f"{cue.gain_db:+.1f}", ceiling, headroom_bar(head),
+            table.add_row(str(k), Text(printable(cue.id)), f"{cue.gain_db:+.1f}", ceiling, bar,
                           state, cue.then, Text(printable(cue.label)), Text(printable(describe_source(cue.source, short=True))),
                           key=cue.id)
         if keep is not None and keep in [c.id for c in sheet.cues]:
@@ -117,9 +119,11 @@ class ShowView(SessionView):
         cue = self.session.sheet.cue(cid)
         check = self.session.checks.get(cid)
         msg = "checking…" if check is None else ui_message(check.message)
-        ceiling = "" if check is None or check.ceiling_db is None else f", ceiling {check.ceiling_db:+.2f} dB"
+        silent = check is not None and check.silent  # the note says it plays nothing: no ceiling to give
+        ceiling = "" if check is None or check.ceiling_db is None or silent else \
+            f", ceiling {ceiling_text(check.ceiling_db, unit=' dB')}"
         rests = ""
-        if check is not None and check.ceiling_db is not None and self.session.rig_loaded:
+        if check is not None and check.ceiling_db is not None and not silent and self.session.rig_loaded:
             rests = f"; rests on {self.session.rig.drive.brief()}"
         detail.update(f"[b]{escape(printable(cue.id))}[/b]  gain {cue.gain_db:+.2f} dB{ceiling}, fade in {cue.fade_in_s:g} s, "
                       f"out {cue.fade_out_s:g} s, then {cue.then}{', ride' if cue.ride else ''}\n"
@@ -150,7 +154,9 @@ class ShowView(SessionView):
             return
         cue = self.session.sheet.cue(cid)
         ceiling = self.session.ceiling_of(cid)
-        top = "unknown until locked" if ceiling is None else f"{ceiling:+.2f} dB"
+        check = self.session.checks.get(cid)
+        top = ("unknown until locked" if ceiling is None else
+               f"{SILENCE}, it plays nothing" if check is not None and check.silent else f"{ceiling:+.2f} dB")
 
         def done(values):
             if not values:

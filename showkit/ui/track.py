@@ -16,6 +16,7 @@ from showkit.printable import printable
 from showkit.ui.drawing import flame_rows, hole_columns, mode_map, span_strip
 from showkit.ui.messages import AuditionReady, CueAdded
 from showkit.ui.viewbase import SessionView
+from showkit.units import format_semitones
 from showkit.units import format_time as _clock  # the one m:ss.s formatter
 
 #: Cursor steps, s.
@@ -24,6 +25,21 @@ FLAME_LINES = 4
 #: Screen rows the Track view leaves for everything but the map: top bar, status line,
 #: footer (3), title (2), cursor facts (2), flames (5) and the passage table (header + 4).
 MAP_OTHER_ROWS = 17
+
+
+def title_text(a, old=None) -> str:
+    """The Track view's title (markup) for analysis ``a``; ``old`` is the one it replaces.
+
+    Every transposition on it (the view's own whole steps, the scan's suggestion to the
+    cent) is written by :func:`showkit.units.format_semitones`, as ``showkit scan`` writes it.
+    """
+    before = "" if old is None or old.path != a.path or old.transpose == a.transpose else \
+        f" (was {old.score:.1f} at {format_semitones(old.transpose)})"
+    return (f"[b]{escape(printable(a.path.name))}[/b]  {_clock(a.duration_s)}  "
+            f"transposed {format_semitones(a.transpose)}  score {a.score:.1f}{before}  "
+            f"ceiling {a.ceiling_db:+.1f} dB  "
+            + (f"scan suggests {format_semitones(a.suggestion_semitones)}" if a.suggestion_semitones else "")
+            + ("" if a.map_modes else "  (no mode map: " + a.note + ")"))
 
 
 class TrackMap(Widget, can_focus=True):
@@ -221,7 +237,8 @@ class TrackView(SessionView):
 
         name = Path(wanted.removeprefix("demo:")).name
         self.query_one("#track-title", Static).update(Text(f"{printable(name)}  analysing…"))
-        self.run_job("track", work, done, f"analysing {name}" + (f" transposed {shift:+d}" if shift else ""))
+        self.run_job("track", work, done,
+                     f"analysing {name}" + (f" transposed {format_semitones(shift)}" if shift else ""))
 
     def conditions_changed(self) -> None:
         if self.path is not None:
@@ -240,13 +257,7 @@ class TrackView(SessionView):
                       " ".join(str(n) for n in p.get("modes", [])[:4]),
                       f"{p['ceiling_db']:+.1f}" if p.get("ceiling_db") is not None else "",
                       f"{p['contrast']:.2f}" if p.get("contrast") is not None else "", key=str(k))
-        before = "" if old is None or old.path != a.path or old.transpose == a.transpose else \
-            f" (was {old.score:.1f} at {old.transpose:+d})"
-        self.query_one("#track-title", Static).update(
-            f"[b]{escape(printable(a.path.name))}[/b]  {_clock(a.duration_s)}  transposed {a.transpose:+d} st  "
-            f"score {a.score:.1f}{before}  ceiling {a.ceiling_db:+.1f} dB  "
-            + (f"scan suggests {a.suggestion:+d} st" if a.suggestion else "")
-            + ("" if a.map_modes else "  (no mode map: " + a.note + ")"))
+        self.query_one("#track-title", Static).update(title_text(a, old))
         m.refresh(layout=True)
         if a.passages and m.selected is None:
             self.select_passage(0)

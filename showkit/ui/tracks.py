@@ -32,14 +32,16 @@ class TrackAnalysis:
     ``map_modes``: each mode's strength (0 to 1, the share of the band's
     sustained sound on it) where the mode is hit, 0 elsewhere
     (:func:`showkit.analysis.scan.map_data`, the same data as ``scan --map``);
-    ``passages`` are the scan's, best first.  Times in s, the ceiling in dB.
+    ``passages`` are the scan's, best first; ``transpose`` (this analysis's whole
+    steps) and ``suggestion_semitones`` (the scan's, to the cent) in semitones.
+    Times in s, the ceiling in dB.
     """
 
     path: Path
     duration_s: float
     transpose: int
     score: float
-    suggestion: int
+    suggestion_semitones: float
     ceiling_db: float
     passages: list
     height: object
@@ -144,12 +146,12 @@ class TrackWork:
         tick(3)
         frames = report.frames
         height, air = frames.height, frames.air_in
-        suggestion = int(round(scan.get("transpose_semitones") or 0))
         score = scan["score"] if transpose == 0 else frames_info["score"]
         tick(4)
         return TrackAnalysis(
             path=Path(path), duration_s=float(scan["duration_s"]), transpose=transpose,
-            score=float(score), suggestion=suggestion, ceiling_db=report.ceiling_db,
+            score=float(score), suggestion_semitones=float(scan.get("transpose_semitones") or 0.0),
+            ceiling_db=report.ceiling_db,
             passages=sorted(scan["passages"], key=lambda p: -p["score"]), height=height, air_in=air,
             contrast_frame=report.contrast_per_frame, frame_rate_hz=float(frames.frame_rate_hz),
             height_lo=float(np.min(height)) if height.size else 0.0,
