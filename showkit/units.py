@@ -253,7 +253,7 @@ def format_semitones(semitones: float) -> str:
     """``1.58`` -> ``"+1.58 st"``: a transposition, signed, in semitones to the cent.
 
     The one way a shift is shown (the scan's table, the Track view), so ``+0.50 st``
-    and ``+1.58 st`` read alike and either can be typed back as ``scan --transpose``.
+    and ``+1.58 st`` read alike; the figure (``1.58``) is what ``scan --transpose`` takes.
 
     Parameters
     ----------

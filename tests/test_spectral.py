@@ -6,7 +6,7 @@ import pytest
 from showkit.analysis import spectral
 
 
-@pytest.mark.parametrize("shape", [(60, 80), (9, 5), (3, 4), (1, 12), (12, 1)])
+@pytest.mark.parametrize("shape", [(60, 80), (9, 5), (3, 4), (1, 12), (12, 1), (0, 5), (5, 0)])
 @pytest.mark.parametrize("axis", [0, 1])
 def test_median_network_equals_scipy_median_filter(shape, axis):
     # reference: scipy.ndimage.median_filter (mode "reflect") along one axis, to the bit; ties included

@@ -164,6 +164,12 @@ class Estimator:
         lobe = self.near_bin[:, :, None] + self.lobe_offsets                            # (C, M, offsets)
         self.lobe_bin = np.where(ok[:, :, None] & (lobe >= 0) & (lobe < bins), lobe, bins)
         self.lobe_shape = hann_lobe((lobe - pos[:, :, None]) / PAD)
+        # the cancellation adds all lobes with one fancy index, which counts a repeated bin once: the
+        # partials of a candidate must lie at least a main lobe apart (F0_MIN_HZ against the bin width)
+        gaps = np.diff(self.near_bin, axis=1)[ok[:, 1:] & ok[:, :-1]]
+        if gaps.size and int(gaps.min()) < self.lobe_offsets.size:
+            raise ValueError(f"partials {int(gaps.min())} bins apart overlap their {self.lobe_offsets.size}-bin "
+                             f"lobes: raise F0_MIN_HZ or the transform size")
 
     def whiten(self, magnitude: np.ndarray, floor: float) -> np.ndarray:
         """Whitened magnitude (bins, frames); ``floor`` is an amplitude below which nothing counts."""
@@ -241,6 +247,8 @@ class Estimator:
             n = act.size
             amp = rmax[self.near_bin[c], kept[:, None]] * (self.g[c] if CANCEL_WEIGHTED else 1.0)
             flat = self.lobe_bin[c] * n + np.arange(n)[:, None, None]
+            # one fancy-index add: each (bin, frame) once, since lobes never overlap (checked in __init__)
+            # and ``detected`` is C-ordered (np.zeros, np.take), so the flat view writes through
             detected.reshape(-1)[flat] += (amp[:, :, None] * self.lobe_shape[c]).astype(np.float32)
             resid = np.multiply(detected[:bins], CANCEL_D)
             np.subtract(ya, resid, out=resid)

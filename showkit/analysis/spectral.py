@@ -144,6 +144,8 @@ def _median_filter(s: np.ndarray, size: int, axis: int) -> np.ndarray:
         shape[axis] = size
         return median_filter(s, size=tuple(shape), mode="reflect")
     n = s.shape[axis]
+    if n == 0:
+        return s.copy()
     widths = [(0, 0), (0, 0)]
     widths[axis] = (4, 4)
     padded = np.pad(s, widths, mode="symmetric")   # scipy's "reflect": d c b a | a b c d | d c b a

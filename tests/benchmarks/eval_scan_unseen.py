@@ -219,20 +219,7 @@ def evaluate(tracks: dict, base: rm.Corpus, progress=None) -> dict:
 
 
 def report(res: dict) -> str:
-    L = []
-    h = res["hits_pooled"]
-    L.append(f"mode hits, frame level, pooled: precision {h['precision']:.3f} recall {h['recall']:.3f} "
-             f"F1 {h['f1']:.3f}  (tp {h['tp']} fp {h['fp']} fn {h['fn']}; cells with a note within "
-             f"{rm.GT_UNCERTAINTY_CENTS:g} c of the tolerance edge not scored)")
-    h = res["hits_pooled_strict"]
-    L.append(f"mode hits, every cell scored:    precision {h['precision']:.3f} recall {h['recall']:.3f} "
-             f"F1 {h['f1']:.3f}  (tp {h['tp']} fp {h['fp']} fn {h['fn']})")
-    m = res["multipitch_pooled"]
-    L.append(f"mir_eval multipitch, pooled: precision {m['Precision']:.3f} recall {m['Recall']:.3f} "
-             f"accuracy {m['Accuracy']:.3f} chroma accuracy {m['Chroma Accuracy']:.3f}")
-    hn = res["held_notes"]
-    L.append(f"held notes (>= 0.5 s): found within 50 c in {hn['found']:.2f} of {hn['frames']} frames; "
-             f"|error| median {hn['median_cents']:.1f} c, 90th percentile {hn['p90_cents']:.1f} c")
+    L = rm.pooled_lines(res)
     L.append(f"dominant line, raw pitch accuracy, mean over pitched tracks: {res['rpa_mean']:.2f}")
     L.append(f"{'track':30s} {'score':>5s} {'held':>5s} {'hitP':>5s} {'hitR':>5s} {'hitF1':>5s} {'gt/fr':>5s} "
              f"{'map/fr':>6s} {'mpP':>5s} {'mpR':>5s} {'RPA':>5s} {'RCA':>5s} {'transp':>6s} {'->held':>6s} "
