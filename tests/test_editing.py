@@ -213,3 +213,18 @@ def test_a_silent_cue_keeps_saying_silence_after_a_gain_change(tmp_path):
     assert check.silent and check.message == SILENT_MESSAGE and check.headroom_db == 63.0
     over = CueCheck("talk", 61.0, 60.0, -1.0, "over", "gain is 1.00 dB above", "full_scale", plays_nothing=True)
     assert not over.silent and ceiling_text(over.ceiling_db, over.silent) == "+60.00"
+
+
+def test_the_stop_note_names_the_limit_that_set_the_ceiling(tmp_path):
+    """The note at a stop says why: hole pressure (a pressure-limited cue), clipping (full scale) or, for
+    a cue that plays nothing, the cap on its gain -- never "the safe line" for silence."""
+    from showkit.show.status import SILENT_MESSAGE
+
+    ed = _editor(tmp_path)
+    assert "safe line" in ed.set_gain("b", 0.0).note
+    ed.checks["a"] = CueCheck("a", -26.0, -20.0, 6.0, "ok", "test check", "full_scale")
+    assert "clip" in ed.set_gain("a", 0.0).note
+    ed.checks["talk"] = CueCheck("talk", 0.0, 60.0, 60.0, "ok", SILENT_MESSAGE, "full_scale", plays_nothing=True)
+    change = ed.set_gain("talk", 70.0)
+    assert change.stopped and change.gain_db == 60.0
+    assert "plays nothing" in change.note and "safe line" not in change.note

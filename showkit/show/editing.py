@@ -106,8 +106,13 @@ class SheetEditor:
             top = floor_db(ceiling)
             if gain > top:
                 gain, stopped = top, True
-                note = (f"{cue_id}: stopped at the ceiling {top:+.2f} dB -- above it hole "
-                        f"pressure would fall below the safe line ({check.limited_by or 'pressure'})")
+                if check is not None and check.silent:
+                    why = "the cap on the gain of a cue that plays nothing"
+                elif check is not None and check.limited_by == "full_scale":
+                    why = "above it the samples would clip (past 0 dBFS)"
+                else:
+                    why = "above it hole pressure would fall below the safe line"
+                note = f"{cue_id}: stopped at the ceiling {top:+.2f} dB -- {why}"
         if gain == cue.gain_db:
             return GainChange(gain, note, stopped)
         self._push()
