@@ -31,9 +31,7 @@ def ui_cache(tmp_path_factory):
     return tmp_path_factory.mktemp("showkit-cache")
 
 
-@pytest.fixture(scope="session")
-def locked_demo_text(tmp_path_factory, ui_cache):
-    """The demo show, locked on the demo rig, as TOML text (made once per test session)."""
+def _locked_demo(tmp_path_factory, ui_cache, short: bool) -> str:
     import os
 
     from ui_support import lock_demo
@@ -41,7 +39,7 @@ def locked_demo_text(tmp_path_factory, ui_cache):
     old = os.environ.get("SHOWKIT_CACHE_DIR")
     os.environ["SHOWKIT_CACHE_DIR"] = str(ui_cache)
     try:
-        return lock_demo(tmp_path_factory.mktemp("locked-demo")).read_text(encoding="utf-8")
+        return lock_demo(tmp_path_factory.mktemp("locked-demo"), short).read_text(encoding="utf-8")
     finally:
         if old is None:
             os.environ.pop("SHOWKIT_CACHE_DIR", None)
@@ -49,16 +47,39 @@ def locked_demo_text(tmp_path_factory, ui_cache):
             os.environ["SHOWKIT_CACHE_DIR"] = old
 
 
-@pytest.fixture
-def ui_show(tmp_path, monkeypatch, ui_cache, locked_demo_text):
-    """A locked demo show in tmp_path (user folders in tmp, cautions already read); its Path."""
+@pytest.fixture(scope="session")
+def locked_demo_text(tmp_path_factory, ui_cache):
+    """The demo show, locked on the demo rig, as TOML text (made once per test session)."""
+    return _locked_demo(tmp_path_factory, ui_cache, False)
+
+
+@pytest.fixture(scope="session")
+def locked_short_demo_text(tmp_path_factory, ui_cache):
+    """The short demo show (ui_support.SHORT_DEMO), locked on the demo rig, as TOML text (once per session)."""
+    return _locked_demo(tmp_path_factory, ui_cache, True)
+
+
+def _ui_show(tmp_path, monkeypatch, ui_cache, text):
     from ui_support import mark_cautions_read, set_folders
 
     set_folders(monkeypatch, tmp_path, ui_cache)
     mark_cautions_read()
     path = tmp_path / "show.toml"
-    path.write_text(locked_demo_text, encoding="utf-8")
+    path.write_text(text, encoding="utf-8")
     return path
+
+
+@pytest.fixture
+def ui_show(tmp_path, monkeypatch, ui_cache, locked_demo_text):
+    """A locked demo show in tmp_path (user folders in tmp, cautions already read); its Path."""
+    return _ui_show(tmp_path, monkeypatch, ui_cache, locked_demo_text)
+
+
+@pytest.fixture
+def ui_short_show(tmp_path, monkeypatch, ui_cache, locked_short_demo_text):
+    """As ``ui_show`` with the short demo show (same cues, a third of the sound: for the tests whose
+    checks do not depend on the cues' lengths -- each lock, check and render simulates less)."""
+    return _ui_show(tmp_path, monkeypatch, ui_cache, locked_short_demo_text)
 
 
 @pytest.fixture(scope="session")

@@ -107,23 +107,32 @@ def test_stale_cue_is_refused_with_how_to_fix(sheet, capsys, tmp_path):
     assert not (tmp_path / "x.wav").exists()
 
 
-@pytest.mark.parametrize("edit, needles", [
-    (("clip.wav", "missing.wav"), ["cue clip", "no such audio file"]),
-    (('end = "0:02.5"', 'end = "0:09"'), ["cue clip", "past the end"]),
-    (("mode = 3", "mode = 99"), ["cue m3", "no mode 99"]),
+@pytest.mark.parametrize("edit, needles, process", [
+    (("clip.wav", "missing.wav"), ["cue clip", "no such audio file"], True),
+    (('end = "0:02.5"', 'end = "0:09"'), ["cue clip", "past the end"], False),
+    (("mode = 3", "mode = 99"), ["cue m3", "no mode 99"], False),
     (("tone = { mode = 3, duration = 2 }", 'tone = { frequency = "5 kHz", duration = 2 }'),
-     ["cue m3", "plane-wave limit"]),
-    (('id = "wait"', 'id = "m3"'), ["duplicate"]),
-    (("gain = -40", 'gain = "quiet"'), ["cue clip", "gain"]),
+     ["cue m3", "plane-wave limit"], False),
+    (('id = "wait"', 'id = "m3"'), ["duplicate"], False),
+    (("gain = -40", 'gain = "quiet"'), ["cue clip", "gain"], True),
 ])
-def test_bad_sheets_give_one_line_and_exit_2(sheet, edit, needles):
+def test_bad_sheets_give_one_line_and_exit_2(sheet, edit, needles, process, capsys, monkeypatch):
+    """``process``: the real command line in its own process (exit status, no traceback); the other
+    cases call the same ``main`` in this process (an exception would fail the test as a traceback)."""
     sheet.write_text(SHEET.replace(*edit))
     before = sheet.read_text()
-    proc = subprocess.run([sys.executable, "-m", "showkit", "lock", str(sheet)],
-                          capture_output=True, text=True, cwd=sheet.parent)
-    assert proc.returncode == 2, proc.stderr
-    lines = [line for line in proc.stderr.splitlines() if not line.startswith("CAUTION")]
-    assert len(lines) == 1 and "Traceback" not in proc.stderr
+    if process:
+        proc = subprocess.run([sys.executable, "-m", "showkit", "lock", str(sheet)],
+                              capture_output=True, text=True, cwd=sheet.parent)
+        status, stderr = proc.returncode, proc.stderr
+    else:
+        monkeypatch.chdir(sheet.parent)
+        capsys.readouterr()
+        status = main(["lock", str(sheet)])
+        stderr = capsys.readouterr().err
+    assert status == 2, stderr
+    lines = [line for line in stderr.splitlines() if not line.startswith("CAUTION")]
+    assert len(lines) == 1 and "Traceback" not in stderr
     assert lines[0].startswith("showkit: ") and str(sheet) in lines[0]
     for needle in needles:
         assert needle in lines[0]

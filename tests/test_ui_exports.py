@@ -7,10 +7,10 @@ from ui_support import APP_SIZE, make_app, mark_cautions_read, set_folders, sett
 
 
 @sync
-async def test_help_names_the_export_keys(ui_show):
+async def test_help_names_the_export_keys(ui_short_show):
     from showkit.ui.help import HelpScreen
 
-    app = make_app(ui_show)
+    app = make_app(ui_short_show)
     async with app.run_test(size=APP_SIZE) as pilot:
         await pilot.press("question_mark")
         await pilot.pause()
@@ -44,8 +44,8 @@ async def test_show_view_writes_the_book_and_the_preview(tmp_path, monkeypatch, 
 
 
 @sync
-async def test_track_and_measure_keys_say_what_is_missing(ui_show):
-    app = make_app(ui_show)
+async def test_track_and_measure_keys_say_what_is_missing(ui_short_show):
+    app = make_app(ui_short_show)
     async with app.run_test(size=APP_SIZE) as pilot:
         await settle(pilot)
         await pilot.press("3", "V")

@@ -9,14 +9,14 @@ from ui_support import APP_SIZE, make_app, settle, sync
 
 
 @sync
-async def test_only_the_first_view_is_built_and_a_later_one_shows_todays_reading(ui_show):
+async def test_only_the_first_view_is_built_and_a_later_one_shows_todays_reading(ui_short_show):
     from textual import events
 
     from showkit.ui.run import RunView
     from showkit.ui.show import ShowView
     from showkit.ui.tube import ModeTable, TubeView
 
-    app = make_app(ui_show)
+    app = make_app(ui_short_show)
     async with app.run_test(size=APP_SIZE) as pilot:
         await settle(pilot)
         # at start: the Show view only (no other view in the DOM)

@@ -32,16 +32,16 @@ def synthetic_recording(folder):
 
 
 @pytest.fixture
-def own_rig_show(ui_show):
+def own_rig_show(ui_short_show):
     """The demo show on a copy of the demo rig (a rig file that may be written)."""
     from showkit.rigfile import demo_rig_path
 
-    rig = ui_show.parent / "my-rig.toml"
+    rig = ui_short_show.parent / "my-rig.toml"
     shutil.copy(demo_rig_path(), rig)
-    text = ui_show.read_text(encoding="utf-8").replace('rig = "demo"', 'rig = "my-rig.toml"', 1)
+    text = ui_short_show.read_text(encoding="utf-8").replace('rig = "demo"', 'rig = "my-rig.toml"', 1)
     assert 'rig = "my-rig.toml"' in text
-    ui_show.write_text(text, encoding="utf-8")
-    return ui_show, rig
+    ui_short_show.write_text(text, encoding="utf-8")
+    return ui_short_show, rig
 
 
 async def _open(pilot, rec, sweep) -> None:
@@ -117,13 +117,13 @@ async def test_measurement_shows_modes_drawing_and_writes_the_rig_with_a_backup(
 
 
 @sync
-async def test_demo_rig_is_never_written_and_bad_files_get_a_clear_message(ui_show, tmp_path):
+async def test_demo_rig_is_never_written_and_bad_files_get_a_clear_message(ui_short_show, tmp_path):
     from showkit.rigfile import demo_rig_path
     from showkit.ui.measure import Measurement, MeasureView
 
     demo_text = demo_rig_path().read_text(encoding="utf-8")
     (tmp_path / "noise.wav").write_bytes(b"not a sound file")
-    app = make_app(ui_show, view="measure")
+    app = make_app(ui_short_show, view="measure")
     async with app.run_test(size=APP_SIZE) as pilot:
         await settle(pilot)
         view = app.query_one(MeasureView)

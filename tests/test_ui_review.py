@@ -63,11 +63,11 @@ def test_view_option_accepts_run_and_measure():
 
 
 @sync
-async def test_dialogs_keep_text_sent_with_enter_and_enter_confirms_the_edit(ui_show):
+async def test_dialogs_keep_text_sent_with_enter_and_enter_confirms_the_edit(ui_short_show):
     from showkit.show.sheet import load_sheet
     from showkit.ui.dialogs import AskScreen
 
-    app = make_app(ui_show)
+    app = make_app(ui_short_show)
     async with app.run_test(size=APP_SIZE) as pilot:
         await settle(pilot)
         # manometer: the characters and Enter in one go (as a paste or tmux send-keys)
@@ -87,7 +87,7 @@ async def test_dialogs_keep_text_sent_with_enter_and_enter_confirms_the_edit(ui_
         await _burst(pilot, "Quiet one")
         assert not isinstance(app.screen, AskScreen)
         assert app.session.sheet.cue(cid).label == "Quiet one"
-        assert load_sheet(ui_show).cue(cid).label == "Quiet one"
+        assert load_sheet(ui_short_show).cue(cid).label == "Quiet one"
         # tab moves to the next field; Enter there confirms too
         await pilot.press("e", "tab", *"2", "enter")
         await pilot.pause()
@@ -96,10 +96,10 @@ async def test_dialogs_keep_text_sent_with_enter_and_enter_confirms_the_edit(ui_
 
 
 @sync
-async def test_help_lists_the_move_keys(ui_show):
+async def test_help_lists_the_move_keys(ui_short_show):
     from showkit.ui.help import HelpScreen
 
-    app = make_app(ui_show)
+    app = make_app(ui_short_show)
     async with app.run_test(size=APP_SIZE) as pilot:
         await pilot.press("question_mark")
         await pilot.pause()
@@ -112,12 +112,12 @@ async def test_help_lists_the_move_keys(ui_show):
 
 
 @sync
-async def test_small_terminal_keeps_passages_rig_name_panic_and_dialog_keys(ui_show):
+async def test_small_terminal_keeps_passages_rig_name_panic_and_dialog_keys(ui_short_show):
     from showkit.demo_files import demo_audio_path
     from showkit.ui.app import PANIC_HINT
     from showkit.ui.track import PassageTable
 
-    app = make_app(ui_show, track=demo_audio_path("three_rooms.flac"), view="track")
+    app = make_app(ui_short_show, track=demo_audio_path("three_rooms.flac"), view="track")
     async with app.run_test(size=SMALL) as pilot:
         await settle(pilot)
         table = app.query_one(PassageTable)
@@ -142,10 +142,10 @@ async def test_small_terminal_keeps_passages_rig_name_panic_and_dialog_keys(ui_s
 
 
 @sync
-async def test_warnings_behind_the_cautions_come_back_when_they_close(ui_show):
+async def test_warnings_behind_the_cautions_come_back_when_they_close(ui_short_show):
     from showkit.ui.safety import CautionScreen
 
-    app = make_app(ui_show, cautions=True, view="tube")
+    app = make_app(ui_short_show, cautions=True, view="tube")
     async with app.run_test(size=APP_SIZE) as pilot:
         await settle(pilot)
         assert isinstance(app.screen, CautionScreen)

@@ -1,7 +1,10 @@
 """The Run view driven through Textual's Pilot, on a stand-in sound device (tests/fake_sounddevice.py).
 
 The stand-in stream is pumped by hand, so the samples that would reach the
-speaker are exactly what the engine's callback wrote, block by block.
+speaker are exactly what the engine's callback wrote, block by block.  The tests use
+the short demo show (conftest ``ui_short_show``: the demo's five cues with a third of
+the sound), since none of their checks depends on the cues' lengths; the snapshot
+keeps the demo show itself.
 """
 
 from __future__ import annotations
@@ -46,12 +49,12 @@ def _played(sd, since: int) -> np.ndarray:
 
 
 @sync
-async def test_low_manometer_reading_lists_the_cues_that_no_longer_fit(ui_show, tmp_path, fake_sd):
+async def test_low_manometer_reading_lists_the_cues_that_no_longer_fit(ui_short_show, tmp_path, fake_sd):
     from showkit.show.showlog import read_log
     from showkit.ui.run import RunView
 
     log = tmp_path / "show.jsonl"
-    app = make_app(ui_show, view="run", log_path=log)
+    app = make_app(ui_short_show, view="run", log_path=log)
     async with app.run_test(size=APP_SIZE) as pilot:
         await settle(pilot)
         # ceilings at the rig file's 20 Pa, from the checks the Show view made
@@ -83,12 +86,12 @@ async def test_low_manometer_reading_lists_the_cues_that_no_longer_fit(ui_show, 
 
 
 @sync
-async def test_fader_scales_the_output_refuses_unity_and_panic_works_from_anywhere(ui_show, tmp_path, fake_sd):
+async def test_fader_scales_the_output_refuses_unity_and_panic_works_from_anywhere(ui_short_show, tmp_path, fake_sd):
     from showkit.show.showlog import EVENTS, read_log
     from showkit.ui.run import RunView
 
     log = tmp_path / "show.jsonl"
-    app = make_app(ui_show, view="run", log_path=log)
+    app = make_app(ui_short_show, view="run", log_path=log)
     async with app.run_test(size=APP_SIZE) as pilot:
         await settle(pilot)
         await _check(pilot)
@@ -160,13 +163,13 @@ async def test_fader_scales_the_output_refuses_unity_and_panic_works_from_anywhe
 
 
 @sync
-async def test_no_output_device_gives_a_clear_message(ui_show, tmp_path, monkeypatch):
+async def test_no_output_device_gives_a_clear_message(ui_short_show, tmp_path, monkeypatch):
     from showkit.show.showlog import read_log
     from showkit.ui.run import RunView
 
     monkeypatch.setitem(sys.modules, "sounddevice", make_sd(devices=[("Mic only", 0, 48000.0, 2)]))
     log = tmp_path / "show.jsonl"
-    app = make_app(ui_show, view="run", log_path=log)
+    app = make_app(ui_short_show, view="run", log_path=log)
     async with app.run_test(size=APP_SIZE) as pilot:
         await settle(pilot)
         await _check(pilot)
@@ -185,10 +188,10 @@ async def test_no_output_device_gives_a_clear_message(ui_show, tmp_path, monkeyp
 
 
 @sync
-async def test_device_setting_is_used_for_sound(ui_show, tmp_path, monkeypatch):
+async def test_device_setting_is_used_for_sound(ui_short_show, tmp_path, monkeypatch):
     sd = make_sd(devices=[("Desk Speakers", 2, 48000.0, 0), ("Hall Amp", 2, 48000.0, 0)], default_out=0)
     monkeypatch.setitem(sys.modules, "sounddevice", sd)
-    app = make_app(ui_show, log_path=tmp_path / "show.jsonl")
+    app = make_app(ui_short_show, log_path=tmp_path / "show.jsonl")
     async with app.run_test(size=APP_SIZE) as pilot:
         await settle(pilot)
         await pilot.press("D")
@@ -230,14 +233,14 @@ async def _manometer(pilot, reading: str) -> None:
 
 
 @sync
-async def test_manometer_change_after_the_check_blocks_the_cue_in_the_run_view(ui_show, tmp_path, fake_sd):
+async def test_manometer_change_after_the_check_blocks_the_cue_in_the_run_view(ui_short_show, tmp_path, fake_sd):
     """Issue 11: check in the Run view, then m with 2 Pa: the Run view must not say every cue
     fits, and go must not start a cue that no longer fits (nor may the show log)."""
     from showkit.show.showlog import read_log
     from showkit.ui.run import RunView
 
     log = tmp_path / "show.jsonl"
-    app = make_app(ui_show, view="run", log_path=log)
+    app = make_app(ui_short_show, view="run", log_path=log)
     async with app.run_test(size=APP_SIZE) as pilot:
         await settle(pilot)
         await _check(pilot)
@@ -292,12 +295,12 @@ async def test_manometer_change_after_the_check_blocks_the_cue_in_the_run_view(u
 
 
 @sync
-async def test_a_cue_playing_when_the_ceiling_comes_down_is_brought_down_and_held(ui_show, tmp_path, fake_sd):
+async def test_a_cue_playing_when_the_ceiling_comes_down_is_brought_down_and_held(ui_short_show, tmp_path, fake_sd):
     from showkit.show.showlog import read_log
     from showkit.ui.run import RunView
 
     log = tmp_path / "show.jsonl"
-    app = make_app(ui_show, view="run", log_path=log)
+    app = make_app(ui_short_show, view="run", log_path=log)
     async with app.run_test(size=APP_SIZE) as pilot:
         await settle(pilot)
         await _check(pilot)
@@ -337,14 +340,14 @@ async def test_a_cue_playing_when_the_ceiling_comes_down_is_brought_down_and_hel
 
 
 @sync
-async def test_gas_temperature_moves_tones_and_stales_nothing_even_after_a_restart(ui_show, tmp_path, fake_sd):
+async def test_gas_temperature_moves_tones_and_stales_nothing_even_after_a_restart(ui_short_show, tmp_path, fake_sd):
     from textual.widgets import Input
 
     from showkit.physics.modes import find_modes
     from showkit.show.preshow import cue_for_today
     from showkit.ui.run import RunView
 
-    app = make_app(ui_show, view="run", log_path=tmp_path / "show.jsonl")
+    app = make_app(ui_short_show, view="run", log_path=tmp_path / "show.jsonl")
     async with app.run_test(size=APP_SIZE) as pilot:
         await settle(pilot)
         await _check(pilot)
@@ -373,7 +376,7 @@ async def test_gas_temperature_moves_tones_and_stales_nothing_even_after_a_resta
         await pilot.press("1", "L")
         await settle(pilot)
         await pilot.press("ctrl+q")
-    app = make_app(ui_show)
+    app = make_app(ui_short_show)
     async with app.run_test(size=APP_SIZE) as pilot:
         await settle(pilot)
         assert app.session.temperature_k is None
@@ -381,12 +384,12 @@ async def test_gas_temperature_moves_tones_and_stales_nothing_even_after_a_resta
 
 
 @sync
-async def test_a_rig_written_by_the_measure_view_holds_every_cue_until_checked_again(ui_show, tmp_path, fake_sd):
+async def test_a_rig_written_by_the_measure_view_holds_every_cue_until_checked_again(ui_short_show, tmp_path, fake_sd):
     from showkit.show.showlog import read_log
     from showkit.ui.run import RunView
 
     log = tmp_path / "show.jsonl"
-    app = make_app(ui_show, view="run", log_path=log)
+    app = make_app(ui_short_show, view="run", log_path=log)
     async with app.run_test(size=APP_SIZE) as pilot:
         await settle(pilot)
         await _check(pilot)
@@ -406,10 +409,10 @@ async def test_a_rig_written_by_the_measure_view_holds_every_cue_until_checked_a
 
 
 @sync
-async def test_a_gain_lowered_in_the_show_view_is_followed_by_the_run_view(ui_show, tmp_path, fake_sd):
+async def test_a_gain_lowered_in_the_show_view_is_followed_by_the_run_view(ui_short_show, tmp_path, fake_sd):
     from showkit.ui.run import RunView
 
-    app = make_app(ui_show, view="run", log_path=tmp_path / "show.jsonl")
+    app = make_app(ui_short_show, view="run", log_path=tmp_path / "show.jsonl")
     async with app.run_test(size=APP_SIZE) as pilot:
         await settle(pilot)
         await _check(pilot)

@@ -52,11 +52,11 @@ async def test_the_pause_shows_silence_not_a_ceiling(ui_show):
 
 
 @sync
-async def test_gain_stops_at_the_ceiling_and_says_why(ui_show):
+async def test_gain_stops_at_the_ceiling_and_says_why(ui_short_show):
     from showkit.show.lock import safe_gain
     from showkit.show.sheet import load_sheet
 
-    app = make_app(ui_show)
+    app = make_app(ui_short_show)
     async with app.run_test(size=APP_SIZE) as pilot:
         await settle(pilot)
         await pilot.press("down", "down")          # the third cue: mode-4 at -34 dB
@@ -70,17 +70,17 @@ async def test_gain_stops_at_the_ceiling_and_says_why(ui_show):
         assert gain <= ceiling
         assert "stopped at the ceiling" in app._status_text
         # autosaved: the file on disk holds the new gain
-        assert load_sheet(ui_show).cue("mode-4").gain_db == pytest.approx(gain)
+        assert load_sheet(ui_short_show).cue("mode-4").gain_db == pytest.approx(gain)
         # and undo goes back one step
         await pilot.press("ctrl+z")
         assert app.session.sheet.cue("mode-4").gain_db < gain
 
 
 @sync
-async def test_typed_gain_above_the_ceiling_is_refused(ui_show):
+async def test_typed_gain_above_the_ceiling_is_refused(ui_short_show):
     from textual.widgets import Input
 
-    app = make_app(ui_show)
+    app = make_app(ui_short_show)
     async with app.run_test(size=APP_SIZE) as pilot:
         await settle(pilot)
         await pilot.press("down", "down", "G")
@@ -94,12 +94,12 @@ async def test_typed_gain_above_the_ceiling_is_refused(ui_show):
 
 
 @sync
-async def test_add_tone_cue_save_reopen(ui_show):
+async def test_add_tone_cue_save_reopen(ui_short_show):
     from textual.widgets import Input
 
     from showkit.show.sheet import ToneSource, load_sheet
 
-    app = make_app(ui_show)
+    app = make_app(ui_short_show)
     async with app.run_test(size=APP_SIZE) as pilot:
         await settle(pilot)
         await pilot.press("t")
@@ -112,24 +112,24 @@ async def test_add_tone_cue_save_reopen(ui_show):
         assert "mode-3-1" in ids
         assert app.session.checks["mode-3-1"].status == "ok"   # locked in the background
         await pilot.press("ctrl+q")
-    again = load_sheet(ui_show)
+    again = load_sheet(ui_short_show)
     cue = again.cue("mode-3-1")
     assert isinstance(cue.source, ToneSource) and cue.source.mode == 3 and cue.source.duration_s == 6
     assert cue.lock is not None and cue.gain_db <= cue.lock.ceiling_db
     # reopen in the UI and find it in the list
-    app = make_app(ui_show)
+    app = make_app(ui_short_show)
     async with app.run_test(size=APP_SIZE) as pilot:
         await settle(pilot)
         assert _row(app, "mode-3-1")[5] == "ok"
 
 
 @sync
-async def test_move_edit_delete_and_undo(ui_show):
+async def test_move_edit_delete_and_undo(ui_short_show):
     from textual.widgets import Input
 
     from showkit.show.sheet import load_sheet
 
-    app = make_app(ui_show)
+    app = make_app(ui_short_show)
     async with app.run_test(size=APP_SIZE) as pilot:
         await settle(pilot)
         await pilot.press("right_square_bracket")          # welcome moves below talk
@@ -150,19 +150,19 @@ async def test_move_edit_delete_and_undo(ui_show):
         assert "welcome" in [c.id for c in app.session.sheet.cues]
         await pilot.press("delete")
         assert "welcome" not in [c.id for c in app.session.sheet.cues]
-        assert "welcome" not in [c.id for c in load_sheet(ui_show).cues]
+        assert "welcome" not in [c.id for c in load_sheet(ui_short_show).cues]
         assert "deleted cue welcome" in app._status_text and "press u" in app._status_text
         await pilot.press("u")                              # undo, right there
-        assert "welcome" in [c.id for c in load_sheet(ui_show).cues]
+        assert "welcome" in [c.id for c in load_sheet(ui_short_show).cues]
         await pilot.press("delete", "ctrl+z")               # ctrl+z does the same
-        assert "welcome" in [c.id for c in load_sheet(ui_show).cues]
+        assert "welcome" in [c.id for c in load_sheet(ui_short_show).cues]
 
 
 @sync
-async def test_manometer_reading_rederives_ceilings(ui_show):
+async def test_manometer_reading_rederives_ceilings(ui_short_show):
     from textual.widgets import Input
 
-    app = make_app(ui_show)
+    app = make_app(ui_short_show)
     async with app.run_test(size=APP_SIZE) as pilot:
         await settle(pilot)
         before = app.session.checks["mode-4"].ceiling_db
@@ -179,10 +179,10 @@ async def test_manometer_reading_rederives_ceilings(ui_show):
 
 
 @sync
-async def test_bad_input_is_a_message_not_a_traceback(ui_show):
+async def test_bad_input_is_a_message_not_a_traceback(ui_short_show):
     from textual.widgets import Input
 
-    app = make_app(ui_show)
+    app = make_app(ui_short_show)
     async with app.run_test(size=APP_SIZE) as pilot:
         await settle(pilot)
         await pilot.press("m")
@@ -203,7 +203,7 @@ async def test_bad_input_is_a_message_not_a_traceback(ui_show):
 
 
 @sync
-async def test_audition_plays_the_rendered_cue_and_stops(ui_show, monkeypatch):
+async def test_audition_plays_the_rendered_cue_and_stops(ui_short_show, monkeypatch):
     import numpy as np
     from fake_sounddevice import make_sd
 
@@ -213,7 +213,7 @@ async def test_audition_plays_the_rendered_cue_and_stops(ui_show, monkeypatch):
 
     sd = make_sd()
     monkeypatch.setattr(devices, "import_sounddevice", lambda: sd)
-    app = make_app(ui_show)
+    app = make_app(ui_short_show)
     async with app.run_test(size=APP_SIZE) as pilot:
         await settle(pilot)
         await pilot.press("down", "down", "a")
@@ -234,7 +234,7 @@ async def test_audition_plays_the_rendered_cue_and_stops(ui_show, monkeypatch):
 
 
 @sync
-async def test_audition_without_a_device_says_so(ui_show, monkeypatch):
+async def test_audition_without_a_device_says_so(ui_short_show, monkeypatch):
     from showkit.errors import DeviceError
     from showkit.show import devices
 
@@ -242,7 +242,7 @@ async def test_audition_without_a_device_says_so(ui_show, monkeypatch):
         raise DeviceError("the PortAudio library cannot be loaded (test)", "audio", devices.INSTALL_FIX)
 
     monkeypatch.setattr(devices, "import_sounddevice", missing)
-    app = make_app(ui_show)
+    app = make_app(ui_short_show)
     async with app.run_test(size=APP_SIZE) as pilot:
         await settle(pilot)
         await pilot.press("down", "down", "a")

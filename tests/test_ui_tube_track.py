@@ -8,11 +8,11 @@ from ui_support import APP_SIZE, make_app, settle, sync
 
 
 @sync
-async def test_tube_view_modes_flames_and_conditions(ui_show):
+async def test_tube_view_modes_flames_and_conditions(ui_short_show):
     from showkit.physics.modes import find_modes
     from showkit.ui.tube import ModeTable, TubeDrawing
 
-    app = make_app(ui_show, view="tube")
+    app = make_app(ui_short_show, view="tube")
     async with app.run_test(size=APP_SIZE) as pilot:
         await settle(pilot)
         table = app.query_one(ModeTable)
@@ -57,13 +57,13 @@ async def test_tube_view_modes_flames_and_conditions(ui_show):
 
 
 @sync
-async def test_track_view_cursor_passage_cue_transpose(ui_show):
+async def test_track_view_cursor_passage_cue_transpose(ui_short_show):
     from showkit.demo_files import demo_audio_path
     from showkit.show.sheet import AudioSource, load_sheet
     from showkit.ui.track import CursorFlames, TrackMap, TrackView
 
     track = demo_audio_path("lantern_drift.flac")
-    app = make_app(ui_show, track=track, view="track")
+    app = make_app(ui_short_show, track=track, view="track")
     async with app.run_test(size=APP_SIZE) as pilot:
         await settle(pilot)
         view = app.query_one(TrackView)
@@ -111,11 +111,11 @@ async def test_track_view_cursor_passage_cue_transpose(ui_show):
         await settle(pilot)
         assert view.selection[:2] == pytest.approx((1.0, 5.0))
         assert view.selection[2] is not None
-    saved = load_sheet(ui_show)
+    saved = load_sheet(ui_short_show)
     assert cue.id in [c.id for c in saved.cues]
 
 
-def test_track_frames_score_matches_the_scan(ui_show):
+def test_track_frames_score_matches_the_scan(ui_short_show):
     """The map's per-shift score at 0 is the scan's own track score (same steps)."""
     from showkit.analysis.scan import scan_track
     from showkit.demo_files import demo_audio_path

@@ -25,8 +25,17 @@ def mark_cautions_read() -> None:
     mark_cautions_seen()
 
 
-def lock_demo(folder: Path) -> Path:
-    """A locked copy of the bundled demo show in ``folder``."""
+#: The demo show's sound lengths (s) -> the short demo's: the same five cues (ids, kinds, modes,
+#: gains, fades, order), a quarter to a third of the sound, so that every lock, check and playback
+#: render of a UI test that does not look at lengths simulates about a third of the samples.
+SHORT_DEMO = {"tone = { mode = 1, duration = 8.0 }": "tone = { mode = 1, duration = 3.0 }",
+              "tone = { mode = 4, duration = 12.0 }": "tone = { mode = 4, duration = 4.0 }",
+              "duration = 15.0 }": "duration = 5.0 }",
+              "end = 20.0": "end = 6.0"}
+
+
+def lock_demo(folder: Path, short: bool = False) -> Path:
+    """A locked copy of the bundled demo show in ``folder`` (``short``: with :data:`SHORT_DEMO`'s lengths)."""
     from showkit.demo_files import bundled_demo_show
     from showkit.show.lock import lock_sheet
     from showkit.show.sheet import load_sheet, save_sheet
@@ -34,6 +43,12 @@ def lock_demo(folder: Path) -> Path:
     folder.mkdir(parents=True, exist_ok=True)
     path = folder / "demo-show.toml"
     shutil.copyfile(bundled_demo_show(), path)
+    if short:
+        text = path.read_text(encoding="utf-8")
+        for old, new in SHORT_DEMO.items():
+            assert text.count(old) == 1, old  # the bundled demo changed: update SHORT_DEMO
+            text = text.replace(old, new)
+        path.write_text(text, encoding="utf-8")
     sheet = load_sheet(path)
     lock_sheet(sheet)
     save_sheet(sheet)
