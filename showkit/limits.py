@@ -42,8 +42,13 @@ MAX_CUE_SAMPLES = int(MAX_GENERATED_S * 48000)
 MAX_SHOW_SAMPLES = int(90 * 60 * 48000)
 #: Highest sample rate of audio read, sweeps written and renders, Hz.
 MAX_RATE_HZ = 384_000
-#: Lowest sample rate of sweeps written, Hz (a flame tube's modes reach a few kHz).
+#: Lowest sample rate of sweeps written and of audio read, Hz (a flame tube's modes reach a few
+#: kHz; a header saying 1 Hz made a 2-s file read as 27 hours, resampled block by block to 48 kHz).
 MIN_SWEEP_RATE_HZ = 4_000
+MIN_RATE_HZ = MIN_SWEEP_RATE_HZ
+#: Shortest audio read, s: a file of a few samples is a broken export, not a passage, cue or
+#: measurement (project's floor; a 50-ms file is still read).
+MIN_AUDIO_S = 0.02
 #: Most holes in a rig: real tubes have tens to a few hundred (a 20 m tube with a hole every
 #: 10 mm has 2000); the model's cost grows with each.
 MAX_HOLES = 2000

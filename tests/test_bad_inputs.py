@@ -372,6 +372,11 @@ CASES = [
     Case("audio-text", lambda e: ["ceiling", e.write("t.wav", "not audio\n")], "not an audio file"),
     Case("audio-empty", lambda e: ["ceiling", e.write("e.wav", b"")], "empty"),
     Case("audio-rate-too-high", lambda e: ["ceiling", e.write("r.wav", _rate_header(20_000_000))], None),
+    # a 2-s file whose header says 1 Hz read as 27 hours and ran away (8 GB) before the rate floor
+    Case("audio-rate-1hz", lambda e: ["ceiling", e.write("r1.wav", _rate_header(1, 96_000))], "below showkit's limit"),
+    Case("scan-rate-1hz", lambda e: ["scan", e.write("r1.wav", _rate_header(1, 96_000)), "--jobs", "1"], None, 2,
+         check=lambda e, out, err: ("below showkit's limit" in out + err) or pytest.fail(out + err)),
+    Case("audio-one-sample", lambda e: ["ceiling", e.write("one.wav", _rate_header(48_000, 1))], "ms long"),
     Case("scan-dev-zero", lambda e: ["scan", "/dev/zero", "--jobs", "1"], None, 2,
          check=lambda e, out, err: ("character device" in out) or pytest.fail(out)),
     Case("scan-folder-with-fifo-and-device-link", lambda e: (
@@ -452,9 +457,9 @@ def _rig_text(count_: str | None = None) -> str:
     return RIG.replace("count = 40", count_) if count_ else RIG
 
 
-def _rate_header(rate: int) -> bytes:
-    """A 16-bit mono WAV of 100 frames whose header says ``rate`` Hz."""
-    data = np.zeros(100, "<i2").tobytes()
+def _rate_header(rate: int, frames: int = 100) -> bytes:
+    """A 16-bit mono WAV of ``frames`` frames whose header says ``rate`` Hz."""
+    data = np.zeros(frames, "<i2").tobytes()
     fmt = struct.pack("<HHIIHH", 1, 1, rate, rate * 2, 2, 16)
     return (b"RIFF" + struct.pack("<I", 4 + 8 + len(fmt) + 8 + len(data)) + b"WAVE"
             + b"fmt " + struct.pack("<I", len(fmt)) + fmt + b"data" + struct.pack("<I", len(data)) + data)
@@ -559,6 +564,7 @@ SUBPROCESS_CASES = {
         "s.toml", '[[cue]]\nid = "t"\ntone = { frequency = 100, duration = "8:20:00" }\n')],
     "holes-1e9": lambda e: ["modes", "--rig", e.write("h.toml", RIG.replace("count = 40", "count = 1000000000"))],
     "sweep-20MHz": lambda e: ["measure", "sweep", "--out", e.p("s.wav"), "--rate", "20000000", "--length", "60"],
+    "ceiling-rate-1hz": lambda e: ["ceiling", e.write("r1.wav", _rate_header(1, 96_000))],
     "scan-fifo-in-folder": lambda e: (e.p("d").mkdir(), e.fifo("d/x.wav"), os.symlink("/dev/zero", e.p("d/z.wav")),
                                       ["scan", e.p("d"), "--jobs", "1"])[-1],
 }

@@ -22,7 +22,7 @@ from typing import Iterator
 import numpy as np
 
 from showkit.errors import AudioError
-from showkit.limits import AUDIO_MAX_BYTES, MAX_CUE_SAMPLES, MAX_RATE_HZ
+from showkit.limits import AUDIO_MAX_BYTES, MAX_CUE_SAMPLES, MAX_RATE_HZ, MIN_AUDIO_S, MIN_RATE_HZ
 
 #: Files shorter than this many samples cannot be analysed.
 MIN_FRAMES = 1
@@ -86,6 +86,13 @@ def audio_info(path: str | Path) -> AudioInfo:
     if info.samplerate > MAX_RATE_HZ:
         raise AudioError(f"the sample rate {info.samplerate} Hz is above showkit's limit "
                          f"({MAX_RATE_HZ} Hz)", where, "resample it to 48 kHz or 96 kHz")
+    if info.samplerate < MIN_RATE_HZ:
+        raise AudioError(f"the sample rate {info.samplerate} Hz is below showkit's limit ({MIN_RATE_HZ} Hz): "
+                         f"a damaged header, or audio too coarse for the tube's modes", where,
+                         "export the track again at 44.1 or 48 kHz")
+    if info.frames < MIN_AUDIO_S * info.samplerate:
+        raise AudioError(f"the audio is only {1000.0 * info.frames / info.samplerate:.1f} ms long (shortest: "
+                         f"{MIN_AUDIO_S:g} s)", where, "give a track or recording of at least a second")
     _check_wav_length(path, st.st_size, where)
     return AudioInfo(path=path, rate_hz=int(info.samplerate), channels=int(info.channels),
                      frames=int(info.frames), format=str(info.format))
