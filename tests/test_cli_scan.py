@@ -55,7 +55,9 @@ def test_json_contract(folder, capsys):
                           "error", "passages"}
         assert t["error"] is None and 0 <= t["score"] <= 100
         for p in t["passages"]:
-            assert set(p) >= {"start_s", "end_s", "score", "modes", "ceiling_db", "contrast"}
+            # the scan's ceiling is named as the estimate it is, never a plain ceiling_db to play at
+            assert set(p) >= {"start_s", "end_s", "score", "modes", "estimated_ceiling_db", "contrast"}
+            assert "ceiling_db" not in p
             assert 0 <= p["start_s"] < p["end_s"] <= t["duration_s"] + 1e-6
     assert tracks[0]["passages"][0]["modes"][0] == 3
     assert "CAUTION" in err
@@ -106,6 +108,7 @@ def test_table_and_csv(folder, tmp_path, capsys):
     assert "good.flac" in out and "n3 F3" in out and "ceiling dB" in out
     rows = list(csv.DictReader(target.open()))
     assert rows and rows[0]["modes"].split()[0] == "3"
+    assert float(rows[0]["estimated_ceiling_db"]) < 60 and "ceiling_db" not in rows[0]
 
 
 def test_bad_options_are_one_line(folder, capsys):

@@ -112,6 +112,17 @@ def _print_table(tracks: list[dict]) -> None:
                     "<><>>"))
 
 
+#: The scan's passage ceiling in the JSON and CSV it writes: the best estimate's, to rank passages, not a
+#: level to play (a script reading a plain ``ceiling_db`` would take it for one; `ceiling`/`lock` give that).
+ESTIMATE_KEY = "estimated_ceiling_db"
+
+
+def _for_output(tracks: list[dict]) -> list[dict]:
+    """The tracks as --json prints them: each passage's ``ceiling_db`` named :data:`ESTIMATE_KEY`."""
+    return [{**t, "passages": [{(ESTIMATE_KEY if k == "ceiling_db" else k): v for k, v in p.items()}
+                               for p in t["passages"]]} for t in tracks]
+
+
 def _write_csv(path: str, tracks: list[dict], protect=()) -> None:
     import csv
 
@@ -120,7 +131,7 @@ def _write_csv(path: str, tracks: list[dict], protect=()) -> None:
     with io.StringIO(newline="") as f:
         w = csv.writer(f)
         w.writerow(["path", "track_score", "transpose_semitones", "transpose_score", "error",
-                    "start_s", "end_s", "passage_score", "modes", "ceiling_db", "contrast"])
+                    "start_s", "end_s", "passage_score", "modes", ESTIMATE_KEY, "contrast"])
         for t in tracks:
             base = [t["path"], t["score"], t["transpose_semitones"], t["transpose_score"], t["error"] or ""]
             if not t["passages"]:
@@ -190,7 +201,7 @@ def run(args) -> int:
     level_caution()
     if args.json:
         print_json({"rig": rig.name, "static_pressure_pa": rig.static_pa, "reserve": rig.reserve,
-                    "tracks": tracks})
+                    "tracks": _for_output(tracks)})
     else:
         _print_table(tracks)
         print(f"\nOn {rig.name}, static {rig.static_pa:.2f} Pa, reserve {rig.reserve:g}; "
