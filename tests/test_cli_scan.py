@@ -169,3 +169,16 @@ def test_transpose_column_is_one_format(capsys):
     assert "-2.00 st -> 55" in rows["c.wav"]
     assert rows["d.wav"].rstrip().endswith("none")
     assert not any(" c " in r or r.rstrip().endswith(" c") for r in rows.values())
+
+
+def test_one_unreadable_file_is_one_line(tmp_path, capsys):
+    """A scan of one file that cannot be read says so in one line on stderr, exit 2, no table (the
+    same form as any command); a folder still lists its unreadable files among the rest."""
+    bad = tmp_path / "empty.wav"
+    bad.write_bytes(b"")
+    assert main(["scan", str(bad), "--jobs", "1"]) == 2
+    out, err = capsys.readouterr()
+    assert out == "" and len(err.strip().splitlines()) == 1
+    assert "empty.wav: the file is empty" in err
+    assert main(["scan", str(tmp_path), "--jobs", "1"]) == 2
+    assert "ERROR" in capsys.readouterr().out

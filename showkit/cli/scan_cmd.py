@@ -198,6 +198,9 @@ def run(args) -> int:
     if not tracks:
         raise InputError("no audio files found", " ".join(args.paths),
                          "give audio files, or folders holding .wav, .flac, .ogg, .mp3 files")
+    if len(tracks) == 1 and tracks[0]["error"] and not args.json and Path(args.paths[0]).is_file():
+        # one file asked for and it could not be read: its one line, as any command gives it
+        raise InputError(tracks[0]["error"])
     level_caution()
     if args.json:
         print_json({"rig": rig.name, "static_pressure_pa": rig.static_pa, "reserve": rig.reserve,
