@@ -145,3 +145,25 @@ def test_track_title_writes_shifts_as_the_scan_does():
     old = SimpleNamespace(**{**vars(a), "transpose": 0, "score": 40.0})
     assert "(was 40.0 at +0.00 st)" in title_text(a, old)
     assert "suggests" not in title_text(SimpleNamespace(**{**vars(a), "suggestion_semitones": 0.0}))
+
+
+def test_an_unreadable_track_is_said_once(tmp_path, monkeypatch):
+    """The Track view's error for a file the scan cannot read names the file and the fix once (it
+    said the path twice and added a second hint after the scan's own)."""
+    from types import SimpleNamespace
+
+    import numpy as np
+    import soundfile as sf
+
+    from showkit.errors import AudioError
+    from showkit.rigfile import load_rig
+    from showkit.ui.tracks import TrackWork
+
+    monkeypatch.setenv("SHOWKIT_CACHE_DIR", str(tmp_path / "cache"))
+    bad = tmp_path / "nan.wav"
+    sf.write(bad, np.full(4800, np.nan, np.float32), 48000, subtype="FLOAT")
+    work = TrackWork(SimpleNamespace(rig=load_rig(None), sheet=SimpleNamespace(path=tmp_path / "s.toml")))
+    with pytest.raises(AudioError) as err:
+        work.analysis_job(bad)
+    line = err.value.line()
+    assert line.count(str(bad)) == 1 and line.count(" -- ") == 1, line

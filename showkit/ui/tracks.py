@@ -138,7 +138,7 @@ class TrackWork:
         tick(0)
         scan = scan_paths(rig, [path], jobs=1, use_cache=True)[0]
         if scan.get("error"):
-            raise AudioError(scan["error"], str(path), "choose another file")
+            raise AudioError(scan["error"])  # already says where, what and how to fix, once
         tick(1)
         report = passage_report(rig, path)
         tick(2)
