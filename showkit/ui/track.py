@@ -189,7 +189,7 @@ class TrackView(SessionView):
     def on_mount(self) -> None:
         t = self.query_one(PassageTable)
         for label, key, width in (("#", "n", 2), ("from", "a", 7), ("to", "b", 7), ("score", "score", 5),
-                                  ("modes", "modes", 12), ("~ceiling", "ceiling", 8), ("contrast", "contrast", 8)):
+                                  ("modes", "modes", 12), ("~ceiling", "ceiling", 8), ("contrast %", "contrast", 10)):
             t.add_column(label, key=key, width=width)
         self.query_one("#track-title", Static).update(
             "No track open yet: o opens a track (demo tracks are offered).")
@@ -256,7 +256,7 @@ class TrackView(SessionView):
             t.add_row(str(k), _clock(p["start_s"]), _clock(p["end_s"]), f"{p['score']:.1f}",
                       " ".join(str(n) for n in p.get("modes", [])[:4]),
                       f"{p['ceiling_db']:+.1f}" if p.get("ceiling_db") is not None else "",
-                      f"{p['contrast']:.2f}" if p.get("contrast") is not None else "", key=str(k))
+                      f"{100 * p['contrast']:.1f}" if p.get("contrast") is not None else "", key=str(k))
         self.query_one("#track-title", Static).update(title_text(a, old))
         m.refresh(layout=True)
         if a.passages and m.selected is None:
@@ -281,7 +281,7 @@ class TrackView(SessionView):
             f"passage {m.selected + 1} (score {a.passages[m.selected]['score']:.1f}) ")
         sel_text = "" if sel is None else (
             f"   {chosen or 'selection '}{_clock(sel[0])}-{_clock(sel[1])}"
-            + (f" ceiling {sel[2]:+.1f} dB, contrast {sel[3]:.2f}" if sel[2] is not None else " (measuring…)"))
+            + (f" ceiling {sel[2]:+.1f} dB, contrast {100 * sel[3]:.1f} %" if sel[2] is not None else " (measuring…)"))
         air = int((a.air_in[k] > 0).sum())
         self.query_one("#cursor-facts", Static).update(
             f"at {_clock(m.cursor_s)}  flame contrast {a.contrast_frame[k]:.2f}  "
@@ -368,7 +368,7 @@ class TrackView(SessionView):
                 self.selection = (start_s, end_s, report.ceiling_db, report.contrast)
                 self.update_cursor()
                 self.say(f"selection {_clock(start_s)}-{_clock(end_s)}: ceiling {report.ceiling_db:+.1f} dB, "
-                             f"contrast {report.contrast:.2f}; c adds it to the show")
+                             f"contrast {100 * report.contrast:.1f} %; c adds it to the show")
 
         self.run_job("passage", work, done, "measuring the selection's ceiling")
 
