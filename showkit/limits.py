@@ -44,8 +44,7 @@ MAX_SHOW_SAMPLES = int(90 * 60 * 48000)
 MAX_RATE_HZ = 384_000
 #: Lowest sample rate of sweeps written and of audio read, Hz (a flame tube's modes reach a few
 #: kHz; a header saying 1 Hz made a 2-s file read as 27 hours, resampled block by block to 48 kHz).
-MIN_SWEEP_RATE_HZ = 4_000
-MIN_RATE_HZ = MIN_SWEEP_RATE_HZ
+MIN_RATE_HZ = 4_000
 #: Shortest audio read, s: a file of a few samples is a broken export, not a passage, cue or
 #: measurement (project's floor; a 50-ms file is still read).
 MIN_AUDIO_S = 0.02

@@ -34,7 +34,7 @@ import numpy as np
 
 from showkit.analysis.audio import first_channel
 from showkit.errors import MeasureError
-from showkit.limits import MAX_CUE_SAMPLES, MAX_RATE_HZ, MIN_SWEEP_RATE_HZ
+from showkit.limits import MAX_CUE_SAMPLES, MAX_RATE_HZ, MIN_RATE_HZ
 
 #: Samples at or above this fraction of full scale count as clipped.
 CLIP_LEVEL = 0.999
@@ -96,8 +96,8 @@ class SweepSpec:
 def check_spec(spec: SweepSpec) -> None:
     """Raise :class:`MeasureError` for a sweep that cannot be made."""
     rate = spec.sample_rate_hz
-    if not MIN_SWEEP_RATE_HZ <= rate <= MAX_RATE_HZ:
-        raise MeasureError(f"sample rate {rate:g} Hz is outside {MIN_SWEEP_RATE_HZ} to {MAX_RATE_HZ} Hz",
+    if not MIN_RATE_HZ <= rate <= MAX_RATE_HZ:
+        raise MeasureError(f"sample rate {rate:g} Hz is outside {MIN_RATE_HZ} to {MAX_RATE_HZ} Hz",
                            "--rate", "use the rate of your audio interface, e.g. --rate 48000")
     for name, value in (("start", spec.f_start_hz), ("stop", spec.f_stop_hz), ("length", spec.duration_s)):
         if not math.isfinite(value):
