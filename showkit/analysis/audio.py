@@ -77,6 +77,7 @@ def audio_info(path: str | Path) -> AudioInfo:
     try:
         info = sf.info(str(path))
     except Exception as exc:  # libsndfile's errors are not one class across versions
+        _damaged_wav(path, where)
         raise AudioError(f"not an audio file showkit can read ({_short(exc)})", where,
                          "convert it to WAV or FLAC") from None
     if info.frames <= 0 or info.samplerate <= 0:
@@ -98,6 +99,55 @@ def audio_info(path: str | Path) -> AudioInfo:
                      frames=int(info.frames), format=str(info.format))
 
 
+def _wav_header(path: Path) -> dict | None:
+    """The ``fmt`` fields and the ``data`` chunk of a RIFF/WAVE file, read from its header.
+
+    ``{"channels", "rate_hz", "block_align", "data_bytes", "data_offset"}`` (a
+    field is absent when its chunk is missing or short), or ``None`` for a file
+    that is not RIFF/WAVE.  Only the header is read: a handful of chunks before
+    the data (Microsoft/IBM RIFF WAVE layout: ``fmt`` holds format tag, channels,
+    sample rate, byte rate, block align as little-endian integers).
+    """
+    import struct
+
+    try:
+        with open(path, "rb") as f:
+            head = f.read(12)
+            if len(head) < 12 or head[:4] != b"RIFF" or head[8:12] != b"WAVE":
+                return None
+            out: dict = {}
+            offset = 12
+            for _ in range(64):  # a WAV has a handful of chunks before its data
+                f.seek(offset)
+                chunk = f.read(8)
+                if len(chunk) < 8:
+                    return out
+                cid, length = chunk[:4], struct.unpack("<I", chunk[4:])[0]
+                if cid == b"fmt ":
+                    fmt = f.read(16)
+                    if len(fmt) >= 14:
+                        _tag, channels, rate, _byte_rate, align = struct.unpack("<HHIIH", fmt[:14])
+                        out.update(channels=channels, rate_hz=rate, block_align=align)
+                elif cid == b"data":
+                    out.update(data_bytes=length, data_offset=offset + 8)
+                    return out
+                offset += 8 + length + (length & 1)
+            return out
+    except OSError as exc:
+        raise AudioError(f"cannot read the file ({exc.strerror})", str(path), "check its permissions") from None
+
+
+def _damaged_wav(path: Path, where: str) -> None:
+    """Say what is wrong with a WAV header libsndfile refused, when the header itself shows it."""
+    head = _wav_header(path) or {}
+    rate, channels = head.get("rate_hz"), head.get("channels")
+    if rate is not None and not MIN_RATE_HZ <= rate <= MAX_RATE_HZ:
+        raise AudioError(f"the WAV header says a sample rate of {rate} Hz (showkit reads {MIN_RATE_HZ} to "
+                         f"{MAX_RATE_HZ} Hz): a damaged header", where, "export the track again at 44.1 or 48 kHz")
+    if channels == 0:
+        raise AudioError("the WAV header says 0 channels: a damaged header", where, "export the track again")
+
+
 def _check_wav_length(path: Path, size: int, where: str) -> None:
     """Refuse a WAV whose header promises more sample data than the file holds.
 
@@ -106,36 +156,16 @@ def _check_wav_length(path: Path, size: int, where: str) -> None:
     follow it.  A file cut short (a copy or a download broken off, a header
     claiming 4 GB) is refused, never analysed as if it were whole.
     """
-    import struct
-
-    try:
-        with open(path, "rb") as f:
-            head = f.read(12)
-            if len(head) < 12 or head[:4] != b"RIFF" or head[8:12] != b"WAVE":
-                return
-            block_align = 0
-            offset = 12
-            for _ in range(64):  # a WAV has a handful of chunks before its data
-                f.seek(offset)
-                chunk = f.read(8)
-                if len(chunk) < 8:
-                    return
-                cid, length = chunk[:4], struct.unpack("<I", chunk[4:])[0]
-                if cid == b"fmt ":
-                    fmt = f.read(16)
-                    if len(fmt) >= 14:
-                        block_align = struct.unpack("<H", fmt[12:14])[0]
-                elif cid == b"data":
-                    present = size - (offset + 8)
-                    if length > present and block_align > 0:
-                        raise AudioError(
-                            f"the file is cut short (truncated): its header says {length // block_align} frames "
-                            f"({length} bytes of samples) but only {present // block_align} are present",
-                            where, "copy or export the file again; showkit will not guess at the missing part")
-                    return
-                offset += 8 + length + (length & 1)
-    except OSError as exc:
-        raise AudioError(f"cannot read the file ({exc.strerror})", where, "check its permissions") from None
+    head = _wav_header(path)
+    if not head or "data_bytes" not in head:
+        return
+    length, align = head["data_bytes"], head.get("block_align", 0)
+    present = size - head["data_offset"]
+    if length > present and align > 0:
+        raise AudioError(
+            f"the file is cut short (truncated): its header says {length // align} frames "
+            f"({length} bytes of samples) but only {present // align} are present",
+            where, "copy or export the file again; showkit will not guess at the missing part")
 
 
 def _short(exc: Exception) -> str:

@@ -4,7 +4,7 @@ Each track is cut into passages where the music changes character; each
 passage gets a 0-100 readability score (the share of its time during which a
 note is held on a mode whose pattern the holes resolve), the modes held
 (mode number, note, share of the time), its ceiling and the flame contrast at
-it, reported beside the score.  ``--map`` writes the time x mode map of one
+it, reported beside the score.  --map writes the time x mode map of one
 track as JSON.  A transposition within +-3 semitones that
 would lay the track better on the modes is suggested with the score it would
 reach.  Folders are searched recursively; results are cached; a file that
@@ -19,6 +19,8 @@ import argparse
 import io
 import json
 import sys
+import shutil
+import textwrap
 from pathlib import Path
 
 from showkit.cli.common import (add_conditions_options, add_json_option, add_rig_option, level_caution,
@@ -207,13 +209,17 @@ def run(args) -> int:
                     "tracks": _for_output(tracks)})
     else:
         _print_table(tracks)
-        print(f"\nOn {rig.name}, static {rig.static_pa:.2f} Pa, reserve {rig.reserve:g}; "
-              "~ceiling: the best estimate's ceiling in dB applied to the file as recorded, to rank "
-              "passages -- not a level to play: `showkit ceiling` and `lock` give the ceiling over "
-              "the loss family, often lower; a score is the share of time a note "
-              "is held on a readable mode; contrast uses the steady-sine flame heights on the "
-              "per-frame pressure envelope.")
-        print(f"Ceilings rest on: {rig.drive.describe()}.")
+        width = max(60, min(100, shutil.get_terminal_size((100, 24)).columns))
+        notes = [f"On {rig.name}, static {rig.static_pa:.2f} Pa, reserve {rig.reserve:g}.",
+                 "score: the share of the passage's time a note is held on a readable mode, 0-100.",
+                 "~ceiling: the best estimate's ceiling in dB applied to the file as recorded, to rank "
+                 "passages -- not a level to play: `showkit ceiling` and `lock` give the ceiling over the "
+                 "loss family, often lower.",
+                 "contrast: the steady-sine flame heights on the per-frame pressure envelope."]
+        print()
+        for line in notes:
+            print(textwrap.fill(line, width, subsequent_indent="  "))
+        print(textwrap.fill(f"Ceilings rest on: {rig.drive.describe()}.", width, subsequent_indent="  "))
     protect = [(t["path"], "a scanned track") for t in tracks] + [(p, "a scanned path") for p in args.paths]
     if args.csv:
         _write_csv(args.csv, tracks, protect)
