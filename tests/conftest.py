@@ -2,7 +2,32 @@
 
 from __future__ import annotations
 
+import os
+import shutil
+import tempfile
+
 import pytest
+
+_OWN_FOLDERS: list[str] = []
+
+
+def pytest_configure(config):
+    """The tests never read or write the user's own showkit cache and data folders.
+
+    Each test process (each xdist worker too) gets its own temporary folders
+    unless the caller set ``SHOWKIT_CACHE_DIR``/``SHOWKIT_DATA_DIR``; tests that
+    need a folder of their own still set it themselves.
+    """
+    for name in ("SHOWKIT_CACHE_DIR", "SHOWKIT_DATA_DIR"):
+        if not os.environ.get(name):
+            folder = tempfile.mkdtemp(prefix=f"showkit-tests-{name[8:12].lower()}-")
+            _OWN_FOLDERS.append(folder)
+            os.environ[name] = folder
+
+
+def pytest_unconfigure(config):
+    for folder in _OWN_FOLDERS:
+        shutil.rmtree(folder, ignore_errors=True)
 
 
 @pytest.fixture
