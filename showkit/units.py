@@ -214,6 +214,10 @@ def temperature_k(value, where: str | None = None) -> float:
 def duration_s(value, where: str | None = None) -> float:
     """A time in seconds: a number, ``"12 s"``, ``"250 ms"`` or ``"m:ss.s"``/``"h:mm:ss"``."""
     if isinstance(value, str) and ":" in value:
+        if re.search(r"[-+\u2212]", value):
+            # float() reads "-0" as -0.0, which is not below zero: "-0:01" read as +1 s
+            raise InputError(f"{value!r} has a sign: a time written as m:ss is never negative", where,
+                             'write the time without a sign, e.g. "0:01" or "1:05.5"')
         parts = value.strip().split(":")
         try:
             numbers = [float(p) for p in parts]

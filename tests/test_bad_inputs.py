@@ -343,6 +343,10 @@ CASES = [
         "s.toml", '[[cue]]\nid = "t"\npause = { duration = 1 }\nfade_in = 1e300\n')], "fades"),
     Case("audio-start-inf", lambda e: ["lock", e.sheet_with(
         "s.toml", '[[cue]]\nid = "a"\naudio = "track.wav"\nstart = inf\n')], "finite"),
+    # float("-0") is -0.0, not below zero: "-0:01" was read as +1 s and the cue locked 0:01-0:10
+    Case("audio-start-minus-m-ss", lambda e: ["lock", e.sheet_with(
+        "s.toml", '[[cue]]\nid = "a"\naudio = "track.wav"\nstart = "-0:01"\n')], "cue a: start: '-0:01' has a sign",
+        unchanged=("s.toml",)),
     Case("cues-2001", lambda e: ["check", e.sheet_with(
         "s.toml", "".join(f'[[cue]]\nid = "p{k}"\npause = {{ duration = 1 }}\n' for k in range(2001)))],
         "more than showkit runs"),
@@ -363,6 +367,7 @@ CASES = [
     Case("sheet-format-99", lambda e: ["check", e.write("f.toml", SHEET.replace("format = 1", "format = 99"))],
          "newer than"),
     # ---- audio (ceiling, scan)
+    Case("ceiling-start-minus-m-ss", lambda e: ["ceiling", e.p("track.wav"), "--start=-0:01"], "--start: '-0:01' has a sign"),
     Case("audio-fifo", lambda e: ["ceiling", e.fifo("x.wav")], "named pipe"),
     Case("open-audio-fifo", lambda e: ["open", e.fifo("o.wav")], "named pipe"),  # said "no such audio file"
     Case("audio-dev-zero", lambda e: ["ceiling", "/dev/zero"], "character device"),
