@@ -57,3 +57,7 @@ MAX_HOLES = 2000
 MAX_SCAN_S = 90 * 60.0
 #: Most cues in one sheet.
 MAX_CUES = 2000
+#: Largest transposition, cents (either way): the scan searches every shift within it and
+#: ``scan --transpose`` accepts any shift it may suggest (3.5 semitones: a move of 300 cents is
+#: found from inside the range, not at its edge).
+TRANSPOSE_RANGE_CENTS = 350

@@ -118,6 +118,28 @@ def test_bad_options_are_one_line(folder, capsys):
     assert "--jobs" in err and "--transpose" in err and "Traceback" not in err
 
 
+def test_transpose_takes_every_shift_the_scan_may_suggest(tmp_path, capsys):
+    """The scan searches shifts within +-TRANSPOSE_RANGE_CENTS and may suggest +3.07 st; --transpose
+    refused anything beyond 3 ("must be within -3 and 3 semitones").  Reference: the search's own
+    range (showkit.limits.TRANSPOSE_RANGE_CENTS, cents / 100 = semitones)."""
+    from showkit.analysis import transpose
+    from showkit.limits import TRANSPOSE_RANGE_CENTS
+
+    edge = TRANSPOSE_RANGE_CENTS / 100.0
+    assert transpose.TRANSPOSE_RANGE_CENTS is TRANSPOSE_RANGE_CENTS  # one name: the search uses it
+    # an empty folder: the shift passes its check and the scan finds nothing to read
+    for shift in (3.07, -edge, edge):
+        assert main(["scan", str(tmp_path), "--transpose", str(shift)]) == 2
+        err = capsys.readouterr().err
+        assert "no audio files found" in err and "--transpose" not in err, err
+    assert main(["scan", str(tmp_path), "--transpose", str(edge + 0.01)]) == 2
+    err = capsys.readouterr().err
+    assert f"within -{edge:g} and {edge:g} semitones" in err, err
+    with pytest.raises(SystemExit):
+        main(["scan", "--help"])
+    assert f"-{edge:g} to {edge:g}" in " ".join(capsys.readouterr().out.split())
+
+
 def test_transpose_writes_a_preview(folder, tmp_path, capsys, monkeypatch):
     monkeypatch.chdir(tmp_path)
     assert main(["scan", str(folder / "good.flac"), "--transpose", "-1"]) == 0

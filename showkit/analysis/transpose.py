@@ -28,9 +28,8 @@ import numpy as np
 
 from showkit.analysis.features import TrackFeatures
 from showkit.analysis.pitches import ModeTable
+from showkit.limits import TRANSPOSE_RANGE_CENTS
 
-#: Largest shift searched, cents.
-RANGE_CENTS = 350
 #: Frames of the curve computed at once (memory: frames x notes x shifts).
 CURVE_BLOCK_FRAMES = 512
 #: Shifts scored in full.
@@ -45,7 +44,7 @@ MIN_SHIFTED_SCORE = 10.0
 
 
 def shift_curve(features: TrackFeatures, table: ModeTable, gate: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """``(shifts_cents, note_time_on_modes)`` for every whole-cent shift within +-RANGE_CENTS.
+    """``(shifts_cents, note_time_on_modes)`` for every whole-cent shift within +-TRANSPOSE_RANGE_CENTS.
 
     ``value(s) = sum_t gate_t max_k w_tk [note k of frame t, moved by s, lies on a readable mode]``
     with ``w = share^2``, the squared share of the band the note carries: each frame counts once
@@ -58,7 +57,7 @@ def shift_curve(features: TrackFeatures, table: ModeTable, gate: np.ndarray) -> 
     """
     from showkit.analysis import score as sc
 
-    shifts = np.arange(-RANGE_CENTS, RANGE_CENTS + 1)
+    shifts = np.arange(-TRANSPOSE_RANGE_CENTS, TRANSPOSE_RANGE_CENTS + 1)
     readable = np.asarray(table.readable, bool)
     if not readable.any() or features.frames == 0:
         return shifts, np.zeros(shifts.size)
@@ -70,8 +69,8 @@ def shift_curve(features: TrackFeatures, table: ModeTable, gate: np.ndarray) -> 
     rows = np.nonzero(ok.any(axis=1))[0]
     if rows.size == 0:
         return shifts, np.zeros(shifts.size)
-    base = 1200.0 * np.log2(np.min(table.freq_hz)) - 2 * RANGE_CENTS - 100
-    size = int(np.ceil(1200.0 * np.log2(np.max(table.freq_hz)) - base)) + 2 * RANGE_CENTS + 200
+    base = 1200.0 * np.log2(np.min(table.freq_hz)) - 2 * TRANSPOSE_RANGE_CENTS - 100
+    size = int(np.ceil(1200.0 * np.log2(np.max(table.freq_hz)) - base)) + 2 * TRANSPOSE_RANGE_CENTS + 200
     comb = np.zeros(size, dtype=bool)
     tol = sc.tolerance_cents(table)
     for fm, t in zip(table.freq_hz[readable], tol[readable]):
@@ -80,9 +79,9 @@ def shift_curve(features: TrackFeatures, table: ModeTable, gate: np.ndarray) -> 
     pos = np.rint(1200.0 * np.log2(np.where(ok, f, np.min(table.freq_hz))) - base).astype(int)
     weight = np.where(ok, np.minimum(1.0, share) ** 2, 0.0).astype(np.float32)
     # comb[clip(pos + s, 0, size - 1)] for every shift s is one row of a sliding window over the comb
-    # padded with its edge values (pos held within RANGE_CENTS of the comb reads the same entries)
-    pos = np.clip(pos, -RANGE_CENTS, size - 1 + RANGE_CENTS) + RANGE_CENTS
-    windows = np.lib.stride_tricks.sliding_window_view(np.pad(comb, 2 * RANGE_CENTS, mode="edge"), shifts.size)
+    # padded with its edge values (pos held within TRANSPOSE_RANGE_CENTS of the comb reads the same entries)
+    pos = np.clip(pos, -TRANSPOSE_RANGE_CENTS, size - 1 + TRANSPOSE_RANGE_CENTS) + TRANSPOSE_RANGE_CENTS
+    windows = np.lib.stride_tricks.sliding_window_view(np.pad(comb, 2 * TRANSPOSE_RANGE_CENTS, mode="edge"), shifts.size)
     value = np.zeros(shifts.size)
     for a in range(0, rows.size, CURVE_BLOCK_FRAMES):  # bounded memory on long tracks
         r = rows[a:a + CURVE_BLOCK_FRAMES]

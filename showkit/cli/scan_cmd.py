@@ -5,7 +5,7 @@ passage gets a 0-100 readability score (the share of its time during which a
 note is held on a mode whose pattern the holes resolve), the modes held
 (mode number, note, share of the time), its ceiling and the flame contrast at
 it, reported beside the score.  --map writes the time x mode map of one
-track as JSON.  A transposition within +-3 semitones that
+track as JSON.  A transposition within +-3.5 semitones that
 would lay the track better on the modes is suggested with the score it would
 reach.  Folders are searched recursively; results are cached; a file that
 cannot be read is reported in its row and the scan goes on.
@@ -26,8 +26,12 @@ from pathlib import Path
 from showkit.cli.common import (add_conditions_options, add_json_option, add_rig_option, level_caution,
                                 load_rig_from_args, print_json, table)
 from showkit.errors import InputError, ShowkitError
+from showkit.limits import TRANSPOSE_RANGE_CENTS
 from showkit.printable import printable
 from showkit.units import format_semitones, format_time
+
+#: The largest shift --transpose takes, semitones: the one the scan searches (and may suggest).
+_MAX_SEMITONES = TRANSPOSE_RANGE_CENTS / 100.0
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -41,7 +45,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         help="worker processes (default: all cores)")
     parser.add_argument("--transpose", metavar="N", type=float,
                         help="write a preview WAV of each track's best passage shifted by N "
-                             "semitones (-3 to 3) into the current folder")
+                             f"semitones (-{_MAX_SEMITONES:g} to {_MAX_SEMITONES:g}, the range the scan searches) "
+                             "into the current folder")
     parser.add_argument("--no-cache", action="store_true", help="analyse again, do not read or write the cache")
     parser.add_argument("--plot", metavar="FILE.png",
                         help="also draw each track's time x mode map with its passages and scores "
@@ -183,8 +188,9 @@ def run(args) -> int:
 
     if args.jobs is not None and args.jobs < 1:
         raise InputError(f"--jobs must be 1 or more (got {args.jobs})", "--jobs", "give a number of workers, e.g. --jobs 2")
-    if args.transpose is not None and not -3.0 <= args.transpose <= 3.0:
-        raise InputError(f"--transpose must be within -3 and 3 semitones (got {args.transpose:g})",
+    if args.transpose is not None and not -_MAX_SEMITONES <= args.transpose <= _MAX_SEMITONES:
+        raise InputError(f"--transpose must be within -{_MAX_SEMITONES:g} and {_MAX_SEMITONES:g} semitones, "
+                         f"the range the scan searches (got {args.transpose:g})",
                          "--transpose", "give a shift such as --transpose -2 or --transpose 0.5")
     rig = load_rig_from_args(args)
     if args.csv:
