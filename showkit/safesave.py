@@ -106,17 +106,33 @@ def _protected(protect):
             yield Path(item), "a file the show reads"
 
 
-def check_target(path, protect=(), what: str = "file") -> Path:
+def check_target(path, protect=(), what: str = "file", ending: str | None = None,
+                 reads: str = "the show reads this file") -> Path:
     """Check that ``path`` may be written; returns it as a Path.
 
     Refuses (one :class:`OutputError` line) a folder, a pipe, a device, a
     missing folder, and any file named in ``protect`` (paths, or
     ``(path, role)`` pairs such as ``(track, "a cue's source audio")``).
+
+    Parameters
+    ----------
+    path : path
+        The file to be written.
+    protect : iterable
+        Files never written over, each a path or a ``(path, role)`` pair.
+    what : str
+        What is written (``"CSV file"``), for messages.
+    ending : str, optional
+        The file name ending the output takes (``".csv"``), for the example a refusal gives;
+        by default the path's own ending, else ``.wav``.
+    reads : str
+        Why a protected file is refused, for messages (``"the scan reads this file"``).
     """
     path = Path(path)
     where = str(path)
     if str(path) in ("", ".") or path.name in ("", ".", ".."):
-        raise OutputError(f"is not a file name for the {what}", where, "give a file name, e.g. show.wav")
+        raise OutputError(f"is not a file name for the {what}", where,
+                          f"give a file name, e.g. show{ending or '.wav'}")
     try:
         st = os.stat(path)
     except FileNotFoundError:
@@ -126,14 +142,15 @@ def check_target(path, protect=(), what: str = "file") -> Path:
                           "give a path in a folder you may write") from None
     if st is not None and stat.S_ISDIR(st.st_mode):
         raise OutputError(f"is a folder; the {what} needs a file name", where,
-                          f"give a file inside it, e.g. {path / ('out' + (path.suffix or '.wav'))}")
+                          f"give a file inside it, e.g. {path / ('out' + (ending or path.suffix or '.wav'))}")
     if st is not None and not stat.S_ISREG(st.st_mode):
         raise OutputError(f"is not a regular file; showkit will not replace it with the {what}", where,
                           "give the path of a new or ordinary file")
     for other, role in _protected(protect):
         if _same_file(path, other):
+            example = f", e.g. {path.with_suffix(ending)}" if ending and path.suffix.lower() != ending else ""
             raise OutputError(f"will not write the {what} over {role}", where,
-                              "give another file name: the show reads this file")
+                              f"give another file name{example}: {reads}")
     folder = path.parent if str(path.parent) else Path(".")
     if not folder.is_dir():
         raise OutputError(f"the folder {folder} does not exist", where,

@@ -278,6 +278,15 @@ def _scanned_fresh(env, out, err):
     assert track["error"] is None and track["cached"] is False and track["passages"]
 
 
+def _no_scan(monkeypatch):
+    """The scan fails the case if it starts: an output path is checked before the work."""
+    import showkit.analysis.scan as scan
+
+    def scan_paths(*args, **kwargs):
+        raise AssertionError("the scan ran before the output path was checked")
+    monkeypatch.setattr(scan, "scan_paths", scan_paths)
+
+
 def _victim_intact(env, out, err):
     assert env.p("victim.txt").read_text() == "precious\n"
     assert env.p("show.toml.bak").is_file() and not env.p("show.toml.bak").is_symlink()
@@ -434,6 +443,14 @@ CASES = [
     Case("scan-csv-over-track", lambda e: ["scan", e.p("track.wav"), "--jobs", "1", "--csv", e.p("track.wav")],
          "file being scanned", unchanged=("track.wav",)),
     Case("scan-csv-folder", lambda e: ["scan", e.p("track.wav"), "--jobs", "1", "--csv", e.dir], "folder"),
+    # a track found in a folder given was refused only after the whole scan, saying "the show reads this file"
+    Case("scan-csv-over-track-in-folder", lambda e: ["scan", e.dir, "--jobs", "1", "--csv", e.p("track.wav")],
+         "over a file being scanned -- give another file name, e.g. ", unchanged=("track.wav",), patch=_no_scan,
+         check=lambda e, out, err: ("track.csv: the scan reads this file" in err) or pytest.fail(err)),
+    Case("scan-map-over-track-in-folder", lambda e: ["scan", e.dir, "--jobs", "1", "--map", e.p("track.wav")],
+         "file being scanned", unchanged=("track.wav",), patch=_no_scan),
+    Case("scan-csv-folder-names-csv", lambda e: ["scan", e.p("track.wav"), "--jobs", "1", "--csv", e.dir], "out.csv",
+         patch=_no_scan),
     Case("lock-backup-symlink", lambda e: (e.write("victim.txt", "precious\n"),
                                            os.symlink(e.p("victim.txt"), e.p("show.toml.bak")),
                                            ["lock", e.p("show.toml")])[-1], None, 0, check=_victim_intact),

@@ -193,11 +193,15 @@ def run(args) -> int:
                          f"the range the scan searches (got {args.transpose:g})",
                          "--transpose", "give a shift such as --transpose -2 or --transpose 0.5")
     rig = load_rig_from_args(args)
-    if args.csv:
-        # before the work: a CSV over a track, a folder or a pipe is refused at once
-        from showkit.safesave import check_target
+    # before the work: a CSV or map over a track (also one found in a folder given), a folder or a
+    # pipe is refused at once, not after the whole scan
+    scanned = [(p, "a file being scanned") for p in [*args.paths, *expand_paths(args.paths)]]
+    for option, what, ending in (("csv", "CSV file", ".csv"), ("map", "scan map", ".json")):
+        if getattr(args, option) is not None:
+            from showkit.safesave import check_target
 
-        check_target(Path(args.csv), [(p, "a file being scanned") for p in args.paths], "CSV file")
+            check_target(Path(getattr(args, option)), scanned, what, ending=ending,
+                         reads="the scan reads this file")
     bar = _Bar()
     try:
         tracks = scan_paths(rig, args.paths, jobs=args.jobs, use_cache=not args.no_cache, progress=bar)
