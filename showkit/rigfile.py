@@ -45,6 +45,23 @@ _FIELDS = {
 _REQUIRED = {"tube": ("length", "bore", "wall"), "gas": ("fuel",)}
 
 
+#: The tables only a rig file has: a TOML file holding one of them (and no cue) is a rig.
+RIG_TABLES = tuple(k for k, v in _FIELDS.items() if v is not None)
+
+
+def looks_like_rig(data: dict) -> bool:
+    """Whether parsed TOML ``data`` is a rig file: it holds a rig's own table (``[tube]``,
+    ``[holes]``, ``[gas]``, ``[drive]``, ``[safety]``) and no ``[[cue]]`` -- so a rig given where a
+    cue sheet is expected is named as such, not reported field by field.
+
+    Parameters
+    ----------
+    data : dict
+        The file's parsed TOML.
+    """
+    return "cue" not in data and any(isinstance(data.get(k), dict) for k in RIG_TABLES)
+
+
 def demo_rig_path() -> Path:
     """Path of the bundled demo rig."""
     return Path(str(resources.files("showkit") / "data" / "demo_rig.toml"))

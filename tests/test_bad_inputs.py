@@ -335,6 +335,13 @@ CASES = [
         "s.toml", '[[cue]]\nid = "p"\npause = { duration = 1 }\n', rig="r.fifo")])[1], "named pipe"),
     Case("sheet-rig-dev-zero", lambda e: ["check", e.sheet_with(
         "s.toml", '[[cue]]\nid = "p"\npause = { duration = 1 }\n', rig="/dev/zero")], "character device"),
+    # a rig given where a sheet goes said "unknown field 'name'": every command taking a sheet names it a rig
+    *[Case(f"rig-as-sheet-{argv[0]}", lambda e, argv=argv: [argv[0], e.p("rig.toml"), *[
+        e.p(a) if a.startswith("out.") else a for a in argv[1:]]],
+        "rig.toml: this is a rig file, not a cue sheet -- give the cue sheet (the rig goes in its `rig = ...`",
+        unchanged=("rig.toml",))
+      for argv in (["lock"], ["check"], ["render", "-o", "out.wav"], ["run", "--auto"], ["book", "-o", "out.pdf"],
+                   ["preview", "-o", "out.mp4"])],
     Case("tone-8h20", lambda e: ["lock", e.sheet_with(
         "s.toml", '[[cue]]\nid = "t"\ntone = { frequency = 100, duration = "8:20:00" }\n')],
         "longer than showkit makes", unchanged=("s.toml",)),

@@ -28,6 +28,7 @@ from showkit.demo_files import demo_audio_path
 from showkit.errors import InputError, OutputError, SheetError
 from showkit.limits import MAX_CUES, MAX_GENERATED_S
 from showkit.physics.ceiling import combine
+from showkit.rigfile import looks_like_rig
 from showkit.safesave import write_text
 from showkit.tomlfile import parse_toml, read_text
 
@@ -283,6 +284,10 @@ def _unknown(keys, allowed, where):
 
 
 def _sheet_from_data(data: dict, where: str) -> Sheet:
+    if looks_like_rig(data):
+        # `lock RIG.toml` said "unknown field 'name'": every command reading a sheet comes here
+        raise SheetError("this is a rig file, not a cue sheet", where,
+                         "give the cue sheet (the rig goes in its `rig = ...` or --rig)")
     _unknown(data, _TOP_KEYS, f"{where}: {{key}}")
     fmt = data.get("format", FORMAT_VERSION)
     if isinstance(fmt, bool) or not isinstance(fmt, int):
