@@ -413,6 +413,12 @@ CASES = [
         "path": "t", "duration_s": 1.0, "score": 9.0, "transpose_semitones": 0, "transpose_score": 9.0,
         "error": None, "passages": [{"start_s": "0", "modes": None}]}), None, 0, check=_scanned_fresh),
     # ---- options
+    # argparse printed the top-level usage ("showkit [-h] [--version] COMMAND ...") for a subcommand's typo
+    Case("unknown-option-scan", lambda e: ["scan", e.p("track.wav"), "--bogus"],
+         "scan: unrecognized option: --bogus -- see `showkit scan --help`"),
+    Case("unknown-option-measure-sweep", lambda e: ["measure", "sweep", "--out", e.p("s.wav"), "--frob", "3"],
+         "measure sweep: unrecognized arguments: --frob 3 -- see `showkit measure sweep --help`"),
+    Case("unknown-option-top", lambda e: ["--bogus"], "unrecognized option: --bogus -- see `showkit --help`"),
     Case("max-frequency-negative", lambda e: ["modes", "--max-frequency=-5"], "--max-frequency"),
     Case("max-frequency-nan", lambda e: ["modes", "--max-frequency", "nan"], "--max-frequency"),
     Case("max-frequency-inf", lambda e: ["modes", "--max-frequency", "inf"], "--max-frequency"),

@@ -15,7 +15,7 @@ import importlib.util
 import sys
 
 from showkit import __version__
-from showkit.errors import ShowkitError
+from showkit.errors import InputError, ShowkitError
 from showkit.safety import LEVEL_CAUTION
 
 #: name -> (module under showkit.cli, one-line help)
@@ -67,6 +67,15 @@ def build_parser() -> tuple[argparse.ArgumentParser, dict]:
     return parser, modules
 
 
+def _unrecognized(args, extras: list[str]) -> tuple[str, str | None, str]:
+    """``(what, where, fix)`` for arguments no parser took: named for the (sub)command given."""
+    words = [w for w in (getattr(args, "command", None), getattr(args, "measure_command", None)) if w]
+    command = " ".join(["showkit", *words])
+    kind = "option" if all(e.startswith("-") for e in extras) else "argument"
+    what = f"unrecognized {kind}{'s' if len(extras) > 1 else ''}: {' '.join(extras)}"
+    return what, " ".join(words) or None, f"see `{command} --help` for what it takes"
+
+
 def main(argv: list[str] | None = None) -> int:
     argv = sys.argv[1:] if argv is None else argv
     try:
@@ -74,7 +83,10 @@ def main(argv: list[str] | None = None) -> int:
             from showkit.cli import open_cmd
             return open_cmd.run(open_cmd.default_args())
         parser, modules = build_parser()
-        args = parser.parse_args(argv)
+        args, extras = parser.parse_known_args(argv)
+        if extras:
+            # argparse would print the top-level usage for an option a subcommand does not take
+            raise InputError(*_unrecognized(args, extras))
         if args.command is None:
             parser.print_help()
             return 0
