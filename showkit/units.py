@@ -71,6 +71,22 @@ def _unit_names(table: dict[str, float]) -> str:
     return ", ".join(sorted({k for k in table if k.isascii() and k not in ('"', "'")}))
 
 
+#: How a unit is written in a hint (the tables hold lower case: the parser ignores case).
+_UNIT_SPELLING = {"pa": "Pa", "hpa": "hPa", "kpa": "kPa", "inh2o": "inH2O", "inwc": "inWC", "mmh2o": "mmH2O",
+                  "mmwc": "mmWC", "hz": "Hz", "khz": "kHz", "pa s/m3": "Pa s/m3"}
+
+
+def _near_unit(unit: str, table: dict[str, float]) -> str:
+    """The fix for an unknown unit: the nearest known one (``"inH20"``, a zero for the O, ->
+    ``inH2O``) by difflib's ratio, as field typos get, then the list of units."""
+    import difflib
+
+    names = {_norm(k): k for k in table if k.isascii() and k not in ('"', "'")}
+    near = difflib.get_close_matches(_norm(unit), sorted(names), n=1)
+    hint = f"did you mean {_UNIT_SPELLING.get(names[near[0]], names[near[0]])!r}? " if near else ""
+    return f"{hint}use one of: {_unit_names(table)}"
+
+
 def _with_table(value, table: dict[str, float], kind: str, where: str | None,
                 allow_sum: bool = False) -> float:
     if isinstance(value, bool):
@@ -96,7 +112,7 @@ def _with_table(value, table: dict[str, float], kind: str, where: str | None,
                 factor = norm_table.get(_norm(unit))
                 if factor is None:
                     raise InputError(f"unknown {kind} unit {unit!r} in {value!r}", where,
-                                     f"use one of: {_unit_names(table)}")
+                                     _near_unit(unit, table))
             result += number * factor
     else:
         raise InputError(f"expected a {kind}, got {type(value).__name__} {value!r}", where,

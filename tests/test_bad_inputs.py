@@ -419,6 +419,11 @@ CASES = [
     Case("unknown-option-measure-sweep", lambda e: ["measure", "sweep", "--out", e.p("s.wav"), "--frob", "3"],
          "measure sweep: unrecognized arguments: --frob 3 -- see `showkit measure sweep --help`"),
     Case("unknown-option-top", lambda e: ["--bogus"], "unrecognized option: --bogus -- see `showkit --help`"),
+    # a zero for the O: the units were listed, with no near-name hint as field typos get (difflib)
+    Case("unit-typo-inH20", lambda e: ["check", e.p("show.toml"), "--static", "0.08 inH20"],
+         "unknown pressure unit 'inH20' in '0.08 inH20' -- did you mean 'inH2O'?"),
+    Case("unit-typo-in-rig", lambda e: ["modes", "--rig", e.write("t.toml", RIG.replace('"1.2 m"', '"4 fet"'))],
+         "unknown length unit 'fet' in '4 fet' -- did you mean 'feet'?"),
     Case("max-frequency-negative", lambda e: ["modes", "--max-frequency=-5"], "--max-frequency"),
     Case("max-frequency-nan", lambda e: ["modes", "--max-frequency", "nan"], "--max-frequency"),
     Case("max-frequency-inf", lambda e: ["modes", "--max-frequency", "inf"], "--max-frequency"),
