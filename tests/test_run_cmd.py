@@ -89,6 +89,9 @@ def test_auto_rehearsal_plays_every_playable_cue_in_order(sheet, tmp_path, patch
     assert patched_render[0][2] == pytest.approx(297.15)
     assert CAUTION_TITLE in out and "cannot be started today" in out and "old" in out
     assert "skipping cue 'old'" in out
+    # no keyboard under --auto: the go key's hint ("Enter or space passes over them") made no sense
+    from showkit.show.operator_keys import shown
+    assert f"{shown('go')} passes over them" not in out and "rehearsal passes over them" in out
     records = read_log(log_path)
     assert records[0]["event"] == "check" and "static 22.4" in records[0]["detail"]
     plays = [(r["event"], r["cue"]) for r in records if r["event"] in ("start", "stop")]

@@ -48,7 +48,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                              "<user data dir>/showkit/logs/show-<date>.jsonl)")
     parser.add_argument("--auto", action="store_true",
                         help="rehearsal: play every cue in order with no keyboard, then exit; names every "
-                             "cue it skipped and why, and exits 1 when any was")
+                             "cue it skipped and why, and exits 1 when any was or the device faulted during "
+                             "the show (2, as any setup error, when no device can be opened at the start)")
     parser.add_argument("--static", metavar="PRESSURE",
                         help='today\'s static overpressure from the manometer, e.g. "22 Pa", '
                              '"0.09 inH2O" (default: the rig file\'s)')
@@ -117,9 +118,12 @@ def pre_show(args, log, static_pa, temperature_k, out):
         print(f"\n{len(bad)} cue(s) cannot be started today:", file=out)
         for c in bad:
             print(f"  {printable(c.refusal())}", file=out)
-        from showkit.show.operator_keys import shown
+        if args.auto:  # no keyboard: the rehearsal skips them itself and names them at the end
+            print("The rehearsal passes over them and names them again at the end.", file=out)
+        else:
+            from showkit.show.operator_keys import shown
 
-        print(f"{shown('go')} passes over them to the next cue that may be played.", file=out)
+            print(f"{shown('go')} passes over them to the next cue that may be played.", file=out)
     if not any(c.playable for c in cues):
         raise SheetError("no cue in the sheet can be played today", args.sheet,
                          "lock it with `showkit lock SHEET` and check it with `showkit check SHEET`")
