@@ -287,6 +287,33 @@ def _no_scan(monkeypatch):
     monkeypatch.setattr(scan, "scan_paths", scan_paths)
 
 
+def _locked_at_ceiling(e):
+    """A tone cue whose gain lock clamps to its ceiling, checked at 0.08 inH2O (19.93 Pa, the rig's 20 Pa)."""
+    from showkit.cli.main import main
+
+    path = e.sheet_with("hair.toml", '[[cue]]\nid = "t"\ntone = { frequency = "120 Hz", duration = 1.0 }\ngain = 0\n')
+    assert main(["lock", str(path)]) == 0
+    return ["check", path, "--static", "0.08 inH2O", "--json"]
+
+
+def _over_by_a_hair(env, out, err):
+    """The refusal stands and says by how much, visibly.  Reference (closed form, DEVELOPERS.md Methods §7, §10):
+    a pressure-limited ceiling moves by 20 log10(p_today / p_lock) = 20 log10(0.08 x 249.08891 / 20)
+    = -0.0317 dB; the lock floors the gain to the 0.01-dB step, so it is over by 0.0217 to 0.0317 dB."""
+    import json
+    import math
+    import re
+
+    cue = json.loads(out)["cues"][0]
+    assert cue["status"] == "over"
+    moved_db = -20 * math.log10(0.08 * 249.08891 / 20.0)
+    assert moved_db - 0.01 - 1e-6 <= -cue["headroom_db"] <= moved_db + 1e-6
+    shown = float(re.match(r"gain is ([0-9.]+) dB above today's ceiling", cue["message"]).group(1))
+    assert shown == round(-cue["headroom_db"], 2) > 0
+    assert "today's static pressure, 19.93 Pa, is lower than at the lock, 20.00 Pa" in cue["message"]
+    assert "re-lock" in cue["message"]
+
+
 def _victim_intact(env, out, err):
     assert env.p("victim.txt").read_text() == "precious\n"
     assert env.p("show.toml.bak").is_file() and not env.p("show.toml.bak").is_symlink()
@@ -363,6 +390,8 @@ CASES = [
     Case("audio-start-minus-m-ss", lambda e: ["lock", e.sheet_with(
         "s.toml", '[[cue]]\nid = "a"\naudio = "track.wav"\nstart = "-0:01"\n')], "cue a: start: '-0:01' has a sign",
         unchanged=("s.toml",)),
+    # a gain locked at its ceiling is over by 0.03 dB at 19.93 Pa: the table read -32.4 / -32.4 and said not why
+    Case("over-by-a-rounding-hair", _locked_at_ceiling, None, 2, check=_over_by_a_hair),
     Case("cues-2001", lambda e: ["check", e.sheet_with(
         "s.toml", "".join(f'[[cue]]\nid = "p{k}"\npause = {{ duration = 1 }}\n' for k in range(2001)))],
         "more than showkit runs"),

@@ -89,6 +89,8 @@ def test_auto_rehearsal_plays_every_playable_cue_in_order(sheet, tmp_path, patch
     assert patched_render[0][2] == pytest.approx(297.15)
     assert CAUTION_TITLE in out and "cannot be started today" in out and "old" in out
     assert "skipping cue 'old'" in out
+    # gain and ceiling to 0.01 dB, as `check` shows them: a gain a hair over its ceiling is visible
+    assert any(line.split()[1:2] == ["intro"] and "-20.00" in line and "-14.00" in line for line in out.splitlines())
     # no keyboard under --auto: the go key's hint ("Enter or space passes over them") made no sense
     from showkit.show.operator_keys import shown
     assert f"{shown('go')} passes over them" not in out and "rehearsal passes over them" in out

@@ -109,7 +109,7 @@ def pre_show(args, log, static_pa, temperature_k, out):
         if not line.startswith("cue "):
             print(printable(line), file=out)
     rows = [[str(k + 1), c.id, c.label[:32], format_time(c.duration_s) if c.playable else "-",
-             f"{c.gain_db:+.1f}", ceiling_text(c.ceiling_db, c.silent, 1),
+             f"{c.gain_db:+.2f}", ceiling_text(c.ceiling_db, c.silent, 2),  # a gain a hair over shows
              c.then, c.status] for k, c in enumerate(cues)]
     print(table(rows, ["#", "cue", "label", "length", "gain dB", "ceiling dB", "then", "status"],
                 "><<>>><<"), file=out)

@@ -243,6 +243,52 @@ def today_ceiling(lock: Lock, static_pa: float, reserve: float) -> rule.Ceiling:
     return rule.rescale(locked, lock.static_pa, static_pa, lock.reserve, reserve)
 
 
+def over_amount_text(over_db: float) -> str:
+    """How far a gain is over its ceiling, dB, with the decimals that show it: a gain locked at
+    the ceiling and a static pressure a hair lower today read ``0.03``, and one still smaller
+    is never shown as ``0.00`` (two significant digits below 0.01 dB).
+
+    Parameters
+    ----------
+    over_db : float
+        Gain minus ceiling, dB (above zero).
+    """
+    return f"{over_db:.2f}" if round(over_db, 2) >= 0.01 else f"{over_db:.2g}"
+
+
+def over_message(over_db: float, ceiling_db: float, lock: Lock, static_pa: float, reserve: float) -> str:
+    """Why a cue is over today's ceiling, by how much, and what to do (DEVELOPERS.md Methods §7: the
+    pressure limit moves with (1 - reserve) x static pressure).
+
+    The refusal stands (safety fails closed); the message names how much over it is and, when
+    today's conditions are what moved the ceiling below a gain locked at it (a static pressure
+    lower than at the lock, or a larger reserve), says so, so that re-locking is the fix.
+
+    Parameters
+    ----------
+    over_db : float
+        Gain minus today's ceiling, dB (above zero).
+    ceiling_db : float
+        Today's ceiling, dB.
+    lock : Lock
+        The cue's lock (its static pressure, Pa, and reserve, fraction).
+    static_pa : float
+        Today's static pressure, Pa.
+    reserve : float
+        Today's reserve, fraction of the static pressure.
+    """
+    causes = []
+    if static_pa < lock.static_pa:
+        causes.append(f"today's static pressure, {static_pa:.2f} Pa, is lower than at the lock, "
+                      f"{lock.static_pa:.2f} Pa")
+    if reserve > lock.reserve:
+        causes.append(f"today's reserve, {reserve:g}, is larger than at the lock, {lock.reserve:g}")
+    fix = f"bring it down to {safe_gain(ceiling_db):+.2f} dB"
+    if causes:
+        fix = f"set the rig to today's reading and re-lock (`showkit lock SHEET`), or {fix}"
+    return "; ".join([f"gain is {over_amount_text(over_db)} dB above today's ceiling", *causes, fix])
+
+
 def check_cue(sheet: Sheet, rig: Rig, cue: Cue, static_pa: float | None = None,
               reserve: float | None = None, signal: CueSignal | None = None,
               signals: SignalMemo | None = None) -> CueCheck:
@@ -281,8 +327,8 @@ def check_cue(sheet: Sheet, rig: Rig, cue: Cue, static_pa: float | None = None,
         return CueCheck(cue.id, cue.gain_db, None, None, CueStatus.STALE, "the lock gives no finite ceiling")
     if headroom < -1e-9:
         return CueCheck(cue.id, cue.gain_db, c.ceiling_db, headroom, CueStatus.OVER,
-                        f"gain is {-headroom:.2f} dB above today's ceiling: bring it down to "
-                        f"{safe_gain(c.ceiling_db):+.2f} dB", c.limited_by, signal.silent)
+                        over_message(-headroom, c.ceiling_db, cue.lock, static, res),
+                        c.limited_by, signal.silent)
     if signal.silent:  # the same rule as any cue above; only what it says differs
         return CueCheck(cue.id, cue.gain_db, c.ceiling_db, headroom, CueStatus.OK, SILENT_MESSAGE,
                         c.limited_by, plays_nothing=True)
