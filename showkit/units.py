@@ -269,6 +269,19 @@ def format_time(seconds: float, round_down: bool = False) -> str:
     return f"{sign}{minutes}:{rest // 10:02d}.{rest % 10}"
 
 
+def format_count(count: int, noun: str) -> str:
+    """``(1, "cue")`` -> ``"1 cue"``, ``(3, "cue")`` -> ``"3 cues"``: a count with its noun, singular for one.
+
+    Parameters
+    ----------
+    count : int
+        How many.
+    noun : str
+        The noun in the singular (its plural adds an ``s``).
+    """
+    return f"{count} {noun}{'' if count == 1 else 's'}"
+
+
 def format_semitones(semitones: float) -> str:
     """``1.58`` -> ``"+1.58 st"``: a transposition, signed, in semitones to the cent.
 

@@ -657,3 +657,19 @@ def test_bad_input_in_a_subprocess_neither_hangs_nor_exhausts_memory(name, env):
         assert_printable(out)
     else:
         assert len(error_lines(err)) == 1 and printable(error_lines(err)[0]) == error_lines(err)[0]
+
+
+# ---------------------------------------------------------------- cosmetics a new user met
+def test_one_cue_is_singular_and_a_reading_has_two_decimals(env, capsys):
+    """"(1 cues: 1 ok)" read wrong and the pre-show line said "static 19.9271 Pa": one cue is "1 cue",
+    a pressure reading is shown to 0.01 Pa.  Reference: 0.08 inH2O = 0.08 x 249.08891 Pa = 19.927 Pa
+    (DEVELOPERS.md Methods §10)."""
+    from showkit.show import render
+
+    path = env.sheet_with("one.toml", '[[cue]]\nid = "p"\npause = { duration = 1 }\n')
+    assert run_cli(["lock", path], capsys)[0] == 0
+    status, out, err = run_cli(["check", path, "--static", "0.08 inH2O"], capsys)
+    assert status == 0, err
+    assert out.splitlines()[0] == "x: 1 cue on Bench tube, static 19.93 Pa, reserve 0.25"
+    _, problems = render.render_for_playback(path, static_pa=0.08 * 249.08891)
+    assert problems[0].startswith("pre-show check: static 19.93 Pa, ")

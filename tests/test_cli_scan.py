@@ -193,6 +193,24 @@ def test_transpose_column_is_one_format(capsys):
     assert not any(" c " in r or r.rstrip().endswith(" c") for r in rows.values())
 
 
+def test_an_error_row_keeps_the_table_narrow(capsys):
+    """A track's error went into the transpose column and stretched every row to ~200 characters;
+    the column says "error" and the message is on its own line under the table, whole."""
+    from showkit.cli.scan_cmd import _print_table
+
+    message = "the file is cut short: its header says 96000 frames, 47989 are there " * 3
+    _print_table([{"path": "good.wav", "duration_s": 10.0, "score": 40.0, "transpose_semitones": 0.0,
+                   "transpose_score": 40.0, "error": None, "passages": []},
+                  {"path": "cut.wav", "duration_s": None, "score": None, "transpose_semitones": None,
+                   "transpose_score": None, "error": message, "passages": []}])
+    lines = capsys.readouterr().out.splitlines()
+    rows = {line.split()[1]: line for line in lines if len(line.split()) > 1 and line.split()[1].endswith(".wav")}
+    assert rows["cut.wav"].split()[-1] == "error"
+    assert max(len(line) for line in lines[:4]) < 60  # header, rule and the two rows
+    assert lines[-1] == f"#2 cut.wav: ERROR: {message}"
+    assert sum("ERROR:" in line for line in lines) == 1
+
+
 def test_one_unreadable_file_is_one_line(tmp_path, capsys):
     """A scan of one file that cannot be read says so in one line on stderr, exit 2, no table (the
     same form as any command); a folder still lists its unreadable files among the rest."""

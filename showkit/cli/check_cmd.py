@@ -13,6 +13,7 @@ import argparse
 
 from showkit.cli.common import add_conditions_options, add_json_option
 from showkit.printable import printable
+from showkit.units import format_count
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -48,7 +49,7 @@ def run(args) -> int:
         rows = [[c.id, f"{c.gain_db:+.2f}", ceiling_text(c.ceiling_db, c.silent),
                  headroom_text(c.headroom_db, c.silent), "" if c.silent else headroom_bar(c.headroom_db),
                  c.status, c.message] for c in checks]
-        print(f"{printable(sheet.title)}: {len(checks)} cues on {printable(today.name)}, static {today.static_pa:.2f} Pa, "
+        print(f"{printable(sheet.title)}: {format_count(len(checks), 'cue')} on {printable(today.name)}, static {today.static_pa:.2f} Pa, "
               f"reserve {today.reserve:g}")
         print(f"ceilings rest on: {today.drive.describe()}")
         print(f"ceilings hold for: {today.loss_family.describe()}")

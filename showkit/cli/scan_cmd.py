@@ -100,14 +100,19 @@ def _modes_text(p: dict) -> str:
 def _print_table(tracks: list[dict]) -> None:
     rows = []
     for rank, t in enumerate(tracks, 1):
-        if t["error"]:
-            rows.append([str(rank), t["path"], "-", "-", "ERROR: " + t["error"]])
+        if t["error"]:  # the message goes under the table: in the column it stretched the table (~200 wide)
+            rows.append([str(rank), t["path"], "-", "-", "error"])
             continue
         shift = _shift_text(t["transpose_semitones"])
         if t["transpose_semitones"]:
             shift += f" -> {t['transpose_score']:.0f}"
         rows.append([str(rank), t["path"], f"{t['score']:.0f}", _fmt(t["duration_s"]), shift])
     print(table(rows, ["#", "track", "score", "length", "transpose"], "><>><"))
+    errors = [(rank, t) for rank, t in enumerate(tracks, 1) if t["error"]]
+    if errors:
+        print()
+    for rank, t in errors:
+        print(f"#{rank} {printable(t['path'])}: ERROR: {printable(t['error'])}")
     for t in tracks:
         if t["error"] or not t["passages"]:
             continue

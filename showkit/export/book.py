@@ -31,7 +31,7 @@ from showkit.safesave import replacing
 from showkit.safety import CAUTION_TITLE, CAUTIONS
 from showkit.show.sheet import AudioSource, describe_source
 from showkit.show.status import CueStatus, ceiling_text, headroom_text
-from showkit.units import format_time
+from showkit.units import format_count, format_time
 
 #: What the ceiling guarantees and what it assumes (the README's *Ceilings and flames*).
 GUARANTEE = (
@@ -180,7 +180,7 @@ def cover_page(plt, data: BookData, size):
                size=8)
     counts = {s: sum(1 for e in data.entries if e.check.status == s) for s in CueStatus}
     bad = [e for e in data.entries if e.check.status != CueStatus.OK]
-    summary = f"{len(data.entries)} cues: " + ", ".join(f"{v} {k}" for k, v in counts.items() if v)
+    summary = f"{format_count(len(data.entries), 'cue')}: " + ", ".join(f"{v} {k}" for k, v in counts.items() if v)
     y = _lines(fig, 0.08, y - 0.01, [summary], size=10)
     if bad:
         text = (f"ATTENTION: {len(bad)} cue(s) cannot be played as the sheet stands: "

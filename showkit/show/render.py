@@ -281,7 +281,7 @@ def render_for_playback(sheet_path, static_pa: float | None = None,
     sheet = load_sheet(sheet_path)
     rig = sheet_rig(sheet)
     today = rig.with_conditions(static_pa=static_pa, temperature_k=temperature_k)
-    problems = [f"pre-show check: static {today.static_pa:g} Pa, gas {today.temperature_k - 273.15:.1f} C, "
+    problems = [f"pre-show check: static {today.static_pa:.2f} Pa, gas {today.temperature_k - 273.15:.1f} C, "
                 f"reserve {today.reserve:g}"]
     out = []
     held = 0  # samples held for the live run, all cues together

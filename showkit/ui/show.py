@@ -107,7 +107,7 @@ class ShowView(SessionView):
         checks = list(s.checks.values())
         counts = {k: sum(1 for c in checks if c.status == k) for k in CueStatus}
         state = "  ".join(f"{v} {k}" for k, v in counts.items() if v) or "checking…"
-        return (f"[b]{escape(printable(s.sheet.title))}[/b]  ({len(s.sheet.cues)} cues: {state})  "
+        return (f"[b]{escape(printable(s.sheet.title))}[/b]  ({units.format_count(len(s.sheet.cues), 'cue')}: {state})  "
                 f"{escape(printable(s.sheet.path.name))}")
 
     def refresh_detail(self) -> None:
