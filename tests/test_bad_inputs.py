@@ -673,3 +673,18 @@ def test_one_cue_is_singular_and_a_reading_has_two_decimals(env, capsys):
     assert out.splitlines()[0] == "x: 1 cue on Bench tube, static 19.93 Pa, reserve 0.25"
     _, problems = render.render_for_playback(path, static_pa=0.08 * 249.08891)
     assert problems[0].startswith("pre-show check: static 19.93 Pa, ")
+
+
+def test_a_calibration_refusal_names_the_mode_as_modes_lists_it(env, capsys):
+    """A reference on a resonance was refused "near mode 3 (171.9 Hz)" (the still-gas member's mode)
+    while `showkit modes` listed mode 3 at 156.3 Hz.  Reference: `showkit modes --json` on the same
+    tube (the best estimate's modes, the ones every other screen lists)."""
+    import json
+
+    status, out, _ = run_cli(["modes", "--rig", env.p("rig.toml"), "--json"], capsys)
+    assert status == 0
+    mode = next(m for m in json.loads(out)["modes"] if m["n"] == 3)
+    on_mode = env.write("on.toml", RIG.replace('"883.1 Hz"', f'"{mode["frequency_hz"]:.1f} Hz"'))
+    status, _, err = run_cli(["modes", "--rig", on_mode], capsys)
+    assert status == 2
+    assert f"lies near mode 3 ({mode['frequency_hz']:.1f} Hz)" in err, err

@@ -222,7 +222,7 @@ class ReferenceCheck:
     ok : bool
         ``spread_db <= REFERENCE_LIMIT_DB``.
     mode_n : int or None
-        The nearest mode of the least damped member (the sharpest), and
+        The nearest mode of the best estimate (the modes ``showkit modes`` lists), and
     mode_hz : float or None
         its frequency, Hz (only when refused).
     suggestion_hz : float or None
@@ -281,8 +281,10 @@ def check_reference(family: LossFamily, reference_hz: float) -> ReferenceCheck:
         return ReferenceCheck(float(reference_hz), spread, True)
     from showkit.physics.modes import find_modes
 
-    sharp = family.model(LossPoint(0.0, 0.0))
-    modes = find_modes(sharp, min(sharp.plane_wave_limit_hz, 2.0 * reference_hz + 50.0))
+    # the best estimate's modes, as listed everywhere else: the still-gas member's (the sharpest) are
+    # numbered and placed otherwise (its mode 3 at 171.9 Hz where the listed mode 3 is at 156.3 Hz)
+    best = family.best_model
+    modes = find_modes(best, min(best.plane_wave_limit_hz, 2.0 * reference_hz + 50.0))
     mode_n = mode_hz = None
     if modes:
         m = min(modes, key=lambda m: abs(np.log(m.frequency_hz / reference_hz)))
