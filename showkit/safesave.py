@@ -337,23 +337,25 @@ def write_text(path, text: str, backups: int = 1, _before_rename=None, protect=(
 
 
 def write_audio(path, samples, rate_hz: int, subtype: str = "FLOAT", protect=(),
-                what: str = "audio file", file_format: str = "WAV") -> Path:
-    """Write samples (frames, or frames x channels) as WAV/FLAC safely; returns the path."""
+                what: str = "audio file", file_format: str = "WAV", backups: int = 0) -> Path:
+    """Write samples (frames, or frames x channels) as WAV/FLAC safely, keeping ``backups``
+    previous versions (``NAME.bak``); returns the path."""
     import soundfile as sf
 
     suffix = ".flac" if file_format == "FLAC" else ".wav"
-    with replacing(path, 0, suffix=suffix, protect=protect, what=what) as tmp:
+    with replacing(path, backups, suffix=suffix, protect=protect, what=what) as tmp:
         sf.write(str(tmp), samples, int(rate_hz), subtype=subtype, format=file_format)
     return Path(path)
 
 
 @contextlib.contextmanager
 def audio_writer(path, rate_hz: int, channels: int = 1, subtype: str = "FLOAT", protect=(),
-                 what: str = "audio file"):
-    """A ``soundfile.SoundFile`` open for writing block by block, replacing ``path`` when done."""
+                 what: str = "audio file", backups: int = 0):
+    """A ``soundfile.SoundFile`` open for writing block by block, replacing ``path`` when done
+    (keeping ``backups`` previous versions, ``NAME.bak``)."""
     import soundfile as sf
 
-    with replacing(path, 0, suffix=".wav", protect=protect, what=what) as tmp:
+    with replacing(path, backups, suffix=".wav", protect=protect, what=what) as tmp:
         with sf.SoundFile(str(tmp), "w", samplerate=int(rate_hz), channels=channels, subtype=subtype,
                           format="WAV") as f:
             yield f

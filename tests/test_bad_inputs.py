@@ -314,6 +314,16 @@ def _over_by_a_hair(env, out, err):
     assert "re-lock" in cue["message"]
 
 
+def _old_render_kept(*names):
+    def check(env, out, err):
+        import soundfile as sf
+
+        for name in names:
+            assert env.p(name + ".bak").read_bytes() == b"old render", name  # the file replaced, whole
+            assert sf.info(str(env.p(name))).frames > 0  # the new render in its place
+    return check
+
+
 def _victim_intact(env, out, err):
     assert env.p("victim.txt").read_text() == "precious\n"
     assert env.p("show.toml.bak").is_file() and not env.p("show.toml.bak").is_symlink()
@@ -498,6 +508,13 @@ CASES = [
          "file being scanned", unchanged=("track.wav",), patch=_no_scan),
     Case("scan-csv-folder-names-csv", lambda e: ["scan", e.p("track.wav"), "--jobs", "1", "--csv", e.dir], "out.csv",
          patch=_no_scan),
+    # the project's save rule (temp file, fsync, atomic rename, a backup): a render kept no backup
+    Case("render-o-keeps-a-backup", lambda e: (e.write("out.wav", b"old render"),
+                                              ["render", e.p("show.toml"), "-o", e.p("out.wav")])[-1],
+         None, 0, check=_old_render_kept("out.wav")),
+    Case("render-per-cue-keeps-backups", lambda e: (e.write("d/01-song.wav", b"old render"),
+                                                   ["render", e.p("show.toml"), "--per-cue", e.p("d")])[-1],
+         None, 0, check=_old_render_kept("d/01-song.wav")),
     Case("lock-backup-symlink", lambda e: (e.write("victim.txt", "precious\n"),
                                            os.symlink(e.p("victim.txt"), e.p("show.toml.bak")),
                                            ["lock", e.p("show.toml")])[-1], None, 0, check=_victim_intact),

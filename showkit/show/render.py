@@ -184,13 +184,15 @@ def write_show(rig: Rig, cues, path: Path, subtype: str = "FLOAT", gap_s: float 
     them one at a time, so that only one cue is in memory).  Cues at another
     rate are resampled (and clipped to full scale), and the resampled samples
     are verified against the pressure model again.  The file appears only when
-    every cue is written (the safe writer); a refusal leaves no file.
+    every cue is written (the safe writer); a refusal leaves no file.  A file it replaces
+    is kept as ``NAME.bak``.
     """
     from showkit.safesave import audio_writer
 
     gap = np.zeros(int(round(gap_s * SHOW_RATE_HZ)), dtype=np.float32)
     done = []
-    with audio_writer(path, SHOW_RATE_HZ, 1, subtype, protect=protect, what="rendered show") as f:
+    # a render the user names keeps the file it replaces as NAME.bak (the project's save rule)
+    with audio_writer(path, SHOW_RATE_HZ, 1, subtype, protect=protect, what="rendered show", backups=1) as f:
         for cue in cues:
             part = _resampled(cue, SHOW_RATE_HZ)
             if cue.rate_hz != SHOW_RATE_HZ:
@@ -214,7 +216,7 @@ def write_per_cue(cues, folder: Path, subtype: str = "FLOAT", protect=()) -> tup
 
     ``folder`` must be a folder (made if missing, its parent must exist).  Every
     file is written to a temporary file first; they are all renamed into place
-    only once every cue has been rendered and verified.
+    only once every cue has been rendered and verified; a file replaced is kept as ``NAME.bak``.
     """
     from showkit.safesave import audio_writer
 
@@ -239,7 +241,7 @@ def write_per_cue(cues, folder: Path, subtype: str = "FLOAT", protect=()) -> tup
             p = folder / _cue_file_name(k, cue.id)
             check_samples(cue.samples, f"cue {cue.id}")
             f = stack.enter_context(audio_writer(p, cue.rate_hz, 1, subtype, protect=protect,
-                                                 what="rendered cue"))
+                                                 what="rendered cue", backups=1))
             f.write(cue.samples)
             f.close()
             paths.append(p)
