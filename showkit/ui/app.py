@@ -269,7 +269,7 @@ class ShowkitApp(JobRunner, App):
                 tube.show_rig()
             self.say(f"{len(modes)} modes below the plane-wave limit")
 
-        self.run_job("modes", work, done, "finding the tube's modes")
+        self.run_job("modes", work, done, "finding the tube's modes", failed=lambda exc: self.update_topbar())
 
     def start_checks(self) -> None:
         s = self.session
@@ -370,7 +370,9 @@ class ShowkitApp(JobRunner, App):
         s = self.session
         bar = self.query_one("#topbar", Static)
         width = max(20, (bar.size.width or self.size.width) - 2)
-        if not s.rig_loaded:  # loading the rig imports the model: done in the background
+        if not s.rig_loaded and s.rig_error:  # the rig file could not be read: say so, never "loading"
+            variants = [[f"rig problem: {s.rig_error.what}"], ["rig problem (status line)"]]
+        elif not s.rig_loaded:  # loading the rig imports the model: done in the background
             variants = [["loading the rig…"]]
         else:
             try:

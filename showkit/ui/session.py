@@ -43,6 +43,7 @@ class Session(SheetEditor):
     def __init__(self, sheet: Sheet, rig=None, log_path: Path | None = None):
         super().__init__(sheet)
         self._base_rig = rig
+        self.rig_error: ShowkitError | None = None  # why the last rig read failed (None: it did not)
         self.static_pa: float | None = None      # today's manometer reading (None: the rig file's)
         self.temperature_k: float | None = None  # today's gas temperature (None: the rig file's)
         self.device = None                       # audio output: None (system default), index or name
@@ -72,10 +73,17 @@ class Session(SheetEditor):
 
     # ------------------------------------------------------------ the rig and today's conditions
     def base_rig(self):
+        """The sheet's rig as its file says; a rig that cannot be read raises, and the error is kept
+        in :attr:`rig_error` for the screens that wait for it."""
         if self._base_rig is None:
             from showkit.show.lock import sheet_rig
 
-            self._base_rig = sheet_rig(self.sheet)
+            try:
+                self._base_rig = sheet_rig(self.sheet)
+            except ShowkitError as exc:
+                self.rig_error = exc
+                raise
+            self.rig_error = None
         return self._base_rig
 
     @property

@@ -237,8 +237,14 @@ class TrackView(SessionView):
 
         name = Path(wanted.removeprefix("demo:")).name
         self.query_one("#track-title", Static).update(Text(f"{printable(name)}  analysing…"))
+        def failed(exc):
+            if wanted == str(self.path or self.wanted):
+                self.query_one("#track-title", Static).update(
+                    Text(f"{printable(name)}  not analysed: {exc.what} (details in the status line)"))
+
         self.run_job("track", work, done,
-                     f"analysing {name}" + (f" transposed {format_semitones(shift)}" if shift else ""))
+                     f"analysing {name}" + (f" transposed {format_semitones(shift)}" if shift else ""),
+                     failed=failed)
 
     def conditions_changed(self) -> None:
         if self.path is not None:
