@@ -21,8 +21,8 @@ import json
 import sys
 from pathlib import Path
 
-from showkit.cli.common import (add_conditions_options, add_json_option, add_rig_option, level_caution,
-                                load_rig_from_args, print_json, table)
+from showkit.cli.common import (add_conditions_options, add_json_option, add_rig_option,
+                                add_temperature_option, level_caution, load_rig_from_args, print_json, table)
 from showkit.errors import InputError, ShowkitError
 from showkit.printable import printable
 from showkit.units import format_semitones, format_time
@@ -33,6 +33,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         help="audio files or folders (searched recursively)")
     add_rig_option(parser)
     add_conditions_options(parser)
+    add_temperature_option(parser)
     add_json_option(parser)
     parser.add_argument("--csv", metavar="FILE", help="also write one row per passage to a CSV file")
     parser.add_argument("--jobs", metavar="N", type=int,
@@ -204,10 +205,11 @@ def run(args) -> int:
     level_caution()
     if args.json:
         print_json({"rig": rig.name, "static_pressure_pa": rig.static_pa, "reserve": rig.reserve,
-                    "tracks": _for_output(tracks)})
+                    "temperature_k": rig.temperature_k, "tracks": _for_output(tracks)})
     else:
         _print_table(tracks)
-        print(f"\nOn {rig.name}, static {rig.static_pa:.2f} Pa, reserve {rig.reserve:g}; "
+        print(f"\nOn {rig.name}, static {rig.static_pa:.2f} Pa, reserve {rig.reserve:g}, gas "
+              f"{rig.temperature_k - 273.15:.1f} C (the modes and the map are for it); "
               "~ceiling: the best estimate's ceiling in dB applied to the file as recorded, to rank "
               "passages -- not a level to play: `showkit ceiling` and `lock` give the ceiling over "
               "the loss family, often lower; a score is the share of time a note "
