@@ -101,8 +101,8 @@ def test_a_knife_edge_shift_promises_what_a_real_shift_keeps():
     """Issue 12, a promise a presenter can use: notes 130 cents above mode a for 2 s, then notes above
     mode b by 130 c plus both modes' tolerances less 2 c.  Only a 3-cent sliver of shifts lays both on
     their modes (score 100 by the score's definition: the share of time held on a mode); 5 cents
-    either side one half of the track is lost (score 50).  The promise is the mean over the spread
-    (closed form (50 + 100 + 50) / 3), not the sliver's 100; on a wide plateau (one group, its
+    either side one half of the track is lost (score 50).  The promise is the least over the spread
+    (closed form min(50, 100, 50)), not the sliver's 100; on a wide plateau (one group, its
     window's middle) it is the score itself."""
     from showkit.analysis.features import TrackFeatures
     from showkit.analysis.scan import mode_table
@@ -120,7 +120,7 @@ def test_a_knife_edge_shift_promises_what_a_real_shift_keeps():
     work = _work_of(feats, table, 4.0)
     edge = -130.0 - tol[0] + 1.0   # group a at its window's lower edge + 1 c, group b 1 c inside its upper
     assert work.score_at(edge)[0] == pytest.approx(100.0, abs=1.0)
-    assert work.promised_at(edge)[0] == pytest.approx((50.0 + 100.0 + 50.0) / 3.0, abs=2.0)
+    assert work.promised_at(edge)[0] == pytest.approx(50.0, abs=2.0)
     one = _work_of(TrackFeatures(30.0, np.ones(60), np.ones(60), f[:60], np.full((60, 1), 0.5),
                                  np.ones((60, 1)), np.zeros((60, 16)), np.zeros(60)), table, 2.0)
     assert one.promised_at(-130.0)[0] == pytest.approx(one.score_at(-130.0)[0]) == pytest.approx(100.0, abs=1.0)

@@ -120,17 +120,16 @@ class _Work:
     def promised_at(self, shift_cents: float = 0.0):
         """``(track score, passage scores, map)`` a real shift by ``shift_cents`` promises.
 
-        At 0 this is :meth:`score_at` (the track as it is).  Otherwise the scores are the
-        means of :meth:`score_at` over ``shift_cents`` plus :func:`transpose.promise_offsets`
-        (the notes found in shifted audio differ from the notes found moved by a few cents);
-        the map is the one at ``shift_cents`` itself.
+        At 0 this is :meth:`score_at` (the track as it is).  Otherwise it is the least
+        of :meth:`score_at` over ``shift_cents`` plus :func:`transpose.promise_offsets`
+        (the notes of really shifted audio land a few cents from the notes found moved),
+        with that run's passage scores; the map is the one at ``shift_cents`` itself.
         """
         if shift_cents == 0:
             return self.score_at(0.0)
         runs = [self.score_at(shift_cents + d) for d in transpose.promise_offsets()]
-        mf = runs[len(runs) // 2][2]
-        scores = [float(np.mean(col)) for col in zip(*(r[1] for r in runs))]
-        return float(np.mean([r[0] for r in runs])), scores, mf
+        least = min(runs, key=lambda r: r[0])
+        return float(least[0]), list(least[1]), runs[len(runs) // 2][2]
 
 
 def _analyse(rig: Rig, path: str | Path, threads: int | None = None) -> _Work:
