@@ -137,6 +137,11 @@ async def test_track_view_cursor_passage_cue_transpose(ui_short_show):
         await settle(pilot)
         assert view.analysis.transpose == pytest.approx(scan["transpose_semitones"])
         assert view.analysis.score == pytest.approx(scan["transpose_score"], abs=0.05)
+        # the map PNG draws the recording: while a shift is shown it is not written with shifted scores
+        await pilot.press("P")
+        await settle(pilot)
+        assert "as recorded" in app._status_text
+        assert not list(app.session.sheet.folder.glob("*-map.png"))
         # > and <: 25-cent steps from there
         await pilot.press("greater_than_sign")
         await settle(pilot)

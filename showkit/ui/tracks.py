@@ -188,14 +188,15 @@ class TrackWork:
 
 
 def shifted_passages(recorded: list[dict], shifted: list[dict]) -> list[dict]:
-    """The scan's passages (``recorded``) with the score and modes of ``shifted`` (the same spans
-    re-scored at a transposition, :func:`track_frames`); ceiling and contrast stay the recording's."""
-    by_span = {(p["start_s"], p["end_s"]): p for p in shifted}
+    """The passages re-scored at a transposition (``shifted``, :func:`track_frames`: score, modes)
+    with the recording's ``~ceiling`` and contrast from the scan's (``recorded``) for the same span
+    (none where no span matches: the table then leaves them blank rather than mix two analyses)."""
+    by_span = {(p["start_s"], p["end_s"]): p for p in recorded}
     out = []
-    for p in recorded:
-        q = by_span.get((p["start_s"], p["end_s"]))
-        out.append(p if q is None else {**p, "score": q["score"], "modes": q["modes"],
-                                        "mode_shares": q["mode_shares"]})
+    for q in shifted:
+        p = by_span.get((q["start_s"], q["end_s"]), {})
+        out.append({**q, "ceiling_db": p.get("ceiling_db"), "limited_by": p.get("limited_by"),
+                    "contrast": p.get("contrast")})
     return out
 
 
