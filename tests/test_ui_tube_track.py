@@ -97,6 +97,11 @@ async def test_track_view_cursor_passage_cue_transpose(ui_short_show):
         assert (cue.source.start_s, cue.source.end_s) == pytest.approx((chosen["start_s"], chosen["end_s"]), abs=0.01)
         check = app.session.checks[cue.id]
         assert check.status == "ok" and cue.gain_db <= check.ceiling_db
+        # the level just set comes with the level caution (the brief: cautions where levels are set)
+        from showkit.safety import LEVEL_CAUTION
+
+        said = [(n.title, n.message) for n in app._notifications]
+        assert any(cue.id in t and "CAUTION" in t and m == LEVEL_CAUTION for t, m in said), said
         # transposition: the demo track is written two semitones above the modes,
         # so -2 semitones scores better than as recorded (showkit/demo/synth.py)
         await pilot.press("minus", "minus")

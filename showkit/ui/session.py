@@ -64,7 +64,16 @@ class Session(SheetEditor):
         """A session with a new (or existing) sheet for one track, on a given rig."""
         sheet_path = Path(sheet_path)
         if sheet_path.exists():
-            return cls.open_sheet(sheet_path)
+            session = cls.open_sheet(sheet_path)
+            named = session.sheet.rig_path()
+            if rig_path is not None and (named is None or named.resolve() != Path(rig_path).expanduser().resolve()):
+                # never open the show on another rig than asked without saying so
+                from showkit.errors import InputError
+
+                raise InputError(f"this track's show already names another rig ({session.sheet.rig})",
+                                 str(sheet_path), "open it without --rig, or give --sheet NEW.toml for a show "
+                                 "on this rig")
+            return session
         rig = "demo" if rig_path is None else relative_to(Path(rig_path).expanduser(), sheet_path.parent)
         sheet = Sheet(title=f"Show with {Path(track).stem}", rig=rig, cues=[], path=sheet_path)
         sheet_path.parent.mkdir(parents=True, exist_ok=True)
