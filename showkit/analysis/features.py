@@ -174,6 +174,10 @@ def track_features(samples: np.ndarray, rate_hz: int, hop: int, band_hz: float) 
     band_hz : float
         Upper edge of the tube's band, Hz.
     """
+    # scipy's FFT: many short transforms at once about 3x faster than numpy's on one core (measured
+    # on the scan's frames, 2026-12-03); one worker, as the scan gives each file one core
+    import scipy.fft as sfft
+
     x = np.asarray(samples, dtype=np.float32)
     win = multipitch.window_samples(rate_hz)
     n_fft = win * multipitch.PAD
@@ -196,7 +200,7 @@ def track_features(samples: np.ndarray, rate_hz: int, hop: int, band_hz: float) 
     def chunk_power(first, last, every=1):
         seg = _padded_slice(x, win // 2, first * hop, (last - 1) * hop + win)
         fr = np.lib.stride_tricks.sliding_window_view(seg, win)[::hop][:last - first:every]
-        spec = np.fft.rfft(fr * window[None, :], n=n_fft, axis=1)[:, keep]
+        spec = sfft.rfft(fr * window[None, :], n=n_fft, axis=1, workers=1)[:, keep]
         return (spec.real ** 2 + spec.imag ** 2).T.astype(np.float32)   # (bins, frames)
 
     template = None
