@@ -210,3 +210,16 @@ def test_temperature_moves_the_modes_and_the_suggestion(tmp_path, capsys):
     assert main(["scan", str(path), "--temperature", "500 C"]) == 2
     err = capsys.readouterr().err
     assert "--temperature" in err and "Traceback" not in err
+
+
+def test_a_passage_held_on_modes_too_briefly_to_list_says_so():
+    """A passage can score above 0 while no mode holds the listing share (score.MIN_MODE_SHARE):
+    the modes column says so rather than "none" beside a non-zero score (a fresh user's report)."""
+    from showkit.analysis.score import MIN_MODE_SHARE
+    from showkit.cli.scan_cmd import _modes_text
+
+    assert MIN_MODE_SHARE == 0.05  # the UI's column says "each <5%"
+    assert _modes_text({"score": 2.7, "modes": [], "mode_shares": []}) == "each under 5%"
+    assert _modes_text({"score": 0.0, "modes": [], "mode_shares": []}) == "none"
+    assert _modes_text({"score": 40.0, "modes": [3], "mode_shares": [{"n": 3, "note": "C4", "share": 0.4}]}) \
+        == "n3 C4 40%"

@@ -92,7 +92,14 @@ def _fmt(x: float) -> str:
 
 def _modes_text(p: dict) -> str:
     shares = p.get("mode_shares") or [{"n": n, "note": "", "share": 0.0} for n in p["modes"]]
-    return ", ".join(f"n{s['n']} {s['note']} {100 * s['share']:.0f}%" for s in shares[:4]) or "none"
+    text = ", ".join(f"n{s['n']} {s['note']} {100 * s['share']:.0f}%" for s in shares[:4])
+    if text:
+        return text
+    if p.get("score", 0) > 0:  # held on modes, but none for long enough to be listed
+        from showkit.analysis.score import MIN_MODE_SHARE
+
+        return f"each under {100 * MIN_MODE_SHARE:.0f}%"
+    return "none"
 
 
 def _print_table(tracks: list[dict]) -> None:

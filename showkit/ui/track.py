@@ -282,7 +282,7 @@ class TrackView(SessionView):
         t.clear()
         for k, p in enumerate(a.passages, 1):
             t.add_row(str(k), _clock(p["start_s"]), _clock(p["end_s"]), f"{p['score']:.1f}",
-                      " ".join(str(n) for n in p.get("modes", [])[:4]),
+                      a.modes_cell(p),
                       f"{p['ceiling_db']:+.1f}" if p.get("ceiling_db") is not None else "",
                       f"{100 * p['contrast']:.1f}" if p.get("contrast") is not None else "", key=str(k))
         self.query_one("#track-title", Static).update(title_text(a, old))
@@ -310,10 +310,10 @@ class TrackView(SessionView):
             f"passage {m.selected + 1} (score {a.passages[m.selected]['score']:.1f}) ")
         sel_text = "" if sel is None else (
             f"   {chosen or 'selection '}{_clock(sel[0])}-{_clock(sel[1])}"
-            + (f" ceiling {sel[2]:+.1f} dB, contrast {100 * sel[3]:.1f} %" if sel[2] is not None else " (measuring…)"))
+            + (f" ceiling {sel[2]:+.1f} dB, contrast {100 * sel[3]:.1f}%" if sel[2] is not None else " (measuring…)"))
         air = int((a.air_in[k] > 0).sum())
         self.query_one("#cursor-facts", Static).update(
-            f"at {_clock(m.cursor_s)}  flame contrast {a.contrast_frame[k]:.2f}  "
+            f"at {_clock(m.cursor_s)}  flame contrast {100 * a.contrast_frame[k]:.1f}%  "
             f"(bars {a.height_lo:.2f}-{a.height_hi:.2f} of still height)"
             + (f"  air drawn in at {air} holes" if air else "")
             + f"   notes: {notes or '—'}{sel_text}")
@@ -397,7 +397,7 @@ class TrackView(SessionView):
                 self.selection = (start_s, end_s, report.ceiling_db, report.contrast)
                 self.update_cursor()
                 self.say(f"selection {_clock(start_s)}-{_clock(end_s)}: ceiling {report.ceiling_db:+.1f} dB, "
-                             f"contrast {100 * report.contrast:.1f} %; c adds it to the show")
+                             f"contrast {100 * report.contrast:.1f}%; c adds it to the show")
 
         self.run_job("passage", work, done, "measuring the selection's ceiling")
 

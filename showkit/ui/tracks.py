@@ -61,6 +61,17 @@ class TrackAnalysis:
         """The flame frame at ``t_s`` seconds."""
         return int(min(self.height.shape[0] - 1, max(0, round(t_s * self.frame_rate_hz))))
 
+    @staticmethod
+    def modes_cell(passage: dict) -> str:
+        """A passage's modes for the table (up to 4), or, when it scores but no mode holds the
+        listing share (:data:`showkit.analysis.score.MIN_MODE_SHARE`), that they each hold less."""
+        from showkit.analysis.score import MIN_MODE_SHARE
+
+        text = " ".join(str(n) for n in passage.get("modes", [])[:4])
+        if text or not passage.get("score", 0) > 0:
+            return text
+        return f"each <{100 * MIN_MODE_SHARE:.0f}%"
+
     def notes_at(self, t_s: float) -> str:
         """The notes heard at ``t_s`` seconds (the map's frame), or ''."""
         if not self.frame_notes:
