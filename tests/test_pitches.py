@@ -180,3 +180,62 @@ def test_dominant_line_holds_through_a_flickering_partial_and_a_gap():
     line = dominant_pitch(f, e)
     assert np.all(np.isnan(line[12:15]))
     assert np.all(line[np.r_[0:12, 15:30]] == 440.0)
+
+
+@pytest.mark.parametrize("gain", [1.0, 0.5])
+def test_own_timbre_finds_a_doubling_its_partial_hides(monkeypatch, gain):
+    # A tone with a weak 2nd and a strong 3rd partial (amplitudes 1, 0.2, 0.3, 0.1, 0.1) at 220 Hz for 6 s,
+    # doubled an octave above by the same timbre (at `gain`) for its last second.  Closed form of the
+    # cancellation (Klapuri 2006 with the track's own partial amplitudes, DEVELOPERS.md Methods §8b): the
+    # template learnt from the track's notes gives the 2nd partial about 0.2 of the fundamental, so once the
+    # 220 Hz note is found, the doubling's energy at 440 Hz (gain >= 0.5 of the fundamental, more than twice
+    # what the template explains) stays in the residual and is found; alone, the 2nd partial is explained.
+    # Without the template the whole 2nd partial is cancelled and the doubling is missed (today's behaviour).
+    from showkit.analysis import features
+
+    timbre = (1.0, 0.2, 0.3, 0.1, 0.1)
+    low = tone(220.0, 6.0, harmonics=timbre)
+    t = np.arange(low.size) / RATE
+    x = low + np.where(t >= 5.0, gain * tone(440.0, 6.0, harmonics=timbre), 0.0)
+    frame_s = np.arange(features.spectral.frame_count(x.size, HOP)) * HOP / RATE
+    alone = (frame_s > 0.3) & (frame_s < 4.7)
+    doubled = (frame_s > 5.3) & (frame_s < 5.7)
+
+    def has(notes_hz, f_hz):
+        with np.errstate(invalid="ignore"):
+            return np.any(np.abs(1200.0 * np.log2(notes_hz / f_hz)) < 30.0, axis=1)
+
+    found = {}
+    for own in (False, True):
+        monkeypatch.setattr(features, "OWN_TIMBRE", own)
+        found[own] = track_features(x, RATE, HOP, 2280.0).notes_hz
+    for own in (False, True):
+        assert has(found[own], 220.0)[alone | doubled].all()
+        assert not has(found[own], 440.0)[alone].any()          # the 2nd partial alone is no note
+    assert has(found[True], 440.0)[doubled].all()               # the doubling is found with the template ...
+    assert not has(found[False], 440.0)[doubled].any()          # ... and hidden without it
+
+
+def test_learnt_template_is_the_quantile_of_the_nearby_notes():
+    # multipitch.learn_template against numpy's quantile over the notes within the reach, computed here
+    # directly (closed form of the definition); a register without enough notes takes the nearest filled one
+    est = multipitch.estimator(RATE, 1024, 3, 480)
+    rng = np.random.default_rng(5)
+    semis = 12.0 * np.log2(est.f0_hz / multipitch.F0_MIN_HZ)
+    cands = np.concatenate([np.nonzero(np.abs(semis - 24.0) < 1.0)[0], np.nonzero(np.abs(semis - 36.0) < 1.0)[0]])
+    cands = rng.choice(cands, size=200)
+    ratios = rng.uniform(0.0, 1.0, size=(cands.size, multipitch.MAX_HARMONICS))
+    tab = est.learn_template(cands, ratios)
+    assert tab.shape == (est.f0_hz.size, multipitch.MAX_HARMONICS)
+    for target in (24, 30, 36):
+        c = int(np.argmin(np.abs(semis - target)))
+        near = np.abs(semis[cands] - np.rint(semis[c])) < multipitch.TEMPLATE_REACH_SEMITONES
+        expect = np.quantile(ratios[near], multipitch.TEMPLATE_QUANTILE, axis=0)
+        assert np.allclose(tab[c], expect, atol=1e-6), target
+    # far below every note: the template of the lowest semitone with enough notes within the reach
+    low = int(np.argmin(np.abs(semis - 5.0)))
+    counts = [np.sum(np.abs(semis[cands] - g) < multipitch.TEMPLATE_REACH_SEMITONES) for g in range(60)]
+    g = next(g for g, n in enumerate(counts) if n >= multipitch.TEMPLATE_MIN_NOTES)
+    near = np.abs(semis[cands] - g) < multipitch.TEMPLATE_REACH_SEMITONES
+    assert np.allclose(tab[low], np.quantile(ratios[near], multipitch.TEMPLATE_QUANTILE, axis=0), atol=1e-6)
+    assert est.learn_template(cands[:3], ratios[:3]) is None    # too few notes: no template

@@ -31,3 +31,23 @@ def test_hpss_masks_with_the_default_kernel_match_librosa():
     ref_h, ref_p = librosa.decompose.hpss(s, kernel_size=spectral.HPSS_KERNEL[::-1], mask=True)
     assert np.allclose(ours_h, ref_h, atol=1e-5) and np.allclose(ours_p, ref_p, atol=1e-5)
     assert ours_h[10, 5] > 0.9 and ours_p[20, 30] > 0.9
+
+
+def test_stft_power_is_librosas_centred_stft():
+    # reference: librosa.stft(center=True, zero padding, periodic Hann) squared, on the bins kept; the
+    # spectrum is taken by scipy.fft here and by librosa's own FFT there, so float32 rounding apart
+    import librosa
+
+    rng = np.random.default_rng(3)
+    rate, n_fft, hop = 4800, 512, 320
+    x = (0.3 * rng.standard_normal(3 * rate)).astype(np.float32)
+    x += 0.5 * np.sin(2 * np.pi * 440.0 * np.arange(x.size) / rate).astype(np.float32)
+    keep = spectral.band_slice(rate, n_fft, 2000.0)
+    frames = spectral.frame_count(x.size, hop)
+    padded = np.concatenate([np.zeros(n_fft // 2, np.float32), x, np.zeros(n_fft // 2, np.float32)])
+    ours = spectral.stft_power(padded, n_fft, hop, 0, frames, keep)
+    ref = np.abs(librosa.stft(x, n_fft=n_fft, hop_length=hop, center=True, pad_mode="constant")) ** 2
+    assert ours.shape == (keep.stop - keep.start, frames) and ref.shape[1] == frames
+    assert np.allclose(ours, ref[keep], rtol=1e-4, atol=1e-5 * float(ref.max()))
+    # and a part: frames 5-9 alone are the same frames
+    assert np.allclose(spectral.stft_power(padded, n_fft, hop, 5, 10, keep), ours[:, 5:10], rtol=1e-6, atol=0)

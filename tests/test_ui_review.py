@@ -47,6 +47,14 @@ def test_new_sheet_names_rig_and_audio_relative_to_its_folder(tmp_path, monkeypa
     assert load_sheet(sheet).rig_path().resolve() == rig.resolve()
     # no rig given: the demo rig, named as such
     assert load_sheet(Session.for_track(track, None, tmp_path / "b.toml").sheet.path).rig == "demo"
+    # opened again: on the same rig (by any path to it) it is the same show; on another rig it is
+    # refused in one line, never opened on the rig the show names while the user asked for another
+    assert Session.for_track(track, tmp_path / "my" / ".." / "imperial.toml", sheet).sheet.path == sheet
+    assert Session.for_track(track, None, sheet).sheet.path == sheet
+    from showkit.errors import InputError
+
+    with pytest.raises(InputError, match="already names another rig"):
+        Session.for_track(track, tmp_path / "other.toml", sheet)
 
 
 def test_view_option_accepts_run_and_measure():

@@ -200,6 +200,14 @@ async def test_bad_input_is_a_message_not_a_traceback(ui_short_show):
         # a mode the rig does not have: no cue is added, and the UI says why
         assert "no mode 99" in app._status_text
         assert not any(c.id.startswith("mode-99") for c in app.session.sheet.cues)
+        # a word where the mode number goes: one line saying what to type, not Python's int() message
+        await pilot.press("t")
+        await pilot.pause()
+        app.screen.query_one("#ask-mode", Input).value = "three"
+        await pilot.press("enter", "enter")
+        await settle(pilot)
+        assert "a mode is a whole number" in app._status_text and "'three'" in app._status_text
+        assert "invalid literal" not in app._status_text
 
 
 @sync
@@ -251,3 +259,29 @@ async def test_audition_without_a_device_says_so(ui_short_show, monkeypatch):
         # everything else still works
         await pilot.press("minus")
         assert "gain" in app._status_text
+
+
+@sync
+async def test_a_rig_that_cannot_be_read_is_said_not_awaited(ui_short_show):
+    """A NaN in the rig file: the top line says "rig problem" with the reason (it used to stay on
+    "loading the rig…" for ever) and the status line names the rig file and its field."""
+    from importlib import resources
+
+    from textual.widgets import Static
+
+    text = resources.files("showkit.data").joinpath("demo_rig.toml").read_text(encoding="utf-8")
+    bad = ui_short_show.parent / "rig-nan.toml"
+    bad.write_text(text.replace('static_pressure = "20 Pa"', "static_pressure = nan"), encoding="utf-8")
+    sheet = ui_short_show.read_text(encoding="utf-8").replace('rig = "demo"', 'rig = "rig-nan.toml"', 1)
+    ui_short_show.write_text(sheet, encoding="utf-8")
+    app = make_app(ui_short_show)
+    async with app.run_test(size=APP_SIZE) as pilot:
+        top = ""
+        for _ in range(300):  # not settle(): its wait re-raises the failed workers' errors
+            await pilot.pause(0.05)
+            top = str(app.query_one("#topbar", Static).render())
+            if "rig problem" in top and "rig-nan.toml" in app._status_text:
+                break
+        assert "rig problem" in top and "loading" not in top
+        assert "finite" in app.session.rig_error.what
+        assert "rig-nan.toml" in app._status_text and "static_pressure" in app._status_text

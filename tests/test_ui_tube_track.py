@@ -97,6 +97,11 @@ async def test_track_view_cursor_passage_cue_transpose(ui_short_show):
         assert (cue.source.start_s, cue.source.end_s) == pytest.approx((chosen["start_s"], chosen["end_s"]), abs=0.01)
         check = app.session.checks[cue.id]
         assert check.status == "ok" and cue.gain_db <= check.ceiling_db
+        # the level just set comes with the level caution (the brief: cautions where levels are set)
+        from showkit.safety import LEVEL_CAUTION
+
+        said = [(n.title, n.message) for n in app._notifications]
+        assert any(cue.id in t and "CAUTION" in t and m == LEVEL_CAUTION for t, m in said), said
         # transposition: the demo track is written two semitones above the modes,
         # so -2 semitones scores better than as recorded (showkit/demo/synth.py)
         await pilot.press("minus", "minus")
@@ -111,6 +116,47 @@ async def test_track_view_cursor_passage_cue_transpose(ui_short_show):
         await settle(pilot)
         assert view.selection[:2] == pytest.approx((1.0, 5.0))
         assert view.selection[2] is not None
+        # at -2 st the passage table reads the shifted track: the scores and modes the scan's own
+        # domain call gives at that shift (track_frames, the CLI's scan steps), the ceilings the
+        # recording's; the line over the table names the shift
+        from textual.widgets import Static
+
+        from showkit.ui.track import PassageTable
+        from showkit.ui.tracks import track_frames
+
+        def table_scores():
+            t = app.query_one(PassageTable)
+            return sorted(float(str(t.get_row_at(k)[3])) for k in range(t.row_count))
+
+        def caption():
+            return str(app.query_one("#passage-caption", Static).render())
+
+        at = track_frames(app.session.rig, track, -200.0)
+        assert table_scores() == sorted(p["score"] for p in at["passages"])
+        assert table_scores() != sorted(p["score"] for p in scan["passages"])
+        assert "transposed -2.00 st" in caption()
+        assert sorted(p["ceiling_db"] for p in view.analysis.passages) == sorted(
+            p["ceiling_db"] for p in scan["passages"])
+        # s: the scan's suggestion exactly, with the score the scan promises for it
+        await pilot.press("s")
+        await settle(pilot)
+        assert view.analysis.transpose == pytest.approx(scan["transpose_semitones"])
+        assert view.analysis.score == pytest.approx(scan["transpose_score"], abs=0.05)
+        # the map PNG draws the recording: while a shift is shown it is not written with shifted scores
+        await pilot.press("P")
+        await settle(pilot)
+        assert "as recorded" in app._status_text
+        assert not list(app.session.sheet.folder.glob("*-map.png"))
+        # > and <: 25-cent steps from there
+        await pilot.press("greater_than_sign")
+        await settle(pilot)
+        assert view.analysis.transpose == pytest.approx(scan["transpose_semitones"] + 0.25)
+        assert f"transposed {view.analysis.transpose:+.2f} st" in caption()
+        # 0: as recorded again, the scan's own table
+        await pilot.press("0")
+        await settle(pilot)
+        assert view.analysis.transpose == 0 and table_scores() == sorted(p["score"] for p in scan["passages"])
+        assert "as recorded" in caption()
     saved = load_sheet(ui_short_show)
     assert cue.id in [c.id for c in saved.cues]
 

@@ -21,6 +21,14 @@ summing harmonic amplitudes", ISMIR 2006:
    ``max(0, Y - d Y_D)`` is searched again.  The polyphony is where
    ``sum_j s_j / j^gamma`` stops growing (Klapuri 2006, section 3.4).
 
+Optionally (``features.OWN_TIMBRE``, off by default) the cancellation uses the
+track's own timbre: partial amplitudes learnt from the notes of a first search
+(:meth:`Estimator.learn_template`, harmonic templates with adaptive partial
+amplitudes after Vincent, Bertin & Badeau, IEEE TASLP 18(3), 2010), so that a
+found note cancels each partial only as far as its timbre explains it, and a
+doubling hidden on its 2nd partial is left for the next search
+(DEVELOPERS.md Methods §8b).
+
 Each found fundamental is then placed to a few cents: the peaks of its first
 three partials in the (unwhitened) power spectrum are interpolated by a
 parabola on the log power (J. O. Smith, *Spectral Audio Signal Processing*,
@@ -35,6 +43,7 @@ track at the analysis rate costs more than this whole estimator (measured in
 
 from __future__ import annotations
 
+import warnings
 from functools import lru_cache
 
 import numpy as np
@@ -79,6 +88,16 @@ PARTIAL_ENERGY_RATIO = 1.0
 REFINE_CENTS = 90.0
 #: Candidates within this of a note already taken in the frame are not taken again, cents.
 EXCLUDE_CENTS = 60.0
+#: The track's own partial amplitudes (:func:`learn_template`): the quantile taken over its notes ...
+TEMPLATE_QUANTILE = 0.75
+#: ... over the notes within this of a candidate, semitones ...
+TEMPLATE_REACH_SEMITONES = 6.0
+#: ... from at least this many notes (else the nearest register's) ...
+TEMPLATE_MIN_NOTES = 10
+#: ... and a found note cancels each partial up to this times its template amplitude.
+TEMPLATE_CAP = 1.0
+#: Partials below this in the template do not set the note's amplitude.
+TEMPLATE_MIN_PARTIAL = 0.05
 
 
 def window_samples(rate_hz: int) -> int:
@@ -179,8 +198,23 @@ class Estimator:
         y = (self.band_interp @ gain) * magnitude
         return np.where(magnitude > floor, y, 0.0).astype(np.float32, copy=False)
 
-    def estimate(self, whitened: np.ndarray, max_notes: int = MAX_NOTES):
+    def estimate(self, whitened: np.ndarray, max_notes: int = MAX_NOTES, template: np.ndarray | None = None):
         """Iterative estimation on a block of whitened frames.
+
+        With ``template`` (candidates x partials, from :meth:`learn_template`)
+        a found note cancels each partial only up to ``TEMPLATE_CAP`` times
+        its amplitude in the track's own timbre, the note's level being the
+        median over its partials of observed / template amplitude; what its
+        timbre does not explain (a doubling on its 2nd partial) stays for the
+        next note (DEVELOPERS.md Methods §8b).
+
+        Parameters
+        ----------
+        whitened : ndarray (bins, frames)
+            From :meth:`whiten`.
+        max_notes : int
+        template : ndarray (candidates, MAX_HARMONICS) or None
+            Relative partial amplitudes of the track (dimensionless); None: cancel every partial as observed.
 
         Returns
         -------
@@ -246,6 +280,16 @@ class Estimator:
             # more than a main lobe apart, f0 >= 50 Hz: no bin but the spare row is written twice)
             n = act.size
             amp = rmax[self.near_bin[c], kept[:, None]] * (self.g[c] if CANCEL_WEIGHTED else 1.0)
+            if template is not None:
+                t = template[c]
+                use = self.ok[c] & (t > TEMPLATE_MIN_PARTIAL)
+                # the median over the usable partials (sorted with the others last; none: cancel as observed)
+                r = np.sort(np.where(use, amp / np.where(use, t, 1.0), np.inf), axis=1)
+                count = use.sum(axis=1)
+                rows = np.arange(r.shape[0])
+                lo, hi = r[rows, np.maximum(count - 1, 0) // 2], r[rows, np.minimum(count // 2, r.shape[1] - 1)]
+                level = np.where(count > 0, 0.5 * (lo + hi), np.inf)
+                amp = np.minimum(amp, (TEMPLATE_CAP * level[:, None] * t).astype(np.float32))
             flat = self.lobe_bin[c] * n + np.arange(n)[:, None, None]
             # one fancy-index add: each (bin, frame) once, since lobes never overlap (checked in __init__)
             # and ``detected`` is C-ordered (np.zeros, np.take), so the flat view writes through
@@ -254,6 +298,71 @@ class Estimator:
             np.subtract(ya, resid, out=resid)
             np.maximum(0.0, resid, out=resid)
         return found, sal
+
+    def partial_ratios(self, whitened: np.ndarray, index: np.ndarray):
+        """Per found note: its candidate index (V,) and its partials' whitened peaks over its largest (V, M).
+
+        The peaks are the largest whitened amplitude within ``PARTIAL_REACH_BINS``
+        of each partial (dimensionless ratios, NaN outside the band); the input
+        of :meth:`learn_template`.
+
+        Parameters
+        ----------
+        whitened : ndarray (bins, frames)
+            From :meth:`whiten`.
+        index : ndarray (frames, notes) of int
+            From :meth:`estimate`.
+        """
+        y = np.asarray(whitened, dtype=np.float32)
+        fr, k = np.nonzero(index >= 0)
+        c = index[fr, k]
+        near = self.near_bin[c]
+        peak = np.zeros(near.shape, dtype=np.float32)
+        for o in range(-PARTIAL_REACH_BINS, PARTIAL_REACH_BINS + 1):
+            peak = np.maximum(peak, y[np.clip(near + o, 0, y.shape[0] - 1), fr[:, None]])
+        peak = np.where(self.ok[c], peak, np.nan)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            top = np.nanmax(np.where(np.isfinite(peak), peak, -1.0), axis=1, keepdims=True)
+            ratio = np.where(top > 0, peak / np.where(top > 0, top, 1.0), np.nan)
+        return c, ratio
+
+    def learn_template(self, cands: np.ndarray, ratios: np.ndarray):
+        """The track's own partial amplitudes per candidate (candidates x partials), or None.
+
+        For each semitone of the candidate range, the :data:`TEMPLATE_QUANTILE`
+        quantile of each partial's ratio over the notes found within
+        :data:`TEMPLATE_REACH_SEMITONES` (whitened peaks over the note's
+        largest, :meth:`partial_ratios`), the nearest filled semitone where
+        fewer than :data:`TEMPLATE_MIN_NOTES` notes lie: harmonic templates
+        with the track's partial amplitudes, as in E. Vincent, N. Bertin and
+        R. Badeau, "Adaptive harmonic spectral decomposition for multiple
+        pitch estimation", IEEE TASLP 18(3), 2010, learnt here from the notes
+        of a first pass (DEVELOPERS.md Methods §8b).
+
+        Parameters
+        ----------
+        cands : ndarray (V,) of int
+            Candidate index of each note (:meth:`partial_ratios`).
+        ratios : ndarray (V, MAX_HARMONICS)
+            Its partials' whitened peaks over its largest (dimensionless, NaN outside the band).
+        """
+        if cands.size < TEMPLATE_MIN_NOTES:
+            return None
+        semis = 12.0 * np.log2(self.f0_hz / F0_MIN_HZ)
+        grid = np.arange(0, int(np.ceil(semis[-1])) + 1)
+        near = np.abs(semis[cands][None, :] - grid[:, None]) < TEMPLATE_REACH_SEMITONES   # (grid, V)
+        enough = near.sum(axis=1) >= TEMPLATE_MIN_NOTES
+        if not enough.any():
+            return None
+        tab = np.zeros((grid.size, MAX_HARMONICS), dtype=np.float32)
+        filled = np.nonzero(enough)[0]
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", RuntimeWarning)    # an all-NaN partial (outside the band)
+            for i in filled:                                   # one quantile per semitone of the range
+                tab[i] = np.nan_to_num(np.nanquantile(ratios[near[i]], TEMPLATE_QUANTILE, axis=0))
+        nearest = filled[np.argmin(np.abs(filled[None, :] - np.arange(grid.size)[:, None]), axis=1)]
+        tab = tab[nearest]
+        return tab[np.clip(np.rint(semis).astype(int), 0, grid.size - 1)]
 
     def refine(self, power: np.ndarray, index: np.ndarray):
         """Frequencies of the found notes to a few cents, and their partials' energy.

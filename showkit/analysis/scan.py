@@ -117,6 +117,20 @@ class _Work:
         lengths = [e - s for s, e in self.spans_s]
         return track_score(scores, lengths), scores, mf
 
+    def promised_at(self, shift_cents: float = 0.0):
+        """``(track score, passage scores, map)`` a real shift by ``shift_cents`` promises.
+
+        At 0 this is :meth:`score_at` (the track as it is).  Otherwise it is the least
+        of :meth:`score_at` over ``shift_cents`` plus :func:`transpose.promise_offsets`
+        (the notes of really shifted audio land a few cents from the notes found moved),
+        with that run's passage scores; the map is the one at ``shift_cents`` itself.
+        """
+        if shift_cents == 0:
+            return self.score_at(0.0)
+        runs = [self.score_at(shift_cents + d) for d in transpose.promise_offsets()]
+        least = min(runs, key=lambda r: r[0])
+        return float(least[0]), list(least[1]), runs[len(runs) // 2][2]
+
 
 def _analyse(rig: Rig, path: str | Path, threads: int | None = None) -> _Work:
     """Decode once at the hole filters' rate; features, pressure envelope, passages and the gate.
@@ -222,18 +236,37 @@ def track_map(rig: Rig, path: str | Path, shift_cents: float = 0.0) -> dict:
     return track_frames(rig, path, shift_cents)["map"]
 
 
-def track_frames(rig: Rig, path: str | Path, shift_cents: float = 0.0) -> dict:
-    """The time x mode map and the score of a track at a transposition.
+def passage_rows(work: _Work, scores: list[float], mf) -> list[dict]:
+    """The scan's passages as rows: ``start_s``, ``end_s``, ``score``, ``modes`` and ``mode_shares``.
 
-    Returns ``score`` (the track score with every note moved by
-    ``shift_cents``, on the scan's passages), ``map`` (:func:`map_data`) and
-    ``notes`` (per frame: the strongest notes with their nearest modes, as
-    text).
+    ``scores`` are the passages' scores and ``mf`` the map they were scored on
+    (:meth:`_Work.score_at` or :meth:`_Work.promised_at` at some shift).
+    """
+    table = work.table
+    out = []
+    for (first, last), (start, end), score in zip(work.spans(), work.spans_s, scores):
+        shares = mode_shares(mf, table, first, last)
+        out.append({"start_s": round(start, 3), "end_s": round(end, 3), "score": round(score, 1),
+                    "modes": [n for n, _ in shares],
+                    "mode_shares": [{"n": n, "note": _note(table, n), "share": round(s, 3)}
+                                    for n, s in shares]})
+    return out
+
+
+def track_frames(rig: Rig, path: str | Path, shift_cents: float = 0.0) -> dict:
+    """The time x mode map, the score and the passages of a track at a transposition.
+
+    Returns ``score`` (the score a shift by ``shift_cents`` promises,
+    :meth:`_Work.promised_at`, on the scan's passages: at 0 the scan's own
+    score, at the scan's suggestion the score it promises), ``passages``
+    (:func:`passage_rows` re-scored at the shift, in the scan's order),
+    ``map`` (:func:`map_data`) and ``notes`` (per frame: the strongest notes
+    with their nearest modes, as text).
     """
     work = _analyse(rig, path)
-    score, _, mf = work.score_at(shift_cents)
-    return {"score": float(score), "map": map_data(work, shift_cents, mf),
-            "notes": frame_notes_text(work, shift_cents)}
+    score, scores, mf = work.promised_at(shift_cents)
+    return {"score": float(score), "passages": passage_rows(work, scores, mf),
+            "map": map_data(work, shift_cents, mf), "notes": frame_notes_text(work, shift_cents)}
 
 
 def scan_track(rig: Rig, path: str | Path, threads: int | None = None) -> dict:
@@ -255,21 +288,14 @@ def scan_track(rig: Rig, path: str | Path, threads: int | None = None) -> dict:
     table = work.table
     total, scores, mf = work.score_at(0.0)
     levels = _levels(rig, work)
-    out = []
-    for (first, last), (start, end), score, level in zip(work.spans(), work.spans_s, scores, levels):
-        shares = mode_shares(mf, table, first, last)
-        out.append({"start_s": round(start, 3), "end_s": round(end, 3), "score": round(score, 1),
-                    "modes": [n for n, _ in shares],
-                    "mode_shares": [{"n": n, "note": _note(table, n), "share": round(s, 3)}
-                                    for n, s in shares],
-                    "ceiling_db": round(level.ceiling.ceiling_db, 2),
-                    "limited_by": level.ceiling.limited_by,
-                    "contrast": round(level.median_contrast, 4)})
+    out = [{**row, "ceiling_db": round(level.ceiling.ceiling_db, 2), "limited_by": level.ceiling.limited_by,
+            "contrast": round(level.median_contrast, 4)}
+           for row, level in zip(passage_rows(work, scores, mf), levels)]
     cache = {0.0: total}
 
     def score_at(shift):
         if shift not in cache:
-            cache[shift] = work.score_at(shift)[0]
+            cache[shift] = work.promised_at(shift)[0]
         return cache[shift]
 
     shift, shifted, _ = transpose.search(work.features, table, work.gate, score_at)

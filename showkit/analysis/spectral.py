@@ -77,7 +77,9 @@ def stft_power(padded: np.ndarray, n_fft: int, hop: int, first: int, last: int,
     """
     seg = padded[first * hop:(last - 1) * hop + n_fft]
     frames = np.lib.stride_tricks.sliding_window_view(seg, n_fft)[::hop][:last - first]
-    spec = np.fft.rfft(frames * hann(n_fft)[None, :], axis=1)[:, keep]
+    import scipy.fft as sfft  # many short transforms: about 3x faster than numpy's (one worker)
+
+    spec = sfft.rfft(frames * hann(n_fft)[None, :], axis=1, workers=1)[:, keep]
     return (spec.real ** 2 + spec.imag ** 2).T.astype(np.float32)
 
 

@@ -26,6 +26,13 @@ def add_conditions_options(parser: argparse.ArgumentParser) -> None:
                              "0 to 0.9 (default: the rig file's)")
 
 
+def add_temperature_option(parser: argparse.ArgumentParser) -> None:
+    """``--temperature``: today's gas temperature (the modes move about 3 cents per kelvin)."""
+    parser.add_argument("--temperature", metavar="TEMP",
+                        help='today\'s gas temperature, e.g. "24 C", "75 F" (default: the rig file\'s); '
+                             "the modes move with it, by about 3 cents per kelvin")
+
+
 def add_json_option(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--json", action="store_true", help="print the result as JSON on stdout")
 

@@ -7,7 +7,9 @@ note is held on a mode whose pattern the holes resolve), the modes held
 it, reported beside the score.  --map writes the time x mode map of one
 track as JSON.  A transposition within +-3.5 semitones that
 would lay the track better on the modes is suggested with the score it would
-reach.  Folders are searched recursively; results are cached; a file that
+reach.  ``--temperature`` gives today's gas temperature (the modes, the map
+and the suggestion follow it), ``--static``/``--reserve`` today's pressure and
+reserve (the ceilings).  Folders are searched recursively; results are cached; a file that
 cannot be read is reported in its row and the scan goes on.
 
 Exit status 0 if any file was scanned, 2 if none could be.
@@ -18,13 +20,13 @@ from __future__ import annotations
 import argparse
 import io
 import json
-import sys
 import shutil
+import sys
 import textwrap
 from pathlib import Path
 
-from showkit.cli.common import (add_conditions_options, add_json_option, add_rig_option, level_caution,
-                                load_rig_from_args, print_json, table)
+from showkit.cli.common import (add_conditions_options, add_json_option, add_rig_option,
+                                add_temperature_option, level_caution, load_rig_from_args, print_json, table)
 from showkit.errors import InputError, ShowkitError
 from showkit.limits import TRANSPOSE_RANGE_CENTS
 from showkit.printable import printable
@@ -39,6 +41,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         help="audio files or folders (searched recursively)")
     add_rig_option(parser)
     add_conditions_options(parser)
+    add_temperature_option(parser)
     add_json_option(parser)
     parser.add_argument("--csv", metavar="FILE", help="also write one row per passage to a CSV file")
     parser.add_argument("--jobs", metavar="N", type=int,
@@ -94,7 +97,14 @@ def _fmt(x: float) -> str:
 
 def _modes_text(p: dict) -> str:
     shares = p.get("mode_shares") or [{"n": n, "note": "", "share": 0.0} for n in p["modes"]]
-    return ", ".join(f"n{s['n']} {s['note']} {100 * s['share']:.0f}%" for s in shares[:4]) or "none"
+    text = ", ".join(f"n{s['n']} {s['note']} {100 * s['share']:.0f}%" for s in shares[:4])
+    if text:
+        return text
+    if p.get("score", 0) > 0:  # held on modes, but none for long enough to be listed
+        from showkit.analysis.score import MIN_MODE_SHARE
+
+        return f"each under {100 * MIN_MODE_SHARE:.0f}%"
+    return "none"
 
 
 def _print_table(tracks: list[dict]) -> None:
@@ -221,11 +231,12 @@ def run(args) -> int:
     level_caution()
     if args.json:
         print_json({"rig": rig.name, "static_pressure_pa": rig.static_pa, "reserve": rig.reserve,
-                    "tracks": _for_output(tracks)})
+                    "temperature_k": rig.temperature_k, "tracks": _for_output(tracks)})
     else:
         _print_table(tracks)
         width = max(60, min(100, shutil.get_terminal_size((100, 24)).columns))
-        notes = [f"On {rig.name}, static {rig.static_pa:.2f} Pa, reserve {rig.reserve:g}.",
+        notes = [f"On {rig.name}, static {rig.static_pa:.2f} Pa, reserve {rig.reserve:g}, gas "
+                 f"{rig.temperature_k - 273.15:.1f} C (the modes and the map are for it).",
                  "score: the share of the passage's time a note is held on a readable mode, 0-100.",
                  "~ceiling: the best estimate's ceiling in dB applied to the file as recorded, to rank "
                  "passages -- not a level to play: `showkit ceiling` and `lock` give the ceiling over the "

@@ -488,7 +488,8 @@ def envelope_range(filters: HoleFilters, signal: np.ndarray, ring_out: bool = Tr
     spec = filters.spectrum(m, analytic=True)
     low, nyquist = 0.5 * spec[:, :half], 0.5 * spec[:, half]  # 0.5: the inverse FFT is half as long
     holes = filters.holes
-    buf = np.empty((holes, half), dtype=np.complex64)
+    # one buffer: the product is transformed in place (the same values as into a second buffer,
+    # one (holes, m/2) complex64 array less to hold and to stream through the cache)
     y = np.empty((holes, half), dtype=np.complex64)
     env = np.empty((holes, hop // 2), dtype=np.float32)
     ntail = (m - hop) // 2
@@ -497,9 +498,9 @@ def envelope_range(filters: HoleFilters, signal: np.ndarray, ring_out: bool = Tr
 
     def work(g: slice, x: np.ndarray) -> np.ndarray:
         size = x.size // 2
-        np.multiply(low[g], xs[0][None, :half], out=buf[g])
-        buf[g, 0] += nyquist[g] * xs[0][half]
-        np.fft.ifft(buf[g], axis=1, out=y[g])
+        np.multiply(low[g], xs[0][None, :half], out=y[g])
+        y[g, 0] += nyquist[g] * xs[0][half]
+        np.fft.ifft(y[g], axis=1, out=y[g])
         y[g, :ntail] += tail[g]
         np.copyto(tail[g], y[g, size:size + ntail])
         e = _frame_max(np.abs(y[g, :size], out=env[g, :size]), size // sub, sub)  # (holes, frames)

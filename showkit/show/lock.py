@@ -17,6 +17,7 @@ family covers, since the gas jets out of the holes faster at a higher pressure
 from __future__ import annotations
 
 import math
+import os
 from dataclasses import dataclass, replace
 from datetime import datetime, timezone
 
@@ -42,7 +43,9 @@ def sheet_rig(sheet: Sheet) -> Rig:
         fix = exc.fix
         if exc.what == "no such rig file":
             fix = 'fix the sheet\'s rig = "..." (a path relative to the sheet, or "demo")'
-        raise SheetError(exc.what, f"{sheet.path or 'sheet'}: rig ({exc.where})", fix) from None
+        path = sheet.rig_path()
+        where = exc.where.replace(str(path), os.path.normpath(str(path))) if path is not None else exc.where
+        raise SheetError(exc.what, f"{sheet.path or 'sheet'}: rig ({where})", fix) from None
 
 
 def sheet_for_today(sheet, rig: Rig | None = None, static_pa: float | None = None,

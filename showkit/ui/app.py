@@ -269,7 +269,7 @@ class ShowkitApp(JobRunner, App):
                 tube.show_rig()
             self.say(f"{len(modes)} modes below the plane-wave limit")
 
-        self.run_job("modes", work, done, "finding the tube's modes")
+        self.run_job("modes", work, done, "finding the tube's modes", failed=lambda exc: self.update_topbar())
 
     def start_checks(self) -> None:
         s = self.session
@@ -328,6 +328,11 @@ class ShowkitApp(JobRunner, App):
         if view is not None:
             view.refresh_table(cue.id)
         self.say(f"added cue {cue.id} at {cue.gain_db:+.1f} dB (saved); locking its ceiling…")
+        # a level was just set (from any view, the Track view's c too): the level caution with it
+        from showkit.safety import LEVEL_CAUTION
+
+        self.notify(LEVEL_CAUTION, title=f"CAUTION: cue {printable(cue.id)} set to {cue.gain_db:+.1f} dB",
+                    severity="warning", timeout=8)
         self.start_lock([cue.id])
 
     def change_conditions(self, static=None, temperature=None, *, recheck_run: bool = True) -> bool:
@@ -370,7 +375,9 @@ class ShowkitApp(JobRunner, App):
         s = self.session
         bar = self.query_one("#topbar", Static)
         width = max(20, (bar.size.width or self.size.width) - 2)
-        if not s.rig_loaded:  # loading the rig imports the model: done in the background
+        if not s.rig_loaded and s.rig_error:  # the rig file could not be read: say so, never "loading"
+            variants = [[f"rig problem: {s.rig_error.what}"], ["rig problem (status line)"]]
+        elif not s.rig_loaded:  # loading the rig imports the model: done in the background
             variants = [["loading the rig…"]]
         else:
             try:

@@ -92,6 +92,10 @@ def track_map(view) -> None:
     if a is None:
         view.say("open a track first (o)")
         return
+    if a.transpose:
+        # the PNG draws the map of the recording (as `scan --plot`): its scores must be the recording's
+        view.say("the map PNG draws the track as recorded: press 0 to go back to it, then P", warn=True)
+        return
     path = Path(a.path)
     out = _beside(s, path.stem, "-map.png")
     rig = s.rig

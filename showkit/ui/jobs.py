@@ -30,13 +30,18 @@ class Job:
     name: str
     label: str
     done: Callable
+    failed: Callable | None = None
 
 
 class JobRunner:
     """Mixin for a Textual node: run slow work as a thread worker, apply its result on the UI thread."""
 
-    def run_job(self, name: str, work, done, label: str, latest_only: bool = True) -> Worker:
+    def run_job(self, name: str, work, done, label: str, latest_only: bool = True, failed=None) -> Worker:
         """Run ``work(progress)`` in a worker thread, then ``done(result)`` on the UI thread.
+
+        ``failed(error)``, if given, runs on the UI thread when ``work`` raised a
+        :class:`~showkit.errors.ShowkitError` (after its line went to the status line), so
+        that what waited for the result can say it will not come.
 
         ``progress(done, total, text=None)`` may be called from ``work`` as it goes on.
         With ``latest_only`` a job of the same name still running is cancelled
@@ -64,7 +69,7 @@ class JobRunner:
         self.post_message(Say(label + "…"))
         worker = self.run_worker(thread, name=name, group=name, description=label, thread=True,
                                  exclusive=False, exit_on_error=False)
-        table[worker] = Job(name, label, done)
+        table[worker] = Job(name, label, done, failed)
         self.post_message(JobProgress(worker))
         return worker
 
@@ -93,5 +98,7 @@ class JobRunner:
             exc = event.worker.error
             if isinstance(exc, ShowkitError):
                 self.post_message(Say(exc.line(), warn=True))
+                if job.failed is not None:
+                    job.failed(exc)
             elif not isinstance(exc, JobCancelled):  # never a traceback in the UI
                 self.post_message(Say(f"{job.label} failed: {exc.__class__.__name__}: {exc}", warn=True))

@@ -43,6 +43,7 @@ class Session(SheetEditor):
     def __init__(self, sheet: Sheet, rig=None, log_path: Path | None = None):
         super().__init__(sheet)
         self._base_rig = rig
+        self.rig_error: ShowkitError | None = None  # why the last rig read failed (None: it did not)
         self.static_pa: float | None = None      # today's manometer reading (None: the rig file's)
         self.temperature_k: float | None = None  # today's gas temperature (None: the rig file's)
         self.device = None                       # audio output: None (system default), index or name
@@ -63,7 +64,16 @@ class Session(SheetEditor):
         """A session with a new (or existing) sheet for one track, on a given rig."""
         sheet_path = Path(sheet_path)
         if sheet_path.exists():
-            return cls.open_sheet(sheet_path)
+            session = cls.open_sheet(sheet_path)
+            named = session.sheet.rig_path()
+            if rig_path is not None and (named is None or named.resolve() != Path(rig_path).expanduser().resolve()):
+                # never open the show on another rig than asked without saying so
+                from showkit.errors import InputError
+
+                raise InputError(f"this track's show already names another rig ({session.sheet.rig})",
+                                 str(sheet_path), "open it without --rig, or give --sheet NEW.toml for a show "
+                                 "on this rig")
+            return session
         rig = "demo" if rig_path is None else relative_to(Path(rig_path).expanduser(), sheet_path.parent)
         sheet = Sheet(title=f"Show with {Path(track).stem}", rig=rig, cues=[], path=sheet_path)
         sheet_path.parent.mkdir(parents=True, exist_ok=True)
@@ -72,10 +82,17 @@ class Session(SheetEditor):
 
     # ------------------------------------------------------------ the rig and today's conditions
     def base_rig(self):
+        """The sheet's rig as its file says; a rig that cannot be read raises, and the error is kept
+        in :attr:`rig_error` for the screens that wait for it."""
         if self._base_rig is None:
             from showkit.show.lock import sheet_rig
 
-            self._base_rig = sheet_rig(self.sheet)
+            try:
+                self._base_rig = sheet_rig(self.sheet)
+            except ShowkitError as exc:
+                self.rig_error = exc
+                raise
+            self.rig_error = None
         return self._base_rig
 
     @property

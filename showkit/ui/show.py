@@ -230,7 +230,7 @@ class ShowView(SessionView):
             if not values:
                 return
             try:
-                cue = self.session.add_tone(int(values["mode"]), _seconds(values["duration"]),
+                cue = self.session.add_tone(_mode_number(values["mode"], "mode number"), _seconds(values["duration"]),
                                             after=self.selected_id())
             except (ShowkitError, ValueError) as exc:
                 self.say(exc.line() if isinstance(exc, ShowkitError) else f"cannot read that: {exc}", warn=True)
@@ -247,7 +247,8 @@ class ShowView(SessionView):
             if not values:
                 return
             try:
-                cue = self.session.add_glide(int(values["from"]), int(values["to"]), _seconds(values["duration"]),
+                cue = self.session.add_glide(_mode_number(values["from"], "from mode"),
+                                             _mode_number(values["to"], "to mode"), _seconds(values["duration"]),
                                              after=self.selected_id())
             except (ShowkitError, ValueError) as exc:
                 self.say(exc.line() if isinstance(exc, ShowkitError) else f"cannot read that: {exc}", warn=True)
@@ -301,6 +302,17 @@ def ui_message(text: str) -> str:
 def _typed(value: str, before: str) -> str:
     """What a text box gives back: the file's own text when the box still shows it as printed."""
     return before if value == printable(before) else value
+
+
+def _mode_number(text: str, field: str) -> int:
+    """A mode number typed in a dialog (a whole number), or one line saying what to type."""
+    from showkit.errors import InputError
+
+    try:
+        return int(text.strip())
+    except ValueError:
+        raise InputError(f"a mode is a whole number, got {printable(text.strip())!r}", field,
+                         "type a mode number as the Tube view lists them, e.g. 3") from None
 
 
 def _seconds(text: str) -> float:

@@ -21,25 +21,41 @@ from showkit.units import format_time as _clock  # the one m:ss.s formatter
 
 #: Cursor steps, s.
 STEP_S = 0.5
+#: Transposition steps of the Track view, cents: whole semitones (+/-) and fine steps (</>).
+SEMITONE_CENTS = 100
+FINE_STEP_CENTS = 25
+#: Farthest transposition the view tries, cents (an octave either way).
+MAX_SHIFT_CENTS = 1200
 FLAME_LINES = 4
 #: Screen rows the Track view leaves for everything but the map: top bar, status line,
-#: footer (3), title (2), cursor facts (2), flames (5) and the passage table (header + 4).
-MAP_OTHER_ROWS = 17
+#: footer (3), title (2), cursor facts (2), flames (5), the passages' caption (1) and the passage
+#: table (header + 4).
+MAP_OTHER_ROWS = 18
 
 
 def title_text(a, old=None) -> str:
     """The Track view's title (markup) for analysis ``a``; ``old`` is the one it replaces.
 
-    Every transposition on it (the view's own whole steps, the scan's suggestion to the
-    cent) is written by :func:`showkit.units.format_semitones`, as ``showkit scan`` writes it.
+    Every transposition on it (the shift shown, the scan's suggestion, both to the cent)
+    is written by :func:`showkit.units.format_semitones`, as ``showkit scan`` writes it.
     """
     before = "" if old is None or old.path != a.path or old.transpose == a.transpose else \
         f" (was {old.score:.1f} at {format_semitones(old.transpose)})"
     return (f"[b]{escape(printable(a.path.name))}[/b]  {_clock(a.duration_s)}  "
             f"transposed {format_semitones(a.transpose)}  score {a.score:.1f}{before}  "
             f"ceiling {a.ceiling_db:+.1f} dB  "
-            + (f"scan suggests {format_semitones(a.suggestion_semitones)}" if a.suggestion_semitones else "")
+            + (f"scan suggests {format_semitones(a.suggestion_semitones)}"
+               + ("" if abs(a.transpose - a.suggestion_semitones) < 0.005 else " (s tries it)")
+               if a.suggestion_semitones else "")
             + ("" if a.map_modes else "  (no mode map: " + a.note + ")"))
+
+
+def passage_caption(a) -> str:
+    """The line over the passage table: which shift its scores and modes are for."""
+    if not a.transpose:
+        return "passages, best first: scores and modes as recorded"
+    return (f"passages, best first: scores and modes transposed {format_semitones(a.transpose)} "
+            "(what the flames would show at that shift); ~ceiling and contrast as recorded")
 
 
 class TrackMap(Widget, can_focus=True):
@@ -165,8 +181,12 @@ class TrackView(SessionView):
         Binding("left_parenthesis", "mark('in')", "in here", show=False),
         Binding("right_parenthesis", "mark('out')", "out here", show=False),
         Binding("c", "add_cue", "add to show"),
-        Binding("plus,equals_sign", "transpose(1)", "transpose +1"),
-        Binding("minus", "transpose(-1)", "transpose -1"),
+        Binding("s", "suggested", "scan's shift"),
+        Binding("plus,equals_sign", "transpose(100)", "transpose +1 st"),
+        Binding("minus", "transpose(-100)", "transpose -1 st"),
+        Binding("greater_than_sign", "transpose(25)", "transpose +25 c", show=False),
+        Binding("less_than_sign", "transpose(-25)", "transpose -25 c", show=False),
+        Binding("0", "as_recorded", "as recorded", show=False),
         Binding("V", "export('track_preview')", "preview video", show=False),
         Binding("P", "export('track_map')", "map PNG", show=False),
     ]
@@ -176,7 +196,7 @@ class TrackView(SessionView):
         self.path: Path | None = None
         self.wanted = ""
         self.analysis = None
-        self.transpose = 0
+        self.transpose_cents = 0   # the shift tried, whole cents
         self.selection = None   # (start_s, end_s, ceiling_db or None, contrast or None)
 
     def compose(self) -> ComposeResult:
@@ -184,6 +204,7 @@ class TrackView(SessionView):
         yield TrackMap(id="track-map")
         yield Static("", id="cursor-facts")
         yield CursorFlames(id="cursor-flames")
+        yield Static("", id="passage-caption")
         yield PassageTable(id="passage-table", cursor_type="row")
 
     def on_mount(self) -> None:
@@ -214,7 +235,7 @@ class TrackView(SessionView):
         """Open a track by name or path; it is found and analysed in the background."""
         self.path = None
         self.wanted = str(path)
-        self.transpose = 0
+        self.transpose_cents = 0
         self.selection = None
         m = self.query_one(TrackMap)
         m.mark_in = m.mark_out = None
@@ -224,21 +245,28 @@ class TrackView(SessionView):
 
     def analyse(self) -> None:
         s = self.session
-        wanted, shift = str(self.path or self.wanted), self.transpose
+        wanted, shift = str(self.path or self.wanted), self.transpose_cents
 
         def work(progress):
             return s.tracks.analysis_job(wanted, shift, progress)
 
         def done(analysis):
-            if wanted != str(self.path or self.wanted) or shift != self.transpose:
+            if wanted != str(self.path or self.wanted) or shift != self.transpose_cents:
                 return
             self.path = analysis.path
             self.show_analysis(analysis)
 
         name = Path(wanted.removeprefix("demo:")).name
         self.query_one("#track-title", Static).update(Text(f"{printable(name)}  analysing…"))
+
+        def failed(exc):
+            if wanted == str(self.path or self.wanted):
+                self.query_one("#track-title", Static).update(
+                    Text(f"{printable(name)}  not analysed: {exc.what} (details in the status line)"))
+
         self.run_job("track", work, done,
-                     f"analysing {name}" + (f" transposed {format_semitones(shift)}" if shift else ""))
+                     f"analysing {name}" + (f" transposed {format_semitones(shift / 100.0)}" if shift else ""),
+                     failed=failed)
 
     def conditions_changed(self) -> None:
         if self.path is not None:
@@ -254,10 +282,11 @@ class TrackView(SessionView):
         t.clear()
         for k, p in enumerate(a.passages, 1):
             t.add_row(str(k), _clock(p["start_s"]), _clock(p["end_s"]), f"{p['score']:.1f}",
-                      " ".join(str(n) for n in p.get("modes", [])[:4]),
+                      a.modes_cell(p),
                       f"{p['ceiling_db']:+.1f}" if p.get("ceiling_db") is not None else "",
                       f"{100 * p['contrast']:.1f}" if p.get("contrast") is not None else "", key=str(k))
         self.query_one("#track-title", Static).update(title_text(a, old))
+        self.query_one("#passage-caption", Static).update(passage_caption(a))
         m.refresh(layout=True)
         if a.passages and m.selected is None:
             self.select_passage(0)
@@ -281,10 +310,10 @@ class TrackView(SessionView):
             f"passage {m.selected + 1} (score {a.passages[m.selected]['score']:.1f}) ")
         sel_text = "" if sel is None else (
             f"   {chosen or 'selection '}{_clock(sel[0])}-{_clock(sel[1])}"
-            + (f" ceiling {sel[2]:+.1f} dB, contrast {100 * sel[3]:.1f} %" if sel[2] is not None else " (measuring…)"))
+            + (f" ceiling {sel[2]:+.1f} dB, contrast {100 * sel[3]:.1f}%" if sel[2] is not None else " (measuring…)"))
         air = int((a.air_in[k] > 0).sum())
         self.query_one("#cursor-facts", Static).update(
-            f"at {_clock(m.cursor_s)}  flame contrast {a.contrast_frame[k]:.2f}  "
+            f"at {_clock(m.cursor_s)}  flame contrast {100 * a.contrast_frame[k]:.1f}%  "
             f"(bars {a.height_lo:.2f}-{a.height_hi:.2f} of still height)"
             + (f"  air drawn in at {air} holes" if air else "")
             + f"   notes: {notes or '—'}{sel_text}")
@@ -368,7 +397,7 @@ class TrackView(SessionView):
                 self.selection = (start_s, end_s, report.ceiling_db, report.contrast)
                 self.update_cursor()
                 self.say(f"selection {_clock(start_s)}-{_clock(end_s)}: ceiling {report.ceiling_db:+.1f} dB, "
-                             f"contrast {100 * report.contrast:.1f} %; c adds it to the show")
+                             f"contrast {100 * report.contrast:.1f}%; c adds it to the show")
 
         self.run_job("passage", work, done, "measuring the selection's ceiling")
 
@@ -380,7 +409,7 @@ class TrackView(SessionView):
         if ceiling is None:
             self.say("the selection's ceiling is still being measured; try again in a moment")
             return
-        if self.transpose:
+        if self.transpose_cents:
             self.say("cues play the track as recorded: the transposition is not added to the cue", warn=True)
         try:
             cue = self.session.add_passage(self.path, start, end, ceiling)
@@ -389,11 +418,37 @@ class TrackView(SessionView):
             return
         self.post_message(CueAdded(cue))
 
-    def action_transpose(self, delta: int) -> None:
+    def action_transpose(self, delta_cents: int) -> None:
+        """Try the track shifted ``delta_cents`` further (whole or fine steps)."""
         if self.path is None and not self.wanted:
             self.say("open a track first (o)")
             return
-        self.transpose = max(-12, min(12, self.transpose + delta))
+        self.set_transpose(self.transpose_cents + int(delta_cents))
+
+    def action_suggested(self) -> None:
+        """Try the scan's suggested shift exactly (to the cent)."""
+        a = self.analysis
+        if a is None:
+            self.say("open a track first (o)")
+            return
+        if not a.suggestion_semitones:
+            self.say("the scan suggests no shift for this track: it lays its notes on the modes as well "
+                     "as any shift would")
+            return
+        self.set_transpose(int(round(100.0 * a.suggestion_semitones)))
+
+    def action_as_recorded(self) -> None:
+        if self.path is None and not self.wanted:
+            return
+        self.set_transpose(0)
+
+    def set_transpose(self, cents: int) -> None:
+        """Show the track shifted by ``cents`` (within +-MAX_SHIFT_CENTS), analysed in the background."""
+        cents = max(-MAX_SHIFT_CENTS, min(MAX_SHIFT_CENTS, int(cents)))
+        if cents == self.transpose_cents and self.analysis is not None:
+            self.say(f"already shown at {format_semitones(cents / 100.0)}")
+            return
+        self.transpose_cents = cents
         self.analyse()
 
     def action_export(self, what: str) -> None:

@@ -32,14 +32,15 @@ class TrackAnalysis:
     ``map_modes``: each mode's strength (0 to 1, the share of the band's
     sustained sound on it) where the mode is hit, 0 elsewhere
     (:func:`showkit.analysis.scan.map_data`, the same data as ``scan --map``);
-    ``passages`` are the scan's, best first; ``transpose`` (this analysis's whole
-    steps) and ``suggestion_semitones`` (the scan's, to the cent) in semitones.
-    Times in s, the ceiling in dB.
+    ``passages`` are the scan's, best first, re-scored at the shift shown when
+    ``transpose`` is not 0 (score, modes; the ``~ceiling`` and contrast stay the
+    recording's); ``transpose`` (the shift shown) and ``suggestion_semitones``
+    (the scan's) in semitones, to the cent.  Times in s, the ceiling in dB.
     """
 
     path: Path
     duration_s: float
-    transpose: int
+    transpose: float
     score: float
     suggestion_semitones: float
     ceiling_db: float
@@ -59,6 +60,17 @@ class TrackAnalysis:
     def frame_at(self, t_s: float) -> int:
         """The flame frame at ``t_s`` seconds."""
         return int(min(self.height.shape[0] - 1, max(0, round(t_s * self.frame_rate_hz))))
+
+    @staticmethod
+    def modes_cell(passage: dict) -> str:
+        """A passage's modes for the table (up to 4), or, when it scores but no mode holds the
+        listing share (:data:`showkit.analysis.score.MIN_MODE_SHARE`), that they each hold less."""
+        from showkit.analysis.score import MIN_MODE_SHARE
+
+        text = " ".join(str(n) for n in passage.get("modes", [])[:4])
+        if text or not passage.get("score", 0) > 0:
+            return text
+        return f"each <{100 * MIN_MODE_SHARE:.0f}%"
 
     def notes_at(self, t_s: float) -> str:
         """The notes heard at ``t_s`` seconds (the map's frame), or ''."""
@@ -113,14 +125,15 @@ class TrackWork:
         check_audio_file(p, AudioError)  # missing, a folder, a pipe or a device: one line
         return p.resolve()
 
-    def analysis_job(self, path, transpose: int = 0, progress=None) -> TrackAnalysis:
-        """Analyse a track for the Track view (worker thread); ``transpose`` in semitones.
+    def analysis_job(self, path, transpose_cents: float = 0.0, progress=None) -> TrackAnalysis:
+        """Analyse a track for the Track view (worker thread); ``transpose_cents``: the shift tried, cents.
 
         The passages, score and suggested transposition are the scan's
         (:func:`showkit.analysis.scan.scan_paths`, cached); the flame frames are
         :func:`~showkit.analysis.pressure.passage_report` of the whole track at
-        its ceiling; the map and the score at a tried transposition come from
-        :func:`track_frames`.
+        its ceiling; the map, the score and the passages' scores and modes at a
+        tried transposition come from :func:`track_frames` (the score the scan's
+        suggestion promises, :meth:`showkit.analysis.scan._Work.promised_at`).
         """
         import numpy as np
 
@@ -142,17 +155,19 @@ class TrackWork:
         tick(1)
         report = passage_report(rig, path)
         tick(2)
-        frames_info = track_frames(rig, path, transpose * 100.0)
+        frames_info = track_frames(rig, path, float(transpose_cents))
         tick(3)
         frames = report.frames
         height, air = frames.height, frames.air_in
-        score = scan["score"] if transpose == 0 else frames_info["score"]
+        score = scan["score"] if transpose_cents == 0 else frames_info["score"]
+        passages = scan["passages"] if transpose_cents == 0 else shifted_passages(scan["passages"],
+                                                                                 frames_info["passages"])
         tick(4)
         return TrackAnalysis(
-            path=Path(path), duration_s=float(scan["duration_s"]), transpose=transpose,
+            path=Path(path), duration_s=float(scan["duration_s"]), transpose=round(float(transpose_cents) / 100.0, 2),
             score=float(score), suggestion_semitones=float(scan.get("transpose_semitones") or 0.0),
             ceiling_db=report.ceiling_db,
-            passages=sorted(scan["passages"], key=lambda p: -p["score"]), height=height, air_in=air,
+            passages=sorted(passages, key=lambda p: -p["score"]), height=height, air_in=air,
             contrast_frame=report.contrast_per_frame, frame_rate_hz=float(frames.frame_rate_hz),
             height_lo=float(np.min(height)) if height.size else 0.0,
             height_hi=float(np.max(height)) if height.size else 1.0,
@@ -183,11 +198,25 @@ class TrackWork:
         return render_cue(sheet, rig, locked, signals)
 
 
+def shifted_passages(recorded: list[dict], shifted: list[dict]) -> list[dict]:
+    """The passages re-scored at a transposition (``shifted``, :func:`track_frames`: score, modes)
+    with the recording's ``~ceiling`` and contrast from the scan's (``recorded``) for the same span
+    (none where no span matches: the table then leaves them blank rather than mix two analyses)."""
+    by_span = {(p["start_s"], p["end_s"]): p for p in recorded}
+    out = []
+    for q in shifted:
+        p = by_span.get((q["start_s"], q["end_s"]), {})
+        out.append({**q, "ceiling_db": p.get("ceiling_db"), "limited_by": p.get("limited_by"),
+                    "contrast": p.get("contrast")})
+    return out
+
+
 def track_frames(rig, path, shift_cents: float) -> dict:
     """The time x mode map and the score at a transposition (``shift_cents``; the scan's own analysis).
 
     The rows drawn are the modes hit most (at most :data:`MAP_ROWS`), in
     frequency order; each row is the map's strength where the mode is hit.
+    ``passages`` are the scan's spans re-scored at the shift.
     """
     import numpy as np
 
@@ -202,6 +231,6 @@ def track_frames(rig, path, shift_cents: float) -> dict:
     rows = np.nonzero(count > 0)[0]
     if rows.size > MAP_ROWS:
         rows = np.sort(rows[np.argsort(-count[rows], kind="stable")[:MAP_ROWS]])
-    return {"score": got["score"], "map_modes": [int(m["modes"][k]["n"]) for k in rows],
+    return {"score": got["score"], "passages": got["passages"], "map_modes": [int(m["modes"][k]["n"]) for k in rows],
             "map_energy": drawn[rows], "times_s": np.asarray(m["times_s"], dtype=float),
             "notes": got["notes"]}

@@ -10,6 +10,7 @@ from textual.widget import Widget
 from textual.widgets import DataTable, Static
 
 from showkit.printable import printable
+from showkit.safety import LEVEL_CAUTION
 from showkit.ui.drawing import flame_picture
 from showkit.ui.messages import ConditionsEntered, CueAdded
 from showkit.ui.viewbase import SessionView
@@ -59,6 +60,7 @@ class TubeView(SessionView):
         yield Static("", id="rig-facts")
         yield TubeDrawing(id="tube-drawing")
         yield ModeTable(id="mode-table", cursor_type="row")
+        yield Static(f"CAUTION: {LEVEL_CAUTION}", id="tube-caution")  # the flame rows are at the safe level
 
     def on_mount(self) -> None:
         t = self.query_one(ModeTable)

@@ -25,7 +25,8 @@ pitch/chroma accuracy of the dominant line against the highest sounding note
 (mir_eval.melody), the suggested transposition beside the ground truth's best
 one (``realmusic.shift_profile``, 25-cent grid) and the held share the
 suggestion would really give; for the best-key copies, the score the
-suggestion promises beside the score of the copy.  Overall: Spearman(score,
+suggestion promises beside the score of the copy (``--shifted DIR``: beside
+the piece really shifted by the suggestion, :func:`promises`).  Overall: Spearman(score,
 held share) (scipy), pooled mode-hit F1, pooled mir_eval multipitch, the
 held-note pitch error (``realmusic.held_note_errors``), the drum and noise
 scores; per passage, the score beside the ground truth's held share over the
@@ -259,6 +260,95 @@ def report(res: dict) -> str:
     return "\n".join(L)
 
 
+def render_bent(notes, seconds: float, path: Path, cents: float) -> np.ndarray:
+    """The notes rendered as ``realmusic._render`` renders them, every note bent by ``cents``.
+
+    The pitch wheel's range is set to +-12 semitones (RPN 0, the pitch-bend
+    sensitivity of the General MIDI spec, from memory; one event every 10 ms,
+    the notes 60 ms late so that the wheel is set before them), so the same
+    samples play at the same tempo, moved by the shift: the shift really
+    applied to the same performance.  fluidsynth plays a bend of 305 c as
+    about 302 c (measured on one flute note by the FFT peak).
+    """
+    import subprocess
+
+    import pretty_midi
+    import soundfile as sf
+
+    pm = pretty_midi.PrettyMIDI(initial_tempo=120.0)
+    by_program: dict = {}
+    for program, midi, on, off, vel in notes:
+        if program not in by_program:
+            ins = pretty_midi.Instrument(program=program)
+            for k, (num, val) in enumerate(((101, 0), (100, 0), (6, 12), (38, 0))):
+                ins.control_changes.append(pretty_midi.ControlChange(num, val, 0.01 * (k + 1)))
+            ins.pitch_bends.append(pretty_midi.PitchBend(int(np.clip(round(8192 * cents / 1200.0), -8192, 8191)),
+                                                         0.05))
+            by_program[program] = ins
+        by_program[program].notes.append(pretty_midi.Note(int(vel), int(midi), float(on) + 0.06,
+                                                          float(off) + 0.06))
+    pm.instruments.extend(by_program.values())
+    mid, raw = path.with_suffix(".mid"), path.with_suffix(".raw.wav")
+    pm.write(str(mid))
+    subprocess.run(["fluidsynth", "-ni", "-q", "-R", "0", "-C", "0", "-g", "0.5", "-r", str(rm.RATE_HZ),
+                    "-F", str(raw), str(rm.SOUNDFONT), str(mid)], check=True, capture_output=True, timeout=300)
+    x, _ = sf.read(str(raw), dtype="float32", always_2d=True)
+    raw.unlink()
+    mid.unlink()
+    n = round(seconds * rm.RATE_HZ)
+    x = x.mean(axis=1)
+    return np.pad(x[:n], (0, max(0, n - x.size)))
+
+
+def promises(res: dict, tracks: dict, base: rm.Corpus, folder: Path) -> str:
+    """The score each suggestion promises beside the score of the piece really shifted by it, two ways.
+
+    For every as-written piece with a suggestion, and for the best-key pieces at their key's shift:
+    the same MIDI performance re-rendered with the whole shift as a pitch bend (:func:`render_bent`)
+    and the recording shifted by librosa's pitch shifter (``transpose.render_preview``), each scanned.
+    Renders go to ``folder`` (any writable folder).
+    """
+    from showkit.analysis import scan as scan_mod
+    from showkit.analysis.transpose import render_preview
+
+    rig = base.rig()
+    pieces = {pc.name: pc for pc in UNSEEN}
+    keys = {n[:n.index("_key")]: int(n[n.index("_key") + 4:]) for n in tracks if "_key" in n}
+    folder.mkdir(parents=True, exist_ok=True)
+    L = ["promised score vs the piece really shifted (same performance with a pitch bend / the recording "
+         "through the pitch shifter):"]
+    errs: dict = {"bend": [], "shifter": []}
+    for n, t in res["tracks"].items():
+        if n not in pieces:
+            continue
+        shifts = ([t["transpose_cents"]] if t["transpose_cents"] else []) + ([100.0 * keys[n]] if n in keys else [])
+        if not shifts:
+            continue
+        work = scan_mod._analyse(rig, tracks[n].path)
+        for c in shifts:
+            bent = folder / f"{n}_bend{c:+.0f}c.wav"
+            if not bent.exists():
+                rm._write(bent, render_bent(rm.score_notes(pieces[n]), pieces[n].seconds, bent, c))
+            shifted = folder / f"{n}_shifter{c:+.0f}c.wav"
+            if not shifted.exists():
+                render_preview(tracks[n].path, 0.0, tracks[n].duration_s, c / 100.0, shifted)
+            promised = work.promised_at(c)[0]
+            got = {k: scan_mod._analyse(rig, p).score_at(0.0)[0] for k, p in (("bend", bent), ("shifter", shifted))}
+            line = (f"  {n:22s} {c:+5.0f} c: promised {promised:5.1f} (the one shift's score "
+                    f"{work.score_at(c)[0]:5.1f}); bent {got['bend']:5.1f}, pitch shifter {got['shifter']:5.1f}")
+            if c == t["transpose_cents"]:
+                for k in errs:
+                    errs[k].append(promised - got[k])
+            else:
+                line += f"; the MIDI copy in that key {res['tracks'][f'{n}_key{keys[n]:+d}']['score']:5.1f}"
+            L.append(line)
+    for k, e in errs.items():
+        if e:
+            L.append(f"  promised - {k}, over the suggestions: mean {np.mean(e):+.1f}, mean |.| "
+                     f"{np.mean(np.abs(e)):.1f}, largest |.| {np.max(np.abs(e)):.1f} points")
+    return "\n".join(L)
+
+
 def run_cli(folder: Path, rig_path: Path) -> str:
     """``python -m showkit scan FOLDER/tracks --rig RIG --no-cache`` as a user would run it."""
     cmd = [sys.executable, "-m", "showkit", "scan", str(folder / "tracks"), "--rig", str(rig_path), "--no-cache"]
@@ -275,6 +365,9 @@ def main() -> int:
                     help="folder of the tuned set (tests/realmusic.py) whose rig is used")
     ap.add_argument("--json", metavar="FILE")
     ap.add_argument("--cli", action="store_true", help="also run showkit scan on the folder")
+    ap.add_argument("--shifted", metavar="DIR",
+                    help="also render every suggestion really applied (pitch bend, pitch shifter) into DIR "
+                         "and compare the promised score with theirs")
     args = ap.parse_args()
     os.environ.setdefault("SHOWKIT_CACHE_DIR", tempfile.mkdtemp(prefix="showkit-eval-cache-"))
     folder = Path(args.folder)
@@ -291,6 +384,8 @@ def main() -> int:
     res = evaluate(built["tracks"], base, progress=lambda n: print(f"  scanning {n}", file=sys.stderr))
     print(f"scan + evaluation: {time.perf_counter() - t:.1f} s")
     print(report(res))
+    if args.shifted:
+        print(promises(res, built["tracks"], base, Path(args.shifted)))
     if args.cli:
         print(run_cli(folder, base.rig_path))
     if args.json:
