@@ -264,8 +264,7 @@ def _cached_shape(shape):
         folder.mkdir(parents=True, exist_ok=True)
         import json
 
-        import showkit
-        (folder / f"{key}.json").write_text(json.dumps({"version": showkit.ANALYSIS_VERSION, "result": shape}))
+        (folder / f"{key}.json").write_text(json.dumps({"version": scancache.cache_version(), "result": shape}))
         return ["scan", e.p("track.wav"), "--rig", e.p("rig.toml"), "--jobs", "1", "--json"]
     return argv
 

@@ -239,3 +239,23 @@ def test_learnt_template_is_the_quantile_of_the_nearby_notes():
     near = np.abs(semis[cands] - g) < multipitch.TEMPLATE_REACH_SEMITONES
     assert np.allclose(tab[low], np.quantile(ratios[near], multipitch.TEMPLATE_QUANTILE, axis=0), atol=1e-6)
     assert est.learn_template(cands[:3], ratios[:3]) is None    # too few notes: no template
+
+
+def test_a_template_with_no_usable_partial_cancels_as_observed():
+    # A template row with no partial above TEMPLATE_MIN_PARTIAL explains nothing: the found note's partials
+    # are cancelled as observed, exactly as without a template (it once gave inf * 0 = NaN there)
+    est = multipitch.estimator(RATE, 1024, 3, 480)
+    rng = np.random.default_rng(3)
+    mag = rng.rayleigh(1e-3, size=(480, 40)).astype(np.float32)
+    for f0 in (110.0, 220.0, 330.0):   # three harmonic tones in every frame
+        for m in range(1, 9):
+            k = int(round(m * f0 / est.bin_hz)) - 3
+            if 0 <= k < 480:
+                mag[k] += 0.5 / m
+    white = est.whiten(mag, 1e-6)
+    zeros = np.zeros((est.f0_hz.size, multipitch.MAX_HARMONICS), dtype=np.float32)
+    found, sal = est.estimate(white, template=zeros)
+    base, base_sal = est.estimate(white)
+    assert np.isfinite(sal).all()
+    assert np.array_equal(found, base) and np.allclose(sal, base_sal)
+    assert (found[:, 0] >= 0).all()

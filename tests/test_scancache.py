@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from pathlib import Path
+
 import numpy as np
 import pytest
 import soundfile as sf
@@ -71,6 +73,25 @@ def test_version_is_part_of_the_key(cache, monkeypatch):
     monkeypatch.setattr(showkit, "ANALYSIS_VERSION", showkit.ANALYSIS_VERSION + 1)
     assert scancache.cache_key("abc", rig) != key
     assert scancache.load(key) is None  # a file written by another version is stale
+
+
+def test_a_scan_only_change_leaves_the_locks_alone(cache, monkeypatch):
+    """SCAN_VERSION makes cached scans stale, and no lock: a lock never reads the scan."""
+    import showkit
+    from showkit.show.lock import sheet_rig, stale_reason
+    from showkit.show.sheet import load_sheet
+
+    rig = load_rig()
+    key = scancache.cache_key("abc", rig)
+    result = {"path": "t.wav", "duration_s": 1.0, "score": 1.0, "transpose_semitones": 0.0,
+              "transpose_score": 1.0, "error": None, "passages": []}
+    scancache.save(key, result)
+    monkeypatch.setattr(showkit, "SCAN_VERSION", showkit.SCAN_VERSION + 1)
+    assert scancache.cache_key("abc", rig) != key and scancache.load(key) is None
+    sheet = load_sheet(Path(__file__).resolve().parents[1] / "cues" / "first-look.toml")
+    locked = [c for c in sheet.cues if c.lock is not None]
+    assert locked
+    assert [stale_reason(sheet_rig(sheet), c.lock, None) for c in locked] == [None] * len(locked)
 
 
 def test_broken_cache_file_is_ignored(cache):

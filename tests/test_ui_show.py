@@ -284,4 +284,9 @@ async def test_a_rig_that_cannot_be_read_is_said_not_awaited(ui_short_show):
                 break
         assert "rig problem" in top and "loading" not in top
         assert "finite" in app.session.rig_error.what
+        # the Show view does not wait for checks that cannot come (it said "checking…" for ever)
+        title = str(app.query_one("#show-title", Static).render())
+        detail = str(app.query_one("#cue-detail", Static).render())
+        assert "rig problem" in title and "checking" not in title
+        assert "rig file cannot be read" in detail
         assert "rig-nan.toml" in app._status_text and "static_pressure" in app._status_text

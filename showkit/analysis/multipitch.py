@@ -288,8 +288,11 @@ class Estimator:
                 count = use.sum(axis=1)
                 rows = np.arange(r.shape[0])
                 lo, hi = r[rows, np.maximum(count - 1, 0) // 2], r[rows, np.minimum(count // 2, r.shape[1] - 1)]
-                level = np.where(count > 0, 0.5 * (lo + hi), np.inf)
-                amp = np.minimum(amp, (TEMPLATE_CAP * level[:, None] * t).astype(np.float32))
+                known = count > 0
+                level = np.where(known, 0.5 * (lo + hi), 0.0)
+                # no usable partial: cancel as observed (never inf * 0 = NaN into the residual)
+                cap = (TEMPLATE_CAP * level[:, None] * t).astype(np.float32)
+                amp = np.where(known[:, None], np.minimum(amp, cap), amp)
             flat = self.lobe_bin[c] * n + np.arange(n)[:, None, None]
             # one fancy-index add: each (bin, frame) once, since lobes never overlap (checked in __init__)
             # and ``detected`` is C-ordered (np.zeros, np.take), so the flat view writes through

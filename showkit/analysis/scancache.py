@@ -1,8 +1,8 @@
 """The scan cache: one JSON file per analysed track, rig and setting.
 
 The key is the SHA-256 of the file's content, the rig's acoustic and
-calibration hashes, the static pressure and reserve, and
-``showkit.ANALYSIS_VERSION``: a changed file, rig or analysis is never served
+calibration hashes, the static pressure and reserve, and the model's and the
+scan's versions (:func:`cache_version`): a changed file, rig or analysis is never served
 from the cache.  The files live under ``scan/`` in the user's cache folder
 (:func:`showkit.folders.cache_dir`: ``SHOWKIT_CACHE_DIR`` replaces the platform's
 folder; the tests use it).  Writes go to a temporary file, fsync'd and renamed,
@@ -63,11 +63,17 @@ def _store(path: Path, data: dict) -> None:
         pass  # only a cache
 
 
+def cache_version() -> str:
+    """The version a cached scan must carry: the model's and the scan's
+    (``showkit.ANALYSIS_VERSION``, ``showkit.SCAN_VERSION``)."""
+    return f"{showkit.ANALYSIS_VERSION}.{showkit.SCAN_VERSION}"
+
+
 def cache_key(content_sha256: str, rig) -> str:
     """Key of a track's result for a rig at its static pressure and reserve (hex)."""
     data = {"content": content_sha256, "acoustic": rig.acoustic_hash(),
             "calibration": rig.calibration_hash(), "static_pa": repr(float(rig.static_pa)),
-            "reserve": repr(float(rig.reserve)), "version": showkit.ANALYSIS_VERSION}
+            "reserve": repr(float(rig.reserve)), "version": cache_version()}
     return hashlib.sha256(json.dumps(data, sort_keys=True).encode()).hexdigest()[:32]
 
 
@@ -107,7 +113,7 @@ def load(key: str) -> dict | None:
     the shape a scan writes (a damaged or foreign entry is ignored and the track analysed again).
     """
     data = read_json(cache_dir() / f"{key}.json")
-    if not isinstance(data, dict) or data.get("version") != showkit.ANALYSIS_VERSION:
+    if not isinstance(data, dict) or data.get("version") != cache_version():
         return None
     result = data.get("result")
     return result if _well_formed(result) else None
@@ -115,4 +121,4 @@ def load(key: str) -> dict | None:
 
 def save(key: str, result: dict) -> None:
     """Store a result with the safe writer; a cache that cannot be written is skipped silently."""
-    _store(cache_dir() / f"{key}.json", {"version": showkit.ANALYSIS_VERSION, "result": result})
+    _store(cache_dir() / f"{key}.json", {"version": cache_version(), "result": result})

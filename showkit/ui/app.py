@@ -300,7 +300,11 @@ class ShowkitApp(JobRunner, App):
             else:
                 self.say(f"all {len(checks)} cues ok for today's conditions")
 
-        self.run_job("checks", work, done, "checking every cue against today's conditions")
+        def failed(exc):  # the rig could not be read: the Show view says so instead of "checking…"
+            if self.view("show") is not None:
+                self.view("show").refresh_table()
+
+        self.run_job("checks", work, done, "checking every cue against today's conditions", failed=failed)
 
     def start_lock(self, ids: list[str] | None, everything: bool = False) -> None:
         s = self.session

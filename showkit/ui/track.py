@@ -182,10 +182,10 @@ class TrackView(SessionView):
         Binding("right_parenthesis", "mark('out')", "out here", show=False),
         Binding("c", "add_cue", "add to show"),
         Binding("s", "suggested", "scan's shift"),
-        Binding("plus,equals_sign", "transpose(100)", "transpose +1 st"),
-        Binding("minus", "transpose(-100)", "transpose -1 st"),
-        Binding("greater_than_sign", "transpose(25)", "transpose +25 c", show=False),
-        Binding("less_than_sign", "transpose(-25)", "transpose -25 c", show=False),
+        Binding("plus,equals_sign", f"transpose({SEMITONE_CENTS})", "transpose +1 st"),
+        Binding("minus", f"transpose({-SEMITONE_CENTS})", "transpose -1 st"),
+        Binding("greater_than_sign", f"transpose({FINE_STEP_CENTS})", f"transpose +{FINE_STEP_CENTS} c", show=False),
+        Binding("less_than_sign", f"transpose({-FINE_STEP_CENTS})", f"transpose -{FINE_STEP_CENTS} c", show=False),
         Binding("0", "as_recorded", "as recorded", show=False),
         Binding("V", "export('track_preview')", "preview video", show=False),
         Binding("P", "export('track_map')", "map PNG", show=False),
@@ -260,7 +260,9 @@ class TrackView(SessionView):
         self.query_one("#track-title", Static).update(Text(f"{printable(name)}  analysing…"))
 
         def failed(exc):
-            if wanted == str(self.path or self.wanted):
+            if wanted == str(self.path or self.wanted) and shift == self.transpose_cents:
+                # the shift asked for was never shown: back to the one on screen (or none)
+                self.transpose_cents = int(round(self.analysis.transpose * 100)) if self.analysis else 0
                 self.query_one("#track-title", Static).update(
                     Text(f"{printable(name)}  not analysed: {exc.what} (details in the status line)"))
 
