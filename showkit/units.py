@@ -67,13 +67,15 @@ def _norm(unit: str) -> str:
     return unit.lower().replace(" ", "").replace("°", "").replace("_", "")
 
 
-def _unit_names(table: dict[str, float]) -> str:
-    return ", ".join(sorted({k for k in table if k.isascii() and k not in ('"', "'")}))
-
-
 #: How a unit is written in a hint (the tables hold lower case: the parser ignores case).
 _UNIT_SPELLING = {"pa": "Pa", "hpa": "hPa", "kpa": "kPa", "inh2o": "inH2O", "inwc": "inWC", "mmh2o": "mmH2O",
                   "mmwc": "mmWC", "hz": "Hz", "khz": "kHz", "pa s/m3": "Pa s/m3"}
+
+
+def _unit_names(table: dict[str, float]) -> str:
+    """The table's units as a hint writes them (``inH2O``, ``hPa``: the spelling of the trade)."""
+    names = {k for k in table if k.isascii() and k not in ('"', "'")}
+    return ", ".join(sorted(_UNIT_SPELLING.get(k, k) for k in names))
 
 
 def _near_unit(unit: str, table: dict[str, float]) -> str:

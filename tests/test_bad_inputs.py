@@ -374,7 +374,7 @@ CASES = [
     # a rig given where a sheet goes said "unknown field 'name'": every command taking a sheet names it a rig
     *[Case(f"rig-as-sheet-{argv[0]}", lambda e, argv=argv: [argv[0], e.p("rig.toml"), *[
         e.p(a) if a.startswith("out.") else a for a in argv[1:]]],
-        "rig.toml: this is a rig file, not a cue sheet -- give the cue sheet (the rig goes in its `rig = ...`",
+        "rig.toml: this is a rig file, not a cue sheet -- give the cue sheet; a sheet names its rig in its `rig = ",
         unchanged=("rig.toml",))
       for argv in (["lock"], ["check"], ["render", "-o", "out.wav"], ["run", "--auto"], ["book", "-o", "out.pdf"],
                    ["preview", "-o", "out.mp4"])],
@@ -504,6 +504,9 @@ CASES = [
          "over a file being scanned -- give another file name, e.g. ", unchanged=("track.wav",), patch=_no_scan,
          check=lambda e, out, err: ("track.csv: the scan reads this file" in err) or pytest.fail(err)),
     Case("scan-map-over-track-in-folder", lambda e: ["scan", e.dir, "--jobs", "1", "--map", e.p("track.wav")],
+         "file being scanned", unchanged=("track.wav",), patch=_no_scan),
+    # --plot was checked only after the whole scan (review)
+    Case("scan-plot-over-track-in-folder", lambda e: ["scan", e.dir, "--jobs", "1", "--plot", e.p("track.wav")],
          "file being scanned", unchanged=("track.wav",), patch=_no_scan),
     Case("scan-csv-folder-names-csv", lambda e: ["scan", e.p("track.wav"), "--jobs", "1", "--csv", e.dir], "out.csv",
          patch=_no_scan),

@@ -258,8 +258,8 @@ def test_a_passage_held_on_modes_too_briefly_to_list_says_so():
     from showkit.analysis.score import MIN_MODE_SHARE
     from showkit.cli.scan_cmd import _modes_text
 
-    assert MIN_MODE_SHARE == 0.05  # the UI's column says "each <5%"
-    assert _modes_text({"score": 2.7, "modes": [], "mode_shares": []}) == "each under 5%"
+    assert MIN_MODE_SHARE == 0.05
+    assert _modes_text({"score": 2.7, "modes": [], "mode_shares": []}) == "each <5%"
     assert _modes_text({"score": 0.0, "modes": [], "mode_shares": []}) == "none"
     assert _modes_text({"score": 40.0, "modes": [3], "mode_shares": [{"n": 3, "note": "C4", "share": 0.4}]}) \
         == "n3 C4 40%"

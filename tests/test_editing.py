@@ -228,3 +228,20 @@ def test_the_stop_note_names_the_limit_that_set_the_ceiling(tmp_path):
     change = ed.set_gain("talk", 70.0)
     assert change.stopped and change.gain_db == 60.0
     assert "plays nothing" in change.note and "safe line" not in change.note
+
+
+def test_headroom_of_a_cue_over_by_a_hair_never_reads_minus_zero():
+    """A gain locked at the ceiling and a static pressure a hair lower today: the check table's
+    headroom shows how much over (it read "-0.00" beside "over"); the amount never prints as
+    "0.00" or in exponent form.  Closed form: 20 log10(19.927 / 20) = -0.0317 dB."""
+    import math
+
+    from showkit.show.status import headroom_text, over_amount_text
+
+    over = -20 * math.log10(19.927 / 20)
+    assert headroom_text(-over) == "-0.03"
+    assert headroom_text(-0.0043) == "-0.0043"
+    assert headroom_text(-1e-8) == "-<0.001"
+    assert headroom_text(0.0) == "+0.00" and headroom_text(1.234) == "+1.23"
+    assert headroom_text(None) == "-" and headroom_text(-3.0, silent=True) == "-"
+    assert over_amount_text(1e-8) == "<0.001" and over_amount_text(0.25) == "0.25"

@@ -190,7 +190,7 @@ def test_unknown_unit_message_lists_known_units():
     with pytest.raises(InputError) as info:
         units.pressure_pa("3 atm", "--static")
     assert "atm" in info.value.what
-    assert "inh2o" in info.value.fix and "mbar" in info.value.fix
+    assert "inH2O" in info.value.fix and "mbar" in info.value.fix
 
 
 # --- the one number-or-text step and the one gain reader ---------------------------

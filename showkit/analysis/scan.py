@@ -127,9 +127,10 @@ class _Work:
         """
         if shift_cents == 0:
             return self.score_at(0.0)
-        runs = [self.score_at(shift_cents + d) for d in transpose.promise_offsets()]
+        offsets = list(transpose.promise_offsets())
+        runs = [self.score_at(shift_cents + d) for d in offsets]
         least = min(runs, key=lambda r: r[0])
-        return float(least[0]), list(least[1]), runs[len(runs) // 2][2]
+        return float(least[0]), list(least[1]), runs[offsets.index(0.0)][2]
 
 
 def _analyse(rig: Rig, path: str | Path, threads: int | None = None) -> _Work:

@@ -379,6 +379,12 @@ def mode_shares(mf: ModeFrames, table: ModeTable, first: int, last: int) -> list
     return [(int(table.n[k]), float(share[k])) for k in order if share[k] >= MIN_MODE_SHARE]
 
 
+def unlisted_modes_text(score: float) -> str:
+    """What a passage's modes column says when no mode holds :data:`MIN_MODE_SHARE` of it:
+    ``"each <5%"`` when it still scores (held on modes, none long enough to list), else ``""``."""
+    return f"each <{100 * MIN_MODE_SHARE:.0f}%" if score > 0 else ""
+
+
 def track_score(passage_scores: list[float], lengths_s: list[float]) -> float:
     """Duration-weighted mean of the best passages covering :data:`TRACK_COVER` of the track."""
     total = float(sum(lengths_s))

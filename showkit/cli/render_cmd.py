@@ -18,8 +18,8 @@ from showkit.printable import printable
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("sheet", help="cue sheet (TOML)")
     out = parser.add_mutually_exclusive_group(required=True)
-    out.add_argument("-o", "--output", metavar="SHOW.wav", help="one WAV with every cue in order (48 kHz)")
-    out.add_argument("--per-cue", metavar="DIR", help="one WAV per cue, NN-id.wav, at the source rate")
+    out.add_argument("-o", "--output", metavar="SHOW.wav", help="one WAV with every cue in order (48 kHz); a file it replaces is kept as SHOW.wav.bak")
+    out.add_argument("--per-cue", metavar="DIR", help="one WAV per cue, NN-id.wav, at the source rate; files it replaces are kept as .bak")
     parser.add_argument("--bits", choices=("float", "24"), default="float",
                         help="sample format: 32-bit float (default) or 24-bit integer")
     add_conditions_options(parser)

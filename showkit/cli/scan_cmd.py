@@ -98,13 +98,9 @@ def _fmt(x: float) -> str:
 def _modes_text(p: dict) -> str:
     shares = p.get("mode_shares") or [{"n": n, "note": "", "share": 0.0} for n in p["modes"]]
     text = ", ".join(f"n{s['n']} {s['note']} {100 * s['share']:.0f}%" for s in shares[:4])
-    if text:
-        return text
-    if p.get("score", 0) > 0:  # held on modes, but none for long enough to be listed
-        from showkit.analysis.score import MIN_MODE_SHARE
+    from showkit.analysis.score import unlisted_modes_text
 
-        return f"each under {100 * MIN_MODE_SHARE:.0f}%"
-    return "none"
+    return text or unlisted_modes_text(p.get("score", 0)) or "none"
 
 
 def _print_table(tracks: list[dict]) -> None:
@@ -211,7 +207,7 @@ def run(args) -> int:
     # before the work: a CSV or map over a track (also one found in a folder given), a folder or a
     # pipe is refused at once, not after the whole scan
     scanned = [(p, "a file being scanned") for p in [*args.paths, *expand_paths(args.paths)]]
-    for option, what, ending in (("csv", "CSV file", ".csv"), ("map", "scan map", ".json")):
+    for option, what, ending in (("csv", "CSV file", ".csv"), ("map", "scan map", ".json"), ("plot", "scan plot", ".png")):
         if getattr(args, option) is not None:
             from showkit.safesave import check_target
 

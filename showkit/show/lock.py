@@ -28,7 +28,7 @@ from showkit.physics.family import STATIC_SPAN
 from showkit.rigfile import Rig, load_rig
 from showkit.show.sheet import Cue, Lock, Sheet, floor_db, load_sheet, rounded_lock
 from showkit.show.sources import TONE_RATE_HZ, CueSignal, SignalMemo, signal_for
-from showkit.show.status import SILENT_MESSAGE, CueStatus
+from showkit.show.status import SILENT_MESSAGE, CueStatus, over_amount_text
 
 #: The rate a whole show is rendered and usually played at, Hz: a cue at another
 #: rate is locked at both (see :func:`compute_lock`).
@@ -244,19 +244,6 @@ def today_ceiling(lock: Lock, static_pa: float, reserve: float) -> rule.Ceiling:
     """A valid lock's ceiling re-derived for today's static pressure and reserve."""
     locked = rule.Ceiling(lock.ceiling_db, lock.pressure_db, lock.full_scale_db, lock.limited_by)
     return rule.rescale(locked, lock.static_pa, static_pa, lock.reserve, reserve)
-
-
-def over_amount_text(over_db: float) -> str:
-    """How far a gain is over its ceiling, dB, with the decimals that show it: a gain locked at
-    the ceiling and a static pressure a hair lower today read ``0.03``, and one still smaller
-    is never shown as ``0.00`` (two significant digits below 0.01 dB).
-
-    Parameters
-    ----------
-    over_db : float
-        Gain minus ceiling, dB (above zero).
-    """
-    return f"{over_db:.2f}" if round(over_db, 2) >= 0.01 else f"{over_db:.2g}"
 
 
 def over_message(over_db: float, ceiling_db: float, lock: Lock, static_pa: float, reserve: float) -> str:

@@ -287,7 +287,7 @@ def _sheet_from_data(data: dict, where: str) -> Sheet:
     if looks_like_rig(data):
         # `lock RIG.toml` said "unknown field 'name'": every command reading a sheet comes here
         raise SheetError("this is a rig file, not a cue sheet", where,
-                         "give the cue sheet (the rig goes in its `rig = ...` or --rig)")
+                         "give the cue sheet; a sheet names its rig in its `rig = \"...\"` line")
     _unknown(data, _TOP_KEYS, f"{where}: {{key}}")
     fmt = data.get("format", FORMAT_VERSION)
     if isinstance(fmt, bool) or not isinstance(fmt, int):

@@ -64,10 +64,30 @@ def ceiling_text(ceiling_db: float | None, silent: bool = False, digits: int = 2
     return "-" if ceiling_db is None else f"{ceiling_db:+.{digits}f}{unit}"
 
 
+def over_amount_text(over_db: float) -> str:
+    """How far a gain is over its ceiling, dB, with the decimals that show it: a gain locked at
+    the ceiling and a static pressure a hair lower today read ``0.03``, and one still smaller
+    is never shown as ``0.00`` (two significant digits below 0.01 dB, ``<0.001`` below that).
+
+    Parameters
+    ----------
+    over_db : float
+        Gain minus ceiling, dB (above zero).
+    """
+    if round(over_db, 2) >= 0.01:
+        return f"{over_db:.2f}"
+    return f"{over_db:.2g}" if over_db >= 0.001 else "<0.001"
+
+
 def headroom_text(headroom_db: float | None, silent: bool = False, digits: int = 2, unit: str = "") -> str:
     """Headroom (ceiling - gain, dB) as the tables show it: ``-`` while it is not known and
-    for a cue that plays nothing (no level, so nothing to be below); see :func:`ceiling_text`."""
-    return "-" if silent or headroom_db is None else f"{headroom_db:+.{digits}f}{unit}"
+    for a cue that plays nothing (no level, so nothing to be below); see :func:`ceiling_text`.
+    A cue over its ceiling never reads ``-0.00``: the amount shows (:func:`over_amount_text`)."""
+    if silent or headroom_db is None:
+        return "-"
+    if headroom_db < 0 and round(headroom_db, digits) == 0:
+        return f"-{over_amount_text(-headroom_db)}{unit}"
+    return f"{headroom_db:+.{digits}f}{unit}"
 
 
 class State(StrEnum):

@@ -334,9 +334,11 @@ class ShowkitApp(JobRunner, App):
         self.say(f"added cue {cue.id} at {cue.gain_db:+.1f} dB (saved); locking its ceiling…")
         # a level was just set (from any view, the Track view's c too): the level caution with it
         from showkit.safety import LEVEL_CAUTION
+        from showkit.show.sheet import PauseSource
 
-        self.notify(LEVEL_CAUTION, title=f"CAUTION: cue {printable(cue.id)} set to {cue.gain_db:+.1f} dB",
-                    severity="warning", timeout=8)
+        if not isinstance(cue.source, PauseSource):  # a pause plays nothing: no level to warn of
+            self.notify(LEVEL_CAUTION, title=f"CAUTION: cue {printable(cue.id)} set to {cue.gain_db:+.1f} dB",
+                        severity="warning", timeout=8)
         self.start_lock([cue.id])
 
     def change_conditions(self, static=None, temperature=None, *, recheck_run: bool = True) -> bool:

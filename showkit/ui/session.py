@@ -70,9 +70,12 @@ class Session(SheetEditor):
                 # never open the show on another rig than asked without saying so
                 from showkit.errors import InputError
 
-                raise InputError(f"this track's show already names another rig ({session.sheet.rig})",
-                                 str(sheet_path), "open it without --rig, or give --sheet NEW.toml for a show "
-                                 "on this rig")
+                import os
+
+                shown = "the demo rig" if named is None else os.path.normpath(named)
+                raise InputError(f"this track's show already names another rig ({shown})", str(sheet_path),
+                                 "open it without --rig, edit that sheet's rig = line, or give --sheet NEW.toml "
+                                 "for a show on this rig")
             return session
         rig = "demo" if rig_path is None else relative_to(Path(rig_path).expanduser(), sheet_path.parent)
         sheet = Sheet(title=f"Show with {Path(track).stem}", rig=rig, cues=[], path=sheet_path)

@@ -63,14 +63,10 @@ class TrackAnalysis:
 
     @staticmethod
     def modes_cell(passage: dict) -> str:
-        """A passage's modes for the table (up to 4), or, when it scores but no mode holds the
-        listing share (:data:`showkit.analysis.score.MIN_MODE_SHARE`), that they each hold less."""
-        from showkit.analysis.score import MIN_MODE_SHARE
+        """A passage's modes for the table (up to 4), or what the scan says when none is listed."""
+        from showkit.analysis.score import unlisted_modes_text
 
-        text = " ".join(str(n) for n in passage.get("modes", [])[:4])
-        if text or not passage.get("score", 0) > 0:
-            return text
-        return f"each <{100 * MIN_MODE_SHARE:.0f}%"
+        return " ".join(str(n) for n in passage.get("modes", [])[:4]) or unlisted_modes_text(passage.get("score", 0))
 
     def notes_at(self, t_s: float) -> str:
         """The notes heard at ``t_s`` seconds (the map's frame), or ''."""
