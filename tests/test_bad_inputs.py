@@ -323,6 +323,14 @@ def _old_render_kept(*names):
     return check
 
 
+def _old_file_kept(name, old, new_starts):
+    """The file replaced is kept whole as NAME.bak; the new one starts as it should."""
+    def check(env, out, err):
+        assert env.p(name + ".bak").read_bytes() == old, name
+        assert env.p(name).read_bytes().startswith(new_starts), name
+    return check
+
+
 def _victim_intact(env, out, err):
     assert env.p("victim.txt").read_text() == "precious\n"
     assert env.p("show.toml.bak").is_file() and not env.p("show.toml.bak").is_symlink()
@@ -517,6 +525,13 @@ CASES = [
     Case("render-per-cue-keeps-backups", lambda e: (e.write("d/01-song.wav", b"old render"),
                                                    ["render", e.p("show.toml"), "--per-cue", e.p("d")])[-1],
          None, 0, check=_old_render_kept("d/01-song.wav")),
+    # the same rule for the scan's CSV and map (they replaced an older one with no copy)
+    Case("scan-csv-keeps-a-backup", lambda e: (e.write("out.csv", b"old csv"), [
+        "scan", e.p("track.wav"), "--jobs", "1", "--csv", e.p("out.csv")])[-1],
+         None, 0, check=_old_file_kept("out.csv", b"old csv", b"path,track_score,")),
+    Case("scan-map-keeps-a-backup", lambda e: (e.write("m.json", b"old map"), [
+        "scan", e.p("track.wav"), "--jobs", "1", "--map", e.p("m.json")])[-1],
+         None, 0, check=_old_file_kept("m.json", b"old map", b"{")),
     Case("lock-backup-symlink", lambda e: (e.write("victim.txt", "precious\n"),
                                            os.symlink(e.p("victim.txt"), e.p("show.toml.bak")),
                                            ["lock", e.p("show.toml")])[-1], None, 0, check=_victim_intact),

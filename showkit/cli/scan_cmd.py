@@ -159,7 +159,7 @@ def _write_csv(path: str, tracks: list[dict], protect=()) -> None:
                                    " ".join(str(n) for n in p["modes"]), p["ceiling_db"], p["contrast"]])
         text = f.getvalue()
     # the safe writer: a full disk or a bad path leaves any earlier CSV whole
-    write_text(path, text, backups=0, protect=protect, what="CSV file")
+    write_text(path, text, backups=1, protect=protect, what="CSV file")
 
 
 def _previews(tracks: list[dict], semitones: float, protect=()) -> None:
@@ -185,7 +185,7 @@ def _write_map(rig, track: dict, target: str, protect=()) -> None:
 
     data = track_map(rig, track["path"])
     data = {"track": track["path"], **data}
-    write_text(Path(target), json.dumps(data, separators=(",", ":")) + "\n", backups=0, protect=protect,
+    write_text(Path(target), json.dumps(data, separators=(",", ":")) + "\n", backups=1, protect=protect,
                what="scan map")
     print(f"map: {printable(target)}", file=sys.stderr)
 

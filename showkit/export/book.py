@@ -380,7 +380,7 @@ def write_book(data: BookData, path, paper: str = "a4", png_dir=None) -> dict:
     names = _page_names(data, {"order": len(order), "tube": len(tube)})
     pngs = []
     try:
-        with replacing(path, backups=0, suffix=".pdf") as tmp:
+        with replacing(path, backups=1, suffix=".pdf") as tmp:
             with PdfPages(tmp, metadata={"Title": f"Show book: {data.sheet.title}",
                                          "Subject": "flame tube show book", "Creator": "showkit"}) as pdf:
                 for fig in pages:

@@ -79,7 +79,7 @@ def save_figure(fig, path, dpi: int = 100) -> Path:
     if not folder.is_dir():
         raise InputError("no such folder", str(folder), "create the folder first or give another path")
     try:
-        with replacing(path, backups=0, suffix=suffix) as tmp:
+        with replacing(path, backups=1, suffix=suffix) as tmp:
             fig.savefig(tmp, dpi=dpi, format=suffix[1:])
     except OSError as exc:
         raise InputError(f"cannot write the picture ({exc.strerror or exc})", str(path),

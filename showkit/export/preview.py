@@ -474,7 +474,7 @@ def write_video(tl: Timeline, out, size=DEFAULT_SIZE, magnify: float = 1.0, prog
         wav = Path(scratch) / "sound.wav"
         write_wav(wav, tl.audio, tl.rate_hz, subtype="FLOAT")
         try:
-            with replacing(out, backups=0, suffix=out.suffix) as tmp:
+            with replacing(out, backups=1, suffix=out.suffix) as tmp:
                 writer = imageio_ffmpeg.write_frames(
                     str(tmp), (w, h), fps=FPS, codec="libx264", macro_block_size=2, quality=None,
                     audio_path=str(wav), audio_codec="aac", ffmpeg_log_level="error",
