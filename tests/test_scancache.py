@@ -60,8 +60,13 @@ def test_changed_rig_is_analysed_again(cache, track, change):
     assert scan_mod.scan_paths(other, [track], jobs=1)[0]["cached"] is False
 
 
-def test_version_is_part_of_the_key(cache, monkeypatch):
+@pytest.mark.parametrize("version", ["ANALYSIS_VERSION", "SCAN_VERSION"])
+def test_version_is_part_of_the_key(cache, monkeypatch, version):
+    """Either version makes a cached scan stale; only ANALYSIS_VERSION stales a lock (a lock never
+    reads the scan, so a scan-only change leaves the example sheets locked)."""
     import showkit
+    from showkit.show.lock import sheet_rig, stale_reason
+    from showkit.show.sheet import load_sheet
 
     rig = load_rig()
     key = scancache.cache_key("abc", rig)
@@ -70,28 +75,14 @@ def test_version_is_part_of_the_key(cache, monkeypatch):
               "transpose_score": 1.0, "error": None, "passages": []}
     scancache.save(key, result)
     assert scancache.load(key) == result
-    monkeypatch.setattr(showkit, "ANALYSIS_VERSION", showkit.ANALYSIS_VERSION + 1)
+    monkeypatch.setattr(showkit, version, getattr(showkit, version) + 1)
     assert scancache.cache_key("abc", rig) != key
     assert scancache.load(key) is None  # a file written by another version is stale
-
-
-def test_a_scan_only_change_leaves_the_locks_alone(cache, monkeypatch):
-    """SCAN_VERSION makes cached scans stale, and no lock: a lock never reads the scan."""
-    import showkit
-    from showkit.show.lock import sheet_rig, stale_reason
-    from showkit.show.sheet import load_sheet
-
-    rig = load_rig()
-    key = scancache.cache_key("abc", rig)
-    result = {"path": "t.wav", "duration_s": 1.0, "score": 1.0, "transpose_semitones": 0.0,
-              "transpose_score": 1.0, "error": None, "passages": []}
-    scancache.save(key, result)
-    monkeypatch.setattr(showkit, "SCAN_VERSION", showkit.SCAN_VERSION + 1)
-    assert scancache.cache_key("abc", rig) != key and scancache.load(key) is None
-    sheet = load_sheet(Path(__file__).resolve().parents[1] / "cues" / "first-look.toml")
-    locked = [c for c in sheet.cues if c.lock is not None]
-    assert locked
-    assert [stale_reason(sheet_rig(sheet), c.lock, None) for c in locked] == [None] * len(locked)
+    if version == "SCAN_VERSION":
+        sheet = load_sheet(Path(__file__).resolve().parents[1] / "cues" / "first-look.toml")
+        locked = [c for c in sheet.cues if c.lock is not None]
+        assert locked
+        assert [stale_reason(sheet_rig(sheet), c.lock, None) for c in locked] == [None] * len(locked)
 
 
 def test_broken_cache_file_is_ignored(cache):
