@@ -206,13 +206,15 @@ def run(args) -> int:
     rig = load_rig_from_args(args)
     # before the work: a CSV or map over a track (also one found in a folder given), a folder or a
     # pipe is refused at once, not after the whole scan
-    scanned = [(p, "a file being scanned") for p in [*args.paths, *expand_paths(args.paths)]]
-    for option, what, ending in (("csv", "CSV file", ".csv"), ("map", "scan map", ".json"), ("plot", "scan plot", ".png")):
-        if getattr(args, option) is not None:
-            from showkit.safesave import check_target
+    outputs = [(getattr(args, option), what, ending) for option, what, ending in (
+        ("csv", "CSV file", ".csv"), ("map", "scan map", ".json"), ("plot", "scan plot", ".png"))
+        if getattr(args, option) is not None]
+    if outputs:  # the folders are walked for this only when there is an output to check
+        from showkit.safesave import check_target
 
-            check_target(Path(getattr(args, option)), scanned, what, ending=ending,
-                         reads="the scan reads this file")
+        scanned = [(p, "a file being scanned") for p in [*args.paths, *expand_paths(args.paths)]]
+        for target, what, ending in outputs:
+            check_target(Path(target), scanned, what, ending=ending, reads="the scan reads this file")
     bar = _Bar()
     try:
         tracks = scan_paths(rig, args.paths, jobs=args.jobs, use_cache=not args.no_cache, progress=bar)
