@@ -72,10 +72,14 @@ _UNIT_SPELLING = {"pa": "Pa", "hpa": "hPa", "kpa": "kPa", "inh2o": "inH2O", "inw
                   "mmwc": "mmWC", "hz": "Hz", "khz": "kHz", "pa s/m3": "Pa s/m3"}
 
 
+def _named_units(table: dict[str, float]) -> set[str]:
+    """The table's units a hint names (ASCII words: not the ``"``/``'`` of feet and inches)."""
+    return {k for k in table if k.isascii() and k not in ('"', "'")}
+
+
 def _unit_names(table: dict[str, float]) -> str:
     """The table's units as a hint writes them (``inH2O``, ``hPa``: the spelling of the trade)."""
-    names = {k for k in table if k.isascii() and k not in ('"', "'")}
-    return ", ".join(sorted(_UNIT_SPELLING.get(k, k) for k in names))
+    return ", ".join(sorted(_UNIT_SPELLING.get(k, k) for k in _named_units(table)))
 
 
 def _near_unit(unit: str, table: dict[str, float]) -> str:
@@ -83,7 +87,7 @@ def _near_unit(unit: str, table: dict[str, float]) -> str:
     ``inH2O``) by difflib's ratio, as field typos get, then the list of units."""
     import difflib
 
-    names = {_norm(k): k for k in table if k.isascii() and k not in ('"', "'")}
+    names = {_norm(k): k for k in _named_units(table)}
     near = difflib.get_close_matches(_norm(unit), sorted(names), n=1)
     hint = f"did you mean {_UNIT_SPELLING.get(names[near[0]], names[near[0]])!r}? " if near else ""
     return f"{hint}use one of: {_unit_names(table)}"

@@ -35,7 +35,7 @@ WHITEN_FLOOR_DB = -100.0
 #: on the rendered scores it finds hidden doublings (mode-hit F1 0.740 -> 0.753, unseen pieces 0.728 ->
 #: 0.754; dominant line 0.648 -> 0.665, unseen 0.56 -> 0.60) but more upper partials with them
 #: (multi-pitch precision 0.627 -> 0.585, unseen 0.673 -> 0.631) and the organ chorale's line falls
-#: (0.46 -> 0.39); costs about 0.2 s per 4-minute track.  Turning it on changes the scan: bump ANALYSIS_VERSION.
+#: (0.46 -> 0.39); costs about 0.2 s per 4-minute track.  Turning it on changes the scan: bump SCAN_VERSION.
 OWN_TIMBRE = False
 #: The first search for the timbre reads every this many frames.
 LEARN_EVERY = 4

@@ -381,8 +381,8 @@ class ShowkitApp(JobRunner, App):
         s = self.session
         bar = self.query_one("#topbar", Static)
         width = max(20, (bar.size.width or self.size.width) - 2)
-        if not s.rig_loaded and s.rig_error:  # the rig file could not be read: say so, never "loading"
-            variants = [[f"rig problem: {s.rig_error.what}"], ["rig problem (status line)"]]
+        if s.rig_problem is not None:  # the rig file could not be read: say so, never "loading"
+            variants = [[f"rig problem: {s.rig_problem.what}"], ["rig problem (status line)"]]
         elif not s.rig_loaded:  # loading the rig imports the model: done in the background
             variants = [["loading the rig…"]]
         else:

@@ -103,6 +103,12 @@ class Session(SheetEditor):
         return self._base_rig is not None
 
     @property
+    def rig_problem(self):
+        """Why the rig cannot be read (the :class:`~showkit.errors.ShowkitError`), while it is not
+        loaded and its last read failed; else ``None`` (loaded, or not tried yet)."""
+        return None if self._base_rig is not None else self.rig_error
+
+    @property
     def rig(self):
         """The sheet's rig with today's static pressure and gas temperature."""
         return self.base_rig().with_conditions(static_pa=self.static_pa, temperature_k=self.temperature_k)

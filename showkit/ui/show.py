@@ -106,7 +106,7 @@ class ShowView(SessionView):
         s = self.session
         checks = list(s.checks.values())
         counts = {k: sum(1 for c in checks if c.status == k) for k in CueStatus}
-        waiting = "rig problem (status line)" if s.rig_error is not None and not s.rig_loaded else "checking…"
+        waiting = "checking…" if s.rig_problem is None else "rig problem (status line)"
         state = "  ".join(f"{v} {k}" for k, v in counts.items() if v) or waiting
         return (f"[b]{escape(printable(s.sheet.title))}[/b]  ({units.format_count(len(s.sheet.cues), 'cue')}: {state})  "
                 f"{escape(printable(s.sheet.path.name))}")
@@ -119,8 +119,8 @@ class ShowView(SessionView):
             return
         cue = self.session.sheet.cue(cid)
         check = self.session.checks.get(cid)
-        waiting = ("not checked: the rig file cannot be read (status line)"
-                   if self.session.rig_error is not None and not self.session.rig_loaded else "checking…")
+        waiting = ("checking…" if self.session.rig_problem is None
+                   else "not checked: the rig file cannot be read (status line)")
         msg = waiting if check is None else ui_message(check.message)
         silent = check is not None and check.silent  # the note says it plays nothing: no ceiling to give
         ceiling = "" if check is None or check.ceiling_db is None or silent else \
