@@ -465,6 +465,14 @@ CASES = [
     Case("unknown-option-measure-sweep", lambda e: ["measure", "sweep", "--out", e.p("s.wav"), "--frob", "3"],
          "measure sweep: unrecognized arguments: --frob 3 -- see `showkit measure sweep --help`"),
     Case("unknown-option-top", lambda e: ["--bogus"], "unrecognized option: --bogus -- see `showkit --help`"),
+    # argparse printed its usage block (five lines for scan) above the error
+    Case("missing-argument-scan", lambda e: ["scan"],
+         "scan: the following arguments are required: PATH -- see `showkit scan --help`"),
+    Case("option-without-value", lambda e: ["scan", e.p("track.wav"), "--jobs"],
+         "scan: argument --jobs: expected one argument"),
+    Case("option-bad-int", lambda e: ["scan", e.p("track.wav"), "--jobs", "two"], "invalid int value: 'two'"),
+    Case("unknown-command", lambda e: ["frob"], "invalid choice: 'frob'"),
+    Case("unknown-measure-step", lambda e: ["measure", "fit"], "measure: argument STEP: invalid choice: 'fit'"),
     # a zero for the O: the units were listed, with no near-name hint as field typos get (difflib)
     Case("unit-typo-inH20", lambda e: ["check", e.p("show.toml"), "--static", "0.08 inH20"],
          "unknown pressure unit 'inH20' in '0.08 inH20' -- did you mean 'inH2O'?"),

@@ -69,7 +69,7 @@ def test_stale_and_over_cues_are_marked(book):
 
     _, out, _ = book
     pages = [_flat(p.extract_text()) for p in PdfReader(str(out)).pages]
-    assert "ATTENTION: 2 cue(s) cannot be played" in pages[0]
+    assert "ATTENTION: 2 cues cannot be played" in pages[0]
     assert "loud (OVER)" in pages[0] and "changed (STALE)" in pages[0]
     order = pages[1]
     assert order.count("NOT PLAYABLE") == 2

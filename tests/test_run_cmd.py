@@ -80,7 +80,7 @@ def test_auto_rehearsal_plays_every_playable_cue_in_order(sheet, tmp_path, patch
     out = capsys.readouterr().out
     # issue 11: a rehearsal that skipped a cue says so, names it and why, and is not a success
     assert status == 1
-    assert "rehearsal NOT complete: 1 of 4 cue(s) skipped: old (stale" in out
+    assert "rehearsal NOT complete: 1 of 4 cues skipped: old (stale" in out
     assert "every playable cue was played" not in out
     # the readings reached the pre-show render in SI (0.09 inH2O = 22.4 Pa): conventional
     # 1 inH2O = 249.0889 Pa, 1000 kg/m3 x 9.80665 m/s2 x 0.0254 m (DEVELOPERS.md Methods §10; NIST SP 811's
@@ -243,7 +243,7 @@ def test_real_portaudio_stream_on_a_null_device(tmp_path, sheet):
                            str(log_path)], env=env, capture_output=True, text=True, timeout=120)
     # the synthetic show holds one stale cue: the rehearsal plays the rest and exits 1 naming it
     assert proc.returncode == 1, proc.stdout + proc.stderr
-    assert "1 of 4 cue(s) skipped: old (stale" in proc.stdout
+    assert "1 of 4 cues skipped: old (stale" in proc.stdout
     assert "device: " in proc.stdout and "ALSA" in proc.stdout
     plays = [(r["event"], r["cue"]) for r in read_log(log_path) if r["event"] in ("start", "stop")]
     assert plays == [("start", "intro"), ("stop", "intro"), ("start", "climb"), ("stop", "climb"),

@@ -56,6 +56,6 @@ def run(args) -> int:
         print(table(rows, ["cue", "gain dB", "ceiling dB", "headroom", "", "status", "note"], "<>>><<<"))
         bad = [c for c in checks if c.status is not CueStatus.OK]
         if bad:
-            print(f"\n{len(bad)} cue(s) need attention: "
+            print(f"\n{format_count(len(bad), 'cue')} {'needs' if len(bad) == 1 else 'need'} attention: "
                   + ", ".join(f"{printable(c.id)} ({c.status})" for c in bad))
     return 0 if all(c.status is CueStatus.OK for c in checks) else 2

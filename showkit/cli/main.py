@@ -48,8 +48,20 @@ def _available() -> dict[str, tuple[str, str]]:
     return found
 
 
+class _OneLineParser(argparse.ArgumentParser):
+    """argparse, with its errors (a missing argument, an option without its value, an unknown
+    command) raised as one :class:`~showkit.errors.InputError` line instead of the usage block.
+
+    Subcommand parsers are made of the same class (argparse's ``add_subparsers`` default).
+    """
+
+    def error(self, message: str):
+        raise InputError(message, self.prog.partition(" ")[2] or None,
+                         f"see `{self.prog} --help` for what it takes")
+
+
 def build_parser() -> tuple[argparse.ArgumentParser, dict]:
-    parser = argparse.ArgumentParser(
+    parser = _OneLineParser(
         prog="showkit",
         description="Plan, check and run flame-tube science shows: model your tube, "
                     "analyse tracks, lock safe drive levels per cue.",

@@ -27,7 +27,7 @@ import time
 
 from showkit.errors import DeviceError, InputError, SheetError, ShowkitError
 from showkit.printable import printable
-from showkit.units import format_time
+from showkit.units import format_count, format_time
 
 POLL_S = 0.05
 
@@ -115,7 +115,7 @@ def pre_show(args, log, static_pa, temperature_k, out):
                 "><<>>><<"), file=out)
     bad = [c for c in cues if not c.playable]
     if bad:
-        print(f"\n{len(bad)} cue(s) cannot be started today:", file=out)
+        print(f"\n{format_count(len(bad), 'cue')} cannot be started today:", file=out)
         for c in bad:
             print(f"  {printable(c.refusal())}", file=out)
         if args.auto:  # no keyboard: the rehearsal skips them itself and names them at the end
@@ -187,16 +187,17 @@ def run_auto(engine, out, poll_s: float = 0.01) -> int:
             engine.reopen()
     played = len(engine.cues) - len(skipped)
     if not skipped and not faults:
-        print(f"rehearsal done: all {played} cue(s) were played", file=out)
+        print(f"rehearsal done: "
+              f"{'the one cue was' if played == 1 else f'all {played} cues were'} played", file=out)
         return 0
     parts = []
     if skipped:
-        parts.append(f"{len(skipped)} of {len(engine.cues)} cue(s) skipped: "
+        parts.append(f"{len(skipped)} of {format_count(len(engine.cues), 'cue')} skipped: "
                      + "; ".join(f"{engine.cues[k].id} ({engine.cues[k].status}"
                                  + (f": {engine.cues[k].message}" if engine.cues[k].message else "") + ")"
                                  for k in skipped))
     if faults:
-        parts.append(f"{faults} device fault(s): see the log")
+        parts.append(f"{format_count(faults, 'device fault')}: see the log")
     print("rehearsal NOT complete: " + " | ".join(parts), file=out)
     return 1
 

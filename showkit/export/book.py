@@ -183,7 +183,7 @@ def cover_page(plt, data: BookData, size):
     summary = f"{format_count(len(data.entries), 'cue')}: " + ", ".join(f"{v} {k}" for k, v in counts.items() if v)
     y = _lines(fig, 0.08, y - 0.01, [summary], size=10)
     if bad:
-        text = (f"ATTENTION: {len(bad)} cue(s) cannot be played as the sheet stands: "
+        text = (f"ATTENTION: {format_count(len(bad), 'cue')} cannot be played as the sheet stands: "
                 + ", ".join(f"{e.cue.id} ({e.check.status.upper()})" for e in bad))
         for line in _wrap(text, 85):
             fig.text(0.08, y, line, fontsize=10, va="top", weight="bold", color="white",

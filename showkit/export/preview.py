@@ -37,7 +37,7 @@ from showkit.export.common import plotting
 from showkit.physics.flames import FRAME_RATE_HZ
 from showkit.safesave import replacing
 from showkit.show.status import SILENT_MESSAGE, CueStatus
-from showkit.units import format_time
+from showkit.units import format_count, format_time
 
 #: Video frames per second: one flame frame per video frame.
 FPS = int(FRAME_RATE_HZ)
@@ -422,7 +422,7 @@ class Painter:
             tube_h = max(6, int(0.035 * L.height))
             img[L.base_y + 2:L.base_y + 2 + tube_h, acol] = AIR
             put_text(img, L.tube_x1 - 30 * self.gs.cell_w, 4 + self.gb.cell_h,
-                     f"AIR DRAWN IN at {int(drawn_in.sum())} hole(s)", self.gs, AIR)
+                     f"AIR DRAWN IN at {format_count(int(drawn_in.sum()), 'hole')}", self.gs, AIR)
         clock = f"show {_clock(t)} / {_clock(tl.duration_s)}  cue {_clock(local)} / {_clock(seg.duration_s)}"
         put_text(img, L.tube_x1 - len(clock) * self.gs.cell_w, 4, clock, self.gs, TEXT)
         return img

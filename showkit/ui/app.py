@@ -39,6 +39,7 @@ from textual.widgets import ContentSwitcher, Footer, ProgressBar, Static
 from showkit.errors import ShowkitError
 from showkit.printable import printable
 from showkit.show.status import CueStatus
+from showkit.units import format_count
 from showkit.ui import messages as msg
 from showkit.ui.jobs import JobRunner
 from showkit.ui.session import Session
@@ -288,14 +289,16 @@ class ShowkitApp(JobRunner, App):
                         and checks[c.id].status == CueStatus.STALE and c.id not in self._auto_locked]
             self._auto_locked.update(unlocked)
             if unlocked and not self.busy("lock"):
-                self.say(f"locking {len(unlocked)} cue(s) that were never locked…")
+                self.say(f"locking {format_count(len(unlocked), 'cue')} that "
+                         f"{'was' if len(unlocked) == 1 else 'were'} never locked…")
                 self.start_lock(unlocked)
                 return
             bad = [c for c in checks.values() if c.status != CueStatus.OK]
             if bad:
                 from showkit.ui.show import ui_message as _ui_message
 
-                self.say(f"{len(bad)} cue(s) need attention; {bad[0].id} is {bad[0].status}: "
+                self.say(f"{format_count(len(bad), 'cue')} {'needs' if len(bad) == 1 else 'need'} attention; "
+                         f"{bad[0].id} is {bad[0].status}: "
                          f"{_ui_message(bad[0].message)}", warn=any(c.status != CueStatus.STALE for c in bad))
             else:
                 self.say(f"all {len(checks)} cues ok for today's conditions")
@@ -321,7 +324,7 @@ class ShowkitApp(JobRunner, App):
         def done(cues):
             notes = s.apply_locks(cues)
             self.start_checks()
-            self.say(f"locked {len(cues)} cue(s) (saved)" + ("; " + "; ".join(notes) if notes else ""),
+            self.say(f"locked {format_count(len(cues), 'cue')} (saved)" + ("; " + "; ".join(notes) if notes else ""),
                      warn=bool(notes))
 
         self.run_job("lock", work, done, "locking ceilings", latest_only=False)

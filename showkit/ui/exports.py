@@ -11,6 +11,7 @@ from __future__ import annotations
 from pathlib import Path
 
 from showkit.show.status import CueStatus
+from showkit.units import format_count
 
 
 def _beside(session, stem: str, suffix: str) -> Path:
@@ -55,7 +56,7 @@ def sheet_preview(view) -> None:
 
     def done(result):
         view.say(f"preview video written: {result['path']} ({result['duration_s']:.1f} s, true scale)"
-                + (f"; {len(result['notes'])} cue(s) not played" if result["notes"] else ""),
+                + (f"; {format_count(len(result['notes']), 'cue')} not played" if result["notes"] else ""),
                 warn=bool(result["notes"]))
 
     view.run_job("export-preview", work, done, f"writing the preview video to {out.name}")

@@ -30,6 +30,7 @@ from showkit.ui.drawing import BLOCKS
 from showkit.ui.measuring import Measurement, calibration_refused, is_demo_rig, write_fit
 from showkit.ui.messages import RigWritten
 from showkit.ui.viewbase import SessionView
+from showkit.units import format_count
 
 #: Levels more than this far below the response's peak are drawn empty, dB.
 PLOT_RANGE_DB = 40.0
@@ -243,7 +244,7 @@ class MeasureView(SessionView):
             "   W writes the fit into the rig file")
         self.say(f"{len(report['modes'])} modes measured; the model was off by "
                      f"{m.rms_before_cents():.1f} cents rms before the fit, {fit['rms_cents']:.1f} after"
-                     + (f"; {len(warnings)} warning(s)" if warnings else ""), warn=bool(warnings))
+                     + (f"; {format_count(len(warnings), 'warning')}" if warnings else ""), warn=bool(warnings))
 
     def action_export(self, what: str) -> None:
         from showkit.ui import exports

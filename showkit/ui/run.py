@@ -40,7 +40,7 @@ from showkit.printable import printable
 from showkit.safety import LEVEL_CAUTION
 from showkit.show.operator_keys import shown
 from showkit.show.status import State, ceiling_text
-from showkit.units import format_time
+from showkit.units import format_count, format_time
 
 #: The operator's keys as printed in this view's messages (from the one table).
 GO_KEY, PANIC_KEY, RECONNECT_KEY, FADE_KEY = (
@@ -309,7 +309,7 @@ class RunView(SessionView):
     def _mark_held(self, held: list[str], reason: str = "today's conditions changed") -> None:
         """Show at once which cues are held back until the check is back."""
         title = (f"[b]Run the show[/b]  {escape(reason)}: checking again; "
-                 + (f"[b]{len(held)} cue(s) held back[/b] until then: " + escape(", ".join(held))
+                 + (f"[b]{format_count(len(held), 'cue')} held back[/b] until then: " + escape(", ".join(held))
                     if held else "every cue still fits"))
         self.query_one("#run-title", Static).update(title)
         table = self.query_one(RunTable)
@@ -320,7 +320,7 @@ class RunView(SessionView):
             except Exception:  # noqa: BLE001 - a row gone from the table: nothing to mark
                 pass
         if held:
-            self.say(f"{reason}: {len(held)} cue(s) held back until the "
+            self.say(f"{reason}: {format_count(len(held), 'cue')} held back until the "
                          f"pre-show check is back: {', '.join(held)}", warn=True)
 
     def check_done(self, result) -> None:
@@ -369,13 +369,14 @@ class RunView(SessionView):
         bad = [c for c in cues if not c.playable]
         title = f"[b]Run the show[/b]  pre-show check: {escape(self.readings)}: "
         if bad:
-            title += f"[b]{len(bad)} cue(s) no longer fit[/b] and cannot be started: " + \
+            title += f"[b]{format_count(len(bad), 'cue')} no longer {'fits' if len(bad) == 1 else 'fit'}[/b] and cannot be started: " + \
                 escape(printable(", ".join(c.id for c in bad)))
         else:
             title += f"all {len(cues)} cues fit"
         self.query_one("#run-title", Static).update(title)
         if bad:
-            self.say(f"pre-show check: {len(bad)} cue(s) no longer fit today: {bad[0].refusal()}",
+            self.say(f"pre-show check: {format_count(len(bad), 'cue')} no longer "
+                     f"{'fits' if len(bad) == 1 else 'fit'} today: {bad[0].refusal()}",
                          warn=True)
         else:
             self.say(f"pre-show check: all {len(cues)} cues fit today; {GO_KEY} starts the first")
