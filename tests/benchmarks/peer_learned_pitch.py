@@ -8,8 +8,9 @@ the package ships, on onnxruntime.  Nothing here is a dependency of showkit:
 the script runs only where those optional packages are installed, and
 pytest does not collect it (``tests/benchmarks`` is ignored).
 
-Set-up (a separate, plain virtual environment; the package's own wheel asks
-for tensorflow on Linux, which is not needed for its ONNX model)::
+Set-up (a separate, plain virtual environment; on Linux the package's wheel
+asks for a large training framework that its ONNX model does not need, hence
+``--no-deps``)::
 
     python -m venv PEERVENV
     PEERVENV/bin/pip install numpy scipy librosa soundfile mir_eval pretty_midi music21 resampy onnxruntime
@@ -26,31 +27,37 @@ tracks of the unseen set, against the ground truth of ``tests/realmusic.py``
 (the notes at the soundfont's measured tuning, latency-timed):
 
 * mir_eval.multipitch precision/recall (Bay, Ehmann & Downie, ISMIR 2009) of
-  the peer's frame-level notes, two ways: ``events`` -- its note events (the
-  package's own note creation with its defaults: onset threshold 0.5, frame
-  threshold 0.3, notes >= 127.7 ms, its "melodia trick"), each note at its
-  MIDI pitch moved by its per-frame pitch bend (1/3-semitone steps of the
-  contour output), and ``frames`` -- every note-posteriorgram bin >= 0.3 in a
-  frame (no onsets, no minimum length), placed on the best of the three
-  contour bins of that semitone;
+  the peer's frame-level notes (:data:`VARIANTS`), at its own frame times
+  (86 per second): ``events`` -- its note events (the package's own note
+  creation with its defaults: onset threshold 0.5, frame threshold 0.3, notes
+  >= 127.7 ms, its "melodia trick"), each note at its MIDI pitch moved by its
+  per-frame pitch bend (1/3-semitone steps of the contour output), and
+  ``frames>=T`` -- every note-posteriorgram bin >= T (0.3, the package's frame
+  threshold, and 0.5) in a frame (no onsets, no minimum length), placed on
+  the best of the three contour bins of that semitone;
 * mir_eval.melody raw pitch / raw chroma accuracy (Poliner et al., IEEE TASLP
   15(4), 2007) against the highest sounding note (``realmusic.melody``) of
-  (a) the highest note per frame and (b) the project's Viterbi line,
+  (a) the highest note per frame, (b) the project's Viterbi line,
   ``showkit.analysis.pitches.dominant_pitch`` (DEVELOPERS.md Methods §8b), run
-  on the peer's notes with the note posteriorgram as the energy;
+  on the peer's notes with the note posteriorgram as the energy, and (c) the
+  strongest note (largest posteriorgram);
 * the share of voiced reference frames whose top note lies within 50 cents of
   one of the frame's notes (the ceiling of any line picked from those notes);
 * CPU time per minute of audio on one core (OMP/onnxruntime threads = 1;
-  ``time.process_time`` of decoding, inference and note creation), the
-  import time of the packages and the model's load time, and the worker's peak
-  resident memory (``ru_maxrss``).
+  ``time.process_time`` of decoding, inference and note creation; over all
+  tracks and without the first, which carries one-time start-up costs), wall
+  time (noisy on a shared machine), the import time of the packages and the
+  model's load time, and the worker's peak resident memory (``ru_maxrss``).
 
 With ``--scan-python`` the same figures of the scan in this tree are measured
 by that interpreter (the one showkit runs in): ``scan_track`` timed on one
-core (``threads=1``, OMP threads = 1, no cache), its map's ``notes_hz`` and
+core (``threads=1``, OMP threads = 1, no cache; all tracks timed before any
+evaluation, so that the peak memory is the scan's), its map's ``notes_hz`` and
 ``dominant_hz`` measured by ``realmusic.map_figures`` as the project's
 evaluation does, on the scan's own frame times.  Each side runs in a fresh
 worker process so that its peak memory and import time are its own.
+``--keep DIR`` keeps the peer's raw outputs and reuses them (its cost is then
+not measured again).
 """
 
 from __future__ import annotations
@@ -74,6 +81,8 @@ if not os.environ.get("PYTHONPATH"):
 ONSET_THRESHOLD = 0.5
 FRAME_THRESHOLD = 0.3
 MIN_NOTE_MS = 127.70
+#: The peer's frame-level notes measured: (kind, posteriorgram threshold) -- see :func:`peer_notes`.
+VARIANTS = {"events": ("events", FRAME_THRESHOLD), "frames>=0.3": ("frames", 0.3), "frames>=0.5": ("frames", 0.5)}
 #: Tolerance of "the reference is among the frame's notes", cents (mir_eval's pitch tolerance).
 NEAR_CENTS = 50.0
 ONE_CORE = {"OMP_NUM_THREADS": "1", "OPENBLAS_NUM_THREADS": "1", "MKL_NUM_THREADS": "1",
@@ -126,12 +135,12 @@ def peer_worker(paths: list, out_dir: Path) -> dict:
     min_len = int(np.round(MIN_NOTE_MS / 1000 * (AUDIO_SAMPLE_RATE / FFT_HOP)))   # as predict() computes it
     rows = {}
     for path in paths:
-        c0 = time.process_time()
+        w0, c0 = time.perf_counter(), time.process_time()
         out = bi.run_inference(path, model)
         c1 = time.process_time()
         _, events = nc.model_output_to_notes(out, onset_thresh=ONSET_THRESHOLD, frame_thresh=FRAME_THRESHOLD,
                                              min_note_len=min_len, melodia_trick=True)
-        c2 = time.process_time()
+        c2, w2 = time.process_time(), time.perf_counter()
         times = nc.model_frames_to_time(out["note"].shape[0])
         ev = np.array([(s, e, p, a) for s, e, p, a, _ in events], float).reshape(-1, 4)
         bends = [np.asarray(b if b is not None else [], float) for *_, b in events]
@@ -139,17 +148,17 @@ def peer_worker(paths: list, out_dir: Path) -> dict:
                             contour=out["contour"], times=times, events=ev,
                             bend_lengths=np.array([b.size for b in bends], int),
                             bends=np.concatenate(bends) if bends else np.zeros(0))
-        rows[str(path)] = {"infer_cpu_s": c1 - c0, "notes_cpu_s": c2 - c1}
+        rows[str(path)] = {"infer_cpu_s": c1 - c0, "notes_cpu_s": c2 - c1, "cpu_s": c2 - c0, "wall_s": w2 - w0}
     return {"import_s": import_s, "model_load_s": load_s, "tracks": rows, "peak_rss_mb": _rss_mb(),
             "model": str(model_path.name), "onnxruntime": ort.__version__}
 
 
-def peer_notes(npz: Path, how: str):
+def peer_notes(npz: Path, how: str, threshold: float = FRAME_THRESHOLD):
     """``(times_s, notes_hz (frames, K) NaN-padded, energy (frames, K))`` of a peer output.
 
     ``how`` = ``"events"``: the note events sounding at each frame, at MIDI pitch + pitch bend;
-    ``"frames"``: every note-posteriorgram bin >= FRAME_THRESHOLD, at the best contour bin of the semitone.
-    The energy is the note posteriorgram at the note's bin (0-1).
+    ``"frames"``: every note-posteriorgram bin >= ``threshold`` (0-1), at the best of the semitone's three
+    contour bins.  The energy is the note posteriorgram at the note's bin (0-1).
     """
     import numpy as np
 
@@ -172,7 +181,7 @@ def peer_notes(npz: Path, how: str):
         semis = pitch[idx] + bend / 3.0
         energy = note[fr, pitch[idx] - 21]
     else:
-        fr, b = np.nonzero(note >= FRAME_THRESHOLD)
+        fr, b = np.nonzero(note >= threshold)
         c = np.stack([contour[fr, np.clip(3 * b + k, 0, contour.shape[1] - 1)] for k in (-1, 0, 1)], axis=1)
         semis = 21 + b + (np.argmax(c, axis=1) - 1) / 3.0
         energy = note[fr, b]
@@ -214,15 +223,21 @@ def line_figures(tr, times, notes_list, lines: dict) -> dict:
     return row
 
 
-def peer_figures(tr, npz: Path, how: str) -> dict:
+def peer_figures(tr, npz: Path, variant: str) -> dict:
+    """The figures of one peer variant (:data:`VARIANTS`) on one track: its notes, and three lines picked
+    from them -- the highest note, the strongest (largest posteriorgram) and showkit's Viterbi line."""
     import numpy as np
 
     from showkit.analysis.pitches import dominant_pitch
 
-    times, f, e = peer_notes(npz, how)
-    notes_list = [row[np.isfinite(row)] for row in f]
-    top = np.where(np.isfinite(f).any(axis=1), np.nanmax(np.where(np.isfinite(f), f, -np.inf), axis=1), 0.0)
-    return line_figures(tr, times, notes_list, {"highest": top, "viterbi": dominant_pitch(f, e)})
+    times, f, e = peer_notes(npz, *VARIANTS[variant])
+    ok = np.isfinite(f)
+    notes_list = [row[k] for row, k in zip(f, ok)]
+    rows = np.arange(f.shape[0])
+    top = np.where(ok.any(axis=1), np.max(np.where(ok, f, -np.inf), axis=1), 0.0)
+    strong = np.where(ok.any(axis=1), f[rows, np.argmax(np.where(ok, e, -1.0), axis=1)], 0.0)
+    return line_figures(tr, times, notes_list, {"highest": top, "strongest": strong,
+                                                "viterbi": dominant_pitch(f, e)})
 
 
 # ----------------------------------------------------------------------------- the scan (showkit's venv)
@@ -239,25 +254,28 @@ def scan_worker(corpus_dir: str, unseen_dir: str | None) -> dict:
     base = rm.build(corpus_dir)
     rig = base.rig()
     table = scan_mod.mode_table(rig)
-    out: dict = {"import_s": import_s, "sets": {}}
-    for set_name, trs in tracks(corpus_dir, unseen_dir).items():
+    sets = tracks(corpus_dir, unseen_dir)
+    cost = {}
+    for trs in sets.values():           # timed alone first, so that the peak memory is the scan's
+        for name, tr in trs.items():
+            w0, c0 = time.perf_counter(), time.process_time()
+            scan_mod.scan_track(rig, tr.path, threads=1)
+            cost[name] = {"cpu_s": time.process_time() - c0, "wall_s": time.perf_counter() - w0,
+                          "duration_s": tr.duration_s, "path": str(tr.path)}
+    out: dict = {"import_s": import_s, "sets": {}, "cost": cost, "peak_rss_mb": _rss_mb()}
+    for set_name, trs in sets.items():
         rows = {}
         for name, tr in trs.items():
-            with rm._OneAnalysis(scan_mod):
-                c0 = time.process_time()
-                scan_mod.scan_track(rig, tr.path, threads=1)
-                cpu = time.process_time() - c0
-                m = rm.engine_map(rig, base.rig_path, tr.path)
+            m = rm.engine_map(rig, base.rig_path, tr.path)
             row = rm.map_figures(tr, table, m)
             notes_list = [np.asarray(f, float)[np.asarray(f, float) > 0] for f in m["notes_hz"]]
             extra = line_figures(tr, m["times_s"], notes_list, {"highest": np.array(
                 [float(f.max()) if f.size else 0.0 for f in notes_list])})
-            rows[name] = {"cpu_s": cpu, "duration_s": tr.duration_s, "multipitch": row["multipitch"],
+            rows[name] = {"multipitch": row["multipitch"],
                           "viterbi": {k: row["melody"][k] for k in ("Raw Pitch Accuracy", "Raw Chroma Accuracy")},
                           "highest": extra["highest"], "ref_in_notes": extra["ref_in_notes"],
                           "notes_per_frame": extra["notes_per_frame"]}
         out["sets"][set_name] = rows
-    out["peak_rss_mb"] = _rss_mb()
     return out
 
 
@@ -275,19 +293,35 @@ def _run_worker(python: str, args: list, env_extra: dict | None = None) -> dict:
         return json.loads(res.read_text())
 
 
+LINES = ("highest", "strongest", "viterbi")
+
+
 def _fmt(name: str, r: dict) -> str:
     mp = r["multipitch"]
-    return (f"{name:30s} {mp['Precision']:5.2f} {mp['Recall']:5.2f} "
-            f"{r['highest']['Raw Pitch Accuracy']:5.2f} {r['highest']['Raw Chroma Accuracy']:5.2f} "
-            f"{r['viterbi']['Raw Pitch Accuracy']:5.2f} {r['viterbi']['Raw Chroma Accuracy']:5.2f} "
-            f"{r['ref_in_notes']:5.2f} {r['notes_per_frame']:5.2f}")
+    cells = [f"{mp['Precision']:5.2f}", f"{mp['Recall']:5.2f}"]
+    for k in LINES:
+        cells += ([f"{r[k]['Raw Pitch Accuracy']:5.2f}", f"{r[k]['Raw Chroma Accuracy']:5.2f}"] if k in r
+                  else ["    -", "    -"])
+    return f"{name:30s} " + " ".join(cells) + f" {r['ref_in_notes']:5.2f} {r['notes_per_frame']:5.2f}"
+
+
+def cost_line(rows: list) -> str:
+    """CPU and wall time per minute of audio from per-track ``{"cpu_s", "wall_s", "duration_s"}`` in run order:
+    over all tracks, and over all but the first (which carries the one-time start-up costs)."""
+    minutes = sum(r["duration_s"] for r in rows) / 60.0
+    rest = sum(r["duration_s"] for r in rows[1:]) / 60.0
+    cpu = sum(r["cpu_s"] for r in rows)
+    return (f"{cpu / minutes:.2f} CPU s per minute of audio over {minutes:.1f} min "
+            f"({sum(r['cpu_s'] for r in rows[1:]) / rest:.2f} without the first track, which took "
+            f"{rows[0]['cpu_s']:.2f} CPU s for {rows[0]['duration_s']:.0f} s); wall "
+            f"{sum(r['wall_s'] for r in rows) / minutes:.2f} s per minute")
 
 
 def report(res: dict) -> str:
     import numpy as np
 
-    head = (f"{'track':30s} {'mpP':>5s} {'mpR':>5s} {'topRP':>5s} {'topRC':>5s} {'vitRP':>5s} {'vitRC':>5s} "
-            f"{'inN':>5s} {'n/fr':>5s}")
+    head = f"{'track':30s} {'mpP':>5s} {'mpR':>5s} " + " ".join(
+        f"{k[:3] + 'RP':>5s} {k[:3] + 'RC':>5s}" for k in LINES) + f" {'inN':>5s} {'n/fr':>5s}"
     L = []
     for who, sets in res["figures"].items():
         for set_name, rows in sets.items():
@@ -295,18 +329,20 @@ def report(res: dict) -> str:
             L.append(head)
             for n, r in rows.items():
                 L.append(_fmt(n, r))
-            mean = {k: float(np.mean([r[k]["Raw Pitch Accuracy"] for r in rows.values()]))
-                    for k in ("highest", "viterbi")}
-            chroma = {k: float(np.mean([r[k]["Raw Chroma Accuracy"] for r in rows.values()]))
-                      for k in ("highest", "viterbi")}
-            mpp = float(np.mean([r["multipitch"]["Precision"] for r in rows.values()]))
-            mpr = float(np.mean([r["multipitch"]["Recall"] for r in rows.values()]))
-            L.append(f"{'mean':30s} {mpp:5.2f} {mpr:5.2f} {mean['highest']:5.2f} {chroma['highest']:5.2f} "
-                     f"{mean['viterbi']:5.2f} {chroma['viterbi']:5.2f}")
-    L.append("(mpP/mpR: mir_eval.multipitch precision/recall per track; topRP/topRC: raw pitch/chroma accuracy "
-             "of the highest note per frame; vitRP/vitRC: of showkit's Viterbi line on those notes (for the "
-             "scan: its own dominant_hz); inN: share of voiced reference frames whose top note is within 50 c "
-             "of a detected note; n/fr: notes per frame)")
+            mean = {"multipitch": {k: float(np.mean([r["multipitch"][k] for r in rows.values()]))
+                                   for k in ("Precision", "Recall")},
+                    "ref_in_notes": float(np.mean([r["ref_in_notes"] for r in rows.values()])),
+                    "notes_per_frame": float(np.mean([r["notes_per_frame"] for r in rows.values()]))}
+            for k in LINES:
+                if all(k in r for r in rows.values()):
+                    mean[k] = {m: float(np.mean([r[k][m] for r in rows.values()]))
+                               for m in ("Raw Pitch Accuracy", "Raw Chroma Accuracy")}
+            L.append(_fmt("mean", mean))
+    L.append("(mpP/mpR: mir_eval.multipitch precision/recall of the frame-level notes; hig/str/vit RP, RC: "
+             "mir_eval.melody raw pitch/chroma accuracy of the highest note per frame, the strongest (the "
+             "peer's posteriorgram), showkit's Viterbi line (pitches.dominant_pitch; for the scan its own "
+             "dominant_hz); inN: share of voiced reference frames whose top note is within 50 c of a "
+             "detected note; n/fr: notes per frame; mean: over the set's tracks)")
     for k, v in res["cost"].items():
         L.append(f"cost, {k}: {v}")
     return "\n".join(L)
@@ -352,28 +388,25 @@ def main() -> int:
         print(f"peer: {len(todo)} tracks, one core ...", file=sys.stderr)
         w = _run_worker(sys.executable, ["--worker", "peer", "--out-dir", str(keep), "--paths", *todo])
         dur = {str(tr.path): tr.duration_s for trs in sets.values() for tr in trs.values()}
-        infer = sum(r["infer_cpu_s"] for r in w["tracks"].values())
-        notes = sum(r["notes_cpu_s"] for r in w["tracks"].values())
-        minutes = sum(dur[p] for p in w["tracks"]) / 60.0
-        res["cost"]["peer"] = (f"{(infer + notes) / minutes:.1f} CPU s per minute of audio on one core "
-                               f"(decode + inference {infer / minutes:.1f}, note creation {notes / minutes:.1f}; "
-                               f"{minutes:.1f} min of audio); import {w['import_s']:.2f} s, model load "
-                               f"{w['model_load_s']:.2f} s; peak RSS {w['peak_rss_mb']:.0f} MB "
+        rows = [dict(r, duration_s=dur[p]) for p, r in w["tracks"].items()]
+        minutes = sum(r["duration_s"] for r in rows) / 60.0
+        res["cost"]["peer"] = (cost_line(rows) + f" (inference incl. decoding "
+                               f"{sum(r['infer_cpu_s'] for r in rows) / minutes:.2f}, note creation "
+                               f"{sum(r['notes_cpu_s'] for r in rows) / minutes:.2f}); import {w['import_s']:.2f} s, "
+                               f"model load {w['model_load_s']:.2f} s; peak RSS {w['peak_rss_mb']:.0f} MB "
                                f"(onnxruntime {w['onnxruntime']}, {w['model']})")
         res["peer_worker"] = w
-    for how in ("events", "frames"):
-        res["figures"][f"peer ({how})"] = {s: {n: peer_figures(tr, keep / (tr.path.stem + ".npz"), how)
-                                              for n, tr in trs.items()} for s, trs in sets.items()}
+    for variant in VARIANTS:
+        res["figures"][f"peer ({variant})"] = {s: {n: peer_figures(tr, keep / (tr.path.stem + ".npz"), variant)
+                                                  for n, tr in trs.items()} for s, trs in sets.items()}
     if args.scan_python:
         print("scan: the same tracks, one core ...", file=sys.stderr)
         w = _run_worker(args.scan_python, ["--worker", "scan", args.folder] + ([args.unseen] if args.unseen else []),
                         {"SHOWKIT_CACHE_DIR": tempfile.mkdtemp(prefix="showkit-peer-cache-")})
         res["figures"]["scan"] = w["sets"]
-        cpu = sum(r["cpu_s"] for rows in w["sets"].values() for r in rows.values())
-        minutes = sum(r["duration_s"] for rows in w["sets"].values() for r in rows.values()) / 60.0
-        res["cost"]["scan"] = (f"{cpu / minutes:.1f} CPU s per minute of audio on one core (scan_track, "
-                               f"threads=1; {minutes:.1f} min of audio); import of showkit.analysis.scan "
-                               f"{w['import_s']:.2f} s; peak RSS {w['peak_rss_mb']:.0f} MB")
+        res["cost"]["scan"] = (cost_line(list(w["cost"].values())) + " (scan_track, threads=1); import of "
+                               f"showkit.analysis.scan {w['import_s']:.2f} s; peak RSS {w['peak_rss_mb']:.0f} MB")
+        res["scan_worker"] = w["cost"]
     print(report(res))
     if args.json:
         Path(args.json).write_text(json.dumps(res, indent=1, default=lambda o: np.asarray(o).tolist()))
