@@ -210,7 +210,8 @@ def test_same_music_at_another_level_draws_the_same_map(evaluation):
                    "the best pick of the detected notes would reach only 0.77 mean; an own salience/contour "
                    "front end, an onset cue, spectral smoothness and the track's own harmonic templates (NMF, cancellation by "
                    "the learnt timbre: 0.665 mean, the chorale 0.39) and a wider analysis band (9.6 kHz: the organ's octave "
-                   "ranks win, 0.643; per track where it agrees with the 4.8-kHz line 0.684, the chorale 0.46) gave no "
+                   "ranks win, 0.643; per track where it agrees with the 4.8-kHz line 0.684, the chorale 0.46), a fitted note "
+                   "selector (leave-one-piece-out 0.61-0.63) and a published learned multi-pitch model (0.54-0.58) gave no "
                    "sufficient gain (DEVELOPERS.md Methods §8b)")
 def test_dominant_pitch_raw_pitch_accuracy(evaluation):
     """mir_eval.melody raw pitch accuracy >= 0.70, mean over the pieces and on the organ chorale."""
