@@ -77,14 +77,23 @@ def ui_cache(tmp_path_factory):
 
 
 def _locked_demo(tmp_path_factory, ui_cache, short: bool) -> str:
+    """The locked demo show's text, locked once per session for all xdist workers (tests/shared_work.py)."""
     import os
 
+    from shared_work import locked, session_folder
     from ui_support import lock_demo
 
+    folder = session_folder(tmp_path_factory, "locked-demo-short" if short else "locked-demo")
     old = os.environ.get("SHOWKIT_CACHE_DIR")
     os.environ["SHOWKIT_CACHE_DIR"] = str(ui_cache)
     try:
-        return lock_demo(tmp_path_factory.mktemp("locked-demo"), short).read_text(encoding="utf-8")
+        with locked(folder / "lock.lock"):
+            done = folder / "locked.toml"
+            if not done.exists():
+                text = lock_demo(folder / "work", short).read_text(encoding="utf-8")
+                done.with_suffix(".part").write_text(text, encoding="utf-8")
+                done.with_suffix(".part").replace(done)
+            return done.read_text(encoding="utf-8")
     finally:
         if old is None:
             os.environ.pop("SHOWKIT_CACHE_DIR", None)
