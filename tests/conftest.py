@@ -28,13 +28,14 @@ def pytest_configure(config):
 #: The test files that take longest, longest first (per-file totals of ``pytest --durations=0``, measured
 #: 2026-12-03): pytest-xdist hands whole files to the workers in the collection's order
 #: (pyproject: ``--dist loadfile --no-loadscope-reorder``), so the long ones start first and the
-#: last files to start are short -- no worker is left with a long file while the other is idle.  The
-#: two real-music files are apart: the first renders the set, the other reads it (conftest
-#: ``realmusic``).  Files not named here follow in their usual order.
+#: last files to start are short -- no worker is left with a long file while the other is idle.
+#: test_scan_realmusic.py starts early, out of turn: it renders the real-music set, which
+#: test_realmusic_set.py, later, then reads (conftest ``realmusic``).  Files not named here follow
+#: in their usual order.
 LONGEST_FIRST = ("test_ui_run.py", "test_scan_realmusic.py", "test_family.py", "test_measure.py",
-                 "test_ui_show.py", "test_lock_render.py", "test_bad_numbers.py", "test_cli_sheet.py",
-                 "test_realmusic_set.py", "test_ui_tube_track.py", "test_export_book.py", "test_kill_lock.py",
-                 "test_bad_inputs.py", "test_ui_review.py", "test_export_figures.py", "test_ui_measure.py",
+                 "test_ui_tube_track.py", "test_ui_show.py", "test_lock_render.py", "test_kill_lock.py",
+                 "test_bad_numbers.py", "test_cli_sheet.py", "test_realmusic_set.py", "test_export_book.py",
+                 "test_ui_review.py", "test_bad_inputs.py", "test_export_figures.py", "test_ui_measure.py",
                  "test_run_cmd.py", "test_export_preview.py", "test_signal_memo.py", "test_ui_snapshots.py",
                  "test_ui_exports.py", "test_cli_ceiling.py", "test_sheet_properties.py")
 
