@@ -25,6 +25,27 @@ def pytest_configure(config):
             os.environ[name] = folder
 
 
+#: The test files that take longest, longest first (per-file totals of ``pytest --durations=0``, measured
+#: 2026-12-03): pytest-xdist hands whole files to the workers in the collection's order
+#: (pyproject: ``--dist loadfile --no-loadscope-reorder``), so the long ones start first and the
+#: last files to start are short -- no worker is left with a long file while the other is idle.
+#: test_scan_realmusic.py starts early, out of turn: it renders the real-music set, which
+#: test_realmusic_set.py, later, then reads (conftest ``realmusic``).  Files not named here follow
+#: in their usual order.
+LONGEST_FIRST = ("test_ui_run.py", "test_scan_realmusic.py", "test_family.py", "test_measure.py",
+                 "test_ui_tube_track.py", "test_ui_show.py", "test_lock_render.py", "test_kill_lock.py",
+                 "test_bad_numbers.py", "test_cli_sheet.py", "test_realmusic_set.py", "test_export_book.py",
+                 "test_ui_review.py", "test_bad_inputs.py", "test_export_figures.py", "test_ui_measure.py",
+                 "test_run_cmd.py", "test_export_preview.py", "test_signal_memo.py", "test_ui_snapshots.py",
+                 "test_ui_exports.py", "test_cli_ceiling.py", "test_sheet_properties.py")
+
+
+def pytest_collection_modifyitems(config, items):
+    """The files of :data:`LONGEST_FIRST` first, in that order (a file's tests keep theirs)."""
+    rank = {name: i for i, name in enumerate(LONGEST_FIRST)}
+    items.sort(key=lambda item: rank.get(item.path.name, len(rank)))
+
+
 def pytest_unconfigure(config):
     for folder in _OWN_FOLDERS:
         shutil.rmtree(folder, ignore_errors=True)
@@ -57,14 +78,23 @@ def ui_cache(tmp_path_factory):
 
 
 def _locked_demo(tmp_path_factory, ui_cache, short: bool) -> str:
+    """The locked demo show's text, locked once per session for all xdist workers (tests/shared_work.py)."""
     import os
 
+    from shared_work import locked, session_folder
     from ui_support import lock_demo
 
+    folder = session_folder(tmp_path_factory, "locked-demo-short" if short else "locked-demo")
     old = os.environ.get("SHOWKIT_CACHE_DIR")
     os.environ["SHOWKIT_CACHE_DIR"] = str(ui_cache)
     try:
-        return lock_demo(tmp_path_factory.mktemp("locked-demo"), short).read_text(encoding="utf-8")
+        with locked(folder / "lock.lock"):
+            done = folder / "locked.toml"
+            if not done.exists():
+                text = lock_demo(folder / "work", short).read_text(encoding="utf-8")
+                done.with_suffix(".part").write_text(text, encoding="utf-8")
+                done.with_suffix(".part").replace(done)
+            return done.read_text(encoding="utf-8")
     finally:
         if old is None:
             os.environ.pop("SHOWKIT_CACHE_DIR", None)
@@ -109,10 +139,15 @@ def ui_short_show(tmp_path, monkeypatch, ui_cache, locked_short_demo_text):
 
 @pytest.fixture(scope="session")
 def realmusic(tmp_path_factory):
-    """The real-music test set (tests/realmusic.py), rendered once per session into a tmp folder."""
+    """The real-music test set (tests/realmusic.py), rendered once per session into a tmp folder that the
+    session's xdist workers share (tests/shared_work.py): the first to ask renders it, the others wait and
+    read it."""
     import realmusic as rm
+    from shared_work import locked, session_folder
 
     missing = rm.have_tools()
     if missing:  # CI installs them (.ci/run); say what is missing rather than fail obscurely
         pytest.fail(f"real-music corpus cannot be rendered: {missing}")
-    return rm.build(tmp_path_factory.mktemp("realmusic"))
+    folder = session_folder(tmp_path_factory, "realmusic")
+    with locked(folder / "build.lock"):
+        return rm.build(folder)

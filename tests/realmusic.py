@@ -461,10 +461,13 @@ def _shares_for(notes, tuning: dict, mode_hz: np.ndarray, tol_cents: np.ndarray,
     out = np.zeros((mode_hz.shape[0], len(keys)))
     for i, k in enumerate(keys):
         moved = [(p, m + k, a, b, v) for p, m, a, b, v in notes]
-        f = _freqs(moved, tuning)
-        cents = 1200.0 * np.log2(f[None, :, None] / mode_hz[:, None, :])   # (sets, notes, modes)
+        # each distinct pitch once (a pitch sounds when any of its notes does): the same shares as
+        # note by note, for a few dozen pitches instead of hundreds of notes
+        f, which = np.unique(_freqs(moved, tuning), return_inverse=True)
+        pitch_sounds = sound @ (which[:, None] == np.arange(f.size)[None, :]).astype(np.float32)
+        cents = 1200.0 * np.log2(f[None, :, None] / mode_hz[:, None, :])   # (sets, pitches, modes)
         on_mode = (np.abs(cents) <= tol_cents[None, None, :]).any(axis=2).astype(np.float32)
-        out[:, i] = ((sound @ on_mode.T) > 0).mean(axis=0)
+        out[:, i] = ((pitch_sounds @ on_mode.T) > 0).mean(axis=0)
     return out
 
 
