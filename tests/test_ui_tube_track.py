@@ -89,6 +89,9 @@ async def test_track_view_cursor_passage_cue_transpose(ui_short_show):
         chosen = a.passages[tmap.selected]
         await settle(pilot)  # the passage's ceiling over the loss family is measured in the background
         await pilot.press("c")
+        await pilot.pause()
+        # read before the lock settles: the caution times out after 8 s, and a loaded machine took longer
+        said = [(n.title, n.message) for n in app._notifications]
         await settle(pilot)
         new = [c for c in app.session.sheet.cues if isinstance(c.source, AudioSource)
                and c.source.path == "demo:lantern_drift.flac"]
@@ -100,7 +103,6 @@ async def test_track_view_cursor_passage_cue_transpose(ui_short_show):
         # the level just set comes with the level caution (the brief: cautions where levels are set)
         from showkit.safety import LEVEL_CAUTION
 
-        said = [(n.title, n.message) for n in app._notifications]
         assert any(cue.id in t and "CAUTION" in t and m == LEVEL_CAUTION for t, m in said), said
         # transposition: the demo track is written two semitones above the modes,
         # so -2 semitones scores better than as recorded (showkit/demo/synth.py)
