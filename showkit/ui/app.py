@@ -301,7 +301,7 @@ class ShowkitApp(JobRunner, App):
                          f"{bad[0].id} is {bad[0].status}: "
                          f"{_ui_message(bad[0].message)}", warn=any(c.status != CueStatus.STALE for c in bad))
             else:
-                self.say(f"all {len(checks)} cues ok for today's conditions")
+                self.say(f"{'the one cue is' if len(checks) == 1 else f'all {len(checks)} cues'} ok for today's conditions")
 
         def failed(exc):  # the rig could not be read: the Show view says so instead of "checking…"
             if self.view("show") is not None:

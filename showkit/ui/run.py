@@ -372,14 +372,15 @@ class RunView(SessionView):
             title += f"[b]{format_count(len(bad), 'cue')} no longer {'fits' if len(bad) == 1 else 'fit'}[/b] and cannot be started: " + \
                 escape(printable(", ".join(c.id for c in bad)))
         else:
-            title += f"all {len(cues)} cues fit"
+            title += "the one cue fits" if len(cues) == 1 else f"all {len(cues)} cues fit"
         self.query_one("#run-title", Static).update(title)
         if bad:
             self.say(f"pre-show check: {format_count(len(bad), 'cue')} no longer "
                      f"{'fits' if len(bad) == 1 else 'fit'} today: {bad[0].refusal()}",
                          warn=True)
         else:
-            self.say(f"pre-show check: all {len(cues)} cues fit today; {GO_KEY} starts the first")
+            self.say(f"pre-show check: {'the one cue fits' if len(cues) == 1 else f'all {len(cues)} cues fit'} today; "
+                     f"{GO_KEY} starts the first")
 
     def fill_table(self, cues=None) -> None:
         table = self.query_one(RunTable)
