@@ -288,6 +288,32 @@ def format_count(count: int, noun: str) -> str:
     return f"{count} {noun}{'' if count == 1 else 's'}"
 
 
+def agree(count: int, one: str, many: str) -> str:
+    """The word that agrees with ``count``: ``agree(1, "needs", "need")`` -> ``"needs"``.
+
+    Parameters
+    ----------
+    count : int
+        How many.
+    one, many : str
+        The word for one and for any other count.
+    """
+    return one if count == 1 else many
+
+
+def format_every(count: int, noun: str) -> str:
+    """``(1, "cue")`` -> ``"the one cue"``, ``(5, "cue")`` -> ``"all 5 cues"``: a whole set, counted.
+
+    Parameters
+    ----------
+    count : int
+        How many.
+    noun : str
+        The noun in the singular (its plural adds an ``s``).
+    """
+    return f"the one {noun}" if count == 1 else f"all {format_count(count, noun)}"
+
+
 def format_semitones(semitones: float) -> str:
     """``1.58`` -> ``"+1.58 st"``: a transposition, signed, in semitones to the cent.
 

@@ -241,3 +241,12 @@ def test_format_semitones_is_one_signed_figure(semitones):
 def test_format_semitones_never_shows_minus_zero():
     assert units.format_semitones(-0.001) == "+0.00 st"
     assert units.format_semitones(math.nan) == "-"
+
+
+def test_counts_agree_with_their_words():
+    """English agreement (common practice, no source): one takes the singular, zero and many the plural."""
+    from showkit.units import agree, format_count, format_every
+
+    assert [agree(n, "needs", "need") for n in (0, 1, 2)] == ["need", "needs", "need"]
+    assert [format_count(n, "cue") for n in (0, 1, 3)] == ["0 cues", "1 cue", "3 cues"]
+    assert [format_every(n, "cue") for n in (1, 5)] == ["the one cue", "all 5 cues"]

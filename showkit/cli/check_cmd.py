@@ -13,7 +13,7 @@ import argparse
 
 from showkit.cli.common import add_conditions_options, add_json_option
 from showkit.printable import printable
-from showkit.units import format_count
+from showkit.units import agree, format_count
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -56,6 +56,6 @@ def run(args) -> int:
         print(table(rows, ["cue", "gain dB", "ceiling dB", "headroom", "", "status", "note"], "<>>><<<"))
         bad = [c for c in checks if c.status is not CueStatus.OK]
         if bad:
-            print(f"\n{format_count(len(bad), 'cue')} {'needs' if len(bad) == 1 else 'need'} attention: "
+            print(f"\n{format_count(len(bad), 'cue')} {agree(len(bad), 'needs', 'need')} attention: "
                   + ", ".join(f"{printable(c.id)} ({c.status})" for c in bad))
     return 0 if all(c.status is CueStatus.OK for c in checks) else 2

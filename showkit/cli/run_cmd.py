@@ -27,7 +27,7 @@ import time
 
 from showkit.errors import DeviceError, InputError, SheetError, ShowkitError
 from showkit.printable import printable
-from showkit.units import format_count, format_time
+from showkit.units import agree, format_count, format_every, format_time
 
 POLL_S = 0.05
 
@@ -188,7 +188,7 @@ def run_auto(engine, out, poll_s: float = 0.01) -> int:
     played = len(engine.cues) - len(skipped)
     if not skipped and not faults:
         print(f"rehearsal done: "
-              f"{'the one cue was' if played == 1 else f'all {played} cues were'} played", file=out)
+              f"{format_every(played, 'cue')} {agree(played, 'was', 'were')} played", file=out)
         return 0
     parts = []
     if skipped:

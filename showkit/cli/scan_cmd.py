@@ -96,10 +96,10 @@ def _fmt(x: float) -> str:
 
 
 def _modes_text(p: dict) -> str:
-    shares = p.get("mode_shares") or [{"n": n, "note": "", "share": 0.0} for n in p["modes"]]
-    text = ", ".join(f"n{s['n']} {s['note']} {100 * s['share']:.0f}%" for s in shares[:4])
     from showkit.analysis.score import unlisted_modes_text
 
+    shares = p.get("mode_shares") or [{"n": n, "note": "", "share": 0.0} for n in p["modes"]]
+    text = ", ".join(f"n{s['n']} {s['note']} {100 * s['share']:.0f}%" for s in shares[:4])
     return text or unlisted_modes_text(p.get("score", 0)) or "none"
 
 

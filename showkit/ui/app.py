@@ -39,7 +39,7 @@ from textual.widgets import ContentSwitcher, Footer, ProgressBar, Static
 from showkit.errors import ShowkitError
 from showkit.printable import printable
 from showkit.show.status import CueStatus
-from showkit.units import format_count
+from showkit.units import agree, format_count, format_every
 from showkit.ui import messages as msg
 from showkit.ui.jobs import JobRunner
 from showkit.ui.session import Session
@@ -290,18 +290,18 @@ class ShowkitApp(JobRunner, App):
             self._auto_locked.update(unlocked)
             if unlocked and not self.busy("lock"):
                 self.say(f"locking {format_count(len(unlocked), 'cue')} that "
-                         f"{'was' if len(unlocked) == 1 else 'were'} never locked…")
+                         f"{agree(len(unlocked), 'was', 'were')} never locked…")
                 self.start_lock(unlocked)
                 return
             bad = [c for c in checks.values() if c.status != CueStatus.OK]
             if bad:
                 from showkit.ui.show import ui_message as _ui_message
 
-                self.say(f"{format_count(len(bad), 'cue')} {'needs' if len(bad) == 1 else 'need'} attention; "
+                self.say(f"{format_count(len(bad), 'cue')} {agree(len(bad), 'needs', 'need')} attention; "
                          f"{bad[0].id} is {bad[0].status}: "
                          f"{_ui_message(bad[0].message)}", warn=any(c.status != CueStatus.STALE for c in bad))
             else:
-                self.say(f"{'the one cue is' if len(checks) == 1 else f'all {len(checks)} cues'} ok for today's conditions")
+                self.say(f"{format_every(len(checks), 'cue')}{agree(len(checks), ' is', '')} ok for today's conditions")
 
         def failed(exc):  # the rig could not be read: the Show view says so instead of "checking…"
             if self.view("show") is not None:

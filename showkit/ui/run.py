@@ -40,7 +40,7 @@ from showkit.printable import printable
 from showkit.safety import LEVEL_CAUTION
 from showkit.show.operator_keys import shown
 from showkit.show.status import State, ceiling_text
-from showkit.units import format_count, format_time
+from showkit.units import agree, format_count, format_every, format_time
 
 #: The operator's keys as printed in this view's messages (from the one table).
 GO_KEY, PANIC_KEY, RECONNECT_KEY, FADE_KEY = (
@@ -369,17 +369,17 @@ class RunView(SessionView):
         bad = [c for c in cues if not c.playable]
         title = f"[b]Run the show[/b]  pre-show check: {escape(self.readings)}: "
         if bad:
-            title += f"[b]{format_count(len(bad), 'cue')} no longer {'fits' if len(bad) == 1 else 'fit'}[/b] and cannot be started: " + \
+            title += f"[b]{format_count(len(bad), 'cue')} no longer {agree(len(bad), 'fits', 'fit')}[/b] and cannot be started: " + \
                 escape(printable(", ".join(c.id for c in bad)))
         else:
-            title += "the one cue fits" if len(cues) == 1 else f"all {len(cues)} cues fit"
+            title += f"{format_every(len(cues), 'cue')} {agree(len(cues), 'fits', 'fit')}"
         self.query_one("#run-title", Static).update(title)
         if bad:
             self.say(f"pre-show check: {format_count(len(bad), 'cue')} no longer "
-                     f"{'fits' if len(bad) == 1 else 'fit'} today: {bad[0].refusal()}",
+                     f"{agree(len(bad), 'fits', 'fit')} today: {bad[0].refusal()}",
                          warn=True)
         else:
-            self.say(f"pre-show check: {'the one cue fits' if len(cues) == 1 else f'all {len(cues)} cues fit'} today; "
+            self.say(f"pre-show check: {format_every(len(cues), 'cue')} {agree(len(cues), 'fits', 'fit')} today; "
                      f"{GO_KEY} starts the first")
 
     def fill_table(self, cues=None) -> None:

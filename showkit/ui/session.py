@@ -14,9 +14,10 @@ The editing itself (gains that stop at the ceiling, undo, autosave) is the domai
 
 from __future__ import annotations
 
+import os
 from pathlib import Path
 
-from showkit.errors import ShowkitError
+from showkit.errors import InputError, ShowkitError
 from showkit.show.editing import SheetEditor, relative_to
 from showkit.show.sheet import Cue, Sheet, load_sheet, save_sheet
 from showkit.show.status import CueStatus
@@ -68,10 +69,6 @@ class Session(SheetEditor):
             named = session.sheet.rig_path()
             if rig_path is not None and (named is None or named.resolve() != Path(rig_path).expanduser().resolve()):
                 # never open the show on another rig than asked without saying so
-                from showkit.errors import InputError
-
-                import os
-
                 shown = "the demo rig" if named is None else os.path.normpath(named)
                 raise InputError(f"this track's show already names another rig ({shown})", str(sheet_path),
                                  "open it without --rig, edit that sheet's rig = line, or give --sheet NEW.toml "
