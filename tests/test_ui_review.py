@@ -168,3 +168,32 @@ async def test_warnings_behind_the_cautions_come_back_when_they_close(ui_short_s
         facts = str(app.query_one("#rig-facts").render())
         assert "calibration: calibration" not in facts
         assert "calibration: " in facts
+
+
+@sync
+async def test_a_job_ending_while_the_app_closes_applies_nothing(ui_short_show):
+    """A background job whose result arrives as the app shuts down (its screens already gone) is
+    dropped: applying it would look up widgets that no longer exist (seen once: NoMatches '#topbar'
+    when a test closed the app while the mode search was still running)."""
+    from textual.worker import WorkerState
+
+    from showkit.ui.jobs import Job
+
+    app = make_app(ui_short_show)
+    applied = []
+    async with app.run_test(size=APP_SIZE) as pilot:
+        await settle(pilot)
+
+    class Worker:  # a finished worker: its result, hashable as a key of the job table
+        result = None
+
+    class Ended:  # Worker.StateChanged as the worker manager posts it
+        worker = Worker()
+        state = WorkerState.SUCCESS
+
+    app._job_table()[Ended.worker] = Job("modes", "finding the tube's modes",
+                                         lambda result: applied.append(app.update_topbar()))
+    assert not app.is_running
+    app.on_worker_state_changed(Ended)
+    assert applied == []
+    assert Ended.worker not in app._job_table()

@@ -153,24 +153,36 @@ class TubeModel:
         x_here = g.length_m
         hole_p = np.empty((g.hole_count, freq.size), dtype=complex)
         point_p = np.empty((points.size, freq.size), dtype=complex)
+        sections: dict = {}   # distance -> its transfer matrix: evenly spaced holes share one
         for x, kind, index in stations:
-            p, u = _carry(p, u, gamma, zc, x_here - x)
+            p, u = _carry(p, u, gamma, zc, x_here - x, sections)
             x_here = x
             if kind == 0:
                 hole_p[index] = p
                 u = u + p / z_hole
             else:
                 point_p[index] = p
-        p0, u0 = _carry(p, u, gamma, zc, x_here)
+        p0, u0 = _carry(p, u, gamma, zc, x_here, sections)
         return TubeResponse(freq_hz=freq, hole_pressure=hole_p / u0,
                             input_impedance=p0 / u0, cap_pressure=1.0 / u0,
                             point_pressure=point_p / u0)
 
 
-def _carry(p, u, gamma, zc, distance_m):
-    """Carry ``(p, U)`` a distance towards the source along a uniform section."""
+def _carry(p, u, gamma, zc, distance_m, sections: dict | None = None):
+    """Carry ``(p, U)`` a distance towards the source along a uniform section.
+
+    The section's transfer matrix ``[[cosh gd, Zc sinh gd], [sinh gd / Zc, cosh gd]]``
+    is kept in ``sections`` by distance, so a row of equally spaced holes evaluates
+    the hyperbolic functions once (the same products in the same order: the same bits).
+    """
     if distance_m <= 0.0:
         return p, u
-    gd = gamma * distance_m
-    ch, sh = np.cosh(gd), np.sinh(gd)
-    return ch * p + zc * sh * u, sh / zc * p + ch * u
+    matrix = None if sections is None else sections.get(distance_m)
+    if matrix is None:
+        gd = gamma * distance_m
+        ch, sh = np.cosh(gd), np.sinh(gd)
+        matrix = (ch, zc * sh, sh / zc)
+        if sections is not None:
+            sections[distance_m] = matrix
+    ch, zsh, sh_z = matrix
+    return ch * p + zsh * u, sh_z * p + ch * u

@@ -88,6 +88,8 @@ class JobRunner:
         if job is None or event.state in (WorkerState.PENDING, WorkerState.RUNNING):
             return
         del self._job_table()[event.worker]
+        if not self.app.is_running:  # the app is closing (its screens are going): nothing to apply
+            return
         self.post_message(JobProgress(event.worker, ended=True))
         if event.state == WorkerState.SUCCESS:
             try:
