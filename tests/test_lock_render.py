@@ -218,6 +218,35 @@ def test_rendered_cues_keep_every_hole_above_the_safe_line(show):
         assert rig.static_pa + p.min() >= rig.reserve * rig.static_pa * (1 - 1e-3)
 
 
+def test_the_flame_row_from_the_verification_is_the_cues_own(show):
+    """render_cue(flames=True) keeps the flame row its verification predicted (the Run view draws
+    it instead of simulating the cue again): the same row signal_report gives for the rendered
+    samples, frame for frame; the gate (margin, lowest pressure) is the same with or without it."""
+    from showkit.analysis.pressure import signal_report
+    from showkit.show.playlist import resample_cue
+    from showkit.show.render import flame_row
+
+    sheet, _ = _locked(show)
+    rig = sheet_rig(sheet)
+    cue = next(c for c in sheet.cues if c.gain_db > -60)
+    plain = render_cue(sheet, rig, cue)
+    with_row = render_cue(sheet, rig, cue, flames=True)
+    assert plain.flames is None and with_row.flames is not None
+    assert (with_row.margin_pa, with_row.min_pressure_pa) == (plain.margin_pa, plain.min_pressure_pa)
+    direct = flame_row(signal_report(rig, with_row.samples, with_row.rate_hz, flames=True).frames)
+    np.testing.assert_array_equal(with_row.flames[0], direct[0])
+    assert with_row.flames[1:] == direct[1:]
+    assert direct[0].size > 0 and direct[3] > direct[2]   # a row that moves, not an empty one
+    # resampled for a device it is the same sound: the row goes with it
+    assert resample_cue(with_row, 44100 if with_row.rate_hz != 44100 else 48000).flames is with_row.flames
+    # a pause moves no flame: the still row (height 1 at every hole) for its 2 s, with no simulation
+    pause = next(c for c in sheet.cues if c.kind == "pause")
+    still = render_cue(sheet, rig, pause, flames=True).flames
+    assert still[0].shape == (60, len(rig.geometry.hole_positions_m)) and np.all(still[0] == 1.0)
+    silent = signal_report(rig, np.zeros(2 * 48000), 48000, flames=True).frames.height
+    np.testing.assert_allclose(still[0], np.asarray(silent)[:60], atol=1e-6)
+
+
 def test_rider_lifts_the_quiet_part_and_still_holds_the_line(show):
     """ride = true: the loud burst sets the ceiling; the sustained tone around it is lifted."""
     text = (show / "show.toml").read_text().replace('id = "pb"\n', 'id = "pb"\nride = true\n')

@@ -81,6 +81,11 @@ class RenderedCue:
     plays_nothing : bool
         Every sample is zero (a pause, :attr:`showkit.show.lock.CueCheck.plays_nothing`);
         while the cue is also playable it is :attr:`silent` and its ceiling reads ``silence``.
+    flames : tuple, optional
+        The predicted flame row from the render's verification
+        (:func:`showkit.show.render.flame_row`), when the renderer was asked for it; kept
+        when the cue is resampled for the device (the same sound).  A preview only: it
+        gates nothing.
     """
 
     id: str
@@ -101,6 +106,7 @@ class RenderedCue:
     min_pressure_pa: float | None = None
     ride: bool = False
     plays_nothing: bool = False
+    flames: tuple | None = field(default=None, repr=False, compare=False)
 
     def __post_init__(self):
         where = f"cue {self.id!r}"

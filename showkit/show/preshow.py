@@ -79,7 +79,7 @@ def cue_for_today(sheet, file_rig, today_rig, cue, signal=None, signals=None):
 
 
 def pre_show_check(sheet_path, log, static_pa: float | None = None,
-                   temperature_k: float | None = None):
+                   temperature_k: float | None = None, flames: bool = False):
     """Render the sheet for playback with today's readings, logging every reading and verdict.
 
     Parameters
@@ -92,6 +92,8 @@ def pre_show_check(sheet_path, log, static_pa: float | None = None,
         Today's static overpressure from the manometer, Pa (None: the rig file's).
     temperature_k : float, optional
         Today's gas temperature, K (None: the rig file's).
+    flames : bool
+        Also predict each cue's flame row in its verification (:attr:`RenderedCue.flames`).
 
     Returns
     -------
@@ -110,7 +112,7 @@ def pre_show_check(sheet_path, log, static_pa: float | None = None,
     log.write("check", None, None, f"pre-show check of {sheet_path}: "
               + (", ".join(reading) if reading else "the rig file's static pressure and temperature"))
     cues, problems = render.render_for_playback(sheet_path, static_pa=static_pa,
-                                                temperature_k=temperature_k)
+                                                temperature_k=temperature_k, flames=flames)
     for line in problems:
         if not line.startswith("cue "):
             log.write("check", None, None, line)

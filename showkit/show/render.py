@@ -35,10 +35,13 @@ VERIFY_TOLERANCE = 1e-5
 SHOW_RATE_HZ = TONE_RATE_HZ
 
 
-def verify(rig: Rig, samples: np.ndarray, rate_hz: int, where: str) -> tuple[float, float]:
+def verify(rig: Rig, samples: np.ndarray, rate_hz: int, where: str,
+           flames: bool = False) -> tuple[float, float, tuple | None]:
     """Re-simulate rendered samples; refuse them if any hole dips below the reserve line.
 
-    Returns ``(margin_pa, min_pressure_pa)``.
+    Returns ``(margin_pa, min_pressure_pa, flame_row)``: with ``flames`` the same
+    simulation also gives the predicted flame row (:func:`flame_row`; a flames pass
+    costs about an eighth more; silence is the still row), else ``flame_row`` is None.
     """
     from showkit.analysis.pressure import signal_report
 
@@ -47,8 +50,15 @@ def verify(rig: Rig, samples: np.ndarray, rate_hz: int, where: str) -> tuple[flo
         raise SheetError(f"the rendered cue peaks at {20 * math.log10(peak):+.2f} dBFS, above full scale",
                          where, "lower the gain; the cue was not rendered")
     if peak == 0.0:
-        return (1.0 - rig.reserve) * rig.static_pa, rig.static_pa
-    report = signal_report(rig, samples, rate_hz, flames=False)
+        still = None
+        if flames:  # no sound moves no flame: every hole at its still height (1) for the cue's length
+            from showkit.physics.flames import FRAME_RATE_HZ
+
+            frames = max(1, math.ceil(samples.size / rate_hz * FRAME_RATE_HZ))
+            still = (np.ones((frames, len(rig.geometry.hole_positions_m)), np.float32), float(FRAME_RATE_HZ),
+                     1.0, 1.0)
+        return (1.0 - rig.reserve) * rig.static_pa, rig.static_pa, still
+    report = signal_report(rig, samples, rate_hz, flames=flames)
     lowest = rig.static_pa - report.swing_pa
     line = rig.reserve * rig.static_pa
     slack = VERIFY_TOLERANCE * rig.static_pa
@@ -57,17 +67,27 @@ def verify(rig: Rig, samples: np.ndarray, rate_hz: int, where: str) -> tuple[flo
                          f"{lowest:.2f} Pa, below the safe line {line:.2f} Pa, at {report.worst_time_s:.2f} s",
                          where, "lower the gain and lock again; the cue was not rendered")
     # within the slack is on the line (float32 rounding), not below it
-    return max(lowest - line, 0.0), max(lowest, line)
+    return max(lowest - line, 0.0), max(lowest, line), flame_row(report.frames) if flames else None
 
 
-def render_cue(sheet: Sheet, rig: Rig, cue: Cue, signals: SignalMemo | None = None) -> RenderedCue:
+def flame_row(frames) -> tuple:
+    """A report's flame frames as the Run view draws them:
+    ``(height frames, frame rate Hz, lowest height, highest height)``."""
+    h = np.asarray(frames.height)
+    return (h, float(frames.frame_rate_hz),
+            float(h.min()) if h.size else 0.0, float(h.max()) if h.size else 1.0)
+
+
+def render_cue(sheet: Sheet, rig: Rig, cue: Cue, signals: SignalMemo | None = None,
+               flames: bool = False) -> RenderedCue:
     """Render and verify one cue for the rig's (today's) static pressure and reserve.
 
     Raises a :class:`SheetError` naming the cue if it is stale, over its
     ceiling, or fails verification.  The result's ``verify_at`` checks its samples
     again on this rig at another rate (:func:`played_rate_check`).  ``signals``: the
     pass's :class:`~showkit.show.sources.SignalMemo` (the cue's sound, if the pass's
-    check built it already); None builds it here.
+    check built it already); None builds it here.  ``flames``: the verification also
+    predicts the cue's flame row (:attr:`RenderedCue.flames`), for the Run view.
     """
     where = f"{sheet.path or 'sheet'}: cue {cue.id}"
     signal = signal_for(sheet, rig, cue, signals)
@@ -81,11 +101,11 @@ def render_cue(sheet: Sheet, rig: Rig, cue: Cue, signals: SignalMemo | None = No
 
         samples = ride(rig, samples, signal.rate_hz)
     samples = samples.astype(np.float32)
-    margin, lowest = verify(rig, samples.astype(float), signal.rate_hz, where)
+    margin, lowest, row = verify(rig, samples.astype(float), signal.rate_hz, where, flames=flames)
     return RenderedCue(id=cue.id, label=cue.label, samples=samples, rate_hz=signal.rate_hz, then=cue.then,
                        gain_db=cue.gain_db, ceiling_db=state.ceiling_db, status=CueStatus.OK,
                        verify_at=played_rate_check(rig), margin_pa=margin, min_pressure_pa=lowest,
-                       ride=cue.ride, plays_nothing=state.plays_nothing)
+                       ride=cue.ride, plays_nothing=state.plays_nothing, flames=row)
 
 
 def render_sheet(sheet: Sheet, rig: Rig | None = None, progress=None) -> list[RenderedCue]:
@@ -260,14 +280,15 @@ def render_iter(sheet: Sheet, rig: Rig, progress=None):
 
 
 def render_for_playback(sheet_path, static_pa: float | None = None,
-                        temperature_k: float | None = None):
+                        temperature_k: float | None = None, flames: bool = False):
     """The pre-show check and render for the live engine.
 
     Today's static pressure re-derives every ceiling by exact scaling.  Today's
     gas temperature moves the modes: every valid cue is then locked again in
     memory for the warmer or cooler gas (tone and glide cues on modes follow the
     modes; the file is not changed) and checked against its gain; a stale cue
-    stays stale (:func:`showkit.show.preshow.cue_for_today`).
+    stays stale (:func:`showkit.show.preshow.cue_for_today`).  ``flames``: each cue's
+    verification also predicts its flame row (:func:`render_cue`).
 
     Returns
     -------
@@ -306,7 +327,7 @@ def render_for_playback(sheet_path, static_pa: float | None = None,
                 out.append(RenderedCue(cue.id, cue.label, np.zeros(0, np.float32), 48000, cue.then,
                                        cue.gain_db, state.ceiling_db, state.status, state.message))
                 continue
-            v = render_cue(sheet, today, cue, signals)  # verify_at: on today's rig
+            v = render_cue(sheet, today, cue, signals, flames=flames)  # verify_at: on today's rig
             held += v.samples.size * max(1.0, v.rate_hz / 48000)
             out.append(v)
         except ShowkitError as exc:

@@ -244,20 +244,19 @@ class Session(SheetEditor):
     def cue_flames_job(self, cues, rig, progress):
         """The predicted flame frames of rendered cues (the Run view's flame row), by cue id.
 
-        Each cue's samples go through :func:`showkit.analysis.pressure.signal_report`;
-        the result per cue is ``(height frames, frame rate Hz, lowest, highest height)``.
+        A cue rendered by :meth:`preshow_job` carries its row from its verification
+        (:attr:`~showkit.show.playlist.RenderedCue.flames`); any other goes through
+        :func:`showkit.analysis.pressure.signal_report`.  The result per cue is
+        :func:`showkit.show.render.flame_row`'s ``(height frames, frame rate Hz, lowest, highest)``.
         """
-        import numpy as np
-
         from showkit.analysis.pressure import signal_report
+        from showkit.show.render import flame_row
 
         out = {}
         for k, cue in enumerate(cues):
             progress(k, len(cues), cue.id)
-            frames = signal_report(rig, cue.samples, cue.rate_hz, flames=True).frames
-            h = np.asarray(frames.height)
-            out[cue.id] = (h, float(frames.frame_rate_hz),
-                           float(h.min()) if h.size else 0.0, float(h.max()) if h.size else 1.0)
+            out[cue.id] = cue.flames if cue.flames is not None else flame_row(
+                signal_report(rig, cue.samples, cue.rate_hz, flames=True).frames)
         progress(len(cues), len(cues), None)
         return out
 
@@ -285,4 +284,4 @@ class Session(SheetEditor):
         (None: the rig file's), written to the show ``log``."""
         from showkit.show.preshow import pre_show_check
 
-        return pre_show_check(sheet_path, log, static_pa, temperature_k)
+        return pre_show_check(sheet_path, log, static_pa, temperature_k, flames=True)  # the Run view's flame row
