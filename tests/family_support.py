@@ -77,12 +77,16 @@ def hole_transfer(freq_hz, geometry, gas, flow_m_s=0.0, resistance=0.0, bore_q=N
     zc = np.sqrt(zs / ys)
     zh = hole_impedance(omega, geometry, gas, flow_m_s, resistance)
 
+    sections = {}  # distance -> matrix: evenly spaced holes share one (computed once, same values)
+
     def section(d):
-        m = np.empty((f.size, 2, 2), dtype=complex)
-        m[:, 0, 0] = m[:, 1, 1] = np.cosh(g * d)
-        m[:, 0, 1] = zc * np.sinh(g * d)
-        m[:, 1, 0] = np.sinh(g * d) / zc
-        return m
+        if d not in sections:
+            m = np.empty((f.size, 2, 2), dtype=complex)
+            m[:, 0, 0] = m[:, 1, 1] = np.cosh(g * d)
+            m[:, 0, 1] = zc * np.sinh(g * d)
+            m[:, 1, 0] = np.sinh(g * d) / zc
+            sections[d] = m
+        return sections[d]
 
     shunt = np.zeros((f.size, 2, 2), dtype=complex)
     shunt[:, 0, 0] = shunt[:, 1, 1] = 1.0
