@@ -61,7 +61,7 @@ def sheet(tmp_path):
 def patched_render(monkeypatch):
     calls = []
 
-    def fake(sheet_path, static_pa=None, temperature_k=None):
+    def fake(sheet_path, static_pa=None, temperature_k=None, flames=False):
         calls.append((str(sheet_path), static_pa, temperature_k))
         return synth_cues(), ["pre-show check: static 22 Pa, gas 24.0 C, reserve 0.25",
                               "cue old: stale: the audio file changed since the lock"]
@@ -221,7 +221,7 @@ def test_status_line_shows_now_next_fader_and_state():
 DRIVER = CUES_SOURCE + textwrap.dedent("""
     import sys
     from showkit.show import render
-    render.render_for_playback = lambda path, static_pa=None, temperature_k=None: (
+    render.render_for_playback = lambda path, static_pa=None, temperature_k=None, flames=False: (
         synth_cues(), ["pre-show check: synthesized cues"])
     if "--fake-device" in sys.argv:
         sys.argv.remove("--fake-device")

@@ -329,6 +329,23 @@ def _scan_one(rig: Rig, path: str, key: str | None, threads: int | None = None) 
 _WORKER_RIG: Rig | None = None
 
 
+def _import_for_workers() -> None:
+    """Import what a track's analysis uses here, before the pool starts its workers.
+
+    Forked workers (the default start method on Linux) inherit the modules instead of
+    each importing them on its first file: scipy.signal and what it pulls in take 1-2 s
+    of CPU per process, which a two-worker scan of a short folder paid twice on top of
+    the work (measured: ``tests/benchmarks/bench_scan_growth.py --folder-only --cold``).
+    """
+    import scipy.fft  # noqa: F401
+    import scipy.ndimage  # noqa: F401
+    import scipy.signal  # noqa: F401
+    import scipy.sparse  # noqa: F401
+    import soundfile  # noqa: F401
+    import soxr  # noqa: F401
+    import threadpoolctl  # noqa: F401
+
+
 def _init_worker(rig: Rig) -> None:
     global _WORKER_RIG
     _WORKER_RIG = rig
@@ -420,6 +437,7 @@ def scan_paths(rig: Rig, paths, jobs: int | None = None, use_cache: bool = True,
             if progress:
                 progress(done, total, f)
     else:
+        _import_for_workers()
         with ProcessPoolExecutor(max_workers=min(jobs, len(todo)), initializer=_init_worker,
                                  initargs=(rig,)) as pool:
             futures = {pool.submit(_scan_in_worker, f, key): f for f, key in todo}

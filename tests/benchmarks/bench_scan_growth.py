@@ -97,6 +97,9 @@ def main() -> int:
     ap.add_argument("--sizes", type=float, nargs="*", default=[0.5, 4.0, 15.0, 60.0])
     ap.add_argument("--corpus", default=os.path.join(tempfile.gettempdir(), "showkit-realmusic"))
     ap.add_argument("--folder-only", action="store_true")
+    ap.add_argument("--cold", action="store_true",
+                    help="time the folder as a user runs it: a fresh 'showkit scan FOLDER --jobs N --no-cache' "
+                         "process per run (imports included), not a warmed process calling scan_paths")
     args = ap.parse_args()
     import realmusic as rm
 
@@ -133,12 +136,21 @@ def main() -> int:
     from showkit.rigfile import load_rig
 
     rig = load_rig()
-    scan_mod.scan_track(rig, corpus["drums"].path)  # warm this process
+    if not args.cold:
+        scan_mod.scan_track(rig, corpus["drums"].path)  # warm this process
     for jobs in (1, 2):
         load = os.getloadavg()[0]
         t = time.perf_counter()
-        out = scan_mod.scan_paths(rig, [folder], jobs=jobs, use_cache=False)
-        times[jobs] = time.perf_counter() - t
+        if args.cold:
+            run = subprocess.run([sys.executable, "-m", "showkit", "scan", str(folder), "--jobs", str(jobs),
+                                  "--no-cache", "--json"], capture_output=True, text=True,
+                                 env=dict(os.environ, PYTHONPATH=str(REPO)))
+            times[jobs] = time.perf_counter() - t
+            assert run.returncode == 0, run.stderr
+            out = json.loads(run.stdout[run.stdout.index("["):])
+        else:
+            out = scan_mod.scan_paths(rig, [folder], jobs=jobs, use_cache=False)
+            times[jobs] = time.perf_counter() - t
         assert len(out) == 4 * len(names) and all(o["error"] is None for o in out)
         print(f"folder of {len(out)} tracks, {jobs} worker(s): {times[jobs]:.1f} s "
               f"(load average before {load:.1f} on {os.cpu_count()} cores)", flush=True)
