@@ -158,3 +158,19 @@ def test_a_slope_across_a_rising_threshold_is_no_peak():
     assert list(sg.pick_peaks(bumps, 4, 0.35)) == [20]
     assert list(sg.pick_peaks(bumps, 4, 0.1)) == [20, 30]
     assert list(sg.pick_peaks(bumps, 12, 0.1)) == [20]
+
+
+@settings(max_examples=300, deadline=None)
+@given(st.lists(st.integers(0, 6), min_size=0, max_size=80), st.integers(1, 12),
+       st.one_of(st.floats(0.0, 6.0), st.lists(st.floats(0.0, 6.0), min_size=80, max_size=80)))
+def test_peaks_are_scipy_find_peaks(values, spacing, height):
+    """pick_peaks against its reference, scipy.signal.find_peaks(height=, distance=) (SciPy 1.0,
+    Virtanen et al. 2020), on curves of small whole numbers: flat tops, ties between peaks,
+    plateaus at the ends and thresholds per block are common there."""
+    from scipy.signal import find_peaks
+
+    curve = np.asarray(values, dtype=float) / 6.0
+    thr = (np.asarray(height[:curve.size]) if isinstance(height, list) else np.float64(height)) / 6.0
+    got = sg.pick_peaks(curve, spacing, thr)
+    want = find_peaks(curve, height=thr, distance=spacing)[0] if curve.size >= 3 else np.zeros(0, int)
+    assert got.tolist() == want.tolist()

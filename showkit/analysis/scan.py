@@ -333,13 +333,12 @@ def _import_for_workers() -> None:
     """Import what a track's analysis uses here, before the pool starts its workers.
 
     Forked workers (the default start method on Linux) inherit the modules instead of
-    each importing them on its first file: scipy.signal and what it pulls in take 1-2 s
-    of CPU per process, which a two-worker scan of a short folder paid twice on top of
+    each importing them on its first file: about 0.6 s of CPU per process (scipy's fft,
+    ndimage and sparse), which a two-worker scan of a short folder paid twice on top of
     the work (measured: ``tests/benchmarks/bench_scan_growth.py --folder-only --cold``).
     """
     import scipy.fft  # noqa: F401
     import scipy.ndimage  # noqa: F401
-    import scipy.signal  # noqa: F401
     import scipy.sparse  # noqa: F401
     import soundfile  # noqa: F401
     import soxr  # noqa: F401

@@ -147,7 +147,7 @@ def main() -> int:
                                  env=dict(os.environ, PYTHONPATH=str(REPO)))
             times[jobs] = time.perf_counter() - t
             assert run.returncode == 0, run.stderr
-            out = json.loads(run.stdout[run.stdout.index("["):])
+            out = json.loads(run.stdout)["tracks"]
         else:
             out = scan_mod.scan_paths(rig, [folder], jobs=jobs, use_cache=False)
             times[jobs] = time.perf_counter() - t
