@@ -33,11 +33,12 @@ def pytest_configure(config):
 #: test_realmusic_set.py, later, then reads (conftest ``realmusic``).  Files not named here follow
 #: in their usual order.
 LONGEST_FIRST = ("test_ui_run.py", "test_scan_realmusic.py", "test_family.py", "test_measure.py",
-                 "test_ui_tube_track.py", "test_ui_show.py", "test_lock_render.py", "test_kill_lock.py",
-                 "test_bad_numbers.py", "test_cli_sheet.py", "test_realmusic_set.py", "test_export_book.py",
-                 "test_ui_review.py", "test_bad_inputs.py", "test_export_figures.py", "test_ui_measure.py",
-                 "test_run_cmd.py", "test_export_preview.py", "test_signal_memo.py", "test_ui_snapshots.py",
-                 "test_ui_exports.py", "test_cli_ceiling.py", "test_sheet_properties.py")
+                 "test_bad_numbers.py", "test_ui_tube_track.py", "test_ui_show.py", "test_lock_render.py",
+                 "test_cli_sheet.py", "test_realmusic_set.py", "test_export_book.py", "test_kill_lock.py",
+                 "test_ui_exports.py", "test_ui_measure.py", "test_ui_review.py", "test_bad_inputs.py",
+                 "test_ui_snapshots.py", "test_lock_memo.py", "test_sheet_properties.py", "test_export_figures.py",
+                 "test_cli_ceiling.py", "test_export_preview.py", "test_run_cmd.py", "test_signal_memo.py",
+                 "test_cli_scan.py")
 
 
 def pytest_xdist_auto_num_workers(config):
