@@ -219,10 +219,14 @@ def test_rendered_cues_keep_every_hole_above_the_safe_line(show):
 
 
 def test_the_flame_row_from_the_verification_is_the_cues_own(show):
-    """render_cue(flames=True) keeps the flame row its verification predicted (the Run view draws
-    it instead of simulating the cue again): the same row signal_report gives for the rendered
-    samples, frame for frame; the gate (margin, lowest pressure) is the same with or without it."""
-    from showkit.analysis.pressure import signal_report
+    """render_cue(flames=True) keeps the flame row of the cue as it plays (the Run view draws it
+    instead of simulating the cue again): the row signal_flames gives for the rendered samples at
+    0 dB (the show book's and the preview's), frame for frame; the gate (margin, lowest pressure)
+    is the same with or without it; and the row follows the cue's level (a review found the
+    Run view drawing every cue as if at its ceiling)."""
+    import dataclasses
+
+    from showkit.analysis.pressure import signal_flames, signal_report
     from showkit.show.playlist import resample_cue
     from showkit.show.render import flame_row
 
@@ -233,10 +237,12 @@ def test_the_flame_row_from_the_verification_is_the_cues_own(show):
     with_row = render_cue(sheet, rig, cue, flames=True)
     assert plain.flames is None and with_row.flames is not None
     assert (with_row.margin_pa, with_row.min_pressure_pa) == (plain.margin_pa, plain.min_pressure_pa)
-    direct = flame_row(signal_report(rig, with_row.samples, with_row.rate_hz, flames=True).frames)
+    direct = flame_row(signal_flames(rig, with_row.samples, with_row.rate_hz, 0.0))
     np.testing.assert_array_equal(with_row.flames[0], direct[0])
     assert with_row.flames[1:] == direct[1:]
     assert direct[0].size > 0 and direct[3] > direct[2]   # a row that moves, not an empty one
+    quieter = render_cue(sheet, rig, dataclasses.replace(cue, gain_db=cue.gain_db - 12.0), flames=True).flames
+    assert quieter[3] - quieter[2] < 0.6 * (direct[3] - direct[2])   # 12 dB down: a flatter row
     # resampled for a device it is the same sound: the row goes with it
     assert resample_cue(with_row, 44100 if with_row.rate_hz != 44100 else 48000).flames is with_row.flames
     # a pause moves no flame: the still row (height 1 at every hole) for its 2 s, with no simulation

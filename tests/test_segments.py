@@ -161,12 +161,13 @@ def test_a_slope_across_a_rising_threshold_is_no_peak():
 
 
 @settings(max_examples=300, deadline=None)
-@given(st.lists(st.integers(0, 6), min_size=0, max_size=80), st.integers(1, 12),
+@given(st.lists(st.one_of(st.integers(0, 6), st.sampled_from([np.inf, -np.inf])), min_size=0, max_size=80),
+       st.integers(1, 12),
        st.one_of(st.floats(0.0, 6.0), st.lists(st.floats(0.0, 6.0), min_size=80, max_size=80)))
 def test_peaks_are_scipy_find_peaks(values, spacing, height):
     """pick_peaks against its reference, scipy.signal.find_peaks(height=, distance=) (SciPy 1.0,
-    Virtanen et al. 2020), on curves of small whole numbers: flat tops, ties between peaks,
-    plateaus at the ends and thresholds per block are common there."""
+    Virtanen et al. 2020), on curves of small whole numbers and infinities: flat tops (of inf too),
+    ties between peaks, plateaus at the ends and thresholds per block are common there."""
     from scipy.signal import find_peaks
 
     curve = np.asarray(values, dtype=float) / 6.0

@@ -332,8 +332,9 @@ _WORKER_RIG: Rig | None = None
 def _import_for_workers() -> None:
     """Import what a track's analysis uses here, before the pool starts its workers.
 
-    Forked workers (the default start method on Linux) inherit the modules instead of
-    each importing them on its first file: about 0.6 s of CPU per process (scipy's fft,
+    Forked workers (the start method on Linux before Python 3.14) inherit the modules
+    instead of each importing them on its first file (under forkserver or spawn this
+    changes nothing): about 0.6 s of CPU per process (scipy's fft,
     ndimage and sparse), which a two-worker scan of a short folder paid twice on top of
     the work (measured: ``tests/benchmarks/bench_scan_growth.py --folder-only --cold``).
     """

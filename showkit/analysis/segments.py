@@ -228,17 +228,17 @@ def pick_peaks(curve: np.ndarray, spacing: int, height) -> np.ndarray:
         The novelty per block (0 to 1).
     spacing : int
         Fewest blocks between two peaks (>= 1).
-    height : float or ndarray
-        The value a peak must reach, one for all blocks or one per block.
+    height : float or ndarray or None
+        The value a peak must reach, one for all blocks or one per block (None: any).
     """
     curve = np.asarray(curve, dtype=float)
     if curve.size < 3:
         return np.zeros(0, dtype=int)
     # local maxima: a rise, a flat top of any length, then a fall; the top's middle block
-    steps = np.flatnonzero(np.diff(curve))
+    steps = np.flatnonzero(curve[1:] != curve[:-1])  # not diff(): inf - inf is NaN, a "step"
     rise_fall = (curve[steps[:-1] + 1] > curve[steps[:-1]]) & (curve[steps[1:] + 1] < curve[steps[1:]])
     peaks = (steps[:-1][rise_fall] + 1 + steps[1:][rise_fall]) // 2
-    floor = np.broadcast_to(np.asarray(height, dtype=float), curve.shape)
+    floor = np.broadcast_to(np.asarray(-np.inf if height is None else height, dtype=float), curve.shape)
     peaks = peaks[curve[peaks] >= floor[peaks]]
     spacing = max(1, int(spacing))
     if spacing > 1 and peaks.size > 1:

@@ -153,7 +153,7 @@ class TubeModel:
         x_here = g.length_m
         hole_p = np.empty((g.hole_count, freq.size), dtype=complex)
         point_p = np.empty((points.size, freq.size), dtype=complex)
-        sections: dict = {}   # distance -> its transfer matrix: evenly spaced holes share one
+        sections: dict = {}   # distance -> its transfer matrix: evenly spaced holes share one (_carry)
         for x, kind, index in stations:
             p, u = _carry(p, u, gamma, zc, x_here - x, sections)
             x_here = x
@@ -168,12 +168,17 @@ class TubeModel:
                             point_pressure=point_p / u0)
 
 
+#: Most section matrices one response keeps (3 complex arrays of the frequencies each).
+MAX_SECTIONS = 32
+
+
 def _carry(p, u, gamma, zc, distance_m, sections: dict | None = None):
     """Carry ``(p, U)`` a distance towards the source along a uniform section.
 
     The section's transfer matrix ``[[cosh gd, Zc sinh gd], [sinh gd / Zc, cosh gd]]``
-    is kept in ``sections`` by distance, so a row of equally spaced holes evaluates
-    the hyperbolic functions once (the same products in the same order: the same bits).
+    is kept in ``sections`` by distance (at most :data:`MAX_SECTIONS` of them: memory
+    stays bounded for uneven rows), so a row of equally spaced holes evaluates the
+    hyperbolic functions once (the same products in the same order: the same bits).
     """
     if distance_m <= 0.0:
         return p, u
@@ -182,7 +187,7 @@ def _carry(p, u, gamma, zc, distance_m, sections: dict | None = None):
         gd = gamma * distance_m
         ch, sh = np.cosh(gd), np.sinh(gd)
         matrix = (ch, zc * sh, sh / zc)
-        if sections is not None:
+        if sections is not None and len(sections) < MAX_SECTIONS:
             sections[distance_m] = matrix
     ch, zsh, sh_z = matrix
     return ch * p + zsh * u, sh_z * p + ch * u

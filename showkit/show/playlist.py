@@ -82,10 +82,10 @@ class RenderedCue:
         Every sample is zero (a pause, :attr:`showkit.show.lock.CueCheck.plays_nothing`);
         while the cue is also playable it is :attr:`silent` and its ceiling reads ``silence``.
     flames : tuple, optional
-        The predicted flame row from the render's verification
-        (:func:`showkit.show.render.flame_row`), when the renderer was asked for it; kept
-        when the cue is resampled for the device (the same sound).  A preview only: it
-        gates nothing.
+        The predicted flame row of the samples as they play, from the render's
+        verification (:func:`showkit.show.render.flame_row`), when the renderer was asked
+        for it; kept when the cue is resampled for the device (the same sound, or the
+        same brought down a little at that rate).  A preview only: it gates nothing.
     """
 
     id: str

@@ -39,11 +39,13 @@ def verify(rig: Rig, samples: np.ndarray, rate_hz: int, where: str,
            flames: bool = False) -> tuple[float, float, tuple | None]:
     """Re-simulate rendered samples; refuse them if any hole dips below the reserve line.
 
-    Returns ``(margin_pa, min_pressure_pa, flame_row)``: with ``flames`` the same
-    simulation also gives the predicted flame row (:func:`flame_row`; a flames pass
-    costs about an eighth more; silence is the still row), else ``flame_row`` is None.
+    Returns ``(margin_pa, min_pressure_pa, flame_row)``: with ``flames`` also the
+    predicted flame row of the samples as they play (:func:`flame_row` of
+    :func:`showkit.analysis.pressure.signal_flames` at 0 dB, as the show book and the
+    preview draw them; one more pass on the best estimate, about an eighth more work;
+    silence is the still row), else ``flame_row`` is None.  The row gates nothing.
     """
-    from showkit.analysis.pressure import signal_report
+    from showkit.analysis.pressure import signal_flames, signal_report
 
     peak = float(np.max(np.abs(samples))) if samples.size else 0.0
     if peak > 1.0 + VERIFY_TOLERANCE:
@@ -58,7 +60,7 @@ def verify(rig: Rig, samples: np.ndarray, rate_hz: int, where: str,
             still = (np.ones((frames, len(rig.geometry.hole_positions_m)), np.float32), float(FRAME_RATE_HZ),
                      1.0, 1.0)
         return (1.0 - rig.reserve) * rig.static_pa, rig.static_pa, still
-    report = signal_report(rig, samples, rate_hz, flames=flames)
+    report = signal_report(rig, samples, rate_hz, flames=False)
     lowest = rig.static_pa - report.swing_pa
     line = rig.reserve * rig.static_pa
     slack = VERIFY_TOLERANCE * rig.static_pa
@@ -67,12 +69,13 @@ def verify(rig: Rig, samples: np.ndarray, rate_hz: int, where: str,
                          f"{lowest:.2f} Pa, below the safe line {line:.2f} Pa, at {report.worst_time_s:.2f} s",
                          where, "lower the gain and lock again; the cue was not rendered")
     # within the slack is on the line (float32 rounding), not below it
-    return max(lowest - line, 0.0), max(lowest, line), flame_row(report.frames) if flames else None
+    row = flame_row(signal_flames(rig, samples, rate_hz, 0.0)) if flames else None
+    return max(lowest - line, 0.0), max(lowest, line), row
 
 
 def flame_row(frames) -> tuple:
-    """A report's flame frames as the Run view draws them:
-    ``(height frames, frame rate Hz, lowest height, highest height)``."""
+    """Flame frames (:class:`~showkit.physics.response.PressureFrames`) as the Run view draws
+    them: ``(height frames, frame rate Hz, lowest height, highest height)``."""
     h = np.asarray(frames.height)
     return (h, float(frames.frame_rate_hz),
             float(h.min()) if h.size else 0.0, float(h.max()) if h.size else 1.0)

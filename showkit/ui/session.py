@@ -244,19 +244,21 @@ class Session(SheetEditor):
     def cue_flames_job(self, cues, rig, progress):
         """The predicted flame frames of rendered cues (the Run view's flame row), by cue id.
 
-        A cue rendered by :meth:`preshow_job` carries its row from its verification
+        The rows of the samples as they play (0 dB: the rendered cue is at its locked
+        gain), as the show book and the preview draw them.  A cue rendered by
+        :meth:`preshow_job` carries its row from its verification
         (:attr:`~showkit.show.playlist.RenderedCue.flames`); any other goes through
-        :func:`showkit.analysis.pressure.signal_report`.  The result per cue is
+        :func:`showkit.analysis.pressure.signal_flames`.  The result per cue is
         :func:`showkit.show.render.flame_row`'s ``(height frames, frame rate Hz, lowest, highest)``.
         """
-        from showkit.analysis.pressure import signal_report
+        from showkit.analysis.pressure import signal_flames
         from showkit.show.render import flame_row
 
         out = {}
         for k, cue in enumerate(cues):
             progress(k, len(cues), cue.id)
             out[cue.id] = cue.flames if cue.flames is not None else flame_row(
-                signal_report(rig, cue.samples, cue.rate_hz, flames=True).frames)
+                signal_flames(rig, cue.samples, cue.rate_hz, 0.0))
         progress(len(cues), len(cues), None)
         return out
 
