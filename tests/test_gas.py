@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import functools
 import math
 
 import pytest
@@ -10,8 +11,17 @@ from hypothesis import strategies as st
 
 from showkit.physics.gas import AIR, R_J_MOL_K, gas_state, mixture
 
-CoolProp = pytest.importorskip("CoolProp.CoolProp")
-PropsSI = CoolProp.PropsSI
+
+@functools.lru_cache(maxsize=None)
+def _coolprop():
+    # imported by the first test that asks: the import takes about 5 s of CPU, which every
+    # test worker paid while collecting when it stood at the top of this module
+    return pytest.importorskip("CoolProp.CoolProp")
+
+
+def PropsSI(*args):
+    """CoolProp's ``PropsSI`` (the test is skipped where CoolProp is not installed)."""
+    return _coolprop().PropsSI(*args)
 
 P_AMBIENT_PA = 101325.0
 _COOLPROP_NAMES = {"propane": "Propane", "n-butane": "n-Butane", "methane": "Methane",
