@@ -22,6 +22,10 @@ small ``|z|`` and Hankel's asymptotic expansion for large (Abramowitz & Stegun
 
 from __future__ import annotations
 
+import hashlib
+import threading
+from collections import OrderedDict
+
 import numpy as np
 
 from showkit.physics.gas import GasState
@@ -101,9 +105,40 @@ def line_constants(omega_rad_s, radius_m: float, gas: GasState):
     Returns
     -------
     z_per_m, y_per_m : ndarray of complex
-        ``Z'`` in Pa s / m^4 and ``Y'`` in m^4 / (Pa s) (acoustic, volume-velocity based).
+        ``Z'`` in Pa s / m^4 and ``Y'`` in m^4 / (Pa s) (acoustic, volume-velocity based),
+        read-only.
+
+    Notes
+    -----
+    The last :data:`MEMO_SIZE` results are kept by the frequencies' bytes, the radius
+    and the gas: a rig's loss family asks for the same bore and hole constants once
+    per member (the members differ only in the holes' flow and resistance), and the
+    Bessel-function ratios were a fifth of its filter design.
     """
     omega = np.asarray(omega_rad_s, dtype=float)
+    key = (hashlib.blake2b(omega.tobytes(), digest_size=16).digest(), omega.shape, float(radius_m), gas)
+    with _MEMO_LOCK:
+        hit = _MEMO.get(key)
+        if hit is not None:
+            _MEMO.move_to_end(key)
+            return hit
+    result = _line_constants(omega, radius_m, gas)
+    for a in result:
+        a.flags.writeable = False
+    with _MEMO_LOCK:
+        _MEMO[key] = result
+        while len(_MEMO) > MEMO_SIZE:
+            _MEMO.popitem(last=False)
+    return result
+
+
+#: Results of :func:`line_constants` kept (each two complex arrays of the frequencies).
+MEMO_SIZE = 16
+_MEMO: OrderedDict = OrderedDict()
+_MEMO_LOCK = threading.Lock()
+
+
+def _line_constants(omega: np.ndarray, radius_m: float, gas: GasState):
     area = np.pi * radius_m ** 2
     rho, c = gas.density_kg_m3, gas.sound_speed_m_s
     kv = np.sqrt(-1j * omega * rho / gas.viscosity_pa_s)
