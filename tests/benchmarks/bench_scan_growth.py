@@ -1,6 +1,7 @@
 """How the scan grows with the track's length, and a folder scan with 1 and 2 workers.
 
-Run by hand: ``python tests/benchmarks/bench_scan_growth.py [--sizes 0.5 4 15 60] [--folder-only]``.
+Run by hand: ``python tests/benchmarks/bench_scan_growth.py [--sizes 0.5 4 15 60] [--folder-only] [--cold]``
+(``--cold``: the folder timed as fresh ``showkit scan FOLDER`` processes, imports included).
 
 Inputs are musical: the real-music set of ``tests/realmusic.py`` (public-domain
 scores from music21's corpus played by fluidsynth with the FluidR3 GM
