@@ -302,15 +302,8 @@ def agree(count: int, one: str, many: str) -> str:
 
 
 def format_every(count: int, noun: str) -> str:
-    """``(1, "cue")`` -> ``"the one cue"``, ``(5, "cue")`` -> ``"all 5 cues"``: a whole set, counted.
-
-    Parameters
-    ----------
-    count : int
-        How many.
-    noun : str
-        The noun in the singular (its plural adds an ``s``).
-    """
+    """``(1, "cue")`` -> ``"the one cue"``, ``(5, "cue")`` -> ``"all 5 cues"``: a whole set, counted
+    (the parameters as :func:`format_count`'s)."""
     return f"the one {noun}" if count == 1 else f"all {format_count(count, noun)}"
 
 
