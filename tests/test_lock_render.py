@@ -226,7 +226,7 @@ def test_the_flame_row_from_the_verification_is_the_cues_own(show):
     Run view drawing every cue as if at its ceiling)."""
     import dataclasses
 
-    from showkit.analysis.pressure import signal_flames, signal_report
+    from showkit.analysis.pressure import frame_lag, signal_flames, signal_report
     from showkit.show.playlist import resample_cue
     from showkit.show.render import flame_row
 
@@ -237,8 +237,13 @@ def test_the_flame_row_from_the_verification_is_the_cues_own(show):
     with_row = render_cue(sheet, rig, cue, flames=True)
     assert plain.flames is None and with_row.flames is not None
     assert (with_row.margin_pa, with_row.min_pressure_pa) == (plain.margin_pa, plain.min_pressure_pa)
-    direct = flame_row(signal_flames(rig, with_row.samples, with_row.rate_hz, 0.0))
+    frames = signal_flames(rig, with_row.samples, with_row.rate_hz, 0.0)
+    direct = flame_row(frames, frame_lag(rig))
     np.testing.assert_array_equal(with_row.flames[0], direct[0])
+    # row k is the flames at the play position k (the responses' delay taken off), as the preview
+    # reads frame floor(t * rate) + lag of the pass
+    assert frame_lag(rig) >= 1
+    np.testing.assert_array_equal(direct[0], np.asarray(frames.height)[frame_lag(rig):])
     assert with_row.flames[1:] == direct[1:]
     assert direct[0].size > 0 and direct[3] > direct[2]   # a row that moves, not an empty one
     quieter = render_cue(sheet, rig, dataclasses.replace(cue, gain_db=cue.gain_db - 12.0), flames=True).flames

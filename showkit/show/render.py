@@ -45,7 +45,7 @@ def verify(rig: Rig, samples: np.ndarray, rate_hz: int, where: str,
     preview draw them; one more pass on the best estimate, about an eighth more work;
     silence is the still row), else ``flame_row`` is None.  The row gates nothing.
     """
-    from showkit.analysis.pressure import signal_flames, signal_report
+    from showkit.analysis.pressure import frame_lag, signal_flames, signal_report
 
     peak = float(np.max(np.abs(samples))) if samples.size else 0.0
     if peak > 1.0 + VERIFY_TOLERANCE:
@@ -69,14 +69,23 @@ def verify(rig: Rig, samples: np.ndarray, rate_hz: int, where: str,
                          f"{lowest:.2f} Pa, below the safe line {line:.2f} Pa, at {report.worst_time_s:.2f} s",
                          where, "lower the gain and lock again; the cue was not rendered")
     # within the slack is on the line (float32 rounding), not below it
-    row = flame_row(signal_flames(rig, samples, rate_hz, 0.0)) if flames else None
+    row = flame_row(signal_flames(rig, samples, rate_hz, 0.0), frame_lag(rig)) if flames else None
     return max(lowest - line, 0.0), max(lowest, line), row
 
 
-def flame_row(frames) -> tuple:
+def flame_row(frames, lag_frames: int = 0) -> tuple:
     """Flame frames (:class:`~showkit.physics.response.PressureFrames`) as the Run view draws
-    them: ``(height frames, frame rate Hz, lowest height, highest height)``."""
+    them: ``(height frames, frame rate Hz, lowest height, highest height)``.
+
+    ``lag_frames``: the hole responses' delay in frames
+    (:func:`showkit.analysis.pressure.frame_lag`); the first ``lag_frames`` frames are
+    dropped, so that row ``k`` is the flames at the drive's frame ``k`` (the play position),
+    as the preview and the show book read them.
+    """
     h = np.asarray(frames.height)
+    lag = max(0, int(lag_frames))
+    if 0 < lag < h.shape[0]:
+        h = h[lag:]
     return (h, float(frames.frame_rate_hz),
             float(h.min()) if h.size else 0.0, float(h.max()) if h.size else 1.0)
 

@@ -531,7 +531,8 @@ class RunView(SessionView):
         if st.cue_id is not None and st.cue_id in self.flames:
             h, rate, lo, hi = self.flames[st.cue_id]
             if h.shape[0]:
-                k = int(min(h.shape[0] - 1, max(0, round(st.elapsed_s * rate))))
+                # frame k holds the drive's [k, k + 1) / rate (the preview's rule)
+                k = int(min(h.shape[0] - 1, max(0, math.floor(st.elapsed_s * rate + 1e-9))))
                 flames.show(h[k], lo, hi, f"predicted flames of {st.cue_id} at {format_time(st.elapsed_s)} "
                             f"(scale: this cue's {lo:.2f} to {hi:.2f} of still height)")
                 return

@@ -251,14 +251,14 @@ class Session(SheetEditor):
         :func:`showkit.analysis.pressure.signal_flames`.  The result per cue is
         :func:`showkit.show.render.flame_row`'s ``(height frames, frame rate Hz, lowest, highest)``.
         """
-        from showkit.analysis.pressure import signal_flames
+        from showkit.analysis.pressure import frame_lag, signal_flames
         from showkit.show.render import flame_row
 
         out = {}
         for k, cue in enumerate(cues):
             progress(k, len(cues), cue.id)
             out[cue.id] = cue.flames if cue.flames is not None else flame_row(
-                signal_flames(rig, cue.samples, cue.rate_hz, 0.0))
+                signal_flames(rig, cue.samples, cue.rate_hz, 0.0), frame_lag(rig))
         progress(len(cues), len(cues), None)
         return out
 
