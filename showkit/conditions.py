@@ -253,12 +253,27 @@ def make_calibration(reference_frequency=None, reference_level=None, reference_p
     return DriveCalibration(f_ref, level, p_ref, f_s, q_s, rf_hz, rd_db)
 
 
+def check_reference_frequency(value, at: str = "reference frequency", tube=None) -> float:
+    """A calibration sine's frequency, Hz, by the checks of :func:`make_calibration`'s door.
+
+    A number or text such as ``"120 Hz"``, finite, within
+    :data:`REFERENCE_FREQUENCY_MIN_HZ` to :data:`REFERENCE_FREQUENCY_MAX_HZ`, and below
+    the plane-wave limit of ``tube`` when one is given (the model says nothing above it).
+    Checked before any model is evaluated there: a frequency of 1e14 Hz or inf is refused
+    for what it is, not through a response that overflows.
+    """
+    f_ref = _within(units.frequency_hz(units.number_or_text(value), at),
+                    REFERENCE_FREQUENCY_MIN_HZ, REFERENCE_FREQUENCY_MAX_HZ, at,
+                    "reference frequency", " Hz", 'give the calibration sine\'s frequency, e.g. "120 Hz"')
+    if tube is not None:
+        _below_plane_wave_limit(f_ref, tube, {"reference_frequency": at})
+    return f_ref
+
+
 def _calibration_point(pick, base, at: dict) -> tuple:
     """``(reference frequency Hz, reference level dBFS, reference pressure Pa)``, parsed and within limits."""
-    f_ref = _within(units.frequency_hz(units.number_or_text(pick("reference_frequency", base.reference_frequency_hz)),
-                                       at["reference_frequency"]),
-                    REFERENCE_FREQUENCY_MIN_HZ, REFERENCE_FREQUENCY_MAX_HZ, at["reference_frequency"],
-                    "reference frequency", " Hz", 'give the calibration sine\'s frequency, e.g. "120 Hz"')
+    f_ref = check_reference_frequency(pick("reference_frequency", base.reference_frequency_hz),
+                                      at["reference_frequency"])
     level = _finite_number(pick("reference_level", base.reference_level_dbfs), at["reference_level"],
                            "level in dBFS")
     if level > REFERENCE_LEVEL_MAX_DBFS:

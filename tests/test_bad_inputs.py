@@ -447,8 +447,12 @@ CASES = [
     Case("audio-rate-4ghz", lambda e: ["ceiling", e.write("r4.wav", _rate_header(4_000_000_000))],
          "says a sample rate of 4000000000 Hz"),
     Case("audio-one-sample", lambda e: ["ceiling", e.write("one.wav", _rate_header(48_000, 1))], "ms long"),
-    Case("scan-dev-zero", lambda e: ["scan", "/dev/zero", "--jobs", "1"], None, 2,
-         check=lambda e, out, err: ("character device" in out) or pytest.fail(out)),
+    Case("scan-dev-zero", lambda e: ["scan", "/dev/zero", "--jobs", "1"], "character device"),
+    # cut inside its header the file read as "only 1.3 ms long", not as cut short (a fresh user's report)
+    Case("audio-cut-in-header", lambda e: ["ceiling", e.write("h.wav", e.p("track.wav").read_bytes()[:100])],
+         "cut short"),
+    Case("scan-cut-in-header", lambda e: ["scan", e.write("h.wav", e.p("track.wav").read_bytes()[:100]),
+                                          "--jobs", "1"], "cut short"),
     Case("scan-folder-with-fifo-and-device-link", lambda e: (
         shutil.copy(e.p("track.wav"), e.p("d/track.wav")) if e.p("d").mkdir() is None else None,
         e.fifo("d/x.wav"), os.symlink("/dev/zero", e.p("d/z.wav")),

@@ -349,3 +349,20 @@ def test_measure_level_never_writes_a_bad_number_into_the_rig(folder, capsys):
     status, out, err = _run(capsys, ["measure", "level", "--out", folder / "nan.wav", "--level", "nan"])
     _refused(status, err)
     assert not (folder / "nan.wav").exists()
+
+
+@pytest.mark.parametrize("value,says", [("1e14", "outside 10 to 5000 Hz"), ("inf", "not a finite"),
+                                        ("5", "outside 10 to 5000 Hz"), ("2000", "plane-wave limit")])
+def test_a_calibration_frequency_is_refused_for_what_it_is_before_the_model_runs(value, says, folder, capsys):
+    """measure level --frequency 1e14 (or inf) went into the loss family's response first: it overflowed
+    (warnings on the terminal) and was refused as "changes by nan dB" near some mode.  The calibration
+    door's checks now come first, with their own words, and no model is evaluated out of range."""
+    import warnings
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", RuntimeWarning)
+        status, out, err = _run(capsys, ["measure", "level", "--out", folder / "refused.wav",
+                                         f"--frequency={value}"])
+    _refused(status, err)
+    assert says in err and "nan" not in err
+    assert not (folder / "refused.wav").exists()

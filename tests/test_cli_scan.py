@@ -263,3 +263,53 @@ def test_a_passage_held_on_modes_too_briefly_to_list_says_so():
     assert _modes_text({"score": 0.0, "modes": [], "mode_shares": []}) == "none"
     assert _modes_text({"score": 40.0, "modes": [3], "mode_shares": [{"n": 3, "note": "C4", "share": 0.4}]}) \
         == "n3 C4 40%"
+
+
+@pytest.mark.parametrize("kind", ["fifo", "missing", "loop", "device"])
+def test_one_track_that_is_not_a_file_is_one_line_too(tmp_path, capsys, kind):
+    """A pipe, a missing name, a looping link or a device given as the one track: one line on
+    stderr and exit 2, as for an unreadable file (a fresh user got the whole table for these)."""
+    path = tmp_path / "p.wav"
+    if kind == "fifo":
+        os.mkfifo(path)
+    elif kind == "loop":
+        os.symlink(tmp_path / "q.wav", path)
+        os.symlink(path, tmp_path / "q.wav")
+    elif kind == "device":
+        path = "/dev/zero"
+    assert main(["scan", str(path), "--jobs", "1"]) == 2
+    out, err = capsys.readouterr()
+    assert out == "" and len(err.strip().splitlines()) == 1, err
+    assert str(path) in err
+
+
+def test_the_progress_bar_is_drawn_on_a_terminal_only(folder, capsys):
+    """Redirected, stderr gets no bar (redrawn with carriage returns it is one unreadable line)."""
+    import io
+
+    from showkit.cli.scan_cmd import _Bar
+
+    class Tty(io.StringIO):
+        def isatty(self):
+            return True
+
+    plain, tty = io.StringIO(), Tty()
+    for stream in (plain, tty):
+        bar = _Bar(stream)
+        bar(1, 3, "a.wav")
+        bar.close()
+    assert plain.getvalue() == ""
+    assert "scanning [" in tty.getvalue() and "1/3 a.wav" in tty.getvalue()
+    assert main(["scan", str(folder), "--jobs", "1"]) == 0
+    assert "scanning [" not in capsys.readouterr().err
+
+
+def test_an_error_line_names_the_file_once(capsys):
+    """The error's own message begins with the path; the line under the table gives it once."""
+    from showkit.cli.scan_cmd import _print_table
+
+    _print_table([{"path": "/music/gone.wav", "duration_s": None, "score": None, "transpose_semitones": None,
+                   "transpose_score": None, "error": "/music/gone.wav: no such file -- check the name",
+                   "passages": []}])
+    lines = capsys.readouterr().out.splitlines()
+    assert lines[-1] == "#1 /music/gone.wav: ERROR: no such file -- check the name"

@@ -91,3 +91,34 @@ def test_broken_cache_file_is_ignored(cache):
     (cache / "scan").mkdir(parents=True)
     (cache / "scan" / f"{key}.json").write_text("{not json")
     assert scancache.load(key) is None
+
+
+def test_a_file_made_unreadable_is_not_served_from_the_cache(cache, track):
+    """Scanned while readable, then made unreadable (its content and mtime unchanged): the scan
+    says it cannot be read, exit 2, rather than print the cached score (a fresh user's report).
+    Root reads any file, so as root the scan runs with the file-permission capabilities dropped
+    (util-linux setpriv)."""
+    import os
+    import shutil
+    import subprocess
+    import sys
+
+    rig = load_rig()
+    assert scan_mod.scan_paths(rig, [track], jobs=1)[0]["error"] is None
+    assert scan_mod.scan_paths(rig, [track], jobs=1)[0]["cached"] is True
+    track.chmod(0)
+    try:
+        if os.geteuid() != 0:
+            out = scan_mod.scan_paths(rig, [track], jobs=1)
+            assert out[0]["error"] is not None and out[0]["cached"] is False
+            return
+        if shutil.which("setpriv") is None:
+            pytest.skip("root without setpriv: cannot make a file unreadable")
+        run = subprocess.run(["setpriv", "--bounding-set", "-dac_override,-dac_read_search",
+                              sys.executable, "-m", "showkit", "scan", str(track), "--jobs", "1"],
+                             capture_output=True, text=True, timeout=120,
+                             env=dict(os.environ, PYTHONPATH=str(Path(__file__).resolve().parents[1])))
+        assert run.returncode == 2, run.stdout + run.stderr
+        assert "cached" not in run.stdout and "ermission denied" in run.stderr
+    finally:
+        track.chmod(0o644)

@@ -156,3 +156,24 @@ def test_contrast_from_extremes_equals_the_full_row(frames, holes, reserve, seed
     gain = 10 ** (lvl.ceiling.ceiling_db / 20)
     full = row_contrast(sine_flame_height(np.clip(gain * env / 20.0, 0.0, 1.0)))
     assert np.allclose(lvl.contrast, full, atol=1e-12)
+
+
+def test_a_passage_lists_every_mode_held_in_it_and_the_table_those_held_5_percent():
+    """mode_shares gives every readable mode held in any frame of the passage, most first (the
+    JSON and CSV: the modes that earned its score; a fresh user found a passage scoring 3.2 with
+    no modes in the JSON); listed_shares keeps those the table lists (>= MIN_MODE_SHARE)."""
+    from showkit.analysis.pitches import ModeTable
+
+    table = ModeTable(n=np.array([1, 2, 3, 4]), freq_hz=np.array([50.0, 100.0, 150.0, 200.0]),
+                      q=np.full(4, 20.0), half_width_cents=np.full(4, 43.0),
+                      readable=np.array([True, True, False, True]), notes=("G1", "G2", "D3", "G3"))
+    held = np.zeros((4, 100), bool)
+    held[0, :3] = True      # 3 % of the passage
+    held[1, 10:40] = True   # 30 %
+    held[2, :] = True       # not readable: never listed
+    mf = sc.ModeFrames(strength=held.astype(np.float32), hit=held, held=held)
+    shares = sc.mode_shares(mf, table, 0, 100)
+    assert shares == [(2, pytest.approx(0.30)), (1, pytest.approx(0.03))]
+    assert sc.mode_shares(mf, table, 50, 100) == []
+    listed = sc.listed_shares([{"n": n, "note": "", "share": s} for n, s in shares])
+    assert [s["n"] for s in listed] == [2]

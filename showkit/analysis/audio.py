@@ -80,6 +80,8 @@ def audio_info(path: str | Path) -> AudioInfo:
         _damaged_wav(path, where)
         raise AudioError(f"not an audio file showkit can read ({_short(exc)})", where,
                          "convert it to WAV or FLAC") from None
+    # a WAV cut short says so first (cut inside its header it would read as too short or empty)
+    _check_wav_length(path, st.st_size, where)
     if info.frames <= 0 or info.samplerate <= 0:
         raise AudioError("the file holds no samples", where, "export the track again")
     if info.channels < 1:
@@ -93,8 +95,7 @@ def audio_info(path: str | Path) -> AudioInfo:
                          "export the track again at 44.1 or 48 kHz")
     if info.frames < MIN_AUDIO_S * info.samplerate:
         raise AudioError(f"the audio is only {1000.0 * info.frames / info.samplerate:.1f} ms long (shortest: "
-                         f"{MIN_AUDIO_S:g} s)", where, "give a track or recording of at least a second")
-    _check_wav_length(path, st.st_size, where)
+                         f"{MIN_AUDIO_S:g} s)", where, f"give a track or recording longer than {MIN_AUDIO_S:g} s")
     return AudioInfo(path=path, rate_hz=int(info.samplerate), channels=int(info.channels),
                      frames=int(info.frames), format=str(info.format))
 

@@ -13,7 +13,8 @@ from showkit.analysis.drivefit import drive_response_db
 from showkit.analysis.resonances import find_resonances
 from showkit.analysis.sweep import check_audio, measure_response
 from showkit.analysis.tubefit import fit_tube, variant
-from showkit.errors import InputError, MeasureError
+from showkit.conditions import check_reference_frequency
+from showkit.errors import MeasureError
 from showkit.physics.biasflow import jet_velocity_m_s
 from showkit.physics.family import check_reference, suggest_reference
 
@@ -197,8 +198,8 @@ def reference_frequency(rig, asked_hz: float | None, where: str = "--frequency")
     """
     family = rig.loss_family
     if asked_hz is not None:
-        if not asked_hz > 0:
-            raise InputError(f"{where} must be above zero", where, f"give e.g. {where} 1400")
+        # the calibration door's own checks first: finite, within limits, below the plane-wave limit
+        asked_hz = check_reference_frequency(asked_hz, where, rig.model)
         check = check_reference(family, asked_hz)
         if not check.ok:
             fix = (f"use {where} {check.suggestion_hz:g}, or leave {where} out and showkit picks one"

@@ -15,6 +15,7 @@ from __future__ import annotations
 import hashlib
 import json
 import os
+import stat
 from pathlib import Path
 
 import showkit
@@ -35,14 +36,19 @@ def content_key(path) -> str:
 
     The file's identity and ``stat`` (device, inode, size, modification time
     in ns) come first: a file seen before with the same ones is not read again
-    (its hash is kept under ``hashes/`` in the cache).  Otherwise the content is
-    hashed by :func:`showkit.analysis.audio.content_hash`, which accepts only a
-    regular file within the audio size limit.
+    (its hash is kept under ``hashes/`` in the cache), if it can still be opened
+    for reading: a file made unreadable since is not served from the cache (its
+    scan would fail).  Otherwise the content is hashed by
+    :func:`showkit.analysis.audio.content_hash`, which accepts only a regular
+    file within the audio size limit and says in one line what is wrong.
     """
     path = Path(path)
     try:
         st = os.stat(path)
         ident = json.dumps([str(path.resolve()), st.st_dev, st.st_ino, st.st_size, st.st_mtime_ns])
+        if not stat.S_ISREG(st.st_mode):
+            raise OSError("not a regular file")
+        os.close(os.open(path, os.O_RDONLY | getattr(os, "O_NONBLOCK", 0)))
     except (OSError, RuntimeError):
         return audio.content_hash(path)  # says what is wrong in one line
     memo = cache_dir() / "hashes" / (hashlib.sha256(ident.encode()).hexdigest()[:32] + ".json")

@@ -368,20 +368,28 @@ def passage_score(term: np.ndarray, first: int, last: int) -> float:
 def mode_shares(mf: ModeFrames, table: ModeTable, first: int, last: int) -> list[tuple[int, float]]:
     """Readable modes held in frames ``first`` to ``last - 1``: ``[(n, time share), ...]``, most first.
 
-    Every mode held in at least :data:`MIN_MODE_SHARE` of the frames is
-    listed (several modes may be held in the same frame).
+    Every mode held in any frame is listed (the modes that earned the
+    passage's score; several modes may be held in the same frame).  The scan's
+    table lists those held at least :data:`MIN_MODE_SHARE` of the time
+    (:func:`listed_shares`); the JSON and CSV give them all.
     """
     if last <= first or mf.held.shape[0] == 0:
         return []
     held = mf.held[:, first:last] & np.asarray(table.readable)[:, None]
     share = held.mean(axis=1)
     order = np.argsort(-share, kind="stable")
-    return [(int(table.n[k]), float(share[k])) for k in order if share[k] >= MIN_MODE_SHARE]
+    return [(int(table.n[k]), float(share[k])) for k in order if share[k] > 0]
+
+
+def listed_shares(shares: list) -> list:
+    """The entries of a passage's ``mode_shares`` (dicts with ``share``) the table lists:
+    held at least :data:`MIN_MODE_SHARE` of the passage's time."""
+    return [s for s in shares if s["share"] >= MIN_MODE_SHARE]
 
 
 def unlisted_modes_text(score: float) -> str:
-    """What a passage's modes column says when no mode holds :data:`MIN_MODE_SHARE` of it:
-    ``"each <5%"`` when it still scores (held on modes, none long enough to list), else ``""``."""
+    """What a passage's modes column in the table says when no mode holds :data:`MIN_MODE_SHARE`
+    of it: ``"each <5%"`` when it still scores (held on modes, none long enough to list), else ``""``."""
     return f"each <{100 * MIN_MODE_SHARE:.0f}%" if score > 0 else ""
 
 

@@ -60,15 +60,21 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 class _Bar:
-    """A plain text progress bar on stderr (only when stderr is a terminal or forced)."""
+    """A plain text progress bar on stderr, only when it is a terminal (``force``: always).
 
-    def __init__(self, stream=None, width: int = 30):
+    Redirected to a file or a pipe, a bar redrawn with carriage returns is one long
+    unreadable line, so nothing is written there.
+    """
+
+    def __init__(self, stream=None, width: int = 30, force: bool = False):
         self.stream = stream or sys.stderr
         self.width = width
         self.shown = False
+        isatty = getattr(self.stream, "isatty", None)
+        self.active = force or bool(isatty and isatty())
 
     def __call__(self, done: int, total: int, path: str) -> None:
-        if total <= 1:
+        if total <= 1 or not self.active:
             return
         fill = int(round(self.width * done / total))
         path = printable(path)
@@ -96,9 +102,9 @@ def _fmt(x: float) -> str:
 
 
 def _modes_text(p: dict) -> str:
-    from showkit.analysis.score import unlisted_modes_text
+    from showkit.analysis.score import listed_shares, unlisted_modes_text
 
-    shares = p.get("mode_shares") or [{"n": n, "note": "", "share": 0.0} for n in p["modes"]]
+    shares = listed_shares(p.get("mode_shares") or [])
     text = ", ".join(f"n{s['n']} {s['note']} {100 * s['share']:.0f}%" for s in shares[:4])
     return text or unlisted_modes_text(p.get("score", 0)) or "none"
 
@@ -118,7 +124,10 @@ def _print_table(tracks: list[dict]) -> None:
     if errors:
         print()
     for rank, t in errors:
-        print(f"#{rank} {printable(t['path'])}: ERROR: {printable(t['error'])}")
+        path, message = printable(t["path"]), printable(t["error"])
+        if message.startswith(path + ": "):  # the message names the file already
+            message = message[len(path) + 2:]
+        print(f"#{rank} {path}: ERROR: {message}")
     for t in tracks:
         if t["error"] or not t["passages"]:
             continue
@@ -223,8 +232,10 @@ def run(args) -> int:
     if not tracks:
         raise InputError("no audio files found", " ".join(args.paths),
                          "give audio files, or folders holding .wav, .flac, .ogg, .mp3 files")
-    if len(tracks) == 1 and tracks[0]["error"] and not args.json and Path(args.paths[0]).is_file():
-        # one file asked for and it could not be read: its one line, as any command gives it
+    if (len(tracks) == 1 and tracks[0]["error"] and not args.json and len(args.paths) == 1
+            and not Path(args.paths[0]).is_dir()):
+        # one file asked for (a file, a pipe, a device, a dangling or looping link, a missing
+        # name) and it could not be read: its one line, as any command gives it
         raise InputError(tracks[0]["error"])
     level_caution()
     if args.json:

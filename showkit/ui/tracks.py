@@ -63,10 +63,12 @@ class TrackAnalysis:
 
     @staticmethod
     def modes_cell(passage: dict) -> str:
-        """A passage's modes for the table (up to 4), or what the scan says when none is listed."""
-        from showkit.analysis.score import unlisted_modes_text
+        """A passage's modes for the table (up to 4 of those the scan's table lists), or what the
+        scan says when none is listed."""
+        from showkit.analysis.score import listed_shares, unlisted_modes_text
 
-        return " ".join(str(n) for n in passage.get("modes", [])[:4]) or unlisted_modes_text(passage.get("score", 0))
+        listed = [s["n"] for s in listed_shares(passage.get("mode_shares") or [])]
+        return " ".join(str(n) for n in listed[:4]) or unlisted_modes_text(passage.get("score", 0))
 
     def notes_at(self, t_s: float) -> str:
         """The notes heard at ``t_s`` seconds (the map's frame), or ''."""
