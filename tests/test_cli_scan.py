@@ -313,3 +313,16 @@ def test_an_error_line_names_the_file_once(capsys):
                    "passages": []}])
     lines = capsys.readouterr().out.splitlines()
     assert lines[-1] == "#1 /music/gone.wav: ERROR: no such file -- check the name"
+
+
+def test_equal_scores_rank_by_what_a_transposition_would_reach():
+    """Music off the modes and a drum track both score 0; the music, which a shift would make
+    read, ranks first (a fresh user saw drums above tonal pieces at score 0, by file name)."""
+    from showkit.analysis.scan import sort_tracks
+
+    def track(path, score, shifted, error=None):
+        return {"path": path, "score": score, "transpose_score": shifted, "error": error}
+
+    ranked = sort_tracks([track("a_drums.wav", 0.0, 0.0), track("b_bad.wav", None, None, "cut short"),
+                          track("c_chorale.wav", 0.0, 55.0), track("d_reel.wav", 40.0, 40.0)])
+    assert [t["path"] for t in ranked] == ["d_reel.wav", "c_chorale.wav", "a_drums.wav", "b_bad.wav"]

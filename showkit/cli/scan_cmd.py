@@ -2,15 +2,15 @@
 
 Each track is cut into passages where the music changes character; each
 passage gets a 0-100 readability score (the share of its time during which a
-note is held on a mode whose pattern the holes resolve), the modes held
-(mode number, note, share of the time), its ceiling and the flame contrast at
-it, reported beside the score.  --map writes the time x mode map of one
-track as JSON.  A transposition within +-3.5 semitones that
-would lay the track better on the modes is suggested with the score it would
-reach.  --temperature gives today's gas temperature (the modes, the map
-and the suggestion follow it), --static/--reserve today's pressure and
-reserve (the ceilings).  Folders are searched recursively; results are cached; a file that
-cannot be read is reported in its row and the scan goes on.
+note is held on a mode whose pattern the holes resolve), the modes held (mode
+number, note, share of the time), its ceiling and the flame contrast at it,
+reported beside the score.  --map writes the time x mode map of one track as
+JSON.  A transposition within +-3.5 semitones that would lay the track better
+on the modes is suggested with the score it would reach.  --temperature gives
+today's gas temperature (the modes, the map and the suggestion follow it),
+--static/--reserve today's pressure and reserve (the ceilings).  Folders are
+searched recursively; results are cached; a file that cannot be read is
+reported in its row and the scan goes on.
 
 Exit status 0 if any file was scanned, 2 if none could be.
 """
