@@ -60,18 +60,18 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 class _Bar:
-    """A plain text progress bar on stderr, only when it is a terminal (``force``: always).
+    """A plain text progress bar on stderr, only when it is a terminal.
 
     Redirected to a file or a pipe, a bar redrawn with carriage returns is one long
     unreadable line, so nothing is written there.
     """
 
-    def __init__(self, stream=None, width: int = 30, force: bool = False):
+    def __init__(self, stream=None, width: int = 30):
         self.stream = stream or sys.stderr
         self.width = width
         self.shown = False
         isatty = getattr(self.stream, "isatty", None)
-        self.active = force or bool(isatty and isatty())
+        self.active = bool(isatty and isatty())
 
     def __call__(self, done: int, total: int, path: str) -> None:
         if total <= 1 or not self.active:
