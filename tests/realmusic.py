@@ -893,6 +893,14 @@ def _old_map(rig, path: Path) -> dict:
             "dominant_hz": np.where(np.isfinite(dom), dom, 0.0), "engine": "before issue 12"}
 
 
+def _listed_modes(passage: dict) -> list[int]:
+    """The modes a passage's table row lists: those of ``mode_shares`` held at least
+    PASSAGE_MODE_SHARE of it (``modes`` gives every mode held; before it did, the listed ones)."""
+    if "mode_shares" in passage:
+        return [int(s["n"]) for s in passage["mode_shares"] if s["share"] >= PASSAGE_MODE_SHARE]
+    return [int(n) for n in passage.get("modes", [])]
+
+
 def _prf(tp: int, fp: int, fn: int) -> dict:
     p = tp / (tp + fp) if tp + fp else 0.0
     r = tp / (tp + fn) if tp + fn else 0.0
@@ -1038,8 +1046,7 @@ def _evaluate(corpus: Corpus, progress=None) -> dict:
         row = {"score": scan["score"], "transpose_cents": 100.0 * (scan["transpose_semitones"] or 0.0),
                "transpose_score": scan["transpose_score"], "held_share": held_share(tr, table),
                "passages": [(p["start_s"], p["end_s"], p["score"]) for p in scan["passages"]],
-               "passage_modes": [(p["start_s"], p["end_s"], [int(n) for n in p.get("modes", [])])
-                                 for p in scan["passages"]],
+               "passage_modes": [(p["start_s"], p["end_s"], _listed_modes(p)) for p in scan["passages"]],
                "contrast": [p.get("contrast") for p in scan["passages"]],
                "shift_cents": tr.shift_cents, "kind": tr.kind}
         res["tracks"][name] = row
