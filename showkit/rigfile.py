@@ -91,7 +91,16 @@ class Rig:
     loss_family : LossFamily or None
         The tubes the ceilings must be safe for (:mod:`showkit.physics.family`);
         ``geometry`` holds its best estimate.  Set from the rig file's static
-        pressure: today's manometer reading does not change it.
+        pressure: today's manometer reading does not change it.  Built for the
+        gas at today's temperature (:meth:`with_conditions` builds it again).
+    calibration_temperature_k : float or None
+        The gas temperature the calibration reading was taken at: the rig file's.
+        Today's temperature moves the modes, not the loudspeaker: the drive (volume
+        velocity per unit of digital amplitude) is found from the tube at this
+        temperature (:attr:`calibration_gas`) and drives the tube at today's.  None:
+        the rig's own temperature.
+    family_inputs : FamilyInputs or None
+        What the loss family is built from, to build it for another gas temperature.
     """
 
     name: str
@@ -104,6 +113,8 @@ class Rig:
     path: Path | None = None
     measured: dict = field(default_factory=dict, compare=False, hash=False)
     loss_family: LossFamily | None = field(default=None, compare=False, hash=False)
+    calibration_temperature_k: float | None = None
+    family_inputs: "FamilyInputs | None" = field(default=None, compare=False, hash=False, repr=False)
 
     @cached_property
     def gas(self) -> GasState:
@@ -114,6 +125,28 @@ class Rig:
     @cached_property
     def model(self) -> TubeModel:
         return TubeModel(self.geometry, self.gas)
+
+    @property
+    def calibrated_elsewhere(self) -> bool:
+        """Whether today's gas temperature differs from the one the calibration was read at."""
+        t = self.calibration_temperature_k
+        return t is not None and t != self.temperature_k
+
+    @cached_property
+    def calibration_gas(self) -> GasState:
+        """The tube gas as it was when the calibration reading was taken (the rig file's temperature)."""
+        if not self.calibrated_elsewhere:
+            return self.gas
+        return gas_state(self.fuel, self.air_fraction, self.calibration_temperature_k, self.ambient_pa)
+
+    def calibration_model(self, model: TubeModel) -> TubeModel:
+        """``model`` (a member of the loss family, today's gas) with the calibration's gas: the tube the
+        drive scale is read from (:func:`showkit.physics.response.drive_scale`).  The member keeps its
+        loss point; at the calibration frequency the losses move the cap reading by at most
+        :data:`showkit.physics.family.REFERENCE_LIMIT_DB` (checked when the rig file is read)."""
+        if not self.calibrated_elsewhere:
+            return model
+        return TubeModel(model.geometry, self.calibration_gas)
 
     @property
     def static_pa(self) -> float:
@@ -145,7 +178,12 @@ class Rig:
             raise TypeError(conditions)
         if conditions == self.conditions:
             return self
-        return replace(self, conditions=conditions)
+        rig = replace(self, conditions=conditions)
+        if conditions.temperature_k != self.temperature_k and self.family_inputs is not None:
+            # the modes and the losses follow today's gas; the calibration stays the file's
+            family = self.family_inputs.build(rig.gas)
+            rig = replace(rig, geometry=family.best_model.geometry, loss_family=family)
+        return rig
 
     def acoustic_fields(self) -> dict:
         """Everything that shapes the tube's response (not static pressure or reserve)."""
@@ -168,12 +206,15 @@ class Rig:
 
     def calibration_fields(self) -> dict:
         d = self.drive
-        return {"reference_frequency_hz": d.reference_frequency_hz,
+        fields = {"reference_frequency_hz": d.reference_frequency_hz,
                 "reference_level_dbfs": d.reference_level_dbfs,
                 "reference_pressure_pa": d.reference_pressure_pa,
                 "speaker_resonance_hz": d.speaker_resonance_hz, "speaker_q": d.speaker_q,
                 "response_freq_hz": list(d.response_freq_hz),
                 "response_db": list(d.response_db)}
+        if self.calibrated_elsewhere:  # today's gas differs: the same reading gives another drive
+            fields["calibration_temperature_k"] = self.calibration_temperature_k
+        return fields
 
     def calibration_hash(self) -> str:
         return _hash(self.calibration_fields())
@@ -301,12 +342,12 @@ def _build(data: dict, where: str, path: Path | None, check_calibration: bool = 
     geometry = TubeGeometry(length, bore, wall, positions, diameter, end_corr, 0.0)
     r_value = _hole_resistance(holes, where, gas_now, geometry)
     measured = _measured(data, where)
-    flow = _flow_scale(holes, where)
-    family = loss_family(replace(geometry, hole_resistance_pa_s_m3=r_value), gas_now, conditions.static_pa,
-                         flow, _ranges(measured, where), r_value)
+    inputs = FamilyInputs(geometry, conditions.static_pa, _flow_scale(holes, where), _ranges(measured, where),
+                          None if holes.get("resistance", 0.0) == "outflow" else r_value)
+    family = inputs.build(gas_now)
     rig = Rig(name=name, geometry=family.best_model.geometry, fuel=fuel, air_fraction=air,
               conditions=conditions, ambient_pa=ambient, drive=calibration, path=path, measured=measured,
-              loss_family=family)
+              loss_family=family, calibration_temperature_k=conditions.temperature_k, family_inputs=inputs)
     # checks of the calibration against the tube (the same door, with the tube): below the
     # plane-wave limit, and where the tube's possible losses do not change the cap pressure
     _drive(drive, where, rig.model)
@@ -405,6 +446,31 @@ def _flow_scale(holes: dict, where: str) -> float:
         raise RigError(f"flow must be within 0 and 3 (got {flow:g})", _field(where, "holes", "flow"),
                        "leave it out (1: the orifice law at the static pressure), or 0 for still gas")
     return flow
+
+
+@dataclass(frozen=True)
+class FamilyInputs:
+    """What a rig's loss family is built from, to build it for the gas at another temperature.
+
+    ``geometry`` without hole losses, the rig file's static pressure (the jets'
+    speed; today's reading does not change the family), the flow scale, the measured
+    ranges (or None) and the hole resistance, Pa s/m^3 (None: ``"outflow"``, from the
+    gas's density, so it follows the temperature).
+    """
+
+    geometry: TubeGeometry
+    static_pa: float
+    flow_scale: float
+    ranges: tuple | None
+    resistance_pa_s_m3: float | None
+
+    def build(self, gas: GasState) -> LossFamily:
+        r_value = self.resistance_pa_s_m3
+        if r_value is None:
+            r_value = (outflow_resistance(gas.density_kg_m3, NOMINAL_FLOW_PRESSURE_PA, self.geometry.hole_area_m2)
+                       if self.geometry.hole_count else 0.0)
+        return loss_family(replace(self.geometry, hole_resistance_pa_s_m3=r_value), gas, self.static_pa,
+                           self.flow_scale, self.ranges, r_value)
 
 
 def loss_family(geometry: TubeGeometry, gas, static_pa: float, flow_scale: float,

@@ -154,7 +154,7 @@ def hole_filters(rig: Rig) -> HoleFilters:
 def _designed_filters(key: _ResponseKey) -> HoleFilters:
     rig = key.rig
     try:
-        return design_hole_filters(rig.model, rig.drive)
+        return design_hole_filters(rig.model, rig.drive, calibration_model=rig.calibration_model(rig.model))
     except ValueError as exc:
         raise RigError(f"the pressure model cannot be built from this rig ({exc})", rig.name,
                        "check the rig file's [tube], [holes] and [drive] values") from None
@@ -185,8 +185,9 @@ def _family_filters(key: _ResponseKey) -> tuple:
     for point in chosen:
         if point == fam.best:
             continue
-        out.append((member_label(point), design_hole_filters(fam.model(point), rig.drive,
-                                                             rate_hz=best.rate_hz)))
+        model = fam.model(point)
+        out.append((member_label(point), design_hole_filters(model, rig.drive, rate_hz=best.rate_hz,
+                                                             calibration_model=rig.calibration_model(model))))
     return tuple(out)
 
 

@@ -136,14 +136,21 @@ def drive_scale(model: TubeModel, drive: DriveCalibration) -> float:
     return scale
 
 
-def transfer(model: TubeModel, drive: DriveCalibration, freq_hz) -> tuple[np.ndarray, np.ndarray]:
+def transfer(model: TubeModel, drive: DriveCalibration, freq_hz,
+             calibration_model: TubeModel | None = None) -> tuple[np.ndarray, np.ndarray]:
     """``G_i(f)`` at the holes and at the cap: Pa per unit digital amplitude (complex).
 
-    Returns ``(holes, F)`` and ``(F,)`` arrays; zero at DC.
+    Returns ``(holes, F)`` and ``(F,)`` arrays; zero at DC.  ``calibration_model``:
+    the tube as it was when the calibration was read (the same tube in the gas at the
+    rig file's temperature), from which the drive scale ``K`` is found; None: ``model``.
+    The loudspeaker's volume velocity per unit amplitude does not change with the gas;
+    the tube's response does (its modes move with the speed of sound), so a calibration
+    read in one gas and applied as if read in another moves every ceiling -- by up to
+    the height of a resonance where today's modes come near the calibration frequency.
     """
     f = np.asarray(freq_hz, dtype=float)
     positive = f > 0
-    k = drive_scale(model, drive)
+    k = drive_scale(calibration_model or model, drive)
     holes = np.zeros((model.geometry.hole_count, f.size), dtype=complex)
     cap = np.zeros(f.size, dtype=complex)
     if np.any(positive):
@@ -155,13 +162,16 @@ def transfer(model: TubeModel, drive: DriveCalibration, freq_hz) -> tuple[np.nda
 
 
 def design_hole_filters(model: TubeModel, drive: DriveCalibration, rate_hz: int | None = None,
-                        tolerance: float = 1e-4, max_seconds: float = 40.0) -> HoleFilters:
+                        tolerance: float = 1e-4, max_seconds: float = 40.0,
+                        calibration_model: TubeModel | None = None) -> HoleFilters:
     """Impulse responses at every hole, long enough to ring down to ``tolerance``.
 
     Parameters
     ----------
     model : TubeModel
     drive : DriveCalibration
+    calibration_model : TubeModel, optional
+        The tube in the gas the calibration was read in (:func:`transfer`); None: ``model``.
     rate_hz : int, optional
         Analysis rate (default :func:`analysis_rate_hz`).
     tolerance : float
@@ -175,7 +185,7 @@ def design_hole_filters(model: TubeModel, drive: DriveCalibration, rate_hz: int 
     floor = None
     while True:
         freq = np.fft.rfftfreq(n, 1.0 / fs)
-        g_holes, g_cap = transfer(model, drive, freq)
+        g_holes, g_cap = transfer(model, drive, freq, calibration_model)
         both = np.vstack([g_holes, g_cap[None, :]])
         # the taper W is zero-phase: its short acausal part wraps to the end of
         # the buffer; a small delay brings it to the front
@@ -200,7 +210,7 @@ def design_hole_filters(model: TubeModel, drive: DriveCalibration, rate_hz: int 
     fade = min(64, taps // 8)
     ir[:, taps - fade:] *= 0.5 * (1.0 + np.cos(np.pi * np.arange(1, fade + 1) / fade))
     return HoleFilters(rate_hz=fs, impulse=ir[:-1], cap_impulse=ir[-1], delay=delay,
-                       scale=drive_scale(model, drive),
+                       scale=drive_scale(calibration_model or model, drive),
                        band_hz=TAPER_END * model.plane_wave_limit_hz,
                        drive_text=drive.describe())
 

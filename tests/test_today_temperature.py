@@ -1,0 +1,133 @@
+"""Today's gas temperature against a rig file calibrated at another.
+
+The loudspeaker's volume velocity per unit of digital amplitude does not change with
+the gas; the tube's response does (the speed of sound moves its modes).  So the drive
+scale is read from the tube in the gas the calibration was taken in (the rig file's
+temperature) and drives the tube, and its loss family, in today's gas.  Checked here
+against a drive scale and a response assembled from the tube model directly
+(closed form of the calibration: P_ref = K A |D(f_ref) H_cap(f_ref)|), and against a
+rig file whose calibration reading is the one the same loudspeaker would give today.
+
+A fresh user found the Show view's ceilings unmoved by a gas temperature typed in
+(the loss family kept the rig file's gas: 3.7 dB above a rig file at 45 C), and a
+temperature where a mode comes near the calibration frequency (25 C on the test tube)
+refused by a rig file but accepted, with the reading taken as if made at 25 C, by the UI.
+"""
+
+from __future__ import annotations
+
+import math
+
+import pytest
+
+from showkit.analysis.pressure import family_filters, hole_filters
+from showkit.physics.drive import driver_shape
+from showkit.physics.gas import gas_state
+from showkit.physics.tube import TubeModel
+from showkit.rigfile import load_rig
+
+
+@pytest.fixture(scope="module")
+def file_rig():
+    return load_rig()
+
+
+def _k_from_model(model: TubeModel, drive) -> float:
+    """The drive scale by the calibration's closed form, from the model's own response."""
+    f_ref = drive.reference_frequency_hz
+    h_cap = model.response([f_ref]).cap_pressure[0]
+    per_unit = 10.0 ** (drive.reference_level_dbfs / 20.0) * abs(driver_shape([f_ref], drive)[0] * h_cap)
+    return drive.reference_pressure_pa / per_unit
+
+
+@pytest.mark.parametrize("delta_k", [5.0, 25.0])
+def test_the_drive_is_read_in_the_calibrations_gas_and_drives_todays_tube(file_rig, delta_k):
+    today = file_rig.with_conditions(temperature_k=file_rig.temperature_k + delta_k)
+    assert today.calibration_temperature_k == file_rig.temperature_k
+    # the family is today's: a rig file written at today's temperature builds the same one
+    assert today.loss_family.base.gas.temperature_k == pytest.approx(today.temperature_k)
+    assert today.model.gas.temperature_k == pytest.approx(today.temperature_k)
+    # the drive scale: from today's tube (its loss point) in the file's gas, assembled here
+    gas_then = gas_state(file_rig.fuel, file_rig.air_fraction, file_rig.temperature_k, file_rig.ambient_pa)
+    for (_, filters), model in zip(family_filters(today), _member_models(today)):
+        assert filters.scale == pytest.approx(_k_from_model(TubeModel(model.geometry, gas_then), today.drive),
+                                              rel=1e-12)
+        assert filters.scale != pytest.approx(_k_from_model(model, today.drive), rel=1e-3)
+    # unchanged at the file's own temperature
+    again = today.with_conditions(temperature_k=file_rig.temperature_k)
+    assert not again.calibrated_elsewhere
+    assert hole_filters(again).scale == pytest.approx(hole_filters(file_rig).scale, rel=1e-12)
+    assert again.calibration_hash() == file_rig.calibration_hash()
+    assert today.calibration_hash() != file_rig.calibration_hash()
+
+
+def _member_models(rig):
+    from showkit.physics.family import members
+
+    fam = rig.loss_family
+    chosen = [p for p in members(fam, rig.drive.reference_frequency_hz) if p != fam.best]
+    return [rig.model] + [fam.model(p) for p in chosen]
+
+
+def test_a_rig_file_at_a_new_temperature_builds_todays_family(file_rig, tmp_path):
+    from showkit.rigfile import demo_rig_path
+
+    text = demo_rig_path().read_text()
+    # 25 K warmer: at +4 to +20 K the demo tube's mode 25 comes near its calibration frequency and a
+    # rig file written there is refused (the same reading taken in that gas could not be trusted)
+    t_c = file_rig.temperature_k - 273.15 + 25.0
+    lines = [f'temperature = "{t_c:g} C"' if ln.strip().startswith("temperature") else ln
+             for ln in text.splitlines()]
+    path = tmp_path / "warm.toml"
+    path.write_text("\n".join(lines) + "\n")
+    warm_file = load_rig(path)
+    today = file_rig.with_conditions(temperature_k=file_rig.temperature_k + 25.0)
+    assert warm_file.temperature_k == pytest.approx(today.temperature_k)
+    assert today.loss_family == warm_file.loss_family
+    assert today.acoustic_hash() == warm_file.acoustic_hash()
+
+
+def test_todays_ceiling_is_the_ceiling_of_the_calibration_read_again_today(file_rig, tmp_path):
+    """The same loudspeaker, its calibration read again in today's gas: the cap reads
+    K A |D(f_ref) H_cap,today(f_ref)|.  A rig file at today's temperature with that reading
+    locks a tone on a mode at the ceiling today's rig gives (within the family's spread at
+    the calibration frequency, 0.1 dB, plus rounding)."""
+    from showkit.show.lock import lock_cue
+    from showkit.show.sheet import load_sheet
+
+    delta = 25.0  # where a rig file may be written (see above)
+    today = file_rig.with_conditions(temperature_k=file_rig.temperature_k + delta)
+    k = hole_filters(today).scale
+    d = today.drive
+    h_cap = today.model.response([d.reference_frequency_hz]).cap_pressure[0]
+    reread = k * 10.0 ** (d.reference_level_dbfs / 20.0) * abs(driver_shape([d.reference_frequency_hz], d)[0] * h_cap)
+    assert math.isfinite(reread) and reread > 0
+    assert abs(20 * math.log10(reread / d.reference_pressure_pa)) > 0.05  # the reading does move
+    from showkit.rigfile import demo_rig_path
+
+    t_c = file_rig.temperature_k - 273.15 + delta
+    text = demo_rig_path().read_text()
+    out = []
+    for ln in text.splitlines():
+        key = ln.split("=")[0].strip()
+        if key == "temperature":
+            ln = f'temperature = "{t_c:g} C"'
+        elif key == "reference_pressure":
+            ln = f'reference_pressure = "{float(reread)!r} Pa"'
+        out.append(ln)
+    path = tmp_path / "reread.toml"
+    path.write_text("\n".join(out) + "\n")
+    reread_rig = load_rig(path)
+    assert reread_rig.drive.reference_pressure_pa == pytest.approx(reread, rel=1e-9)
+    sheet_path = tmp_path / "s.toml"
+    sheet_path.write_text(f'rig = "{path}"\nformat = 1\n\n[[cue]]\nid = "t"\ntone = {{ mode = 3, duration = 4 }}\n'
+                          f'gain = -60\n\n[[cue]]\nid = "g"\nglide = {{ from_frequency = 80, to_frequency = 300, '
+                          f'duration = 4 }}\ngain = -60\n')
+    sheet = load_sheet(sheet_path)
+    for cid in ("t", "g"):
+        cue = sheet.cue(cid)
+        a, _ = lock_cue(sheet, today, cue)
+        b, _ = lock_cue(sheet, reread_rig, cue)
+        assert a.lock.ceiling_db == pytest.approx(b.lock.ceiling_db, abs=0.15), cid
+        if cid == "t":  # the tone is on today's mode 3 in both
+            assert a.lock.frequency_hz == pytest.approx(b.lock.frequency_hz, rel=1e-9)
