@@ -182,7 +182,7 @@ def test_undo_past_the_first_lock_keeps_it(tmp_path):
     ed.sheet.replace_cue("a", lock=None, gain_db=5.0)          # an unlocked cue, loud
     ed._undo.clear()
     ed.apply_locks([replace(ed.sheet.cue("a"), lock=_lock(-10.0))])
-    assert ed.sheet.cue("a").gain_db == -10.0
+    assert ed.sheet.cue("a").gain_db == -13.0   # a first lock: the margin under the ceiling (start low)
     while ed.undo():
         pass
     a = ed.sheet.cue("a")
@@ -245,3 +245,22 @@ def test_headroom_of_a_cue_over_by_a_hair_never_reads_minus_zero():
     assert headroom_text(0.0) == "+0.00" and headroom_text(1.234) == "+1.23"
     assert headroom_text(None) == "-" and headroom_text(-3.0, silent=True) == "-"
     assert over_amount_text(1e-8) == "<0.001" and over_amount_text(0.25) == "0.25"
+
+
+def test_a_cue_above_its_first_ceiling_starts_low_and_a_relocked_one_at_its_ceiling(tmp_path):
+    """A new tone (gain -40 dB) locked at a ceiling of -41.3 dB was set at -41.3: a fresh user
+    expected the margin a passage from a track gets.  A first lock now sets the gain
+    PASSAGE_MARGIN_DB under the ceiling; a cue locked before (its sound edited) comes down to it."""
+    from dataclasses import replace
+
+    from showkit.show.editing import PASSAGE_MARGIN_DB
+
+    ed = _editor(tmp_path, autosave=False)
+    ed.sheet.replace_cue("a", lock=None, gain_db=-40.0)
+    notes = ed.apply_locks([replace(ed.sheet.cue("a"), lock=_lock(-41.3))])
+    assert ed.sheet.cue("a").gain_db == pytest.approx(-41.3 - PASSAGE_MARGIN_DB) and "start low" in notes[0]
+    notes = ed.apply_locks([replace(ed.sheet.cue("c"), lock=_lock(-50.0))])
+    assert ed.sheet.cue("c").gain_db == -50.0 and "brought down to its ceiling" in notes[0]
+    ed.sheet.replace_cue("b", lock=None, gain_db=-60.0)      # below its first ceiling: left as written
+    assert ed.apply_locks([replace(ed.sheet.cue("b"), lock=_lock(-41.3))]) == []
+    assert ed.sheet.cue("b").gain_db == -60.0

@@ -222,3 +222,23 @@ def test_the_edited_document_is_kept_and_stays_right_across_edits_reverts_and_re
     sheet.replace_cue("talk", label="Talk")
     again = parse_sheet(sheet_to_text(sheet))
     assert again.cues == sheet.cues and again.cue("talk").label == "Talk"
+
+
+def test_a_lock_taken_off_and_put_back_is_written():
+    """A cue's lock removed and a new one written in the same document: tomlkit left a keyless
+    placeholder where the old [cue.lock] was, which moved into the new table and made the sheet
+    unwritable ("Non comment/whitespace items must have an associated key")."""
+    sheet = parse_sheet(COMMENTED, "s.toml")
+    cue = sheet.cues[0]
+    lock = Lock(ceiling_db=-20.0, pressure_db=-20.0, full_scale_db=-10.0, limited_by="pressure",
+                source_hash="x" * 16, rig_hash="y" * 16, calibration_hash="z" * 16, static_pa=18.0,
+                reserve=0.25, analysis_version=1)
+    sheet.replace_cue(cue.id, lock=lock)
+    sheet_to_text(sheet)
+    sheet.replace_cue(cue.id, lock=None)
+    sheet_to_text(sheet)
+    sheet.replace_cue(cue.id, lock=replace(lock, ceiling_db=-25.0, pressure_db=-25.0))
+    text = sheet_to_text(sheet)
+    back = parse_sheet(text, "s.toml")
+    assert back.cue(cue.id).lock.ceiling_db == -25.0
+    assert "# then a pause for talking" in text   # the comment before the next cue stays

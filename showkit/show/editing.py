@@ -41,7 +41,8 @@ from showkit.units import format_time as _clock  # the one m:ss.s formatter
 UNDO_DEPTH = 200
 #: Gain step of the gain keys, dB.
 GAIN_STEP_DB = 0.5
-#: A passage added from a track is set this far below its ceiling, dB.
+#: A new cue starts this far below its ceiling, dB: a passage added from a track, and a cue whose gain
+#: is above the ceiling of its first lock (a tone, a glide, a cue written by hand): start low.
 PASSAGE_MARGIN_DB = 3.0
 #: Check statuses under which a cue's ceiling is not known (its gain may only come down).
 UNKNOWN_CEILING = (CueStatus.STALE, CueStatus.ERROR)
@@ -127,7 +128,8 @@ class SheetEditor:
 
     def apply_locks(self, cues: list[Cue]) -> list[str]:
         """Put fresh locks (from :func:`showkit.show.lock.lock_cue`) on cues whose sound did not
-        change meanwhile; a gain above its new ceiling is brought down to it.  Returns the notes.
+        change meanwhile; a gain above its new ceiling is brought down to it, or, on a cue's first
+        lock, to :data:`PASSAGE_MARGIN_DB` below it (a new cue starts low).  Returns the notes.
 
         What was known of a re-locked cue today is forgotten until it is checked again, so
         no gain edit can go by the old ceiling meanwhile.
@@ -142,7 +144,11 @@ class SheetEditor:
             if _sound(old) != _sound(new):
                 continue  # edited while locking: the next lock will catch it
             gain = old.gain_db
-            if gain > new.lock.ceiling_db:
+            if gain > new.lock.ceiling_db and old.lock is None:
+                gain = floor_db(new.lock.ceiling_db - PASSAGE_MARGIN_DB)
+                notes.append(f"{new.id}: gain set {PASSAGE_MARGIN_DB:g} dB under its first ceiling, "
+                             f"{gain:+.2f} dB (start low)")
+            elif gain > new.lock.ceiling_db:
                 gain = floor_db(new.lock.ceiling_db)
                 notes.append(f"{new.id}: gain brought down to its ceiling {gain:+.2f} dB")
             if not changed:

@@ -565,7 +565,13 @@ def _write_lock(table, lock: Lock | None, at: str) -> None:
     import tomlkit
 
     if lock is None:
+        old = table.get("lock")
+        # the comments and blank lines at the end of [cue.lock] belong to what follows (the
+        # next cue's comment, moved there when the lock was written): they stay when it goes
+        trailing = _trailing(old) if isinstance(old, dict) else []
         _set(table, "lock", None)
+        for item in trailing:
+            table.add(item)
         return
     values = _lock_values(lock, at)
     old = table.get("lock")
@@ -605,10 +611,16 @@ def _source_items(source: Source, at: str) -> dict:
 
 def _trailing(table) -> list:
     """Take the comments and blank lines off the end of a table (tomlkit's ``Container.body``)."""
+    from tomlkit.items import Comment, Whitespace
+
     body = table.value.body if hasattr(table, "value") and hasattr(table.value, "body") else None
     trailing = []
     while body and body[-1][0] is None:
-        trailing.insert(0, body.pop()[1])
+        item = body.pop()[1]
+        # a key tomlkit deleted leaves a keyless placeholder: dropped (only comments and blank
+        # lines move; a placeholder moved into [cue.lock] made the sheet unwritable)
+        if isinstance(item, (Comment, Whitespace)):
+            trailing.insert(0, item)
     return trailing
 
 
