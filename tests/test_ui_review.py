@@ -197,3 +197,30 @@ async def test_a_job_ending_while_the_app_closes_applies_nothing(ui_short_show):
     app.on_worker_state_changed(Ended)
     assert applied == []
     assert Ended.worker not in app._job_table()
+
+
+@sync
+async def test_escape_closes_the_cautions_for_now_and_enter_acknowledges_them(ui_short_show):
+    """Escape closed the first-start cautions and recorded them as read (a fresh user's report), and
+    at 80 x 24 the line saying how to acknowledge them was below the fold.  Now escape closes them
+    for now (shown again at the next start), enter records them, and the keys stay on screen."""
+    from showkit.ui.safety import CautionScreen, marker_path
+
+    marker_path().unlink(missing_ok=True)
+    assert "pytest" in str(marker_path()) or "tmp" in str(marker_path())
+    app = make_app(ui_short_show, cautions=True, view="tube")
+    async with app.run_test(size=(80, 24)) as pilot:
+        await settle(pilot)
+        assert isinstance(app.screen, CautionScreen)
+        keys = app.screen.query_one("#caution-keys")
+        assert keys.region.height >= 1 and keys.region.bottom <= 24   # visible at 80 x 24
+        assert "enter: I have read this" in str(keys.render())
+        await pilot.press("escape")
+        await pilot.pause()
+        assert not isinstance(app.screen, CautionScreen) and not marker_path().exists()
+        await pilot.press("!")
+        await pilot.pause()
+        assert isinstance(app.screen, CautionScreen)
+        await pilot.press("enter")
+        await pilot.pause()
+        assert not isinstance(app.screen, CautionScreen) and marker_path().exists()

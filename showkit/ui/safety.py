@@ -6,7 +6,7 @@ from pathlib import Path
 
 from textual.app import ComposeResult
 from textual.binding import Binding
-from textual.containers import VerticalScroll
+from textual.containers import Vertical, VerticalScroll
 from textual.screen import ModalScreen
 from textual.widgets import Static
 
@@ -37,18 +37,25 @@ def mark_cautions_seen() -> None:
 
 
 class CautionScreen(ModalScreen[None]):
-    """The cautions, one paragraph each; enter or escape closes."""
+    """The cautions, one paragraph each.  Enter acknowledges them (not shown at start again);
+    escape closes them for now (shown again at the next start).  The keys stay on screen
+    whatever its height (the cautions scroll above them)."""
 
-    BINDINGS = [Binding("enter", "close", "I have read this"), Binding("escape", "close", "close")]
+    BINDINGS = [Binding("enter", "acknowledge", "I have read this"), Binding("escape", "close", "close for now")]
 
     def compose(self) -> ComposeResult:
-        with VerticalScroll(id="caution-box"):
-            yield Static(CAUTION_TITLE, id="caution-title")
-            for text in CAUTIONS:
-                yield Static(f"• {text}", classes="caution-item")
-            yield Static(LEVEL_CAUTION, id="caution-level")
-            yield Static("enter: I have read this    (read again any time with !)", id="caution-keys")
+        with Vertical(id="caution-box"):
+            with VerticalScroll(id="caution-text"):
+                yield Static(CAUTION_TITLE, id="caution-title")
+                for text in CAUTIONS:
+                    yield Static(f"• {text}", classes="caution-item")
+                yield Static(LEVEL_CAUTION, id="caution-level")
+            yield Static("enter: I have read this    esc: close for now (shown again at the next start)    "
+                         "! reads them again", id="caution-keys")
+
+    def action_acknowledge(self) -> None:
+        mark_cautions_seen()
+        self.dismiss(None)
 
     def action_close(self) -> None:
-        mark_cautions_seen()
         self.dismiss(None)
