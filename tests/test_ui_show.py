@@ -292,3 +292,17 @@ async def test_a_rig_that_cannot_be_read_is_said_not_awaited(ui_short_show):
         assert "rig problem" in title and "checking" not in title
         assert "rig file cannot be read" in detail
         assert "rig-nan.toml" in app._status_text and "static_pressure" in app._status_text
+
+
+def test_cue_ids_that_differ_at_the_end_stay_apart_in_the_cue_column():
+    """Two passages of one track were both shown as "chorale-organ-" (a fresh user's report): the
+    column widens to the longest id (up to 24) and a longer id is cut in the middle, not the end."""
+    from showkit.ui.show import CUE_ID_WIDTH, cue_id_width, short_id
+
+    ids = ["chorale-organ-1", "chorale-organ-2"]
+    w = cue_id_width(ids)
+    assert w == 15 and {short_id(i, w) for i in ids} == set(ids)
+    assert cue_id_width(["a"]) == CUE_ID_WIDTH[0] and cue_id_width(["x" * 40]) == CUE_ID_WIDTH[1]
+    long = ["a-very-long-track-name-passage-12", "a-very-long-track-name-passage-13"]
+    cut = [short_id(i, cue_id_width(long)) for i in long]
+    assert all(len(c) == CUE_ID_WIDTH[1] for c in cut) and cut[0] != cut[1] and cut[0].endswith("-12")

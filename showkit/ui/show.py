@@ -57,10 +57,16 @@ class ShowView(SessionView):
         yield Static("", id="cue-detail")
         yield Static(f"CAUTION: {LEVEL_CAUTION}", id="level-caution")
 
+    _id_width = 0  # the cue column's width now (0: no columns yet)
+
     def on_mount(self) -> None:
-        table = self.query_one(CueTable)
+        self.refresh_table()
+
+    def _columns(self, table: DataTable, id_width: int) -> None:
+        table.clear(columns=True)
+        self._id_width = id_width
         table.add_column("#", key="n", width=2)
-        table.add_column("cue", key="id", width=14)
+        table.add_column("cue", key="id", width=id_width)
         table.add_column("gain", key="gain", width=6)
         table.add_column("ceiling", key="ceiling", width=7)
         table.add_column("headroom", key="bar", width=10)
@@ -68,7 +74,6 @@ class ShowView(SessionView):
         table.add_column("then", key="then", width=4)
         table.add_column("label", key="label", width=22)
         table.add_column("source", key="source")
-        self.refresh_table()
 
     # ------------------------------------------------------------ drawing
     def selected_id(self) -> str | None:
@@ -82,8 +87,12 @@ class ShowView(SessionView):
     def refresh_table(self, select: str | None = None) -> None:
         table = self.query_one(CueTable)
         keep = select or self.selected_id()
-        table.clear()
         sheet = self.session.sheet
+        width = cue_id_width([c.id for c in sheet.cues])
+        if width != self._id_width:
+            self._columns(table, width)
+        else:
+            table.clear()
         for k, cue in enumerate(sheet.cues, 1):
             check = self.session.checks.get(cue.id)
             status = None if check is None else check.status
@@ -94,7 +103,7 @@ class ShowView(SessionView):
             state = Text(STATUS_MARK[status],
                          style="bold reverse" if status in (CueStatus.OVER, CueStatus.ERROR) else
                          ("italic" if status == CueStatus.STALE else ""))
-            table.add_row(str(k), Text(printable(cue.id)), f"{cue.gain_db:+.1f}", ceiling, bar,
+            table.add_row(str(k), Text(short_id(printable(cue.id), width)), f"{cue.gain_db:+.1f}", ceiling, bar,
                           state, cue.then, Text(printable(cue.label)), Text(printable(describe_source(cue.source, short=True))),
                           key=cue.id)
         if keep is not None and keep in [c.id for c in sheet.cues]:
@@ -320,3 +329,22 @@ def _mode_number(text: str, field: str) -> int:
 
 def _seconds(text: str) -> float:
     return units.duration_s(units.number_or_text(text.strip()), "duration")
+
+
+#: The cue column's width: the longest id, within these bounds (characters).
+CUE_ID_WIDTH = (14, 24)
+
+
+def cue_id_width(ids: list[str]) -> int:
+    """The cue column's width for these ids (:data:`CUE_ID_WIDTH`)."""
+    lo, hi = CUE_ID_WIDTH
+    return max(lo, min(hi, max((len(printable(i)) for i in ids), default=lo)))
+
+
+def short_id(cue_id: str, width: int) -> str:
+    """``cue_id`` in ``width`` characters: cut in the middle, keeping its end, where cues made
+    from one track differ ("chorale-organ-1", "chorale-organ-2")."""
+    if len(cue_id) <= width:
+        return cue_id
+    tail = max(3, width // 3)
+    return cue_id[:width - tail - 1] + "…" + cue_id[-tail:]
