@@ -87,6 +87,10 @@ async def test_track_view_cursor_passage_cue_transpose(ui_short_show):
         # jump to the next passage, then add it to the show
         await pilot.press("f")
         chosen = a.passages[tmap.selected]
+        # the next passage in time from the cursor (f followed the table's rank, best first, and
+        # jumped back to 0:00 from a later passage: a fresh user's report)
+        later = [p["start_s"] for p in a.passages if p["start_s"] > 3.0 + 1e-6]
+        assert chosen["start_s"] == (min(later) if later else min(p["start_s"] for p in a.passages))
         await settle(pilot)  # the passage's ceiling over the loss family is measured in the background
         await pilot.press("c")
         await pilot.pause()

@@ -176,8 +176,8 @@ class TrackView(SessionView):
         Binding("shift+right", "step(10)", "▶▶", show=False),
         Binding("home", "to_edge(0)", "start", show=False),
         Binding("end", "to_edge(1)", "end", show=False),
-        Binding("b", "passage(-1)", "back passage"),
-        Binding("f", "passage(1)", "forward passage"),
+        Binding("b", "passage(-1)", "previous passage (in time)"),
+        Binding("f", "passage(1)", "next passage (in time)"),
         Binding("left_parenthesis", "mark('in')", "in here", show=False),
         Binding("right_parenthesis", "mark('out')", "out here", show=False),
         Binding("c", "add_cue", "add to show"),
@@ -358,8 +358,17 @@ class TrackView(SessionView):
         if self.analysis is None or not self.analysis.passages:
             self.say("no passages")
             return
-        k = 0 if m.selected is None else m.selected + delta
-        self.select_passage(k % len(self.analysis.passages))
+        # in time order (the table lists them best first): the next or previous passage from the
+        # selected one, or from the cursor when none is selected
+        ps = self.analysis.passages
+        order = sorted(range(len(ps)), key=lambda i: (ps[i]["start_s"], i))
+        if m.selected is not None and m.selected in order:
+            k = order[(order.index(m.selected) + delta) % len(order)]
+        elif delta > 0:
+            k = next((i for i in order if ps[i]["start_s"] > m.cursor_s + 1e-6), order[0])
+        else:
+            k = next((i for i in reversed(order) if ps[i]["start_s"] < m.cursor_s - 1e-6), order[-1])
+        self.select_passage(k)
 
     def on_data_table_row_selected(self, event: DataTable.RowSelected) -> None:
         if isinstance(event.data_table, PassageTable):
