@@ -177,3 +177,24 @@ def test_a_passage_lists_every_mode_held_in_it_and_the_table_those_held_5_percen
     assert sc.mode_shares(mf, table, 50, 100) == []
     listed = sc.listed_shares([{"n": n, "note": "", "share": s} for n, s in shares])
     assert [s["n"] for s in listed] == [2]
+
+
+def test_the_cursor_line_names_the_notes_on_modes_first_and_no_far_mode():
+    """The Track view's cursor line named the two strongest notes, which missed the one the map lit,
+    and offered "nearest" modes 489 cents away (a fresh user's report)."""
+    from types import SimpleNamespace
+
+    from showkit.analysis.pitches import ModeTable
+    from showkit.analysis.scan import frame_notes_text
+
+    table = ModeTable(n=np.array([7, 9, 11]), freq_hz=np.array([370.0, 466.16, 554.37]),
+                      q=np.full(3, 30.0), half_width_cents=np.full(3, 14.0),
+                      readable=np.array([True, True, True]), notes=("F#4", "A#4", "C#5"))
+    notes = np.array([[300.0, 465.9, 380.0, np.nan]], dtype=np.float32)   # far, on mode 9, 46 c off mode 7
+    energy = np.array([[9.0, 1.0, 5.0, 0.0]], dtype=np.float32)
+    work = SimpleNamespace(features=SimpleNamespace(notes_hz=notes, notes_energy=energy, frames=1), table=table)
+    line = frame_notes_text(work)[0]
+    items = line.split(", ")
+    assert len(items) == 3 and items[0].startswith("A#4 466 Hz → mode 9")
+    assert items[1].startswith("D4 300 Hz") and "mode" not in items[1]        # 300 Hz: no mode within 50 c
+    assert "→ mode 7 +46c" in items[2]

@@ -181,26 +181,39 @@ def _levels(rig: Rig, work: _Work):
     return levels
 
 
+#: The Track view's cursor line names at most this many notes.
+CURSOR_NOTES = 3
+#: A note further than this from its nearest mode is named without the mode, cents.
+NEAR_MODE_CENTS = 50.0
+
+
 def frame_notes_text(work: _Work, shift_cents: float = 0.0) -> list[str]:
-    """Per frame: the notes found, strongest two first, with the nearest mode and offset (text)."""
-    from showkit.analysis.score import nearest_modes
+    """Per frame: the notes found (at most :data:`CURSOR_NOTES`), those on a mode (within its
+    tolerance: the ones the map lights) first, then the strongest, with the nearest mode and
+    the offset from it when it is within :data:`NEAR_MODE_CENTS` (text)."""
+    from showkit.analysis.score import nearest_modes, tolerance_cents
     from showkit.physics.pitch import nearest_note
 
     features, table = work.features, work.table
     scale = 2.0 ** (shift_cents / 1200.0)
     idx, cents = nearest_modes(features.notes_hz, table, shift_cents)
-    order = np.argsort(-features.notes_energy, axis=1)
+    tol = tolerance_cents(table)
+    found = np.isfinite(features.notes_hz) & (features.notes_energy > 0)
+    with np.errstate(invalid="ignore"):
+        on = found & (idx >= 0) & (np.abs(np.nan_to_num(cents, nan=np.inf)) <= tol[np.maximum(idx, 0)])
+    # on a mode first, then by energy (strongest first)
+    order = np.lexsort((-np.where(found, features.notes_energy, -np.inf), ~on), axis=1) if found.size else found
     out = []
     for t in range(features.frames):
         items = []
-        for k in order[t, :2]:
+        for k in order[t]:
+            if len(items) == CURSOR_NOTES or not found[t, k]:
+                break
             f = float(features.notes_hz[t, k])
-            if not np.isfinite(f) or features.notes_energy[t, k] <= 0:
-                continue
             name, _ = nearest_note(f * scale)
-            j = int(idx[t, k])
-            items.append(f"{name} {f * scale:.0f} Hz → mode {int(table.n[j])} {cents[t, k]:+.0f}c"
-                         if j >= 0 else name)
+            j, c = int(idx[t, k]), float(cents[t, k])
+            items.append(f"{name} {f * scale:.0f} Hz → mode {int(table.n[j])} {c:+.0f}c"
+                         if j >= 0 and abs(c) <= NEAR_MODE_CENTS else f"{name} {f * scale:.0f} Hz")
         out.append(", ".join(items))
     return out
 
