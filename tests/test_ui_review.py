@@ -224,3 +224,27 @@ async def test_escape_closes_the_cautions_for_now_and_enter_acknowledges_them(ui
         await pilot.press("enter")
         await pilot.pause()
         assert not isinstance(app.screen, CautionScreen) and marker_path().exists()
+
+
+@sync
+async def test_notifications_leave_the_level_caution_in_sight(ui_short_show):
+    """A stack of warnings covered the Show view's CAUTION line (a fresh user's report): the
+    notifications sit above it and take at most a third of the screen."""
+    from textual.widgets._toast import ToastRack
+
+    app = make_app(ui_short_show, view="show")
+    # a test run hides notifications unless asked: drawn here as on a terminal
+    async with app.run_test(size=APP_SIZE, notifications=True) as pilot:
+        await settle(pilot)
+        for k in range(8):
+            app.say(f"warning number {k}: something to read", warn=True)
+        for _ in range(10):
+            await pilot.pause(0.05)
+        caution = app.screen.query_one("#level-caution")
+        rack = app.screen.query_one(ToastRack)
+        assert len(app._notifications) == 8
+        assert len(rack.query("Toast")) >= 1
+        # the rack's own margin keeps the key line, the status line and the CAUTION line (two rows at
+        # this width) free; the stack scrolls within a third of the screen
+        assert APP_SIZE[1] - rack.styles.margin.bottom <= caution.region.y
+        assert rack.styles.max_height is not None and rack.styles.max_height.value <= 34
