@@ -248,3 +248,21 @@ async def test_notifications_leave_the_level_caution_in_sight(ui_short_show):
         # this width) free; the stack scrolls within a third of the screen
         assert APP_SIZE[1] - rack.styles.margin.bottom <= caution.region.y
         assert rack.styles.max_height is not None and rack.styles.max_height.value <= 34
+
+
+@sync
+async def test_the_top_line_is_laid_out_again_after_a_resize(ui_short_show):
+    """Shrunk to 30 x 8 and grown back, the top line stayed cut ("… · 20.0  esc/ctrl+c PANIC", no
+    show, rig or unit) until the next change of width (a fresh user's report)."""
+    app = make_app(ui_short_show, view="show")
+    async with app.run_test(size=APP_SIZE) as pilot:
+        await settle(pilot)
+        bar = app.query_one("#topbar")
+        before = str(bar.render())
+        await pilot.resize_terminal(30, 8)
+        await pilot.pause()
+        await pilot.resize_terminal(*APP_SIZE)
+        for _ in range(4):
+            await pilot.pause()
+        after = str(bar.render())
+        assert after == before and "PANIC" in after and "Pa" in after

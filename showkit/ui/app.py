@@ -375,15 +375,17 @@ class ShowkitApp(JobRunner, App):
             self.view("run").conditions_changed(static_changed, temperature_changed, recheck=recheck_run)
         return True
 
-    def update_topbar(self) -> None:
+    def update_topbar(self, app_width: int | None = None) -> None:
         """Sheet title, today's conditions and the rig name, with the panic key always at the right.
 
         On a narrow terminal the words are shortened first, then the title, so the
-        rig name and the panic key stay on screen.
+        rig name and the panic key stay on screen.  ``app_width``: the terminal's new width
+        during a resize (the app's own size still reads the old one then).
         """
         s = self.session
         bar = self.query_one("#topbar", Static)
-        width = max(20, (bar.size.width or self.size.width) - 2)
+        # the bar spans the screen: its width is the app's (during a resize, the new one given)
+        width = max(20, (app_width or self.size.width or bar.size.width) - 2)
         if s.rig_problem is not None:  # the rig file could not be read: say so, never "loading"
             variants = [[f"rig problem: {s.rig_problem.what}"], ["rig problem (status line)"]]
         elif not s.rig_loaded:  # loading the rig imports the model: done in the background
@@ -406,7 +408,7 @@ class ShowkitApp(JobRunner, App):
         from textual.css.query import NoMatches
 
         try:
-            self.update_topbar()
+            self.update_topbar(event.size.width)
         except NoMatches:  # before the first compose
             return
 
