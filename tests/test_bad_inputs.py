@@ -432,6 +432,10 @@ CASES = [
     Case("ceiling-start-minus-m-ss", lambda e: ["ceiling", e.p("track.wav"), "--start=-0:01"], "--start: '-0:01' has a sign"),
     Case("audio-fifo", lambda e: ["ceiling", e.fifo("x.wav")], "named pipe"),
     Case("open-audio-fifo", lambda e: ["open", e.fifo("o.wav")], "named pipe"),  # said "no such audio file"
+    # a text file named .wav opened the UI and wrote a sheet for it (a fresh user's report)
+    Case("open-text-as-audio", lambda e: ["open", e.write("notes.wav", "not audio\n")], "not an audio file",
+         check=lambda e, out, err: not (__import__("showkit.folders").folders.data_dir() / "shows"
+                                        / "notes.toml").exists() or pytest.fail("a sheet was written")),
     Case("audio-dev-zero", lambda e: ["ceiling", "/dev/zero"], "character device"),
     Case("audio-folder", lambda e: ["ceiling", e.dir], "folder"),
     Case("audio-cut-short", lambda e: ["ceiling", _wav_cut_short(e)], "header says 96000 frames"),

@@ -52,9 +52,11 @@ def build_app(args: argparse.Namespace):
 
         session = Session.open_sheet(user_demo_show())
     elif path.suffix.lower() in AUDIO_SUFFIXES:
-        from showkit.fileio import check_audio_file
+        from showkit.analysis.audio import audio_info
 
-        check_audio_file(path, InputError)  # one line: missing, a folder, a pipe or a device, too big
+        # one line before any sheet is made: missing, a folder, a pipe or a device, too big, not
+        # audio, cut short or empty (a text file named .wav opened the UI and wrote a sheet for it)
+        audio_info(path)
         sheet = Path(args.sheet).expanduser() if args.sheet else data_dir() / "shows" / f"{path.stem}.toml"
         session = Session.for_track(path, args.rig, sheet)
         track, view = path, view or "track"
