@@ -219,3 +219,22 @@ def test_an_unreadable_track_is_said_once(tmp_path, monkeypatch):
         work.analysis_job(bad)
     line = err.value.line()
     assert line.count(str(bad)) == 1 and line.count(" -- ") == 1, line
+
+
+@sync
+async def test_a_short_terminal_says_how_many_mode_rows_the_map_leaves_out(ui_short_show):
+    """At 80 x 24 the Track view dropped the weakest mode rows without a sign (a fresh user missed
+    the mode a passage held): a row now says how many are not drawn; a tall terminal draws all."""
+    from showkit.demo_files import demo_audio_path
+    from showkit.ui.track import TrackMap
+
+    track = demo_audio_path("ember_steps.flac")
+    for size, cut in (((80, 24), True), ((100, 60), False)):
+        app = make_app(ui_short_show, track=track, view="track")
+        async with app.run_test(size=size) as pilot:
+            await settle(pilot)
+            tmap = app.query_one(TrackMap)
+            total, shown = len(tmap.analysis.map_modes), len(tmap.shown_modes())
+            text = str(tmap.render())
+            assert (shown < total) == cut, (size, shown, total)
+            assert (f"+{total - shown} weaker mode" in text) == cut

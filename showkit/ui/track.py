@@ -74,7 +74,8 @@ class TrackMap(Widget, can_focus=True):
     def get_content_height(self, container, viewport, width: int) -> int:
         if self.analysis is None:
             return 1
-        return len(self.shown_modes()) + 2
+        shown = len(self.shown_modes())
+        return shown + 2 + (1 if shown < len(self.analysis.map_modes) else 0)
 
     def shown_modes(self) -> list[int]:
         """Indices (into ``map_modes``) of the mode rows drawn: all that fit the terminal,
@@ -87,6 +88,7 @@ class TrackMap(Widget, can_focus=True):
         room = max(2, self.screen.size.height - MAP_OTHER_ROWS - 2)
         if n <= room:
             return list(range(n))
+        room = max(1, room - 1)  # a row says how many are not drawn
         energy = np.asarray(a.map_energy, dtype=float).reshape(n, -1).sum(axis=1)
         keep = np.sort(np.argsort(-energy, kind="stable")[:room])
         return [int(i) for i in keep]
@@ -109,6 +111,10 @@ class TrackMap(Widget, can_focus=True):
             out.append(f"{n:>3} ", style="dim")
             out.append(line)
             out.append("\n")
+        hidden = count - len(shown)
+        if hidden > 0:  # never silently: a fresh user missed the modes a passage held
+            out.append(f"    +{hidden} weaker {'mode' if hidden == 1 else 'modes'} not drawn: a taller terminal "
+                       "shows every mode\n", style="dim")
         spans = [(p["start_s"], p["end_s"]) for p in a.passages]
         out.append(" ps ", style="dim")
         out.append(span_strip(spans, a.duration_s, width, self.selected, self.cursor_s))
