@@ -129,6 +129,11 @@ async def test_demo_rig_is_never_written_and_bad_files_get_a_clear_message(ui_sh
         view = app.query_one(MeasureView)
         await _open(pilot, tmp_path / "missing.wav", tmp_path / "noise.wav")
         assert "no such recording file" in app._status_text
+        # a relative name found in neither folder: both named (the show's folder alone was named,
+        # while an existing relative file was read from the current folder: a fresh user's report)
+        await _open(pilot, "nowhere-at-all.wav", tmp_path / "noise.wav")
+        assert "no such recording in the current folder" in app._status_text
+        assert "the show's folder" in app._status_text
         (tmp_path / "missing.wav").write_bytes(b"RIFF....")
         await _open(pilot, tmp_path / "missing.wav", tmp_path / "noise.wav")
         assert "cannot read the recording" in app._status_text

@@ -23,7 +23,7 @@ from textual.binding import Binding
 from textual.widget import Widget
 from textual.widgets import DataTable, Static
 
-from showkit.errors import ShowkitError
+from showkit.errors import InputError, ShowkitError
 from showkit.printable import printable
 from showkit.safety import LEVEL_CAUTION
 from showkit.ui.drawing import BLOCKS
@@ -197,15 +197,26 @@ class MeasureView(SessionView):
             ("sweep", "the sweep that was played (from `showkit measure sweep`)", sweep)],
             note=f"CAUTION: {LEVEL_CAUTION}"), done)
 
-    def _path(self, text: str) -> Path:
+    def _path(self, text: str, what: str) -> Path:
+        """A file named in the dialog: absolute, or relative to the current folder, else to the
+        show's folder; missing from both, one line naming both folders."""
         p = Path(str(text).strip()).expanduser()
-        if not p.is_absolute() and not p.exists():
-            p = self.session.sheet.folder / p
-        return p
+        if p.is_absolute() or p.exists():
+            return p
+        in_show = self.session.sheet.folder / p
+        if in_show.exists():
+            return in_show
+        raise InputError(f"no such {what} in the current folder ({Path.cwd()}) or the show's folder "
+                         f"({self.session.sheet.folder})", str(text).strip(), "give its full path")
 
     def analyse(self, recording_text: str, sweep_text: str) -> None:
         """Read both files and analyse them in a worker (progress in the status line)."""
-        rec_path, sweep_path = self._path(recording_text), self._path(sweep_text)
+        try:
+            rec_path = self._path(recording_text, "recording")
+            sweep_path = self._path(sweep_text, "sweep file")
+        except ShowkitError as exc:
+            self.say(exc.line(), warn=True)
+            return
         self.last_paths = (str(recording_text).strip(), str(sweep_text).strip())
         s = self.session
 
