@@ -119,13 +119,20 @@ def check_static_pa(static_pa: float, at: str = "static pressure") -> float:
 
 
 def check_temperature_k(temperature_k: float, at: str = "gas temperature") -> float:
-    """A gas temperature in K within the limits (-40 C to 100 C)."""
-    if not (math.isfinite(temperature_k) and TEMPERATURE_MIN_K <= temperature_k <= TEMPERATURE_MAX_K):
+    """A gas temperature in K within the limits (-40 C to 100 C).
+
+    The limits themselves are in: "-40 C" converts to 233.14999999999998 K (the float sum
+    -40 + 273.15), so the comparison allows a nanokelvin of rounding (and the value is then
+    put on the limit).
+    """
+    slack = 1e-9
+    if not (math.isfinite(temperature_k)
+            and TEMPERATURE_MIN_K - slack <= temperature_k <= TEMPERATURE_MAX_K + slack):
         shown = f"{temperature_k - 273.15:.1f} C" if math.isfinite(temperature_k) else repr(temperature_k)
         raise InputError(f"gas temperature {shown} is outside -40 to 100 C", at,
                          'give the gas temperature with its unit, e.g. "20 C" or "68 F" '
                          "(a plain number is kelvin)")
-    return temperature_k
+    return min(max(temperature_k, TEMPERATURE_MIN_K), TEMPERATURE_MAX_K)
 
 
 def check_reserve(reserve: float, at: str = "reserve") -> float:

@@ -84,3 +84,10 @@ def test_calibration_door():
     rig = load_rig()
     with pytest.raises(InputError, match="plane-wave limit"):
         make_calibration(reference_frequency=3000, tube=rig.model, where={"reference_frequency": "--frequency"})
+
+
+@pytest.mark.parametrize("text,kelvin", [("-40 C", 233.15), ("-40 F", 233.15), ("100 C", 373.15)])
+def test_the_temperature_limits_themselves_are_accepted(text, kelvin):
+    """"-40 C" converts to 233.14999999999998 K and was refused as "-40.0 C is outside -40 to
+    100 C" (a review's report): the limits are in, and the value is put on the limit."""
+    assert make_conditions("20 Pa", text, 0.25).temperature_k == kelvin

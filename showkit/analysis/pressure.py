@@ -180,14 +180,21 @@ def _family_filters(key: _ResponseKey) -> tuple:
     rig = key.rig
     best = hole_filters(rig)
     fam = rig.loss_family
-    chosen = members(fam, rig.drive.reference_frequency_hz)
+    chosen = members(fam, rig.drive.reference_frequency_hz,
+                     calibration_gas=rig.calibration_gas if rig.calibrated_elsewhere else None)
     out = [(member_label(fam.best) + " (best estimate)", best)]
     for point in chosen:
         if point == fam.best:
             continue
         model = fam.model(point)
-        out.append((member_label(point), design_hole_filters(model, rig.drive, rate_hz=best.rate_hz,
-                                                             calibration_model=rig.calibration_model(model))))
+        try:
+            filters = design_hole_filters(model, rig.drive, rate_hz=best.rate_hz,
+                                          calibration_model=rig.calibration_model(model))
+        except ValueError as exc:  # fails closed, in one line, as the best estimate's
+            raise RigError(f"the pressure model of a loss-family member ({member_label(point)}) cannot be "
+                           f"built ({exc})", rig.name, "check the rig file's [tube], [holes] and [drive] values") \
+                from None
+        out.append((member_label(point), filters))
     return tuple(out)
 
 

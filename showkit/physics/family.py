@@ -293,21 +293,33 @@ def check_reference(family: LossFamily, reference_hz: float) -> ReferenceCheck:
                           suggest_reference(family, reference_hz))
 
 
-def _envelope(family: LossFamily, point: LossPoint, reference_hz: float, freq_hz: np.ndarray) -> np.ndarray:
-    """Largest ``|H_i(f)|`` over the holes, calibrated at the reference (the drive cancels)."""
-    r = family.model(point).response(np.concatenate([[reference_hz], freq_hz]))
-    return np.abs(r.hole_pressure[:, 1:]).max(axis=0) / np.abs(r.cap_pressure[0])
+def _envelope(family: LossFamily, point: LossPoint, reference_hz: float, freq_hz: np.ndarray,
+              calibration_gas=None) -> np.ndarray:
+    """Largest ``|H_i(f)|`` over the holes, calibrated at the reference (the drive cancels).
+
+    ``calibration_gas``: the gas the calibration was read in, when not the family's (another
+    day's temperature): the member's cap response at the reference is taken in it, as the
+    drive scale is (:func:`showkit.physics.response.transfer`).
+    """
+    model = family.model(point)
+    r = model.response(np.concatenate([[reference_hz], freq_hz]))
+    cap = r.cap_pressure[0]
+    if calibration_gas is not None and calibration_gas != family.base.gas:
+        cap = TubeModel(model.geometry, calibration_gas).response([reference_hz]).cap_pressure[0]
+    return np.abs(r.hole_pressure[:, 1:]).max(axis=0) / np.abs(cap)
 
 
 @lru_cache(maxsize=16)
 def members(family: LossFamily, reference_hz: float,
-            tolerance_db: float = MEMBER_TOLERANCE_DB) -> tuple[LossPoint, ...]:
+            tolerance_db: float = MEMBER_TOLERANCE_DB, calibration_gas=None) -> tuple[LossPoint, ...]:
     """The members a robust ceiling takes the lowest over.
 
     Along each branch, bisect until the calibrated steady-state envelope
     (largest pressure at any hole per unit drive, every frequency from 5 Hz to
     the plane-wave limit) of every midpoint is within ``tolerance_db`` of the
     larger of its two neighbours'.  The best estimate is always a member.
+    ``calibration_gas``: the gas of the calibration reading when the family is
+    built for another (:func:`_envelope`).
     """
     if family.base.geometry.hole_count == 0:
         return (family.best,)
@@ -315,7 +327,8 @@ def members(family: LossFamily, reference_hz: float,
     limit = 10.0 ** (tolerance_db / 20.0)
     chosen: list[LossPoint] = []
     for a, b in family.branches:
-        env = {0.0: _envelope(family, a, reference_hz, f), 1.0: _envelope(family, b, reference_hz, f)}
+        env = {0.0: _envelope(family, a, reference_hz, f, calibration_gas),
+               1.0: _envelope(family, b, reference_hz, f, calibration_gas)}
         ts = [0.0, 1.0]
         while True:
             added = []
@@ -323,7 +336,7 @@ def members(family: LossFamily, reference_hz: float,
                 if hi - lo <= MIN_STEP:
                     continue
                 mid = 0.5 * (lo + hi)
-                env[mid] = _envelope(family, a.mix(b, mid), reference_hz, f)
+                env[mid] = _envelope(family, a.mix(b, mid), reference_hz, f, calibration_gas)
                 if np.max(env[mid] / np.maximum(env[lo], env[hi])) > limit:
                     added.append(mid)
             if not added:
