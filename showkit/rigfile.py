@@ -207,11 +207,11 @@ class Rig:
     def calibration_fields(self) -> dict:
         d = self.drive
         fields = {"reference_frequency_hz": d.reference_frequency_hz,
-                "reference_level_dbfs": d.reference_level_dbfs,
-                "reference_pressure_pa": d.reference_pressure_pa,
-                "speaker_resonance_hz": d.speaker_resonance_hz, "speaker_q": d.speaker_q,
-                "response_freq_hz": list(d.response_freq_hz),
-                "response_db": list(d.response_db)}
+                  "reference_level_dbfs": d.reference_level_dbfs,
+                  "reference_pressure_pa": d.reference_pressure_pa,
+                  "speaker_resonance_hz": d.speaker_resonance_hz, "speaker_q": d.speaker_q,
+                  "response_freq_hz": list(d.response_freq_hz),
+                  "response_db": list(d.response_db)}
         if self.calibrated_elsewhere:  # today's gas differs: the same reading gives another drive
             fields["calibration_temperature_k"] = self.calibration_temperature_k
         return fields
@@ -340,10 +340,9 @@ def _build(data: dict, where: str, path: Path | None, check_calibration: bool = 
     calibration = _drive(drive, where)
     gas_now = gas_state(fuel, air, conditions.temperature_k, ambient)
     geometry = TubeGeometry(length, bore, wall, positions, diameter, end_corr, 0.0)
-    r_value = _hole_resistance(holes, where, gas_now, geometry)
     measured = _measured(data, where)
     inputs = FamilyInputs(geometry, conditions.static_pa, _flow_scale(holes, where), _ranges(measured, where),
-                          None if holes.get("resistance", 0.0) == "outflow" else r_value)
+                          _hole_resistance(holes, where))
     family = inputs.build(gas_now)
     rig = Rig(name=name, geometry=family.best_model.geometry, fuel=fuel, air_fraction=air,
               conditions=conditions, ambient_pa=ambient, drive=calibration, path=path, measured=measured,
@@ -415,12 +414,12 @@ def _rig_conditions(gas: dict, safety: dict, where: str) -> Conditions:
                                   "reserve": _field(where, "safety", "reserve")})
 
 
-def _hole_resistance(holes: dict, where: str, gas: GasState, geometry: TubeGeometry) -> float:
-    """``holes.resistance``, Pa s/m^3: a value, or ``"outflow"`` (from the gas and the holes)."""
+def _hole_resistance(holes: dict, where: str) -> float | None:
+    """``holes.resistance``, Pa s/m^3: a value, or None for ``"outflow"`` (from the gas and the
+    holes: :meth:`FamilyInputs.resistance_for`)."""
     resistance = holes.get("resistance", 0.0)
     if resistance == "outflow":
-        return (outflow_resistance(gas.density_kg_m3, NOMINAL_FLOW_PRESSURE_PA, geometry.hole_area_m2)
-                if geometry.hole_count else 0.0)
+        return None
     r_value = units.resistance_pa_s_m3(resistance, _field(where, "holes", "resistance"))
     if r_value < 0:
         raise RigError("resistance must not be negative", _field(where, "holes", "resistance"),
@@ -464,11 +463,15 @@ class FamilyInputs:
     ranges: tuple | None
     resistance_pa_s_m3: float | None
 
+    def resistance_for(self, gas: GasState) -> float:
+        """The holes' resistance in this gas, Pa s/m^3 (``"outflow"``: from its density)."""
+        if self.resistance_pa_s_m3 is not None:
+            return self.resistance_pa_s_m3
+        return (outflow_resistance(gas.density_kg_m3, NOMINAL_FLOW_PRESSURE_PA, self.geometry.hole_area_m2)
+                if self.geometry.hole_count else 0.0)
+
     def build(self, gas: GasState) -> LossFamily:
-        r_value = self.resistance_pa_s_m3
-        if r_value is None:
-            r_value = (outflow_resistance(gas.density_kg_m3, NOMINAL_FLOW_PRESSURE_PA, self.geometry.hole_area_m2)
-                       if self.geometry.hole_count else 0.0)
+        r_value = self.resistance_for(gas)
         return loss_family(replace(self.geometry, hole_resistance_pa_s_m3=r_value), gas, self.static_pa,
                            self.flow_scale, self.ranges, r_value)
 

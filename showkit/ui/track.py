@@ -16,7 +16,7 @@ from showkit.printable import printable
 from showkit.ui.drawing import flame_rows, hole_columns, mode_map, span_strip
 from showkit.ui.messages import AuditionReady, CueAdded
 from showkit.ui.viewbase import SessionView
-from showkit.units import format_semitones
+from showkit.units import format_count, format_semitones
 from showkit.units import format_time as _clock  # the one m:ss.s formatter
 
 #: Cursor steps, s.
@@ -113,7 +113,7 @@ class TrackMap(Widget, can_focus=True):
             out.append("\n")
         hidden = count - len(shown)
         if hidden > 0:  # never silently: a fresh user missed the modes a passage held
-            out.append(f"    +{hidden} weaker {'mode' if hidden == 1 else 'modes'} not drawn: a taller terminal "
+            out.append(f"    +{format_count(hidden, 'weaker mode')} not drawn: a taller terminal "
                        "shows every mode\n", style="dim")
         spans = [(p["start_s"], p["end_s"]) for p in a.passages]
         out.append(" ps ", style="dim")
