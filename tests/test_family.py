@@ -8,6 +8,7 @@ real pressure rather than an envelope).
 from __future__ import annotations
 
 import math
+import re
 
 import family_support as ref
 import numpy as np
@@ -24,6 +25,7 @@ from showkit.physics.biasflow import (
     jet_velocity_m_s,
 )
 from showkit.physics.family import (
+    MEMBER_TOLERANCE_DB,
     REFERENCE_LIMIT_DB,
     LossPoint,
     members,
@@ -175,26 +177,52 @@ def test_suggestions_are_accepted_everywhere_along_the_band(rig):
 
 # ------------------------------------------------------------------ the members
 
-@pytest.mark.slow
-def test_members_reach_the_dense_family_within_a_tenth_of_a_db(rig):
-    """The min over the members is within 0.1 dB of the min over a set 16 times denser: steady
-    state at every frequency, and in time for a glide, clicks and a chord sequence."""
-    fam = rig.loss_family
-    f_ref = rig.drive.reference_frequency_hz
-    chosen = members(fam, f_ref)
-    dense = fam.dense(33)
+def _excess_over_members_db(fam, f_ref, chosen):
+    """The largest steady-state excess (every frequency, every hole) of a dense set over the members:
+    33 evenly spaced points per branch and 25 more within its first percent (2**-18 .. 2**-6: the
+    losses there are the tube's own plus a little, where each mode's peak moves and falls fastest)."""
     f = np.geomspace(5.0, fam.base.plane_wave_limit_hz, 6000)
 
     def env(p):
         r = fam.model(p).response(np.concatenate([[f_ref], f]))
         return np.abs(r.hole_pressure[:, 1:]).max(axis=0) / abs(r.cap_pressure[0])
 
-    # each point once: most members lie on the dense grid too (dyadic steps along a branch)
-    envs = {p: env(p) for p in dict.fromkeys([*chosen, *dense])}
-    top_members = np.max([envs[p] for p in chosen], axis=0)
-    top_dense = np.max([envs[p] for p in dense], axis=0)
-    assert np.max(20 * np.log10(top_dense / top_members)) < 0.1
+    near_start = np.geomspace(2.0 ** -18, 2.0 ** -6, 25)
+    dense = fam.dense(33) + [a.mix(b, float(t)) for a, b in fam.branches for t in near_start]
+    top_members = np.max([env(p) for p in chosen], axis=0)
+    return max(float(np.max(20 * np.log10(env(p) / top_members))) for p in dict.fromkeys(dense))
 
+
+#: The real-music test rig (tests/realmusic.py; invented): the demo tube 2405.5 mm long,
+#: calibrated at 1367.1 Hz. A bisection of each branch from its ends chose members 0.23 dB
+#: below a point 1/64 along (a ceiling 0.24 dB high in time).
+def _long_rig():
+    text = demo_rig_path().read_text()
+    text = re.sub(r'(?m)^length = .*$', 'length = "2405.5 mm"', text, count=1)
+    text = re.sub(r'(?m)^reference_frequency = .*$', 'reference_frequency = "1367.1 Hz"', text, count=1)
+    return parse_rig(text, "long test rig")
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("which", ["demo", "long"])
+def test_members_cover_a_dense_family_at_every_frequency(rig, which):
+    """Steady state: no point of a dense set (16 times denser along each branch, and geometric
+    near its still-gas end) answers more than the member tolerance above the members' largest."""
+    r = rig if which == "demo" else _long_rig()
+    if which == "long":
+        assert r.geometry.length_m == pytest.approx(2.4055)
+    fam = r.loss_family
+    chosen = members(fam, r.drive.reference_frequency_hz)
+    assert fam.best == chosen[0]
+    assert _excess_over_members_db(fam, r.drive.reference_frequency_hz, chosen) < MEMBER_TOLERANCE_DB
+
+
+@pytest.mark.slow
+def test_members_reach_the_dense_family_within_a_tenth_of_a_db(rig):
+    """The min over the members is within 0.1 dB of the min over a set 4 times denser, in time
+    for a glide, clicks and a chord sequence."""
+    fam = rig.loss_family
+    chosen = members(fam, rig.drive.reference_frequency_hz)
     rate = 4800
     sigs = _signals(rig, rate)
     spectra = {name: np.fft.rfft(sigs[name], GRID) for name in ("glide", "clicks", "music")}
