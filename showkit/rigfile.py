@@ -37,7 +37,7 @@ _FIELDS = {
     "holes": {"count", "spacing", "first", "diameter", "positions", "end_correction",
               "resistance", "flow"},
     "gas": {"fuel", "air_fraction", "temperature", "static_pressure", "ambient"},
-    "drive": {"reference_frequency", "reference_level", "reference_pressure",
+    "drive": {"reference_frequency", "reference_level", "reference_pressure", "reference_temperature",
               "speaker_resonance", "speaker_q", "response_frequencies", "response_db"},
     "safety": {"reserve"},
     "measured": None,  # written by `showkit measure`: kept as data, read by later tools
@@ -94,7 +94,8 @@ class Rig:
         pressure: today's manometer reading does not change it.  Built for the
         gas at today's temperature (:meth:`with_conditions` builds it again).
     calibration_temperature_k : float or None
-        The gas temperature the calibration reading was taken at: the rig file's.
+        The gas temperature the calibration reading was taken at: the rig file's
+        ``drive.reference_temperature``, else its gas temperature.
         Today's temperature moves the modes, not the loudspeaker: the drive (volume
         velocity per unit of digital amplitude) is found from the tube at this
         temperature (:attr:`calibration_gas`) and drives the tube at today's.  None:
@@ -337,6 +338,7 @@ def _build(data: dict, where: str, path: Path | None, check_calibration: bool = 
     end_corr = _end_correction(holes, where)
     fuel, air, ambient = _fuel_air_ambient(data["gas"], where)
     conditions = _rig_conditions(data["gas"], data.get("safety", {}), where)
+    calibration_temperature_k = _reference_temperature(drive, conditions, where)
     calibration = _drive(drive, where)
     gas_now = gas_state(fuel, air, conditions.temperature_k, ambient)
     geometry = TubeGeometry(length, bore, wall, positions, diameter, end_corr, 0.0)
@@ -346,12 +348,14 @@ def _build(data: dict, where: str, path: Path | None, check_calibration: bool = 
     family = inputs.build(gas_now)
     rig = Rig(name=name, geometry=family.best_model.geometry, fuel=fuel, air_fraction=air,
               conditions=conditions, ambient_pa=ambient, drive=calibration, path=path, measured=measured,
-              loss_family=family, calibration_temperature_k=conditions.temperature_k, family_inputs=inputs)
-    # checks of the calibration against the tube (the same door, with the tube): below the
-    # plane-wave limit, and where the tube's possible losses do not change the cap pressure
-    _drive(drive, where, rig.model)
+              loss_family=family, calibration_temperature_k=calibration_temperature_k, family_inputs=inputs)
+    # checks of the calibration against the tube as it was when the reading was taken (the same
+    # door, with the tube): below the plane-wave limit, and where the tube's possible losses do not
+    # change the cap pressure
+    at_reading = rig.with_conditions(temperature_k=calibration_temperature_k)
+    _drive(drive, where, at_reading.model)
     if check_calibration:
-        check_calibration_point(rig, where)
+        check_calibration_point(at_reading, where)
     return rig
 
 
@@ -412,6 +416,17 @@ def _rig_conditions(gas: dict, safety: dict, where: str) -> Conditions:
                            where={"static": _field(where, "gas", "static_pressure"),
                                   "temperature": _field(where, "gas", "temperature"),
                                   "reserve": _field(where, "safety", "reserve")})
+
+
+def _reference_temperature(drive: dict, conditions: Conditions, where: str) -> float:
+    """``drive.reference_temperature``, K: the gas temperature when the calibration reading was
+    taken (written by ``showkit measure level --update-rig``), through the conditions' door;
+    without it, the rig file's gas temperature."""
+    if "reference_temperature" not in drive:
+        return conditions.temperature_k
+    at = _field(where, "drive", "reference_temperature")
+    return make_conditions(None, drive["reference_temperature"], None, base=conditions,
+                           where={"temperature": at}).temperature_k
 
 
 def _hole_resistance(holes: dict, where: str) -> float | None:
@@ -596,5 +611,6 @@ def _holes(holes: dict, where: str, length: float, bore: float) -> tuple[tuple[f
 
 
 def _drive(drive: dict, where: str, tube=None) -> DriveCalibration:
-    return make_calibration(**{k: drive.get(k) for k in _FIELDS["drive"]}, tube=tube,
-                            where={k: _field(where, "drive", k) for k in _FIELDS["drive"]})
+    keys = _FIELDS["drive"] - {"reference_temperature"}  # a condition of the reading: _reference_temperature
+    return make_calibration(**{k: drive.get(k) for k in keys}, tube=tube,
+                            where={k: _field(where, "drive", k) for k in keys})

@@ -111,7 +111,8 @@ def update_rig(path, *, sound_speed_m_s: float | None = None, end_correction: fl
     response_freq_hz, response_db : sequence, optional
         Measured relative drive response for ``[drive]``.
     reference : dict, optional
-        ``{"reference_frequency": Hz, "reference_level": dBFS, "reference_pressure": Pa}``.
+        ``{"reference_frequency": Hz, "reference_level": dBFS, "reference_pressure": Pa}``, and
+        ``"reference_temperature_k"``: the gas temperature of the reading, K (written in C).
     prefer_gas : str
         ``"air_fraction"`` or ``"temperature"`` (see module docstring).
     today : str, optional
@@ -176,6 +177,8 @@ def _write_drive(doc, response_freq_hz, response_db, reference) -> None:
         drive["reference_frequency"] = f"{reference['reference_frequency']:g} Hz"
         drive["reference_level"] = round(float(reference["reference_level"]), 2)
         drive["reference_pressure"] = f"{reference['reference_pressure']:.4g} Pa"
+        if reference.get("reference_temperature_k") is not None:
+            drive["reference_temperature"] = f"{reference['reference_temperature_k'] - 273.15:.2f} C"
 
 
 def _write_measured(doc, modes, measured_extra, notes: list, today: str | None) -> None:

@@ -562,7 +562,7 @@ CASES = [
                                         ["render", e.p("show.toml"), "-o", e.p("out.wav")])[-1],
          "disk is full", unchanged=("out.wav",), patch=_disk_full),
     Case("disk-full-update-rig", lambda e: ["measure", "level", "--rig", e.p("rig.toml"), "--pressure", "5 Pa",
-                                            "--update-rig"],
+                                            "--temperature", "20 C", "--update-rig"],
          "disk is full", unchanged=("rig.toml",), patch=_disk_full),
     Case("disk-full-sweep", lambda e: (e.write("s.wav", b"old sweep"),
                                        ["measure", "sweep", "--out", e.p("s.wav"), "--length", "2"])[-1],

@@ -111,6 +111,7 @@ RIG_FIELDS = {
     "reference_frequency": ("drive", "reference_frequency", "{}", (10.0, 5000.0)),
     "reference_level": ("drive", "reference_level", "{}", (-80.0, 0.0)),
     "reference_pressure": ("drive", "reference_pressure", "{}", (0.01, 2000.0)),
+    "reference_temperature": ("drive", "reference_temperature", "{}", (233.15, 373.15)),
     "speaker_resonance": ("drive", "speaker_resonance", "{}", (5.0, 1000.0)),
     "speaker_q": ("drive", "speaker_q", "{}", (0.1, 10.0)),
     "response_db": ("drive", "response_db", "[{}, 0.0]", (-60.0, 60.0)),
@@ -343,7 +344,8 @@ def test_measure_level_never_writes_a_bad_number_into_the_rig(folder, capsys):
     before = rig.read_text()
     for argv in (["--pressure", "5 Pa", "--level", "nan"], ["--pressure", "nan"], ["--pressure", "0 Pa"],
                  ["--pressure", "5 Pa", "--frequency", "-100"], ["--pressure", "inf Pa"]):
-        status, out, err = _run(capsys, ["measure", "level", "--rig", rig, "--update-rig", *argv])
+        status, out, err = _run(capsys, ["measure", "level", "--rig", rig, "--update-rig", "--temperature", "20 C",
+                                         *argv])
         _refused(status, err)
         assert rig.read_text() == before
     status, out, err = _run(capsys, ["measure", "level", "--out", folder / "nan.wav", "--level", "nan"])

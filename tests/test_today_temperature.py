@@ -150,3 +150,42 @@ def test_the_members_stand_for_the_family_as_calibrated_on_another_day(file_rig)
     dense = fam.dense(17)
     worst_db = max(float(np.max(20 * np.log10(_envelope(fam, p, f_ref, f, gas) / top))) for p in dense)
     assert worst_db <= 0.05, worst_db
+
+
+def test_measure_level_records_the_gas_temperature_of_the_reading(tmp_path, capsys):
+    """`measure level --update-rig` needs the gas temperature of the reading and writes it as
+    `drive.reference_temperature`: the rig file then stands for the same loudspeaker as a rig file
+    written at that temperature with the same reading, whatever its own gas temperature says.
+    Before, a reading taken at 45 C written into a 20-C file gave ceilings about 0.4 dB high."""
+    from showkit.analysis.pressure import signal_report
+    from showkit.cli.main import main
+    from showkit.rigfile import demo_rig_path, parse_rig
+
+    path = tmp_path / "rig.toml"
+    path.write_text(demo_rig_path().read_text())
+    before = path.read_bytes()
+    args = ["measure", "level", "--rig", str(path), "--pressure", "0.3 Pa", "--update-rig"]
+    assert main(args) == 2
+    assert "--temperature" in capsys.readouterr().err
+    assert path.read_bytes() == before  # nothing written
+    assert main([*args, "--temperature", "45 C"]) == 0
+    rig = load_rig(path)
+    assert rig.temperature_k == pytest.approx(293.15) and rig.calibration_temperature_k == pytest.approx(318.15)
+    assert rig.calibrated_elsewhere and 'reference_temperature = "45.00 C"' in path.read_text()
+    # the same reading in a rig file written at 45 C, used today at 20 C
+    text = path.read_text().replace('reference_temperature = "45.00 C"', "")
+    text = text.replace('temperature = "20 C"', 'temperature = "45 C"')
+    at_reading = parse_rig(text, "at 45 C").with_conditions(temperature_k=rig.temperature_k)
+    assert at_reading.calibration_hash() == rig.calibration_hash()
+    rate = 4800
+    t = np.arange(6 * rate) / rate
+    from showkit.physics.modes import find_modes
+
+    for f_hz in (find_modes(rig.model)[2].frequency_hz, 300.0):  # on mode 3, and between modes
+        x = 0.01 * np.sin(2 * np.pi * f_hz * t) * np.minimum(1.0, t)
+        a = signal_report(rig, x, rate, flames=False).ceiling_db
+        b = signal_report(at_reading, x, rate, flames=False).ceiling_db
+        assert a == pytest.approx(b, abs=1e-6)
+    # without the field, the same reading taken as made at 20 C gives another ceiling
+    plain = parse_rig(path.read_text().replace('reference_temperature = "45.00 C"', ""), "plain")
+    assert abs(signal_report(plain, x, rate, flames=False).ceiling_db - b) > 0.05

@@ -240,19 +240,65 @@ def reference_sine(freq_hz: float, level_dbfs: float, rate_hz: int = REFERENCE_R
                 "reference sine")
 
 
-def check_reference_sine(rig, sine, rate_hz: int, level_dbfs: float, where: str = "--level") -> float:
-    """The sine's headroom below its ceiling, dB; a MeasureError when it would take a hole below the line.
+def signal_headroom_db(rig, samples, rate_hz: int) -> float:
+    """How far a measurement signal (a sweep, a reference sine) may be raised before a hole of any
+    member of the rig's loss family goes below the reserve line, dB (negative: it must come down).
 
-    The sine must keep every hole above the reserve line, as any cue must
+    The signal is simulated through every member, as a cue's ceiling is
     (:func:`showkit.analysis.pressure.signal_report`, on the rig's present calibration).
     """
     from showkit.analysis.pressure import signal_report
 
-    headroom = signal_report(rig, sine, rate_hz, flames=False).ceiling_db
+    return float(signal_report(rig, samples, rate_hz, flames=False).ceiling_db)
+
+
+def check_reference_sine(rig, sine, rate_hz: int, level_dbfs: float, where: str = "--level") -> float:
+    """The sine's headroom below its ceiling, dB; a MeasureError when it would take a hole below the line
+    (:func:`signal_headroom_db`)."""
+    headroom = signal_headroom_db(rig, sine, rate_hz)
     if headroom < 0:
         raise MeasureError(f"the reference sine at {level_dbfs:g} dBFS would take a hole below the safe line "
                            f"(it must come down {-headroom:.1f} dB)", where,
                            f"give --level {level_dbfs + headroom - 1:.0f} or lower")
+    return headroom
+
+
+#: A sweep is never written louder than this, dBFS (headroom for the converter).
+SWEEP_MAX_DBFS = -1.0
+
+
+def sweep_bound_db(rig, spec) -> tuple[float, float]:
+    """The loudest peak level, dBFS, of the sweep ``spec`` (its level ignored) that keeps every hole
+    above the reserve line, and the frequency where the best estimate is most sensitive, Hz.
+
+    The lower of two bounds: the best estimate's steady state at every frequency of the sweep
+    (:func:`showkit.analysis.drivefit.sweep_amplitude_bound`), and the sweep itself simulated in
+    time through every member of the loss family (:func:`signal_headroom_db`).  The first alone
+    let the default sweep (6 dB under it) take a hole 0.5-0.8 dB below the line in the still-gas
+    member, whose modes ring with Q in the hundreds; never above :data:`SWEEP_MAX_DBFS`.
+    """
+    from dataclasses import replace
+
+    from showkit.analysis.drivefit import sweep_amplitude_bound
+    from showkit.analysis.sweep import exponential_sweep
+
+    amplitude, f_worst = sweep_amplitude_bound(rig.model, rig.drive, rig.static_pa, rig.reserve,
+                                               (spec.f_start_hz, spec.f_stop_hz))
+    level_db = min(20.0 * np.log10(amplitude), SWEEP_MAX_DBFS)
+    x = exponential_sweep(replace(spec, amplitude=10.0 ** (level_db / 20.0)))
+    bound_db = level_db + min(signal_headroom_db(rig, x, spec.sample_rate_hz), 0.0)
+    # down to a tenth of a dB (as printed), so that a sweep written at the bound passes its check
+    return float(np.floor(bound_db * 10.0) / 10.0), f_worst
+
+
+def check_sweep(rig, sweep, rate_hz: int, where: str) -> float:
+    """The headroom of a sweep file about to be played, dB; a MeasureError when it would take a hole
+    below the line (:func:`signal_headroom_db`)."""
+    headroom = signal_headroom_db(rig, sweep, rate_hz)
+    if headroom < 0:
+        raise MeasureError(f"the sweep would take a hole below the safe line (it must come down "
+                           f"{-headroom:.1f} dB)", where,
+                           "write it again with `showkit measure sweep`, which keeps its level safe")
     return headroom
 
 

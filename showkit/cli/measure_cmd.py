@@ -19,7 +19,8 @@ from pathlib import Path
 
 # the work itself lives in the analysis and show layers (imported where used: they bring numpy,
 # and every command module is imported for `showkit --help`); this module parses, plays and prints
-from showkit.cli.common import (add_conditions_options, add_json_option, add_rig_option, level_caution,
+from showkit.cli.common import (add_conditions_options, add_json_option, add_rig_option, add_temperature_option,
+                                conditions_from_args, level_caution,
                                 load_rig_from_args, print_json, table)
 from showkit.errors import InputError, MeasureError, RigError
 from showkit.printable import printable
@@ -35,6 +36,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     p = sub.add_parser("sweep", help="write an exponential sine sweep WAV")
     add_rig_option(p)
     add_conditions_options(p)
+    add_temperature_option(p)
     p.add_argument("--out", required=True, metavar="SWEEP.wav", help="file to write")
     _sweep_options(p)
     p.add_argument("--level", type=float, metavar="DBFS",
@@ -48,6 +50,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     p.add_argument("--save", metavar="REC.wav", help="also save the recording")
     p.add_argument("--device", help="audio device (number or name; see showkit devices)")
     _analyse_options(p)
+    add_conditions_options(p)
+    add_temperature_option(p)
     p = sub.add_parser("level", help="the absolute calibration point ([drive] reference_*)")
     add_rig_option(p)
     p.add_argument("--frequency", type=float, metavar="HZ",
@@ -64,7 +68,11 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                    help="play the reference sine (10 s) through the audio device; with --calibrator, "
                         "record the cap microphone at the same time and take the pressure from it")
     p.add_argument("--device", help="audio device for --play (number or name; see showkit devices)")
-    p.add_argument("--update-rig", action="store_true", help="write the calibration into the rig file")
+    p.add_argument("--temperature", metavar="TEMP",
+                   help='the gas temperature in the tube as the pressure is read, e.g. "21 C" (needed with '
+                        "--update-rig: it is written with the reading; default otherwise: the rig file's)")
+    p.add_argument("--update-rig", action="store_true",
+                   help="write the calibration, with the gas temperature of the reading, into the rig file")
     add_json_option(p)
 
 
@@ -118,18 +126,18 @@ def _out_path(path: str, args, what: str):
 def _run_sweep(args) -> int:
     import numpy as np
 
-    from showkit.analysis.drivefit import sweep_amplitude_bound
+    from showkit.analysis.measurement import sweep_bound_db
     from showkit.analysis.sweep import SweepSpec, check_spec, exponential_sweep
     from showkit.safesave import write_audio
 
     rig = load_rig_from_args(args)
     _out_path(args.out, args, "sweep")  # before any work: not a folder, not the rig
     check_spec(SweepSpec(args.start, args.stop, args.length, args.rate, 0.5))
-    bound, f_worst = sweep_amplitude_bound(rig.model, rig.drive, rig.static_pa, rig.reserve,
-                                           (args.start, args.stop))
-    bound = min(bound, 10 ** (-1.0 / 20))
-    bound_db = 20 * np.log10(bound)
+    bound_db, f_worst = sweep_bound_db(rig, SweepSpec(args.start, args.stop, args.length, args.rate, 0.5))
     level_db = bound_db - 6.0 if args.level is None else args.level
+    if not np.isfinite(level_db):
+        raise MeasureError(f"{level_db:g} dBFS is not a level", "--level",
+                           f"give a peak level in dBFS, {bound_db:.1f} or lower")
     if level_db > bound_db + 1e-9:
         raise MeasureError(f"--level {level_db:g} dBFS is above the safe sweep bound {bound_db:.1f} dBFS",
                            "--level", f"use {bound_db:.1f} dBFS or lower (the tube peaks near {f_worst:.0f} Hz)")
@@ -139,7 +147,8 @@ def _run_sweep(args) -> int:
     print(f"wrote {printable(args.out)}: {args.start:g}-{args.stop:g} Hz, {args.length:g} s at {args.rate} Hz, "
           f"peak {level_db:.1f} dBFS")
     print(f"safe bound {bound_db:.1f} dBFS: keeps every hole at least {rig.reserve:.0%} of "
-          f"{rig.static_pa:.2f} Pa above ambient in steady state (most sensitive near {f_worst:.0f} Hz), "
+          f"{rig.static_pa:.2f} Pa above ambient in every tube of the loss family, in time and in steady "
+          f"state (most sensitive near {f_worst:.0f} Hz), at {rig.temperature_k - 273.15:.1f} C, "
           f"from {rig.drive.describe()}")
     level_caution()
     return 0
@@ -224,12 +233,18 @@ def _run_analyse(args) -> int:
 
 def _run_live(args) -> int:
     from showkit.analysis.audio import read_whole
+    from showkit.analysis.measurement import check_sweep
     from showkit.safesave import write_audio
 
-    rig = load_rig_from_args(args)
+    from showkit.rigfile import load_rig
+
+    rig = load_rig(getattr(args, "rig", None))  # the fit compares with the rig file's tube, as `analyse` does
     if args.save:
         _out_path(args.save, args, "recording")
     sweep, rate = read_whole(args.sweep, "sweep")
+    # never played above its ceiling in today's tube, whoever made the file
+    check_sweep(rig.with_conditions(conditions=conditions_from_args(args, rig.conditions)), sweep, int(rate),
+                args.sweep)
     level_caution()
     rec = play_record(sweep, int(rate), device=args.device)
     if args.save:
@@ -305,7 +320,12 @@ def _run_level(args) -> int:
                                               reference_sine)
     from showkit.conditions import make_calibration
 
-    # the rig's own calibration may be the one being replaced: load it unchecked, check the new frequency
+    if args.update_rig and args.temperature is None:  # before anything is played
+        raise InputError("--update-rig needs the gas temperature of the reading", "--temperature",
+                         'give the gas temperature in the tube now, e.g. --temperature "21 C": the tube\'s answer '
+                         "at the calibration frequency moves with it, the loudspeaker's drive does not")
+    # the rig's own calibration may be the one being replaced: load it unchecked, check the new frequency;
+    # --temperature makes the tube the one the reading is taken in
     rig = load_rig_from_args(args, check_calibration=False)
     drive = _level_drive(rig, args)
     level_caution()
@@ -325,6 +345,7 @@ def _run_level(args) -> int:
         where["reference_pressure"] = f"{args.recording or 'live recording'}: measured pressure"
     result = calibration_values(make_calibration(reference_pressure=reading, base=drive, where=where,
                                                  tube=rig.model))
+    result["reference_temperature_k"] = rig.temperature_k
     _print_calibration(result, args)
     if args.update_rig:
         _update_reference(result, args)
@@ -336,7 +357,8 @@ def _print_calibration(result: dict, args) -> None:
         print_json(result)
         return
     print(f"calibration: {result['reference_pressure']:.3g} Pa at the cap (zero to peak; {result['spl_db']:.1f} "
-          f"dB SPL) for {result['reference_frequency']:g} Hz at {result['reference_level']:g} dBFS")
+          f"dB SPL) for {result['reference_frequency']:g} Hz at {result['reference_level']:g} dBFS, "
+          f"gas at {result['reference_temperature_k'] - 273.15:.1f} C")
 
 
 def _update_reference(result: dict, args) -> None:
