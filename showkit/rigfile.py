@@ -133,6 +133,15 @@ class Rig:
         t = self.calibration_temperature_k
         return t is not None and t != self.temperature_k
 
+    def describe_drive(self) -> str:
+        """One line saying which calibration and drive model the levels rest on, with the gas
+        temperature the reading was taken in when it is not the rig's (today's) own."""
+        text = self.drive.describe()
+        if self.calibrated_elsewhere:
+            head, sep, tail = text.partition("; ")
+            text = f"{head}, read in gas at {self.calibration_temperature_k - 273.15:.1f} C{sep}{tail}"
+        return text
+
     @cached_property
     def calibration_gas(self) -> GasState:
         """The tube gas as it was when the calibration reading was taken (the rig file's temperature)."""

@@ -172,6 +172,7 @@ def test_measure_level_records_the_gas_temperature_of_the_reading(tmp_path, caps
     rig = load_rig(path)
     assert rig.temperature_k == pytest.approx(293.15) and rig.calibration_temperature_k == pytest.approx(318.15)
     assert rig.calibrated_elsewhere and 'reference_temperature = "45.00 C"' in path.read_text()
+    assert "0.3 Pa at the cap" in rig.describe_drive() and "read in gas at 45.0 C" in rig.describe_drive()
     # the same reading in a rig file written at 45 C, used today at 20 C
     text = path.read_text().replace('reference_temperature = "45.00 C"', "")
     text = text.replace('temperature = "20 C"', 'temperature = "45 C"')
@@ -189,3 +190,4 @@ def test_measure_level_records_the_gas_temperature_of_the_reading(tmp_path, caps
     # without the field, the same reading taken as made at 20 C gives another ceiling
     plain = parse_rig(path.read_text().replace('reference_temperature = "45.00 C"', ""), "plain")
     assert abs(signal_report(plain, x, rate, flames=False).ceiling_db - b) > 0.05
+    assert "read in gas" not in plain.describe_drive()

@@ -51,7 +51,7 @@ def run(args) -> int:
                  c.status, c.message] for c in checks]
         print(f"{printable(sheet.title)}: {format_count(len(checks), 'cue')} on {printable(today.name)}, static {today.static_pa:.2f} Pa, "
               f"reserve {today.reserve:g}")
-        print(f"ceilings rest on: {today.drive.describe()}")
+        print(f"ceilings rest on: {today.describe_drive()}")
         print(f"ceilings hold for: {today.loss_family.describe()}")
         print(table(rows, ["cue", "gain dB", "ceiling dB", "headroom", "", "status", "note"], "<>>><<<"))
         bad = [c for c in checks if c.status is not CueStatus.OK]

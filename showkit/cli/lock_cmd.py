@@ -57,6 +57,6 @@ def run(args) -> int:
     print(table(rows, ["cue", "kind", "gain dB", "ceiling dB", "limited by", "status"], "<<>><<"))
     print(f"locked for {printable(rig.name)} at {rig.static_pa:.2f} Pa static, reserve {rig.reserve:g}; "
           f"saved {printable(sheet.path)}")
-    print(f"ceilings rest on: {rig.drive.describe()}")
+    print(f"ceilings rest on: {rig.describe_drive()}")
     print(f"ceilings hold for: {rig.loss_family.describe()}")
     return 0

@@ -149,7 +149,7 @@ def _run_sweep(args) -> int:
     print(f"safe bound {bound_db:.1f} dBFS: keeps every hole at least {rig.reserve:.0%} of "
           f"{rig.static_pa:.2f} Pa above ambient in every tube of the loss family, in time and in steady "
           f"state (most sensitive near {f_worst:.0f} Hz), at {rig.temperature_k - 273.15:.1f} C, "
-          f"from {rig.drive.describe()}")
+          f"from {rig.describe_drive()}")
     level_caution()
     return 0
 

@@ -52,7 +52,7 @@ def run(args) -> int:
     print(table(rows, ["cue", "gain dB", "ceiling dB", "lowest Pa", "margin Pa", "seconds"], "<>>>>>"))
     print(f"every cue verified against the pressure model at {today.static_pa:.2f} Pa static, "
           f"reserve {today.reserve:g} (safe line {today.reserve * today.static_pa:.2f} Pa); "
-          f"rests on: {today.drive.describe()}")
+          f"rests on: {today.describe_drive()}")
     for p in written:
         print(f"wrote {printable(p)}")
     return 0

@@ -254,7 +254,7 @@ def run(args) -> int:
         print()
         for line in notes:
             print(textwrap.fill(line, width, subsequent_indent="  "))
-        print(textwrap.fill(f"Ceilings rest on: {rig.drive.describe()}.", width, subsequent_indent="  "))
+        print(textwrap.fill(f"Ceilings rest on: {rig.describe_drive()}.", width, subsequent_indent="  "))
     protect = [(t["path"], "a scanned track") for t in tracks] + [(p, "a scanned path") for p in args.paths]
     if args.csv:
         _write_csv(args.csv, tracks, protect)

@@ -204,7 +204,7 @@ def cover_page(plt, data: BookData, size):
         f"safe line {rig.reserve * rig.static_pa:.2f} Pa at every hole; ambient {rig.ambient_pa:.0f} Pa",
         "",
         "Every ceiling rests on:",
-    ] + ["  " + line for line in _wrap(rig.drive.describe(), 95)]
+    ] + ["  " + line for line in _wrap(rig.describe_drive(), 95)]
     y = _lines(fig, 0.08, y - 0.01, rig_lines, size=9)
     y = _lines(fig, 0.08, y - 0.01, ["What a ceiling guarantees"], size=11, weight="bold")
     y = _lines(fig, 0.08, y, _wrap(GUARANTEE, 105), size=8)

@@ -125,7 +125,7 @@ class TubeView(SessionView):
             f"gas {rig.fuel} ({rig.air_fraction * 100:.0f} % air) at {temp_c:.1f} °C   "
             f"static {rig.static_pa:.1f} Pa   reserve {rig.reserve * 100:.0f} %"
             + (f"   ({', '.join(marks)})" if marks else "") + "\n"
-            f"calibration: {rig.drive.describe().removeprefix('calibration ')}")
+            f"calibration: {rig.describe_drive().removeprefix('calibration ')}")
         self.query_one(TubeDrawing).set_rig(g.hole_positions_m, g.length_m)
 
     def show_modes(self, modes) -> None:
