@@ -323,13 +323,13 @@ def _branch_candidates(a: LossPoint, b: LossPoint, envelope, limit: float) -> di
     """``{t: envelope}`` along the branch ``a``-``b``: a grid geometric in ``t`` (0, 2**-depth, ...,
     1/2, 1), each interval bisected (geometric midpoint away from 0) until its midpoint's envelope is
     within ``limit`` (a ratio) of the larger of its neighbours' or the step is :data:`MIN_STEP` of
-    ``t``."""
+    ``t`` (of 2**-depth next to 0)."""
     ts = [0.0] + [2.0 ** -k for k in range(GEOMETRIC_DEPTH, -1, -1)]
     env = {t: envelope(a.mix(b, t)) for t in ts}
     while True:
         added = []
         for lo, hi in zip(ts[:-1], ts[1:]):
-            if hi - lo <= MIN_STEP * hi:
+            if hi - lo <= MIN_STEP * max(hi, 2.0 ** -GEOMETRIC_DEPTH):  # next to 0 too: it ends
                 continue
             mid = 0.5 * hi if lo == 0.0 else float(np.sqrt(lo * hi))
             env[mid] = envelope(a.mix(b, mid))
