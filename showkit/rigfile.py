@@ -133,10 +133,10 @@ class Rig:
         t = self.calibration_temperature_k
         return t is not None and t != self.temperature_k
 
-    def describe_drive(self) -> str:
-        """One line saying which calibration and drive model the levels rest on, with the gas
-        temperature the reading was taken in when it is not the rig's (today's) own."""
-        text = self.drive.describe()
+    def describe_drive(self, brief: bool = False) -> str:
+        """One line saying which calibration and drive model the levels rest on (``brief``: in a few
+        words), with the gas temperature the reading was taken in when it is not the rig's (today's)."""
+        text = self.drive.brief() if brief else self.drive.describe()
         if self.calibrated_elsewhere:
             head, sep, tail = text.partition("; ")
             text = f"{head}, read in gas at {self.calibration_temperature_k - 273.15:.1f} C{sep}{tail}"

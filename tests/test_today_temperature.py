@@ -173,6 +173,8 @@ def test_measure_level_records_the_gas_temperature_of_the_reading(tmp_path, caps
     assert rig.temperature_k == pytest.approx(293.15) and rig.calibration_temperature_k == pytest.approx(318.15)
     assert rig.calibrated_elsewhere and 'reference_temperature = "45.00 C"' in path.read_text()
     assert "0.3 Pa at the cap" in rig.describe_drive() and "read in gas at 45.0 C" in rig.describe_drive()
+    assert rig.describe_drive(brief=True).startswith("0.3 Pa at ") and "read in gas at 45.0 C" in \
+        rig.describe_drive(brief=True)
     # the same reading in a rig file written at 45 C, used today at 20 C
     text = path.read_text().replace('reference_temperature = "45.00 C"', "")
     text = text.replace('temperature = "20 C"', 'temperature = "45 C"')

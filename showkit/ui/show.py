@@ -136,7 +136,7 @@ class ShowView(SessionView):
             f", ceiling {ceiling_text(check.ceiling_db, unit=' dB')}"
         rests = ""
         if check is not None and check.ceiling_db is not None and not silent and self.session.rig_loaded:
-            rests = f"; rests on {self.session.rig.drive.brief()}"
+            rests = f"; rests on {self.session.rig.describe_drive(brief=True)}"
         detail.update(f"[b]{escape(printable(cue.id))}[/b]  gain {cue.gain_db:+.2f} dB{ceiling}, fade in {cue.fade_in_s:g} s, "
                       f"out {cue.fade_out_s:g} s, then {cue.then}{', ride' if cue.ride else ''}\n"
                       f"{escape(printable(msg + rests))}")
