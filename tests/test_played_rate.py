@@ -102,3 +102,31 @@ def test_a_resampled_cue_over_its_ceiling_is_brought_down_and_says_so():
     assert out.playable and out.gain_db == pytest.approx(-10.5)
     assert "0.50 dB lower" in out.message
     assert seen[1] == pytest.approx(seen[0] * 10 ** (-0.5 / 20), rel=1e-6)
+
+
+def test_a_file_below_the_models_rate_is_read_up_to_its_nyquist_frequency():
+    """A file at a rate below the model's is upsampled for the ceiling; a player at the file's own rate
+    plays its whole band, so the top of that band must reach the tube model too.  soxr's transition
+    band hid it: a 1917-Hz tone in a 4-kHz file read 5.8 dB above the same tone at 48 kHz on a rig
+    with a 50-mm bore (plane-wave limit 2.9 kHz, above the file's 2 kHz).  Closed form: a sine at
+    0.95 of the Nyquist frequency comes out as the same sine at the new rate."""
+    from showkit.analysis.pressure import hole_filters, to_model_rate
+    from showkit.rigfile import demo_rig_path, parse_rig
+
+    text = demo_rig_path().read_text().replace('bore = "80 mm"', 'bore = "50 mm"')
+    rig = parse_rig(text.replace('reference_frequency = "1439.3 Hz"', 'reference_frequency = "1557.6 Hz"'),
+                    "bore 50 mm")
+    model_rate = hole_filters(rig).rate_hz
+    assert rig.model.plane_wave_limit_hz > 2000.0 and model_rate > 4000
+
+    def tone(rate, f_hz=1917.0, seconds=6.0):
+        t = np.arange(int(seconds * rate)) / rate
+        return 0.05 * np.sin(2 * np.pi * f_hz * t + 0.3) * np.minimum(1.0, t) * np.minimum(1.0, seconds - t)
+
+    y = to_model_rate(tone(4000, 1900.0), 4000, model_rate)
+    ref = tone(model_rate, 1900.0)[:y.size]
+    assert y.size == ref.size
+    assert np.max(np.abs(y - ref)) < 0.05 * 1e-2  # within 1 % of the amplitude, fades included
+    low = signal_report(rig, tone(4000), 4000, flames=False).ceiling_db
+    high = signal_report(rig, tone(48000), 48000, flames=False).ceiling_db
+    assert low == pytest.approx(high, abs=0.1)
