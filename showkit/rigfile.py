@@ -67,6 +67,11 @@ def demo_rig_path() -> Path:
     return Path(str(resources.files("showkit") / "data" / "demo_rig.toml"))
 
 
+#: A calibration read within this of today's gas temperature was read in today's gas, K (the modes
+#: move 3 cents per kelvin: a rig file's "70 F" and a reading written back as "21.11 C" are one gas).
+CALIBRATION_SAME_GAS_K = 0.01
+
+
 @dataclass(frozen=True)
 class Rig:
     """A checked rig in SI units.
@@ -131,7 +136,7 @@ class Rig:
     def calibrated_elsewhere(self) -> bool:
         """Whether today's gas temperature differs from the one the calibration was read at."""
         t = self.calibration_temperature_k
-        return t is not None and t != self.temperature_k
+        return t is not None and abs(t - self.temperature_k) > CALIBRATION_SAME_GAS_K
 
     def describe_drive(self, brief: bool = False) -> str:
         """One line saying which calibration and drive model the levels rest on (``brief``: in a few
@@ -364,7 +369,9 @@ def _build(data: dict, where: str, path: Path | None, check_calibration: bool = 
     at_reading = rig.with_conditions(temperature_k=calibration_temperature_k)
     _drive(drive, where, at_reading.model)
     if check_calibration:
-        check_calibration_point(at_reading, where)
+        check_calibration_point(at_reading, where, in_gas=(
+            f"in the gas of the reading ({calibration_temperature_k - 273.15:.1f} C, drive.reference_temperature)"
+            if rig.calibrated_elsewhere else ""))
     return rig
 
 
@@ -543,13 +550,15 @@ def _ranges(measured: dict, where: str) -> tuple | None:
     return out[0], out[1], out[2], out[3]
 
 
-def check_calibration_point(rig: Rig, where: str) -> None:
-    """Refuse a calibration frequency where the tube's possible losses change the cap pressure."""
+def check_calibration_point(rig: Rig, where: str, in_gas: str = "") -> None:
+    """Refuse a calibration frequency where the tube's possible losses change the cap pressure
+    (``in_gas``: words saying which gas the check was made in, when not the rig's)."""
     check = check_reference(rig.loss_family, rig.drive.reference_frequency_hz)
     if not check.ok:
         fix = (f"calibrate at {check.suggestion_hz:g} Hz instead (showkit measure level picks such a frequency)"
                if check.suggestion_hz else "measure the tube first (showkit measure), then calibrate again")
-        raise RigError(check.message(), _field(where, "drive", "reference_frequency"), fix)
+        raise RigError((f"{in_gas}: " if in_gas else "") + check.message(), _field(where, "drive", "reference_frequency"),
+                       fix)
 
 
 

@@ -128,7 +128,8 @@ def update_rig(path, *, sound_speed_m_s: float | None = None, end_correction: fl
                  "reference": reference})
     path = _writable(path)
     text = read_rig_text(path, RigError, "give the rig file to update with --rig")
-    rig = parse_rig(text, str(path), path)
+    # unchecked calibration: a refused one is what a new reading replaces (the new one was checked)
+    rig = parse_rig(text, str(path), path, check_calibration=False)
     doc = tomlkit.parse(text)
     notes = _write_gas(doc, rig, sound_speed_m_s, prefer_gas)
     _write_holes(doc, rig, end_correction, resistance_pa_s_m3, flow)
@@ -149,6 +150,17 @@ def _write_gas(doc, rig, sound_speed_m_s, prefer_gas: str) -> list:
             gas["air_fraction"] = round(value, 5)
         else:
             gas["temperature"] = f"{value - 273.15:.2f} C"
+            drive = doc.get("drive")
+            if drive is not None and "reference_temperature" in drive and rig.calibrated_elsewhere:
+                # the reading's gas as fitted: the fitted sound speed moved from the file's temperature
+                # to the reading's as the model's mixture moves with it, written as an effective
+                # temperature too
+                target = sound_speed_m_s * rig.calibration_gas.sound_speed_m_s / rig.gas.sound_speed_m_s
+                _, at_reading = gas_for_sound_speed(rig.fuel, rig.air_fraction, rig.calibration_temperature_k,
+                                                    rig.ambient_pa, target, "temperature")
+                drive["reference_temperature"] = f"{at_reading - 273.15:.2f} C"
+            elif drive is not None and "reference_temperature" in drive:
+                drive["reference_temperature"] = gas["temperature"]  # read in the file's gas: still so
         notes.append(key)
     return notes
 

@@ -314,6 +314,16 @@ def test_sweep_bound_holds_for_still_gas_too(temperature):
     assert max(peaks) >= limit * 10 ** (-1.0 / 20)  # and a bound, not a guess far below it
 
 
+def test_a_sweep_starting_above_the_plane_wave_limit_is_refused_in_one_line(tmp_path, capsys):
+    from showkit.cli.main import main
+
+    out = tmp_path / "s.wav"
+    assert main(["measure", "sweep", "--out", str(out), "--start", "1900", "--stop", "4000"]) == 2
+    err = capsys.readouterr().err
+    assert "plane-wave limit" in err and "Traceback" not in err and len(err.strip().splitlines()) == 1
+    assert not out.exists()
+
+
 def test_live_refuses_a_sweep_file_above_its_ceiling(tmp_path, monkeypatch):
     """`measure live` plays any file given as the sweep: one too loud is refused before it plays."""
     import sys
@@ -333,6 +343,12 @@ def test_live_refuses_a_sweep_file_above_its_ceiling(tmp_path, monkeypatch):
     loud = tmp_path / "loud-sweep.wav"
     sf.write(loud, exponential_sweep(SweepSpec(20.0, 2000.0, 3.0, FS, 0.9)), FS, subtype="FLOAT")
     assert main(["measure", "live", "--sweep", str(loud)]) == 2
+    assert played == []
+    # a stereo file: the check would hear the channels' mean, the device each channel
+    stereo = tmp_path / "stereo.wav"
+    left = exponential_sweep(SweepSpec(20.0, 2000.0, 3.0, FS, 0.9))
+    sf.write(stereo, np.stack([left, -left], axis=1), FS, subtype="FLOAT")
+    assert main(["measure", "live", "--sweep", str(stereo)]) == 2
     assert played == []
     # the one `measure sweep` writes passes the check and plays
     ok = tmp_path / "sweep.wav"

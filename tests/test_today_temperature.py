@@ -193,3 +193,53 @@ def test_measure_level_records_the_gas_temperature_of_the_reading(tmp_path, caps
     plain = parse_rig(path.read_text().replace('reference_temperature = "45.00 C"', ""), "plain")
     assert abs(signal_report(plain, x, rate, flames=False).ceiling_db - b) > 0.05
     assert "read in gas" not in plain.describe_drive()
+
+
+def test_a_refused_calibration_can_be_read_again_and_the_fit_keeps_the_readings_gas(tmp_path):
+    """Two paths found by a review: (1) `measure level --update-rig` re-read the old rig file with its
+    calibration check, so a calibration refused there could not be replaced, against what the error
+    advises; (2) `measure analyse --update-rig --gas-as temperature` writes the fitted sound speed as an
+    effective gas temperature, and left `reference_temperature` in the pre-fit gas (the calibration then
+    read through a tube the measurement had just corrected: its point check passed at 0.004 dB where
+    the fitted gas gives 0.164 dB).  The reading's gas keeps the fitted sound speed at its own
+    temperature: c ~ sqrt(T) at a fixed mixture."""
+    from showkit.cli.main import main
+    from showkit.errors import RigError
+    from showkit.physics.modes import find_modes
+    from showkit.rigfile import demo_rig_path
+    from showkit.rigwrite import update_rig
+
+    demo = load_rig()
+    on_mode = find_modes(demo.model)[24].frequency_hz
+    path = tmp_path / "rig.toml"
+    path.write_text(demo_rig_path().read_text().replace('"1439.3 Hz"', f'"{on_mode:.1f} Hz"'))
+    with pytest.raises(RigError, match="reference_frequency"):
+        load_rig(path)
+    assert main(["measure", "level", "--rig", str(path), "--pressure", "0.3 Pa", "--temperature", "20 C",
+                 "--update-rig"]) == 0
+    rig = load_rig(path)  # calibrated again, elsewhere, and accepted
+    assert abs(rig.drive.reference_frequency_hz - on_mode) > 5.0 and not rig.calibrated_elsewhere
+    # the reading's gas follows a fit written as an effective temperature
+    text = path.read_text().replace('reference_temperature = "20.00 C"', 'reference_temperature = "45.00 C"')
+    path.write_text(text)
+    before = load_rig(path)
+    c_fit = 1.01 * before.gas.sound_speed_m_s
+    update_rig(path, sound_speed_m_s=c_fit, prefer_gas="temperature")
+    after = load_rig(path, check_calibration=False)  # the fitted gas may move a mode onto it: then refused
+    assert after.gas.sound_speed_m_s == pytest.approx(c_fit, rel=2e-5)
+    expect = c_fit * before.calibration_gas.sound_speed_m_s / before.gas.sound_speed_m_s
+    assert after.calibration_gas.sound_speed_m_s == pytest.approx(expect, rel=5e-5)
+
+
+def test_a_reading_written_back_in_celsius_is_the_rig_files_gas():
+    """A rig file at "70 F" and a reading written back as "21.11 C" (0.001 K apart) are one gas: the lock
+    hashes stay, and the calibration is not said to be read elsewhere."""
+    from showkit.rigfile import demo_rig_path, parse_rig
+
+    text = demo_rig_path().read_text().replace('temperature = "20 C"', 'temperature = "70 F"')
+    plain = parse_rig(text, "70 F")
+    written = parse_rig(text.replace('reference_pressure = "0.27 Pa"',
+                                     'reference_pressure = "0.27 Pa"\nreference_temperature = "21.11 C"'), "21.11 C")
+    assert written.calibration_temperature_k != plain.temperature_k
+    assert not written.calibrated_elsewhere
+    assert written.calibration_hash() == plain.calibration_hash()

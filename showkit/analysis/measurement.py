@@ -282,6 +282,11 @@ def sweep_bound_db(rig, spec) -> tuple[float, float]:
     from showkit.analysis.drivefit import sweep_amplitude_bound
     from showkit.analysis.sweep import exponential_sweep
 
+    limit_hz = rig.model.plane_wave_limit_hz
+    if spec.f_start_hz >= limit_hz:  # the model knows the tube below that limit only
+        raise MeasureError(f"the sweep starts at {spec.f_start_hz:g} Hz, at or above the tube's plane-wave "
+                           f"limit ({limit_hz:.0f} Hz), where the model says nothing", "--start",
+                           "start the sweep among the tube's modes (e.g. --start 20)")
     amplitude, f_worst = sweep_amplitude_bound(rig.model, rig.drive, rig.static_pa, rig.reserve,
                                                (spec.f_start_hz, spec.f_stop_hz))
     level_db = min(20.0 * np.log10(amplitude), SWEEP_MAX_DBFS)
@@ -298,7 +303,8 @@ def check_sweep(rig, sweep, rate_hz: int, where: str) -> float:
     if headroom < 0:
         raise MeasureError(f"the sweep would take a hole below the safe line (it must come down "
                            f"{-headroom:.1f} dB)", where,
-                           "write it again with `showkit measure sweep`, which keeps its level safe")
+                           "give today's --temperature and --static as the sweep was written for, or write it "
+                           "again with `showkit measure sweep`, which keeps its level safe")
     return headroom
 
 

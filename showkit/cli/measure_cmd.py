@@ -242,6 +242,9 @@ def _run_live(args) -> int:
     if args.save:
         _out_path(args.save, args, "recording")
     sweep, rate = read_whole(args.sweep, "sweep")
+    if sweep.ndim != 1:  # the check and the loudspeaker must hear the same one signal
+        raise MeasureError(f"the sweep has {sweep.shape[1]} channels", args.sweep,
+                           "give the mono sweep `showkit measure sweep` writes")
     # never played above its ceiling in today's tube, whoever made the file
     check_sweep(rig.with_conditions(conditions=conditions_from_args(args, rig.conditions)), sweep, int(rate),
                 args.sweep)
