@@ -434,15 +434,34 @@ def _rig_conditions(gas: dict, safety: dict, where: str) -> Conditions:
                                   "reserve": _field(where, "safety", "reserve")})
 
 
+#: Farthest a calibration reading's gas temperature may lie from the rig file's, K: a calibration
+#: read in another season is plausible, one 40 K away is a sign or unit slip (each kelvin moves
+#: the modes 3 cents and, read in the wrong gas, ceilings by a few hundredths of a dB).
+REFERENCE_TEMPERATURE_SPAN_K = 40.0
+
+
+def check_reading_temperature(reading_k: float, gas_k: float, where: str) -> None:
+    """Refuse a calibration reading's gas temperature farther than
+    :data:`REFERENCE_TEMPERATURE_SPAN_K` from the rig file's gas temperature."""
+    if abs(reading_k - gas_k) > REFERENCE_TEMPERATURE_SPAN_K:
+        raise RigError(f"the calibration reading's gas at {reading_k - 273.15:.1f} C is "
+                       f"{abs(reading_k - gas_k):.0f} K from the rig's gas at {gas_k - 273.15:.1f} C (at most "
+                       f"{REFERENCE_TEMPERATURE_SPAN_K:.0f} K)", where,
+                       "check the sign and the unit; for a tube this far from it, set the rig's gas temperature "
+                       "nearer and calibrate again")
+
+
 def _reference_temperature(drive: dict, conditions: Conditions, where: str) -> float:
     """``drive.reference_temperature``, K: the gas temperature when the calibration reading was
-    taken (written by ``showkit measure level --update-rig``), through the conditions' door;
-    without it, the rig file's gas temperature."""
+    taken (written by ``showkit measure level --update-rig``), through the conditions' door and
+    within :data:`REFERENCE_TEMPERATURE_SPAN_K` of the gas; without it, the rig file's gas temperature."""
     if "reference_temperature" not in drive:
         return conditions.temperature_k
     at = _field(where, "drive", "reference_temperature")
-    return make_conditions(None, drive["reference_temperature"], None, base=conditions,
-                           where={"temperature": at}).temperature_k
+    reading_k = make_conditions(None, drive["reference_temperature"], None, base=conditions,
+                                where={"temperature": at}).temperature_k
+    check_reading_temperature(reading_k, conditions.temperature_k, at)
+    return reading_k
 
 
 def _hole_resistance(holes: dict, where: str) -> float | None:

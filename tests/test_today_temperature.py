@@ -195,7 +195,7 @@ def test_measure_level_records_the_gas_temperature_of_the_reading(tmp_path, caps
     assert "read in gas" not in plain.describe_drive()
 
 
-def test_a_refused_calibration_can_be_read_again_and_the_fit_keeps_the_readings_gas(tmp_path):
+def test_a_refused_calibration_can_be_read_again_and_the_fit_keeps_the_readings_gas(tmp_path, capsys):
     """Two paths found by a review: (1) `measure level --update-rig` re-read the old rig file with its
     calibration check, so a calibration refused there could not be replaced, against what the error
     advises; (2) `measure analyse --update-rig --gas-as temperature` writes the fitted sound speed as an
@@ -215,8 +215,11 @@ def test_a_refused_calibration_can_be_read_again_and_the_fit_keeps_the_readings_
     path.write_text(demo_rig_path().read_text().replace('"1439.3 Hz"', f'"{on_mode:.1f} Hz"'))
     with pytest.raises(RigError, match="reference_frequency"):
         load_rig(path)
-    assert main(["measure", "level", "--rig", str(path), "--pressure", "0.3 Pa", "--temperature", "20 C",
-                 "--update-rig"]) == 0
+    level = ["measure", "level", "--rig", str(path), "--pressure", "0.3 Pa", "--temperature", "20 C", "--update-rig"]
+    assert main(level) == 2  # the reading was of the refused frequency's sine: play the one picked
+    err = capsys.readouterr().err
+    picked = err.split("play the sine at ")[1].split(" Hz")[0]
+    assert main([*level, "--frequency", picked]) == 0
     rig = load_rig(path)  # calibrated again, elsewhere, and accepted
     assert abs(rig.drive.reference_frequency_hz - on_mode) > 5.0 and not rig.calibrated_elsewhere
     # the reading's gas follows a fit written as an effective temperature
@@ -243,3 +246,53 @@ def test_a_reading_written_back_in_celsius_is_the_rig_files_gas():
     assert written.calibration_temperature_k != plain.temperature_k
     assert not written.calibrated_elsewhere
     assert written.calibration_hash() == plain.calibration_hash()
+
+
+def test_a_reading_is_never_written_under_a_frequency_that_was_not_played(tmp_path, capsys):
+    """A fresh user's find: `measure level --pressure P --temperature T --update-rig`, where the rig's
+    calibration frequency is refused in the gas at T, picked another frequency and wrote the reading,
+    taken of the rig's sine, under it.  Now refused in one line, naming the frequency to play; with
+    that frequency given, the reading is written.  And the ceiling's text says which gas it is for and
+    which gas the reading was taken in."""
+    from showkit.cli.main import main
+    from showkit.rigfile import demo_rig_path
+
+    path = tmp_path / "rig.toml"
+    path.write_text(demo_rig_path().read_text())
+    before = path.read_bytes()
+    args = ["measure", "level", "--rig", str(path), "--pressure", "0.5 Pa", "--temperature", "24 C", "--update-rig"]
+    assert main(args) == 2  # the demo rig's 1439.3 Hz is near mode 25 in gas at 24 C
+    err = capsys.readouterr().err
+    assert "--frequency" in err and "Traceback" not in err
+    assert path.read_bytes() == before
+    picked = float(err.split("play the sine at ")[1].split(" Hz")[0])
+    assert main([*args, "--frequency", f"{picked:g}"]) == 0
+    rig = load_rig(path)
+    assert rig.drive.reference_frequency_hz == pytest.approx(picked)
+    assert rig.calibration_temperature_k == pytest.approx(297.15)
+    capsys.readouterr()
+    track = tmp_path / "tone.wav"
+    import soundfile as sf
+
+    t = np.arange(2 * 8000) / 8000
+    sf.write(track, 0.1 * np.sin(2 * np.pi * 300 * t), 8000)
+    assert main(["ceiling", str(track), "--rig", str(path)]) == 0
+    out = capsys.readouterr().out
+    assert "gas at 20.0 C" in out and "read in gas at 24.0 C" in out
+
+
+@pytest.mark.parametrize("value", ['"-30 C"', '"70 C"', "243.15"])
+def test_a_reading_temperature_far_from_the_gas_is_refused(value):
+    """A reading more than 40 K from the rig's gas is a sign or unit slip (a -35-C reading on a 20-C rig
+    raised ceilings 1.1 dB, silently); 35 K is accepted."""
+    from showkit.errors import RigError
+    from showkit.rigfile import demo_rig_path, parse_rig
+
+    text = demo_rig_path().read_text()
+    with pytest.raises(RigError, match="from the rig's gas"):
+        parse_rig(text.replace('reference_pressure = "0.27 Pa"',
+                               f'reference_pressure = "0.27 Pa"\nreference_temperature = {value}'), "far")
+    near = parse_rig(text.replace('reference_pressure = "0.27 Pa"',
+                                  'reference_pressure = "0.27 Pa"\nreference_temperature = "55 C"'), "near",
+                     check_calibration=False)
+    assert near.calibration_temperature_k == pytest.approx(328.15)

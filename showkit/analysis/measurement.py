@@ -302,9 +302,9 @@ def check_sweep(rig, sweep, rate_hz: int, where: str) -> float:
     headroom = signal_headroom_db(rig, sweep, rate_hz)
     if headroom < 0:
         raise MeasureError(f"the sweep would take a hole below the safe line (it must come down "
-                           f"{-headroom:.1f} dB)", where,
-                           "give today's --temperature and --static as the sweep was written for, or write it "
-                           "again with `showkit measure sweep`, which keeps its level safe")
+                           f"{max(-headroom, 0.01):.2f} dB)", where,
+                           "write it again for today's tube with `showkit measure sweep` (give it the same "
+                           "--temperature and --static as here), which keeps its level safe")
     return headroom
 
 

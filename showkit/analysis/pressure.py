@@ -238,7 +238,7 @@ def _report(rig: Rig, filters: HoleFilters, first: PressureFrames, peak: float, 
     return PassageReport(ceiling=result, peak=peak, swing_pa=worst.worst_pa,
                          worst_hole=worst.worst_hole, worst_time_s=start_s + worst.worst_time_s,
                          frames=frames, static_pa=rig.static_pa, reserve=rig.reserve,
-                         start_s=start_s, end_s=end_s, drive_text=filters.drive_text,
+                         start_s=start_s, end_s=end_s, drive_text=rig.describe_drive(),
                          family_text=family_text, set_by=set_by)
 
 

@@ -55,7 +55,8 @@ def run(args) -> int:
           f"{format_time(r.worst_time_s)}: {r.min_pressure_pa:.1f} Pa above ambient "
           f"(safe line {rig.reserve * rig.static_pa:.1f} Pa)")
     print(f"  flame contrast     {100 * r.contrast:.1f} % (median over the passage at the ceiling)")
-    print(f"  static pressure    {rig.static_pa:.2f} Pa, reserve {rig.reserve:g}")
+    print(f"  static pressure    {rig.static_pa:.2f} Pa, reserve {rig.reserve:g}; gas at "
+          f"{rig.temperature_k - 273.15:.1f} C")
     print(f"  rests on           {r.drive_text}")
     if r.family_text:
         print(f"  safe for           {r.family_text}; lowest: {r.set_by}")

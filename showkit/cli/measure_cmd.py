@@ -150,6 +150,11 @@ def _run_sweep(args) -> int:
           f"{rig.static_pa:.2f} Pa above ambient in every tube of the loss family, in time and in steady "
           f"state (most sensitive near {f_worst:.0f} Hz), at {rig.temperature_k - 273.15:.1f} C, "
           f"from {rig.describe_drive()}")
+    limit_hz = rig.model.plane_wave_limit_hz
+    if args.stop > limit_hz:
+        above = 100.0 * np.log(args.stop / limit_hz) / np.log(args.stop / args.start)
+        print(f"note: above {limit_hz:.0f} Hz, the tube's plane-wave limit, the model says nothing; the bound "
+              f"covers the sweep below it (the sweep spends {above:.0f} % of its time above)")
     level_caution()
     return 0
 
@@ -322,6 +327,7 @@ def _run_level(args) -> int:
     from showkit.analysis.measurement import (REFERENCE_RATE_HZ, calibration_values, check_reference_sine,
                                               reference_sine)
     from showkit.conditions import make_calibration
+    from showkit.rigfile import check_reading_temperature, load_rig
 
     if args.update_rig and args.temperature is None:  # before anything is played
         raise InputError("--update-rig needs the gas temperature of the reading", "--temperature",
@@ -329,8 +335,17 @@ def _run_level(args) -> int:
                          "at the calibration frequency moves with it, the loudspeaker's drive does not")
     # the rig's own calibration may be the one being replaced: load it unchecked, check the new frequency;
     # --temperature makes the tube the one the reading is taken in
-    rig = load_rig_from_args(args, check_calibration=False)
+    file_rig = load_rig(getattr(args, "rig", None), check_calibration=False)
+    rig = file_rig.with_conditions(conditions=conditions_from_args(args, file_rig.conditions))
+    check_reading_temperature(rig.temperature_k, file_rig.temperature_k, "--temperature")
     drive = _level_drive(rig, args)
+    if (args.frequency is None and drive.reference_frequency_hz != rig.drive.reference_frequency_hz
+            and not args.play and (args.pressure is not None or args.recording)):
+        # the reading is of a sine played before: at the rig's frequency, not the one just picked
+        raise MeasureError(f"the reading is of the rig's {rig.drive.reference_frequency_hz:g} Hz sine, and the "
+                           "tube's losses move the reading there in this gas", "--frequency",
+                           f"play the sine at {drive.reference_frequency_hz:g} Hz (--out or --play) and read it, "
+                           f"then give --frequency {drive.reference_frequency_hz:g} with the reading")
     level_caution()
     sine = reference_sine(drive.reference_frequency_hz, drive.reference_level_dbfs)
     headroom = None

@@ -3,8 +3,8 @@
 First the pre-show check: today's manometer reading (--static) and gas
 temperature (--temperature) re-derive every ceiling and move the tone cues
 with the modes; the cues that no longer fit are listed and cannot be started.
-Then the show, one key per action.  The keys are the operator's key map of
-:mod:`showkit.show.operator_keys`, the same as in the UI's Run view: Enter or
+Then the show, one key per action.  The keys are the operator's key map, the
+same as in the UI's Run view: Enter or
 space starts the next cue, Esc panics, f fades out, - and + move the fader,
 a re-arms after a panic, d reconnects the device, ? lists them; q quits (press
 twice while a cue plays).  Ctrl+C panics too, and then quits.
