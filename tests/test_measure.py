@@ -302,9 +302,9 @@ def test_sweep_bound_holds_for_still_gas_too(temperature):
     rig = load_rig()
     if temperature:
         rig = rig.with_conditions(conditions=make_conditions(None, temperature, None, base=rig.conditions))
-    spec = SweepSpec(20.0, 2000.0, 10.0, FS, 0.5)
+    spec = SweepSpec(20.0, 2000.0, 5.0, FS, 0.5)
     bound_db, _ = sweep_bound_db(rig, spec)
-    x = exponential_sweep(SweepSpec(20.0, 2000.0, 10.0, FS, 10 ** (bound_db / 20)))
+    x = exponential_sweep(SweepSpec(20.0, 2000.0, 5.0, FS, 10 ** (bound_db / 20)))
     limit = (1 - rig.reserve) * rig.static_pa
     fam = rig.loss_family
     points = dict.fromkeys([LossPoint(0.0, 0.0), fam.best,

@@ -119,7 +119,7 @@ def test_a_file_below_the_models_rate_is_read_up_to_its_nyquist_frequency():
     model_rate = hole_filters(rig).rate_hz
     assert rig.model.plane_wave_limit_hz > 2000.0 and model_rate > 4000
 
-    def tone(rate, f_hz=1917.0, seconds=6.0):
+    def tone(rate, f_hz=1917.0, seconds=3.0):
         t = np.arange(int(seconds * rate)) / rate
         return 0.05 * np.sin(2 * np.pi * f_hz * t + 0.3) * np.minimum(1.0, t) * np.minimum(1.0, seconds - t)
 
