@@ -256,11 +256,17 @@ def check_reference_sine(rig, sine, rate_hz: int, level_dbfs: float, where: str 
     """The sine's headroom below its ceiling, dB; a MeasureError when it would take a hole below the line
     (:func:`signal_headroom_db`)."""
     headroom = signal_headroom_db(rig, sine, rate_hz)
-    if headroom < 0:
-        raise MeasureError(f"the reference sine at {level_dbfs:g} dBFS would take a hole below the safe line "
-                           f"(it must come down {-headroom:.1f} dB)", where,
-                           f"give --level {level_dbfs + headroom - 1:.0f} or lower")
+    _refuse_below_line(headroom, f"the reference sine at {level_dbfs:g} dBFS", where,
+                       f"give --level {level_dbfs + headroom - 1:.0f} or lower")
     return headroom
+
+
+def _refuse_below_line(headroom_db: float, what: str, where: str, fix: str) -> None:
+    """A MeasureError when a measurement signal's headroom is negative (it would take a hole below
+    the safe line), saying how far it must come down."""
+    if headroom_db < 0:
+        raise MeasureError(f"{what} would take a hole below the safe line (it must come down "
+                           f"{max(-headroom_db, 0.01):.2f} dB)", where, fix)
 
 
 #: A sweep is never written louder than this, dBFS (headroom for the converter).
@@ -300,11 +306,9 @@ def check_sweep(rig, sweep, rate_hz: int, where: str) -> float:
     """The headroom of a sweep file about to be played, dB; a MeasureError when it would take a hole
     below the line (:func:`signal_headroom_db`)."""
     headroom = signal_headroom_db(rig, sweep, rate_hz)
-    if headroom < 0:
-        raise MeasureError(f"the sweep would take a hole below the safe line (it must come down "
-                           f"{max(-headroom, 0.01):.2f} dB)", where,
-                           "write it again for today's tube with `showkit measure sweep` (give it the same "
-                           "--temperature and --static as here), which keeps its level safe")
+    _refuse_below_line(headroom, "the sweep", where,
+                       "write it again for today's tube with `showkit measure sweep` (give it the same "
+                       "--temperature and --static as here), which keeps its level safe")
     return headroom
 
 

@@ -132,8 +132,9 @@ def _run_sweep(args) -> int:
 
     rig = load_rig_from_args(args)
     _out_path(args.out, args, "sweep")  # before any work: not a folder, not the rig
-    check_spec(SweepSpec(args.start, args.stop, args.length, args.rate, 0.5))
-    bound_db, f_worst = sweep_bound_db(rig, SweepSpec(args.start, args.stop, args.length, args.rate, 0.5))
+    asked = SweepSpec(args.start, args.stop, args.length, args.rate, 0.5)  # the level comes from the bound
+    check_spec(asked)
+    bound_db, f_worst = sweep_bound_db(rig, asked)
     level_db = bound_db - 6.0 if args.level is None else args.level
     if not np.isfinite(level_db):
         raise MeasureError(f"{level_db:g} dBFS is not a level", "--level",
@@ -239,9 +240,8 @@ def _run_analyse(args) -> int:
 def _run_live(args) -> int:
     from showkit.analysis.audio import read_whole
     from showkit.analysis.measurement import check_sweep
-    from showkit.safesave import write_audio
-
     from showkit.rigfile import load_rig
+    from showkit.safesave import write_audio
 
     rig = load_rig(getattr(args, "rig", None))  # the fit compares with the rig file's tube, as `analyse` does
     if args.save:
