@@ -434,8 +434,9 @@ def _rig_conditions(gas: dict, safety: dict, where: str) -> Conditions:
                                   "reserve": _field(where, "safety", "reserve")})
 
 
-#: Farthest a calibration reading's gas temperature may lie from the rig file's, K: a calibration
-#: read in another season is plausible, one over 40 K away is a sign or unit slip (each kelvin
+#: Farthest a calibration reading's gas temperature may lie from the rig file's, K (this project's
+#: choice, no source): a calibration read in another season is plausible, one over 40 K away is
+#: more likely a sign or unit slip (each kelvin
 #: moves the modes 3 cents and, read in the wrong gas, ceilings by about 0.015 dB on the demo rig).
 REFERENCE_TEMPERATURE_SPAN_K = 40.0
 
