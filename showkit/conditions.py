@@ -198,7 +198,8 @@ def temperature_reading(value, where: str = "gas temperature") -> float:
     except InputError as exc:
         if "absolute zero" not in exc.what:
             raise
-        temperature_k = -math.inf
+        raise InputError(f"gas temperature {value!r} is at or below absolute zero, outside -40 to 100 C", where,
+                         exc.fix) from None
     return check_temperature_k(temperature_k, where)
 
 

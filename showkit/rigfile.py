@@ -575,7 +575,7 @@ def check_calibration_point(rig: Rig, where: str, in_gas: str = "") -> None:
     (``in_gas``: words saying which gas the check was made in, when not the rig's)."""
     check = check_reference(rig.loss_family, rig.drive.reference_frequency_hz)
     if not check.ok:
-        fix = (f"calibrate at {check.suggestion_hz:g} Hz instead (showkit measure level picks such a frequency)"
+        fix = (f"calibrate at {check.suggestion_hz:g} Hz instead (showkit measure level picks it)"
                if check.suggestion_hz else "measure the tube first (showkit measure), then calibrate again")
         raise RigError((f"{in_gas}: " if in_gas else "") + check.message(), _field(where, "drive", "reference_frequency"),
                        fix)

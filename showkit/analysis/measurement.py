@@ -16,7 +16,7 @@ from showkit.analysis.tubefit import fit_tube, variant
 from showkit.conditions import check_reference_frequency
 from showkit.errors import MeasureError
 from showkit.physics.biasflow import jet_velocity_m_s
-from showkit.physics.family import check_reference, suggest_reference
+from showkit.physics.family import check_reference
 
 
 def analyse_recording(rig, recording, rec_rate, sweep, sweep_rate, where="recording", progress=None,
@@ -185,7 +185,8 @@ def reference_frequency(rig, asked_hz: float | None, where: str = "--frequency")
 
     ``asked_hz`` is taken if the tube's losses cannot move the cap reading there (else a
     one-line refusal naming a frequency that will do); without it, the rig's own if
-    accepted, else the one :func:`showkit.physics.family.suggest_reference` picks.
+    accepted, else the one :func:`showkit.physics.family.suggest_reference` picks near it (the one
+    the rig file's refusal names).
 
     Parameters
     ----------
@@ -207,9 +208,10 @@ def reference_frequency(rig, asked_hz: float | None, where: str = "--frequency")
             raise MeasureError(check.message(), where, fix)
         return float(asked_hz), None
     own = rig.drive.reference_frequency_hz
-    if check_reference(family, own).ok:
+    own_check = check_reference(family, own)
+    if own_check.ok:
         return own, None
-    picked = suggest_reference(family)
+    picked = own_check.suggestion_hz  # the one the rig file's refusal names
     if picked is None:
         raise MeasureError("no frequency below the plane-wave limit gives a cap reading the tube's losses "
                            "cannot move", "measure level", "measure the tube first (showkit measure analyse)")

@@ -33,6 +33,7 @@ from typing import Callable
 import numpy as np
 
 from showkit.analysis.audio import first_channel
+from showkit.conditions import REFERENCE_LEVEL_MIN_DBFS
 from showkit.errors import MeasureError
 from showkit.limits import MAX_CUE_SAMPLES, MAX_RATE_HZ, MIN_RATE_HZ
 
@@ -91,6 +92,10 @@ class SweepSpec:
     def rate_l_s(self) -> float:
         """Farina's ``L = T / ln(f2 / f1)``, s."""
         return self.n_samples / self.sample_rate_hz / np.log(self.f_stop_hz / self.f_start_hz)
+
+#: The quietest sweep showkit writes, dBFS peak: the calibration sine's floor (below it a recording
+#: holds little but noise).
+SWEEP_LEVEL_MIN_DBFS = REFERENCE_LEVEL_MIN_DBFS
 
 
 def check_spec(spec: SweepSpec) -> None:

@@ -71,6 +71,13 @@ def sheet_rig_today(sheet, args):
     return rig.with_conditions(conditions=conditions_from_args(args, rig.conditions))
 
 
+def frequency_option(text, where: str):
+    """A frequency option (``120``, ``"120 Hz"``, ``"1.2 kHz"``) in Hz, or None when not given."""
+    if text is None:
+        return None
+    return units.frequency_hz(units.number_or_text(text), where)
+
+
 def time_option(text, where: str):
     """A time option (``42``, ``"42.5 s"``, ``"0:42"``) in seconds, or None when not given."""
     if text is None:

@@ -20,7 +20,7 @@ from pathlib import Path
 # the work itself lives in the analysis and show layers (imported where used: they bring numpy,
 # and every command module is imported for `showkit --help`); this module parses, plays and prints
 from showkit.cli.common import (add_conditions_options, add_json_option, add_rig_option, add_temperature_option,
-                                conditions_from_args, level_caution,
+                                conditions_from_args, frequency_option, level_caution,
                                 load_rig_from_args, print_json, table)
 from showkit.errors import InputError, MeasureError, RigError
 from showkit.printable import printable
@@ -54,7 +54,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     add_temperature_option(p)
     p = sub.add_parser("level", help="the absolute calibration point ([drive] reference_*)")
     add_rig_option(p)
-    p.add_argument("--frequency", type=float, metavar="HZ",
+    p.add_argument("--frequency", metavar="FREQ",
                    help="reference sine frequency (default: the rig's if the tube's losses cannot move the "
                         "reading there, else one showkit picks between modes); a frequency where they can is refused")
     p.add_argument("--level", type=float, metavar="DBFS", help="reference sine peak level (default: the rig's)")
@@ -77,8 +77,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def _sweep_options(p) -> None:
-    p.add_argument("--start", type=float, default=20.0, metavar="HZ", help="start frequency (default 20 Hz)")
-    p.add_argument("--stop", type=float, default=2000.0, metavar="HZ", help="stop frequency (default 2000 Hz)")
+    p.add_argument("--start", default=20.0, metavar="FREQ", help='start frequency, e.g. 20 or "20 Hz" (default 20 Hz)')
+    p.add_argument("--stop", default=2000.0, metavar="FREQ", help='stop frequency, e.g. 2000 or "2 kHz" (default 2000 Hz)')
     p.add_argument("--length", type=float, default=10.0, metavar="S", help="sweep length (default 10 s)")
     p.add_argument("--rate", type=int, default=48000, metavar="HZ", help="sample rate (default 48000)")
 
@@ -127,12 +127,13 @@ def _run_sweep(args) -> int:
     import numpy as np
 
     from showkit.analysis.measurement import sweep_bound_db
-    from showkit.analysis.sweep import SweepSpec, check_spec, exponential_sweep
+    from showkit.analysis.sweep import SWEEP_LEVEL_MIN_DBFS, SweepSpec, check_spec, exponential_sweep
     from showkit.safesave import write_audio
 
+    start_hz, stop_hz = frequency_option(args.start, "--start"), frequency_option(args.stop, "--stop")
     rig = load_rig_from_args(args)
     _out_path(args.out, args, "sweep")  # before any work: not a folder, not the rig
-    asked = SweepSpec(args.start, args.stop, args.length, args.rate, 0.5)  # the level comes from the bound
+    asked = SweepSpec(start_hz, stop_hz, args.length, args.rate, 0.5)  # the level comes from the bound
     check_spec(asked)
     bound_db, f_worst = sweep_bound_db(rig, asked)
     level_db = bound_db - 6.0 if args.level is None else args.level
@@ -142,18 +143,22 @@ def _run_sweep(args) -> int:
     if level_db > bound_db + 1e-9:
         raise MeasureError(f"--level {level_db:g} dBFS is above the safe sweep bound {bound_db:.1f} dBFS",
                            "--level", f"use {bound_db:.1f} dBFS or lower (the tube peaks near {f_worst:.0f} Hz)")
-    spec = SweepSpec(args.start, args.stop, args.length, args.rate, 10 ** (level_db / 20))
+    if level_db < SWEEP_LEVEL_MIN_DBFS:
+        raise MeasureError(f"--level {level_db:g} dBFS is below {SWEEP_LEVEL_MIN_DBFS:g} dBFS: the recording of a "
+                           "sweep that quiet would hold only noise", "--level",
+                           f"use {bound_db - 6.0:.1f} dBFS (6 dB under the safe bound), or leave --level out")
+    spec = SweepSpec(start_hz, stop_hz, args.length, args.rate, 10 ** (level_db / 20))
     x = exponential_sweep(spec)
     write_audio(args.out, x.astype(np.float32), args.rate, "FLOAT", protect=_protect(args), what="sweep")
-    print(f"wrote {printable(args.out)}: {args.start:g}-{args.stop:g} Hz, {args.length:g} s at {args.rate} Hz, "
+    print(f"wrote {printable(args.out)}: {start_hz:g}-{stop_hz:g} Hz, {args.length:g} s at {args.rate} Hz, "
           f"peak {level_db:.1f} dBFS")
     print(f"safe bound {bound_db:.1f} dBFS: keeps every hole at least {rig.reserve:.0%} of "
           f"{rig.static_pa:.2f} Pa above ambient in every tube of the loss family, in time and in steady "
           f"state (most sensitive near {f_worst:.0f} Hz), at {rig.temperature_k - 273.15:.1f} C, "
           f"from {rig.describe_drive()}")
     limit_hz = rig.model.plane_wave_limit_hz
-    if args.stop > limit_hz:
-        above = 100.0 * np.log(args.stop / limit_hz) / np.log(args.stop / args.start)
+    if stop_hz > limit_hz:
+        above = 100.0 * np.log(stop_hz / limit_hz) / np.log(stop_hz / start_hz)
         print(f"note: above {limit_hz:.0f} Hz, the tube's plane-wave limit, the model says nothing; the bound "
               f"covers the sweep below it (the sweep spends {above:.0f} % of its time above)")
     level_caution()
@@ -268,7 +273,7 @@ def _level_drive(rig, args):
     from showkit.analysis.measurement import reference_frequency
     from showkit.conditions import make_calibration
 
-    freq, note = reference_frequency(rig, args.frequency)
+    freq, note = reference_frequency(rig, frequency_option(args.frequency, "--frequency"))
     if note:
         print(note, file=sys.stderr)
     # the sine's frequency and level are checked before it is made (the sine's own ceiling rests

@@ -13,15 +13,16 @@ import argparse
 import math
 import sys
 
-from showkit.cli.common import add_json_option, add_rig_option, load_rig_from_args, print_json, table
+from showkit.cli.common import (add_json_option, add_rig_option, frequency_option, load_rig_from_args, print_json,
+                                 table)
 from showkit.errors import InputError
 from showkit.printable import printable
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     add_rig_option(parser)
-    parser.add_argument("--max-frequency", metavar="HZ", type=float,
-                        help="list modes up to this frequency, Hz (default: the plane-wave limit)")
+    parser.add_argument("--max-frequency", metavar="FREQ",
+                        help='list modes up to this frequency, e.g. 800 or "1.2 kHz" (default: the plane-wave limit)')
     add_json_option(parser)
     parser.add_argument("--plot", metavar="FILE.png",
                         help="also draw the mode frequencies, Q and shapes into a picture (1000x600 px PNG)")
@@ -50,7 +51,7 @@ def modes_report(rig, f_max_hz=None) -> dict:
 
 
 def run(args) -> int:
-    f_max = args.max_frequency
+    f_max = frequency_option(args.max_frequency, "--max-frequency")
     if f_max is not None and not (math.isfinite(f_max) and f_max > 0):
         raise InputError(f"--max-frequency must be a frequency above 0 Hz (got {f_max})", "--max-frequency",
                          "give e.g. --max-frequency 800, or leave it out for the plane-wave limit")

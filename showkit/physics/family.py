@@ -253,7 +253,7 @@ class ReferenceCheck:
         near = (f"near mode {self.mode_n} ({self.mode_hz:.1f} Hz)" if self.mode_n is not None
                 else "near a resonance")
         return (f"the calibration frequency {self.reference_hz:g} Hz lies {near}: the cap pressure there "
-                f"changes by {self.spread_db:.1f} dB with the tube's losses (limit {REFERENCE_LIMIT_DB:g} dB), "
+                f"changes by {self.spread_db:.3g} dB with the tube's losses (limit {REFERENCE_LIMIT_DB:g} dB), "
                 "so a reading there could set every ceiling too high")
 
 
@@ -284,8 +284,12 @@ def suggest_reference(family: LossFamily, near_hz: float | None = None) -> float
     return None
 
 
+@lru_cache(maxsize=64)
 def check_reference(family: LossFamily, reference_hz: float) -> ReferenceCheck:
-    """Accept or refuse a calibration frequency for this family (see the module notes)."""
+    """Accept or refuse a calibration frequency for this family (see the module notes).
+
+    Kept per family and frequency: every rig load checks its calibration point.
+    """
     spread = reference_spread_db(family, reference_hz)
     if spread <= REFERENCE_LIMIT_DB:
         return ReferenceCheck(float(reference_hz), spread, True)

@@ -15,6 +15,7 @@ practice, no source).
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import lru_cache
 
 import numpy as np
 
@@ -154,8 +155,17 @@ def find_modes(model: TubeModel, f_max_hz: float | None = None) -> list[Mode]:
     model : TubeModel
     f_max_hz : float, optional
         Upper end of the search, Hz; never above the plane-wave limit.
+
+    The search is kept per geometry, gas and ``f_max_hz`` (the views, the checks and the
+    scan ask for the same tube's modes many times); the modes' arrays are read-only.
     """
-    g = model.geometry
+    return list(_modes(model.geometry, model.gas, None if f_max_hz is None else float(f_max_hz)))
+
+
+@lru_cache(maxsize=32)
+def _modes(geometry, gas, f_max_hz: float | None) -> tuple[Mode, ...]:
+    model = TubeModel(geometry, gas)
+    g = geometry
     f_hi = model.plane_wave_limit_hz if f_max_hz is None else min(f_max_hz, model.plane_wave_limit_hz)
     peaks = _peaks(model, SEARCH_FLOOR_HZ, f_hi)
     edges = np.concatenate([[SEARCH_FLOOR_HZ], peaks, [f_hi]])
@@ -195,7 +205,9 @@ def find_modes(model: TubeModel, f_max_hz: float | None = None) -> list[Mode]:
             pattern = "readable"
         q = qs[k]
         note, off = nearest_note(f0)
+        shape.flags.writeable = False
+        nodes.flags.writeable = False
         modes.append(Mode(n=n, frequency_hz=f0, q=q, note=note, cents=off, shape=shape,
                           nodes_m=nodes, flame_peaks=in_row, peak_spacing_m=spacing,
                           pattern=pattern))
-    return modes
+    return tuple(modes)
