@@ -244,7 +244,7 @@ async def test_notifications_leave_the_level_caution_in_sight(ui_short_show):
         rack = app.screen.query_one(ToastRack)
         assert len(app._notifications) == 8
         assert len(rack.query("Toast")) >= 1
-        # the rack's own margin keeps the key line, the status line and the CAUTION line (two rows at
+        # the rack's own margin keeps the two key lines, the status line and the CAUTION line (two rows at
         # this width) free; the stack scrolls within a third of the screen
         assert APP_SIZE[1] - rack.styles.margin.bottom <= caution.region.y
         assert rack.styles.max_height is not None and rack.styles.max_height.value <= 34
@@ -266,3 +266,36 @@ async def test_the_top_line_is_laid_out_again_after_a_resize(ui_short_show):
             await pilot.pause()
         after = str(bar.render())
         assert after == before and "PANIC" in after and "Pa" in after
+
+
+@sync
+async def test_at_120_columns_every_views_keys_panic_and_quit_are_on_screen(ui_short_show):
+    """The view's own keys, the panic key and quit fit the key line at 120 columns in every view;
+    the keys that work everywhere have a line of their own, without a key the view takes."""
+    from textual.widgets import Footer
+    from textual.widgets._footer import FooterKey
+
+    from showkit.ui.app import GLOBAL_KEYS, VIEWS
+
+    width = 120
+    app = make_app(ui_short_show)
+    async with app.run_test(size=(width, 36)) as pilot:
+        await settle(pilot)
+        for k, name in enumerate(VIEWS):
+            await pilot.press(str(k + 1))
+            await pilot.pause()
+            await pilot.pause()
+            keys = list(app.query_one(Footer).query(FooterKey))
+            shown = {key.description for key in keys}
+            assert {"PANIC", "quit"} <= shown, (name, shown)
+            for key in keys:
+                assert 0 < key.region.width and key.region.right <= width, (name, key.description, key.region)
+            line = str(app.query_one("#keyline").render())
+            assert len(line) <= 80 - 2, line  # fits an 80-column terminal too
+            own = set(app.view(name)._bindings.key_to_bindings)
+            for b in GLOBAL_KEYS:
+                assert (b.description in line) == (b.key not in own), (name, b.description, line)
+            if name == "run":  # the Run view takes "a" for re-arm: audition is not offered there
+                assert "audition" not in line and "re-arm" in shown
+            else:
+                assert "audition" in line

@@ -45,6 +45,14 @@ from showkit.ui.jobs import JobRunner
 from showkit.ui.session import Session
 
 VIEWS = ("show", "tube", "track", "run", "measure")
+#: The keys that work in every view, on a line of their own under the view's keys (the
+#: footer): one line could not hold both at 120 columns, and the view's own keys, the panic
+#: key and quit come first.
+GLOBAL_KEYS = [*(Binding(str(k + 1), f"view('{name}')", name, show=False) for k, name in enumerate(VIEWS)),
+               Binding("m", "manometer", "manometer", show=False),
+               Binding("a", "audition", "audition", show=False),
+               Binding("ctrl+z", "undo", "undo", show=False),
+               Binding("question_mark", "help", "keys", key_display="?", show=False)]
 
 #: Each view's module and class: imported and built when the view is first shown.
 VIEW_CLASSES = {"show": ("showkit.ui.show", "ShowView"), "tube": ("showkit.ui.tube", "TubeView"),
@@ -87,17 +95,9 @@ class ShowkitApp(JobRunner, App):
         Binding("ctrl+c", "panic", "PANIC", priority=True, show=False),  # always in the top bar
         Binding("escape", "panic", "PANIC", key_display="esc"),
         Binding("ctrl+q", "quit_safely", "quit", priority=True),
-        Binding("1", "view('show')", "show"),
-        Binding("2", "view('tube')", "tube"),
-        Binding("3", "view('track')", "track"),
-        Binding("4", "view('run')", "run"),
-        Binding("5", "view('measure')", "measure"),
-        Binding("m", "manometer", "manometer"),
-        Binding("a", "audition", "audition"),
+        *GLOBAL_KEYS,
         Binding("D", "device", "audio device", show=False),
-        Binding("ctrl+z", "undo", "undo"),
         Binding("ctrl+s", "save", "save", show=False),
-        Binding("question_mark", "help", "keys"),
         Binding("exclamation_mark", "cautions", "cautions", show=False),
     ]
 
@@ -131,6 +131,7 @@ class ShowkitApp(JobRunner, App):
             yield Static("", id="status")
             yield ProgressBar(id="progress", show_eta=False, show_percentage=False)
         yield Footer()
+        yield Static("", id="keyline")
 
     def on_mount(self) -> None:
         self.query_one("#progress", ProgressBar).display = False
@@ -423,10 +424,25 @@ class ShowkitApp(JobRunner, App):
 
     def _show_view(self, name: str) -> None:
         self.query_one(ContentSwitcher).current = name
+        self.query_one("#keyline", Static).update(self._keyline_text(name))
         # focus at once (not on the next idle), so that a key typed right after the
         # view key already goes to the new view
         self.screen.set_focus(self.view(name).query_one(VIEW_FOCUS[name]))
         self.refresh_bindings()
+
+    def _keyline_text(self, current: str) -> Text:
+        """:data:`GLOBAL_KEYS` as one line, the view shown marked; a key the view takes for
+        itself (the Run view's ``a``) is left out."""
+        own = set(self.view(current)._bindings.key_to_bindings)
+        line = Text()
+        for b in GLOBAL_KEYS:
+            if b.key in own:
+                continue
+            if line:
+                line.append(" ")  # one space: the whole line fits 80 columns; the keys stand out in colour
+            line.append(b.key_display or self.get_key_display(b), style="bold #ffb74d")
+            line.append(" " + b.description, style="reverse" if b.action == f"view('{current}')" else "")
+        return line
 
     def action_manometer(self) -> None:
         from showkit.safety import LEVEL_CAUTION

@@ -175,7 +175,7 @@ class TrackView(SessionView):
     """Track analysis: map, passages, cursor flames; add passages to the show."""
 
     BINDINGS = [
-        Binding("o", "open", "open track"),
+        Binding("o", "open", "open"),
         Binding("left", "step(-1)", "◀", show=False),
         Binding("right", "step(1)", "▶", show=False),
         Binding("shift+left", "step(-10)", "◀◀", show=False),
@@ -186,10 +186,10 @@ class TrackView(SessionView):
         Binding("f", "passage(1)", "next passage"),
         Binding("left_parenthesis", "mark('in')", "in here", show=False),
         Binding("right_parenthesis", "mark('out')", "out here", show=False),
-        Binding("c", "add_cue", "add to show"),
+        Binding("c", "add_cue", "add cue"),
         Binding("s", "suggested", "scan's shift"),
-        Binding("plus,equals_sign", f"transpose({SEMITONE_CENTS})", "transpose +1 st"),
-        Binding("minus", f"transpose({-SEMITONE_CENTS})", "transpose -1 st"),
+        Binding("plus,equals_sign", f"transpose({SEMITONE_CENTS})", "shift +1 st"),
+        Binding("minus", f"transpose({-SEMITONE_CENTS})", "shift -1 st"),
         Binding("greater_than_sign", f"transpose({FINE_STEP_CENTS})", f"transpose +{FINE_STEP_CENTS} c", show=False),
         Binding("less_than_sign", f"transpose({-FINE_STEP_CENTS})", f"transpose -{FINE_STEP_CENTS} c", show=False),
         Binding("0", "as_recorded", "as recorded", show=False),
