@@ -720,7 +720,7 @@ def test_one_cue_is_singular_and_a_reading_has_two_decimals(env, capsys):
     assert run_cli(["lock", path], capsys)[0] == 0
     status, out, err = run_cli(["check", path, "--static", "0.08 inH2O"], capsys)
     assert status == 0, err
-    assert out.splitlines()[0] == "x: 1 cue on Bench tube, static 19.93 Pa, reserve 0.25"
+    assert out.splitlines()[0] == "x: 1 cue on Bench tube, static 19.93 Pa, gas 20.0 C, reserve 0.25"
     _, problems = render.render_for_playback(path, static_pa=0.08 * 249.08891)
     assert problems[0].startswith("pre-show check: static 19.93 Pa, ")
 

@@ -436,3 +436,24 @@ def test_reference_sine_is_a_cue_tone_with_cue_fades():
     tail = amp * np.sin(2 * np.pi * f * kt / rate)
     ok = np.abs(tail) > 0.5 * amp
     np.testing.assert_allclose(x[-a:][ok] / tail[ok], (0.5 * (1 + np.cos(np.pi * (k + 0.5) / a)))[ok], atol=1e-9)
+
+
+def test_measure_level_checks_its_sine_for_todays_manometer_reading(tmp_path, monkeypatch, capsys):
+    """`measure level --play` checked its sine against the rig file's static pressure only, and
+    took no --static (a fresh user's trial): on a low-pressure day it played above the line."""
+    import showkit.cli.measure_cmd as measure_cmd
+    from showkit.cli.main import main
+
+    played = []
+    monkeypatch.setattr(measure_cmd, "play_record", lambda *a, **k: played.append(a) or np.zeros(10))
+    # -5 dBFS on the demo rig: inside the line at the file's 20 Pa, below it at 2 Pa
+    assert main(["measure", "level", "--out", str(tmp_path / "a.wav"), "--level=-5", "--static", "20 Pa"]) == 0
+    capsys.readouterr()
+    status = main(["measure", "level", "--play", "--level=-5", "--static", "2 Pa"])
+    err = capsys.readouterr().err
+    assert status == 2 and "must come down" in err, err
+    assert played == []
+    # played at a level that fits today's reading, the line says which reading it was checked for
+    main(["measure", "level", "--play", "--level=-10", "--static", "2 Pa"])
+    err = capsys.readouterr().err
+    assert len(played) == 1 and "static 2.00 Pa" in err, err

@@ -296,3 +296,35 @@ def test_a_reading_temperature_far_from_the_gas_is_refused(value):
                                   'reference_pressure = "0.27 Pa"\nreference_temperature = "55 C"'), "near",
                      check_calibration=False)
     assert near.calibration_temperature_k == pytest.approx(328.15)
+
+
+def test_check_takes_todays_gas_and_agrees_with_the_pre_show_check(tmp_path, capsys):
+    """`showkit check` had no --temperature: on a cold day it said "ok" where `run --temperature`
+    found cues over (a fresh user's trial).  Its ceilings for today's gas are the pre-show check's."""
+    import json
+    from pathlib import Path
+
+    from showkit.cli.main import main
+    from showkit.conditions import temperature_reading
+    from showkit.show.preshow import pre_show_check
+    from showkit.show.showlog import ShowLog
+
+    sheet = Path(__file__).resolve().parent.parent / "cues" / "first-look.toml"
+    ceilings = {}
+    for label, extra in (("file", []), ("cold", ["--temperature", "41 F"])):
+        status = main(["check", str(sheet), "--json", *extra])
+        data = json.loads(capsys.readouterr().out)
+        assert status in (0, 2)
+        ceilings[label] = {c["id"]: c["ceiling_db"] for c in data["cues"] if c["status"] == "ok"}
+    assert data["gas_temperature_c"] == pytest.approx(5.0)
+    log = ShowLog(tmp_path / "show.jsonl")
+    try:
+        cues, _ = pre_show_check(sheet, log, None, temperature_reading("41 F"))
+    finally:
+        log.close()
+    played = {c.id: c.ceiling_db for c in cues if c.playable and c.ceiling_db is not None}
+    assert played and set(played) <= set(ceilings["cold"])
+    for cue_id, ceiling in played.items():
+        assert ceilings["cold"][cue_id] == pytest.approx(ceiling, abs=0.01), cue_id
+    # the cold gas moves the music passage's ceiling by several dB: the option is not ignored
+    assert max(abs(ceilings["cold"][k] - ceilings["file"][k]) for k in played) > 1.0

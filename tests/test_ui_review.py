@@ -268,13 +268,37 @@ async def test_the_top_line_is_laid_out_again_after_a_resize(ui_short_show):
         assert after == before and "PANIC" in after and "Pa" in after
 
 
+def _footer_keys(app):
+    from textual.widgets import Footer
+    from textual.widgets._footer import FooterKey
+
+    return list(app.query_one(Footer).query(FooterKey))
+
+
+@sync
+async def test_at_80_columns_the_panic_key_leads_every_views_key_line(ui_short_show):
+    """At 80 columns the Show and Track views' own keys pushed esc PANIC and ^q quit off the
+    key line (a fresh user's trial): they now come first (the Run view's operator keys put
+    PANIC third)."""
+    from showkit.ui.app import VIEWS
+
+    app = make_app(ui_short_show)
+    async with app.run_test(size=SMALL) as pilot:
+        await settle(pilot)
+        for k, name in enumerate(VIEWS):
+            await pilot.press(str(k + 1))
+            await pilot.pause()
+            await pilot.pause()
+            on_screen = [key.description for key in _footer_keys(app) if key.region.right <= SMALL[0]]
+            assert "PANIC" in on_screen[:3], (name, on_screen)
+            if name != "run":
+                assert on_screen[:2] == ["PANIC", "quit"], (name, on_screen)
+
+
 @sync
 async def test_at_120_columns_every_views_keys_panic_and_quit_are_on_screen(ui_short_show):
     """The view's own keys, the panic key and quit fit the key line at 120 columns in every view;
     the keys that work everywhere have a line of their own, without a key the view takes."""
-    from textual.widgets import Footer
-    from textual.widgets._footer import FooterKey
-
     from showkit.ui.app import GLOBAL_KEYS, VIEWS
 
     width = 120
@@ -285,7 +309,7 @@ async def test_at_120_columns_every_views_keys_panic_and_quit_are_on_screen(ui_s
             await pilot.press(str(k + 1))
             await pilot.pause()
             await pilot.pause()
-            keys = list(app.query_one(Footer).query(FooterKey))
+            keys = _footer_keys(app)
             shown = {key.description for key in keys}
             assert {"PANIC", "quit"} <= shown, (name, shown)
             for key in keys:

@@ -68,6 +68,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                    help="play the reference sine (10 s) through the audio device; with --calibrator, "
                         "record the cap microphone at the same time and take the pressure from it")
     p.add_argument("--device", help="audio device for --play (number or name; see showkit devices)")
+    add_conditions_options(p)  # the sine's own check is made for today's manometer reading
     p.add_argument("--temperature", metavar="TEMP",
                    help='the gas temperature in the tube as the pressure is read, e.g. "21 C" (needed with '
                         "--update-rig: it is written with the reading; default otherwise: the rig file's)")
@@ -296,14 +297,15 @@ def _write_sine(sine, drive, args) -> None:
           "dBFS peak, 10 s; play it and read the cap pressure")
 
 
-def _play_sine(sine, drive, headroom, args):
-    """``--play``: the sine (already checked below its ceiling: ``headroom`` dB) played while the
-    cap microphone records."""
+def _play_sine(sine, drive, headroom, rig, args):
+    """``--play``: the sine (already checked below its ceiling on ``rig``: ``headroom`` dB) played
+    while the cap microphone records."""
     from showkit.analysis.measurement import REFERENCE_RATE_HZ
 
     freq, level = drive.reference_frequency_hz, drive.reference_level_dbfs
-    print(f"playing {freq:g} Hz at {level:g} dBFS for 10 s ({headroom:.1f} dB below its ceiling)...",
-          file=sys.stderr)
+    print(f"playing {freq:g} Hz at {level:g} dBFS for 10 s ({headroom:.1f} dB below its ceiling for static "
+          f"{rig.static_pa:.2f} Pa, reserve {rig.reserve:g}, gas {rig.temperature_k - 273.15:.1f} C; give "
+          "--static and --temperature for today's readings)...", file=sys.stderr)
     return play_record(sine, REFERENCE_RATE_HZ, tail_s=0.5, device=args.device)
 
 
@@ -358,7 +360,7 @@ def _run_level(args) -> int:
         headroom = check_reference_sine(rig, sine, REFERENCE_RATE_HZ, drive.reference_level_dbfs)
     if args.out:
         _write_sine(sine, drive, args)
-    played = _play_sine(sine, drive, headroom, args) if args.play else None
+    played = _play_sine(sine, drive, headroom, rig, args) if args.play else None
     reading = _reading(args, played, drive.reference_frequency_hz)
     if reading is None:
         return 0

@@ -36,7 +36,7 @@ _STATUS_FIX = {
     CueStatus.STALE: "its lock no longer matches its audio, rig or calibration: re-lock the sheet "
              "with `showkit lock SHEET`",
     CueStatus.OVER: "its gain is above today's ceiling: lower the cue's gain (see `showkit check SHEET "
-            "--static ...`)",
+            "--static ... --temperature ...`)",
     CueStatus.ERROR: "it could not be rendered: see `showkit check SHEET` for the reason",
 }
 

@@ -29,7 +29,7 @@ from showkit.safety import LEVEL_CAUTION
 from showkit.ui.drawing import BLOCKS
 from showkit.ui.measuring import Measurement, calibration_refused, is_demo_rig, write_fit
 from showkit.ui.messages import RigWritten
-from showkit.ui.viewbase import SessionView
+from showkit.ui.viewbase import SAFETY_KEYS, SessionView
 from showkit.units import format_count
 
 #: Levels more than this far below the response's peak are drawn empty, dB.
@@ -159,6 +159,7 @@ class MeasureView(SessionView):
     """Open a recording and its sweep, see the response and the fit, write it to the rig."""
 
     BINDINGS = [
+        *SAFETY_KEYS,
         Binding("o", "open", "open recording"),
         Binding("W", "write", "write fit to rig"),
         Binding("P", "export('response_plot')", "response PNG", show=False),

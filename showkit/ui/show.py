@@ -17,7 +17,7 @@ from showkit.show.sheet import describe_source
 from showkit.show.status import SILENCE, CueStatus, ceiling_text
 from showkit.ui.drawing import headroom_bar
 from showkit.ui.messages import CueAdded, LockRequested
-from showkit.ui.viewbase import SessionView
+from showkit.ui.viewbase import SAFETY_KEYS, SessionView
 
 STATUS_MARK = {CueStatus.OK: "ok", CueStatus.OVER: "OVER", CueStatus.STALE: "stale", CueStatus.ERROR: "error",
                None: "…"}
@@ -31,6 +31,7 @@ class ShowView(SessionView):
     """Cue list, details of the selected cue, and the level caution."""
 
     BINDINGS = [
+        *SAFETY_KEYS,
         Binding("plus,equals_sign", "gain(1)", "gain +0.5"),
         Binding("minus", "gain(-1)", "gain -0.5"),
         Binding("G", "type_gain", "type gain"),

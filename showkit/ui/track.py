@@ -15,7 +15,7 @@ from showkit.errors import ShowkitError
 from showkit.printable import printable
 from showkit.ui.drawing import flame_rows, hole_columns, mode_map, span_strip
 from showkit.ui.messages import AuditionReady, CueAdded
-from showkit.ui.viewbase import SessionView
+from showkit.ui.viewbase import SAFETY_KEYS, SessionView
 from showkit.units import format_count, format_semitones
 from showkit.units import format_time as _clock  # the one m:ss.s formatter
 
@@ -175,6 +175,7 @@ class TrackView(SessionView):
     """Track analysis: map, passages, cursor flames; add passages to the show."""
 
     BINDINGS = [
+        *SAFETY_KEYS,
         Binding("o", "open", "open"),
         Binding("left", "step(-1)", "◀", show=False),
         Binding("right", "step(1)", "▶", show=False),

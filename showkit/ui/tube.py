@@ -13,7 +13,7 @@ from showkit.printable import printable
 from showkit.safety import LEVEL_CAUTION
 from showkit.ui.drawing import flame_picture
 from showkit.ui.messages import ConditionsEntered, CueAdded
-from showkit.ui.viewbase import SessionView
+from showkit.ui.viewbase import SAFETY_KEYS, SessionView
 
 FLAME_LINES = 5
 
@@ -52,6 +52,7 @@ class TubeView(SessionView):
     """Rig facts, the tube drawing and the modes table."""
 
     BINDINGS = [
+        *SAFETY_KEYS,
         Binding("d", "temperature", "gas temperature"),
         Binding("c", "tone_cue", "tone cue on mode"),
     ]

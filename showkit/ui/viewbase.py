@@ -2,10 +2,17 @@
 
 from __future__ import annotations
 
+from textual.binding import Binding
 from textual.containers import Vertical
 
 from showkit.ui.jobs import JobRunner
 from showkit.ui.messages import Say
+
+
+#: The panic key and quit, first in a view's key line so that a narrow terminal never cuts them
+#: off (the App binds the same keys to the same actions; the top bar shows the panic key too).
+SAFETY_KEYS = [Binding("escape", "app.panic", "PANIC", key_display="esc"),
+               Binding("ctrl+q", "app.quit_safely", "quit")]
 
 
 class SessionView(JobRunner, Vertical):
