@@ -129,10 +129,13 @@ def check_temperature_k(temperature_k: float, at: str = "gas temperature") -> fl
     if not (math.isfinite(temperature_k)
             and TEMPERATURE_MIN_K - slack <= temperature_k <= TEMPERATURE_MAX_K + slack):
         shown = f"{temperature_k - 273.15:.1f} C" if math.isfinite(temperature_k) else repr(temperature_k)
-        raise InputError(f"gas temperature {shown} is outside -40 to 100 C", at,
-                         'give the gas temperature with its unit, e.g. "20 C" or "68 F" '
-                         "(a plain number is kelvin)")
+        raise InputError(f"gas temperature {shown} is outside {_TEMPERATURE_SPAN}", at, _TEMPERATURE_FIX)
     return min(max(temperature_k, TEMPERATURE_MIN_K), TEMPERATURE_MAX_K)
+
+
+_TEMPERATURE_SPAN = f"{TEMPERATURE_MIN_K - 273.15:g} to {TEMPERATURE_MAX_K - 273.15:g} C"
+_TEMPERATURE_FIX = ('give the gas temperature with its unit, e.g. "20 C" or "68 F" '
+                    "(a plain number is kelvin)")
 
 
 def check_reserve(reserve: float, at: str = "reserve") -> float:
@@ -198,8 +201,8 @@ def temperature_reading(value, where: str = "gas temperature") -> float:
     except InputError as exc:
         if "absolute zero" not in exc.what:
             raise
-        raise InputError(f"gas temperature {value!r} is at or below absolute zero, outside -40 to 100 C", where,
-                         exc.fix) from None
+        raise InputError(f"gas temperature {value!r} is at or below absolute zero, outside {_TEMPERATURE_SPAN}",
+                         where, _TEMPERATURE_FIX) from None
     return check_temperature_k(temperature_k, where)
 
 

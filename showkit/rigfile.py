@@ -17,7 +17,7 @@ from importlib import resources
 from pathlib import Path
 
 from showkit import units
-from showkit.conditions import Conditions, make_calibration, make_conditions
+from showkit.conditions import REFERENCE_FREQUENCY_MAX_HZ, Conditions, make_calibration, make_conditions
 from showkit.errors import InputError, RigError
 from showkit.limits import MAX_HOLES
 from showkit.physics.biasflow import jet_velocity_m_s
@@ -573,9 +573,12 @@ def _ranges(measured: dict, where: str) -> tuple | None:
 def check_calibration_point(rig: Rig, where: str, in_gas: str = "") -> None:
     """Refuse a calibration frequency where the tube's possible losses change the cap pressure
     (``in_gas``: words saying which gas the check was made in, when not the rig's)."""
-    check = check_reference(rig.loss_family, rig.drive.reference_frequency_hz)
+    check = check_reference(rig.loss_family, rig.drive.reference_frequency_hz, REFERENCE_FREQUENCY_MAX_HZ)
     if not check.ok:
-        fix = (f"calibrate at {check.suggestion_hz:g} Hz instead (showkit measure level picks it)"
+        gas_c = rig.temperature_k - 273.15
+        # the frequencies between modes move with the gas: the one named holds for a reading in this gas
+        fix = (f"calibrate again at {check.suggestion_hz:g} Hz for a reading in gas at {gas_c:.1f} C (showkit "
+               f"measure level --temperature \"{gas_c:.1f} C\" picks it; another day's gas, another frequency)"
                if check.suggestion_hz else "measure the tube first (showkit measure), then calibrate again")
         raise RigError((f"{in_gas}: " if in_gas else "") + check.message(), _field(where, "drive", "reference_frequency"),
                        fix)

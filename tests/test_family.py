@@ -159,7 +159,7 @@ def test_a_calibration_on_a_resonance_is_refused_with_one_line(write_rig, capsys
         load_rig(path)
     line = info.value.line()
     assert "mode 3" in line and "reference_frequency" in line and "\n" not in line
-    suggested = float(line.split("calibrate at ")[1].split(" Hz")[0])
+    suggested = float(line.split("calibrate again at ")[1].split(" Hz")[0])
     assert reference_spread_db(load_rig().loss_family, suggested) <= REFERENCE_LIMIT_DB
     assert main(["modes", "--rig", str(path)]) == 2
     err = capsys.readouterr().err.strip().splitlines()

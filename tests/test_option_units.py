@@ -84,17 +84,64 @@ def test_the_quietest_sweep_allowed_is_written_at_its_level(tmp_path, capsys):
     assert 20 * np.log10(np.max(np.abs(x))) == pytest.approx(-80.0, abs=0.01)
 
 
-def test_the_rig_files_refusal_and_measure_level_name_the_same_frequency(tmp_path, capsys):
-    rig = _rig_with(tmp_path, 'reference_frequency = "1439.3 Hz"', 'reference_frequency = "120 Hz"')
+@pytest.mark.parametrize("gas", [
+    {},  # read in the rig file's gas
+    # read at 10 C on a day at 35 C: the refusal is made, and its frequency named, in the reading's gas
+    {'temperature = "20 C"': 'temperature = "35 C"',
+     'reference_pressure = "0.27 Pa"': 'reference_pressure = "0.27 Pa"\nreference_temperature = "10 C"'}])
+def test_the_rig_files_refusal_and_measure_level_name_the_same_frequency(gas, tmp_path, capsys):
+    text = demo_rig_path().read_text()
+    for old, new in {'reference_frequency = "1439.3 Hz"': 'reference_frequency = "120 Hz"', **gas}.items():
+        assert old in text
+        text = text.replace(old, new)
+    rig = tmp_path / "rig.toml"
+    rig.write_text(text)
     load_line = _one_line(*_run(capsys, ["modes", "--rig", rig])[::2])
-    named = re.search(r"calibrate at ([0-9.]+) Hz", load_line).group(1)
+    named, gas_c = re.search(r"calibrate again at ([0-9.]+) Hz for a reading in gas at ([0-9.-]+) C",
+                             load_line).groups()
+    assert float(gas_c) == (10.0 if gas else 20.0)
     status, out, err = _run(capsys, ["measure", "level", "--rig", rig, "--pressure", "0.3 Pa",
-                                     "--temperature", "20 C"])
+                                     "--temperature", f"{gas_c} C"])
     line = _one_line(status, err)
     assert f"play the sine at {named} Hz" in line
     assert f"calibrating at {named} Hz" in err
-    # the spread is written to three figures, not rounded onto the limit
-    assert re.search(r"changes by \d+\.\d\d dB", load_line), load_line
+    # and that frequency is taken in that gas
+    status, _, err = _run(capsys, ["measure", "level", "--rig", rig, "--out", tmp_path / "s.wav",
+                                   "--temperature", f"{gas_c} C", "--frequency", f"{named} Hz"])
+    assert status == 0, err
+
+
+def test_a_spread_just_over_the_limit_does_not_read_as_the_limit():
+    from showkit.physics.family import REFERENCE_LIMIT_DB, ReferenceCheck
+
+    for spread, shown in ((0.1001, "0.1001"), (0.104, "0.104"), (0.13, "0.13"), (5.873, "5.87"), (12.5, "12.50")):
+        text = ReferenceCheck(767.1, spread, False, 3, 156.3).message()
+        assert f"changes by {shown} dB" in text, text
+    assert REFERENCE_LIMIT_DB == 0.1  # the cases above are written for this limit
+
+
+def test_no_calibration_frequency_above_the_calibration_limit_is_suggested(tmp_path, capsys):
+    """A 10-mm bore's plane-wave limit is far above 5 kHz, the calibration door's limit: a refused
+    reference was answered with 11972.5 Hz, which `measure level` then refused (a review)."""
+    from showkit.conditions import REFERENCE_FREQUENCY_MAX_HZ
+    from showkit.physics.family import check_reference
+    from showkit.rigfile import load_rig
+
+    rig = load_rig(None).with_conditions(temperature_k=293.15)
+    assert check_reference(rig.loss_family, 120.0, 900.0).suggestion_hz <= 900.0
+    small = _rig_with(tmp_path, 'bore = "80 mm"', 'bore = "10 mm"')
+    line = _one_line(*_run(capsys, ["modes", "--rig", small])[::2])
+    for hz in re.findall(r"at ([0-9.]+) Hz for a reading", line):
+        assert float(hz) <= REFERENCE_FREQUENCY_MAX_HZ
+
+
+def test_a_sweep_bound_below_the_floor_is_one_refusal_not_two_contradicting_ones(tmp_path, capsys):
+    hot = _rig_with(tmp_path, 'reference_level = -20', 'reference_level = -60')
+    hot.write_text(hot.read_text().replace('reference_pressure = "0.27 Pa"', 'reference_pressure = "2.7 Pa"'))
+    out = tmp_path / "h.wav"
+    line = _one_line(*_run(capsys, ["measure", "sweep", "--rig", hot, "--out", out])[::2])
+    assert "below the -80 dBFS floor" in line and "leave --level out" not in line
+    assert not out.exists()
 
 
 @pytest.mark.parametrize("field_old,field_new,where", [

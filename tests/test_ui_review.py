@@ -226,15 +226,17 @@ async def test_escape_closes_the_cautions_for_now_and_enter_acknowledges_them(ui
         assert not isinstance(app.screen, CautionScreen) and marker_path().exists()
 
 
+@pytest.mark.parametrize("size", [APP_SIZE, (70, APP_SIZE[1])])
 @sync
-async def test_notifications_leave_the_level_caution_in_sight(ui_short_show):
+async def test_notifications_leave_the_level_caution_in_sight(ui_short_show, size):
     """A stack of warnings covered the Show view's CAUTION line (a fresh user's report): the
-    notifications sit above it and take at most a third of the screen."""
+    notifications sit above it and take at most a third of the screen; below 75 columns the
+    caution takes three rows (a review)."""
     from textual.widgets._toast import ToastRack
 
     app = make_app(ui_short_show, view="show")
     # a test run hides notifications unless asked: drawn here as on a terminal
-    async with app.run_test(size=APP_SIZE, notifications=True) as pilot:
+    async with app.run_test(size=size, notifications=True) as pilot:
         await settle(pilot)
         for k in range(8):
             app.say(f"warning number {k}: something to read", warn=True)
@@ -246,7 +248,7 @@ async def test_notifications_leave_the_level_caution_in_sight(ui_short_show):
         assert len(rack.query("Toast")) >= 1
         # the rack's own margin keeps the two key lines, the status line and the CAUTION line (two rows at
         # this width) free; the stack scrolls within a third of the screen
-        assert APP_SIZE[1] - rack.styles.margin.bottom <= caution.region.y
+        assert size[1] - rack.styles.margin.bottom <= caution.region.y
         assert rack.styles.max_height is not None and rack.styles.max_height.value <= 34
 
 

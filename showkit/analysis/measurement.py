@@ -13,10 +13,10 @@ from showkit.analysis.drivefit import drive_response_db
 from showkit.analysis.resonances import find_resonances
 from showkit.analysis.sweep import check_audio, measure_response
 from showkit.analysis.tubefit import fit_tube, variant
-from showkit.conditions import check_reference_frequency
+from showkit.conditions import REFERENCE_FREQUENCY_MAX_HZ, check_reference_frequency
 from showkit.errors import MeasureError
 from showkit.physics.biasflow import jet_velocity_m_s
-from showkit.physics.family import check_reference
+from showkit.physics.family import SUGGEST_TOP_OF_LIMIT, check_reference
 
 
 def analyse_recording(rig, recording, rec_rate, sweep, sweep_rate, where="recording", progress=None,
@@ -201,19 +201,20 @@ def reference_frequency(rig, asked_hz: float | None, where: str = "--frequency")
     if asked_hz is not None:
         # the calibration door's own checks first: finite, within limits, below the plane-wave limit
         asked_hz = check_reference_frequency(asked_hz, where, rig.model)
-        check = check_reference(family, asked_hz)
+        check = check_reference(family, asked_hz, REFERENCE_FREQUENCY_MAX_HZ)
         if not check.ok:
             fix = (f"use {where} {check.suggestion_hz:g}, or leave {where} out and showkit picks one"
                    if check.suggestion_hz else "measure the tube first (showkit measure analyse)")
             raise MeasureError(check.message(), where, fix)
         return float(asked_hz), None
     own = rig.drive.reference_frequency_hz
-    own_check = check_reference(family, own)
+    own_check = check_reference(family, own, REFERENCE_FREQUENCY_MAX_HZ)
     if own_check.ok:
         return own, None
     picked = own_check.suggestion_hz  # the one the rig file's refusal names
     if picked is None:
-        raise MeasureError("no frequency below the plane-wave limit gives a cap reading the tube's losses "
+        top_hz = min(SUGGEST_TOP_OF_LIMIT * family.base.plane_wave_limit_hz, REFERENCE_FREQUENCY_MAX_HZ)
+        raise MeasureError(f"no frequency up to {top_hz:.0f} Hz gives a cap reading the tube's losses "
                            "cannot move", "measure level", "measure the tube first (showkit measure analyse)")
     return picked, (f"calibrating at {picked:g} Hz, between modes: the rig's {own:g} Hz is where the tube's "
                     "losses move the reading")

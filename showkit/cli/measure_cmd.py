@@ -40,7 +40,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     p.add_argument("--out", required=True, metavar="SWEEP.wav", help="file to write")
     _sweep_options(p)
     p.add_argument("--level", type=float, metavar="DBFS",
-                   help="peak level, dBFS (default: 6 dB below the safe bound); never above the bound")
+                   help="peak level, dBFS (default: 6 dB below the safe bound, not below -80); never above the bound")
     p = sub.add_parser("analyse", help="analyse a recording of the sweep")
     p.add_argument("recording", metavar="REC.wav")
     p.add_argument("--sweep", required=True, metavar="SWEEP.wav", help="the sweep that was played")
@@ -55,7 +55,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     p = sub.add_parser("level", help="the absolute calibration point ([drive] reference_*)")
     add_rig_option(p)
     p.add_argument("--frequency", metavar="FREQ",
-                   help="reference sine frequency (default: the rig's if the tube's losses cannot move the "
+                   help="reference sine frequency, e.g. 1400 or \"1.4 kHz\" (default: the rig's if the tube's losses cannot move the "
                         "reading there, else one showkit picks between modes); a frequency where they can is refused")
     p.add_argument("--level", type=float, metavar="DBFS", help="reference sine peak level (default: the rig's)")
     p.add_argument("--out", metavar="SINE.wav", help="write the reference sine to play with any player")
@@ -137,7 +137,13 @@ def _run_sweep(args) -> int:
     asked = SweepSpec(start_hz, stop_hz, args.length, args.rate, 0.5)  # the level comes from the bound
     check_spec(asked)
     bound_db, f_worst = sweep_bound_db(rig, asked)
-    level_db = bound_db - 6.0 if args.level is None else args.level
+    if bound_db < SWEEP_LEVEL_MIN_DBFS:
+        raise MeasureError(f"the safe sweep bound {bound_db:.1f} dBFS is below the {SWEEP_LEVEL_MIN_DBFS:g} dBFS "
+                           "floor: at this calibration the tube is driven too hard for a sweep worth recording",
+                           "--level", "turn the amplifier down, then calibrate again (showkit measure level) "
+                           "and write the sweep for the new calibration")
+    default_db = max(bound_db - 6.0, SWEEP_LEVEL_MIN_DBFS)
+    level_db = default_db if args.level is None else args.level
     if not np.isfinite(level_db):
         raise MeasureError(f"{level_db:g} dBFS is not a level", "--level",
                            f"give a peak level in dBFS, {bound_db:.1f} or lower")
@@ -147,7 +153,7 @@ def _run_sweep(args) -> int:
     if level_db < SWEEP_LEVEL_MIN_DBFS:
         raise MeasureError(f"--level {level_db:g} dBFS is below {SWEEP_LEVEL_MIN_DBFS:g} dBFS: the recording of a "
                            "sweep that quiet would hold only noise", "--level",
-                           f"use {bound_db - 6.0:.1f} dBFS (6 dB under the safe bound), or leave --level out")
+                           f"use {default_db:.1f} dBFS or leave --level out")
     spec = SweepSpec(start_hz, stop_hz, args.length, args.rate, 10 ** (level_db / 20))
     x = exponential_sweep(spec)
     write_audio(args.out, x.astype(np.float32), args.rate, "FLOAT", protect=_protect(args), what="sweep")

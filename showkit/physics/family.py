@@ -253,11 +253,27 @@ class ReferenceCheck:
         near = (f"near mode {self.mode_n} ({self.mode_hz:.1f} Hz)" if self.mode_n is not None
                 else "near a resonance")
         return (f"the calibration frequency {self.reference_hz:g} Hz lies {near}: the cap pressure there "
-                f"changes by {self.spread_db:.3g} dB with the tube's losses (limit {REFERENCE_LIMIT_DB:g} dB), "
+                f"changes by {_over_limit_text(self.spread_db, REFERENCE_LIMIT_DB)} dB with the tube's losses "
+                f"(limit {REFERENCE_LIMIT_DB:g} dB), "
                 "so a reading there could set every ceiling too high")
 
 
-def suggest_reference(family: LossFamily, near_hz: float | None = None) -> float | None:
+#: Suggested calibration frequencies stay below this fraction of the plane-wave limit (the drive
+#: model is trusted less near the top of the band: this project's choice, no source).
+SUGGEST_TOP_OF_LIMIT = 0.8
+
+
+def _over_limit_text(value: float, limit: float) -> str:
+    """``value`` (above ``limit``) with two decimals, or as many more as it takes not to read as the limit."""
+    for decimals in range(2, 7):
+        text = f"{value:.{decimals}f}"
+        if float(text) != limit:
+            return text
+    return f"{value:.6f}"
+
+
+def suggest_reference(family: LossFamily, near_hz: float | None = None,
+                      max_hz: float = float("inf")) -> float | None:
     """A reference frequency whose spread is within the limit, Hz (None if there is none).
 
     Candidates are the middles of the frequency windows where the spread stays
@@ -265,9 +281,10 @@ def suggest_reference(family: LossFamily, near_hz: float | None = None) -> float
     drive model is trusted less near the top of the band).  With ``near_hz``
     the candidate nearest it (in cents) is returned; without, the middle of the
     widest window (in cents): it has the most room for a mode that is not
-    quite where the model puts it.
+    quite where the model puts it.  ``max_hz``: the highest calibration frequency accepted
+    (the calibration door's limit, :data:`showkit.conditions.REFERENCE_FREQUENCY_MAX_HZ`).
     """
-    top = 0.8 * family.base.plane_wave_limit_hz
+    top = min(SUGGEST_TOP_OF_LIMIT * family.base.plane_wave_limit_hz, max_hz)
     f = np.exp(np.linspace(np.log(20.0), np.log(top), 2000))
     good = spread_curve_db(family, f) <= REFERENCE_LIMIT_DB / 2.0
     if not good.any():
@@ -285,8 +302,9 @@ def suggest_reference(family: LossFamily, near_hz: float | None = None) -> float
 
 
 @lru_cache(maxsize=64)
-def check_reference(family: LossFamily, reference_hz: float) -> ReferenceCheck:
-    """Accept or refuse a calibration frequency for this family (see the module notes).
+def check_reference(family: LossFamily, reference_hz: float, max_hz: float = float("inf")) -> ReferenceCheck:
+    """Accept or refuse a calibration frequency for this family (see the module notes); a refusal
+    suggests one at or below ``max_hz`` (:func:`suggest_reference`).
 
     Kept per family and frequency: every rig load checks its calibration point.
     """
@@ -304,7 +322,7 @@ def check_reference(family: LossFamily, reference_hz: float) -> ReferenceCheck:
         m = min(modes, key=lambda m: abs(np.log(m.frequency_hz / reference_hz)))
         mode_n, mode_hz = m.n, m.frequency_hz
     return ReferenceCheck(float(reference_hz), spread, False, mode_n, mode_hz,
-                          suggest_reference(family, reference_hz))
+                          suggest_reference(family, reference_hz, max_hz))
 
 
 def _envelope(family: LossFamily, point: LossPoint, reference_hz: float, freq_hz: np.ndarray,
