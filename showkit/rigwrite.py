@@ -89,7 +89,7 @@ def update_rig(path, *, sound_speed_m_s: float | None = None, end_correction: fl
                modes: list | None = None,
                measured_extra: dict | None = None, response_freq_hz=None, response_db=None,
                reference: dict | None = None, prefer_gas: str = "air_fraction",
-               today: str | None = None) -> Path:
+               today: str | None = None, temperature_k: float | None = None) -> Path:
     """Write measured and fitted values into a rig file; returns the backup's path.
 
     Parameters
@@ -117,6 +117,11 @@ def update_rig(path, *, sound_speed_m_s: float | None = None, end_correction: fl
         ``"air_fraction"`` or ``"temperature"`` (see module docstring).
     today : str, optional
         Date written, ISO format (default: today).
+    temperature_k : float, optional
+        The gas temperature while the sweep was recorded, K (already through the conditions'
+        door), when not the rig file's: it becomes ``gas.temperature``, the fitted sound speed
+        is written for it, and a calibration reading without ``drive.reference_temperature``
+        keeps the gas it was read in (the file's old temperature, written there).
     """
     import tomlkit
 
@@ -131,12 +136,28 @@ def update_rig(path, *, sound_speed_m_s: float | None = None, end_correction: fl
     # unchecked calibration: a refused one is what a new reading replaces (the new one was checked)
     rig = parse_rig(text, str(path), path, check_calibration=False)
     doc = tomlkit.parse(text)
+    rig = _move_gas(doc, rig, temperature_k)
     notes = _write_gas(doc, rig, sound_speed_m_s, prefer_gas)
     _write_holes(doc, rig, end_correction, resistance_pa_s_m3, flow)
     _write_drive(doc, response_freq_hz, response_db, reference)
     if modes is not None or measured_extra:
         _write_measured(doc, modes, measured_extra, notes, today)
     return save_text(path, tomlkit.dumps(doc))
+
+
+def _move_gas(doc, rig, temperature_k: float | None):
+    """``gas.temperature`` moved to the measurement's (K), the calibration reading left in the gas it
+    was read in; the rig in the measurement's gas (unchanged without one, or within
+    :data:`~showkit.rigfile.CALIBRATION_SAME_GAS_K`)."""
+    from showkit.rigfile import CALIBRATION_SAME_GAS_K
+
+    if temperature_k is None or abs(temperature_k - rig.temperature_k) <= CALIBRATION_SAME_GAS_K:
+        return rig
+    drive = doc.get("drive")
+    if drive is not None and "reference_pressure" in drive and "reference_temperature" not in drive:
+        drive["reference_temperature"] = f"{rig.calibration_temperature_k - 273.15:.2f} C"
+    doc["gas"]["temperature"] = f"{temperature_k - 273.15:.2f} C"
+    return rig.with_conditions(temperature_k=temperature_k)
 
 
 def _write_gas(doc, rig, sound_speed_m_s, prefer_gas: str) -> list:
@@ -240,12 +261,14 @@ def _all_finite(values: dict, where: str = "measurement") -> None:
             walk(key, value)
 
 
-def write_fit(path, report: dict, drive_response: bool = True, prefer_gas: str = "air_fraction") -> Path:
+def write_fit(path, report: dict, drive_response: bool = True, prefer_gas: str = "air_fraction",
+              temperature_k: float | None = None) -> Path:
     """Write a measurement report's fit into a rig file (what ``--update-rig`` does).
 
     Parameters the data could not determine keep the rig's values; the measured
     modes and the recording's figures go under ``[measured]``; the measured
-    drive response into ``[drive]`` unless ``drive_response`` is False.
+    drive response into ``[drive]`` unless ``drive_response`` is False;
+    ``temperature_k``: the gas temperature of the recording (:func:`update_rig`).
     Returns the backup's path.
     """
     fit = report["fit"]
@@ -268,4 +291,4 @@ def write_fit(path, report: dict, drive_response: bool = True, prefer_gas: str =
         modes=report["modes"],
         measured_extra=extra,
         response_freq_hz=d["frequency_hz"] if drive_response else None,
-        response_db=d["db"] if drive_response else None, prefer_gas=prefer_gas)
+        response_db=d["db"] if drive_response else None, prefer_gas=prefer_gas, temperature_k=temperature_k)

@@ -328,3 +328,62 @@ def test_check_takes_todays_gas_and_agrees_with_the_pre_show_check(tmp_path, cap
         assert ceilings["cold"][cue_id] == pytest.approx(ceiling, abs=0.01), cue_id
     # the cold gas moves the music passage's ceiling by several dB: the option is not ignored
     assert max(abs(ceilings["cold"][k] - ceilings["file"][k]) for k in played) > 1.0
+
+
+@pytest.mark.parametrize("gas_as", ["air_fraction", "temperature"])
+def test_a_sweep_recorded_in_warmer_gas_is_fitted_in_it_and_the_reading_keeps_its_gas(tmp_path, capsys, gas_as):
+    """`measure analyse` took no --temperature: a sweep recorded at 35 C on a rig file at 20 C was
+    fitted as a gas of another mixture (air fraction 0.02 -> far off) while the calibration reading
+    stayed at 20 C (a fresh user's trial).  With --temperature the file's gas moves to 35 C, the fit
+    keeps the mixture, and the reading keeps the gas it was read in."""
+    import shutil
+
+    import soundfile as sf
+
+    from measure_support import FS, tube_recording
+    from showkit.cli.main import main
+    from showkit.rigfile import demo_rig_path
+
+    warm = load_rig().with_conditions(temperature_k=308.15)
+    rec, sweep, _ = tube_recording(warm, 1.0, 1000.0, 6.0)
+    sf.write(tmp_path / "rec.wav", rec, FS, subtype="FLOAT")
+    sf.write(tmp_path / "sweep.wav", sweep, FS, subtype="FLOAT")
+    written = {}
+    for label, extra in (("told", ["--temperature", "35 C"]), ("not told", [])):
+        rig_path = tmp_path / f"{label}.toml"
+        shutil.copy(demo_rig_path(), rig_path)
+        status = main(["measure", "analyse", str(tmp_path / "rec.wav"), "--sweep", str(tmp_path / "sweep.wav"),
+                       "--rig", str(rig_path), "--update-rig", "--json", "--gas-as", gas_as, *extra])
+        capsys.readouterr()
+        assert status == 0
+        written[label] = load_rig(rig_path, check_calibration=False)
+    told, not_told = written["told"], written["not told"]
+    # the fitted tube: the warm gas's sound speed (within the fit's 0.3 %)
+    assert told.gas.sound_speed_m_s == pytest.approx(warm.gas.sound_speed_m_s, rel=3e-3)
+    # the calibration reading stays in the gas it was read in: the file's gas at 20 C, as fitted
+    assert told.calibrated_elsewhere
+    assert told.calibration_gas.sound_speed_m_s == pytest.approx(load_rig().gas.sound_speed_m_s, rel=3e-3)
+    if gas_as == "air_fraction":
+        assert told.calibration_temperature_k == pytest.approx(293.15, abs=0.01)
+        assert told.temperature_k == pytest.approx(308.15, abs=0.01)
+        assert abs(told.air_fraction - 0.02) < 0.01 < abs(not_told.air_fraction - 0.02)
+
+
+def test_modes_takes_todays_gas_temperature(capsys):
+    """`showkit modes` had no --temperature where scan and run had (a fresh user's trial).  Closed
+    form: with the geometry fixed, a plane-wave mode's frequency scales with the sound speed (the
+    holes' losses move it by a little more, hence 0.5 %)."""
+    import json
+
+    from showkit.cli.main import main
+
+    out = {}
+    for label, extra in (("file", []), ("warm", ["--temperature", "35 C"])):
+        assert main(["modes", "--json", "--max-frequency", "400", *extra]) == 0
+        out[label] = json.loads(capsys.readouterr().out)
+    assert out["warm"]["gas"]["temperature_k"] == pytest.approx(308.15)
+    ratio = out["warm"]["gas"]["sound_speed_m_s"] / out["file"]["gas"]["sound_speed_m_s"]
+    assert ratio > 1.02
+    f = {k: {m["n"]: m["frequency_hz"] for m in v["modes"]} for k, v in out.items()}
+    for n in (3, 4, 5):
+        assert f["warm"][n] / f["file"][n] == pytest.approx(ratio, rel=5e-3), n

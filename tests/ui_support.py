@@ -71,8 +71,13 @@ async def settle(pilot, rounds: int = 6) -> None:
         if app.background_started and (app.first_track is None or app.query_one("TrackView").wanted):
             break
         await asyncio.sleep(0.02)
+    from textual.worker import WorkerCancelled
+
     for _ in range(rounds):
-        await pilot.app.workers.wait_for_complete()
+        try:
+            await pilot.app.workers.wait_for_complete()
+        except WorkerCancelled:  # a job superseded by a newer one (the app cancels it): wait on
+            pass
         await pilot.pause()
         if not any(w.is_running for w in app.workers) and not app._jobs:
             await pilot.pause()

@@ -41,7 +41,10 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     _sweep_options(p)
     p.add_argument("--level", type=float, metavar="DBFS",
                    help="peak level, dBFS (default: 6 dB below the safe bound, not below -80); never above the bound")
-    p = sub.add_parser("analyse", help="analyse a recording of the sweep")
+    p = sub.add_parser("analyse", help="analyse a recording of the sweep",
+                       description="Measure the tube's modes from a recording of the sweep at the cap and fit "
+                                   "the model to them (sound speed, hole end correction, hole losses); with "
+                                   "--update-rig, write the fit into the rig file (a backup is kept).")
     p.add_argument("recording", metavar="REC.wav")
     p.add_argument("--sweep", required=True, metavar="SWEEP.wav", help="the sweep that was played")
     _analyse_options(p)
@@ -51,7 +54,6 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     p.add_argument("--device", help="audio device (number or name; see showkit devices)")
     _analyse_options(p)
     add_conditions_options(p)
-    add_temperature_option(p)
     p = sub.add_parser("level", help="the absolute calibration point ([drive] reference_*)")
     add_rig_option(p)
     p.add_argument("--frequency", metavar="FREQ",
@@ -86,6 +88,10 @@ def _sweep_options(p) -> None:
 
 def _analyse_options(p) -> None:
     add_rig_option(p)
+    p.add_argument("--temperature", metavar="TEMP",
+                   help='the gas temperature in the tube while the sweep played, e.g. "24 C" (default: the '
+                        "rig file's); the fit is made in it, and --update-rig writes it as the gas temperature, "
+                        "the calibration reading kept in the gas it was read in")
     p.add_argument("--update-rig", action="store_true",
                    help="write the fitted values, measured modes and drive response into the rig file")
     p.add_argument("--gas-as", choices=["air_fraction", "temperature"], default="air_fraction",
@@ -217,7 +223,8 @@ def _update(rig, report, args) -> None:
 
     if not getattr(args, "rig", None):
         raise RigError("--update-rig needs your own rig file", "--rig", "copy the demo rig and give --rig FILE")
-    backup = write_fit(args.rig, report, drive_response=not args.no_drive_response, prefer_gas=args.gas_as)
+    backup = write_fit(args.rig, report, drive_response=not args.no_drive_response, prefer_gas=args.gas_as,
+                       temperature_k=None if args.temperature is None else rig.temperature_k)
     if not args.json:
         print(f"updated {printable(args.rig)} (previous version kept as {printable(backup)})")
     _calibration_still_good(args.rig)
@@ -252,10 +259,10 @@ def _run_analyse(args) -> int:
 def _run_live(args) -> int:
     from showkit.analysis.audio import read_whole
     from showkit.analysis.measurement import check_sweep
-    from showkit.rigfile import load_rig
     from showkit.safesave import write_audio
 
-    rig = load_rig(getattr(args, "rig", None))  # the fit compares with the rig file's tube, as `analyse` does
+    # the tube today (--temperature, --static): the sweep is checked in it and the fit made in it
+    rig = load_rig_from_args(args)
     if args.save:
         _out_path(args.save, args, "recording")
     sweep, rate = read_whole(args.sweep, "sweep")
@@ -263,8 +270,7 @@ def _run_live(args) -> int:
         raise MeasureError(f"the sweep has {sweep.shape[1]} channels", args.sweep,
                            "give the mono sweep `showkit measure sweep` writes")
     # never played above its ceiling in today's tube, whoever made the file
-    check_sweep(rig.with_conditions(conditions=conditions_from_args(args, rig.conditions)), sweep, int(rate),
-                args.sweep)
+    check_sweep(rig, sweep, int(rate), args.sweep)
     level_caution()
     rec = play_record(sweep, int(rate), device=args.device)
     if args.save:

@@ -13,14 +13,15 @@ import argparse
 import math
 import sys
 
-from showkit.cli.common import (add_json_option, add_rig_option, frequency_option, load_rig_from_args, print_json,
-                                 table)
+from showkit.cli.common import (add_json_option, add_rig_option, add_temperature_option, frequency_option,
+                                 load_rig_from_args, print_json, table)
 from showkit.errors import InputError
 from showkit.printable import printable
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     add_rig_option(parser)
+    add_temperature_option(parser)
     parser.add_argument("--max-frequency", metavar="FREQ",
                         help='list modes up to this frequency, e.g. 800 or "1.2 kHz" (default: the plane-wave limit)')
     add_json_option(parser)

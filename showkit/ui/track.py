@@ -236,7 +236,7 @@ class TrackView(SessionView):
         first = str(self.path or (choices[0] if choices else ""))
         self.ask(AskScreen("Open a track", [("path", "audio file (FLAC, WAV, OGG ...) or a demo name",
                                               first)],
-                            note=f"demo tracks: {names}" if names else ""), done)
+                            note=f"the show's tracks and the demo tracks: {names}" if names else ""), done)
 
     def open_track(self, path) -> None:
         """Open a track by name or path; it is found and analysed in the background."""
