@@ -23,6 +23,12 @@ async def test_tube_view_modes_flames_and_conditions(ui_short_show):
         expected = {m.n: m for m in found}
         assert found[0].n == 1
         assert str(table.get_row("3")[1]) == f"{expected[3].frequency_hz:.2f}"
+        # the spacing between flame peaks as `showkit modes` gives it: none for a single peak
+        # (the view showed mode 1's as the tube's length: a fresh user's trial)
+        for n, m in expected.items():
+            spacing = str(table.get_row(str(n))[5])
+            assert (spacing == "-") == (m.peak_spacing_m is None or m.flame_peaks < 2), (n, spacing)
+        assert str(table.get_row("1")[5]) == "-"
         await pilot.press("down", "down")            # mode 3
         await settle(pilot)
         drawing = app.query_one(TubeDrawing)

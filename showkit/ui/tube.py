@@ -136,7 +136,8 @@ class TubeView(SessionView):
         for m in modes:
             t.add_row(str(m.n), f"{m.frequency_hz:.2f}", f"{m.note} {m.cents:+.0f}c",
                       "-" if m.q is None else f"{m.q:.0f}", str(m.flame_peaks),
-                      "-" if m.peak_spacing_m is None else f"{m.peak_spacing_m * 1000:.0f} mm",
+                      # one peak has nothing to stand apart from (as `showkit modes` shows it)
+                      "-" if m.peak_spacing_m is None or m.flame_peaks < 2 else f"{m.peak_spacing_m * 1000:.0f} mm",
                       m.pattern, key=str(m.n))
         if modes:
             t.move_cursor(row=min(max(keep, 0), len(modes) - 1))
