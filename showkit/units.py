@@ -44,6 +44,8 @@ RESISTANCE_UNITS = {"pa s/m3": 1.0, "pa·s/m3": 1.0, "pa s/m^3": 1.0, "mks ohm":
                     "acoustic ohm": 1.0}
 
 _NUMBER = r"[-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?"
+#: A fraction as a presenter writes inches: "1/16", "1 1/2" (lengths only).
+_FRACTION = r"(?:\d+\s+)?\d+/\d+"
 
 
 def _terms(text: str, allow_sum: bool) -> list[tuple[float, str]]:
@@ -57,10 +59,23 @@ def _terms(text: str, allow_sum: bool) -> list[tuple[float, str]]:
         if not match:
             raise ValueError(text)
         return [(float(match.group(1)), match.group(2))]
-    pairs = re.findall(rf"\s*({_NUMBER})\s*([A-Za-z\"']*)\s*", text)
-    if not pairs or "".join(n + u for n, u in pairs) != re.sub(r"\s+", "", text):
+    pairs = re.findall(rf"\s*({_FRACTION}|{_NUMBER})\s*([A-Za-z\"']*)\s*", text)
+    if not pairs or re.sub(r"\s+", "", "".join(n + u for n, u in pairs)) != re.sub(r"\s+", "", text):
         raise ValueError(text)
-    return [(float(n), u) for n, u in pairs]
+    if any("/" in n and not u for n, u in pairs):  # "1/16" alone would be metres: a slip for inches
+        raise ValueError(text)
+    return [(_term_number(n), u) for n, u in pairs]
+
+
+def _term_number(text: str) -> float:
+    """``"6"`` -> 6.0, ``"1/16"`` -> 0.0625, ``"1 1/2"`` -> 1.5 (a fraction of zero is unreadable)."""
+    if "/" not in text:
+        return float(text)
+    *whole, fraction = text.split()
+    top, bottom = (int(part) for part in fraction.split("/"))
+    if bottom == 0:
+        raise ValueError(text)
+    return (int(whole[0]) if whole else 0) + top / bottom
 
 
 def _norm(unit: str) -> str:

@@ -67,9 +67,20 @@ def test_plain_number_is_si():
     ("2.0 m", 2.0),
     ("2 metres", 2.0),
     ("1e-3 m", 0.001),
+    # fractions of an inch, as drills and tube fittings are sized (a fresh user's "1/16 in")
+    ("1/16 in", 0.0254 / 16),
+    ("1 1/2 in", 1.5 * 0.0254),
+    ("3 1/4\"", 3.25 * 0.0254),
+    ("6 ft 1/2 in", 6 * 0.3048 + 0.0127),
 ])
 def test_length_units(text, metres):
     assert units.length_m(text) == pytest.approx(metres, rel=1e-12)
+
+
+@given(whole=st.integers(0, 12), top=st.integers(0, 64), bottom=st.integers(1, 64))
+def test_fractions_of_an_inch(whole, top, bottom):
+    text = f"{whole} {top}/{bottom} in"
+    assert units.length_m(text) == pytest.approx((whole + top / bottom) * 0.0254, rel=1e-12, abs=1e-15)
 
 
 @given(feet=st.integers(0, 20), inches=st.floats(0, 11.99, allow_nan=False))
@@ -163,6 +174,9 @@ def test_db_round_trip():
     (units.length_m, math.inf),
     (units.length_m, math.nan),
     (units.length_m, "1e999 m"),
+    (units.length_m, "1/0 in"),
+    (units.length_m, "1/16"),             # a bare fraction would be metres: a slip for inches
+    (units.length_m, "-1/16 in"),
     (units.pressure_pa, "20 atm"),
     (units.pressure_pa, "20 Pa 3 Pa"),
     (units.pressure_pa, "Pa"),
