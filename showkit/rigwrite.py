@@ -21,7 +21,7 @@ from pathlib import Path
 
 from showkit.errors import RigError
 from showkit.physics.gas import gas_state
-from showkit.rigfile import demo_rig_path, parse_rig
+from showkit.rigfile import CALIBRATION_SAME_GAS_K, demo_rig_path, parse_rig
 from showkit.safesave import write_text
 
 BACKUPS_KEPT = 9
@@ -149,8 +149,6 @@ def _move_gas(doc, rig, temperature_k: float | None):
     """``gas.temperature`` moved to the measurement's (K), the calibration reading left in the gas it
     was read in; the rig in the measurement's gas (unchanged without one, or within
     :data:`~showkit.rigfile.CALIBRATION_SAME_GAS_K`)."""
-    from showkit.rigfile import CALIBRATION_SAME_GAS_K
-
     if temperature_k is None or abs(temperature_k - rig.temperature_k) <= CALIBRATION_SAME_GAS_K:
         return rig
     drive = doc.get("drive")

@@ -5,9 +5,10 @@ reserve) by exact scaling -- no re-analysis -- and compared with the cue's
 gain.  With today's gas temperature (--temperature) the modes move: every
 valid cue is locked again in memory for today's gas, as `showkit run
 --temperature` plays it (tone and glide cues on modes follow the modes), and
-checked against that ceiling; nothing is written to the sheet.  Cues that no longer fit are listed with how many dB they must come
-down; stale cues (the audio, rig or calibration changed since the lock) are
-refused until re-locked.  Exit status 0 when every cue is ok, 2 otherwise.
+checked against that ceiling; nothing is written to the sheet.  Cues that
+no longer fit are listed with how many dB they must come down; stale cues
+(the audio, rig or calibration changed since the lock) are refused until
+re-locked.  Exit status 0 when every cue is ok, 2 otherwise.
 """
 
 from __future__ import annotations
@@ -37,20 +38,16 @@ def headroom_bar(headroom_db: float | None, width: int = 12, span_db: float = 12
 
 
 def run(args) -> int:
-    from showkit.cli.common import conditions_from_args, level_caution, print_json, table
-    from showkit.show.lock import sheet_rig
-    from showkit.show.preshow import cue_for_today
+    from showkit.cli.common import level_caution, print_json, sheet_rigs, table
+    from showkit.show.preshow import checks_for_today
     from showkit.show.sheet import load_sheet
-    from showkit.show.sources import SignalMemo
     from showkit.show.status import CueStatus, ceiling_text, headroom_text
 
     sheet = load_sheet(args.sheet)
-    file_rig = sheet_rig(sheet)
-    today = file_rig.with_conditions(conditions=conditions_from_args(args, file_rig.conditions))
+    file_rig, today = sheet_rigs(sheet, args)
     # the pre-show check's rule (`showkit run`, the Show view): locks judged against the rig file,
     # ceilings for today's static pressure, reserve and gas
-    signals = SignalMemo()
-    checks = [cue_for_today(sheet, file_rig, today, c, signals=signals)[1] for c in sheet.cues]
+    checks = checks_for_today(sheet, file_rig, today)
     level_caution()
     gas_c = today.temperature_k - 273.15
     if args.json:

@@ -61,14 +61,19 @@ def load_rig_from_args(args, check_calibration: bool = True):
     return rig.with_conditions(conditions=conditions_from_args(args, rig.conditions))
 
 
-def sheet_rig_today(sheet, args):
-    """The rig ``sheet`` names (read once) with ``--static``/``--reserve`` applied over its own
-    conditions, through the one door (:func:`conditions_from_args`): the rig the cues are
-    checked, rendered and drawn on, the options checked against it."""
+def sheet_rigs(sheet, args):
+    """``(file_rig, today_rig)``: the rig ``sheet`` names (read once), and the same with
+    ``--static``/``--reserve``/``--temperature`` applied over its own conditions, through the one
+    door (:func:`conditions_from_args`): the rig the cues are checked, rendered and drawn on."""
     from showkit.show.lock import sheet_rig
 
     rig = sheet_rig(sheet)
-    return rig.with_conditions(conditions=conditions_from_args(args, rig.conditions))
+    return rig, rig.with_conditions(conditions=conditions_from_args(args, rig.conditions))
+
+
+def sheet_rig_today(sheet, args):
+    """The today rig of :func:`sheet_rigs`."""
+    return sheet_rigs(sheet, args)[1]
 
 
 def frequency_option(text, where: str):

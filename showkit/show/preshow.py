@@ -6,8 +6,8 @@ cue's verdict goes to the show log (:mod:`showkit.show.showlog`) as a
 ``check`` event.  Nothing here prints: the caller shows the result.
 
 :func:`cue_for_today` is the one rule for how today's conditions meet a lock,
-used by the pre-show check (:func:`showkit.show.render.render_for_playback`)
-and by every view of the terminal UI.
+used by the pre-show check (:func:`showkit.show.render.render_for_playback`),
+by ``showkit check`` and by every view of the terminal UI (:func:`checks_for_today`).
 """
 
 from __future__ import annotations
@@ -75,6 +75,15 @@ def cue_for_today(sheet, file_rig, today_rig, cue, signal=None, signals=None):
         return cue, CueCheck(cue.id, cue.gain_db, None, None, CueStatus.ERROR, exc.line())
     relocked = replace(relocked, gain_db=cue.gain_db)  # a gain that no longer fits is not clamped silently
     return relocked, check_cue(sheet, today_rig, relocked, signals=signals)
+
+
+def checks_for_today(sheet, file_rig, today_rig) -> list:
+    """:func:`cue_for_today`'s check of every cue, in show order, the sound of each built once
+    (``showkit check`` and the UI's Show view)."""
+    from showkit.show.sources import SignalMemo
+
+    signals = SignalMemo()
+    return [cue_for_today(sheet, file_rig, today_rig, c, signals=signals)[1] for c in sheet.cues]
 
 
 

@@ -172,12 +172,10 @@ class Session(SheetEditor):
         the ceilings, and a gas temperature of today locks the valid cues again in
         memory (tone and glide cues on today's modes), so it never makes a cue stale.
         """
-        from showkit.show.preshow import cue_for_today
+        from showkit.show.preshow import checks_for_today
 
         sheet = self.copy(sheet_text)
-        rig = rig or self.rig
-        base = self.base_rig()
-        return {c.id: cue_for_today(sheet, base, rig, c)[1] for c in sheet.cues}
+        return {c.id: c for c in checks_for_today(sheet, self.base_rig(), rig or self.rig)}
 
     def lock_job(self, ids: list[str] | None = None, progress=None, sheet_text: str | None = None,
                  rig=None) -> list[Cue]:
