@@ -27,6 +27,9 @@ DOMINANT_JUMP_WEIGHT = 0.5
 DOMINANT_JUMP_CAP_SEMITONES = 5.0
 #: Reference of the height term, Hz (only differences of height matter).
 DOMINANT_HEIGHT_REF_HZ = 100.0
+#: Weight of the trained network's log posterior that a note is the frame's top note
+#: (:mod:`showkit.analysis.topline`), when it is given.
+DOMINANT_NETWORK_WEIGHT = 0.3
 
 
 @dataclass(frozen=True)
@@ -71,7 +74,8 @@ class ModeTable:
         return int(np.nonzero(self.n == n)[0][0])
 
 
-def dominant_pitch(notes_hz: np.ndarray, notes_energy: np.ndarray) -> np.ndarray:
+def dominant_pitch(notes_hz: np.ndarray, notes_energy: np.ndarray, top_logp: np.ndarray | None = None
+                   ) -> np.ndarray:
     """The dominant pitch of each frame, Hz (NaN for a frame without notes).
 
     The line a listener follows through the frames' notes, decoded as the
@@ -94,6 +98,10 @@ def dominant_pitch(notes_hz: np.ndarray, notes_energy: np.ndarray) -> np.ndarray
         Frequencies of the notes found, Hz (NaN for none).
     notes_energy : ndarray (frames, notes)
         Energy of each note's partials (any unit; only ratios within a frame matter).
+    top_logp : ndarray (frames, notes), optional
+        Each note's log posterior of being the frame's top note from the trained
+        network (:func:`showkit.analysis.topline.notes_logp`), added to its score
+        with weight :data:`DOMINANT_NETWORK_WEIGHT`.
     """
     f = np.asarray(notes_hz, dtype=float)
     e = np.asarray(notes_energy, dtype=float)
@@ -104,7 +112,11 @@ def dominant_pitch(notes_hz: np.ndarray, notes_energy: np.ndarray) -> np.ndarray
     with np.errstate(divide="ignore", invalid="ignore"):
         share = np.log(np.where(ok, e, 1.0) / np.where(peak > 0, peak, 1.0))
         height = np.log2(np.where(ok, f, 1.0) / DOMINANT_HEIGHT_REF_HZ)
-    score = np.where(ok, DOMINANT_ENERGY_WEIGHT * share + DOMINANT_HEIGHT_WEIGHT * height, -np.inf)
+    score = DOMINANT_ENERGY_WEIGHT * share + DOMINANT_HEIGHT_WEIGHT * height
+    if top_logp is not None:
+        lp = np.asarray(top_logp, dtype=float)
+        score = score + DOMINANT_NETWORK_WEIGHT * np.where(np.isfinite(lp), lp, -30.0)
+    score = np.where(ok, score, -np.inf)
     semitones = 12.0 * np.log2(np.where(ok, f, 1.0))
     path = _best_path(score, semitones, DOMINANT_JUMP_WEIGHT, DOMINANT_JUMP_CAP_SEMITONES)
     rows = np.arange(f.shape[0])

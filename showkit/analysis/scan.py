@@ -218,13 +218,14 @@ def frame_notes_text(work: _Work, shift_cents: float = 0.0) -> list[str]:
     return out
 
 
-def map_data(work: _Work, shift_cents: float = 0.0, mf=None) -> dict:
+def map_data(work: _Work, shift_cents: float = 0.0, mf=None, top_logp=None) -> dict:
     """The time x mode map as data (the ``--map`` file and what the Track view draws).
 
     ``{"hop_s", "times_s", "modes": [{"n", "frequency_hz", "note"}], "strength": [[0-1 per frame]
     per mode], "hit": [[bool per frame] per mode], "notes_hz": [[every note found] per frame]}``,
     plus ``"dominant_hz"`` (the dominant pitch per frame, 0 for none:
-    :func:`showkit.analysis.pitches.dominant_pitch`) and ``"shift_cents"``.
+    :func:`showkit.analysis.pitches.dominant_pitch`, with the trained network's
+    ``top_logp`` when given) and ``"shift_cents"``.
     Notes are given as heard after the shift.
     """
     if mf is None:
@@ -241,7 +242,7 @@ def map_data(work: _Work, shift_cents: float = 0.0, mf=None) -> dict:
             "hit": mf.hit.tolist(),
             "notes_hz": notes,
             "dominant_hz": [round(float(f) * scale, 2) if np.isfinite(f) else 0.0
-                            for f in dominant_pitch(features.notes_hz, features.notes_energy)],
+                            for f in dominant_pitch(features.notes_hz, features.notes_energy, top_logp)],
             "shift_cents": float(shift_cents)}
 
 
@@ -280,7 +281,41 @@ def track_frames(rig: Rig, path: str | Path, shift_cents: float = 0.0) -> dict:
     work = _analyse(rig, path)
     score, scores, mf = work.promised_at(shift_cents)
     return {"score": float(score), "passages": passage_rows(work, scores, mf),
-            "map": map_data(work, shift_cents, mf), "notes": frame_notes_text(work, shift_cents)}
+            "map": map_data(work, shift_cents, mf, _top_logp(work)), "notes": frame_notes_text(work, shift_cents)}
+
+
+def _top_logp(work: _Work) -> np.ndarray:
+    """The trained network's log posterior of each found note being its frame's top note
+    (:func:`showkit.analysis.topline.notes_logp`), from the file read again at the network's rate.
+
+    Kept in process per file (path, size, modification time) and notes found: the
+    Track view asks again at every transposition tried, and the network reads only the audio.
+    """
+    import hashlib
+
+    features = work.features
+    st = work.path.stat()
+    notes = np.ascontiguousarray(features.notes_hz, dtype=float)
+    key = (str(work.path), st.st_size, st.st_mtime_ns, float(features.frame_rate_hz),
+           hashlib.blake2b(notes.tobytes(), digest_size=16).hexdigest())
+    if key not in _TOP_LOGP:
+        from threadpoolctl import threadpool_limits
+
+        from showkit.analysis import topline
+
+        times = np.arange(features.frames) / features.frame_rate_hz
+        with threadpool_limits(limits=1):
+            out = topline.notes_logp(read_blocks(work.path, topline.LINE_RATE_HZ), times, notes)
+        out.flags.writeable = False
+        while len(_TOP_LOGP) >= _TOP_LOGP_KEPT:
+            _TOP_LOGP.pop(next(iter(_TOP_LOGP)))
+        _TOP_LOGP[key] = out
+    return _TOP_LOGP[key]
+
+
+#: Network posteriors kept in process (a few tracks: each is frames x notes float32).
+_TOP_LOGP: dict = {}
+_TOP_LOGP_KEPT = 8
 
 
 def scan_track(rig: Rig, path: str | Path, threads: int | None = None) -> dict:

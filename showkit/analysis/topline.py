@@ -1,0 +1,247 @@
+"""The top line of the texture, from a small trained network over a harmonic CQT.
+
+Experimental (DEVELOPERS.md Methods §8b): a stack of constant-Q spectra read at
+the harmonics of each candidate pitch (the harmonic CQT of R. Bittner,
+B. McFee, J. Salamon, P. Li and J. P. Bello, "Deep salience representations
+for F0 estimation in polyphonic music", ISMIR 2017), fed to a small
+convolutional network along log frequency that scores each pitch bin as the
+frame's highest sounding note, and a Viterbi path through those scores.
+Weights: trained by ``tests/benchmarks/train_line_model.py`` on public-domain
+scores rendered with soundfonts other than the test set's.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+
+#: Rate the audio is resampled to, Hz, and the constant-Q hop, samples.
+LINE_RATE_HZ = 22050
+LINE_HOP = 256
+#: Constant-Q bins per octave, and the lowest bin's MIDI note (C1, 32.7 Hz).
+BINS_PER_OCTAVE = 36
+CQT_LOW_MIDI = 24
+#: Output bins: the pitches the line may take, MIDI 36 (C2) upwards in thirds of a semitone.
+OUT_LOW_MIDI = 36
+OUT_BINS = 174
+#: The harmonics stacked (0.5: the sub-octave), and their bin offsets.
+HARMONICS = (0.5, 1.0, 2.0, 3.0, 4.0, 5.0)
+_H_OFFSET = tuple(int(round(BINS_PER_OCTAVE * np.log2(h))) for h in HARMONICS)
+_BASE = (OUT_LOW_MIDI - CQT_LOW_MIDI) * BINS_PER_OCTAVE // 12
+CQT_BINS = _BASE + max(_H_OFFSET) + OUT_BINS
+#: Context: constant-Q frames taken around each frame (offsets, in hops).
+CONTEXT = (-16, -8, -4, -2, 0, 2, 4, 8, 16)
+#: Shortest signal handed to the constant-Q transform (shorter ones get zeros after them), samples.
+MIN_CQT_SAMPLES = 4 * LINE_RATE_HZ
+#: Level floor of the input, dB below the frame's strongest bin.
+FLOOR_DB = 60.0
+#: The weights file.
+WEIGHTS = Path(__file__).resolve().parent.parent / "data" / "topline_weights.npz"
+#: The line's step cost per semitone between frames, and its cap (semitones), on log posteriors.
+STEP_COST = 0.35
+STEP_CAP_SEMITONES = 6.0
+
+
+def out_hz() -> np.ndarray:
+    """Centre frequency of each output bin, Hz."""
+    midi = OUT_LOW_MIDI + np.arange(OUT_BINS) * 12.0 / BINS_PER_OCTAVE
+    return 440.0 * 2.0 ** ((midi - 69.0) / 12.0)
+
+
+def cqt_db(samples: np.ndarray, rate_hz: int) -> np.ndarray:
+    """Log-magnitude constant-Q spectrogram (frames, CQT_BINS), dB re each frame's strongest bin, clipped."""
+    import librosa
+    import soxr
+
+    x = np.asarray(samples, dtype=np.float32)
+    if rate_hz != LINE_RATE_HZ:
+        x = soxr.resample(x, rate_hz, LINE_RATE_HZ)
+    rows = 1 + x.size // LINE_HOP
+    if x.size < MIN_CQT_SAMPLES:      # librosa's lowest octaves need this much signal: zeros after it
+        x = np.concatenate([x, np.zeros(MIN_CQT_SAMPLES - x.size, dtype=np.float32)])
+    fmin = 440.0 * 2.0 ** ((CQT_LOW_MIDI - 69.0) / 12.0)
+    c = np.abs(librosa.vqt(x, sr=LINE_RATE_HZ, hop_length=LINE_HOP, fmin=fmin, n_bins=CQT_BINS,
+                           bins_per_octave=BINS_PER_OCTAVE, gamma=0.0)).T[:rows].astype(np.float32)
+    db = 20.0 * np.log10(c + 1e-7)
+    db -= db.max(axis=1, keepdims=True)
+    return np.maximum(db, -FLOOR_DB)
+
+
+def line_input(db: np.ndarray, times_s: np.ndarray, context=CONTEXT) -> np.ndarray:
+    """Network input (frames, channels, OUT_BINS), 0..1, for the given times (s)."""
+    idx = np.rint(np.asarray(times_s, dtype=float) * LINE_RATE_HZ / LINE_HOP).astype(int)
+    n = db.shape[0]
+    return gather_input(db, np.clip(idx, 0, n - 1), np.zeros_like(idx), np.full_like(idx, n - 1), context)
+
+
+def gather_input(db: np.ndarray, idx: np.ndarray, lo: np.ndarray, hi: np.ndarray, context=CONTEXT) -> np.ndarray:
+    """:func:`line_input` for rows ``idx`` of ``db``, each with its context clipped to ``[lo, hi]``."""
+    chans = []
+    for dt in context:
+        rows = db[np.clip(idx + dt, lo, hi)]
+        for off in _H_OFFSET:
+            start = _BASE + off
+            chans.append(rows[:, start:start + OUT_BINS])
+    return (np.stack(chans, axis=1).astype(np.float32) / FLOOR_DB + 1.0).astype(np.float32)
+
+
+def _conv(x: np.ndarray, w: np.ndarray, b: np.ndarray, dilation: int) -> np.ndarray:
+    """'Same' 1-D cross-correlation along the last axis (as torch.nn.Conv1d): x (frames, cin, bins),
+    w (cout, cin, k); one matrix product over the stacked shifted inputs (im2col)."""
+    return _conv_last(np.ascontiguousarray(x.transpose(0, 2, 1)), w, b, dilation).transpose(0, 2, 1)
+
+
+def _conv_last(x: np.ndarray, w: np.ndarray, b: np.ndarray, dilation: int) -> np.ndarray:
+    """:func:`_conv` on channels-last arrays: x (frames, bins, cin) -> (frames, bins, cout)."""
+    cout, cin, k = w.shape
+    frames, bins, _ = x.shape
+    pad = dilation * (k - 1) // 2
+    xp = np.zeros((frames, bins + 2 * pad, cin), dtype=np.float32)
+    xp[:, pad:pad + bins] = x
+    cols = np.concatenate([xp[:, j * dilation:j * dilation + bins] for j in range(k)], axis=2)
+    wm = np.ascontiguousarray(w.transpose(2, 1, 0).reshape(k * cin, cout), dtype=np.float32)
+    return (cols.reshape(frames * bins, k * cin) @ wm).reshape(frames, bins, cout) + b
+
+
+class Net:
+    """The trained network: its layers ``[(w, b, dilation)]`` and the context frames it reads."""
+
+    def __init__(self, layers: list, context: tuple):
+        self.layers, self.context = layers, context
+
+
+def load_weights(path: Path = WEIGHTS) -> Net:
+    """The network in the weights file."""
+    with np.load(path) as z:
+        n = int(z["layers"])
+        context = tuple(int(c) for c in z["context"]) if "context" in z else (-4, -2, 0, 2, 4)
+        return Net([(z[f"w{i}"].astype(np.float32), z[f"b{i}"].astype(np.float32), int(z[f"d{i}"]))
+                    for i in range(n)], context)
+
+
+def log_posterior(x: np.ndarray, net: Net) -> np.ndarray:
+    """Log-probability of each output bin being the frame's top note (frames, OUT_BINS)."""
+    h = np.ascontiguousarray(np.asarray(x, dtype=np.float32).transpose(0, 2, 1))
+    for i, (w, b, d) in enumerate(net.layers):
+        h = _conv_last(h, w, b, d)
+        if i < len(net.layers) - 1:
+            np.maximum(h, 0.0, out=h)
+    z = h[:, :, 0]
+    z = z - z.max(axis=1, keepdims=True)
+    return z - np.log(np.exp(z).sum(axis=1, keepdims=True))
+
+
+def viterbi_bins(logp: np.ndarray) -> np.ndarray:
+    """The best path through the bins (index per frame) with a capped step cost per semitone."""
+    frames, k = logp.shape
+    semis = np.arange(k) * 12.0 / BINS_PER_OCTAVE
+    cost = STEP_COST * np.minimum(np.abs(semis[:, None] - semis[None, :]), STEP_CAP_SEMITONES)
+    back = np.zeros((frames, k), dtype=np.int16)
+    acc = logp[0].copy()
+    for t in range(1, frames):
+        cand = acc[None, :] - cost
+        b = cand.argmax(axis=1)
+        back[t] = b
+        acc = cand[np.arange(k), b] + logp[t]
+    path = np.zeros(frames, dtype=np.intp)
+    path[-1] = int(np.argmax(acc))
+    for t in range(frames - 1, 0, -1):
+        path[t - 1] = back[t, path[t]]
+    return path
+
+
+#: The file is analysed in pieces this long (s), each with this margin either side (s): memory stays bounded.
+CHUNK_S = 30.0
+MARGIN_S = 3.0
+
+
+def at_notes(logp: np.ndarray, notes_hz: np.ndarray, outside: float = -30.0) -> np.ndarray:
+    """Each note's log posterior (frames, notes): the value of its nearest output bin (``outside`` off the range)."""
+    f = np.asarray(notes_hz, dtype=float)
+    ok = np.isfinite(f) & (f > 0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        b = np.rint((12.0 * np.log2(np.where(ok, f, 440.0) / 440.0) + 69.0 - OUT_LOW_MIDI)
+                    * BINS_PER_OCTAVE / 12.0).astype(int)
+    inside = ok & (b >= 0) & (b < OUT_BINS)
+    got = np.take_along_axis(logp, np.clip(b, 0, OUT_BINS - 1), axis=1)
+    return np.where(inside, got, outside).astype(np.float32)
+
+
+def notes_logp(blocks, times_s: np.ndarray, notes_hz: np.ndarray, net: Net | None = None) -> np.ndarray:
+    """Each found note's log posterior of being the frame's top note, from audio blocks at LINE_RATE_HZ.
+
+    ``blocks`` yields mono sample blocks at :data:`LINE_RATE_HZ` (e.g.
+    :func:`showkit.analysis.audio.read_blocks`); the track is analysed
+    :data:`CHUNK_S` at a time with :data:`MARGIN_S` either side, so memory is
+    bounded whatever its length.  Returns (frames, notes): -30 for a note
+    outside the network's range or a missing note, 0 in a frame with fewer
+    than two notes (nothing to choose there; the network is not run).
+    """
+    net = load_weights() if net is None else net
+    pos = np.asarray(times_s, dtype=float) * LINE_RATE_HZ       # frame centres, samples
+    notes = np.asarray(notes_hz, dtype=float)
+    out = np.full(notes.shape, -30.0, dtype=np.float32)
+    # a frame with one note or none has no choice to make: the network is not run there
+    choice = np.isfinite(notes).sum(axis=1) >= 2 if notes.ndim == 2 else np.zeros(pos.size, bool)
+    out[~choice] = 0.0
+    chunk = int(CHUNK_S * LINE_RATE_HZ) // LINE_HOP * LINE_HOP
+    margin = int(MARGIN_S * LINE_RATE_HZ) // LINE_HOP * LINE_HOP
+    parts: list = []
+    have = 0             # samples held in parts
+    start = 0            # global index of the first sample held
+    core = 0             # start of the next core segment
+
+    def run(last: bool) -> None:
+        nonlocal parts, have, start, core
+        buf = np.concatenate(parts) if len(parts) > 1 else parts[0]
+        end = start + buf.size
+        while core < end and (last or end >= core + chunk + margin):
+            lo = max(core - margin, 0)
+            hi = end if last else core + chunk + margin
+            db = cqt_db(buf[lo - start:hi - start], LINE_RATE_HZ)
+            sel = choice & (pos >= core) & ((pos < core + chunk) | (last and core + chunk >= end))
+            if sel.any():
+                idx = np.rint(pos[sel] / LINE_HOP).astype(int) - lo // LINE_HOP
+                n = db.shape[0]
+                x = gather_input(db, np.clip(idx, 0, n - 1), np.zeros_like(idx), np.full_like(idx, n - 1),
+                                 net.context)
+                out[sel] = at_notes(log_posterior(x, net), notes[sel])
+            core += chunk
+        keep = max(core - margin, start)
+        parts = [buf[keep - start:]]
+        have = parts[0].size
+        start = keep
+
+    for blk in blocks:
+        parts.append(np.asarray(blk, dtype=np.float32))
+        have += parts[-1].size
+        if start + have >= core + chunk + margin:
+            run(False)
+    if have:
+        run(True)
+    return out
+
+
+def top_line(samples: np.ndarray, rate_hz: int, times_s: np.ndarray, notes_hz: np.ndarray,
+             net: Net | None = None) -> np.ndarray:
+    """The top line per frame, Hz (NaN where no note was found).
+
+    The path's bin is moved to the nearest note found in the frame within
+    50 cents (that note's precise frequency), else kept at the bin's centre.
+    """
+    net = load_weights() if net is None else net
+    db = cqt_db(samples, rate_hz)
+    logp = log_posterior(line_input(db, times_s, net.context), net)
+    path = viterbi_bins(logp)
+    f = out_hz()[path]
+    notes = np.asarray(notes_hz, dtype=float)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        cents = np.abs(1200.0 * np.log2(notes / f[:, None]))
+    cents = np.where(np.isfinite(cents), cents, np.inf)
+    k = cents.argmin(axis=1)
+    rows = np.arange(f.size)
+    near = cents[rows, k] <= 50.0
+    out = np.where(near, notes[rows, k], f)
+    any_note = np.isfinite(notes).any(axis=1)
+    return np.where(any_note, out, np.nan)
