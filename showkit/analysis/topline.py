@@ -168,6 +168,23 @@ def at_notes(logp: np.ndarray, notes_hz: np.ndarray, outside: float = -30.0) -> 
     return np.where(inside, got, outside).astype(np.float32)
 
 
+#: Frames per pass through the network: small batches keep each layer's stacked input in cache
+#: (measured, one core, 3600 frames: 1.2 s in batches of 16-32, 1.7 s of 64, 5.3 s all at once).
+BATCH_FRAMES = 32
+
+
+def _at_notes_batched(db: np.ndarray, idx: np.ndarray, notes: np.ndarray, net: Net) -> np.ndarray:
+    """:func:`at_notes` of the network's output for rows ``idx`` of ``db``, :data:`BATCH_FRAMES` at a time."""
+    lo = np.zeros(BATCH_FRAMES, dtype=int)
+    hi = np.full(BATCH_FRAMES, db.shape[0] - 1)
+    out = np.empty(notes.shape, dtype=np.float32)
+    for i in range(0, idx.size, BATCH_FRAMES):
+        j = idx[i:i + BATCH_FRAMES]
+        x = gather_input(db, j, lo[:j.size], hi[:j.size], net.context)
+        out[i:i + j.size] = at_notes(log_posterior(x, net), notes[i:i + j.size])
+    return out
+
+
 def notes_logp(blocks, times_s: np.ndarray, notes_hz: np.ndarray, net: Net | None = None) -> np.ndarray:
     """Each found note's log posterior of being the frame's top note, from audio blocks at LINE_RATE_HZ.
 
@@ -202,11 +219,8 @@ def notes_logp(blocks, times_s: np.ndarray, notes_hz: np.ndarray, net: Net | Non
             db = cqt_db(buf[lo - start:hi - start], LINE_RATE_HZ)
             sel = choice & (pos >= core) & ((pos < core + chunk) | (last and core + chunk >= end))
             if sel.any():
-                idx = np.rint(pos[sel] / LINE_HOP).astype(int) - lo // LINE_HOP
-                n = db.shape[0]
-                x = gather_input(db, np.clip(idx, 0, n - 1), np.zeros_like(idx), np.full_like(idx, n - 1),
-                                 net.context)
-                out[sel] = at_notes(log_posterior(x, net), notes[sel])
+                idx = np.clip(np.rint(pos[sel] / LINE_HOP).astype(int) - lo // LINE_HOP, 0, db.shape[0] - 1)
+                out[sel] = _at_notes_batched(db, idx, notes[sel], net)
             core += chunk
         keep = max(core - margin, start)
         parts = [buf[keep - start:]]
