@@ -148,3 +148,23 @@ def test_short_silent_and_odd_lengths(seconds):
     notes = np.tile([220.0, 440.0], (times.size, 1))
     got = topline.notes_logp(iter([x[: x.size // 2], x[x.size // 2:]]), times, notes)
     assert got.shape == notes.shape and np.all(np.isfinite(got))
+
+
+def test_damaged_weights_are_an_error(tmp_path):
+    # garbage, a truncated copy and NaN weights: a ShowkitError naming the file, never a silent line
+    from showkit.errors import ShowkitError
+
+    junk = tmp_path / "junk.npz"
+    junk.write_bytes(b"not a weights file")
+    cut = tmp_path / "cut.npz"
+    cut.write_bytes(topline.WEIGHTS.read_bytes()[:5000])
+    with np.load(topline.WEIGHTS) as z:
+        arrays = {k: z[k] for k in z.files}
+    arrays["w2"] = arrays["w2"].copy()
+    arrays["w2"][0, 0, 0] = np.nan
+    nan = tmp_path / "nan.npz"
+    np.savez(nan, **arrays)
+    for bad in (junk, cut, nan, tmp_path / "missing.npz"):
+        with pytest.raises(ShowkitError) as e:
+            topline.load_weights(bad)
+        assert str(bad) in str(e.value) and "reinstall" in str(e.value)

@@ -1,20 +1,27 @@
-"""The top line of the texture, from a small trained network over a harmonic CQT.
+"""The top line of the texture: a small trained network's word on which found note is the highest.
 
-Experimental (DEVELOPERS.md Methods §8b): a stack of constant-Q spectra read at
-the harmonics of each candidate pitch (the harmonic CQT of R. Bittner,
-B. McFee, J. Salamon, P. Li and J. P. Bello, "Deep salience representations
-for F0 estimation in polyphonic music", ISMIR 2017), fed to a small
-convolutional network along log frequency that scores each pitch bin as the
-frame's highest sounding note, and a Viterbi path through those scores.
-Weights: trained by ``tests/benchmarks/train_line_model.py`` on public-domain
-scores rendered with soundfonts other than the test set's.
+A stack of constant-Q spectra read at the harmonics of each candidate pitch
+(the harmonic CQT of R. Bittner, B. McFee, J. Salamon, P. Li and J. P. Bello,
+"Deep salience representations for F0 estimation in polyphonic music", ISMIR
+2017) is fed to a small convolutional network along log frequency that gives
+each pitch bin a log posterior of being the frame's highest sounding note;
+:func:`notes_logp` reads it at the notes the scan found, and
+:func:`showkit.analysis.pitches.dominant_pitch` adds it to their scores
+(DEVELOPERS.md Methods §8b, with the measured gain and its limits).  Weights:
+``showkit/data/topline_weights.npz``, trained by
+``tests/benchmarks/train_line_model.py`` on public-domain scores rendered through
+soundfonts the tests never use and on invented synthesized timbres.  Inference
+is numpy only.
 """
 
 from __future__ import annotations
 
+from functools import lru_cache
 from pathlib import Path
 
 import numpy as np
+
+from showkit.errors import ShowkitError
 
 #: Rate the audio is resampled to, Hz, and the constant-Q hop, samples.
 LINE_RATE_HZ = 22050
@@ -38,9 +45,6 @@ MIN_CQT_SAMPLES = 4 * LINE_RATE_HZ
 FLOOR_DB = 60.0
 #: The weights file.
 WEIGHTS = Path(__file__).resolve().parent.parent / "data" / "topline_weights.npz"
-#: The line's step cost per semitone between frames, and its cap (semitones), on log posteriors.
-STEP_COST = 0.35
-STEP_CAP_SEMITONES = 6.0
 
 
 def out_hz() -> np.ndarray:
@@ -112,12 +116,33 @@ class Net:
 
 
 def load_weights(path: Path = WEIGHTS) -> Net:
-    """The network in the weights file."""
-    with np.load(path) as z:
-        n = int(z["layers"])
-        context = tuple(int(c) for c in z["context"]) if "context" in z else (-4, -2, 0, 2, 4)
-        return Net([(z[f"w{i}"].astype(np.float32), z[f"b{i}"].astype(np.float32), int(z[f"d{i}"]))
-                    for i in range(n)], context)
+    """The network in the weights file (kept after the first read of the installed one).
+
+    A missing or damaged file is an error (reinstall), never a line without the network's word.
+    """
+    return _load(str(path))
+
+
+@lru_cache(maxsize=2)
+def _load(path: str) -> Net:
+    try:
+        with np.load(path) as z:
+            n = int(z["layers"])
+            layers = [(z[f"w{i}"].astype(np.float32), z[f"b{i}"].astype(np.float32), int(z[f"d{i}"]))
+                      for i in range(n)]
+            context = tuple(int(c) for c in z["context"])
+    except Exception as exc:  # noqa: BLE001 -- any failure to read the package's own file says the same
+        raise ShowkitError(f"the top-line network's weights cannot be read ({type(exc).__name__})", path,
+                           "reinstall showkit") from None
+    channels = len(context) * len(HARMONICS)
+    if (not layers or layers[0][0].shape[1] != channels or layers[-1][0].shape[0] != 1
+            or not all(np.all(np.isfinite(w)) and np.all(np.isfinite(b)) and d >= 1 for w, b, d in layers)):
+        raise ShowkitError("the top-line network's weights are damaged (shapes or values)", path,
+                           "reinstall showkit")
+    for w, b, _ in layers:
+        w.flags.writeable = False
+        b.flags.writeable = False
+    return Net(layers, context)
 
 
 def log_posterior(x: np.ndarray, net: Net) -> np.ndarray:
@@ -130,25 +155,6 @@ def log_posterior(x: np.ndarray, net: Net) -> np.ndarray:
     z = h[:, :, 0]
     z = z - z.max(axis=1, keepdims=True)
     return z - np.log(np.exp(z).sum(axis=1, keepdims=True))
-
-
-def viterbi_bins(logp: np.ndarray) -> np.ndarray:
-    """The best path through the bins (index per frame) with a capped step cost per semitone."""
-    frames, k = logp.shape
-    semis = np.arange(k) * 12.0 / BINS_PER_OCTAVE
-    cost = STEP_COST * np.minimum(np.abs(semis[:, None] - semis[None, :]), STEP_CAP_SEMITONES)
-    back = np.zeros((frames, k), dtype=np.int16)
-    acc = logp[0].copy()
-    for t in range(1, frames):
-        cand = acc[None, :] - cost
-        b = cand.argmax(axis=1)
-        back[t] = b
-        acc = cand[np.arange(k), b] + logp[t]
-    path = np.zeros(frames, dtype=np.intp)
-    path[-1] = int(np.argmax(acc))
-    for t in range(frames - 1, 0, -1):
-        path[t - 1] = back[t, path[t]]
-    return path
 
 
 #: The file is analysed in pieces this long (s), each with this margin either side (s): memory stays bounded.
@@ -235,27 +241,3 @@ def notes_logp(blocks, times_s: np.ndarray, notes_hz: np.ndarray, net: Net | Non
     if have:
         run(True)
     return out
-
-
-def top_line(samples: np.ndarray, rate_hz: int, times_s: np.ndarray, notes_hz: np.ndarray,
-             net: Net | None = None) -> np.ndarray:
-    """The top line per frame, Hz (NaN where no note was found).
-
-    The path's bin is moved to the nearest note found in the frame within
-    50 cents (that note's precise frequency), else kept at the bin's centre.
-    """
-    net = load_weights() if net is None else net
-    db = cqt_db(samples, rate_hz)
-    logp = log_posterior(line_input(db, times_s, net.context), net)
-    path = viterbi_bins(logp)
-    f = out_hz()[path]
-    notes = np.asarray(notes_hz, dtype=float)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        cents = np.abs(1200.0 * np.log2(notes / f[:, None]))
-    cents = np.where(np.isfinite(cents), cents, np.inf)
-    k = cents.argmin(axis=1)
-    rows = np.arange(f.size)
-    near = cents[rows, k] <= 50.0
-    out = np.where(near, notes[rows, k], f)
-    any_note = np.isfinite(notes).any(axis=1)
-    return np.where(any_note, out, np.nan)
