@@ -81,15 +81,11 @@ def test_chunks_give_the_whole_track_answer():
     rate = topline.LINE_RATE_HZ
     x = np.concatenate([_chord(35.0, rate, (60, 64, 67)), _chord(35.0, rate, (57, 62, 69))])
     times = np.arange(0, 70.0, 1 / 30)
-    notes = np.tile(440.0 * 2 ** ((np.array([60.0, 64, 67, 72]) - 69) / 12), (times.size, 1))
-    notes[::5, 3] = np.nan
     net = topline.load_weights()
-    whole = topline.at_notes(topline.log_posterior(
-        topline.line_input(topline.cqt_db(x, rate), times, net.context), net), notes)
+    whole = topline.log_posterior(topline.line_input(topline.cqt_db(x, rate), times, net.context), net)
     for block in (4096, 7 * rate, x.size):
-        got = topline.notes_logp((x[i:i + block] for i in range(0, x.size, block)), times, notes, net)
-        assert np.abs(got - whole).max() < 0.05
-    assert np.all(whole[::5, 3] == -30.0)
+        got = topline.frame_logp((x[i:i + block] for i in range(0, x.size, block)), times, net)
+        assert got.shape == whole.shape and np.abs(got - whole).max() < 0.05
 
 
 @pytest.mark.parametrize("midi", [48, 60, 72, 84])
@@ -113,41 +109,46 @@ def test_at_notes_reads_the_nearest_bin():
     assert got[1, 0] == -30.0 and got[1, 1] == topline.OUT_BINS - 1 and got[1, 2] == -30.0
 
 
+def _posterior_at(frames, hz, sure=0.9):
+    """A network output that puts ``sure`` of its mass on the bin of ``hz`` (the rest spread evenly)."""
+    lp = np.full((frames, topline.OUT_BINS), np.log((1 - sure) / (topline.OUT_BINS - 1)))
+    b = int(np.argmin(np.abs(topline.out_hz() - hz)))
+    lp[:, b] = np.log(sure)
+    return lp
+
+
 def test_the_network_term_can_move_the_line():
     # two notes per frame; the height term prefers the upper one, a confident network the lower one
     frames = 40
     notes = np.tile([220.0, 440.0], (frames, 1))
     energy = np.ones_like(notes)
     assert np.allclose(dominant_pitch(notes, energy), 440.0)
-    sure = np.tile([0.0, -20.0], (frames, 1))
-    assert np.allclose(dominant_pitch(notes, energy, sure), 220.0)
-    # and a NaN note stays out whatever the network says
+    assert np.allclose(dominant_pitch(notes, energy, _posterior_at(frames, 220.0, 0.999)), 220.0)
+    # a NaN note stays out whatever the network says, and NaN posteriors count as improbable
     notes[:, 0] = np.nan
-    assert np.allclose(dominant_pitch(notes, energy, sure), 440.0)
+    assert np.allclose(dominant_pitch(notes, energy, _posterior_at(frames, 220.0, 0.999)), 440.0)
+    assert np.allclose(dominant_pitch(notes, energy, np.full((frames, topline.OUT_BINS), np.nan)), 440.0)
 
 
-def test_a_frame_without_a_choice_is_not_scored():
-    # frames with fewer than two notes get 0 (nothing to choose), frames with two are scored
-    rate = topline.LINE_RATE_HZ
-    x = _chord(4.0, rate, (60, 67))
-    times = np.arange(0.0, 4.0, 1 / 30)
-    notes = np.full((times.size, 3), np.nan)
-    notes[:, 0] = 261.63
-    notes[::2, 1] = 392.0
-    got = topline.notes_logp(iter([x]), times, notes)
-    assert np.all(got[1::2] == 0.0)
-    assert np.all(got[::2, :2] < 0.0) and np.all(got[::2, 2] == -30.0)
-
-
-@pytest.mark.parametrize("seconds", [0.05, 0.3, 31.0])
-def test_short_silent_and_odd_lengths(seconds):
-    # silence and lengths around the chunk edges: finite posteriors, one per frame
-    rate = topline.LINE_RATE_HZ
-    x = np.zeros(int(seconds * rate), dtype=np.float32)
-    times = np.arange(0.0, seconds, 1 / 30)
-    notes = np.tile([220.0, 440.0], (times.size, 1))
-    got = topline.notes_logp(iter([x[: x.size // 2], x[x.size // 2:]]), times, notes)
-    assert got.shape == notes.shape and np.all(np.isfinite(got))
+def test_the_networks_own_pitch_joins_only_when_it_agrees():
+    # frames 0-29: the network agrees with the line (440 Hz); frames 30-39 it hears 660 Hz, a pitch
+    # no note was found at.  Agreement 0.75 >= 0.5: its own pitch joins and wins where it is sure.
+    frames = 40
+    notes = np.tile([220.0, 440.0], (frames, 1))
+    energy = np.ones_like(notes)
+    lp = _posterior_at(frames, 440.0, 0.999)
+    lp[30:] = _posterior_at(10, 660.0, 0.999)
+    line = dominant_pitch(notes, energy, lp)
+    assert np.allclose(line[:25], 440.0)
+    assert np.all(np.abs(1200 * np.log2(line[32:] / 660.0)) < 20)
+    # agreement 0.25 < 0.5 (the network hears 660 Hz in 30 frames of 40): only found notes are named
+    lp2 = _posterior_at(frames, 660.0, 0.999)
+    lp2[30:] = _posterior_at(10, 440.0, 0.999)
+    line2 = dominant_pitch(notes, energy, lp2)
+    assert set(np.round(line2).tolist()) <= {220.0, 440.0}
+    # a frame without notes stays empty even when the network's pitch joins
+    notes[5] = np.nan
+    assert np.isnan(dominant_pitch(notes, energy, lp)[5])
 
 
 def test_damaged_weights_are_an_error(tmp_path):

@@ -28,8 +28,13 @@ DOMINANT_JUMP_CAP_SEMITONES = 5.0
 #: Reference of the height term, Hz (only differences of height matter).
 DOMINANT_HEIGHT_REF_HZ = 100.0
 #: Weight of the trained network's log posterior that a note is the frame's top note
-#: (:mod:`showkit.analysis.topline`), when it is given.
+#: (:mod:`showkit.analysis.topline`), when it is given ...
 DOMINANT_NETWORK_WEIGHT = 0.3
+#: ... the network's best pitch joins each frame's candidates on a track where its own line agrees
+#: (within 50 cents) with this line on at least this share of the frames ...
+DOMINANT_NETWORK_AGREEMENT = 0.5
+#: ... its score lowered by this much.
+DOMINANT_NETWORK_OWN_PENALTY = 2.0
 
 
 @dataclass(frozen=True)
@@ -92,30 +97,66 @@ def dominant_pitch(notes_hz: np.ndarray, notes_energy: np.ndarray, top_logp: np.
     the line on a decaying piano note under newer, louder accompaniment and
     off the upper partials that flicker in and out of the note list.
 
+    With the trained network's output (``top_logp``) each note also scores
+    ``DOMINANT_NETWORK_WEIGHT`` times the network's log posterior at its
+    pitch; and where the network's own line agrees with that line on at least
+    :data:`DOMINANT_NETWORK_AGREEMENT` of the frames, the network's best pitch
+    of each frame joins the candidates (a note the search did not find, often
+    one hidden on a lower note's partial), scored like a note of the frame's
+    least energy, less :data:`DOMINANT_NETWORK_OWN_PENALTY`.
+
     Parameters
     ----------
     notes_hz : ndarray (frames, notes)
         Frequencies of the notes found, Hz (NaN for none).
     notes_energy : ndarray (frames, notes)
         Energy of each note's partials (any unit; only ratios within a frame matter).
-    top_logp : ndarray (frames, notes), optional
-        Each note's log posterior of being the frame's top note from the trained
-        network (:func:`showkit.analysis.topline.notes_logp`), added to its score
-        with weight :data:`DOMINANT_NETWORK_WEIGHT`.
+    top_logp : ndarray (frames, bins), optional
+        The network's log posterior per output bin and frame
+        (:func:`showkit.analysis.topline.frame_logp`); non-finite values count as
+        improbable.
     """
     f = np.asarray(notes_hz, dtype=float)
     e = np.asarray(notes_energy, dtype=float)
     if f.ndim != 2 or f.shape[1] == 0 or f.shape[0] == 0:
         return np.full(f.shape[0] if f.ndim else 0, np.nan)
+    if top_logp is None:
+        return _line(f, e, None, 0.0)
+    from showkit.analysis import topline
+
+    lp = np.asarray(top_logp, dtype=float)
+    lp = np.where(np.isfinite(lp), lp, topline.IMPROBABLE)
+    line = _line(f, e, lp, 0.0)
+    v = np.isfinite(line)
+    own = topline.own_path_hz(lp)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        agree = float(np.mean(np.abs(1200.0 * np.log2(own[v] / line[v])) < 50.0)) if v.any() else 0.0
+    if agree < DOMINANT_NETWORK_AGREEMENT:
+        return line
+    best = topline.out_hz()[lp.argmax(axis=1)]
+    ok = np.isfinite(f) & (e > 0)
+    least = np.min(np.where(ok, e, np.inf), axis=1)
+    f2 = np.concatenate([f, best[:, None]], axis=1)
+    e2 = np.concatenate([e, np.where(np.isfinite(least), least, 1.0)[:, None]], axis=1)
+    out = _line(f2, e2, lp, DOMINANT_NETWORK_OWN_PENALTY)
+    return np.where(ok.any(axis=1), out, np.nan)
+
+
+def _line(f: np.ndarray, e: np.ndarray, lp: np.ndarray | None, own_penalty: float) -> np.ndarray:
+    """The Viterbi line through candidates ``f`` (energies ``e``); with the network's ``lp`` its term,
+    and ``own_penalty`` off the last candidate (the network's own, when it was added)."""
     ok = np.isfinite(f) & (e > 0)
     peak = np.max(np.where(ok, e, 0.0), axis=1, keepdims=True)
     with np.errstate(divide="ignore", invalid="ignore"):
         share = np.log(np.where(ok, e, 1.0) / np.where(peak > 0, peak, 1.0))
         height = np.log2(np.where(ok, f, 1.0) / DOMINANT_HEIGHT_REF_HZ)
     score = DOMINANT_ENERGY_WEIGHT * share + DOMINANT_HEIGHT_WEIGHT * height
-    if top_logp is not None:
-        lp = np.asarray(top_logp, dtype=float)
-        score = score + DOMINANT_NETWORK_WEIGHT * np.where(np.isfinite(lp), lp, -30.0)
+    if lp is not None:
+        from showkit.analysis import topline
+
+        score = score + DOMINANT_NETWORK_WEIGHT * topline.at_notes(lp, f)
+        if own_penalty:
+            score[:, -1] -= own_penalty
     score = np.where(ok, score, -np.inf)
     semitones = 12.0 * np.log2(np.where(ok, f, 1.0))
     path = _best_path(score, semitones, DOMINANT_JUMP_WEIGHT, DOMINANT_JUMP_CAP_SEMITONES)

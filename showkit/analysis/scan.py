@@ -285,19 +285,15 @@ def track_frames(rig: Rig, path: str | Path, shift_cents: float = 0.0) -> dict:
 
 
 def _top_logp(work: _Work) -> np.ndarray:
-    """The trained network's log posterior of each found note being its frame's top note
-    (:func:`showkit.analysis.topline.notes_logp`), from the file read again at the network's rate.
+    """The trained network's log posterior of each pitch being its frame's top note
+    (:func:`showkit.analysis.topline.frame_logp`), from the file read again at the network's rate.
 
-    Kept in process per file (path, size, modification time) and notes found: the
-    Track view asks again at every transposition tried, and the network reads only the audio.
+    Kept in process per file (path, size, modification time) and frames: the Track view
+    asks again at every transposition tried, and the network reads only the audio.
     """
-    import hashlib
-
     features = work.features
     st = work.path.stat()
-    notes = np.ascontiguousarray(features.notes_hz, dtype=float)
-    key = (str(work.path), st.st_size, st.st_mtime_ns, float(features.frame_rate_hz),
-           hashlib.blake2b(notes.tobytes(), digest_size=16).hexdigest())
+    key = (str(work.path), st.st_size, st.st_mtime_ns, float(features.frame_rate_hz), int(features.frames))
     if key not in _TOP_LOGP:
         from threadpoolctl import threadpool_limits
 
@@ -305,7 +301,7 @@ def _top_logp(work: _Work) -> np.ndarray:
 
         times = np.arange(features.frames) / features.frame_rate_hz
         with threadpool_limits(limits=1):
-            out = topline.notes_logp(read_blocks(work.path, topline.LINE_RATE_HZ), times, notes)
+            out = topline.frame_logp(read_blocks(work.path, topline.LINE_RATE_HZ), times)
         out.flags.writeable = False
         while len(_TOP_LOGP) >= _TOP_LOGP_KEPT:
             _TOP_LOGP.pop(next(iter(_TOP_LOGP)))
@@ -313,9 +309,10 @@ def _top_logp(work: _Work) -> np.ndarray:
     return _TOP_LOGP[key]
 
 
-#: Network posteriors kept in process (a few tracks: each is frames x notes float32).
+#: Network posteriors kept in process (the Track view's track and one more: 0.7 kB per frame,
+#: 75 MB for an hour).
 _TOP_LOGP: dict = {}
-_TOP_LOGP_KEPT = 8
+_TOP_LOGP_KEPT = 2
 
 
 def scan_track(rig: Rig, path: str | Path, threads: int | None = None) -> dict:

@@ -5,8 +5,8 @@ A stack of constant-Q spectra read at the harmonics of each candidate pitch
 "Deep salience representations for F0 estimation in polyphonic music", ISMIR
 2017) is fed to a small convolutional network along log frequency that gives
 each pitch bin a log posterior of being the frame's highest sounding note;
-:func:`notes_logp` reads it at the notes the scan found, and
-:func:`showkit.analysis.pitches.dominant_pitch` adds it to their scores
+:func:`frame_logp` gives it for every frame of a track, and
+:func:`showkit.analysis.pitches.dominant_pitch` adds it to the found notes' scores
 (DEVELOPERS.md Methods §8b, with the measured gain and its limits).  Weights:
 ``showkit/data/topline_weights.npz``, trained by
 ``tests/benchmarks/train_line_model.py`` on public-domain scores rendered through
@@ -162,7 +162,11 @@ CHUNK_S = 30.0
 MARGIN_S = 3.0
 
 
-def at_notes(logp: np.ndarray, notes_hz: np.ndarray, outside: float = -30.0) -> np.ndarray:
+#: Log posterior given to a pitch outside the network's range (and to a non-finite value).
+IMPROBABLE = -30.0
+
+
+def at_notes(logp: np.ndarray, notes_hz: np.ndarray, outside: float = IMPROBABLE) -> np.ndarray:
     """Each note's log posterior (frames, notes): the value of its nearest output bin (``outside`` off the range)."""
     f = np.asarray(notes_hz, dtype=float)
     ok = np.isfinite(f) & (f > 0)
@@ -179,35 +183,28 @@ def at_notes(logp: np.ndarray, notes_hz: np.ndarray, outside: float = -30.0) -> 
 BATCH_FRAMES = 32
 
 
-def _at_notes_batched(db: np.ndarray, idx: np.ndarray, notes: np.ndarray, net: Net) -> np.ndarray:
-    """:func:`at_notes` of the network's output for rows ``idx`` of ``db``, :data:`BATCH_FRAMES` at a time."""
+def _batched(db: np.ndarray, idx: np.ndarray, net: Net) -> np.ndarray:
+    """The network's log posteriors for rows ``idx`` of ``db``, :data:`BATCH_FRAMES` at a time."""
     lo = np.zeros(BATCH_FRAMES, dtype=int)
     hi = np.full(BATCH_FRAMES, db.shape[0] - 1)
-    out = np.empty(notes.shape, dtype=np.float32)
+    out = np.empty((idx.size, OUT_BINS), dtype=np.float32)
     for i in range(0, idx.size, BATCH_FRAMES):
         j = idx[i:i + BATCH_FRAMES]
-        x = gather_input(db, j, lo[:j.size], hi[:j.size], net.context)
-        out[i:i + j.size] = at_notes(log_posterior(x, net), notes[i:i + j.size])
+        out[i:i + j.size] = log_posterior(gather_input(db, j, lo[:j.size], hi[:j.size], net.context), net)
     return out
 
 
-def notes_logp(blocks, times_s: np.ndarray, notes_hz: np.ndarray, net: Net | None = None) -> np.ndarray:
-    """Each found note's log posterior of being the frame's top note, from audio blocks at LINE_RATE_HZ.
+def frame_logp(blocks, times_s: np.ndarray, net: Net | None = None) -> np.ndarray:
+    """Log posterior of every output bin being the frame's top note (frames, OUT_BINS), float32.
 
     ``blocks`` yields mono sample blocks at :data:`LINE_RATE_HZ` (e.g.
     :func:`showkit.analysis.audio.read_blocks`); the track is analysed
-    :data:`CHUNK_S` at a time with :data:`MARGIN_S` either side, so memory is
-    bounded whatever its length.  Returns (frames, notes): -30 for a note
-    outside the network's range or a missing note, 0 in a frame with fewer
-    than two notes (nothing to choose there; the network is not run).
+    :data:`CHUNK_S` at a time with :data:`MARGIN_S` either side, so the audio
+    held is bounded whatever the track's length (the result is 0.7 kB per frame).
     """
     net = load_weights() if net is None else net
     pos = np.asarray(times_s, dtype=float) * LINE_RATE_HZ       # frame centres, samples
-    notes = np.asarray(notes_hz, dtype=float)
-    out = np.full(notes.shape, -30.0, dtype=np.float32)
-    # a frame with one note or none has no choice to make: the network is not run there
-    choice = np.isfinite(notes).sum(axis=1) >= 2 if notes.ndim == 2 else np.zeros(pos.size, bool)
-    out[~choice] = 0.0
+    out = np.zeros((pos.size, OUT_BINS), dtype=np.float32)
     chunk = int(CHUNK_S * LINE_RATE_HZ) // LINE_HOP * LINE_HOP
     margin = int(MARGIN_S * LINE_RATE_HZ) // LINE_HOP * LINE_HOP
     parts: list = []
@@ -223,10 +220,10 @@ def notes_logp(blocks, times_s: np.ndarray, notes_hz: np.ndarray, net: Net | Non
             lo = max(core - margin, 0)
             hi = end if last else core + chunk + margin
             db = cqt_db(buf[lo - start:hi - start], LINE_RATE_HZ)
-            sel = choice & (pos >= core) & ((pos < core + chunk) | (last and core + chunk >= end))
+            sel = (pos >= core) & ((pos < core + chunk) | (last and core + chunk >= end))
             if sel.any():
                 idx = np.clip(np.rint(pos[sel] / LINE_HOP).astype(int) - lo // LINE_HOP, 0, db.shape[0] - 1)
-                out[sel] = _at_notes_batched(db, idx, notes[sel], net)
+                out[sel] = _batched(db, idx, net)
             core += chunk
         keep = max(core - margin, start)
         parts = [buf[keep - start:]]
@@ -241,3 +238,31 @@ def notes_logp(blocks, times_s: np.ndarray, notes_hz: np.ndarray, net: Net | Non
     if have:
         run(True)
     return out
+
+
+#: The network's own path through its bins: step cost per semitone between frames, and its cap.
+STEP_COST = 0.35
+STEP_CAP_SEMITONES = 6.0
+
+
+def own_path_hz(logp: np.ndarray) -> np.ndarray:
+    """The network's own line, Hz per frame: the best path through its bins (Viterbi decoding,
+    a step costing :data:`STEP_COST` per semitone up to :data:`STEP_CAP_SEMITONES`)."""
+    frames, k = logp.shape
+    if frames == 0:
+        return np.zeros(0)
+    semis = np.arange(k) * 12.0 / BINS_PER_OCTAVE
+    cost = STEP_COST * np.minimum(np.abs(semis[:, None] - semis[None, :]), STEP_CAP_SEMITONES)
+    back = np.zeros((frames, k), dtype=np.int16)
+    acc = logp[0].astype(float)
+    cols = np.arange(k)
+    for t in range(1, frames):
+        cand = acc[None, :] - cost
+        b = cand.argmax(axis=1)
+        back[t] = b
+        acc = cand[cols, b] + logp[t]
+    path = np.zeros(frames, dtype=np.intp)
+    path[-1] = int(np.argmax(acc))
+    for t in range(frames - 1, 0, -1):
+        path[t - 1] = back[t, path[t]]
+    return out_hz()[path]

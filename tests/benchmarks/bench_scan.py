@@ -157,14 +157,14 @@ def real_music_comparison() -> None:
               f"median {np.median(ratios):.1f}x (range {min(ratios):.1f}-{max(ratios):.1f}x); scan median "
               f"{np.median(scans):.2f} s, decode + resample median {np.median(decodes):.2f} s")
     # The map (scan --map, the Track view) adds the top-line network (analysis/topline.py): its
-    # own decode at 22.05 kHz, a VQT and the network on frames with two notes or more.
+    # own decode at 22.05 kHz, a VQT and the network on every frame.
     from showkit.analysis import topline
 
     work = scan_mod._analyse(rig, path, threads=1)
     times = np.arange(work.features.frames) / work.features.frame_rate_hz
     with threadpool_limits(limits=1):
         c = time.process_time()
-        topline.notes_logp(read_blocks(path, topline.LINE_RATE_HZ), times, work.features.notes_hz)
+        topline.frame_logp(read_blocks(path, topline.LINE_RATE_HZ), times)
         net_cpu = time.process_time() - c
     print(f"  the map's top-line network: {net_cpu:.2f} s CPU = {net_cpu / 4:.2f} s per minute of audio "
           f"(map only; the scan's ranking does not run it)")
