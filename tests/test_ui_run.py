@@ -433,3 +433,18 @@ async def test_a_gain_lowered_in_the_show_view_is_followed_by_the_run_view(ui_sh
     assert records[held]["cue"] == "welcome"
     assert any(r["event"] == "check" and r["cue"] == "welcome" and r["gain_db"] == pytest.approx(old - 0.5)
                for r in records[held:])
+
+
+@sync
+async def test_a_job_step_after_the_screen_is_gone_is_ignored(ui_short_show, fake_sd):
+    # a worker's progress message can arrive while the app closes (seen once in CI: NoMatches on
+    # '#progress' at teardown); the bookkeeping goes on and nothing raises
+    app = make_app(ui_short_show, view="run")
+    async with app.run_test(size=APP_SIZE) as pilot:
+        await settle(pilot)
+        await app.query_one("#progress").remove()
+        worker = object()
+        app._job(worker, 1, 4)
+        assert app._jobs[worker] == (1, 4)
+        app._job(worker, end=True)
+        assert worker not in app._jobs

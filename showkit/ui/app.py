@@ -231,11 +231,13 @@ class ShowkitApp(JobRunner, App):
 
     def _job(self, worker, done: int = 0, total: int = 0, end: bool = False) -> None:
         """The progress bar: the sum of the steps of every job (worker) still running."""
-        bar = self.query_one("#progress", ProgressBar)
         if end:
             self._jobs.pop(worker, None)
         else:
             self._jobs[worker] = (done, total)
+        bar = next(iter(self.query("#progress").results(ProgressBar)), None)
+        if bar is None:
+            return  # a step that arrived while the app was closing: its screen is gone
         if not self._jobs:
             bar.display = False
             return

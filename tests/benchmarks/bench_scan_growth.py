@@ -1,7 +1,9 @@
 """How the scan grows with the track's length, and a folder scan with 1 and 2 workers.
 
-Run by hand: ``python tests/benchmarks/bench_scan_growth.py [--sizes 0.5 4 15 60] [--folder-only] [--cold]``
-(``--cold``: the folder timed as fresh ``showkit scan FOLDER`` processes, imports included).
+Run by hand: ``python tests/benchmarks/bench_scan_growth.py [--sizes 0.5 4 15 60] [--folder-only] [--cold] [--map]``
+(``--cold``: the folder timed as fresh ``showkit scan FOLDER`` processes, imports included;
+``--map``: each length's map as ``scan --map`` makes it, the top-line network included, in place
+of the scan).
 
 Inputs are musical: the real-music set of ``tests/realmusic.py`` (public-domain
 scores from music21's corpus played by fluidsynth with the FluidR3 GM
@@ -46,7 +48,9 @@ hole_filters(rig)
 ready = time.perf_counter()
 path = sys.argv[1]
 jobs = int(sys.argv[2])
-if path != "-":
+if path != "-" and jobs == 0:      # the map (scan --map): the analysis plus the top-line network
+    scan_mod.track_map(rig, path)
+elif path != "-":
     out = scan_mod.scan_paths(rig, [path], jobs=jobs, use_cache=False)
     assert out[0]["error"] is None, out[0]["error"]
 done = time.perf_counter()
@@ -98,6 +102,7 @@ def main() -> int:
     ap.add_argument("--sizes", type=float, nargs="*", default=[0.5, 4.0, 15.0, 60.0])
     ap.add_argument("--corpus", default=os.path.join(tempfile.gettempdir(), "showkit-realmusic"))
     ap.add_argument("--folder-only", action="store_true")
+    ap.add_argument("--map", action="store_true", help="time each length's map (scan --map), not the scan")
     ap.add_argument("--cold", action="store_true",
                     help="time the folder as a user runs it: a fresh 'showkit scan FOLDER --jobs N --no-cache' "
                          "process per run (imports included), not a warmed process calling scan_paths")
@@ -115,16 +120,18 @@ def main() -> int:
               f"scan_paths as 'showkit scan --jobs 1 --no-cache')   load avg")
         for minutes in args.sizes:
             path = musical(corpus, minutes, tmp / f"m{minutes:g}.flac")
-            r = child(str(path), jobs=1)
+            r = child(str(path), jobs=0 if args.map else 1)
             print(f"{minutes:8g} {r['scan_s']:8.1f} {r['scan_s'] / minutes:7.2f} {r['peak_mb']:8.0f}"
-                  f"   {os.getloadavg()[0]:.1f}", flush=True)
-            if minutes == max(args.sizes):
+                  f"   {os.getloadavg()[0]:.1f}{'  (the map)' if args.map else ''}", flush=True)
+            if minutes == max(args.sizes) and not args.map:
                 # 'showkit scan FILE' with two cores: one file is scanned in this process, its
                 # pressure pass on threads sharing the same buffers
                 r = child(str(path), jobs=2)
                 print(f"{minutes:8g} {r['scan_s']:8.1f} {r['scan_s'] / minutes:7.2f} {r['peak_mb']:8.0f}"
                       f"   {os.getloadavg()[0]:.1f}  (--jobs 2)", flush=True)
             path.unlink()
+    if args.map:
+        return 0
     # folder: the set's 13 short tracks four times over (52 files, 20-30 s each)
     folder = tmp / "folder"
     folder.mkdir()
