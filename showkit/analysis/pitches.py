@@ -124,8 +124,9 @@ def dominant_pitch(notes_hz: np.ndarray, notes_energy: np.ndarray, top_logp: np.
         return _line(f, e, None, 0.0)
     from showkit.analysis import topline
 
-    lp = np.asarray(top_logp, dtype=float)
-    lp = np.where(np.isfinite(lp), lp, topline.IMPROBABLE)
+    lp = np.asarray(top_logp, dtype=np.float32)          # frames x bins: float32 (75 MB for an hour)
+    if not np.all(np.isfinite(lp)):
+        lp = np.where(np.isfinite(lp), lp, np.float32(topline.IMPROBABLE))
     line = _line(f, e, lp, 0.0)
     v = np.isfinite(line)
     own = topline.own_path_hz(lp)

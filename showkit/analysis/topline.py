@@ -254,7 +254,7 @@ def own_path_hz(logp: np.ndarray) -> np.ndarray:
     semis = np.arange(k) * 12.0 / BINS_PER_OCTAVE
     cost = STEP_COST * np.minimum(np.abs(semis[:, None] - semis[None, :]), STEP_CAP_SEMITONES)
     back = np.zeros((frames, k), dtype=np.int16)
-    acc = logp[0].astype(float)
+    acc = logp[0].astype(np.float64)
     cols = np.arange(k)
     for t in range(1, frames):
         cand = acc[None, :] - cost
