@@ -183,11 +183,22 @@ def _best_path(score: np.ndarray, semitones: np.ndarray, jump_weight: float, cap
     cost = jump_weight * np.minimum(np.abs(semitones[1:, :, None] - semitones[:-1, None, :]), cap_semitones)
     stay = np.where(np.eye(k, dtype=bool), 0.0, 1e9)
     cost[empty[1:]] = stay                                # (to, from): an empty frame keeps the path
-    back = np.zeros((frames, k), dtype=np.intp)
-    acc = emit[0].copy()
+    return viterbi(emit, lambda t: cost[t - 1])
+
+
+def viterbi(emit: np.ndarray, step_cost) -> np.ndarray:
+    """The max-plus recursion and backtrack: per frame, the index of the state on the best path.
+
+    ``emit`` (frames, states) are log-scores; ``step_cost(t)`` gives the (to, from)
+    cost matrix of the step into frame ``t``.  One small max-plus product per
+    frame; back-pointers kept as int16 (at most 32767 states).
+    """
+    frames, k = emit.shape
+    back = np.zeros((frames, k), dtype=np.int16)
+    acc = emit[0].astype(np.float64)
     cols = np.arange(k)
     for t in range(1, frames):
-        cand = acc - cost[t - 1]
+        cand = acc - step_cost(t)
         b = cand.argmax(axis=1)
         back[t] = b
         acc = cand[cols, b] + emit[t]

@@ -248,21 +248,11 @@ STEP_CAP_SEMITONES = 6.0
 def own_path_hz(logp: np.ndarray) -> np.ndarray:
     """The network's own line, Hz per frame: the best path through its bins (Viterbi decoding,
     a step costing :data:`STEP_COST` per semitone up to :data:`STEP_CAP_SEMITONES`)."""
+    from showkit.analysis.pitches import viterbi
+
     frames, k = logp.shape
     if frames == 0:
         return np.zeros(0)
     semis = np.arange(k) * 12.0 / BINS_PER_OCTAVE
     cost = STEP_COST * np.minimum(np.abs(semis[:, None] - semis[None, :]), STEP_CAP_SEMITONES)
-    back = np.zeros((frames, k), dtype=np.int16)
-    acc = logp[0].astype(np.float64)
-    cols = np.arange(k)
-    for t in range(1, frames):
-        cand = acc[None, :] - cost
-        b = cand.argmax(axis=1)
-        back[t] = b
-        acc = cand[cols, b] + logp[t]
-    path = np.zeros(frames, dtype=np.intp)
-    path[-1] = int(np.argmax(acc))
-    for t in range(frames - 1, 0, -1):
-        path[t - 1] = back[t, path[t]]
-    return out_hz()[path]
+    return out_hz()[viterbi(logp, lambda t: cost)]
