@@ -218,19 +218,21 @@ def frame_notes_text(work: _Work, shift_cents: float = 0.0) -> list[str]:
     return out
 
 
-def map_data(work: _Work, shift_cents: float = 0.0, mf=None, top_logp=None) -> dict:
+def map_data(work: _Work, shift_cents: float = 0.0, mf=None, dominant_hz=None) -> dict:
     """The time x mode map as data (the ``--map`` file and what the Track view draws).
 
     ``{"hop_s", "times_s", "modes": [{"n", "frequency_hz", "note"}], "strength": [[0-1 per frame]
     per mode], "hit": [[bool per frame] per mode], "notes_hz": [[every note found] per frame]}``,
-    plus ``"dominant_hz"`` (the dominant pitch per frame, 0 for none:
-    :func:`showkit.analysis.pitches.dominant_pitch`, with the trained network's
-    ``top_logp`` when given) and ``"shift_cents"``.
+    plus ``"dominant_hz"`` (the dominant pitch per frame as recorded, 0 for none: ``dominant_hz``
+    when given -- :func:`dominant_line`, with the trained network -- else
+    :func:`showkit.analysis.pitches.dominant_pitch` of the notes alone) and ``"shift_cents"``.
     Notes are given as heard after the shift.
     """
     if mf is None:
         mf = mode_frames(work.features, work.table, work.gate, shift_cents)
     features, table = work.features, work.table
+    if dominant_hz is None:
+        dominant_hz = dominant_pitch(features.notes_hz, features.notes_energy)
     hop_s = 1.0 / features.frame_rate_hz
     scale = 2.0 ** (shift_cents / 1200.0)
     notes = [[round(float(f) * scale, 2) for f in row if np.isfinite(f)] for row in features.notes_hz]
@@ -242,7 +244,7 @@ def map_data(work: _Work, shift_cents: float = 0.0, mf=None, top_logp=None) -> d
             "hit": mf.hit.tolist(),
             "notes_hz": notes,
             "dominant_hz": [round(float(f) * scale, 2) if np.isfinite(f) else 0.0
-                            for f in dominant_pitch(features.notes_hz, features.notes_energy, top_logp)],
+                            for f in dominant_hz],
             "shift_cents": float(shift_cents)}
 
 
@@ -281,38 +283,46 @@ def track_frames(rig: Rig, path: str | Path, shift_cents: float = 0.0) -> dict:
     work = _analyse(rig, path)
     score, scores, mf = work.promised_at(shift_cents)
     return {"score": float(score), "passages": passage_rows(work, scores, mf),
-            "map": map_data(work, shift_cents, mf, _top_logp(work)), "notes": frame_notes_text(work, shift_cents)}
+            "map": map_data(work, shift_cents, mf, dominant_line(work)), "notes": frame_notes_text(work, shift_cents)}
 
 
-def _top_logp(work: _Work) -> np.ndarray:
-    """The trained network's log posterior of each pitch being its frame's top note
-    (:func:`showkit.analysis.topline.frame_logp`), from the file read again at the network's rate.
+def dominant_line(work: _Work) -> np.ndarray:
+    """The dominant pitch per frame as recorded, Hz (NaN for none), with the trained network's word
+    (:func:`showkit.analysis.pitches.dominant_pitch` on
+    :func:`showkit.analysis.topline.frame_logp`, the file read again at the network's rate).
 
-    Kept in process per file (path, size, modification time) and frames: the Track view
-    asks again at every transposition tried, and the network reads only the audio.
+    Kept in process per file (path, size, modification time) and notes found: the Track view
+    asks again at every transposition tried, and the line does not depend on the shift (the
+    map scales it).  Only the line is kept, not the network's output (75 MB for an hour).
     """
+    import hashlib
+
+    from showkit.analysis import topline
+
     features = work.features
     st = work.path.stat()
-    key = (str(work.path), st.st_size, st.st_mtime_ns, float(features.frame_rate_hz), int(features.frames))
-    if key not in _TOP_LOGP:
+    digest = hashlib.blake2b(digest_size=16)
+    for a in (features.notes_hz, features.notes_energy):
+        digest.update(np.ascontiguousarray(a, dtype=float).tobytes())
+    key = (str(work.path), st.st_size, st.st_mtime_ns, float(features.frame_rate_hz), digest.hexdigest())
+    if key not in _DOMINANT:
         from threadpoolctl import threadpool_limits
-
-        from showkit.analysis import topline
 
         times = np.arange(features.frames) / features.frame_rate_hz
         with threadpool_limits(limits=1):
-            out = topline.frame_logp(read_blocks(work.path, topline.LINE_RATE_HZ), times)
-        out.flags.writeable = False
-        while len(_TOP_LOGP) >= _TOP_LOGP_KEPT:
-            _TOP_LOGP.pop(next(iter(_TOP_LOGP)))
-        _TOP_LOGP[key] = out
-    return _TOP_LOGP[key]
+            logp = topline.frame_logp(read_blocks(work.path, topline.LINE_RATE_HZ), times)
+        line = dominant_pitch(features.notes_hz, features.notes_energy, logp)
+        del logp
+        line.flags.writeable = False
+        while len(_DOMINANT) >= _DOMINANT_KEPT:
+            _DOMINANT.pop(next(iter(_DOMINANT)))
+        _DOMINANT[key] = line
+    return _DOMINANT[key]
 
 
-#: Network posteriors kept in process (the Track view's track and one more: 0.7 kB per frame,
-#: 75 MB for an hour).
-_TOP_LOGP: dict = {}
-_TOP_LOGP_KEPT = 2
+#: Dominant lines kept in process (a few tracks; 8 bytes per frame).
+_DOMINANT: dict = {}
+_DOMINANT_KEPT = 8
 
 
 def scan_track(rig: Rig, path: str | Path, threads: int | None = None) -> dict:

@@ -90,14 +90,10 @@ def gather_input(db: np.ndarray, idx: np.ndarray, lo: np.ndarray, hi: np.ndarray
     return (np.stack(chans, axis=1).astype(np.float32) / FLOOR_DB + 1.0).astype(np.float32)
 
 
-def _conv(x: np.ndarray, w: np.ndarray, b: np.ndarray, dilation: int) -> np.ndarray:
-    """'Same' 1-D cross-correlation along the last axis (as torch.nn.Conv1d): x (frames, cin, bins),
-    w (cout, cin, k); one matrix product over the stacked shifted inputs (im2col)."""
-    return _conv_last(np.ascontiguousarray(x.transpose(0, 2, 1)), w, b, dilation).transpose(0, 2, 1)
-
-
 def _conv_last(x: np.ndarray, w: np.ndarray, b: np.ndarray, dilation: int) -> np.ndarray:
-    """:func:`_conv` on channels-last arrays: x (frames, bins, cin) -> (frames, bins, cout)."""
+    """'Same' 1-D cross-correlation along the bins (as torch.nn.Conv1d), channels last:
+    x (frames, bins, cin), w (cout, cin, k) -> (frames, bins, cout); one matrix product over the
+    stacked shifted inputs (im2col)."""
     cout, cin, k = w.shape
     frames, bins, _ = x.shape
     pad = dilation * (k - 1) // 2

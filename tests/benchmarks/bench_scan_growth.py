@@ -47,10 +47,11 @@ from showkit.analysis.pressure import hole_filters
 hole_filters(rig)
 ready = time.perf_counter()
 path = sys.argv[1]
-jobs = int(sys.argv[2])
-if path != "-" and jobs == 0:      # the map (scan --map): the analysis plus the top-line network
+mode = sys.argv[2]                 # a worker count, or "map"
+if path != "-" and mode == "map":  # the map (scan --map): the analysis plus the top-line network
     scan_mod.track_map(rig, path)
 elif path != "-":
+    jobs = int(mode)
     out = scan_mod.scan_paths(rig, [path], jobs=jobs, use_cache=False)
     assert out[0]["error"] is None, out[0]["error"]
 done = time.perf_counter()
@@ -69,7 +70,8 @@ print(json.dumps({"scan_s": done - ready, "import_s": ready - t0, "peak_mb": hwm
 """
 
 
-def child(path: str, jobs: int = 1) -> dict:
+def child(path: str, jobs: int | str = 1) -> dict:
+    """One fresh process: ``jobs`` workers scan ``path`` ("-": none), or ``jobs="map"`` makes its map."""
     env = dict(os.environ, PYTHONPATH=os.environ.get("PYTHONPATH") or str(REPO))
     r = subprocess.run([sys.executable, "-c", CHILD, path, str(jobs)], capture_output=True, text=True,
                        env=env, check=False)
@@ -120,7 +122,7 @@ def main() -> int:
               f"scan_paths as 'showkit scan --jobs 1 --no-cache')   load avg")
         for minutes in args.sizes:
             path = musical(corpus, minutes, tmp / f"m{minutes:g}.flac")
-            r = child(str(path), jobs=0 if args.map else 1)
+            r = child(str(path), jobs="map" if args.map else 1)
             print(f"{minutes:8g} {r['scan_s']:8.1f} {r['scan_s'] / minutes:7.2f} {r['peak_mb']:8.0f}"
                   f"   {os.getloadavg()[0]:.1f}{'  (the map)' if args.map else ''}", flush=True)
             if minutes == max(args.sizes) and not args.map:
