@@ -54,22 +54,28 @@ def out_hz() -> np.ndarray:
 
 
 def cqt_db(samples: np.ndarray, rate_hz: int) -> np.ndarray:
-    """Log-magnitude constant-Q spectrogram (frames, CQT_BINS), dB re each frame's strongest bin, clipped."""
-    import librosa
+    """Log-magnitude constant-Q spectrogram (frames, CQT_BINS), dB re each frame's strongest bin, clipped.
+
+    :func:`showkit.analysis.constantq.cqt_magnitude` at A440 (no tuning estimate): the
+    shipped weights were trained on librosa's ``vqt`` with its per-excerpt tuning estimate,
+    and reading at A440 gave the same raw pitch accuracy on both evaluation sets (DEVELOPERS.md
+    Methods §8b).
+    """
     import soxr
+
+    from showkit.analysis.constantq import cqt_magnitude
 
     x = np.asarray(samples, dtype=np.float32)
     if rate_hz != LINE_RATE_HZ:
         x = soxr.resample(x, rate_hz, LINE_RATE_HZ)
     rows = 1 + x.size // LINE_HOP
-    if x.size < MIN_CQT_SAMPLES:      # librosa's lowest octaves need this much signal: zeros after it
+    if x.size < MIN_CQT_SAMPLES:      # as trained: short signals get zeros after them
         x = np.concatenate([x, np.zeros(MIN_CQT_SAMPLES - x.size, dtype=np.float32)])
     fmin = 440.0 * 2.0 ** ((CQT_LOW_MIDI - 69.0) / 12.0)
-    c = np.abs(librosa.vqt(x, sr=LINE_RATE_HZ, hop_length=LINE_HOP, fmin=fmin, n_bins=CQT_BINS,
-                           bins_per_octave=BINS_PER_OCTAVE, gamma=0.0)).T[:rows].astype(np.float32)
-    db = 20.0 * np.log10(c + 1e-7)
+    c = cqt_magnitude(x, LINE_RATE_HZ, LINE_HOP, fmin, CQT_BINS, BINS_PER_OCTAVE)[:rows]
+    db = 20.0 * np.log10(c + np.float32(1e-7))
     db -= db.max(axis=1, keepdims=True)
-    return np.maximum(db, -FLOOR_DB)
+    return np.maximum(db, np.float32(-FLOOR_DB))
 
 
 def line_input(db: np.ndarray, times_s: np.ndarray, context=CONTEXT) -> np.ndarray:

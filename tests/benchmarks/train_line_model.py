@@ -23,6 +23,13 @@ harmonic timbres (:func:`_timbre`), so the network does not learn one sound set'
 instruments.  ``train`` fits the network with torch on CPU (cross-entropy over the
 output bins, the target spread over the note's three bins) and writes the
 weights as numpy arrays; inference in showkit is numpy only.
+
+The shipped weights' data was made when ``topline.cqt_db`` was librosa's ``vqt`` with
+its per-excerpt tuning estimate; it is now showkit's own constant-Q transform at
+A440 (``showkit/analysis/constantq.py``, equal to ``librosa.vqt(tuning=0)`` within
+0.01 dB), so the commands above now give features that differ by that tuning
+estimate (a few cents on these renders) and slightly different weights; read
+either way, the shipped weights score the same on both evaluation sets.
 """
 
 from __future__ import annotations
