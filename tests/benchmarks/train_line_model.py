@@ -28,7 +28,7 @@ The shipped weights' data was made when ``topline.cqt_db`` was librosa's ``vqt``
 its per-excerpt tuning estimate; it is now showkit's own constant-Q transform at
 A440 (``showkit/analysis/constantq.py``, equal to ``librosa.vqt(tuning=0)`` within
 0.01 dB), so the commands above now give features that differ by that tuning
-estimate (a few cents on these renders) and slightly different weights; read
+estimate (0 to 15 c on the test set's renders, measured) and slightly different weights; read
 either way, the shipped weights score the same on both evaluation sets.
 """
 
