@@ -168,6 +168,20 @@ def test_map_file_is_the_map_as_data(folder, tmp_path, capsys):
     assert all(any(abs(1200 * np.log2(x / f)) < 5 for x in fr) for fr in m["notes_hz"][15:-15])
 
 
+def test_map_is_written_when_the_reader_stops_early(folder, tmp_path):
+    # `showkit scan TRACK --map F | head`: the pipe is closed before the table is printed; the map
+    # asked for is still written (before: the table's broken pipe ended the run first)
+    import subprocess
+    import sys
+
+    target = tmp_path / "map.json"
+    cmd = (f"{sys.executable} -m showkit scan {folder / 'good.flac'} --map {target} | true")
+    done = subprocess.run(["bash", "-c", cmd], capture_output=True, text=True, timeout=300,
+                          env=dict(os.environ))
+    assert "Traceback" not in done.stderr
+    assert json.loads(target.read_text())["hop_s"] == pytest.approx(1 / 30)
+
+
 def test_map_takes_one_track(folder, tmp_path, capsys):
     assert main(["scan", str(folder), "--map", str(tmp_path / "m.json")]) == 2
     assert "one track" in capsys.readouterr().err and not (tmp_path / "m.json").exists()

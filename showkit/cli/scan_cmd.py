@@ -237,6 +237,19 @@ def run(args) -> int:
         # one file asked for (a file, a pipe, a device, a dangling or looping link, a missing
         # name) and it could not be read: its one line, as any command gives it
         raise InputError(tracks[0]["error"])
+    # the files first: a reader that stops early (`| head`) closes the pipe on the table, which
+    # must not cost the map, CSV or previews asked for
+    protect = [(t["path"], "a scanned track") for t in tracks] + [(p, "a scanned path") for p in args.paths]
+    if args.csv:
+        _write_csv(args.csv, tracks, protect)
+    if args.transpose is not None:
+        _previews(tracks, args.transpose, protect)
+    if getattr(args, "plot", None) and any(t["error"] is None for t in tracks):
+        from showkit.export.figures import plot_scan
+
+        print(f"wrote {plot_scan(rig, tracks, args.plot)}", file=sys.stderr)
+    if args.map is not None and tracks[0]["error"] is None:
+        _write_map(rig, tracks[0], args.map, protect)
     level_caution()
     if args.json:
         print_json({"rig": rig.name, "static_pressure_pa": rig.static_pa, "reserve": rig.reserve,
@@ -255,15 +268,4 @@ def run(args) -> int:
         for line in notes:
             print(textwrap.fill(line, width, subsequent_indent="  "))
         print(textwrap.fill(f"Ceilings rest on: {rig.describe_drive()}.", width, subsequent_indent="  "))
-    protect = [(t["path"], "a scanned track") for t in tracks] + [(p, "a scanned path") for p in args.paths]
-    if args.csv:
-        _write_csv(args.csv, tracks, protect)
-    if args.transpose is not None:
-        _previews(tracks, args.transpose, protect)
-    if getattr(args, "plot", None) and any(t["error"] is None for t in tracks):
-        from showkit.export.figures import plot_scan
-
-        print(f"wrote {plot_scan(rig, tracks, args.plot)}", file=sys.stderr)
-    if args.map is not None and tracks[0]["error"] is None:
-        _write_map(rig, tracks[0], args.map, protect)
     return 0 if any(t["error"] is None for t in tracks) else 2
