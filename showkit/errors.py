@@ -33,14 +33,26 @@ class ShowkitError(Exception):
         super().__init__(self.line())
 
     def line(self) -> str:
-        """The whole message on one line."""
-        text = f"{self.where}: {self.what}" if self.where else self.what
-        if self.fix:
-            text = f"{text} -- {self.fix}"
+        """The whole message on one line (each part at most
+        :data:`showkit.limits.MAX_MESSAGE_PART_CHARS` long: a longer one keeps its start and end)."""
+        what, where, fix = (_shortened(str(p)) if p else p for p in (self.what, self.where, self.fix))
+        text = f"{where}: {what}" if where else what
+        if fix:
+            text = f"{text} -- {fix}"
 
         # a path or cue id quoted from a file may hold control characters: shown as escapes
         text = text.replace("\r\n", " ").replace("\n", " ").replace("\t", " ")
         return " ".join(part for part in printable(text).split(" ") if part)
+
+
+def _shortened(part: str) -> str:
+    """``part`` whole, or its start and end around how many characters were left out."""
+    from showkit.limits import MAX_MESSAGE_PART_CHARS as most
+
+    if len(part) <= most:
+        return part
+    keep = (most - 40) // 2
+    return f"{part[:keep]} [... {len(part) - 2 * keep} characters ...] {part[-keep:]}"
 
 
 class InputError(ShowkitError):

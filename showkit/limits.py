@@ -61,3 +61,11 @@ MAX_CUES = 2000
 #: ``scan --transpose`` accepts any shift it may suggest (3.5 semitones: a move of 300 cents is
 #: found from inside the range, not at its edge).
 TRANSPOSE_RANGE_CENTS = 350
+
+#: Longest text read as one value with its unit, characters: what presenters write ("6 ft 6 1/2 in",
+#: "0.25 inH2O", "1:05.5") is under 20; longer text is a paste slip, refused before it is parsed
+#: (64 k spaces took 1.5 s in the unit pattern) and never echoed whole in the error line.
+MAX_VALUE_CHARS = 100
+#: Longest part (what, where, how to fix) of an error line, characters; a longer one (a quoted
+#: file field, a path) keeps its start and end around a count of what was left out.
+MAX_MESSAGE_PART_CHARS = 600

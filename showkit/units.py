@@ -108,8 +108,19 @@ def _near_unit(unit: str, table: dict[str, float]) -> str:
     return f"{hint}use one of: {_unit_names(table)}"
 
 
+def _short_enough(value, kind: str, where: str | None, error: type[ShowkitError] = InputError,
+                  fix: str | None = None) -> None:
+    """Refuse text too long to be one value (:data:`showkit.limits.MAX_VALUE_CHARS`), quoting only its start."""
+    from showkit.limits import MAX_VALUE_CHARS
+
+    if isinstance(value, str) and len(value) > MAX_VALUE_CHARS:
+        raise error(f"a {kind} of {len(value)} characters is too long to read (it starts {value[:24]!r})",
+                    where, fix or f"write a number and a unit, e.g. {_example(kind)}")
+
+
 def _with_table(value, table: dict[str, float], kind: str, where: str | None,
                 allow_sum: bool = False) -> float:
+    _short_enough(value, kind, where)
     if isinstance(value, bool):
         raise InputError(f"expected a {kind}, got {value!r}", where,
                          f"write a number in SI units or a string such as {_example(kind)}")
@@ -183,6 +194,7 @@ def gain_db(value, where: str | None = None, fix: str = "write a gain in dB, e.g
     error : type
         The :class:`ShowkitError` kind raised (a sheet raises ``SheetError``).
     """
+    _short_enough(value, "gain", where, error, fix)
     if isinstance(value, str):
         text = value.strip().lower().removesuffix("db").strip()
         try:
@@ -230,6 +242,7 @@ def temperature_k(value, where: str | None = None) -> float:
     A plain number is taken as kelvin (SI).  Strings: ``"20 C"``, ``"68 F"``,
     ``"293.15 K"`` (also ``°C``, ``degC``, ``°F``).
     """
+    _short_enough(value, "temperature", where)
     if isinstance(value, str):
         match = re.fullmatch(rf"\s*({_NUMBER})\s*(°?\s*[cCfFkK]|deg\s*[cCfF])?\s*", value)
         if not match:
@@ -250,6 +263,7 @@ def temperature_k(value, where: str | None = None) -> float:
 
 def duration_s(value, where: str | None = None) -> float:
     """A time in seconds: a number, ``"12 s"``, ``"250 ms"`` or ``"m:ss.s"``/``"h:mm:ss"``."""
+    _short_enough(value, "time", where, fix='write seconds or "m:ss.s", e.g. "1:05.5"')
     if isinstance(value, str) and ":" in value:
         if re.search(r"[-+\u2212]", value):
             # float() reads "-0" as -0.0, which is not below zero: "-0:01" read as +1 s

@@ -9,7 +9,7 @@ from hypothesis import given
 from hypothesis import strategies as st
 
 from showkit import units
-from showkit.errors import InputError
+from showkit.errors import InputError, ShowkitError
 
 # --- pressures --------------------------------------------------------------------
 
@@ -264,3 +264,29 @@ def test_counts_agree_with_their_words():
     assert [agree(n, "needs", "need") for n in (0, 1, 2)] == ["need", "needs", "need"]
     assert [format_count(n, "cue") for n in (0, 1, 3)] == ["0 cues", "1 cue", "3 cues"]
     assert [format_every(n, "cue") for n in (1, 5)] == ["the one cue", "all 5 cues"]
+
+
+@pytest.mark.parametrize("parse", [units.length_m, units.pressure_pa, units.frequency_hz, units.temperature_k,
+                                   units.duration_s, units.gain_db])
+@pytest.mark.parametrize("text", ["9" * 300 + " Hz", "1" + " " * 65536 + "x", "-" * 5000],
+                         ids=["digits", "spaces", "dashes"])
+def test_a_pasted_screenful_is_refused_quickly_in_one_short_line(parse, text):
+    # a value is a few characters; a long paste is refused before the unit pattern reads it
+    # (64 k spaces took 1.5 s there) and the error line quotes only its start
+    import time
+
+    t0 = time.perf_counter()
+    with pytest.raises(ShowkitError) as err:
+        parse(text, "--value")
+    assert time.perf_counter() - t0 < 0.5
+    line = err.value.line()
+    assert len(line) < 250 and f"{len(text)} characters" in line and line.startswith("--value: ")
+
+
+def test_an_error_line_keeps_each_part_short():
+    # the backstop for any quoted field or path: its start and end stay, the middle is counted
+    from showkit.errors import SheetError
+
+    line = SheetError("cue id " + "x" * 5000 + " END is unknown", "show.toml", "fix it").line()
+    assert len(line) < 700 and "END is unknown" in line and line.endswith("-- fix it")
+    assert "characters ...]" in line
