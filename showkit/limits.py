@@ -52,8 +52,9 @@ MIN_AUDIO_S = 0.02
 #: 10 mm has 2000); the model's cost grows with each.
 MAX_HOLES = 2000
 #: Longest track a scan (or the UI's Track view) analyses, s.  The scan keeps per-frame
-#: analysis of the whole track: about 1 GB per hour (measured: 1.08 GB for 60 min,
-#: 3.0 GB for 180 min).  Ceilings stream any length.
+#: analysis of the whole track, linear in its length (one process, peak resident, measured with
+#: tests/benchmarks/bench_scan_growth.py: the scan 286 MB, the map 367 MB for 60 min; it was
+#: 1.08 GB when this limit was set).  Ceilings stream any length.
 MAX_SCAN_S = 90 * 60.0
 #: Most cues in one sheet.
 MAX_CUES = 2000

@@ -87,12 +87,17 @@ def _choose(n_pieces: int, seed: int) -> list[str]:
     return out
 
 
-def _timbre(r: random.Random) -> dict:
-    """A random harmonic timbre: partial levels, envelope, vibrato (an invented instrument)."""
+def _timbre(r: random.Random, organ: bool = False) -> dict:
+    """A random harmonic timbre: partial levels, envelope, vibrato (an invented instrument).
+
+    ``organ``: always the organ's ranks, and the fundamental 0-10 dB under the partials'
+    strongest on top (a principal chorus with mixtures and mutations, where the 2nd to 5th
+    partials reach or pass the fundamental; common practice, no source).
+    """
     nh = r.randint(8, 20)
     tilt = r.uniform(0.4, 2.0)
     db = [-20.0 * tilt * np.log10(h) + r.gauss(0.0, 4.0) for h in range(1, nh + 1)]
-    kind = r.random()
+    kind = r.random() * (0.3 if organ else 1.0)
     if kind < 0.3:            # an organ's ranks: octaves (4', 2') and mutations (2 2/3', 1 3/5')
         for h in r.sample((2, 3, 4, 5, 6, 8), r.randint(1, 4)):
             if h <= nh:
@@ -100,17 +105,20 @@ def _timbre(r: random.Random) -> dict:
     elif kind < 0.45:         # odd partials strong (a stopped pipe, a clarinet)
         for h in range(2, nh + 1, 2):
             db[h - 1] -= r.uniform(6.0, 20.0)
+    if organ:
+        db[0] = max(db[1:5]) - r.uniform(0.0, 10.0)
     return {"amp": 10.0 ** (np.array(db) / 20.0), "attack": r.uniform(0.005, 0.08),
             "decay": r.choice((None, r.uniform(0.3, 3.0))), "release": r.uniform(0.03, 0.2),
             "vibrato": r.uniform(0.0, 25.0) if r.random() < 0.35 else 0.0, "rate": r.uniform(4.5, 6.5)}
 
 
-def _synth(notes, seconds: float, rate: int, r: random.Random) -> np.ndarray:
-    """Additive synthesis of ``[(program, midi, on, off, vel)]``, one random timbre per program."""
+def _synth(notes, seconds: float, rate: int, r: random.Random, organ: bool = False) -> np.ndarray:
+    """Additive synthesis of ``[(program, midi, on, off, vel)]``, one random timbre per program
+    (``organ``: organ timbres only, :func:`_timbre`)."""
     timbres: dict = {}
     out = np.zeros(int(seconds * rate) + rate, dtype=np.float64)
     for program, midi, on, off, vel in notes:
-        tb = timbres.setdefault(program, _timbre(r))
+        tb = timbres.setdefault(program, _timbre(r, organ))
         f0 = 440.0 * 2.0 ** ((midi - 69) / 12.0)
         dur = off - on + tb["release"]
         t = np.arange(int(dur * rate)) / rate
@@ -156,8 +164,8 @@ def _render_one(args) -> str | None:
     if len(notes) < 10:
         return f"{name}: too few notes"
     font = fonts[k % len(fonts)]
-    if font == "synth":
-        x = _synth(notes, SECONDS, rm.RATE_HZ, r)
+    if font in ("synth", "synth-organ"):
+        x = _synth(notes, SECONDS, rm.RATE_HZ, r, organ=font == "synth-organ")
     else:
         rm.SOUNDFONT = Path(font)
         x = rm._render(notes, SECONDS, Path(folder) / f"{k:04d}.wav")
@@ -295,7 +303,7 @@ def main() -> int:
     r.add_argument("folder", type=Path)
     r.add_argument("--pieces", type=int, default=160)
     r.add_argument("--seed", type=int, default=1)
-    r.add_argument("--soundfont", action="append", help="a .sf2 file, or 'synth' (additive, random timbres)")
+    r.add_argument("--soundfont", action="append", help="a .sf2 file, 'synth' (additive, random timbres) or 'synth-organ' (organ timbres only)")
     t = sub.add_parser("train")
     t.add_argument("folder", type=Path, nargs="+")
     t.add_argument("--epochs", type=int, default=12)
