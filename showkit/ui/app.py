@@ -435,7 +435,8 @@ class ShowkitApp(JobRunner, App):
     def _keyline_text(self, current: str) -> Text:
         """:data:`GLOBAL_KEYS` as one line, the view shown marked; a key the view takes for
         itself (the Run view's ``a``) is left out."""
-        own = set(self.view(current)._bindings.key_to_bindings)
+        own = {key.strip() for b in type(self.view(current)).BINDINGS
+               for key in (b.key if isinstance(b, Binding) else b[0]).split(",")}
         line = Text()
         for b in GLOBAL_KEYS:
             if b.key in own:
