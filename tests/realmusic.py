@@ -308,9 +308,11 @@ def _peak_cents(frames: np.ndarray, target_hz: float) -> np.ndarray:
     k = lo + np.argmax(spec[:, lo:hi + 1], axis=1)
     r = np.arange(frames.shape[0])
     a, b, c = (np.log(spec[r, k - 1]), np.log(spec[r, k]), np.log(spec[r, k + 1]))
-    f = (k + 0.5 * (a - c) / (a - 2 * b + c)) * df
+    with np.errstate(divide="ignore", invalid="ignore"):   # a silent frame (a flat top) gives NaN: the
+        f = (k + 0.5 * (a - c) / (a - 2 * b + c)) * df       # caller takes the median of the finite ones
+        cents = 1200.0 * np.log2(f / target_hz)
     rel_db = 20.0 * np.log10(spec[r, k] / spec.max(axis=1))
-    return 1200.0 * np.log2(f / target_hz), rel_db
+    return cents, rel_db
 
 
 def _held_notes(pairs, folder: Path, step_s: float = TUNING_STEP_S) -> np.ndarray:
