@@ -51,3 +51,24 @@ def test_stft_power_is_librosas_centred_stft():
     assert np.allclose(ours, ref[keep], rtol=1e-4, atol=1e-5 * float(ref.max()))
     # and a part: frames 5-9 alone are the same frames
     assert np.allclose(spectral.stft_power(padded, n_fft, hop, 5, 10, keep), ours[:, 5:10], rtol=1e-6, atol=0)
+
+
+@pytest.mark.parametrize("offset", [0.0, 0.7, -0.01])
+def test_windowed_spectrum_is_the_frame_less_its_weighted_mean(offset):
+    # closed form: the spectrum of (x - m) w with m = sum(w x) / sum(w), by numpy's FFT on the
+    # subtracted frames, equals the spectrum taken on the subtracted mean (the transform is linear)
+    rng = np.random.default_rng(4)
+    frames = (offset + 0.3 * rng.standard_normal((7, 512))).astype(np.float32)
+    keep = slice(3, 200)
+    w = spectral.hann(512).astype(float)
+    m = frames.astype(float) @ w / w.sum()
+    want = np.fft.rfft((frames - m[:, None]) * w, 2048, axis=1)[:, keep]
+    got = spectral.windowed_spectrum(frames, 2048, keep)
+    np.testing.assert_allclose(got, want, atol=2e-4 * np.abs(want).max())
+
+
+def test_a_constant_has_no_spectrum_in_the_band():
+    # a file of pure DC drew 4-5 notes a frame: its window's sidelobes, whitened
+    frames = np.full((5, 1024), 0.7, dtype=np.float32)
+    spec = spectral.windowed_spectrum(frames, 4096, slice(5, 300))
+    assert np.abs(spec).max() < 1e-4 * 0.7 * 512       # against a unit sine's peak bin, ~n/4
