@@ -94,10 +94,10 @@ def _where(where: dict | None, key: str, default: str) -> str:
 def _finite_number(value, at: str, kind: str) -> float:
     if isinstance(value, bool) or not isinstance(value, (int, float)):
         if isinstance(value, str):
-            try:
-                value = float(value)
-            except ValueError:
-                raise InputError(f"expected a {kind}, got {value!r}", at, "write a plain number") from None
+            number = units.number_or_text(value)
+            if isinstance(number, str):
+                raise InputError(f"expected a {kind}, got {units.quoted(value)}", at, "write a plain number")
+            value = number
         else:
             raise InputError(f"expected a {kind}, got {value!r}", at, "write a plain number")
     value = float(value)

@@ -172,11 +172,20 @@ def number_or_text(value):
     while ``"18 Pa"`` stays text for the unit parsers (:func:`pressure_pa`, :func:`duration_s`...).
     """
     if isinstance(value, str):
-        try:
+        from showkit.limits import MAX_VALUE_CHARS
+
+        # the project's own number pattern, not float(): float() also takes "1_000" and any number
+        # of digits, which the unit parsers refuse ("nan" and "inf" pass, to be refused as not finite)
+        if len(value) <= MAX_VALUE_CHARS and re.fullmatch(rf"\s*(?:{_NUMBER}|[-+]?(?:nan|inf|infinity))\s*",
+                                                           value, flags=re.IGNORECASE):
             return float(value)
-        except ValueError:
-            return value
+        return value
     return value
+
+
+def quoted(text: str, most: int = 24) -> str:
+    """``text`` quoted as repr does, cut to its first ``most`` characters with a count when longer."""
+    return repr(text) if len(text) <= most else f"{text[:most]!r}... ({len(text)} characters)"
 
 
 def gain_db(value, where: str | None = None, fix: str = "write a gain in dB, e.g. -12",

@@ -290,3 +290,16 @@ def test_an_error_line_keeps_each_part_short():
     line = SheetError("cue id " + "x" * 5000 + " END is unknown", "show.toml", "fix it").line()
     assert len(line) < 700 and "END is unknown" in line and line.endswith("-- fix it")
     assert "characters ...]" in line
+
+
+@pytest.mark.parametrize("text, number", [("18", 18.0), (" 1e3 ", 1000.0), ("-0.5", -0.5), ("1_000", None),
+                                          ("1" * 101, None), ("18 Pa", None), ("nan", "nan"), ("-inf", "inf")])
+def test_number_or_text_reads_plain_numbers_only(text, number):
+    # float() also takes "1_000" and any number of digits; those stay text, for the unit parsers to refuse
+    got = units.number_or_text(text)
+    if number is None:
+        assert got == text
+    elif isinstance(number, str):
+        assert isinstance(got, float) and not math.isfinite(got)
+    else:
+        assert got == number
