@@ -48,6 +48,10 @@ MIN_RATE_HZ = 4_000
 #: Shortest audio read, s: a file of a few samples is a broken export, not a passage, cue or
 #: measurement (project's floor; a 50-ms file is still read).
 MIN_AUDIO_S = 0.02
+#: Largest sample magnitude read, times digital full scale (60 dB over it): a float file may
+#: run over full scale by some dB in an unfinished mix, never by 60; beyond it the file is
+#: damaged or not audio, and squares of its values overflow float32 (1e19 did in the scan).
+MAX_SAMPLE_MAGNITUDE = 1000.0
 #: Most holes in a rig: real tubes have tens to a few hundred (a 20 m tube with a hole every
 #: 10 mm has 2000); the model's cost grows with each.
 MAX_HOLES = 2000

@@ -452,6 +452,32 @@ CASES = [
          "says a sample rate of 4000000000 Hz"),
     Case("audio-one-sample", lambda e: ["ceiling", e.write("one.wav", _rate_header(48_000, 1))], "ms long"),
     Case("scan-dev-zero", lambda e: ["scan", "/dev/zero", "--jobs", "1"], "character device"),
+    # session 12's attack: a float file at 1e19 overflowed the scan's squares (exit 0, warnings, score 0)
+    # and at 3e38 made a NaN swing blamed on the rig; beyond +60 dB over full scale it is not audio
+    Case("audio-float-1e19", lambda e: ["ceiling", _float_wav(e, "loud.wav", 1e19)], "times full scale"),
+    Case("scan-float-3e38", lambda e: ["scan", _float_wav(e, "loud.wav", 3e38), "--jobs", "1"], "times full scale"),
+    # 8 times full scale is an unfinished mix, not damage: read
+    Case("audio-float-8x", lambda e: ["ceiling", _float_wav(e, "hot.wav", 8.0)], None, 0),
+    # a passage shorter than the shortest audio: +60 dB "set by the cap" on no samples, a "truncated"
+    # file, an empty video
+    Case("ceiling-passage-10us", lambda e: ["ceiling", e.p("track.wav"), "--start", "0", "--end", "0.00001"],
+         "ms long (shortest: 0.02 s)"),
+    Case("ceiling-passage-at-the-end", lambda e: ["ceiling", e.p("track.wav"), "--start", "1.49999"],
+         "ms long (shortest: 0.02 s)"),
+    Case("preview-passage-at-the-end", lambda e: ["preview", e.p("track.wav"), "-o", e.p("p.mp4"),
+                                                  "--start", "1.4999"], "ms long (shortest: 0.02 s)",
+         check=lambda e, out, err: not e.p("p.mp4").exists() or pytest.fail("a video was written")),
+    Case("ceiling-end-just-past", lambda e: ["ceiling", e.p("track.wav"), "--end", "0:01.50001"],
+         "end 1.50001 s is past the end of the track (1.5 s)"),
+    # random bytes named .wav: libsndfile's "File does not exist ... (possibly a pipe?)" and the mp3
+    # decoder's own stderr line stood beside showkit's line
+    Case("audio-random-bytes", lambda e: ["ceiling", _mpeg_like_bytes(e)], "its format is not recognised"),
+    # two outputs on one path: the second replaced the first, kept only as a backup
+    Case("scan-map-and-csv-one-file", lambda e: ["scan", e.p("track.wav"), "--map", e.p("same.out"),
+                                                 "--csv", e.p("same.out")], "name the same file",
+         check=lambda e, out, err: not e.p("same.out").exists() or pytest.fail("written")),
+    Case("scan-plot-and-map-one-file", lambda e: ["scan", e.p("track.wav"), "--plot", e.p("o.png"),
+                                                  "--map", str(e.dir / "." / "o.png")], "name the same file"),
     # cut inside its header the file read as "only 1.3 ms long", not as cut short (a fresh user's report)
     Case("audio-cut-in-header", lambda e: ["ceiling", e.write("h.wav", e.p("track.wav").read_bytes()[:100])],
          "cut short"),
@@ -568,6 +594,20 @@ CASES = [
                                        ["measure", "sweep", "--out", e.p("s.wav"), "--length", "2"])[-1],
          "disk is full", unchanged=("s.wav",), patch=_disk_full),
 ]
+
+
+def _mpeg_like_bytes(env: Env) -> Path:
+    """100 kB of random bytes named .wav that start on an MPEG frame sync (0xFFE4), so libsndfile's mp3
+    decoder probes them and prints its own line on standard error."""
+    return env.write("g.wav", np.random.default_rng(1).bytes(100_000))
+
+
+def _float_wav(env: Env, name: str, amplitude: float) -> Path:
+    """A 0.5-s 228-Hz sine of the given amplitude as a 32-bit float WAV (float files can hold any value)."""
+    t = np.arange(24000) / 48000.0
+    path = env.dir / name
+    sf.write(str(path), (amplitude * np.sin(2 * np.pi * 228.0 * t)).astype(np.float32), 48000, subtype="FLOAT")
+    return path
 
 
 def _rig_count(value: str) -> str:
@@ -738,3 +778,27 @@ def test_a_calibration_refusal_names_the_mode_as_modes_lists_it(env, capsys):
     status, _, err = run_cli(["modes", "--rig", on_mode], capsys)
     assert status == 2
     assert f"lies near mode 3 ({mode['frequency_hz']:.1f} Hz)" in err, err
+
+
+def test_random_bytes_give_one_line_on_standard_error(env):
+    # the file descriptor, not Python's sys.stderr: the mp3 decoder inside libsndfile wrote
+    # "[src/libmpg123/parse.c:skip_junk():1260] error: Giving up ..." there before showkit's line
+    bad = _mpeg_like_bytes(env)
+    done = subprocess.run([sys.executable, "-m", "showkit", "scan", str(bad), "--jobs", "1"], capture_output=True,
+                          text=True, timeout=HANG_S, env=dict(os.environ, PYTHONPATH=str(REPO),
+                                                              SHOWKIT_CACHE_DIR=str(env.dir / "cache")))
+    assert done.returncode == 2
+    assert done.stderr.count("\n") == 1 and "its format is not recognised" in done.stderr, done.stderr
+
+
+@pytest.mark.parametrize("argv", [["modes"], ["ceiling", "track.wav", "--json"]])
+def test_a_full_standard_output_is_one_line(env, argv):
+    # `showkit modes > /dev/full` ended in an OSError traceback (exit 1)
+    with open("/dev/full", "w") as full:
+        done = subprocess.run([sys.executable, "-m", "showkit", *argv], stdout=full, stderr=subprocess.PIPE,
+                              text=True, timeout=HANG_S, cwd=env.dir,
+                              env=dict(os.environ, PYTHONPATH=str(REPO), SHOWKIT_CACHE_DIR=str(env.dir / "cache")))
+    lines = [ln for ln in done.stderr.splitlines() if not ln.startswith("CAUTION")]
+    assert done.returncode == 2 and "Traceback" not in done.stderr
+    assert lines == ["showkit: standard output cannot be written (No space left on device) -- free some disk "
+                     "space, or send the output to another file"], done.stderr

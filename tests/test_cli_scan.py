@@ -147,6 +147,31 @@ def test_transpose_writes_a_preview(folder, tmp_path, capsys, monkeypatch):
     assert len(made) == 1 and sf.info(str(made[0])).duration > 4.0
 
 
+def test_two_tracks_of_one_name_get_two_previews(folder, tmp_path, capsys, monkeypatch):
+    # `scan a/t.wav b/t.wav --transpose 1` wrote one preview over the other, keeping no backup
+    other = tmp_path / "other"
+    other.mkdir()
+    (other / "good.flac").write_bytes((folder / "good.flac").read_bytes())
+    monkeypatch.chdir(tmp_path)
+    assert main(["scan", str(folder / "good.flac"), str(other / "good.flac"), "--transpose", "-1"]) == 0
+    made = sorted(p.name for p in tmp_path.glob("good_shift-1.00st_*.wav"))
+    assert len(made) == 2 and made[1].endswith("_2.wav"), made
+
+
+@pytest.mark.parametrize("name", ["=SUM(A1)", "+1", "-x", "@cmd", "plain"])
+def test_csv_cells_are_not_formulas(tmp_path, name, capsys):
+    # a track named "=..." read as a formula in a spreadsheet (OWASP, "CSV Injection")
+    import csv
+
+    from showkit.cli.scan_cmd import _write_csv
+
+    track = {"path": f"{name}.wav", "score": 1.0, "transpose_semitones": 0.0, "transpose_score": 1.0,
+             "error": None, "passages": []}
+    _write_csv(str(tmp_path / "t.csv"), [track])
+    cell = list(csv.reader((tmp_path / "t.csv").open()))[1][0]
+    assert cell == (f"{name}.wav" if name == "plain" else f"'{name}.wav")
+
+
 def test_map_file_is_the_map_as_data(folder, tmp_path, capsys):
     # issue 12: {"hop_s", "times_s", "modes": [{"n", "frequency_hz", "note"}], "strength", "hit", "notes_hz"}
     target = tmp_path / "map.json"

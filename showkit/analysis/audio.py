@@ -15,6 +15,8 @@ from __future__ import annotations
 import hashlib
 import math
 import os
+import sys
+from contextlib import contextmanager
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Iterator
@@ -22,7 +24,8 @@ from typing import Iterator
 import numpy as np
 
 from showkit.errors import AudioError
-from showkit.limits import AUDIO_MAX_BYTES, MAX_CUE_SAMPLES, MAX_RATE_HZ, MIN_AUDIO_S, MIN_RATE_HZ
+from showkit.limits import (AUDIO_MAX_BYTES, MAX_CUE_SAMPLES, MAX_RATE_HZ, MAX_SAMPLE_MAGNITUDE, MIN_AUDIO_S,
+                            MIN_RATE_HZ)
 
 #: Files shorter than this many samples cannot be analysed.
 MIN_FRAMES = 1
@@ -63,6 +66,31 @@ class Audio:
         return self.samples.size / self.rate_hz
 
 
+def _count_samples(n: int) -> str:
+    return f"{n} sample{'' if n == 1 else 's'}"
+
+
+@contextmanager
+def _quiet_native_stderr():
+    """Standard error (file descriptor 2) to the null device for the block: libsndfile's mp3
+    decoder prints its own lines there while it probes an unknown file ("skip_junk(): Giving
+    up"), which would stand before showkit's one line (and draw over the terminal UI)."""
+    try:
+        sys.stderr.flush()
+        saved = os.dup(2)
+    except (OSError, ValueError, AttributeError):
+        yield
+        return
+    null = os.open(os.devnull, os.O_WRONLY)
+    try:
+        os.dup2(null, 2)
+        yield
+    finally:
+        os.dup2(saved, 2)
+        os.close(saved)
+        os.close(null)
+
+
 def audio_info(path: str | Path) -> AudioInfo:
     """Check that ``path`` is a readable audio file and say what it holds."""
     import soundfile as sf
@@ -75,10 +103,15 @@ def audio_info(path: str | Path) -> AudioInfo:
     if st.st_size == 0:
         raise AudioError("the file is empty (0 bytes)", where, "export the track again")
     try:
-        info = sf.info(str(path))
+        with _quiet_native_stderr():
+            info = sf.info(str(path))
     except Exception as exc:  # libsndfile's errors are not one class across versions
         _damaged_wav(path, where)
-        raise AudioError(f"not an audio file showkit can read ({_short(exc)})", where,
+        why = _short(exc)
+        if "does not exist or is not a regular file" in str(exc):
+            # libsndfile's words for bytes it cannot place (the file was checked: it is a regular file)
+            why = "its format is not recognised"
+        raise AudioError(f"not an audio file showkit can read ({why})", where,
                          "convert it to WAV or FLAC") from None
     # a WAV cut short says so first (cut inside its header it would read as too short or empty)
     _check_wav_length(path, st.st_size, where)
@@ -94,8 +127,9 @@ def audio_info(path: str | Path) -> AudioInfo:
                          f"a damaged header, or audio too coarse for the tube's modes", where,
                          "export the track again at 44.1 or 48 kHz")
     if info.frames < MIN_AUDIO_S * info.samplerate:
-        raise AudioError(f"the audio is only {1000.0 * info.frames / info.samplerate:.1f} ms long (shortest: "
-                         f"{MIN_AUDIO_S:g} s)", where, f"give a track or recording longer than {MIN_AUDIO_S:g} s")
+        raise AudioError(f"the audio is only {1000.0 * info.frames / info.samplerate:.3g} ms long "
+                         f"({_count_samples(info.frames)} at {info.samplerate} Hz; shortest: {MIN_AUDIO_S:g} s)", where,
+                         f"give a track or recording longer than {MIN_AUDIO_S:g} s")
     return AudioInfo(path=path, rate_hz=int(info.samplerate), channels=int(info.channels),
                      frames=int(info.frames), format=str(info.format))
 
@@ -174,6 +208,11 @@ def _short(exc: Exception) -> str:
     return text[:120] if text else exc.__class__.__name__
 
 
+def _seconds(t: float) -> str:
+    """A time in seconds with as many decimals as it takes (up to 6) to tell it from its neighbours."""
+    return f"{t:.6f}".rstrip("0").rstrip(".") if abs(t) < 1e9 else f"{t:g}"
+
+
 def _span(info: AudioInfo, start_s: float | None, end_s: float | None) -> tuple[int, int]:
     where = str(info.path)
     start = 0.0 if start_s is None else float(start_s)
@@ -183,14 +222,18 @@ def _span(info: AudioInfo, start_s: float | None, end_s: float | None) -> tuple[
     if start < 0:
         raise AudioError(f"start {start:g} s is before the beginning", where, "give a start of 0 or later")
     if start >= info.duration_s:
-        raise AudioError(f"start {start:g} s is past the end of the track ({info.duration_s:.2f} s)",
+        raise AudioError(f"start {_seconds(start)} s is past the end of the track ({_seconds(info.duration_s)} s)",
                          where, "give a start within the track")
     if end <= start:
-        raise AudioError(f"end {end:g} s is not after start {start:g} s", where,
+        raise AudioError(f"end {_seconds(end)} s is not after start {_seconds(start)} s", where,
                          "give an end later than the start")
     if end > info.duration_s + 1e-6:
-        raise AudioError(f"end {end:g} s is past the end of the track ({info.duration_s:.2f} s)",
+        raise AudioError(f"end {_seconds(end)} s is past the end of the track ({_seconds(info.duration_s)} s)",
                          where, "give an end within the track")
+    if min(end, info.duration_s) - start < MIN_AUDIO_S:
+        raise AudioError(f"the passage {_seconds(start)}-{_seconds(min(end, info.duration_s))} s is "
+                         f"{1000.0 * (min(end, info.duration_s) - start):.3g} ms long (shortest: {MIN_AUDIO_S:g} s)",
+                         where, f"give a passage of at least {MIN_AUDIO_S:g} s")
     first = int(round(start * info.rate_hz))
     last = min(info.frames, int(round(end * info.rate_hz)))
     return first, max(last, first + 1)
@@ -239,10 +282,10 @@ def read_blocks(path: str | Path, rate_hz: int | None = None, start_s: float | N
                     break
                 got += data.shape[0]
                 mono = data.mean(axis=1)
-                if not np.all(np.isfinite(mono)):
-                    bad = int(np.argmax(~np.isfinite(mono)))
+                if not np.all(np.isfinite(mono)) or np.max(np.abs(mono)) > MAX_SAMPLE_MAGNITUDE:
+                    bad = int(np.argmax(~(np.abs(mono) <= MAX_SAMPLE_MAGNITUDE)))
                     t = (first + got - data.shape[0] + bad) / info.rate_hz
-                    raise AudioError(f"the audio holds NaN or infinite samples (first at {t:.3f} s)",
+                    raise AudioError(f"{_bad_sample(mono[bad])} (first at {t:.3f} s)",
                                      where, "repair or re-export the file")
                 if on_native is not None:
                     on_native(mono)
@@ -290,9 +333,18 @@ def mono(samples) -> np.ndarray:
     x = np.asarray(samples, dtype=float)
     if x.ndim == 2:
         x = x.mean(axis=1)
-    if not np.all(np.isfinite(x)):
-        raise AudioError("the signal holds NaN or infinite samples", None, "repair the source")
+    if not np.all(np.abs(x) <= MAX_SAMPLE_MAGNITUDE):
+        bad = int(np.argmax(~(np.abs(x) <= MAX_SAMPLE_MAGNITUDE)))
+        raise AudioError(_bad_sample(x[bad]).replace("the audio", "the signal"), None, "repair the source")
     return x
+
+
+def _bad_sample(value: float) -> str:
+    """What is wrong with a sample that is not finite or is beyond :data:`MAX_SAMPLE_MAGNITUDE`."""
+    if not np.isfinite(value):
+        return "the audio holds NaN or infinite samples"
+    return (f"the audio holds a sample of {value:.3g} times full scale ({20 * np.log10(abs(value)):.0f} dB over "
+            f"it; showkit reads up to {20 * np.log10(MAX_SAMPLE_MAGNITUDE):.0f} dB over): not audio to play")
 
 
 def first_channel(recording) -> np.ndarray:

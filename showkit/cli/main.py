@@ -88,8 +88,47 @@ def _unrecognized(args, extras: list[str]) -> tuple[str, str | None, str]:
     return what, " ".join(words) or None, f"see `{command} --help` for what it takes"
 
 
+class _StdoutFailed(Exception):
+    """Standard output refused a write or a flush (a full disk, a device), with the OSError's words."""
+
+
+class _GuardedStdout:
+    """Standard output as given, its write and flush errors (other than a closed pipe, which stays
+    a BrokenPipeError) raised as :class:`_StdoutFailed`, so that they are told from any other
+    OSError."""
+
+    def __init__(self, stream):
+        self._stream = stream
+
+    def _guard(self, method, *args):
+        try:
+            return method(*args)
+        except BrokenPipeError:
+            raise
+        except OSError as exc:
+            raise _StdoutFailed(exc.strerror or str(exc)) from None
+
+    def write(self, text):
+        return self._guard(self._stream.write, text)
+
+    def flush(self):
+        return self._guard(self._stream.flush)
+
+    def __getattr__(self, name):
+        return getattr(self._stream, name)
+
+
 def main(argv: list[str] | None = None) -> int:
     argv = sys.argv[1:] if argv is None else argv
+    given = sys.stdout
+    sys.stdout = _GuardedStdout(given)
+    try:
+        return _main(argv)
+    finally:
+        sys.stdout = given
+
+
+def _main(argv: list[str]) -> int:
     try:
         if not argv and "open" in _available():
             from showkit.cli import open_cmd
@@ -102,7 +141,9 @@ def main(argv: list[str] | None = None) -> int:
         if args.command is None:
             parser.print_help()
             return 0
-        return int(modules[args.command].run(args) or 0)
+        status = int(modules[args.command].run(args) or 0)
+        sys.stdout.flush()     # here, not at exit: a full disk or a closed pipe is then caught below
+        return status
     except ShowkitError as exc:
         print(f"showkit: {exc.line()}", file=sys.stderr)
         return exc.exit_status
@@ -110,7 +151,26 @@ def main(argv: list[str] | None = None) -> int:
         print("showkit: interrupted", file=sys.stderr)
         return 130
     except BrokenPipeError:
+        _drop_stdout()
         return 0
+    except _StdoutFailed as exc:
+        _drop_stdout()
+        print(f"showkit: standard output cannot be written ({exc}) -- free some disk space, or send the "
+              "output to another file", file=sys.stderr)
+        return 2
+
+
+def _drop_stdout() -> None:
+    """Standard output to the null device, so that the interpreter's last flush of what could not be
+    written raises nothing more (the way Python's documentation handles a closed pipe)."""
+    import os
+
+    try:
+        null = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(null, sys.stdout.fileno())
+        os.close(null)
+    except (OSError, ValueError, AttributeError):  # not a real file (a test's capture): nothing waits
+        pass
 
 
 if __name__ == "__main__":

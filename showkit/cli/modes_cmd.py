@@ -84,5 +84,7 @@ def run(args) -> int:
     print(table(rows, ["n", "freq Hz", "note", "cents", "Q", "flame peaks", "spacing mm", "pattern"],
                 ">>>>>>><"))
     if not rows:
-        print("(no resonances below the plane-wave limit)")
+        limit = report["plane_wave_limit_hz"]
+        print("(no resonances below the plane-wave limit)" if f_max is None or f_max >= limit
+              else f"(no resonances below {f_max:.6g} Hz)")
     return 0

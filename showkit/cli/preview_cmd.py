@@ -81,6 +81,6 @@ def run(args) -> int:
     for note in tl.notes:
         print(f"not played: {note}", file=sys.stderr)
     scale = "true scale" if args.magnify == 1 else f"magnified x{args.magnify:g}"
-    print(f"wrote {result['path']}: {result['frames']} frames at {result['fps']} fps "
+    print(f"wrote {result['path']}: {units.format_count(result['frames'], 'frame')} at {result['fps']} fps "
           f"({result['duration_s']:.2f} s, {size[0]}x{size[1]}, {scale}) with the sound")
     return 0

@@ -20,6 +20,7 @@ from __future__ import annotations
 import argparse
 import io
 import json
+import os
 import shutil
 import sys
 import textwrap
@@ -150,6 +151,12 @@ def _for_output(tracks: list[dict]) -> list[dict]:
                                for p in t["passages"]]} for t in tracks]
 
 
+def _cell(text: str) -> str:
+    """A text cell a spreadsheet shows as written: one starting with = + - @ (or a tab or carriage
+    return) would be read as a formula, so it gets a leading apostrophe (OWASP, "CSV Injection")."""
+    return "'" + text if text[:1] in ("=", "+", "-", "@", "\t", "\r") else text
+
+
 def _write_csv(path: str, tracks: list[dict], protect=()) -> None:
     import csv
 
@@ -160,7 +167,8 @@ def _write_csv(path: str, tracks: list[dict], protect=()) -> None:
         w.writerow(["path", "track_score", "transpose_semitones", "transpose_score", "error",
                     "start_s", "end_s", "passage_score", "modes", ESTIMATE_KEY, "contrast"])
         for t in tracks:
-            base = [t["path"], t["score"], t["transpose_semitones"], t["transpose_score"], t["error"] or ""]
+            base = [_cell(t["path"]), t["score"], t["transpose_semitones"], t["transpose_score"],
+                    _cell(t["error"] or "")]
             if not t["passages"]:
                 w.writerow(base + [""] * 6)
             for p in t["passages"]:
@@ -175,11 +183,17 @@ def _previews(tracks: list[dict], semitones: float, protect=()) -> None:
     from showkit.analysis.scan import best_passage
     from showkit.analysis.transpose import render_preview
 
+    written: set = set()
     for t in tracks:
         p = best_passage(t) if not t["error"] else None
         if p is None:
             continue
-        out = Path.cwd() / f"{Path(t['path']).stem}_shift{semitones:+.2f}st_{p['start_s']:.0f}-{p['end_s']:.0f}s.wav"
+        name = f"{Path(t['path']).stem}_shift{semitones:+.2f}st_{p['start_s']:.0f}-{p['end_s']:.0f}s"
+        out, k = Path.cwd() / f"{name}.wav", 1
+        while out in written:  # two tracks of one name (in two folders): the second is not written over the first
+            k += 1
+            out = Path.cwd() / f"{name}_{k}.wav"
+        written.add(out)
         try:
             render_preview(t["path"], p["start_s"], p["end_s"], semitones, out, protect=protect)
             print(f"preview: {printable(out)}", file=sys.stderr)
@@ -203,14 +217,16 @@ def run(args) -> int:
     from showkit.analysis.scan import expand_paths, scan_paths
 
     if args.map is not None and len(expand_paths(args.paths)) != 1:
-        raise InputError("--map writes the map of one track", " ".join(args.paths),
-                         "give one audio file with --map")
+        found = len(expand_paths(args.paths))
+        raise InputError("--map writes the map of one track, and " +
+                         (f"these name {found} audio files" if found else "no audio file was found there"),
+                         " ".join(args.paths), "give one audio file with --map")
 
     if args.jobs is not None and args.jobs < 1:
         raise InputError(f"--jobs must be 1 or more (got {args.jobs})", "--jobs", "give a number of workers, e.g. --jobs 2")
     if args.transpose is not None and not -_MAX_SEMITONES <= args.transpose <= _MAX_SEMITONES:
         raise InputError(f"--transpose must be within -{_MAX_SEMITONES:g} and {_MAX_SEMITONES:g} semitones, "
-                         f"the range the scan searches (got {args.transpose:g})",
+                         f"the range the scan searches (got {args.transpose:.10g})",
                          "--transpose", "give a shift such as --transpose -2 or --transpose 0.5")
     rig = load_rig_from_args(args)
     # before the work: a CSV or map over a track (also one found in a folder given), a folder or a
@@ -222,8 +238,13 @@ def run(args) -> int:
         from showkit.safesave import check_target
 
         scanned = [(p, "a file being scanned") for p in [*args.paths, *expand_paths(args.paths)]]
+        named: dict = {}
         for target, what, ending in outputs:
             check_target(Path(target), scanned, what, ending=ending, reads="the scan reads this file")
+            same = named.setdefault(os.path.realpath(target), what)
+            if same != what:  # the second would replace the first
+                raise InputError(f"the {what} and the {same} name the same file", target,
+                                 "give each output a file of its own")
     bar = _Bar()
     try:
         tracks = scan_paths(rig, args.paths, jobs=args.jobs, use_cache=not args.no_cache, progress=bar)
