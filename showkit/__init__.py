@@ -13,4 +13,4 @@ ANALYSIS_VERSION = 9  # 3: locks of cues not at 48 kHz also hold at 48 kHz; 4: l
 #: changes its results: cached scans made with another version are analysed again, cue locks
 #: are untouched (a lock never reads the scan).  Before it existed, scan changes bumped
 #: ANALYSIS_VERSION (5-8 above), which made every lock stale.
-SCAN_VERSION = 3  # 2: a passage lists every mode held in it, not only those held 5 % of its time; 3: the scan's spectra without each frame's DC (a file of pure DC drew notes)
+SCAN_VERSION = 4  # 2: a passage lists every mode held in it, not only those held 5 % of its time; 3: the scan's spectra without each frame's DC (a file of pure DC drew notes); 4: a hold whose level falls faster than 60 dB/s is not held

@@ -198,3 +198,32 @@ def test_the_cursor_line_names_the_notes_on_modes_first_and_no_far_mode():
     assert len(items) == 3 and items[0].startswith("A#4 466 Hz → mode 9")
     assert items[1].startswith("D4 300 Hz") and "mode" not in items[1]        # 300 Hz: no mode within 50 c
     assert "→ mode 7 +46c" in items[2]
+
+
+@settings(max_examples=30, deadline=None)
+@given(st.floats(-80, 80), st.floats(-100, 0), st.integers(2, 40), st.integers(0, 10))
+def test_segment_slopes_recover_a_straight_line(slope, start, length, offset):
+    # closed form: least squares on an exact line gives its slope, whatever the segment's place
+    frames = offset + length + 3
+    seg = np.zeros((1, frames), dtype=int)
+    seg[0, offset:offset + length] = 1
+    level = (start + slope * np.arange(frames, dtype=float))[None, :]
+    got = sc._segment_slopes(seg, seg > 0, level)
+    assert got[1] == pytest.approx(slope, abs=1e-6 * (1 + abs(slope)))
+
+
+def _struck(freq_hz, decay_db_per_s, every_s, seconds, gain=0.4):
+    """A sine re-struck every ``every_s``, its level falling ``decay_db_per_s`` (closed form)."""
+    t = np.arange(int(seconds * RATE)) / RATE
+    since = np.mod(t, every_s)
+    return (gain * 10 ** (-decay_db_per_s * since / 20) * np.sin(2 * np.pi * freq_hz * t)).astype(np.float32)
+
+
+@pytest.mark.parametrize("decay, holds", [(0.0, True), (20.0, True), (45.0, True), (90.0, False), (150.0, False)])
+def test_a_fast_fading_note_on_a_mode_is_not_a_hold(rig, tmp_path, decay, holds):
+    # a kick drum's pitched tail on mode 1 scored 8 (a fresh user's drum track); a note whose level
+    # falls faster than MAX_HOLD_DECAY_DB_PER_S leaves no pattern to read, a steady or slowly fading
+    # one (a piano's, 20 dB/s) does
+    x = _struck(synth.DEMO_MODE_HZ[3], decay, 0.6, 6.0)
+    s = scan_track(rig, write(tmp_path, f"struck{decay:g}", x))["score"]
+    assert (s > 20) if holds else (s <= 5), s
