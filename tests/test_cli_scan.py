@@ -365,3 +365,17 @@ def test_equal_scores_rank_by_what_a_transposition_would_reach():
     ranked = sort_tracks([track("a_drums.wav", 0.0, 0.0), track("b_bad.wav", None, None, "cut short"),
                           track("c_chorale.wav", 0.0, 55.0), track("d_reel.wav", 40.0, 40.0)])
     assert [t["path"] for t in ranked] == ["d_reel.wav", "c_chorale.wav", "a_drums.wav", "b_bad.wav"]
+
+
+def test_scores_equal_as_shown_rank_by_what_a_transposition_would_reach():
+    """A fresh user saw drums ("8", 8.0, shift promising 13) above a folk tune ("8", 7.6, shift
+    promising 54) and noise ("0", 0.4) above a chorale ("0", 0.0, shift promising 69): the table
+    shows whole points, so the tie is taken on what it shows."""
+    from showkit.analysis.scan import sort_tracks
+
+    def track(path, score, shifted):
+        return {"path": path, "score": score, "transpose_score": shifted, "error": None}
+
+    ranked = sort_tracks([track("drums.wav", 8.0, 13.0), track("folk.wav", 7.6, 54.0),
+                          track("noise.wav", 0.4, 0.4), track("bach.wav", 0.0, 69.0), track("haydn.wav", 14.6, 80.0)])
+    assert [t["path"] for t in ranked] == ["haydn.wav", "folk.wav", "drums.wav", "bach.wav", "noise.wav"]

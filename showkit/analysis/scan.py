@@ -429,11 +429,11 @@ def expand_paths(paths) -> list[Path]:
 
 
 def sort_tracks(tracks: list[dict]) -> list[dict]:
-    """Best score first; on equal scores, the better score a suggested transposition would reach
-    (music that reads with a shift before drums or noise, which read with none); tracks with
-    errors last."""
-    return sorted(tracks, key=lambda t: (t["error"] is not None, -(t["score"] or 0.0),
-                                         -(t.get("transpose_score") or 0.0), t["path"]))
+    """Best score first; on equal scores as the table shows them (whole points), the better score a
+    suggested transposition would reach (music that reads with a shift before drums or noise, which
+    read with none), then the unrounded score; tracks with errors last."""
+    return sorted(tracks, key=lambda t: (t["error"] is not None, -round(t["score"] or 0.0),
+                                         -(t.get("transpose_score") or 0.0), -(t["score"] or 0.0), t["path"]))
 
 
 def default_jobs() -> int:
