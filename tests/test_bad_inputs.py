@@ -503,7 +503,7 @@ CASES = [
     Case("missing-argument-scan", lambda e: ["scan"],
          "scan: the following arguments are required: PATH -- see `showkit scan --help`"),
     Case("option-without-value", lambda e: ["scan", e.p("track.wav"), "--jobs"],
-         "scan: argument --jobs: expected one argument"),
+         "scan: argument -j/--jobs: expected one argument"),
     Case("option-bad-int", lambda e: ["scan", e.p("track.wav"), "--jobs", "two"], "invalid int value: 'two'"),
     Case("unknown-command", lambda e: ["frob"], "invalid choice: 'frob'"),
     Case("unknown-measure-step", lambda e: ["measure", "fit"], "measure: argument STEP: invalid choice: 'fit'"),

@@ -244,3 +244,25 @@ async def test_a_short_terminal_says_how_many_mode_rows_the_map_leaves_out(ui_sh
             text = str(tmap.render())
             assert (shown < total) == cut, (size, shown, total)
             assert (f"+{total - shown} weaker mode" in text) == cut
+
+
+def test_a_missing_relative_track_names_both_places_looked(ui_short_show, tmp_path, monkeypatch):
+    # a fresh user typed tracks/nope.wav: it was looked for in the current folder, then beside the
+    # sheet, and the error named only the second
+    import numpy as np
+    import soundfile as sf
+
+    from showkit.errors import AudioError
+    from showkit.ui.session import Session
+
+    elsewhere = tmp_path / "elsewhere"
+    elsewhere.mkdir()
+    monkeypatch.chdir(elsewhere)
+    tracks = Session.open_sheet(ui_short_show).tracks
+    with pytest.raises(AudioError) as err:
+        tracks.resolve("tracks/nope.wav")
+    line = err.value.line()
+    assert str(elsewhere / "tracks") in line and str(ui_short_show.parent / "tracks") in line, line
+    (elsewhere / "tracks").mkdir()
+    sf.write(str(elsewhere / "tracks" / "here.wav"), np.zeros(4800, np.float32), 48000)
+    assert tracks.resolve("tracks/here.wav") == (elsewhere / "tracks" / "here.wav").resolve()

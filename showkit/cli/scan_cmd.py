@@ -45,7 +45,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     add_temperature_option(parser)
     add_json_option(parser)
     parser.add_argument("--csv", metavar="FILE", help="also write one row per passage to a CSV file")
-    parser.add_argument("--jobs", metavar="N", type=int,
+    parser.add_argument("-j", "--jobs", metavar="N", type=int,
                         help="worker processes (default: all cores)")
     parser.add_argument("--transpose", metavar="N", type=float,
                         help="write a preview WAV of each track's best passage shifted by N "
@@ -223,9 +223,9 @@ def run(args) -> int:
                          " ".join(args.paths), "give one audio file with --map")
 
     if args.jobs is not None and args.jobs < 1:
-        raise InputError(f"--jobs must be 1 or more (got {args.jobs})", "--jobs", "give a number of workers, e.g. --jobs 2")
+        raise InputError(f"the number of workers must be 1 or more (got {args.jobs})", "--jobs", "give a number of workers, e.g. --jobs 2")
     if args.transpose is not None and not -_MAX_SEMITONES <= args.transpose <= _MAX_SEMITONES:
-        raise InputError(f"--transpose must be within -{_MAX_SEMITONES:g} and {_MAX_SEMITONES:g} semitones, "
+        raise InputError(f"a shift must be within -{_MAX_SEMITONES:g} and {_MAX_SEMITONES:g} semitones, "
                          f"the range the scan searches (got {args.transpose:.10g})",
                          "--transpose", "give a shift such as --transpose -2 or --transpose 0.5")
     rig = load_rig_from_args(args)

@@ -119,7 +119,12 @@ class TrackWork:
         else:
             p = Path(t).expanduser()
             if not p.is_absolute() and not p.exists():
+                here = Path.cwd() / p
                 p = sheet.folder / p
+                if not p.exists() and not p.is_symlink():
+                    # neither place holds it: say both, not only the last one tried
+                    raise AudioError(f"no such audio file here ({here.parent}) or beside the sheet ({p.parent})",
+                                     t, "check the name, or give the whole path")
         check_audio_file(p, AudioError)  # missing, a folder, a pipe or a device: one line
         return p.resolve()
 
