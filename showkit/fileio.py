@@ -19,7 +19,10 @@ import errno
 import json
 import os
 import stat
+import sys
+import threading
 import tomllib
+from contextlib import contextmanager
 from pathlib import Path
 
 from showkit import limits
@@ -189,3 +192,50 @@ def read_json(path):
     if nesting_depth(value) > limits.MAX_NESTING:
         return None
     return value
+
+
+#: Whether :func:`quiet_native_stderr` silences file descriptor 2 (the command line turns it on,
+#: :func:`quiet_native_probes`; the terminal UI draws through that descriptor and never does).
+_QUIET_PROBES = False
+_QUIET_LOCK = threading.Lock()
+
+
+def quiet_native_probes(on: bool = True) -> None:
+    """Silence the C libraries' own lines on standard error while a file's format is probed
+    (for the command line, whose standard error carries only showkit's one-line messages)."""
+    global _QUIET_PROBES
+    _QUIET_PROBES = bool(on)
+
+
+@contextmanager
+def quiet_native_stderr():
+    """Standard error (file descriptor 2) to the null device for the block, when
+    :func:`quiet_native_probes` is on: libsndfile's mp3 decoder prints its own lines there while
+    it probes an unknown file ("skip_junk(): Giving up"), which stood before showkit's one line.
+    One probe at a time (a lock): descriptor 2 is the process's, shared by its threads."""
+    if not _QUIET_PROBES:
+        yield
+        return
+    with _QUIET_LOCK:
+        try:
+            sys.stderr.flush()
+        except (OSError, ValueError, AttributeError):
+            pass
+        try:
+            saved = os.dup(2)
+        except OSError:                  # no descriptor 2 (closed): nothing to silence
+            yield
+            return
+        try:
+            null = os.open(os.devnull, os.O_WRONLY)
+        except OSError:
+            os.close(saved)
+            yield
+            return
+        try:
+            os.dup2(null, 2)
+            yield
+        finally:
+            os.dup2(saved, 2)
+            os.close(saved)
+            os.close(null)

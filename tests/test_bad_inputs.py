@@ -802,3 +802,25 @@ def test_a_full_standard_output_is_one_line(env, argv):
     assert done.returncode == 2 and "Traceback" not in done.stderr
     assert lines == ["showkit: standard output cannot be written (No space left on device) -- free some disk "
                      "space, or send the output to another file"], done.stderr
+
+
+def test_a_closed_standard_output_is_no_traceback(env):
+    # `showkit modes >&-`: sys.stdout is None; the guard on standard output must not wrap it
+    done = subprocess.run([sys.executable, "-m", "showkit", "modes"], stdout=subprocess.DEVNULL,
+                          stderr=subprocess.PIPE, text=True, timeout=HANG_S, cwd=env.dir,
+                          env=dict(os.environ, PYTHONPATH=str(REPO)), close_fds=True,
+                          preexec_fn=lambda: os.close(1))
+    assert done.returncode == 0 and "Traceback" not in done.stderr, done.stderr
+
+
+def test_the_table_is_printed_when_the_map_cannot_be_written(env, capsys, monkeypatch):
+    # the outputs are written before the table (for `| head`); one that fails is said after it
+    from showkit.cli import scan_cmd
+
+    def refuse(*args, **kwargs):
+        from showkit.errors import OutputError
+        raise OutputError("the disk is full", "m.json", "free some disk space")
+
+    monkeypatch.setattr(scan_cmd, "_write_map", refuse)
+    status, out, err = run_cli(["scan", env.p("track.wav"), "--map", env.p("m.json")], capsys)
+    assert status == 2 and "track.wav" in out and error_lines(err) == ["showkit: m.json: the disk is full -- free some disk space"]

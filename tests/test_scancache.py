@@ -122,3 +122,30 @@ def test_a_file_made_unreadable_is_not_served_from_the_cache(cache, track):
         assert "cached" not in run.stdout and "ermission denied" in run.stderr
     finally:
         track.chmod(0o644)
+
+
+@pytest.mark.parametrize("field, value", [("score", float("nan")), ("transpose_score", float("inf")),
+                                          ("passage score", float("nan"))])
+def test_a_cached_non_finite_figure_is_analysed_again(cache, track, field, value):
+    # a damaged entry with a NaN score was served, and sorting it by its rounded score raised
+    import json
+
+    rig = load_rig()
+    first = scan_mod.scan_paths(rig, [track], jobs=1)[0]
+    key = scancache.cache_key(scancache.content_key(track), rig)
+    entry = cache / "scan" / f"{key}.json"
+    data = json.loads(entry.read_text())
+    if field == "passage score":
+        data["result"]["passages"][0]["score"] = value
+    else:
+        data["result"][field] = value
+    entry.write_text(json.dumps(data))
+    assert scancache.load(key) is None
+    again = scan_mod.scan_paths(rig, [track, track.parent], jobs=1)
+    assert all(np.isfinite(t["score"]) for t in again) and again[0]["score"] == first["score"]
+
+
+def test_sorting_takes_a_non_finite_score_as_none():
+    tracks = [{"path": "a", "score": float("nan"), "transpose_score": float("inf"), "error": None},
+              {"path": "b", "score": 3.0, "transpose_score": 3.0, "error": None}]
+    assert [t["path"] for t in scan_mod.sort_tracks(tracks)] == ["b", "a"]

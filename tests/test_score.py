@@ -227,3 +227,17 @@ def test_a_fast_fading_note_on_a_mode_is_not_a_hold(rig, tmp_path, decay, holds)
     x = _struck(synth.DEMO_MODE_HZ[3], decay, 0.6, 6.0)
     s = scan_track(rig, write(tmp_path, f"struck{decay:g}", x))["score"]
     assert (s > 20) if holds else (s <= 5), s
+
+
+def test_segment_slopes_with_gaps_and_several_segments():
+    # closed form per segment: least squares over the counted frames only; segment 0 (outside any
+    # hold) is not fitted, a segment of one counted frame has no slope
+    seg = np.array([[0, 1, 1, 1, 1, 0, 2, 2, 2, 3, 3]])
+    on = np.array([[True, True, False, True, True, True, True, True, True, True, False]])
+    level = np.array([[50.0, 0.0, 99.0, -4.0, -6.0, 7.0, 10.0, 13.0, 16.0, 1.0, 9.0]])
+    got = sc._segment_slopes(seg, on, level)
+    t1, y1 = np.array([1.0, 3.0, 4.0]), np.array([0.0, -4.0, -6.0])
+    assert got[1] == pytest.approx(np.polyfit(t1, y1, 1)[0])
+    assert got[2] == pytest.approx(3.0)
+    assert np.isnan(got[3])
+    assert sc._segment_slopes(np.zeros((0, 0), int), np.zeros((0, 0), bool), np.zeros((0, 0))).shape == (1,)

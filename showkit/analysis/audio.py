@@ -15,8 +15,6 @@ from __future__ import annotations
 import hashlib
 import math
 import os
-import sys
-from contextlib import contextmanager
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Iterator
@@ -24,6 +22,7 @@ from typing import Iterator
 import numpy as np
 
 from showkit.errors import AudioError
+from showkit.fileio import quiet_native_stderr
 from showkit.limits import (AUDIO_MAX_BYTES, MAX_CUE_SAMPLES, MAX_RATE_HZ, MAX_SAMPLE_MAGNITUDE, MIN_AUDIO_S,
                             MIN_RATE_HZ)
 
@@ -70,27 +69,6 @@ def _count_samples(n: int) -> str:
     return f"{n} sample{'' if n == 1 else 's'}"
 
 
-@contextmanager
-def _quiet_native_stderr():
-    """Standard error (file descriptor 2) to the null device for the block: libsndfile's mp3
-    decoder prints its own lines there while it probes an unknown file ("skip_junk(): Giving
-    up"), which would stand before showkit's one line (and draw over the terminal UI)."""
-    try:
-        sys.stderr.flush()
-        saved = os.dup(2)
-    except (OSError, ValueError, AttributeError):
-        yield
-        return
-    null = os.open(os.devnull, os.O_WRONLY)
-    try:
-        os.dup2(null, 2)
-        yield
-    finally:
-        os.dup2(saved, 2)
-        os.close(saved)
-        os.close(null)
-
-
 def audio_info(path: str | Path) -> AudioInfo:
     """Check that ``path`` is a readable audio file and say what it holds."""
     import soundfile as sf
@@ -103,7 +81,7 @@ def audio_info(path: str | Path) -> AudioInfo:
     if st.st_size == 0:
         raise AudioError("the file is empty (0 bytes)", where, "export the track again")
     try:
-        with _quiet_native_stderr():
+        with quiet_native_stderr():
             info = sf.info(str(path))
     except Exception as exc:  # libsndfile's errors are not one class across versions
         _damaged_wav(path, where)

@@ -10,6 +10,7 @@ the scan goes on.
 
 from __future__ import annotations
 
+import math
 import os
 from concurrent.futures import ProcessPoolExecutor, as_completed
 from dataclasses import dataclass
@@ -432,8 +433,11 @@ def sort_tracks(tracks: list[dict]) -> list[dict]:
     """Best score first; on equal scores as the table shows them (whole points), the better score a
     suggested transposition would reach (music that reads with a shift before drums or noise, which
     read with none), then the unrounded score; tracks with errors last."""
-    return sorted(tracks, key=lambda t: (t["error"] is not None, -round(t["score"] or 0.0),
-                                         -(t.get("transpose_score") or 0.0), -(t["score"] or 0.0), t["path"]))
+    def number(value) -> float:   # a missing or non-finite figure sorts as nothing
+        return float(value) if isinstance(value, (int, float)) and math.isfinite(value) else 0.0
+
+    return sorted(tracks, key=lambda t: (t["error"] is not None, -round(number(t["score"])),
+                                         -number(t.get("transpose_score")), -number(t["score"]), t["path"]))
 
 
 def default_jobs() -> int:

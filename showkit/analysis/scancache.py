@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import hashlib
 import json
+import math
 import os
 import stat
 from pathlib import Path
@@ -91,25 +92,30 @@ _PASSAGE_FIELDS = {"start_s": (int, float), "end_s": (int, float), "score": (int
                    "modes": list, "ceiling_db": (int, float), "contrast": (int, float)}
 
 
+def _finite(value) -> bool:
+    """False for a NaN or infinite number (a damaged entry); True for anything else."""
+    return not isinstance(value, float) or math.isfinite(value)
+
+
 def _well_formed(result) -> bool:
     """True when ``result`` has the shape :func:`showkit.analysis.scan.scan_track` returns."""
     if not isinstance(result, dict) or result.get("error") is not None:
         return False
     for key, kind in _RESULT_FIELDS.items():
-        if not isinstance(result.get(key), kind) or isinstance(result.get(key), bool):
+        if not isinstance(result.get(key), kind) or isinstance(result.get(key), bool) or not _finite(result.get(key)):
             return False
     for p in result["passages"]:
         if not isinstance(p, dict):
             return False
         for key, kind in _PASSAGE_FIELDS.items():
-            if not isinstance(p.get(key), kind) or isinstance(p.get(key), bool):
+            if not isinstance(p.get(key), kind) or isinstance(p.get(key), bool) or not _finite(p.get(key)):
                 return False
         if not all(isinstance(n, int) and not isinstance(n, bool) for n in p["modes"]):
             return False
         shares = p.get("mode_shares", [])
         if not isinstance(shares, list) or not all(
                 isinstance(m, dict) and isinstance(m.get("n"), int) and isinstance(m.get("note"), str)
-                and isinstance(m.get("share"), (int, float)) for m in shares):
+                and isinstance(m.get("share"), (int, float)) and _finite(m.get("share")) for m in shares):
             return False
     return True
 

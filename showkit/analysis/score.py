@@ -260,6 +260,8 @@ def mode_frames(features: TrackFeatures, table: ModeTable, gate: np.ndarray,
 def _segment_slopes(seg: np.ndarray, on: np.ndarray, level: np.ndarray) -> np.ndarray:
     """Least-squares slope (level units per frame) of ``level`` over each segment's ``on`` frames,
     indexed by segment id (NaN where a segment has fewer than two such frames)."""
+    if seg.size == 0:
+        return np.full(1, np.nan)
     n_seg = int(seg.max()) + 1
     ids = seg.ravel()
     w = (on & (seg > 0)).ravel().astype(np.float64)
@@ -319,7 +321,9 @@ def _mode_rows(jn, fn, cents, absc, share, modes, frames, tol, need, safe, gate,
     seg = np.cumsum(mark.ravel()).reshape(modes, frames) * bridged
     # a segment is held, from its start, once its frames inside the band reach the ring-up time
     inband = np.bincount(seg.ravel(), weights=hit.ravel(), minlength=int(seg.max()) + 1)
-    # ... and its level on the mode does not fall faster than MAX_HOLD_DECAY_DB_PER_S
+    # ... and its level on the mode does not fall faster than MAX_HOLD_DECAY_DB_PER_S (no slope, NaN,
+    # only for a segment of fewer than two hit frames, which the length test above already refuses;
+    # the level is finite: floored at -120 dB)
     fall = -np.nan_to_num(_segment_slopes(seg, hit, level), nan=0.0) * frame_rate_hz
     held = bridged & (seg > 0) & (inband[seg] >= need[:, None]) & (fall[seg] <= MAX_HOLD_DECAY_DB_PER_S)
     return strength.astype(np.float32), bridged, held

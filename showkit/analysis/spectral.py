@@ -72,6 +72,8 @@ def windowed_spectrum(frames: np.ndarray, n_fft: int, keep: slice) -> np.ndarray
     # on the scan's frames, 2026-12-03); one worker, as the scan gives each file one core
     import scipy.fft as sfft
 
+    if frames.ndim != 2 or keep.step not in (None, 1):
+        raise ValueError("frames must be (frames, samples) and keep a plain slice of bins")
     n = frames.shape[1]
     window = hann(n)
     spec = sfft.rfft(frames * window[None, :], n=n_fft, axis=1, workers=1)[:, keep]

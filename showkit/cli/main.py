@@ -10,6 +10,7 @@ status 2, never a traceback.
 from __future__ import annotations
 
 import argparse
+import errno
 import importlib
 import importlib.util
 import sys
@@ -106,7 +107,7 @@ class _GuardedStdout:
         except BrokenPipeError:
             raise
         except OSError as exc:
-            raise _StdoutFailed(exc.strerror or str(exc)) from None
+            raise _StdoutFailed(exc.strerror or str(exc), exc.errno) from None
 
     def write(self, text):
         return self._guard(self._stream.write, text)
@@ -119,12 +120,19 @@ class _GuardedStdout:
 
 
 def main(argv: list[str] | None = None) -> int:
+    from showkit.fileio import quiet_native_probes
+
     argv = sys.argv[1:] if argv is None else argv
     given = sys.stdout
-    sys.stdout = _GuardedStdout(given)
+    if given is not None:      # None: started with standard output closed; print() then writes nothing
+        sys.stdout = _GuardedStdout(given)
+    # the C libraries' own lines on standard error are silenced for the commands, never for the
+    # terminal UI (`showkit`, `showkit open`), which draws through that descriptor
+    quiet_native_probes(bool(argv) and argv[0] != "open")
     try:
         return _main(argv)
     finally:
+        quiet_native_probes(False)
         sys.stdout = given
 
 
@@ -142,7 +150,8 @@ def _main(argv: list[str]) -> int:
             parser.print_help()
             return 0
         status = int(modules[args.command].run(args) or 0)
-        sys.stdout.flush()     # here, not at exit: a full disk or a closed pipe is then caught below
+        if sys.stdout is not None:
+            sys.stdout.flush()     # here, not at exit: a full disk or a closed pipe is then caught below
         return status
     except ShowkitError as exc:
         print(f"showkit: {exc.line()}", file=sys.stderr)
@@ -155,8 +164,9 @@ def _main(argv: list[str]) -> int:
         return 0
     except _StdoutFailed as exc:
         _drop_stdout()
-        print(f"showkit: standard output cannot be written ({exc}) -- free some disk space, or send the "
-              "output to another file", file=sys.stderr)
+        fix = "free some disk space, or send" if exc.args[1] in (errno.ENOSPC, errno.EDQUOT) else "send"
+        print(f"showkit: standard output cannot be written ({exc.args[0]}) -- {fix} the output to another "
+              "file", file=sys.stderr)
         return 2
 
 

@@ -259,18 +259,23 @@ def run(args) -> int:
         # name) and it could not be read: its one line, as any command gives it
         raise InputError(tracks[0]["error"])
     # the files first: a reader that stops early (`| head`) closes the pipe on the table, which
-    # must not cost the map, CSV or previews asked for
+    # must not cost the map, CSV or previews asked for; a file that cannot be written is said
+    # after the table, which is still printed
     protect = [(t["path"], "a scanned track") for t in tracks] + [(p, "a scanned path") for p in args.paths]
-    if args.csv:
-        _write_csv(args.csv, tracks, protect)
-    if args.transpose is not None:
-        _previews(tracks, args.transpose, protect)
-    if getattr(args, "plot", None) and any(t["error"] is None for t in tracks):
-        from showkit.export.figures import plot_scan
+    unwritten = None
+    try:
+        if args.csv:
+            _write_csv(args.csv, tracks, protect)
+        if args.transpose is not None:
+            _previews(tracks, args.transpose, protect)
+        if getattr(args, "plot", None) and any(t["error"] is None for t in tracks):
+            from showkit.export.figures import plot_scan
 
-        print(f"wrote {plot_scan(rig, tracks, args.plot)}", file=sys.stderr)
-    if args.map is not None and tracks[0]["error"] is None:
-        _write_map(rig, tracks[0], args.map, protect)
+            print(f"wrote {plot_scan(rig, tracks, args.plot)}", file=sys.stderr)
+        if args.map is not None and tracks[0]["error"] is None:
+            _write_map(rig, tracks[0], args.map, protect)
+    except ShowkitError as exc:
+        unwritten = exc
     level_caution()
     if args.json:
         print_json({"rig": rig.name, "static_pressure_pa": rig.static_pa, "reserve": rig.reserve,
@@ -289,4 +294,6 @@ def run(args) -> int:
         for line in notes:
             print(textwrap.fill(line, width, subsequent_indent="  "))
         print(textwrap.fill(f"Ceilings rest on: {rig.describe_drive()}.", width, subsequent_indent="  "))
+    if unwritten is not None:
+        raise unwritten
     return 0 if any(t["error"] is None for t in tracks) else 2
