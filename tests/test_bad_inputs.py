@@ -824,3 +824,33 @@ def test_the_table_is_printed_when_the_map_cannot_be_written(env, capsys, monkey
     monkeypatch.setattr(scan_cmd, "_write_map", refuse)
     status, out, err = run_cli(["scan", env.p("track.wav"), "--map", env.p("m.json")], capsys)
     assert status == 2 and "track.wav" in out and error_lines(err) == ["showkit: m.json: the disk is full -- free some disk space"]
+
+
+def test_silencing_the_c_libraries_leaves_standard_error_as_it_was():
+    # two threads probing at once left descriptor 2 on the null device for good (a review's find):
+    # one probe at a time, and standard error is the same file after them all
+    import threading
+
+    from showkit.fileio import quiet_native_probes, quiet_native_stderr
+
+    before = os.fstat(2)
+    inside = []
+
+    def probe():
+        with quiet_native_stderr():
+            inside.append(os.fstat(2).st_rdev == os.stat(os.devnull).st_rdev)
+
+    quiet_native_probes(True)
+    try:
+        threads = [threading.Thread(target=probe) for _ in range(8)]
+        for t in threads:
+            t.start()
+        for t in threads:
+            t.join()
+    finally:
+        quiet_native_probes(False)
+    after = os.fstat(2)
+    assert inside == [True] * 8
+    assert (after.st_dev, after.st_ino) == (before.st_dev, before.st_ino)
+    with quiet_native_stderr():          # off (the terminal UI): nothing is touched
+        assert (os.fstat(2).st_dev, os.fstat(2).st_ino) == (before.st_dev, before.st_ino)
