@@ -278,6 +278,29 @@ def test_rider_lifts_the_quiet_part_and_still_holds_the_line(show):
     assert np.nanmax(steps) < 0.05  # a smooth gain curve: no jumps (clicks)
 
 
+def test_the_rider_keeps_a_cue_set_below_its_ceiling_below_it(show):
+    """A presenter's ridden cue at -40 dB under a -29.2 dB ceiling was lifted to the safe line
+    (margin 0, the headroom they chose gone): the rider lifts the quiet parts to the level of the
+    cue's own peaks, so its lowest hole pressure stays where the cue's gain puts it."""
+    import dataclasses
+
+    sheet, _ = _locked(show)
+    rig = sheet_rig(sheet)
+    cue = sheet.cue("pb")
+    below = dataclasses.replace(cue, gain_db=cue.lock.ceiling_db - 10.0)
+    plain = render_cue(sheet, rig, below)
+    ridden = render_cue(sheet, rig, dataclasses.replace(below, ride=True))
+    rate = ridden.rate_hz
+    quiet = slice(int(1.0 * rate), int(4.0 * rate))
+    lift_db = 20 * np.log10(np.sqrt(np.mean(ridden.samples[quiet].astype(float) ** 2))
+                            / np.sqrt(np.mean(plain.samples[quiet].astype(float) ** 2)))
+    assert lift_db > 1.0                                   # the quiet part is still lifted
+    # the headroom is kept: the ridden cue's lowest hole pressure is the plain cue's (10 dB below
+    # the ceiling leaves most of the swing unused; before, the margin went to 0)
+    assert ridden.min_pressure_pa >= plain.min_pressure_pa - VERIFY_TOLERANCE * rig.static_pa
+    assert ridden.margin_pa > 0.5 * plain.margin_pa
+
+
 def test_render_for_playback_reports_problems_and_shifts_tones_with_temperature(show):
     sheet, _ = _locked(show)
     rig = sheet_rig(sheet)

@@ -5,11 +5,15 @@ The rider lifts the rest (up to :data:`MAX_LIFT_DB`) and stays at the locked
 gain only around the peaks that set the ceiling:
 
 1. the tube's unit-gain pressure envelope per flame frame (max over holes);
-2. the lift the safe line allows per frame, ``(1 - m) dP0 / E``, where ``E``
-   is the envelope's maximum from a little before the frame to one ring time
-   after it (a lift now still rings in the tube that long: the ring time is
-   where the impulse responses have decayed by 60 dB), and the lift that keeps
-   the peak at or below full scale; never below 1 (the locked gain is safe);
+2. the lift allowed per frame, ``S / E``, where ``E`` is the envelope's maximum
+   from a little before the frame to one ring time after it (a lift now still
+   rings in the tube that long: the ring time is where the impulse responses
+   have decayed by 60 dB) and ``S`` the cue's own largest swing at its gain
+   (never more than the safe line's ``(1 - m) dP0``): a cue set below its
+   ceiling keeps its headroom, the rider lifting the quiet parts to the level
+   of the cue's own peaks, not to the safe line (a presenter's -40 dB cue under a
+   -29.2 dB ceiling was ridden to the line, margin 0); and the lift that keeps
+   the peak at or below full scale; never below 1 (the cue's gain is safe);
 3. smoothed without ever rising above the allowed lift: a running minimum
    followed by a running mean of the same width (so a slow, click-free curve);
 4. applied, then **verified** by simulating the ridden samples; where a hole
@@ -80,7 +84,7 @@ def lift_curve(rig: Rig, samples: np.ndarray, rate_hz: int, max_lift_db: float =
     ahead = int(round(max(ring_time_s(f) for _, f in family_filters(rig)) * fps))
     guard = behind + ahead + 1
     env_window = np.maximum(_running(env, guard, "max", behind), 1e-12)
-    allowed = (1.0 - rig.reserve) * rig.static_pa / env_window
+    allowed = min((1.0 - rig.reserve) * rig.static_pa, float(env.max()) if env.size else 0.0) / env_window
     # full scale: the sample peak in each frame's window
     per_frame = max(1, int(round(rate_hz / fps)))
     usable = min(samples.size, n_frames * per_frame)
@@ -114,18 +118,21 @@ def ride(rig: Rig, samples: np.ndarray, rate_hz: int, max_lift_db: float = MAX_L
     from showkit.analysis.pressure import family_filters
 
     ring = max(ring_time_s(f) for _, f in family_filters(rig))
-    line = rig.reserve * rig.static_pa
+    # the swing the ridden cue may reach: its own at its gain (its headroom kept), never the
+    # safe line's more
+    own = signal_report(rig, x, rate_hz, flames=False).swing_pa
+    allowed_swing = min((1.0 - rig.reserve) * rig.static_pa, own)
     for _ in range(MAX_ROUNDS):
         y = x * lift
         peak = np.max(np.abs(y))
         report = signal_report(rig, y, rate_hz, flames=False)
-        lowest = rig.static_pa - report.swing_pa
         # the same slack for float32 rounding as the render's verification
-        if lowest >= line - 1e-5 * rig.static_pa and peak <= 1.0:
+        if report.swing_pa <= allowed_swing + 1e-5 * rig.static_pa and peak <= 1.0:
             return y
         # lower the lift by the excess around the worst moment, with the guard width
-        excess = max(report.swing_pa / ((1.0 - rig.reserve) * rig.static_pa), peak)
-        t0 = report.worst_time_s if lowest < line else float(np.argmax(np.abs(y)) / rate_hz)
+        over = report.swing_pa > allowed_swing + 1e-5 * rig.static_pa
+        excess = max(report.swing_pa / max(allowed_swing, 1e-12), peak)
+        t0 = report.worst_time_s if over else float(np.argmax(np.abs(y)) / rate_hz)
         t = np.arange(x.size) / rate_hz
         near = (t >= t0 - ring - SMOOTH_S) & (t <= t0 + GUARD_S + SMOOTH_S)
         lift = np.where(near, np.maximum(1.0, lift / (excess * 1.001)), lift)
