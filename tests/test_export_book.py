@@ -150,6 +150,17 @@ def test_cue_page_flames_are_the_models_at_the_locked_worst_moment(book):
     np.testing.assert_array_equal(by_id["loud"].air_in, over.air_in[k])
     np.testing.assert_array_equal(by_id["loud"].height, over.height[k])
     assert by_id["loud"].air_in is not None and by_id["loud"].air_in.max() > 0
+    # a passage that starts later in its file (0.5 s): the lock's moment is from the cue's start,
+    # and the row drawn is the rendered cue's frame there (it was taken 0.5 s earlier: a
+    # presenter's cues starting at 11 s drew a blank row "-0:04.7 into the cue")
+    notes = sheet.cue("notes")
+    assert notes.source.start_s > 0
+    v = render_cue(sheet, rig, notes)
+    frames = signal_flames(rig, v.samples, v.rate_hz)
+    j = int(np.floor(notes.lock.worst_time_s * FRAME_RATE_HZ)) + frame_lag(rig)
+    assert by_id["notes"].worst_time_s == notes.lock.worst_time_s >= 0
+    np.testing.assert_array_equal(by_id["notes"].height, frames.height[j])
+    assert np.ptp(by_id["notes"].height) > 1e-5      # the row moves (the blank row was all 1.0)
 
 
 @pytest.mark.parametrize("static, reserve, expect", [

@@ -127,9 +127,10 @@ def collect(sheet, rig, progress=None, maps: bool = True) -> BookData:
         if frames is not None and frames.height is not None and frames.height.shape[0]:
             lock = cue.lock
             hole = lock.worst_hole if lock is not None and lock.worst_hole >= 0 else None
+            # the lock's time is from the cue's start (its samples begin at the passage's start);
+            # taking the passage's start off again put a cue starting at 11.3 s at "-0:04.7 into
+            # the cue", with a blank row (a presenter's book)
             t = lock.worst_time_s if hole is not None else 0.0
-            if isinstance(cue.source, AudioSource) and hole is not None:
-                t -= cue.source.start_s  # the lock's time is from the start of the file
             j = int(np.clip(int(np.floor(t * FRAME_RATE_HZ)) + lag, 0, frames.height.shape[0] - 1))
             e.height, e.air_in = frames.height[j], frames.air_in[j]
             e.worst_hole, e.worst_time_s = hole, t
