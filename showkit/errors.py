@@ -8,6 +8,7 @@ it never shows a traceback for these.
 
 from __future__ import annotations
 
+from showkit.limits import MAX_MESSAGE_PART_CHARS
 from showkit.printable import printable
 
 
@@ -47,11 +48,9 @@ class ShowkitError(Exception):
 
 def _shortened(part: str) -> str:
     """``part`` whole, or its start and end around how many characters were left out."""
-    from showkit.limits import MAX_MESSAGE_PART_CHARS as most
-
-    if len(part) <= most:
+    if len(part) <= MAX_MESSAGE_PART_CHARS:
         return part
-    keep = (most - 40) // 2
+    keep = (MAX_MESSAGE_PART_CHARS - 40) // 2
     return f"{part[:keep]} [... {len(part) - 2 * keep} characters ...] {part[-keep:]}"
 
 

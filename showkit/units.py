@@ -17,6 +17,7 @@ import math
 import re
 
 from showkit.errors import InputError, ShowkitError
+from showkit.limits import MAX_VALUE_CHARS
 
 STANDARD_GRAVITY_M_S2 = 9.80665
 WATER_DENSITY_KG_M3 = 1000.0
@@ -111,10 +112,8 @@ def _near_unit(unit: str, table: dict[str, float]) -> str:
 def _short_enough(value, kind: str, where: str | None, error: type[ShowkitError] = InputError,
                   fix: str | None = None) -> None:
     """Refuse text too long to be one value (:data:`showkit.limits.MAX_VALUE_CHARS`), quoting only its start."""
-    from showkit.limits import MAX_VALUE_CHARS
-
     if isinstance(value, str) and len(value) > MAX_VALUE_CHARS:
-        raise error(f"a {kind} of {len(value)} characters is too long to read (it starts {value[:24]!r})",
+        raise error(f"a {kind} is too long to read: {quoted(value)}",
                     where, fix or f"write a number and a unit, e.g. {_example(kind)}")
 
 
@@ -172,8 +171,6 @@ def number_or_text(value):
     while ``"18 Pa"`` stays text for the unit parsers (:func:`pressure_pa`, :func:`duration_s`...).
     """
     if isinstance(value, str):
-        from showkit.limits import MAX_VALUE_CHARS
-
         # the project's own number pattern, not float(): float() also takes "1_000" and any number
         # of digits, which the unit parsers refuse ("nan" and "inf" pass, to be refused as not finite)
         if len(value) <= MAX_VALUE_CHARS and re.fullmatch(rf"\s*(?:{_NUMBER}|[-+]?(?:nan|inf|infinity))\s*",

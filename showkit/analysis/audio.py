@@ -25,6 +25,7 @@ from showkit.errors import AudioError
 from showkit.fileio import quiet_native_stderr
 from showkit.limits import (AUDIO_MAX_BYTES, MAX_CUE_SAMPLES, MAX_RATE_HZ, MAX_SAMPLE_MAGNITUDE, MIN_AUDIO_S,
                             MIN_RATE_HZ)
+from showkit.units import format_count
 
 #: Files shorter than this many samples cannot be analysed.
 MIN_FRAMES = 1
@@ -65,10 +66,6 @@ class Audio:
         return self.samples.size / self.rate_hz
 
 
-def _count_samples(n: int) -> str:
-    return f"{n} sample{'' if n == 1 else 's'}"
-
-
 def audio_info(path: str | Path) -> AudioInfo:
     """Check that ``path`` is a readable audio file and say what it holds."""
     import soundfile as sf
@@ -106,7 +103,7 @@ def audio_info(path: str | Path) -> AudioInfo:
                          "export the track again at 44.1 or 48 kHz")
     if info.frames < MIN_AUDIO_S * info.samplerate:
         raise AudioError(f"the audio is only {1000.0 * info.frames / info.samplerate:.3g} ms long "
-                         f"({_count_samples(info.frames)} at {info.samplerate} Hz; shortest: {MIN_AUDIO_S:g} s)", where,
+                         f"({format_count(info.frames, 'sample')} at {info.samplerate} Hz; shortest: {MIN_AUDIO_S:g} s)", where,
                          f"give a track or recording longer than {MIN_AUDIO_S:g} s")
     return AudioInfo(path=path, rate_hz=int(info.samplerate), channels=int(info.channels),
                      frames=int(info.frames), format=str(info.format))
@@ -260,8 +257,9 @@ def read_blocks(path: str | Path, rate_hz: int | None = None, start_s: float | N
                     break
                 got += data.shape[0]
                 mono = data.mean(axis=1)
-                if not np.all(np.isfinite(mono)) or np.max(np.abs(mono)) > MAX_SAMPLE_MAGNITUDE:
-                    bad = int(np.argmax(~(np.abs(mono) <= MAX_SAMPLE_MAGNITUDE)))
+                within = np.abs(mono) <= MAX_SAMPLE_MAGNITUDE      # False for NaN too
+                if not within.all():
+                    bad = int(np.argmax(~within))
                     t = (first + got - data.shape[0] + bad) / info.rate_hz
                     raise AudioError(f"{_bad_sample(mono[bad])} (first at {t:.3f} s)",
                                      where, "repair or re-export the file")
@@ -311,17 +309,17 @@ def mono(samples) -> np.ndarray:
     x = np.asarray(samples, dtype=float)
     if x.ndim == 2:
         x = x.mean(axis=1)
-    if not np.all(np.abs(x) <= MAX_SAMPLE_MAGNITUDE):
-        bad = int(np.argmax(~(np.abs(x) <= MAX_SAMPLE_MAGNITUDE)))
-        raise AudioError(_bad_sample(x[bad]).replace("the audio", "the signal"), None, "repair the source")
+    within = np.abs(x) <= MAX_SAMPLE_MAGNITUDE                   # False for NaN too
+    if not within.all():
+        raise AudioError(_bad_sample(x[int(np.argmax(~within))], "the signal"), None, "repair the source")
     return x
 
 
-def _bad_sample(value: float) -> str:
-    """What is wrong with a sample that is not finite or is beyond :data:`MAX_SAMPLE_MAGNITUDE`."""
+def _bad_sample(value: float, what: str = "the audio") -> str:
+    """What is wrong with a sample of ``what`` that is not finite or is beyond :data:`MAX_SAMPLE_MAGNITUDE`."""
     if not np.isfinite(value):
-        return "the audio holds NaN or infinite samples"
-    return (f"the audio holds a sample of {value:.3g} times full scale ({20 * np.log10(abs(value)):.0f} dB over "
+        return f"{what} holds NaN or infinite samples"
+    return (f"{what} holds a sample of {value:.3g} times full scale ({20 * np.log10(abs(value)):.0f} dB over "
             f"it; showkit reads up to {20 * np.log10(MAX_SAMPLE_MAGNITUDE):.0f} dB over): not audio to play")
 
 

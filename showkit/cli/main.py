@@ -17,6 +17,7 @@ import sys
 
 from showkit import __version__
 from showkit.errors import InputError, ShowkitError
+from showkit.fileio import quiet_native_probes
 from showkit.safety import LEVEL_CAUTION
 
 #: name -> (module under showkit.cli, one-line help)
@@ -120,8 +121,6 @@ class _GuardedStdout:
 
 
 def main(argv: list[str] | None = None) -> int:
-    from showkit.fileio import quiet_native_probes
-
     argv = sys.argv[1:] if argv is None else argv
     given = sys.stdout
     if given is not None:      # None: started with standard output closed; print() then writes nothing
