@@ -216,8 +216,8 @@ def _write_map(rig, track: dict, target: str, protect=()) -> None:
 def run(args) -> int:
     from showkit.analysis.scan import expand_paths, scan_paths
 
-    if args.map is not None and len(expand_paths(args.paths)) != 1:
-        found = len(expand_paths(args.paths))
+    found = len(expand_paths(args.paths)) if args.map is not None else 1  # the folders walked once here
+    if found != 1:
         raise InputError("--map writes the map of one track, and " +
                          (f"these name {found} audio files" if found else "no audio file was found there"),
                          " ".join(args.paths), "give one audio file with --map")
